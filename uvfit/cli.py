@@ -1,0 +1,86 @@
+"""The command line: it parses options, calls the library and prints. Nothing else lives here.
+
+Each command is a module in ``uvfit/commands/`` that defines a click command named ``command``;
+the group below finds them all, so adding a command touches no other file.
+"""
+import importlib
+import os
+import pkgutil
+import sys
+
+import click
+
+from . import __version__
+from .errors import UvfitError
+
+
+class _Group(click.Group):
+    def _load(self):
+        if getattr(self, "_loaded", False):
+            return
+        from . import commands
+        for info in sorted(pkgutil.iter_modules(commands.__path__), key=lambda m: m.name):
+            if info.name.startswith("_"):
+                continue
+            module = importlib.import_module(f"{commands.__name__}.{info.name}")
+            cmd = getattr(module, "command", None)
+            if isinstance(cmd, click.Command):
+                self.add_command(cmd)
+        self._loaded = True
+
+    def list_commands(self, ctx):
+        self._load()
+        return super().list_commands(ctx)
+
+    def get_command(self, ctx, name):
+        self._load()
+        return super().get_command(ctx, name)
+
+
+@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="uvfit")
+def cli():
+    """Fit parametric sky models to interferometric visibilities, with honest errors.
+
+    Results hold for the model family fitted: a good fit of a few components is no substitute for
+    an image of complex structure. Check every fit against the closure quantities (uvfit closures).
+    """
+
+
+def main(argv=None):
+    """Entry point: run the group, turning known problems into one line and an exit code."""
+    debug = bool(os.environ.get("UVFIT_DEBUG"))
+    try:
+        cli.main(args=argv, prog_name="uvfit", standalone_mode=False)
+    except click.exceptions.Abort:
+        click.echo("aborted", err=True)
+        sys.exit(130)
+    except click.ClickException as exc:
+        exc.show()
+        sys.exit(exc.exit_code)
+    except click.exceptions.Exit as exc:
+        sys.exit(exc.exit_code)
+    except UvfitError as exc:
+        if debug:
+            raise
+        click.echo(f"uvfit: error: {exc}", err=True)
+        sys.exit(exc.exit_code)
+    except (OSError, MemoryError) as exc:
+        if debug:
+            raise
+        click.echo(f"uvfit: error: {exc}", err=True)
+        sys.exit(2)
+    except KeyboardInterrupt:
+        click.echo("interrupted", err=True)
+        sys.exit(130)
+    except Exception as exc:  # a bug, not the user's fault: say so plainly
+        if debug:
+            raise
+        click.echo(f"uvfit: internal error ({type(exc).__name__}: {exc}). Run again with "
+                   "UVFIT_DEBUG=1 for the traceback and report it.", err=True)
+        sys.exit(3)
+    sys.exit(0)
+
+
+if __name__ == "__main__":
+    main()

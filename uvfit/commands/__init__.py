@@ -1,0 +1,1 @@
+"""One module per command; each defines a click command named ``command``."""

@@ -1,0 +1,199 @@
+"""The in-memory visibility set: one row per visibility.
+
+Conventions (see README, "Conventions"):
+- u, v, w in wavelengths at the row's own frequency; the visibility of a sky brightness I(l, m) is
+  V(u, v) = integral I(l, m) exp[-2 pi i (u l + v m)] dl dm, l toward east, m toward north
+  (Thompson, Moran & Swenson 2017, ch. 3).
+- A row on stations (station1, station2) is the correlation of station1 with the conjugate of
+  station2; the (u, v, w) of a row is the baseline from station1 to station2 as stored in the file.
+- vis and sigma in Jy; sigma is the 1-sigma error of the real and of the imaginary part each.
+- time is MJD (UTC) as a float; frequency in Hz, per row.
+- flag is True for a row that must not be used.
+"""
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from ..errors import DataError
+
+_ROW_FIELDS = ("u", "v", "w", "time", "frequency", "station1", "station2", "vis", "sigma",
+               "flag", "channel", "integration")
+
+
+@dataclass
+class StationTable:
+    """Names of the stations, and their geocentric positions (m, NaN where unknown)."""
+
+    names: list
+    xyz: np.ndarray = None
+
+    def __post_init__(self):
+        self.names = [str(n) for n in self.names]
+        if self.xyz is None:
+            self.xyz = np.full((len(self.names), 3), np.nan)
+        self.xyz = np.asarray(self.xyz, dtype=float).reshape(len(self.names), 3)
+
+    def __len__(self):
+        return len(self.names)
+
+    def index(self, name):
+        return self.names.index(name)
+
+
+@dataclass
+class VisibilitySet:
+    """Calibrated visibilities, one row each, with the station table and source metadata.
+
+    Attributes that are 1-D arrays of one length (the rows): ``u``, ``v``, ``w`` (wavelengths),
+    ``time`` (MJD), ``frequency`` (Hz), ``station1``, ``station2`` (station names, str),
+    ``vis`` (complex, Jy), ``sigma`` (Jy), ``flag`` (bool), ``channel`` (int: flattened index
+    IF * n_channels + channel of the row in its file), ``integration`` (s, NaN where unknown).
+    """
+
+    u: np.ndarray
+    v: np.ndarray
+    w: np.ndarray
+    time: np.ndarray
+    frequency: np.ndarray
+    station1: np.ndarray
+    station2: np.ndarray
+    vis: np.ndarray
+    sigma: np.ndarray
+    flag: np.ndarray = None
+    channel: np.ndarray = None
+    integration: np.ndarray = None
+    stations: StationTable = None
+    source: str = "unknown"
+    ra_deg: float = float("nan")
+    dec_deg: float = float("nan")
+    meta: dict = field(default_factory=dict)
+
+    def __post_init__(self):
+        n = len(np.asarray(self.u))
+        self.u = np.asarray(self.u, dtype=np.float64).ravel()
+        self.v = np.asarray(self.v, dtype=np.float64).ravel()
+        self.w = np.zeros(n) if self.w is None else np.asarray(self.w, dtype=np.float64).ravel()
+        self.time = np.asarray(self.time, dtype=np.float64).ravel()
+        self.frequency = np.broadcast_to(np.asarray(self.frequency, dtype=np.float64), (n,)).copy()
+        self.station1 = np.asarray(self.station1).astype(str).ravel()
+        self.station2 = np.asarray(self.station2).astype(str).ravel()
+        self.vis = np.asarray(self.vis, dtype=np.complex128).ravel()
+        self.sigma = np.asarray(self.sigma, dtype=np.float64).ravel()
+        self.flag = (np.zeros(n, bool) if self.flag is None
+                     else np.asarray(self.flag, dtype=bool).ravel())
+        self.channel = (np.zeros(n, int) if self.channel is None
+                        else np.asarray(self.channel, dtype=int).ravel())
+        self.integration = (np.full(n, np.nan) if self.integration is None
+                            else np.broadcast_to(np.asarray(self.integration, float), (n,)).copy())
+        for name in _ROW_FIELDS:
+            if len(getattr(self, name)) != n:
+                raise DataError(f"visibility column '{name}' has {len(getattr(self, name))} rows, "
+                                f"expected {n}")
+        # Rows whose weight or value is not usable are flagged, never silently used.
+        bad = ~np.isfinite(self.sigma) | (self.sigma <= 0) | ~np.isfinite(self.vis)
+        self.flag = self.flag | bad
+        if self.stations is None:
+            names = sorted(set(self.station1.tolist()) | set(self.station2.tolist()))
+            self.stations = StationTable(names)
+
+    # ----------------------------------------------------------------- basics
+    def __len__(self):
+        return len(self.u)
+
+    @property
+    def n(self):
+        return len(self.u)
+
+    @property
+    def uv_distance(self):
+        """Projected baseline length sqrt(u^2 + v^2) in wavelengths."""
+        return np.hypot(self.u, self.v)
+
+    @property
+    def amplitude(self):
+        return np.abs(self.vis)
+
+    @property
+    def phase(self):
+        """Visibility phase in radians."""
+        return np.angle(self.vis)
+
+    @property
+    def snr(self):
+        return np.abs(self.vis) / self.sigma
+
+    @property
+    def frequencies(self):
+        """The distinct frequencies of the rows (Hz), sorted."""
+        return np.unique(self.frequency)
+
+    @property
+    def station_names(self):
+        """Names of the stations that appear in the rows, in station-table order."""
+        used = set(self.station1.tolist()) | set(self.station2.tolist())
+        return [n for n in self.stations.names if n in used]
+
+    @property
+    def ant1(self):
+        """Station-table index of station1 for every row."""
+        lookup = {name: i for i, name in enumerate(self.stations.names)}
+        return np.array([lookup[s] for s in self.station1], dtype=int) if self.n else np.zeros(0, int)
+
+    @property
+    def ant2(self):
+        lookup = {name: i for i, name in enumerate(self.stations.names)}
+        return np.array([lookup[s] for s in self.station2], dtype=int) if self.n else np.zeros(0, int)
+
+    @property
+    def baseline_labels(self):
+        """'A-B' label of every row."""
+        return np.char.add(np.char.add(self.station1, "-"), self.station2)
+
+    # -------------------------------------------------------------- subsets
+    def subset(self, mask):
+        """A new set with the rows selected by a boolean mask or an index array."""
+        mask = np.asarray(mask)
+        kw = {name: getattr(self, name)[mask] for name in _ROW_FIELDS}
+        return replace(self, **kw, meta=dict(self.meta))
+
+    def good(self):
+        """The unflagged rows; raises DataError if there are none."""
+        out = self.subset(~self.flag)
+        if out.n == 0:
+            raise DataError("no unflagged visibilities are left (every row is flagged or has a "
+                            "zero, negative or NaN weight)",
+                            "check the file's weights, or widen the selection options")
+        return out
+
+    def with_vis(self, vis, sigma=None):
+        """A copy with new visibilities (and optionally new sigmas), same rows otherwise."""
+        out = self.subset(np.arange(self.n))
+        out.vis = np.asarray(vis, dtype=np.complex128).copy()
+        if sigma is not None:
+            out.sigma = np.broadcast_to(np.asarray(sigma, float), (self.n,)).copy()
+        return out
+
+    def copy(self):
+        return self.subset(np.arange(self.n))
+
+    def summary(self):
+        """A dictionary of what is in the set (used by ``uvfit info``)."""
+        good = self.subset(~self.flag)
+        q = good.uv_distance
+        out = {
+            "source": self.source,
+            "ra_deg": self.ra_deg,
+            "dec_deg": self.dec_deg,
+            "n_visibilities": int(good.n),
+            "n_flagged": int(self.flag.sum()),
+            "stations": good.station_names,
+            "n_stations": len(good.station_names),
+            "n_baselines": int(len(set(zip(good.station1.tolist(), good.station2.tolist())))),
+            "frequency_hz": [float(f) for f in good.frequencies],
+            "time_start_mjd": float(good.time.min()) if good.n else None,
+            "time_end_mjd": float(good.time.max()) if good.n else None,
+            "uv_min_lambda": float(q.min()) if good.n else None,
+            "uv_max_lambda": float(q.max()) if good.n else None,
+            "median_snr": float(np.median(good.snr)) if good.n else None,
+        }
+        return out

@@ -1,0 +1,93 @@
+"""Writing output files safely.
+
+Rule: an existing file is never overwritten unless ``force`` is true; every file is written to a
+temporary file in the same folder and renamed into place, so a crash never leaves half a file.
+"""
+import json
+import os
+import tempfile
+
+import numpy as np
+
+from .errors import UvfitError
+
+
+def check_writable(path, force=False):
+    """Raise a clear error if ``path`` exists and ``force`` is false, or its folder is missing."""
+    path = os.fspath(path)
+    if os.path.exists(path) and not force:
+        raise UvfitError(f"output file {path} exists already",
+                         "choose another name, or pass --force to overwrite it")
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise UvfitError(f"the folder for output file {path} does not exist", "create it first")
+    return path
+
+
+def atomic_write(path, data, force=False):
+    """Write ``data`` (bytes or str) to ``path`` atomically; refuse to overwrite without ``force``."""
+    path = check_writable(path, force)
+    if isinstance(data, str):
+        data = data.encode("utf-8")
+    folder = os.path.dirname(os.path.abspath(path))
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=os.path.basename(path), dir=folder)
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path
+
+
+def atomic_write_with(path, writer, force=False, suffix=None):
+    """Call ``writer(tmp_path)`` to produce the file, then rename it to ``path``.
+
+    For libraries that insist on writing to a path themselves (astropy, matplotlib). ``suffix``
+    defaults to the extension of ``path`` so that format detection by suffix keeps working.
+    """
+    path = check_writable(path, force)
+    folder = os.path.dirname(os.path.abspath(path))
+    if suffix is None:
+        suffix = os.path.splitext(path)[1]
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=suffix, dir=folder)
+    os.close(fd)
+    os.unlink(tmp)
+    try:
+        writer(tmp)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    return path
+
+
+def _to_builtin(obj):
+    if isinstance(obj, dict):
+        return {str(k): _to_builtin(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_to_builtin(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [_to_builtin(v) for v in obj.tolist()]
+    if isinstance(obj, (np.bool_,)):
+        return bool(obj)
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, np.floating):
+        obj = float(obj)
+    if isinstance(obj, float) and not np.isfinite(obj):
+        return None  # JSON has no NaN or infinity; null means "not defined"
+    return obj
+
+
+def to_json(obj):
+    """JSON text of ``obj`` with numpy types converted and non-finite floats as null."""
+    return json.dumps(_to_builtin(obj), indent=2, sort_keys=False) + "\n"
+
+
+def write_json(path, obj, force=False):
+    """Write ``obj`` as JSON atomically (see :func:`to_json`)."""
+    return atomic_write(path, to_json(obj), force=force)

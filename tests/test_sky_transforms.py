@@ -117,8 +117,8 @@ def fallback_rendering(key, p):
     return None, None
 
 
-OVERSAMPLE = {"disk": 8, "shell": 8, "sphere": 8}
-POINT_RESOLUTION = {"ring": 512, "ring_modulated": 512, "disk": 96, "shell": 40,
+OVERSAMPLE = {"disk": 8, "shell": 8, "sphere": 8, "ring_modulated": 2}
+POINT_RESOLUTION = {"ring": 256, "ring_modulated": 256, "disk": 96, "shell": 40,
                     "thin_shell": 48, "sphere": 40}
 
 

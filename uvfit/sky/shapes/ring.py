@@ -40,6 +40,15 @@ from uvfit.sky.shapes._quadrature import gaussian_blur_points, ring_points
 _LN2 = np.log(2.0)
 
 
+def _bessel_j(top, z):
+    """[J_0(z), ..., J_top(z)] stacked on a new first axis (scipy.special j0, j1, jv)."""
+    out = [special.j0(z), special.j1(z)]
+    if top >= 2:
+        orders = np.arange(2, top + 1).reshape((-1,) + (1,) * np.ndim(z))
+        out.extend(special.jv(orders, z[None, ...]))
+    return np.stack(out[:top + 1])
+
+
 class ThinRing(Shape):
     """Infinitely thin uniform ring, parameter ``diameter`` (radians inside the shape)."""
 
@@ -131,8 +140,7 @@ class ModulatedRing(Shape):
         z = np.pi * p["diameter"] * q
         blur = p.get("blur", 0.0)
         taper = np.exp(-(np.pi * blur * q) ** 2 / (4.0 * _LN2))
-        orders = np.arange(self.order + 2).reshape((-1,) + (1,) * z.ndim)
-        bessel = special.jv(orders, z[None, ...])  # J_0 .. J_(order+1)
+        bessel = _bessel_j(self.order + 1, z)  # J_0 .. J_(order+1)
         ring = bessel[0].astype(complex)
         grads = {}
         d_ring_dz = -bessel[1].astype(complex)  # J0' = -J1

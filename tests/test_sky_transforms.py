@@ -122,18 +122,29 @@ POINT_RESOLUTION = {"ring": 256, "ring_modulated": 256, "disk": 96, "shell": 40,
                     "thin_shell": 48, "sphere": 40}
 
 
+def _offers(shape, method, *args):
+    """The result of an optional image method, or None when the shape does not offer it."""
+    fn = getattr(shape, method, None)
+    if fn is None:
+        return None
+    try:
+        return fn(*args)
+    except NotImplementedError:
+        return None
+
+
 def renderings(key, settings, p):
-    """[(label, kind, payload)]: every image the shape can give for these parameters."""
+    """[(label, payload)]: every image the shape can give for these parameters."""
     shape = shape_class(key)(**settings)
     out = []
-    has_brightness = hasattr(shape, "brightness") and not (
-        hasattr(shape, "singular") and shape.singular(p))
-    if has_brightness:
+    singular = bool(_offers(shape, "singular", p))
+    probe = np.zeros((1, 1))
+    if not singular and _offers(shape, "brightness", probe, probe, p) is not None:
         out.append(("brightness", lambda l, m: shape.brightness(l, m, p)))
-    if hasattr(shape, "sample_points"):
-        n = POINT_RESOLUTION.get(key)
-        pts = shape.sample_points(p, n) if n else shape.sample_points(p)
-        out.append(("points", pts))
+    n = POINT_RESOLUTION.get(key)
+    pts = _offers(shape, "sample_points", p, n) if n else _offers(shape, "sample_points", p)
+    if pts is not None:
+        out.append(("points", tuple(np.asarray(x, dtype=float) for x in pts)))
     if not out:
         method, payload = fallback_rendering(key, p)
         if method is None:

@@ -27,6 +27,16 @@ CASES = {
     "shell": [({}, {"inner_radius": 0.3, "outer_radius": 0.5})],
     "thin_shell": [({}, {"radius": 0.5})],
     "sphere": [({}, {"radius": 0.5})],
+    # a double of point members, and doubles whose members are the shapes above
+    "double": [
+        ({}, {"flux_ratio": 0.35, "separation": 0.8, "position_angle": 0.6}),
+        ({"member": "disk"}, {"flux_ratio": 0.5, "separation": 0.9, "position_angle": -2.0,
+                              "diameter_1": 0.6, "diameter_2": 0.4}),
+        ({"member": "ring_modulated"},
+         {"flux_ratio": 0.6, "separation": 0.9, "position_angle": 2.3,
+          "diameter_1": 0.6, "blur_1": 0.1, "amplitude_1_1": 0.3, "angle_1_1": 0.5,
+          "diameter_2": 0.4, "blur_2": 0.0, "amplitude_1_2": 0.2, "angle_1_2": -1.4}),
+    ],
 }
 
 _GENERIC_LENGTHS = [1.0, 0.7, 0.45, 0.3, 0.2]
@@ -74,6 +84,10 @@ def all_cases():
             continue
         if key in CASES:
             for i, (settings, params) in enumerate(CASES[key]):
+                names = shape_class(key)(**settings).parameter_names()
+                if sorted(names) != sorted(params):
+                    raise AssertionError(f"test case {key}-{i} has parameters {sorted(params)} "
+                                         f"but the shape has {sorted(names)}: update CASES")
                 out.append((f"{key}-{i}", key, settings, params, ""))
         else:
             shape = shape_class(key)()

@@ -34,7 +34,7 @@ from scipy import special
 
 from uvfit.errors import ModelError
 from uvfit.sky.shape import Shape, uv_position_angle
-from uvfit.sky.shapes import _radial
+from uvfit.sky.shapes import _pixels, _radial
 from uvfit.sky.shapes._quadrature import gaussian_blur_points, ring_points
 
 _LN2 = np.log(2.0)
@@ -73,6 +73,12 @@ class ThinRing(Shape):
 
     def brightness(self, l, m, p):
         raise ValueError("a thin ring has no finite brightness; render it from sample_points()")
+
+    def pixel_fractions(self, l, m, p):
+        """Flux fraction per pixel: the ring drawn with a Gaussian cross-section of
+        _pixels.MIN_LINE_SIGMA pixels (see ModulatedRing.pixel_fractions)."""
+        return ModulatedRing(order=0).pixel_fractions(l, m, {"diameter": p["diameter"],
+                                                             "blur": 0.0})
 
     def sample_points(self, p, n=1024):
         """n equally spaced nodes (l, m, weight) on the ring."""
@@ -204,6 +210,20 @@ class ModulatedRing(Shape):
         ratio = special.ive(orders, z[None, ...])
         envelope = np.exp(-(r - radius) ** 2 / (2.0 * sigma ** 2)) / (2.0 * np.pi * sigma ** 2)
         return envelope * self._azimuthal(psi, p, ratio)
+
+    def pixel_fractions(self, l, m, p):
+        """Flux fraction per pixel of a regular grid of pixel centres (l, m: 2-D, radians).
+
+        A blur under 1.5 pixels (standard deviation) is widened in quadrature by
+        _pixels.MIN_LINE_SIGMA pixels so that sampling at the pixel centres keeps the flux; an
+        unblurred ring thus appears about a pixel wide. A wider blur is drawn as it is."""
+        dl, dm = _pixels.grid_steps(l, m)
+        pixel = np.sqrt(dl * dm)
+        to_sigma = np.sqrt(8.0 * _LN2)
+        sigma = abs(p.get("blur", 0.0)) / to_sigma
+        if sigma < 1.5 * pixel:
+            sigma = np.hypot(sigma, _pixels.MIN_LINE_SIGMA * pixel)
+        return self.brightness(l, m, {**p, "blur": sigma * to_sigma}) * (dl * dm)
 
     def sample_points(self, p, n=1024):
         """Nodes (l, m, weight) of the ring, weighted by the modulation; blurred by Gauss-Hermite

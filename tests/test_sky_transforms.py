@@ -11,8 +11,9 @@ Two outside references (REFERENCES.md, "Independent references"):
 Rendering. A shape with a bounded brightness is rendered by averaging ``brightness`` over s x s
 sub-pixel samples; that average is a box filter on the fine grid whose transform is the Dirichlet
 kernel sin(pi u dx) / (s sin(pi u dx / s)), divided out exactly. A shape whose brightness is
-singular (thin ring, unblurred modulated ring, thin shell), and every shape that offers a point
-set, is rendered by splatting its quadrature nodes with a sampled Gaussian kernel of one pixel
+singular (point, thin ring, unblurred modulated ring, thin shell), and every shape whose point set
+is known to resolve the frequencies compared (POINT_RESOLUTION), is rendered by splatting its
+quadrature nodes with a sampled Gaussian kernel of one pixel
 standard deviation, whose transform exp(-2 pi^2 sigma^2 q^2) is divided out (the Gaussian sampled
 at one pixel aliases by < 1e-7 at the frequencies compared). The FFT convention of numpy.fft.fft2,
 A_k = sum_n a_n exp(-2 pi i k n / N) (numpy documentation), is the sign of the kernel in

@@ -297,7 +297,10 @@ class SkyModel:
         img = np.zeros(l.shape)
         for c in self.components:
             local = {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}
-            img += c.brightness(l, m, local, self.rad_per_unit, frequency)
+            try:
+                img += c.brightness(l, m, local, self.rad_per_unit, frequency)
+            except NotImplementedError:
+                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet")
         return img
 
     def render(self, npix, fov, frequency=None, theta=None, centre=(0.0, 0.0)):

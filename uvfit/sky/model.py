@@ -64,6 +64,11 @@ class SkyModel:
         dup = sorted({n for n in names if names.count(n) > 1})
         if dup:
             raise ModelError(f"duplicate component name(s) {dup}", "give every component its own name")
+        for c in self.components:
+            missing = [ln for ln in c.parameter_names() if f"{c.name}.{ln}" not in self.parameters]
+            if missing:
+                raise ModelError(f"component '{c.name}' has no parameter(s) {missing}",
+                                 "give every parameter of the shape a value")
         for full, p in self.parameters.items():
             if p.tie is None:
                 continue

@@ -17,6 +17,32 @@ C_VIS = np.pi ** 2 / (4.0 * np.log(2.0))
 C_IMG = 4.0 * np.log(2.0)
 
 
+def gaussian_density(l, m, fwhm_major, fwhm_minor, phi):
+    """Brightness per steradian of a unit-flux Gaussian (major axis at position angle phi)."""
+    if fwhm_major * fwhm_minor == 0.0:
+        raise ValueError("a Gaussian of zero width has no finite brightness; render it from sample_points()")
+    l = np.asarray(l, dtype=float)
+    m = np.asarray(m, dtype=float)
+    x_maj = l * np.sin(phi) + m * np.cos(phi)
+    x_min = l * np.cos(phi) - m * np.sin(phi)
+    return C_IMG / (np.pi * fwhm_major * fwhm_minor) * np.exp(
+        -C_IMG * (x_maj ** 2 / fwhm_major ** 2 + x_min ** 2 / fwhm_minor ** 2))
+
+
+def gaussian_points(fwhm_major, fwhm_minor, phi, n=32):
+    """Gauss-Hermite nodes (l, m, weight) of a unit-flux Gaussian: n x n nodes on its principal axes
+    (Abramowitz & Stegun 25.4.46); exact for polynomials of degree < 2n in each axis."""
+    t, wt = np.polynomial.hermite.hermgauss(int(n))
+    to_sigma = 1.0 / np.sqrt(8.0 * np.log(2.0))
+    x = np.sqrt(2.0) * t
+    w = wt / np.sqrt(np.pi)
+    x_maj = np.repeat(x, x.size) * fwhm_major * to_sigma
+    x_min = np.tile(x, x.size) * fwhm_minor * to_sigma
+    weight = np.outer(w, w).ravel()
+    # (east, north) = x_maj (sin phi, cos phi) + x_min (cos phi, -sin phi)
+    return (x_maj * np.sin(phi) + x_min * np.cos(phi), x_maj * np.cos(phi) - x_min * np.sin(phi), weight)
+
+
 def gaussian_pixels(l, m, fwhm_major, fwhm_minor, phi):
     """Fraction of a unit-flux Gaussian in each pixel of a regular grid (see Shape.brightness).
 
@@ -63,6 +89,7 @@ class CircularGaussian(Shape):
     key = "gaussian"
     parameters = ("fwhm",)
     kinds = {"fwhm": "length"}
+    bounds = {"fwhm": (0.0, np.inf)}
     settings = {}
     real_when_centred = True
 
@@ -79,9 +106,21 @@ class CircularGaussian(Shape):
         # d/dtheta exp(-c theta^2 q^2) = -2 c theta q^2 V
         return val, {"fwhm": -2.0 * C_VIS * theta * q2 * val}
 
+    def singular(self, p):
+        return float(p["fwhm"]) == 0.0
+
     def brightness(self, l, m, p):
+        """Brightness per steradian: 4 ln2 / (pi theta^2) exp(-4 ln2 r^2 / theta^2)."""
+        theta = abs(float(p["fwhm"]))
+        return gaussian_density(l, m, theta, theta, 0.0)
+
+    def pixel_fractions(self, l, m, p):
         theta = abs(float(p["fwhm"]))
         return gaussian_pixels(l, m, theta, theta, 0.0)
+
+    def sample_points(self, p, n=32):
+        theta = abs(float(p["fwhm"]))
+        return gaussian_points(theta, theta, 0.0, n)
 
 
 class EllipticalGaussian(Shape):
@@ -94,6 +133,7 @@ class EllipticalGaussian(Shape):
     key = "elliptical_gaussian"
     parameters = ("fwhm", "axis_ratio", "position_angle")
     kinds = {"fwhm": "length", "axis_ratio": "ratio", "position_angle": "angle"}
+    bounds = {"fwhm": (0.0, np.inf), "axis_ratio": (0.0, 1.0), "position_angle": (-np.inf, np.inf)}
     settings = {}
     real_when_centred = True
 
@@ -128,6 +168,18 @@ class EllipticalGaussian(Shape):
         }
         return val, grads
 
+    def singular(self, p):
+        return float(p["fwhm"]) * float(p["axis_ratio"]) == 0.0
+
     def brightness(self, l, m, p):
+        """Brightness per steradian: 4 ln2 / (pi a b) exp(-4 ln2 (x_maj^2/a^2 + x_min^2/b^2))."""
+        a = abs(float(p["fwhm"]))
+        return gaussian_density(l, m, a, abs(float(p["axis_ratio"])) * a, float(p["position_angle"]))
+
+    def pixel_fractions(self, l, m, p):
         a = abs(float(p["fwhm"]))
         return gaussian_pixels(l, m, a, abs(float(p["axis_ratio"])) * a, float(p["position_angle"]))
+
+    def sample_points(self, p, n=32):
+        a = abs(float(p["fwhm"]))
+        return gaussian_points(a, abs(float(p["axis_ratio"])) * a, float(p["position_angle"]), n)

@@ -270,3 +270,13 @@ def test_double_of_modulated_rings_takes_the_member_settings():
             'order = -1\nflux = 1.0\n')
     with pytest.raises(ModelError, match="line 6.*order"):
         loads(text, path="m.toml")
+
+
+def test_to_dict_is_json():
+    import json
+    from uvfit.outputs import to_json
+    m = loads(EXAMPLE)
+    d = json.loads(to_json(m.to_dict()))  # standard-library JSON parser
+    assert d["angular_unit"] == "mas" and d["free_names"] == m.free_names
+    fwhm = d["components"][1]["parameters"]["fwhm"]
+    assert fwhm["value"] == 0.1 and fwhm["min"] == 0.0 and fwhm["max"] is None and fwhm["unit"] == "mas"

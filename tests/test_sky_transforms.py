@@ -127,7 +127,7 @@ def fallback_rendering(key, p):
 
 OVERSAMPLE = {"disk": 8, "shell": 8, "sphere": 8, "ring_modulated": 2, "double": 8}
 POINT_RESOLUTION = {"ring": 256, "ring_modulated": 256, "disk": 96, "shell": 40,
-                    "thin_shell": 48, "sphere": 40}
+                    "thin_shell": 48, "sphere": 40, "gaussian": 64, "elliptical_gaussian": 64}
 
 
 def _offers(shape, method, *args):

@@ -162,6 +162,7 @@ def observe(layout, model_vis, seed=0, gain_error=0.0, phase_error_deg=0.0, syst
                 **layout.observation.describe()}
     out.meta = {
         "origin": "uvfit simulate",
+        "channel_width_hz": [layout.observation.channel_width_hz] * int(layout.observation.channels),
         "seed": seed,
         "simulation": settings,
         "history": [f"uvfit simulation: array '{layout.array.name}', seed {seed}, gain error "
@@ -183,3 +184,33 @@ def simulate(array, model, observation, seed=0, gain_error=0.0, phase_error_deg=
     vset = observe(layout, model_vis, seed=seed, gain_error=gain_error,
                    phase_error_deg=phase_error_deg, systematic=systematic, thermal=thermal)
     return vset, layout
+
+
+def write_simulation(vset, path, force=False):
+    """Write a simulated set through ``uvfit.write`` (format by suffix), with its history.
+
+    ECSV keeps ``meta`` (seed included) itself; for UVFITS the history lines (seed, settings) are
+    added as FITS HISTORY cards, in the same atomic write.
+    """
+    import os
+
+    from .. import write
+    from ..outputs import atomic_write_with, check_writable
+
+    path = os.fspath(path)
+    check_writable(path, force)
+    if os.path.splitext(path)[1].lower() in (".uvfits", ".uvf", ".fits", ".fit", ".fts"):
+        def _write(tmp):
+            write(vset, tmp, force=True)
+            from astropy.io import fits
+            with fits.open(tmp, mode="update") as hdul:
+                header = hdul[0].header
+                lines = list(vset.meta.get("history", []))
+                settings = vset.meta.get("simulation", {})
+                lines += [f"uvfit simulation {k} = {v}" for k, v in settings.items()]
+                lines += list(vset.meta.get("notes", []))
+                for line in lines:
+                    header.add_history(str(line))
+                header["UVFSEED"] = (int(vset.meta.get("seed", 0)), "uvfit simulation seed")
+        return atomic_write_with(path, _write, force=force)
+    return write(vset, path, force=force)

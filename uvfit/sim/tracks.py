@@ -21,11 +21,12 @@ Geometry (what is computed, and how well):
   refraction and aberration neglected (agrees with astropy AltAz to a few arcsec; see the tests).
 
 Sign: a row on (station1, station2), station1 before station2 in array order, carries the
-projection of ``r[station1] - r[station2]``, the sign archive files store and the reader presents
-(checked in the tests against the (u, v) stored in a real UVFITS file). The simulated visibility
-is then ``model.visibilities(u, v)`` with the project's Fourier kernel exp[-2 pi i (u l + v m)],
-so that a simulated file read back presents the same sky as an archive file of the same
-structure would (see README, "Conventions").
+projection of ``r[station2] - r[station1]``: the project's convention (uvfit/data/visset.py and
+uvfit.data.uvfits._to_sky_convention, where the reader negates the stored r1 - r2 of archive
+files and the writer negates back). Checked in the tests against the (u, v) stored in a real
+UVFITS file (equal to minus ours, to the precession its writer neglected). The simulated
+visibility is then ``model.visibilities(u, v)`` with the project's Fourier kernel
+exp[-2 pi i (u l + v m)], so a simulated file read back presents the same sky as the model.
 
 Offline: importing this module sets astropy to never download Earth-orientation tables and to
 accept the tables it has however old they are. A date past the end of the tables (a future
@@ -194,7 +195,7 @@ def compute_tracks(array, ra_deg, dec_deg, times, of_date=False):
     xyz = array.xyz
     rot = terrestrial_to_celestial(times)                      # (T, 3, 3)
     s1, s2 = array.baselines()
-    base_itrs = xyz[s1] - xyz[s2]                              # (B, 3), archive sign (see above)
+    base_itrs = xyz[s2] - xyz[s1]                              # (B, 3): station1 -> station2
     base_cel = np.einsum("tij,bj->tbi", rot, base_itrs)       # (T, B, 3) GCRS
     basis = uvw_basis(ra_deg, dec_deg)
     if of_date:

@@ -356,10 +356,13 @@ def fix_degeneracies(statistic):
 
 def _run_start(statistic, x0, lo, hi, max_nfev):
     # least_squares needs a start inside the bounds; nudge one sitting on a bound inward a little
-    span = np.where(np.isfinite(hi - lo), hi - lo, np.maximum(np.abs(x0), 1.0))
-    x0 = np.clip(x0, lo, hi)
-    x0 = np.where(x0 <= lo, np.minimum(lo + 1e-9 * span, (lo + hi) / 2), x0)
-    x0 = np.where(x0 >= hi, np.maximum(hi - 1e-9 * span, (lo + hi) / 2), x0)
+    with np.errstate(invalid="ignore"):
+        span = np.where(np.isfinite(hi - lo), hi - lo, np.maximum(np.abs(x0), 1.0))
+        x0 = np.clip(np.asarray(x0, float), lo, hi)
+        on_lo = np.isfinite(lo) & (x0 <= lo)
+        on_hi = np.isfinite(hi) & (x0 >= hi)
+        x0 = np.where(on_lo, lo + 1e-9 * span, x0)
+        x0 = np.where(on_hi, hi - 1e-9 * span, x0)
     with np.errstate(all="ignore"):
         return least_squares(statistic.residuals, x0, jac=statistic.jacobian, bounds=(lo, hi),
                              method="trf", x_scale="jac", max_nfev=max_nfev)

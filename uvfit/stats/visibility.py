@@ -55,20 +55,27 @@ def effective_sigma(vset, systematic=0.0):
     return np.sqrt(vset.sigma ** 2 + (f * np.abs(vset.vis)) ** 2)
 
 
-def first_free_position(model):
-    """[(name, reason)] for east/north of the first component whose position is free."""
+def free_translation(model):
+    """[names] of the position parameters that make a common shift of the whole model free.
+
+    A shift of every component together changes no amplitude and no closure quantity. It is free
+    along east (north) when no component has its east (north) fixed; then the east (north) of the
+    first component whose position is free is returned, to be held fixed. When some component's
+    position is fixed, the absolute position is anchored already and nothing is returned.
+    """
     params = model.parameters
-    seen = []
-    for name, p in params.items():
-        comp, _, local = name.partition(".")
-        if local in ("east", "north") and comp not in seen:
-            seen.append(comp)
-    for comp in seen:
-        names = [f"{comp}.{k}" for k in ("east", "north") if f"{comp}.{k}" in params]
-        free = [n for n in names if getattr(params[n], "free", not params[n].fixed and params[n].tie is None)]
+    out = []
+    for axis in ("east", "north"):
+        names = [n for n in params if n.partition(".")[2] == axis]
+        if not names or any(params[n].fixed for n in names):
+            continue
+        free = [n for n in names if params[n].tie is None]
         if free:
-            return free
-    return []
+            out.append(free[0])
+    return out
+
+
+first_free_position = free_translation
 
 
 class ComplexStatistic(Statistic):
@@ -110,9 +117,24 @@ class AmplitudeStatistic(Statistic):
         amp = np.abs(vs.vis)
         self.amplitude = amp
         self.sigma = effective_sigma(vs, self.systematic)
+        self.noise_sigma = self.sigma.copy()  # per real/imaginary part, for the Rice law
         self.high = amp >= self.debias_snr * self.sigma
         debiased = np.sqrt(np.maximum(amp ** 2 - self.sigma ** 2, 0.0))
         self.data = np.where(self.high, debiased, amp)
+        # faint rows: the scatter of a Rice amplitude is below sigma (sqrt(2 - pi/2) sigma at zero
+        # signal); weight them by the Rice standard deviation at a data-based estimate of the
+        # true amplitude (fixed during the fit, so the objective stays a plain sum of squares)
+        low = ~self.high
+        if np.any(low):
+            s = self.sigma[low]
+            nu_hat = np.sqrt(np.maximum(amp[low] ** 2 - 2.0 * s ** 2, 0.0))
+            mean, _ = self._rice_mean(nu_hat, s)
+            var = 2.0 * s ** 2 + nu_hat ** 2 - mean ** 2
+            self.sigma = self.sigma.copy()
+            self.sigma[low] = np.sqrt(np.maximum(var, (2.0 - np.pi / 2.0) * s ** 2))
+            self.rice_sigma = s
+        else:
+            self.rice_sigma = self.sigma[low]
         self.row_index = np.arange(vs.n)
         self.notices = ["amplitudes cannot fix the absolute position, and a model and its point "
                         "reflection through the origin (every position angle + 180 deg) fit equally "
@@ -131,7 +153,7 @@ class AmplitudeStatistic(Statistic):
         low = ~self.high
         pred = nu.copy()
         if np.any(low):
-            mean, dmean = self._rice_mean(nu[low], self.sigma[low])
+            mean, dmean = self._rice_mean(nu[low], self.rice_sigma)
             pred[low] = mean
         if jac is None:
             return pred, None
@@ -157,15 +179,21 @@ class AmplitudeStatistic(Statistic):
                                       theta=theta)
         nu = np.abs(np.asarray(vis, dtype=complex).reshape(-1))
         a = self.amplitude
-        s2 = self.sigma ** 2
+        s2 = self.noise_sigma ** 2
         z = a * nu / s2
         with np.errstate(divide="ignore"):
             loga = np.log(a)
         # log I0(z) = log i0e(z) + z, so the exponent becomes -(a - nu)^2 / (2 s^2)
         return float(np.sum(loga - np.log(s2) - (a - nu) ** 2 / (2.0 * s2) + np.log(i0e(z))))
 
+    def scaled(self, factor):
+        out = super().scaled(factor)
+        out.noise_sigma = self.noise_sigma * float(factor)
+        out.rice_sigma = self.rice_sigma * float(factor)
+        return out
+
     def degeneracies(self):
         reason = ("visibility amplitudes do not depend on the absolute position; it is held at its "
                   "start value (positions of other components are relative to it, and the whole "
                   "model is still ambiguous by a 180-degree point reflection)")
-        return [(name, reason) for name in first_free_position(self.model)]
+        return [(name, reason) for name in free_translation(self.model)]

@@ -16,7 +16,7 @@ import numpy as np
 from .. import __version__
 from ..errors import FitError, UvfitError
 from ..stats.modes import make_statistic
-from .lsq import fit
+from .lsq import fit, rebuild_statistic
 
 FAMILY_CAUTION = ("This holds for these model families only: a model outside them may describe the "
                   "data better, and calibration errors can mimic structure (check `uvfit closures`).")
@@ -27,16 +27,10 @@ def _fit_model(vset, model, mode, systematic, starts, seed):
     return fit(stat, starts=starts, seed=seed)
 
 
-def _rebuild_on(statistic, vset, model):
-    parts = getattr(statistic, "parts", None)
-    if parts is not None:
-        from ..stats.base import CombinedStatistic
-        return CombinedStatistic([_rebuild_on(p, vset, model) for p in parts], statistic.mode)
-    return type(statistic)(vset, model, systematic=0.0, **dict(getattr(statistic, "options", {}) or {}))
-
-
 def _refit_on(result, vset_sim, seed, starts):
-    stat = _rebuild_on(result.statistic, vset_sim, result.model.copy())
+    """chi2 of a refit of a fitted model on simulated rows (systematic 0: the simulated sigmas
+    include it), starting from its best fit."""
+    stat = rebuild_statistic(result.statistic, result.model.copy(), vset=vset_sim, systematic=0.0)
     try:
         res = fit(stat, starts=starts, seed=seed, strict=False)
     except FitError:

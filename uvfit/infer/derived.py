@@ -179,7 +179,8 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
     model = result.model
     if frequency is None:
         vs = result.statistic.vset
-        frequency = float(np.mean(vs.frequency)) if vs.n else float("nan")
+        good = ~vs.flag
+        frequency = float(np.mean(vs.frequency[good])) if good.any() else float("nan")
     if redshift is None:
         redshift = 0.0
     if float(redshift) <= -1.0:
@@ -282,7 +283,8 @@ def _upper_limit(result, root, extra, best, max_steps=14):
     """Size where the chi2 profile rises by LIMIT_DCHI2 above the best fit (bisection)."""
     target = result.chi2 + LIMIT_DCHI2 * (result.error_scale ** 2)
     vs = result.statistic.vset
-    qmax = float(np.max(np.hypot(vs.u, vs.v))) if vs.n else 0.0
+    good = ~vs.flag
+    qmax = float(np.max(np.hypot(vs.u[good], vs.v[good]))) if good.any() else 0.0
     if qmax <= 0:
         return None
     resolution = (1.0 / qmax) / float(result.model.rad_per_unit)

@@ -102,7 +102,7 @@ def run_fit(vset, model, mode="complex", systematic=0.0, rescale_errors=False, s
                  rescale_errors=rescale_errors)
     if frequency is None:
         vs = result.statistic.vset
-        frequency = float(np.mean(vs.frequency))
+        frequency = float(np.mean(vs.frequency[~vs.flag]))
     derived = derived_quantities(result, redshift=redshift, frequency=frequency,
                                  resolved_test=resolved_test)
     out = result_dict(result, derived, mode=mode, data_path=data_path, selection=selection,

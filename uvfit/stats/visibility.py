@@ -33,14 +33,14 @@ from .base import Statistic
 _SQRT_HALF_PI = np.sqrt(np.pi / 2.0)
 
 
-def _model_vis_and_jac(model, vset, theta):
-    """(V, dV/dtheta) of the model on the rows of vset, with the fastest call the model offers."""
+def _model_vis_and_jac(model, rows, theta):
+    """(V, dV/dtheta) of the model on the good rows, with the fastest call the model offers."""
     both = getattr(model, "visibilities_and_jacobian", None)
     if both is not None:
-        vis, jac = both(vset.u, vset.v, frequency=vset.frequency, theta=theta)
+        vis, jac = both(rows.u, rows.v, frequency=rows.frequency, theta=theta)
     else:
-        vis = model.visibilities(vset.u, vset.v, frequency=vset.frequency, theta=theta)
-        jac = model.jacobian(vset.u, vset.v, frequency=vset.frequency, theta=theta)
+        vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+        jac = model.jacobian(rows.u, rows.v, frequency=rows.frequency, theta=theta)
     vis = np.asarray(vis, dtype=complex).reshape(-1)
     jac = np.asarray(jac, dtype=complex).reshape(vis.size, -1)
     return vis, jac
@@ -78,27 +78,43 @@ def free_translation(model):
 first_free_position = free_translation
 
 
+class _Rows:
+    """The unflagged rows of a visibility set, and their indices in it."""
+
+    def __init__(self, vset):
+        good = vset.good()  # DataError when nothing is left
+        self.index = np.flatnonzero(~vset.flag)
+        self.u, self.v, self.frequency = good.u, good.v, good.frequency
+        self.vis, self.sigma = good.vis, good.sigma
+        self.n = good.n
+        self.set = good
+
+
+def _model_vis(model, rows, theta):
+    vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+    return np.asarray(vis, dtype=complex).reshape(-1)
+
+
 class ComplexStatistic(Statistic):
     """Real and imaginary parts of the visibilities (see the module docstring)."""
 
     mode = "complex"
 
     def __init__(self, vset, model, systematic=0.0, **options):
-        super().__init__(vset.good(), model, systematic, **options)
-        vs = self.vset
-        self.data = np.concatenate([vs.vis.real, vs.vis.imag])
-        s = effective_sigma(vs, self.systematic)
+        super().__init__(vset, model, systematic, **options)
+        self.rows = rows = _Rows(vset)
+        self.data = np.concatenate([rows.vis.real, rows.vis.imag])
+        s = effective_sigma(rows, self.systematic)
         self.sigma = np.concatenate([s, s])
-        self.row_index = np.concatenate([np.arange(vs.n), np.arange(vs.n)])
+        #: the row of ``vset`` behind each datum (two data per row)
+        self.row_index = np.concatenate([rows.index, rows.index])
 
     def predict(self, theta):
-        vis = self.model.visibilities(self.vset.u, self.vset.v, frequency=self.vset.frequency,
-                                      theta=theta)
-        vis = np.asarray(vis, dtype=complex).reshape(-1)
+        vis = _model_vis(self.model, self.rows, theta)
         return np.concatenate([vis.real, vis.imag])
 
     def predict_jacobian(self, theta):
-        vis, jac = _model_vis_and_jac(self.model, self.vset, theta)
+        vis, jac = _model_vis_and_jac(self.model, self.rows, theta)
         return np.concatenate([vis.real, vis.imag]), np.vstack([jac.real, jac.imag])
 
     def degeneracies(self):
@@ -111,12 +127,12 @@ class AmplitudeStatistic(Statistic):
     mode = "amplitude"
 
     def __init__(self, vset, model, systematic=0.0, debias_snr=3.0, **options):
-        super().__init__(vset.good(), model, systematic, debias_snr=debias_snr, **options)
-        vs = self.vset
+        super().__init__(vset, model, systematic, debias_snr=debias_snr, **options)
+        self.rows = rows = _Rows(vset)
         self.debias_snr = float(debias_snr)
-        amp = np.abs(vs.vis)
+        amp = np.abs(rows.vis)
         self.amplitude = amp
-        self.sigma = effective_sigma(vs, self.systematic)
+        self.sigma = effective_sigma(rows, self.systematic)
         self.noise_sigma = self.sigma.copy()  # per real/imaginary part, for the Rice law
         self.high = amp >= self.debias_snr * self.sigma
         debiased = np.sqrt(np.maximum(amp ** 2 - self.sigma ** 2, 0.0))
@@ -135,7 +151,7 @@ class AmplitudeStatistic(Statistic):
             self.rice_sigma = s
         else:
             self.rice_sigma = self.sigma[low]
-        self.row_index = np.arange(vs.n)
+        self.row_index = rows.index
         self.notices = ["amplitudes cannot fix the absolute position, and a model and its point "
                         "reflection through the origin (every position angle + 180 deg) fit equally "
                         "well: position angles are ambiguous by 180 degrees in this mode"]
@@ -165,19 +181,15 @@ class AmplitudeStatistic(Statistic):
         return pred, dnu
 
     def predict(self, theta):
-        vis = self.model.visibilities(self.vset.u, self.vset.v, frequency=self.vset.frequency,
-                                      theta=theta)
-        return self._amp_prediction(np.asarray(vis, dtype=complex).reshape(-1))[0]
+        return self._amp_prediction(_model_vis(self.model, self.rows, theta))[0]
 
     def predict_jacobian(self, theta):
-        vis, jac = _model_vis_and_jac(self.model, self.vset, theta)
+        vis, jac = _model_vis_and_jac(self.model, self.rows, theta)
         return self._amp_prediction(vis, jac)
 
     def log_likelihood(self, theta):
         """Exact Rice log-likelihood of the measured amplitudes (not the least-squares objective)."""
-        vis = self.model.visibilities(self.vset.u, self.vset.v, frequency=self.vset.frequency,
-                                      theta=theta)
-        nu = np.abs(np.asarray(vis, dtype=complex).reshape(-1))
+        nu = np.abs(_model_vis(self.model, self.rows, theta))
         a = self.amplitude
         s2 = self.noise_sigma ** 2
         z = a * nu / s2

@@ -48,8 +48,8 @@ def command(array_file, model_file, output, json_path, seed, force, no_noise, **
 
 def format_summary(s, obs):
     lines = [
-        f"wrote {s['output']}: {s['rows']} visibilities ({s['times']} times x baselines x "
-        f"{s['channels']} channel(s)), source {s['source']}, seed {s['seed']}",
+        f"wrote {s['output']}: {s['rows']} visibilities over {s['times']} integrations and "
+        f"{s['channels']} channel(s), source {s['source']}, seed {s['seed']}",
         f"baselines with data: {s['baselines_with_data']} of {s['baselines_in_array']}",
         f"nominal resolution lambda/B_max: {s['nominal_resolution_uas']:.1f} microarcsec "
         f"(longest projected baseline {s['max_uv_lambda'] / 1e6:.1f} Mlambda)",

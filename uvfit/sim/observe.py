@@ -21,7 +21,7 @@ import numpy as np
 from ..data.visset import StationTable, VisibilitySet
 from ..errors import UvfitError
 from .noise import check_corruption, corrupt, thermal_sigma
-from .tracks import C_LIGHT, compute_tracks, time_grid
+from .tracks import C_LIGHT, _Quiet, compute_tracks, time_grid
 
 DEFAULT_BANDWIDTH_HZ = 1.0e9
 DEFAULT_SCAN_S = 300.0
@@ -68,7 +68,9 @@ class Observation:
         return self.bandwidth_hz / int(self.channels)
 
     def describe(self):
-        return {"ra_deg": self.ra_deg, "dec_deg": self.dec_deg, "start_utc": self.start.isot,
+        with _Quiet():
+            start = self.start.isot
+        return {"ra_deg": self.ra_deg, "dec_deg": self.dec_deg, "start_utc": start,
                 "duration_s": self.duration_s, "integration_s": self.integration_s,
                 "frequency_hz": self.frequency_hz, "bandwidth_hz": self.bandwidth_hz,
                 "channels": int(self.channels), "scan_length_s": self.scan_length_s,
@@ -110,6 +112,11 @@ class Layout:
         }
 
 
+def _iso(t):
+    with _Quiet():
+        return t.isot[:16]
+
+
 def plan(array, observation):
     """The rows (times, baselines, channels) with their (u, v, w) and thermal sigma."""
     obs = observation
@@ -121,7 +128,7 @@ def plan(array, observation):
         never = [n for n, up in zip(array.names, tracks.visible.any(axis=0)) if not up]
         raise UvfitError(
             "the source is never above the elevation limit of two stations at the same time "
-            f"between {times[0].isot[:16]} and {times[-1].isot[:16]} UTC"
+            f"between {_iso(times[0])} and {_iso(times[-1])} UTC"
             + (f" (never up at: {', '.join(never)})" if never else ""),
             "choose another start time or duration, or check --ra/--dec")
     freqs = obs.channel_frequencies
@@ -201,7 +208,8 @@ def write_simulation(vset, path, force=False):
     check_writable(path, force)
     if os.path.splitext(path)[1].lower() in (".uvfits", ".uvf", ".fits", ".fit", ".fts"):
         def _write(tmp):
-            write(vset, tmp, force=True)
+            with _Quiet():   # dates past the leap-second table: ERFA's "dubious year" is expected
+                write(vset, tmp, force=True)
             from astropy.io import fits
             with fits.open(tmp, mode="update") as hdul:
                 header = hdul[0].header
@@ -213,4 +221,5 @@ def write_simulation(vset, path, force=False):
                     header.add_history(str(line))
                 header["UVFSEED"] = (int(vset.meta.get("seed", 0)), "uvfit simulation seed")
         return atomic_write_with(path, _write, force=force)
-    return write(vset, path, force=force)
+    with _Quiet():
+        return write(vset, path, force=force)

@@ -54,7 +54,8 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
 
 def format_forecast(out):
     lines = [
-        f"forecast: {out['trials']} trials of '{out['true_model']}' with array '{out['array']}', "
+        f"forecast: {out['trials']} trials of '{out['true_model']}' ({out['true_free_parameters']} free) "
+        f"with array '{out['array']}', "
         f"mode {out['mode']}, seed {out['seed']} (trial k uses seed {out['seed']} + k)",
         f"rows per trial: {out['rows_per_trial']}; nominal resolution "
         f"{out['nominal_resolution_uas']:.1f} microarcsec",
@@ -67,9 +68,12 @@ def format_forecast(out):
     for a in out["alternatives"]:
         d = a["delta_chi2"]
         med = "-" if d["median"] is None else f"{d['median']:.1f} [{d['p16']:.1f}, {d['p84']:.1f}]"
+        rule = (f"threshold delta chi2 {a['lr_threshold_delta_chi2']:.2f}"
+                if a["free_parameters"] != out["true_free_parameters"]
+                else "same number of free parameters: higher likelihood")
         lines.append(f"  vs {a['name']} ({a['free_parameters']} free): BIC {a['true_preferred_bic_fraction']:.0%}, "
-                     f"LR {a['true_preferred_lr_fraction']:.0%} (threshold delta chi2 "
-                     f"{a['lr_threshold_delta_chi2']:.2f}); delta chi2 median [16%, 84%] {med}")
+                     f"LR {a['true_preferred_lr_fraction']:.0%} ({rule}); "
+                     f"delta chi2 = chi2_alt - chi2_true, median [16%, 84%] {med}")
     if out["structure"]:
         lines.append("recovered structure, median [16%, 84%] (true value):")
         for key, s in out["structure"].items():

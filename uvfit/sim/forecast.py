@@ -11,9 +11,10 @@
    lies within 3 sigma (the fit's own error) of its true value; and **preferred** over each
    alternative: (a) by BIC (chi2 + k ln n lower for the true model), (b) by the likelihood ratio
    delta chi2 against a nominal threshold: the 99% point of the chi-square distribution with
-   |k_true - k_alt| degrees of freedom (at least 1). When the true model is richer, it is preferred
-   when delta chi2 = chi2_alt - chi2_true exceeds the threshold; when it is simpler or equal, when
-   the alternative's improvement stays below it. The chi-square reference is only nominal where a
+   |k_true - k_alt| degrees of freedom. When the true model is richer, it is preferred when
+   delta chi2 = chi2_alt - chi2_true exceeds the threshold; when it is simpler, when the
+   alternative's improvement (-delta chi2) stays below it; with equal numbers of free parameters,
+   when delta chi2 > 0 (the higher likelihood). The chi-square reference is only nominal where a
    component's flux can go to zero (a boundary case; see README, cautions): use it as a guide;
 5. reports the spread (median, 16th and 84th percentiles over trials) of the derived quantities
    of the true model's fits that describe structure: separations, position angles, flux ratios
@@ -95,8 +96,8 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
                   "lr_preferred": 0, "delta_chi2": [], "lr_threshold": None, "fit_failures": 0}
                  for n, m in zip(alt_names, alternatives)]
     for a, m in zip(alt_stats, alternatives):
-        dk = max(abs(k_true - len(m.free_names)), 1)
-        a["lr_threshold"] = float(chi2_dist.ppf(LR_LEVEL, dk))
+        dk = abs(k_true - len(m.free_names))
+        a["lr_threshold"] = float(chi2_dist.ppf(LR_LEVEL, dk)) if dk else 0.0
     n_recovered = n_fail_true = 0
     trial_seeds = [int(seed) + k for k in range(trials)]
     for k, s in enumerate(trial_seeds):
@@ -136,8 +137,10 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
             bic_pref = res.bic < ares.bic
             if k_true > a["free_parameters"]:
                 lr_pref = dchi2 > a["lr_threshold"]
-            else:
+            elif k_true < a["free_parameters"]:
                 lr_pref = -dchi2 < a["lr_threshold"]
+            else:
+                lr_pref = dchi2 > 0.0
             a["bic_preferred"] += bool(bic_pref)
             a["lr_preferred"] += bool(lr_pref)
             a["delta_chi2"].append(float(dchi2))

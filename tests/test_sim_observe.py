@@ -190,6 +190,7 @@ def test_planning_example_files_load_and_simulate():
     assert 3.0e6 < arr.max_baseline_m() < 6.0e6
     double = uvfit.load_model(os.path.join(here, "double.toml"))
     uvfit.load_model(os.path.join(here, "single.toml"))
-    obs = observation(ra_deg=210.547, dec_deg=38.753, duration_s=3600.0, integration_s=600.0)
+    obs = observation(ra_deg=210.547, dec_deg=38.753, start=parse_time("2027-04-10T03:00"),
+                      duration_s=3600.0, integration_s=600.0)
     vs, layout = simulate(arr, double, obs, seed=1)
     assert vs.n == 6 * 21 * 2 and layout.summary()["baselines_with_data"] == 21

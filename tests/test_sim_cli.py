@@ -141,3 +141,16 @@ def test_forecast_small_run_json_keys(files):
     assert sep["n"] == 2 and abs(sep["true"] - 100.0) < 1e-9          # hypot(60, 80) = 100
     # a strong, well-sampled double: the fits find it (2 of 2 is the expected outcome, not luck)
     assert out["recovered_fraction"] >= 0.5 and out["preferred_bic_fraction"] == 1.0
+
+
+def test_future_date_one_notice_line_no_warnings(files):
+    # a date past the Earth-orientation tables astropy ships: one notice line, no warning stack
+    args = list(OBS)
+    args[args.index("--start") + 1] = "2034-03-01T02:00"
+    res = run(["simulate", str(files / "array.toml"), str(files / "single.toml"), *args,
+               "-o", str(files / "future.ecsv")])
+    assert res.returncode == 0, res.stderr
+    lines = [ln for ln in res.stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1 and "extrapolated" in lines[0], res.stderr
+    assert "Warning" not in res.stderr
+    assert uvfit.read(files / "future.ecsv").meta["seed"] == 0

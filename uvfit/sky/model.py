@@ -64,6 +64,11 @@ class SkyModel:
         dup = sorted({n for n in names if names.count(n) > 1})
         if dup:
             raise ModelError(f"duplicate component name(s) {dup}", "give every component its own name")
+        for c in self.components:
+            missing = [ln for ln in c.parameter_names() if f"{c.name}.{ln}" not in self.parameters]
+            if missing:
+                raise ModelError(f"component '{c.name}' has no parameter(s) {missing}",
+                                 "give every parameter of the shape a value")
         for full, p in self.parameters.items():
             if p.tie is None:
                 continue
@@ -297,7 +302,10 @@ class SkyModel:
         img = np.zeros(l.shape)
         for c in self.components:
             local = {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}
-            img += c.brightness(l, m, local, self.rad_per_unit, frequency)
+            try:
+                img += c.brightness(l, m, local, self.rad_per_unit, frequency)
+            except NotImplementedError:
+                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet")
         return img
 
     def render(self, npix, fov, frequency=None, theta=None, centre=(0.0, 0.0)):

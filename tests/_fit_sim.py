@@ -35,3 +35,23 @@ def double(flux1=1.0, flux2=0.4, east2=-0.5, north2=-0.8, fwhm1=0.3, fwhm2=0.5, 
         first["north"] = {"value": 0.0, "fixed": True}
     return SkyModel.build([first, {"name": "knot", "shape": "gaussian", "flux": flux2, "east": east2,
                                    "north": north2, "fwhm": fwhm2}], angular_unit="mas")
+
+
+def snapshots(model, n_times=40, sigma=0.01, seed=0, frequency=86e9):
+    """Every baseline of five invented stations at each of ``n_times`` times (so that closure
+    quantities can be formed), the array rotating slowly; complex Gaussian noise, seeded."""
+    rng = np.random.default_rng(seed)
+    pos = rng.normal(0.0, 3e8, (len(STATIONS), 2))
+    pairs = [(i, j) for i in range(len(STATIONS)) for j in range(i + 1, len(STATIONS))]
+    t = np.repeat(np.arange(n_times), len(pairs))
+    i = np.tile([p[0] for p in pairs], n_times)
+    j = np.tile([p[1] for p in pairs], n_times)
+    ang = 0.05 * t
+    d = pos[j] - pos[i]
+    u = d[:, 0] * np.cos(ang) - d[:, 1] * np.sin(ang)
+    v = d[:, 0] * np.sin(ang) + d[:, 1] * np.cos(ang)
+    n = len(u)
+    vis = model.visibilities(u, v) + rng.normal(0, sigma, n) + 1j * rng.normal(0, sigma, n)
+    return VisibilitySet(u=u, v=v, w=None, time=60000.0 + t / 1440.0, frequency=frequency,
+                         station1=STATIONS[i], station2=STATIONS[j], vis=vis,
+                         sigma=np.full(n, float(sigma)))

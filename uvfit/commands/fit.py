@@ -30,6 +30,8 @@ def print_fit(out, echo=click.echo):
         echo("")
         echo(f"{'derived quantity':<36} {'value ± error':<30} unit")
         for key, d in out["derived"].items():
+            if d.get("alias_of"):
+                continue
             if key.endswith(".resolved"):
                 verdict = "yes" if d.get("resolved") else ("no" if d.get("resolved") is False else "?")
                 echo(f"{key:<36} {verdict} (delta chi2 {d['delta_chi2']:.3g}, p = {d['value']:.3g})")

@@ -263,3 +263,24 @@ def test_every_registered_mode_fits_and_recovers_the_geometry(mode):
     if mode != "complex":
         assert "core.east" in out["fixed_by_fitter"]
     assert out["per_station"]  # every mode maps its data back to stations
+
+
+def test_double_component_members_and_rescaled_errors():
+    # a double's members count as pair.1 / pair.2: their separation is the double's own parameter
+    m = SkyModel.build([{"name": "pair", "shape": "double", "member": "gaussian", "flux": 1.4,
+                         "east": 0.0, "north": 0.0, "flux_ratio": 0.4, "separation": 0.9,
+                         "position_angle": 212.0, "fwhm_1": 0.3, "fwhm_2": 0.5}], angular_unit="mas")
+    vs = simulate(m, n=800, sigma=0.02, seed=14)
+    res = fit(make_statistic("complex", vs, m.copy()))
+    d = derived_quantities(res, resolved_test=False)
+    sep = d["pair.1-pair.2.separation"]
+    assert sep["value"] == pytest.approx(res.value("pair.separation"), rel=1e-9)
+    assert sep["error"] == pytest.approx(res.error("pair.separation"), rel=1e-3)
+    assert d["pair.1-pair.2.flux_ratio"]["value"] == pytest.approx(res.value("pair.flux_ratio"), rel=1e-9)
+    assert d["pair.1-pair.2.position_angle"]["value"] == pytest.approx(res.value("pair.position_angle") % 360)
+    assert "pair.1.brightness_temperature" in d and "pair.2.fwhm" in d
+    # --rescale-errors multiplies every error by sqrt(chi2 / dof)
+    scaled = fit(make_statistic("complex", vs, m.copy()), rescale_errors=True)
+    factor = math.sqrt(scaled.chi2 / scaled.dof)
+    np.testing.assert_allclose(scaled.errors, res.errors * factor, rtol=1e-9)
+    assert scaled.rescale_errors and scaled.error_scale == pytest.approx(factor)

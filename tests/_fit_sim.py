@@ -37,11 +37,11 @@ def double(flux1=1.0, flux2=0.4, east2=-0.5, north2=-0.8, fwhm1=0.3, fwhm2=0.5, 
                                    "north": north2, "fwhm": fwhm2}], angular_unit="mas")
 
 
-def snapshots(model, n_times=40, sigma=0.01, seed=0, frequency=86e9):
+def snapshots(model, n_times=40, sigma=0.01, seed=0, frequency=86e9, scale=1.2e8):
     """Every baseline of five invented stations at each of ``n_times`` times (so that closure
     quantities can be formed), the array rotating slowly; complex Gaussian noise, seeded."""
     rng = np.random.default_rng(seed)
-    pos = rng.normal(0.0, 3e8, (len(STATIONS), 2))
+    pos = rng.normal(0.0, scale, (len(STATIONS), 2))
     pairs = [(i, j) for i in range(len(STATIONS)) for j in range(i + 1, len(STATIONS))]
     t = np.repeat(np.arange(n_times), len(pairs))
     i = np.tile([p[0] for p in pairs], n_times)

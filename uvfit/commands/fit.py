@@ -30,6 +30,8 @@ def print_fit(out, echo=click.echo):
         echo("")
         echo(f"{'derived quantity':<36} {'value ± error':<30} unit")
         for key, d in out["derived"].items():
+            if d.get("alias_of"):
+                continue
             if key.endswith(".resolved"):
                 verdict = "yes" if d.get("resolved") else ("no" if d.get("resolved") is False else "?")
                 echo(f"{key:<36} {verdict} (delta chi2 {d['delta_chi2']:.3g}, p = {d['value']:.3g})")
@@ -73,6 +75,8 @@ def print_fit(out, echo=click.echo):
               help="Search chi2 globally inside the bounds first (needs a finite min and max everywhere).")
 @click.option("--redshift", type=float, default=0.0, show_default=True,
               help="Source redshift, for rest-frame brightness temperatures.")
+@click.option("--max-evaluations", type=int, default=None,
+              help="Most model evaluations per start (default 200 x (free parameters + 1)).")
 @click.option("--no-resolved-test", is_flag=True, help="Skip the refits that test whether each component is resolved.")
 @click.option("--json", "json_out", type=click.Path(dir_okay=False), default=None,
               help="Write the full result as JSON here.")
@@ -82,7 +86,7 @@ def print_fit(out, echo=click.echo):
 @force_option
 @selection_options
 def command(data, model, mode, systematic, rescale_errors, starts, global_search, redshift,
-            no_resolved_test, json_out, save_model, seed, force, **kwargs):
+            max_evaluations, no_resolved_test, json_out, save_model, seed, force, **kwargs):
     """Fit MODEL (a TOML model file) to the visibilities in DATA by least squares.
 
     Prints every parameter with its error, the derived quantities (separations, position angles,
@@ -99,17 +103,19 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
             check_writable(path, force)
     sky = load_model(model)
     vset = load_data(data, selection)
+    if max_evaluations is not None and max_evaluations < 1:
+        from ..errors import UvfitError
+        raise UvfitError(f"--max-evaluations must be at least 1 (got {max_evaluations})")
+    common = dict(mode=mode, systematic=systematic, rescale_errors=rescale_errors, starts=starts,
+                  seed=seed, global_search=global_search, redshift=redshift, data_path=data,
+                  selection=selection, resolved_test=not no_resolved_test,
+                  max_evaluations=max_evaluations)
     total = starts + (1 if global_search else 0)
     if total > 1:
         with click.progressbar(length=total, label="fitting", file=click.get_text_stream("stderr")) as bar:
-            out = run_fit(vset, sky, mode=mode, systematic=systematic, rescale_errors=rescale_errors,
-                          starts=starts, seed=seed, global_search=global_search, redshift=redshift,
-                          progress=bar.update, data_path=data, selection=selection,
-                          resolved_test=not no_resolved_test)
+            out = run_fit(vset, sky, progress=bar.update, **common)
     else:
-        out = run_fit(vset, sky, mode=mode, systematic=systematic, rescale_errors=rescale_errors,
-                      starts=starts, seed=seed, global_search=global_search, redshift=redshift,
-                      data_path=data, selection=selection, resolved_test=not no_resolved_test)
+        out = run_fit(vset, sky, **common)
     out["model_file"] = str(model)
     print_fit(out)
     if json_out:

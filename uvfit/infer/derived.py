@@ -11,7 +11,8 @@ Keys ("a", "b" are component names in model order; a double "pair" counts as "pa
   ``a-b.separation``     distance of b from a (model angular unit)
   ``a-b.position_angle`` position angle of b seen from a, north through east, in [0, 360) deg
   ``a-b.flux_ratio``     flux of b / flux of a
-  ``a.size``             the main size (FWHM, or diameter, or radius: see "parameter"), and for
+  ``a.size``             the main size (FWHM, or diameter, or radius: see "parameter"; the same
+                         entry also appears as ``a.fwhm``, ``a.diameter``..., with "alias_of"), and for
                          an elliptical Gaussian also ``a.axis_ratio``, ``a.position_angle``
   ``a.brightness_temperature``  (K) for Gaussians and uniform disks, rest frame with ``redshift``:
       Gaussian:  Tb = 2 ln2 c^2 S / (pi k nu^2 theta_maj theta_min) (1 + z)
@@ -204,6 +205,11 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
         out[key] = {"value": values[key], "error": err, "unit": units[key], **info.get(key, {})}
     if resolved_test or limits:
         _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits)
+    # the size also under its own name ("core.fwhm", "shell.radius"), for readers that look for it
+    for key in [k for k in out if k.endswith(".size")]:
+        alias = key[:-len("size")] + out[key]["parameter"]
+        if alias not in out:
+            out[alias] = dict(out[key], alias_of=key)
     return out
 
 

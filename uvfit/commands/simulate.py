@@ -50,6 +50,9 @@ def format_summary(s, obs):
     lines = [
         f"wrote {s['output']}: {s['rows']} visibilities over {s['times']} integrations and "
         f"{s['channels']} channel(s), source {s['source']}, seed {s['seed']}",
+        f"band: {obs.frequency_hz / 1e9:.6g} GHz centre, {obs.bandwidth_hz / 1e6:.6g} MHz in "
+        f"{obs.channels} channel(s) of {obs.channel_width_hz / 1e6:.6g} MHz; integration "
+        f"{obs.integration_s:g} s; scans of {obs.scan_length_s:g} s",
         f"baselines with data: {s['baselines_with_data']} of {s['baselines_in_array']}",
         f"nominal resolution lambda/B_max: {s['nominal_resolution_uas']:.1f} microarcsec "
         f"(longest projected baseline {s['max_uv_lambda'] / 1e6:.1f} Mlambda)",

@@ -18,7 +18,7 @@ Geometry (what is computed, and how well):
   These matter to a correlator model, not to a planning simulation of structure on the sky.
 - Elevation of the source at each station: arcsin of the dot product of the (catalogue) source
   direction with the station's geodetic vertical, rotated to the celestial frame in the same way;
-  refraction and aberration neglected (agrees with astropy AltAz to a few arcsec; see the tests).
+  refraction and aberration neglected (agrees with astropy AltAz to better than 0.01 deg; tests).
 
 Sign: a row on (station1, station2), station1 before station2 in array order, carries the
 projection of ``r[station2] - r[station1]``: the project's convention (uvfit/data/visset.py and

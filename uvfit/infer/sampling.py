@@ -430,3 +430,318 @@ def _ratio_text(n_steps, tau):
     if tau.size == 0 or not np.all(np.isfinite(tau)) or np.max(tau) <= 0:
         return "tau undefined"
     return f"{n_steps / np.max(tau):.0f} tau"
+
+
+# --------------------------------------------------------------------------- the posterior
+def _unit_text(param):
+    unit = getattr(param, "unit", None)
+    text = "" if unit is None else str(unit)
+    return "" if text in ("", "dimensionless") else text
+
+
+def _parameter_period(model, name):
+    """Period (deg) of an angle parameter for circular statistics, or None.
+
+    360 for a position angle; 180 for the orientation of an elliptical member (an axis, the same
+    after half a turn). None when the parameter's bounds are narrower than the period (then the
+    posterior lives on an interval, not on the circle).
+    """
+    p = model.parameters[name]
+    if getattr(p, "kind", None) != "angle":
+        return None
+    comp, local = name.split(".", 1)
+    base, _, suffix = local.rpartition("_")
+    ratio = f"{comp}.axis_ratio" + (f"_{suffix}" if base and suffix.isdigit() else "")
+    period = 180.0 if ratio in model.parameters else 360.0
+    if np.isfinite(p.min) and np.isfinite(p.max) and (p.max - p.min) < period:
+        return None
+    return period
+
+
+def _size_bound(model, name):
+    """Lower bound of a size parameter (a length other than a position), or None."""
+    p = model.parameters[name]
+    local = name.split(".", 1)[1]
+    if getattr(p, "kind", None) != "length" or local in ("east", "north"):
+        return None
+    return float(p.min) if np.isfinite(p.min) else 0.0
+
+
+def derived_samples(model, samples, frequency=None, redshift=0.0):
+    """({key: array over samples}, {key: unit}) of the fitting layer's derived quantities.
+
+    The quantities (separation, position angle and flux ratio of every pair of components, sizes,
+    brightness temperatures) are those of :mod:`uvfit.infer.derived`, evaluated on every sample.
+    They are a few scalar formulas per sample (not visibilities), so a loop over samples is used.
+    """
+    from .derived import _quantities
+
+    samples = np.asarray(samples, dtype=float)
+    if samples.shape[0] == 0:
+        return {}, {}
+    first, units, _ = _quantities(model, samples[0], frequency, redshift)
+    keys = list(first)
+    out = {k: np.empty(samples.shape[0]) for k in keys}
+    for k in keys:
+        out[k][0] = first[k]
+    with np.errstate(all="ignore"):
+        for i in range(1, samples.shape[0]):
+            q, _, _ = _quantities(model, samples[i], frequency, redshift)
+            for k in keys:
+                out[k][i] = q[k]
+    return out, units
+
+
+class Posterior:
+    """Summaries of a chain: every free parameter and every derived quantity, sample by sample.
+
+    Build with :func:`summarize_chain`. ``parameters`` and ``derived`` map names to summary dicts
+    (see :func:`uvfit.infer.posterior.summarize`); ``samples`` are the ordered posterior samples
+    (after burn-in and thinning); ``theta_max`` the ordered max-posterior sample.
+    """
+
+    def __init__(self, chain, model, samples, log_prob, theta_max, parameters, derived, ordering,
+                 mode="", data_path=None, notes=None, extra=None):
+        self.chain = chain
+        self.model = model
+        self.samples = samples
+        self.log_prob = log_prob
+        self.theta_max = theta_max
+        self.parameters = parameters
+        self.derived = derived
+        self.ordering = ordering
+        self.mode = mode
+        self.data_path = data_path
+        self.notes = list(notes or [])
+        self.extra = dict(extra or {})
+
+    @property
+    def names(self):
+        return list(self.chain.names)
+
+    def max_posterior_model(self):
+        m = self.model.copy()
+        m.set_free(self.theta_max)
+        return m
+
+    def to_dict(self):
+        """The JSON-ready dictionary (see README, "sample", for the keys)."""
+        from .. import __version__
+
+        ch = self.chain
+        out = {
+            "version": __version__,
+            "data": None if self.data_path is None else str(self.data_path),
+            "mode": self.mode,
+            "seed": ch.seed,
+            "parameters": self.parameters,
+            "derived": self.derived,
+            "autocorrelation_time": {n: float(t) for n, t in zip(ch.names, ch.tau)},
+            "acceptance_fraction": ch.acceptance_fraction,
+            "n_samples": int(self.samples.shape[0]),
+            "n_walkers": ch.n_walkers,
+            "n_steps": ch.n_steps,
+            "burn_in": ch.burn_in,
+            "thin": ch.thin,
+            "converged": ch.converged,
+            "stopping_rule": {"check_every": CHECK_EVERY, "tau_factor": TAU_FACTOR,
+                              "tau_change": TAU_CHANGE, "burn_factor": BURN_FACTOR},
+            "ordering": self.ordering,
+            "chain": ch.path,
+            "resumed_from_step": ch.resumed_from,
+            "notes": self.notes,
+            "model_toml": self.max_posterior_model().to_toml(),
+        }
+        out.update(self.extra)
+        return out
+
+    def table(self):
+        """A readable table of the summaries (text)."""
+        lines = []
+        head = f"{'quantity':34s} {'median':>12s} {'-1 sigma':>11s} {'+1 sigma':>11s}   " \
+               f"{'95% interval':^27s} {'max post.':>12s}  unit"
+        for title, block in (("free parameters", self.parameters), ("derived quantities", self.derived)):
+            if not block:
+                continue
+            lines.append(f"{title} (median and central 68% / 95% credible intervals):")
+            lines.append(head)
+            for name, s in block.items():
+                unit = s.get("unit", "")
+                if "upper_limit_95" in s:
+                    text = f"< {_g(s['upper_limit_95'])} (95% upper limit; consistent with zero)"
+                    lines.append(f"{name:34s} {text:64s} {_g(s['max_posterior']):>12s}  {unit}")
+                    continue
+                lo = s["lower"] - s["median"]
+                hi = s["upper"] - s["median"]
+                iv = f"[{_g(s['lower_95'])}, {_g(s['upper_95'])}]"
+                extra = ""
+                if "lower_limit_95" in s:
+                    extra = f"  (> {_g(s['lower_limit_95'])}, 95% lower limit)"
+                lines.append(f"{name:34s} {_g(s['median']):>12s} {_g(lo, sign=True):>11s} "
+                             f"{_g(hi, sign=True):>11s}   {iv:^27s} {_g(s['max_posterior']):>12s}  "
+                             f"{unit}{extra}")
+            lines.append("")
+        ch = self.chain
+        taus = ", ".join(f"{t:.3g}" for t in ch.tau)
+        lines.append(f"{ch.n_walkers} walkers x {ch.n_steps} steps; burn-in {ch.burn_in}, thinning "
+                     f"{ch.thin}: {self.samples.shape[0]} samples; autocorrelation times {taus} steps; "
+                     f"acceptance fraction {ch.acceptance_fraction:.2f}; "
+                     f"{'converged' if ch.converged else 'NOT converged'}; seed {ch.seed}")
+        lines.append(f"ordering: {self.ordering['description']}")
+        return "\n".join(lines)
+
+    def corner_plot(self, path, force=False):
+        """Corner plot of the free parameters (labels with units), written atomically."""
+        return corner_plot(self.samples, self.names,
+                           [self.parameters[n]["unit"] for n in self.names], path, force=force,
+                           truths=None)
+
+
+def _g(x, sign=False):
+    if x is None or not np.isfinite(x):
+        return "nan" if x is None or np.isnan(x) else ("inf" if x > 0 else "-inf")
+    return f"{x:+.5g}" if sign else f"{x:.5g}"
+
+
+def corner_plot(samples, names, units, path, force=False, truths=None):
+    """A corner plot (corner package, Agg backend) of ``samples`` written atomically to ``path``."""
+    from ..outputs import atomic_write_with, check_writable
+
+    check_writable(path, force)
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    import corner
+
+    labels = [f"{n} [{u}]" if u else n for n, u in zip(names, units)]
+    samples = np.asarray(samples, dtype=float)
+    # a parameter with no spread cannot be histogrammed: widen its range by hand
+    ranges = []
+    for j in range(samples.shape[1]):
+        lo, hi = np.min(samples[:, j]), np.max(samples[:, j])
+        ranges.append((lo, hi) if hi > lo else (lo - 0.5 * (abs(lo) or 1.0), hi + 0.5 * (abs(hi) or 1.0)))
+    fig = corner.corner(samples, labels=labels, quantiles=[0.16, 0.5, 0.84], show_titles=True,
+                        title_fmt=".3g", range=ranges, truths=truths,
+                        label_kwargs={"fontsize": 9}, title_kwargs={"fontsize": 8})
+    fig.suptitle("posterior samples: median and central 68% interval", fontsize=10, y=1.0)
+
+    def write(tmp):
+        fig.savefig(tmp, format="png", dpi=90, bbox_inches="tight")
+
+    try:
+        return atomic_write_with(path, write, force=force)
+    finally:
+        plt.close(fig)
+
+
+def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0, mode="",
+                    data_path=None, derived=True, extra=None):
+    """A :class:`Posterior` from a :class:`Chain` on ``model`` (whose free parameters it sampled)."""
+    from .posterior import order_samples, summarize, swap_groups
+    from .derived import PERIODS
+
+    names = list(chain.names)
+    if list(model.free_names) != names:
+        raise UvfitError("the chain's parameters do not match the model's free parameters",
+                         "use the model file the chain was run with")
+    samples, log_prob = chain.flat()
+    groups = swap_groups(model)
+    samples, ordering = order_samples(model, samples, order_by, groups)
+    theta_max, _ = chain.max_posterior()
+    theta_max = order_samples(model, theta_max[None, :], order_by, groups)[0][0]
+    # the max-posterior sample joins the set for the "max_posterior" entries
+    both = np.vstack([samples, theta_max[None, :]])
+    i_max = both.shape[0] - 1
+    params = {}
+    for j, name in enumerate(names):
+        s = summarize(both[:-1, j], unit=_unit_text(model.parameters[name]),
+                      period=_parameter_period(model, name), size_bound=_size_bound(model, name))
+        s["max_posterior"] = _max_value(both[i_max, j], _parameter_period(model, name))
+        params[name] = s
+    out_derived = {}
+    if derived:
+        values, units = derived_samples(model, both, frequency, redshift)
+        limited = set()
+        for key, x in values.items():
+            bound = 0.0 if key.endswith(".size") else None
+            s = summarize(x[:-1], unit=units.get(key, ""), period=PERIODS.get(key), size_bound=bound)
+            s["max_posterior"] = _max_value(x[i_max], PERIODS.get(key))
+            if "upper_limit_95" in s:
+                limited.add(key[:-len(".size")])
+            out_derived[key] = s
+        for member in limited:
+            tb = out_derived.get(f"{member}.brightness_temperature")
+            if tb is not None:
+                x = values[f"{member}.brightness_temperature"][:-1]
+                x = x[~np.isnan(x)]
+                if x.size:
+                    tb["lower_limit_95"] = float(np.percentile(x, 5.0, method="nearest"))
+                    tb["note"] = "the size is an upper limit, so this is a lower limit (one-sided 95%)"
+    notes = list(chain.notes)
+    return Posterior(chain, model, samples, log_prob, theta_max, params, out_derived, ordering,
+                     mode=mode, data_path=data_path, notes=notes, extra=extra)
+
+
+def _max_value(x, period):
+    x = float(x)
+    return x % period if (period and np.isfinite(x)) else x
+
+
+def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_steps=5000, seed=0,
+           procs=1, chain_path=None, resume=False, force=False, order_by="flux", progress=None,
+           starts=1, frequency=None, redshift=0.0, data_path=None, derived=True,
+           fit_progress=None, **options):
+    """Sample the posterior of ``model`` (not changed) given ``vset`` in ``mode``; a :class:`Posterior`.
+
+    A new chain starts from the least-squares best fit (``starts`` starts, seeded), in a ball scaled
+    by its covariance; parameters the mode cannot constrain are fixed as the fitter fixes them. A
+    resumed chain (``resume`` with ``chain_path``) skips the fit and continues where it stopped.
+    Other arguments: see :func:`run_chain` and :func:`summarize_chain`. ``options`` go to the
+    statistic.
+    """
+    from ..stats.modes import make_statistic
+    from .lsq import fit, fix_degeneracies, free_bounds
+
+    if order_by not in ("flux", "distance"):
+        raise UvfitError(f"unknown ordering '{order_by}'", "use --order-by flux or --order-by distance")
+    work = model.copy()
+    stat = make_statistic(mode, vset, work, systematic=systematic, **options)
+    extra = {"systematic": float(systematic),
+             "angular_unit": getattr(work, "angular_unit_text", str(getattr(work, "angular_unit", "")))}
+    start = cov = None
+    if resume:
+        if chain_path is not None and os.path.exists(chain_path):
+            stored = chain_info(chain_path)["meta"]
+            for key, now in (("mode", mode), ("systematic", float(systematic))):
+                if key in stored and stored[key] != now:
+                    raise UvfitError(f"the chain in {chain_path} was run with {key} {stored[key]}, "
+                                     f"not {now}",
+                                     f"resume with the same --{key}, or start a new chain with --force")
+        stat, fixed, notices = fix_degeneracies(stat)
+    else:
+        result = fit(stat, starts=starts, seed=seed, progress=fit_progress, strict=False)
+        stat = result.statistic
+        fixed, notices = list(result.fixed_by_fitter), list(result.notices)
+        start, cov = np.asarray(result.values, float), np.asarray(result.covariance, float)
+        extra["least_squares"] = {"values": dict(zip(result.names, map(float, result.values))),
+                                  "errors": dict(zip(result.names, map(float, result.errors))),
+                                  "chi2": float(result.chi2), "dof": int(result.dof)}
+    work = stat.model
+    if stat.n_data <= len(work.free_names):
+        raise FitError(f"only {stat.n_data} data for {len(work.free_names)} free parameters",
+                       "fix some parameters, or use more data (check the selection options)")
+    extra["fixed_for_mode"] = list(fixed)
+    if frequency is None:
+        frequency = float(np.mean(stat.vset.frequency)) if stat.vset.n else float("nan")
+    extra["frequency_hz"] = frequency
+    extra["redshift"] = float(redshift or 0.0)
+    log_prob = LogPosterior(stat, work)
+    bounds = free_bounds(work)
+    meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
+    chain = run_chain(log_prob, start, cov, bounds, work.free_names, n_walkers=n_walkers,
+                      max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
+                      resume=resume, force=force, progress=progress, meta=meta)
+    post = summarize_chain(chain, work, order_by=order_by, frequency=frequency, redshift=redshift,
+                           mode=mode, data_path=data_path, derived=derived, extra=extra)
+    post.notes = list(notices) + post.notes
+    return post

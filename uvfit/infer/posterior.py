@@ -78,9 +78,10 @@ def summarize(x, i_max=None, unit="", period=None, size_bound=None):
         shift = -period * math.floor(p50 / period)
         if i_max is not None and np.isfinite(x[i_max]):
             out["max_posterior"] = float(x[i_max] % period)
-    out.update(median=p50 + shift, lower=p16 + shift, upper=p84 + shift, lower_95=p025 + shift,
-               upper_95=p975 + shift, mean=float(np.mean(xs)) + shift, std=float(np.std(xs, ddof=1))
-               if xs.size > 1 else float("nan"))
+    out.update(median=float(p50 + shift), lower=float(p16 + shift), upper=float(p84 + shift),
+               lower_95=float(p025 + shift), upper_95=float(p975 + shift),
+               mean=float(np.mean(xs)) + shift,
+               std=float(np.std(xs, ddof=1)) if xs.size > 1 else float("nan"))
     if period:
         out["circular"] = True
     if size_bound is not None and consistent_with_bound(xs, size_bound):

@@ -57,7 +57,7 @@ class LogPosterior:
     def __init__(self, statistic, model):
         self.statistic = statistic
         self.model = model
-        lo, hi = _bounds_arrays(model.free_bounds(), len(model.free_names))
+        lo, hi = _bounds_arrays(model)
         self.lower = lo
         self.upper = hi
 
@@ -90,15 +90,13 @@ class _WorkerLogProb:
         return _WORKER_LOG_PROB(theta)
 
 
-def _bounds_arrays(bounds, n):
-    """(lower, upper) arrays from a model's ``free_bounds()`` (pairs, or a pair of sequences)."""
-    b = np.asarray(bounds, dtype=float) if bounds is not None else np.full((n, 2), np.nan)
-    if b.shape == (2, n) and n != 2:
-        b = b.T
-    if b.shape != (n, 2):
-        raise ValueError(f"free_bounds() has shape {b.shape}, expected ({n}, 2)")
-    lo = np.where(np.isnan(b[:, 0]), -np.inf, b[:, 0])
-    hi = np.where(np.isnan(b[:, 1]), np.inf, b[:, 1])
+def _bounds_arrays(model):
+    """(lower, upper) arrays of the free parameters, -inf / +inf where unbounded."""
+    from .lsq import free_bounds
+
+    lo, hi = free_bounds(model)
+    lo = np.where(np.isnan(lo), -np.inf, np.asarray(lo, float))
+    hi = np.where(np.isnan(hi), np.inf, np.asarray(hi, float))
     return lo, hi
 
 
@@ -700,7 +698,7 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
     statistic.
     """
     from ..stats.modes import make_statistic
-    from .lsq import fit, fix_degeneracies, free_bounds
+    from .lsq import fit, fix_degeneracies
 
     if order_by not in ("flux", "distance"):
         raise UvfitError(f"unknown ordering '{order_by}'", "use --order-by flux or --order-by distance")
@@ -736,7 +734,7 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
     extra["frequency_hz"] = frequency
     extra["redshift"] = float(redshift or 0.0)
     log_prob = LogPosterior(stat, work)
-    bounds = free_bounds(work)
+    bounds = (log_prob.lower, log_prob.upper)
     meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
     chain = run_chain(log_prob, start, cov, bounds, work.free_names, n_walkers=n_walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,

@@ -12,7 +12,7 @@ Methods:
   Carlo methods in statistical mechanics") with the ensemble average of the walkers'
   autocorrelation functions (emcee's ``integrated_time``): the chain is taken as converged once it
   is longer than ``tau_factor`` (50) times every tau and every tau changed by less than
-  ``tau_change`` (1%) since the previous check ``check_every`` (100) steps earlier. Burn-in is
+  ``tau_change`` (3%) since the previous check ``check_every`` (100) steps earlier. Burn-in is
   ``burn_factor`` (3) times the largest tau, thinning half the smallest tau. The initial ball has
   0.3 times the least-squares standard deviations (a smaller ball needs a longer burn-in: with
   0.1 and 2 tau, posterior means in a linear test scattered by 1.4 times their Monte Carlo error,
@@ -38,7 +38,7 @@ from ..errors import FitError, UvfitError
 #: defaults of the stopping rule (see the module docstring)
 CHECK_EVERY = 100
 TAU_FACTOR = 50.0
-TAU_CHANGE = 0.01
+TAU_CHANGE = 0.03
 BURN_FACTOR = 3.0
 #: acceptance fractions outside this range get a warning (common practice for the stretch move)
 ACCEPTANCE_RANGE = (0.15, 0.6)
@@ -179,12 +179,18 @@ def convergence_check(chain, n, check_every=CHECK_EVERY, tau_factor=TAU_FACTOR,
     ``tau_change`` against the estimate from the first ``n - check_every`` steps. A pure function
     of the chain, so a resumed run takes the same decisions as an uninterrupted one.
     """
+    converged, tau, _ = _convergence(chain, n, check_every, tau_factor, tau_change)
+    return converged, tau
+
+
+def _convergence(chain, n, check_every, tau_factor, tau_change):
+    """(converged, tau, largest relative change of tau since the previous check)."""
     tau = autocorrelation_time(chain[:n])
     if n - check_every < 4 or not np.all(np.isfinite(tau)):
-        return False, tau
+        return False, tau, float("nan")
     previous = autocorrelation_time(chain[:n - check_every])
-    settled = np.all(np.abs(tau - previous) < tau_change * tau)
-    return bool(settled and n > tau_factor * np.max(tau)), tau
+    change = float(np.max(np.abs(tau - previous) / tau))
+    return bool(change < tau_change and n > tau_factor * np.max(tau)), tau, change
 
 
 def burn_and_thin(tau, n_steps, burn_factor=BURN_FACTOR):
@@ -410,24 +416,29 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
     if note:
         notes.append(note)
     if not converged:
-        notes.append(f"the chain has NOT converged after {n_steps} steps: it needs to be longer "
-                     f"than {tau_factor:g} autocorrelation times (now {_ratio_text(n_steps, tau)}) with "
-                     f"tau settled to {100 * tau_change:g}%; treat the intervals as rough and run "
-                     "longer (--max-steps, --resume)")
+        _, _, change = _convergence(chain, n_steps, check_every, tau_factor, tau_change)
+        if np.all(np.isfinite(tau)) and tau.size and np.max(tau) > 0:
+            how = (f"it is {n_steps / np.max(tau):.0f} autocorrelation times long (needs more "
+                   f"than {tau_factor:g})")
+        else:
+            how = "it is too short to estimate its autocorrelation time"
+        if np.isfinite(change):
+            how += (f" and tau changed by {100 * change:.1f}% over the last {check_every} steps "
+                    f"(needs less than {100 * tau_change:g}%)")
+        notes.append(f"the chain has NOT converged after {n_steps} steps: {how}; treat the "
+                     "intervals as rough and run longer (raise --max-steps, add --resume)")
     acc = float(np.mean(acceptance))
-    if not ACCEPTANCE_RANGE[0] <= acc <= ACCEPTANCE_RANGE[1]:
-        notes.append(f"the mean acceptance fraction {acc:.2f} is outside {ACCEPTANCE_RANGE[0]}-"
-                     f"{ACCEPTANCE_RANGE[1]}: the posterior may be multimodal or badly scaled")
+    if acc < ACCEPTANCE_RANGE[0]:
+        notes.append(f"the mean acceptance fraction {acc:.2f} is below {ACCEPTANCE_RANGE[0]}: the "
+                     "walkers rarely move (a multimodal, very narrow or curved posterior, or walkers "
+                     "stuck); the intervals may be too narrow")
+    elif acc > ACCEPTANCE_RANGE[1]:
+        notes.append(f"the mean acceptance fraction {acc:.2f} is above {ACCEPTANCE_RANGE[1]}: the "
+                     "steps are small against the posterior width (common with few free parameters); "
+                     "check that the autocorrelation times are well below the chain length")
     return Chain(names=names, chain=chain, log_prob=log_post, acceptance=np.asarray(acceptance, float),
                  tau=tau, converged=bool(converged), seed=int(seed), burn_in=burn, thin=thin,
                  path=chain_path, notes=notes, resumed_from=previous)
-
-
-def _ratio_text(n_steps, tau):
-    tau = np.asarray(tau, float)
-    if tau.size == 0 or not np.all(np.isfinite(tau)) or np.max(tau) <= 0:
-        return "tau undefined"
-    return f"{n_steps / np.max(tau):.0f} tau"
 
 
 # --------------------------------------------------------------------------- the posterior

@@ -9,7 +9,7 @@ from uvfit.infer.sampling import sample
 
 from _sample_data import simulate, two_points
 
-N_SIM = 200
+N_SIM = 300
 TRUE = {"flux_a": 1.0, "flux_b": 0.3, "east": 0.3, "north": 0.2}
 TRUE_SEPARATION = math.hypot(TRUE["east"], TRUE["north"])
 TRUE_RATIO = TRUE["flux_b"] / TRUE["flux_a"]
@@ -18,7 +18,7 @@ TRUE_RATIO = TRUE["flux_b"] / TRUE["flux_a"]
 def _one(k):
     truth = two_points(**TRUE)
     vs = simulate(truth, n=120, q_max=4e8, sigma=0.05, seed=7, noise_seed=5000 + k)
-    post = sample(vs, two_points(**TRUE), n_walkers=12, max_steps=300, seed=k)
+    post = sample(vs, two_points(**TRUE), n_walkers=16, max_steps=400, seed=k)
     sep = post.derived["a-b.separation"]
     ratio = post.derived["a-b.flux_ratio"]
     return (sep["lower"] <= TRUE_SEPARATION <= sep["upper"],

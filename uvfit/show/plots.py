@@ -319,7 +319,8 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
 # --------------------------------------------------------------------------- the model on the sky
 
 
-def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None, note=None):
+def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None, note=None,
+             vmax=None):
     """The fitted model on the sky, east to the LEFT, with component outlines and the resolution.
 
     ``image``: 2-D brightness, Jy per pixel, ``image[j, i]`` at relative declination y_j and
@@ -328,7 +329,8 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
     a Gaussian's FWHM, "circle" for a disk or sphere edge, "ring", "point"), ``x``, ``y`` (centre,
     ``unit``), ``major``, ``minor`` (full axes, ``unit``) and ``pa_deg`` (major axis, north through
     east). ``resolution``: the nominal resolution lambda / B_max in ``unit``, drawn as a circle of
-    that diameter in the lower left corner.
+    that diameter in the lower left corner. ``vmax``: top of the colour scale (Jy per square
+    ``unit``; default the brightest pixel).
 
     Returns (fig, numbers): ``image`` (Jy per square ``unit``), ``extent``, ``peak_xy`` (position of
     the brightest pixel), ``outlines``, ``resolution``, ``unit``.
@@ -345,7 +347,9 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
     peak = (x0 + (i + 0.5) * (x1 - x0) / nx, y0 + (j + 0.5) * (y1 - y0) / ny)
     fig, ax = style.new_figure(figsize=(7.6, 6.6))
     with style.style():
-        vmax = float(brightness.max()) if np.isfinite(brightness.max()) and brightness.max() > 0 else 1.0
+        if vmax is None:
+            top = float(np.max(brightness))
+            vmax = top if np.isfinite(top) and top > 0 else 1.0
         im = ax.imshow(brightness, origin="lower", extent=(x0, x1, y0, y1), cmap=style.IMAGE_CMAP,
                        vmin=0.0, vmax=vmax, interpolation="nearest", aspect="equal")
         cb = fig.colorbar(im, ax=ax, shrink=0.85)

@@ -353,3 +353,18 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             f"<title>uvfit report: {_esc(source)}</title>\n<style>{_CSS}</style>\n</head>\n"
             f"<body>\n{body}\n</body>\n</html>\n")
+
+
+def run_closure_check(view):
+    """The closure check of the fitted model on the data (a dict), or a sentence saying why not."""
+    try:
+        from ..stats.closure import check_closures
+    except ImportError:
+        return "The closure check is not available in this installation."
+    systematic = view.fit.get("systematic") or 0.0
+    if isinstance(systematic, dict):
+        systematic = systematic.get("fraction", systematic.get("value", 0.0)) or 0.0
+    try:
+        return check_closures(view.vset, view.model, float(systematic))
+    except UvfitError as exc:
+        return f"The closure check could not be made: {exc}"

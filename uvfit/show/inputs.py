@@ -170,12 +170,12 @@ def open_fit_view(data_path, fit_path, options=None):
     Returns (FitView, notes), notes being the selection's messages for the user.
     """
     from .. import read
-    from ..data.select import apply_selection
 
     fit = load_fit(fit_path)
     selection = merged_selection(fit, options)
     vset = read(data_path)
     notes = []
     if selection:
+        from ..data.select import apply_selection
         vset, notes = apply_selection(vset, **selection)
     return fit_view(vset.good(), fit, selection), list(notes)

@@ -112,7 +112,14 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
         ax_r.plot(x, res_phase, "^", ms=2.5, color=OKABE_ITO["orange"], alpha=0.7,
                   label="(φ − φ_M) / σ_φ")
         finite = np.concatenate([res_amp[np.isfinite(res_amp)], res_phase[np.isfinite(res_phase)]])
-        lim = max(5.0, float(np.percentile(np.abs(finite), 99.5)) * 1.1) if finite.size else 5.0
+        lim = max(5.0, float(np.max(np.abs(finite))) * 1.1) if finite.size else 5.0
+        if lim > 30.0:
+            # a poor fit: linear within +-3 sigma, logarithmic beyond, so both stay readable
+            ax_r.set_yscale("symlog", linthresh=3.0)
+            ticks = [10.0 ** k for k in range(1, int(np.log10(lim)) + 1)]
+            ticks = [-t for t in ticks[::-1]] + [0.0] + ticks
+            ax_r.set_yticks(ticks)
+            ax_r.set_yticklabels([f"{t:g}" for t in ticks])
         ax_r.set_ylim(-lim, lim)
         ax_r.set_ylabel("normalised\nresidual (σ)")
         ax_r.legend(loc="upper right", ncol=2, markerscale=2.5)
@@ -196,7 +203,9 @@ def closure_phase_series(vset, model_vis):
     display; the statistics use their own independent set).
 
     Returns a dict of 1-D arrays over the closure phases: ``triangle`` (labels "A-B-C"),
-    ``time`` (MJD), ``channel``, ``phase``, ``sigma``, ``model`` (radians).
+    ``time`` (MJD), ``channel``, ``phase``, ``sigma``, ``model`` (radians) and ``shortest_uv``
+    (the shortest of the three baselines, wavelengths); and ``longest_uv``, the longest baseline
+    of the set (a number).
     """
     model_vis = _check_lengths(vset, model_vis)
     names = np.asarray(vset.stations.names)
@@ -208,6 +217,7 @@ def closure_phase_series(vset, model_vis):
     vis = np.where(flip, np.conj(vset.vis[keep]), vset.vis[keep])
     mvis = np.where(flip, np.conj(model_vis[keep]), model_vis[keep])
     rel = vset.sigma[keep] / np.abs(vset.vis[keep])
+    quv = vset.uv_distance[keep]
     # one group per (time to 0.1 ms, channel)
     tick = np.round(vset.time[keep] * 864e6).astype(np.int64)
     groups, group_of = np.unique(np.stack([tick, vset.channel[keep]]), axis=1, return_inverse=True)
@@ -217,7 +227,7 @@ def closure_phase_series(vset, model_vis):
     n_groups = groups.shape[1]
     all_groups = np.arange(n_groups, dtype=np.int64)
     used = np.unique(np.concatenate([lo, hi])) if lo.size else np.zeros(0, int)
-    out = {k: [] for k in ("triangle", "time", "channel", "phase", "sigma", "model")}
+    out = {k: [] for k in ("triangle", "time", "channel", "phase", "sigma", "model", "shortest_uv")}
     time_of_group = groups[0] / 864e6
     for ia in range(len(used)):
         for ib in range(ia + 1, len(used)):
@@ -242,21 +252,41 @@ def closure_phase_series(vset, model_vis):
                 out["phase"].append(cp)
                 out["sigma"].append(sig)
                 out["model"].append(mcp)
+                out["shortest_uv"].append(np.minimum(np.minimum(quv[iab], quv[ibc]), quv[iac]))
     if not out["phase"]:
         return {"triangle": np.zeros(0, str), "time": np.zeros(0), "channel": np.zeros(0, int),
-                "phase": np.zeros(0), "sigma": np.zeros(0), "model": np.zeros(0)}
-    return {k: np.concatenate(v) for k, v in out.items()}
+                "phase": np.zeros(0), "sigma": np.zeros(0), "model": np.zeros(0),
+                "shortest_uv": np.zeros(0), "longest_uv": float(quv.max()) if quv.size else 0.0}
+    out = {k: np.concatenate(v) for k, v in out.items()}
+    out["longest_uv"] = float(quv.max())
+    return out
+
+
+#: a triangle whose shortest baseline is below this fraction of the longest is "trivial"
+TRIVIAL_FRACTION = 0.01
 
 
 def rank_triangles(series, max_panels=6):
-    """Triangles by information, sum over their closure phases of 1 / sigma^2 (highest first)."""
+    """Triangles by information, sum over their closure phases of 1 / sigma^2 (highest first).
+
+    Triangles with a very short baseline (median shortest baseline below ``TRIVIAL_FRACTION`` of
+    the longest in the series, e.g. two stations on one site) close to zero whatever the source
+    looks like, so they come after every other triangle.
+    """
     tri = np.asarray(series["triangle"])
     if tri.size == 0:
         return []
     names, inv = np.unique(tri, return_inverse=True)
     info = np.bincount(inv, weights=1.0 / np.asarray(series["sigma"], float) ** 2,
                        minlength=len(names))
-    order = np.lexsort((names, -info))  # ties broken by name, so the choice is reproducible
+    trivial = np.zeros(len(names), bool)
+    shortest = series.get("shortest_uv")
+    longest = float(series.get("longest_uv") or 0.0)
+    if shortest is not None and len(shortest) == tri.size and longest > 0:
+        shortest = np.asarray(shortest, float)
+        for i in range(len(names)):
+            trivial[i] = np.median(shortest[inv == i]) < TRIVIAL_FRACTION * longest
+    order = np.lexsort((names, -info, trivial))  # ties broken by name: a reproducible choice
     return [str(names[i]) for i in order[:max_panels]]
 
 

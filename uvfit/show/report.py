@@ -130,6 +130,35 @@ def _section(title, body, anchor):
 # --------------------------------------------------------------------------- sections
 
 
+_SUMMARY_UNITS = {"ra_deg": "deg", "dec_deg": "deg", "uv_min_lambda": "λ", "uv_max_lambda": "λ",
+                  "time_start_mjd": "MJD (UTC)", "time_end_mjd": "MJD (UTC)"}
+
+
+def _iso(mjd):
+    from astropy.time import Time
+    return Time(float(mjd), format="mjd", scale="utc").isot[:19]
+
+
+def data_summary_table(summary, vset, model=None):
+    """The data summary with units; times also as ISO UTC, frequencies in GHz."""
+    rows = []
+    for key, value in summary.items():
+        if key == "frequency_hz":
+            rows.append(("frequencies", [round(f / 1e9, 6) for f in value], "GHz"))
+            continue
+        rows.append((key, value, _SUMMARY_UNITS.get(key, "")))
+        if key in ("time_start_mjd", "time_end_mjd") and value is not None:
+            rows.append((key.replace("_mjd", ""), _iso(value), "UTC"))
+    res = plots.nominal_resolution(vset)
+    if np.isfinite(res):
+        if model is not None:
+            rows.append(("nominal resolution λ/B_max", res / float(model.rad_per_unit),
+                         style.angle_label(model.angular_unit_text)))
+        else:
+            rows.append(("nominal resolution λ/B_max", res, "rad"))
+    return table(("quantity", "value", "unit"), rows)
+
+
 def parameter_rows(parameters):
     rows = []
     for name, p in parameters.items():
@@ -161,6 +190,20 @@ def _statistics_section(fit):
         body.append(records_table(per_station, first="station"))
     elif isinstance(per_station, list) and per_station:
         body.append(_list_table(per_station))
+    corr = fit.get("correlation")
+    if isinstance(corr, dict) and corr.get("names") and corr.get("matrix"):
+        names, matrix = corr["names"], corr["matrix"]
+        if len(names) == len(matrix):
+            body.append("<p>Correlation of the free parameters (|r| near 1: the data cannot tell "
+                        "them apart):</p>")
+            body.append(table([""] + list(names), [[n] + [None if v is None else round(float(v), 3)
+                                                          for v in row]
+                                                   for n, row in zip(names, matrix)]))
+    for key, text in (("fixed_by_fitter", "Fixed by the fitter (the data cannot constrain them)"),
+                      ("unconstrained", "Unconstrained by the data")):
+        items = fit.get(key) or []
+        if items:
+            body.append(f"<p>{_esc(text)}: {_esc(fmt(list(items)))}</p>")
     per_baseline = fit.get("per_baseline")
     if isinstance(per_baseline, dict) and per_baseline:
         body.append("<p>Chi-square by baseline:</p>")
@@ -212,7 +255,8 @@ def _compare_section(compare):
     if verdict:
         body.append(f'<p class="verdict">Verdict: {_esc(fmt(verdict))}</p>')
     models = compare.get("models")
-    cols = ("chi2", "dof", "reduced_chi2", "aic", "bic", "false_alarm_probability")
+    cols = ("chi2", "dof", "n_free", "reduced_chi2", "aic", "bic", "likelihood_ratio",
+            "false_alarm_probability")
     if isinstance(models, dict) and models:
         rows = []
         for name, m in models.items():
@@ -235,18 +279,24 @@ def _compare_section(compare):
 
 def _posterior_section(posterior):
     params = posterior.get("parameters", {})
-    rows = [[n, p.get("median"), p.get("lower"), p.get("upper"), p.get("unit", "")]
-            for n, p in params.items()]
-    body = [table(("parameter", "median", "lower", "upper", "unit"), rows),
-            '<p class="note">lower and upper as recorded by the sampler (the bounds of its '
-            "central credible interval).</p>"]
+    cols = [c for c in ("median", "lower", "upper", "lower_95", "upper_95", "max_posterior",
+                        "upper_limit_95", "lower_limit_95")
+            if any(c in p for p in params.values())]
+    rows = [[n] + [p.get(c) for c in cols] + [p.get("unit", "")] for n, p in params.items()]
+    body = [table(["parameter"] + cols + ["unit"], rows),
+            '<p class="note">lower and upper: the central 68 % credible interval; _95: the central '
+            "95 % interval; a limit is given where the posterior piles up against a bound.</p>"]
     derived = posterior.get("derived")
     if derived:
         body.append("<p>Derived quantities from the samples:</p>")
         body.append(_derived_table(derived))
     diag = {k: posterior.get(k) for k in ("converged", "acceptance_fraction",
                                           "autocorrelation_time", "n_walkers", "n_steps",
-                                          "discard", "thin", "seed") if k in posterior}
+                                          "n_samples", "burn_in", "discard", "thin", "seed")
+            if k in posterior}
+    ordering = posterior.get("ordering")
+    if isinstance(ordering, dict) and ordering.get("description"):
+        diag["ordering of the samples"] = ordering["description"]
     if diag:
         body.append(mapping_table(diag, header=("sampler diagnostic", "value")))
     if posterior.get("converged") is False:
@@ -317,7 +367,7 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
     parts.append('<p class="caution">Results hold for the model family fitted, under the '
                  "calibration assumptions of the mode used; see <a href=\"#cautions\">Cautions</a>."
                  "</p>")
-    parts.append(_section("Data", mapping_table(summary) + (
+    parts.append(_section("Data", data_summary_table(summary, view.vset, view.model) + (
         "<p>Selection applied (the fit's own, overridden by the command's options):</p>"
         + mapping_table(view.selection, header=("option", "value")) if view.selection else
         '<p class="note">No selection applied.</p>'), "data"))
@@ -342,9 +392,9 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
         figs.append(f'<p class="note">{_esc(caption)}</p>' if fig is None
                     else _figure(fig, caption, anchor))
     parts.append(_section("Figures", "\n".join(figs), "figures"))
-    notices = fit.get("notices") or []
+    notices = list(fit.get("notices") or []) + list(fit.get("cautions") or [])
     if notices:
-        parts.append(_section("Notices from the fit",
+        parts.append(_section("Notices and cautions recorded by the fit",
                               "<ul>" + "".join(f"<li>{_esc(fmt(n))}</li>" for n in notices)
                               + "</ul>", "notices"))
     parts.append(_section("Cautions", "\n".join(

@@ -376,22 +376,25 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
                                               parameter_rows(params)), "parameters"))
     parts.append(_section("Derived quantities", _derived_table(fit.get("derived") or {}), "derived"))
     parts.append(_section("Goodness of fit", _statistics_section(fit), "goodness"))
-    parts.append(_section("Closure check", _closure_section(closure_check), "closure-check"))
-    if compare is not None:
-        parts.append(_section("Model comparison", _compare_section(compare), "comparison"))
-    if posterior is not None:
-        parts.append(_section("Posterior", _posterior_section(posterior), "posterior"))
     chain_names = list((posterior or {}).get("parameters", {}).keys())
     chain_units = [(posterior or {}).get("parameters", {}).get(n, {}).get("unit")
                    or params.get(n, {}).get("unit", "") for n in chain_names]
     if chain is not None and chain.shape[1] != len(chain_names):
         chain_names = [n for n, p in params.items() if p.get("free", True)]
         chain_units = [params[n].get("unit", "") for n in chain_names]
-    figs = []
-    for anchor, caption, fig in figures(view, chain, chain_names, chain_units):
-        figs.append(f'<p class="note">{_esc(caption)}</p>' if fig is None
-                    else _figure(fig, caption, anchor))
-    parts.append(_section("Figures", "\n".join(figs), "figures"))
+    made = figures(view, chain, chain_names, chain_units)
+    html_figs = {anchor: (f'<p class="note">{_esc(caption)}</p>' if fig is None
+                          else _figure(fig, caption, anchor)) for anchor, caption, fig in made}
+    corner_html = html_figs.pop("corner", "")
+    parts.append(_section("Figures", "\n".join(html_figs.values()), "figures"))
+    parts.append(_section("Closure check", _closure_section(closure_check), "closure-check"))
+    if compare is not None:
+        parts.append(_section("Model comparison", _compare_section(compare), "comparison"))
+    if posterior is not None or corner_html:
+        body = _posterior_section(posterior) if posterior is not None else (
+            '<p class="note">No posterior summary was given; the corner plot shows the whole '
+            "chain.</p>")
+        parts.append(_section("Posterior", body + corner_html, "posterior"))
     notices = list(fit.get("notices") or []) + list(fit.get("cautions") or [])
     if notices:
         parts.append(_section("Notices and cautions recorded by the fit",

@@ -43,6 +43,8 @@ def command(data, fit_path, posterior_path, chain_path, compare_path, out, force
     view, notes = inputs.open_fit_view(data, fit_path, selection)
     for note in notes:
         click.echo(note, err=True)
+    if chain is not None:
+        chain = inputs.order_chain(chain, view.model, posterior)
     check = run_closure_check(view)
     page = build_report(view, closure_check=check, posterior=posterior, chain=chain,
                         compare=compare, data_name=os.path.basename(str(data)))

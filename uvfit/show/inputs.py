@@ -179,3 +179,19 @@ def open_fit_view(data_path, fit_path, options=None):
         from ..data.select import apply_selection
         vset, notes = apply_selection(vset, **selection)
     return fit_view(vset.good(), fit, selection), list(notes)
+
+
+def order_chain(samples, model, posterior):
+    """Relabel swappable components in raw chain samples by the rule the posterior recorded.
+
+    The sampler's summaries are of ordered samples (brightest first, or nearest first); the chain
+    file holds them unordered, so the corner plot applies the same rule to match the table.
+    """
+    ordering = (posterior or {}).get("ordering")
+    if not isinstance(ordering, dict) or not ordering.get("groups"):
+        return samples
+    if samples.shape[1] != len(model.free_names):
+        return samples
+    from ..infer.posterior import order_samples
+
+    return order_samples(model, samples, ordering.get("rule", "flux"))[0]

@@ -131,7 +131,10 @@ def _section(title, body, anchor):
 
 
 _SUMMARY_UNITS = {"ra_deg": "deg", "dec_deg": "deg", "uv_min_lambda": "λ", "uv_max_lambda": "λ",
-                  "time_start_mjd": "MJD (UTC)", "time_end_mjd": "MJD (UTC)"}
+                  "time_start_mjd": "MJD (UTC)", "time_end_mjd": "MJD (UTC)",
+                  "time_start_utc": "UTC", "time_end_utc": "UTC", "time_span_hours": "h",
+                  "resolution_mas": "mas", "largest_scale_mas": "mas", "median_sigma_jy": "Jy",
+                  "median_integration_s": "s"}
 
 
 def _iso(mjd):
@@ -147,7 +150,8 @@ def data_summary_table(summary, vset, model=None):
             rows.append(("frequencies", [round(f / 1e9, 6) for f in value], "GHz"))
             continue
         rows.append((key, value, _SUMMARY_UNITS.get(key, "")))
-        if key in ("time_start_mjd", "time_end_mjd") and value is not None:
+        if (key in ("time_start_mjd", "time_end_mjd") and value is not None
+                and key.replace("_mjd", "_utc") not in summary):
             rows.append((key.replace("_mjd", ""), _iso(value), "UTC"))
     res = plots.nominal_resolution(vset)
     if np.isfinite(res):

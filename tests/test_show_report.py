@@ -24,9 +24,7 @@ CHROMIUM = shutil.which("chromium") or ("/usr/bin/chromium" if os.path.exists("/
 
 @pytest.fixture(scope="module")
 def inputs(tmp_path_factory):
-    """A real fit, a real comparison and a small emcee chain on simulated data."""
-    import emcee
-
+    """A real fit, a real comparison and a short sampler run on simulated data."""
     from uvfit.infer.compare import compare
     from uvfit.infer.run import run_fit
     from uvfit.sky.modelfile import loads
@@ -40,24 +38,10 @@ def inputs(tmp_path_factory):
     one = loads(show_sim.MODEL_TOML.split("[[component]]\nname = \"knot\"")[0])
     comp = compare(vset, [one, model], names=["core only", "core and knot"], seed=7)
     write_json(d / "compare.json", comp)
-    # a chain around the fit, written by emcee's own HDF5 backend
-    names = list(fit["parameters"])
-    free = [n for n in names if fit["parameters"][n]["free"]]
-    mu = np.array([fit["parameters"][n]["value"] for n in free])
-    sd = np.array([max(fit["parameters"][n]["error"] or 0.01, 1e-3) for n in free])
-    backend = emcee.backends.HDFBackend(str(d / "chain.h5"))
-    backend.reset(16, len(free))
-    sampler = emcee.EnsembleSampler(16, len(free), lambda x: -0.5 * np.sum(((x - mu) / sd) ** 2),
-                                    backend=backend)
-    rng = np.random.default_rng(1)
-    sampler.run_mcmc(mu + sd * rng.normal(size=(16, len(free))), 150, progress=False)
-    post = {"version": "test", "seed": 1, "mode": "complex", "burn_in": 50, "thin": 2,
-            "converged": False, "acceptance_fraction": float(np.mean(sampler.acceptance_fraction)),
-            "autocorrelation_time": {n: 10.0 for n in free},
-            "parameters": {n: {"median": float(m), "lower": float(m - s), "upper": float(m + s),
-                               "unit": fit["parameters"][n]["unit"]}
-                           for n, m, s in zip(free, mu, sd)},
-            "derived": {}}
+    # a short chain by the sampler (its HDF5 file is emcee's own backend)
+    from uvfit.infer.sampling import sample
+    post = sample(vset, model, max_steps=300, seed=3, chain_path=str(d / "chain.h5"),
+                  derived=False, data_path=str(data)).to_dict()
     write_json(d / "posterior.json", post)
     return d, data, fit
 

@@ -47,7 +47,7 @@ def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, *
     elif kind == "uv":
         fig, numbers = plots.uv_coverage_plot(view.vset, colour_by=colour_by)
     elif kind == "closure":
-        series = plots.closure_phase_series(view.vset, view.model_vis)
+        series = plots.closure_phase_series(view.vset, view.model_vis, systematic=view.systematic)
         fig, numbers = plots.closure_phase_plot(series, max_panels=panels)
     else:
         fig, numbers = sky_figure(view)

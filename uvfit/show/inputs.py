@@ -175,6 +175,12 @@ class FitView:
         return self.fit.get("angular_unit") or getattr(self.model, "angular_unit", None) or "mas"
 
     @property
+    def systematic(self):
+        """The fit's systematic floor (fraction of |V| added to each sigma in quadrature)."""
+        value = self.fit.get("systematic") or 0.0
+        return float(value) if isinstance(value, (int, float)) else 0.0
+
+    @property
     def mode(self):
         return self.fit.get("mode") or "unknown"
 

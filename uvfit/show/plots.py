@@ -194,72 +194,36 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
 # --------------------------------------------------------------------------- closure phases
 
 
-def closure_phase_series(vset, model_vis):
-    """Closure phases of every triangle at every time (and channel) where all three baselines exist.
+def closure_phase_series(vset, model_vis, systematic=0.0, snr_cut=None):
+    """Closure phases of every triangle at every time (and channel), data and model.
 
-    Closure phase on stations (a, b, c): arg(V_ab V_bc V_ca) with V_ca = conj(V_ac); unchanged
-    by any station-based phase error. Its error at high SNR is sqrt(sum_k (sigma_k / |V_k|)^2)
-    radians (Chael et al. 2018, ApJ 857, 23). Every triangle is returned (a redundant set, for
-    display; the statistics use their own independent set).
+    Built by the closure layer (:func:`uvfit.stats.closure.build_closures`) with its full
+    (redundant) set, so that every triangle can be drawn; the statistics use the non-redundant set.
+    Closure phase on stations (a, b, c): arg(V_ab V_bc V_ca), unchanged by any station-based phase
+    error; its error sqrt(sum_k (sigma_k / |V_k|)^2) radians at high SNR (Chael et al. 2018,
+    ApJ 857, 23), with ``systematic`` (a fraction of |V|) added to each sigma in quadrature and
+    rows below ``snr_cut`` (default: the closure layer's) left out.
 
     Returns a dict of 1-D arrays over the closure phases: ``triangle`` (labels "A-B-C"),
     ``time`` (MJD), ``channel``, ``phase``, ``sigma``, ``model`` (radians) and ``shortest_uv``
     (the shortest of the three baselines, wavelengths); and ``longest_uv``, the longest baseline
     of the set (a number).
     """
+    from ..stats.closure import DEFAULT_SNR_CUT, build_closures
+
     model_vis = _check_lengths(vset, model_vis)
-    names = np.asarray(vset.stations.names)
-    n_st = len(names)
-    a1, a2 = vset.ant1, vset.ant2
-    keep = a1 != a2
-    lo, hi = np.minimum(a1, a2)[keep], np.maximum(a1, a2)[keep]
-    flip = (a1 > a2)[keep]
-    vis = np.where(flip, np.conj(vset.vis[keep]), vset.vis[keep])
-    mvis = np.where(flip, np.conj(model_vis[keep]), model_vis[keep])
-    rel = vset.sigma[keep] / np.abs(vset.vis[keep])
-    quv = vset.uv_distance[keep]
-    # one group per (time to 0.1 ms, channel)
-    tick = np.round(vset.time[keep] * 864e6).astype(np.int64)
-    groups, group_of = np.unique(np.stack([tick, vset.channel[keep]]), axis=1, return_inverse=True)
-    group_of = np.asarray(group_of).ravel()
-    keys = (group_of.astype(np.int64) * n_st + lo) * n_st + hi
-    ukeys, first = np.unique(keys, return_index=True)
-    n_groups = groups.shape[1]
-    all_groups = np.arange(n_groups, dtype=np.int64)
-    used = np.unique(np.concatenate([lo, hi])) if lo.size else np.zeros(0, int)
-    out = {k: [] for k in ("triangle", "time", "channel", "phase", "sigma", "model", "shortest_uv")}
-    time_of_group = groups[0] / 864e6
-    for ia in range(len(used)):
-        for ib in range(ia + 1, len(used)):
-            for ic in range(ib + 1, len(used)):
-                a, b, c = used[ia], used[ib], used[ic]
-                rows = []
-                for p, q in ((a, b), (b, c), (a, c)):
-                    k = (all_groups * n_st + p) * n_st + q
-                    pos = np.clip(np.searchsorted(ukeys, k), 0, max(len(ukeys) - 1, 0))
-                    found = ukeys[pos] == k if ukeys.size else np.zeros(n_groups, bool)
-                    rows.append((first[pos], found))
-                ok = rows[0][1] & rows[1][1] & rows[2][1]
-                if not ok.any():
-                    continue
-                iab, ibc, iac = (r[0][ok] for r in rows)
-                cp = np.angle(vis[iab] * vis[ibc] * np.conj(vis[iac]))
-                mcp = np.angle(mvis[iab] * mvis[ibc] * np.conj(mvis[iac]))
-                sig = np.sqrt(rel[iab] ** 2 + rel[ibc] ** 2 + rel[iac] ** 2)
-                out["triangle"].append(np.full(ok.sum(), f"{names[a]}-{names[b]}-{names[c]}"))
-                out["time"].append(time_of_group[ok])
-                out["channel"].append(groups[1][ok])
-                out["phase"].append(cp)
-                out["sigma"].append(sig)
-                out["model"].append(mcp)
-                out["shortest_uv"].append(np.minimum(np.minimum(quv[iab], quv[ibc]), quv[iac]))
-    if not out["phase"]:
+    cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+    cp = build_closures(vset, snr_cut=cut, systematic=systematic, full=True, kinds=("phase",))["phase"]
+    q = vset.uv_distance
+    longest = float(q.max()) if q.size else 0.0
+    if cp.n == 0:
         return {"triangle": np.zeros(0, str), "time": np.zeros(0), "channel": np.zeros(0, int),
                 "phase": np.zeros(0), "sigma": np.zeros(0), "model": np.zeros(0),
-                "shortest_uv": np.zeros(0), "longest_uv": float(quv.max()) if quv.size else 0.0}
-    out = {k: np.concatenate(v) for k, v in out.items()}
-    out["longest_uv"] = float(quv.max())
-    return out
+                "shortest_uv": np.zeros(0), "longest_uv": longest}
+    return {"triangle": cp.labels, "time": np.asarray(cp.time, float),
+            "channel": np.asarray(cp.channel, int), "phase": np.asarray(cp.value, float),
+            "sigma": np.asarray(cp.sigma, float), "model": cp.evaluate(model_vis),
+            "shortest_uv": q[cp.rows].min(axis=1), "longest_uv": longest}
 
 
 #: a triangle whose shortest baseline is below this fraction of the longest is "trivial"

@@ -226,6 +226,15 @@ def _list_table(records):
     return table(("value",), [[r] for r in records])
 
 
+#: lists of a closure check shown as tables, with their headings (the full per-quadrangle list
+#: is long and stays in the check's own outputs)
+_CLOSURE_LISTS = (("per_station", "Closure misfit by station (worst first)"),
+                  ("per_triangle", "Closure phases by triangle (worst first)"),
+                  ("worst_quadrangles", "Log closure amplitudes: the worst quadrangles"))
+_CLOSURE_SKIP = ("closures", "model_values", "verdict", "summary", "caution", "per_quadrangle",
+                 "worst_triangles", "worst_stations")
+
+
 def _closure_section(check):
     if check is None:
         return '<p class="note">The closure check was not run.</p>'
@@ -235,21 +244,23 @@ def _closure_section(check):
     verdict = check.get("verdict") or check.get("summary")
     if verdict:
         body.append(f'<p class="verdict">{_esc(fmt(verdict))}</p>')
-    flat = {k: v for k, v in check.items() if not isinstance(v, (dict, list)) and k not in (
-        "verdict", "summary")}
-    if flat:
-        body.append(mapping_table(flat))
-    for k, v in check.items():
-        if isinstance(v, dict) and v:
-            body.append(f"<p>{_esc(k)}:</p>")
-            body.append(records_table(v, first=k) if all(isinstance(x, dict) for x in v.values())
-                        else mapping_table(v))
-        elif isinstance(v, list) and v and all(isinstance(x, dict) for x in v):
-            body.append(f"<p>{_esc(k)}:</p>")
+    flat = {k: v for k, v in check.items() if k not in _CLOSURE_SKIP
+            and not isinstance(v, (dict, list, tuple, np.ndarray))}
+    listed = {k: v for k, v in check.items() if k == "stations"}
+    if flat or listed:
+        body.append(mapping_table({**flat, **listed}))
+    for key, heading in _CLOSURE_LISTS:
+        v = check.get(key)
+        if isinstance(v, list) and v and all(isinstance(x, dict) for x in v):
+            body.append(f"<p>{_esc(heading)}:</p>")
             body.append(_list_table(v))
-    body.append('<p class="note">The closure check compares the closure quantities of the data '
-                "with those of the fitted model. It is immune to station-based gain errors, "
-                "not to baseline-based errors, and blind to absolute position and flux scale.</p>")
+    caution = check.get("caution")
+    if caution:
+        body.append(f'<p class="caution">{_esc(caution)}</p>')
+    body.append('<p class="note">The closure check compares the closure phases and log closure '
+                "amplitudes of the data with those of the fitted model. It is immune to "
+                "station-based gain errors, not to baseline-based errors, and blind to the "
+                "absolute position and the flux scale.</p>")
     return "\n".join(body)
 
 
@@ -329,7 +340,7 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
     out.append(("coverage", "(u, v) coverage, each visibility with its conjugate; u increases to "
                 "the left (east).", fig))
     try:
-        series = plots.closure_phase_series(vset, mvis)
+        series = plots.closure_phase_series(vset, mvis, systematic=view.systematic)
         fig, _ = plots.closure_phase_plot(series)
         out.append(("closure-phases", "Closure phases against time for the most informative "
                     "triangles (largest sum of 1/σ²): data with 1σ errors and the model.", fig))
@@ -418,10 +429,7 @@ def run_closure_check(view):
         from ..stats.closure import check_closures
     except ImportError:
         return "The closure check is not available in this installation."
-    systematic = view.fit.get("systematic") or 0.0
-    if isinstance(systematic, dict):
-        systematic = systematic.get("fraction", systematic.get("value", 0.0)) or 0.0
     try:
-        return check_closures(view.vset, view.model, float(systematic))
+        return check_closures(view.vset, view.model, view.systematic)
     except UvfitError as exc:
         return f"The closure check could not be made: {exc}"

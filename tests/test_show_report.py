@@ -75,7 +75,8 @@ def test_report_is_complete_and_self_contained(report, inputs):
         assert name in text
     for words in ("reduced_chi2", "aic", "bic", "Closure check", "Model comparison", "Posterior",
                   "core and knot", "Cautions", "trusts the phase calibration", "baseline-based",
-                  "station-based", "no substitute for an image", "OSPREY"):
+                  "station-based", "no substitute for an image", "OSPREY",
+                  "closure_phase_chi2", "Closure phases by triangle"):
         assert words in text, words
     assert f'{fit["statistics"]["chi2"]:.6g}' in text
     assert text.count("<table>") >= 8

@@ -2,19 +2,18 @@
 
 The palette is the Okabe-Ito set of eight colours, distinguishable with the common forms of colour
 blindness (Okabe & Ito 2008, "Color Universal Design"; the hex values are common practice). Figures
-use the Agg backend, so nothing needs a display.
+are drawn on the Agg canvas without pyplot, so nothing needs a display and no global figure state
+is touched (importing this module changes no one's backend).
 """
 import io
 
 import matplotlib
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg", force=False)
-
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
-
-from ..errors import UvfitError  # noqa: E402
-from ..outputs import atomic_write  # noqa: E402
+from ..errors import UvfitError
+from ..outputs import atomic_write
 
 #: Okabe-Ito colours, in their usual order
 OKABE_ITO = {
@@ -59,16 +58,18 @@ RC = {
 }
 
 
-def new_figure(*args, **kwargs):
-    """``plt.subplots`` under the house style; the caller owns the Figure (close it when done)."""
-    with plt.rc_context(RC):
-        fig, axes = plt.subplots(*args, **kwargs)
+def new_figure(nrows=1, ncols=1, figsize=None, grid=True, **kwargs):
+    """(Figure, axes) like ``subplots``, under the house style, on an Agg canvas."""
+    with matplotlib.rc_context({**RC, "axes.grid": bool(grid)}):
+        fig = Figure(figsize=figsize)
+        FigureCanvasAgg(fig)
+        axes = fig.subplots(nrows, ncols, **kwargs)
     return fig, axes
 
 
 def style():
     """Context manager applying the house style while axes are drawn."""
-    return plt.rc_context(RC)
+    return matplotlib.rc_context(RC)
 
 
 # --------------------------------------------------------------------------- units
@@ -130,4 +131,5 @@ def save_png(fig, path, force=False, dpi=DPI):
 
 
 def close(fig):
-    plt.close(fig)
+    """Release a figure's drawing (figures made here are not registered with pyplot)."""
+    fig.clear()

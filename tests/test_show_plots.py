@@ -198,3 +198,40 @@ def test_png_is_reproducible_and_valid(noiseless, tmp_path):
     assert pixels.shape[0] > 400 and pixels.shape[1] > 400
     with pytest.raises(UvfitError, match="exists"):
         style.save_png(fig, tmp_path / "r.png")
+
+
+def test_sky_outlines_of_every_shape_family():
+    from uvfit.sky.model import SkyModel
+
+    model = SkyModel.build([
+        {"name": "blob", "shape": "elliptical_gaussian", "flux": 1.0, "east": 0.0, "north": 0.0,
+         "fwhm": 10.0, "axis_ratio": 0.5, "position_angle": 40.0},
+        {"name": "plate", "shape": "disk", "flux": 0.5, "east": 20.0, "north": 5.0, "diameter": 8.0},
+        {"name": "loop", "shape": "ring", "flux": 0.3, "east": -20.0, "north": 10.0, "diameter": 12.0},
+        {"name": "pair", "shape": "double", "member": "point", "flux": 0.4, "east": 5.0,
+         "north": -25.0, "flux_ratio": 1.0, "separation": 10.0, "position_angle": 90.0},
+    ], angular_unit="mas")
+    vset = show_sim.simulated_set()
+    view = fit_view(vset, {**show_sim.truth_fit_json(), "model_toml": model.to_toml(),
+                           "parameters": {}, "angular_unit": "mas"})
+    fig, d = sky_figure(view, npix=128)
+    style.close(fig)
+    got = {o["label"].split()[0]: o for o in d["outlines"]}
+    assert set(got) == {"blob", "plate", "loop", "pair.1", "pair.2"}
+    # FWHM ellipse: minor = axis ratio x major, at the model's position angle (the model file)
+    assert (got["blob"]["kind"], got["blob"]["major"], got["blob"]["minor"],
+            got["blob"]["pa_deg"]) == ("ellipse", 10.0, 5.0, 40.0)
+    assert (got["plate"]["kind"], got["plate"]["major"]) == ("circle", 8.0)
+    assert (got["loop"]["kind"], got["loop"]["major"]) == ("ring", 12.0)
+    # the second member of the double at separation 10 and PA 90 deg: 10 to the east (position
+    # angles north through east, REFERENCES.md "Conventions")
+    assert (got["pair.2"]["x"] - got["pair.1"]["x"], got["pair.2"]["y"] - got["pair.1"]["y"]) == \
+        pytest.approx((10.0, 0.0), abs=1e-9)
+    assert got["pair.1"]["kind"] == "point"
+    # the field holds every component, and the image every jansky of the model (the thin ring's
+    # flux put into the pixels under it): 1.0 + 0.5 + 0.3 + 0.4 Jy
+    x0, x1, y0, y1 = d["extent"]
+    ny, nx = d["image"].shape
+    assert d["image"].sum() * (x1 - x0) / nx * (y1 - y0) / ny == pytest.approx(2.2, rel=0.01)
+    for o in d["outlines"]:
+        assert x0 < o["x"] < x1 and y0 < o["y"] < y1

@@ -367,8 +367,9 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
                 ax.add_patch(Ellipse((x, y), width=major, height=minor, angle=90.0 - pa,
                                      fill=False, lw=1.8, color=colour,
                                      linestyle="--" if kind == "ring" else "-"))
-            ax.annotate(o.get("label", f"c{k}"), (x, y), xytext=(6, 6), textcoords="offset points",
-                        fontsize=9, color="black", bbox=halo)
+            # labels alternate above and below their centre, so neighbours do not overwrite
+            ax.annotate(o.get("label", f"c{k}"), (x, y), xytext=(6, 6 if k % 2 == 0 else -16),
+                        textcoords="offset points", fontsize=9, color="black", bbox=halo)
         if resolution and np.isfinite(resolution) and resolution > 0:
             # lower left on the sky = large x (east) and small y, since x increases to the left
             width = abs(x1 - x0)
@@ -377,7 +378,9 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
             cy = min(y0, y1) + 0.06 * abs(y1 - y0) + r
             ax.add_patch(Circle((cx, cy), r, fill=True, facecolor="white", alpha=0.5,
                                 edgecolor="white", lw=1.2, hatch="///"))
-            ax.annotate(f"λ/B_max = {resolution:.3g} {label}", (cx, cy + r),
+            small = 2 * r < 0.01 * width
+            ax.annotate(f"λ/B_max = {resolution:.3g} {label}" + (" (too small to draw)" if small
+                                                                  else ""), (cx, cy + r),
                         xytext=(0, 4), textcoords="offset points", ha="center", fontsize=8,
                         bbox=halo)
         ax.grid(False)

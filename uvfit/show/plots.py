@@ -380,8 +380,8 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
                                 edgecolor="white", lw=1.2, hatch="///"))
             small = 2 * r < 0.01 * width
             ax.annotate(f"λ/B_max = {resolution:.3g} {label}" + (" (too small to draw)" if small
-                                                                  else ""), (cx, cy + r),
-                        xytext=(0, 4), textcoords="offset points", ha="center", fontsize=8,
+                                                                  else ""), (cx + r, cy + r),
+                        xytext=(0, 4), textcoords="offset points", ha="left", fontsize=8,
                         bbox=halo)
         ax.grid(False)
         ax.set_xlim(max(x0, x1), min(x0, x1))  # east to the left

@@ -54,49 +54,6 @@ def field(outlines, resolution):
     return centre, width
 
 
-def _deposit(shape, p, l0, m0, flux, l_edges, m_edges):
-    """Flux per pixel of a shape whose brightness is singular (a thin ring), from its nodes."""
-    l, m, w = shape.sample_points(p)
-    img, _, _ = np.histogram2d(np.asarray(m) + m0, np.asarray(l) + l0, bins=(m_edges, l_edges),
-                               weights=flux * np.asarray(w))
-    return img
-
-
-def render(model, npix, width, frequency=None, centre=(0.0, 0.0)):
-    """(image Jy per pixel, l axis, m axis) on the grid of ``model.render``, component by component.
-
-    A shape whose brightness is singular (all its flux on a curve, e.g. a thin ring) says so with
-    ``singular(p)``; its flux goes into the pixels under its ``sample_points`` nodes. Every other
-    component is sampled with its ``brightness`` and scaled so that its pixels hold its flux (a
-    sharp edge sampled on a grid, or a brightness given per steradian, then still shows the right
-    total: the picture is for the eye, the numbers come from the visibilities).
-    """
-    step = float(width) / npix
-    axis = (np.arange(npix) - npix // 2) * step
-    l_axis, m_axis = axis + float(centre[0]), axis + float(centre[1])
-    rad = float(model.rad_per_unit)
-    ll, mm = np.meshgrid(l_axis * rad, m_axis * rad)
-    l_edges = (np.append(l_axis, l_axis[-1] + step) - step / 2) * rad
-    m_edges = (np.append(m_axis, m_axis[-1] + step) - step / 2) * rad
-    values = model.values()
-    img = np.zeros(ll.shape)
-    for c in model.components:
-        local = {ln: values[f"{c.name}.{ln}"] for ln in c.parameter_names()}
-        p = c.shape_values(local, rad)
-        flux = c.flux_at(frequency, local)
-        singular = getattr(c.shape, "singular", None)
-        if callable(singular) and singular(p) and hasattr(c.shape, "sample_points"):
-            img += _deposit(c.shape, p, float(local["east"]) * rad, float(local["north"]) * rad,
-                            flux, l_edges, m_edges)
-            continue
-        part = np.real(c.brightness(ll, mm, local, rad, frequency))
-        total = float(part.sum())
-        if total != 0.0 and np.isfinite(total):
-            part = part * (flux / total)
-        img += part
-    return img, l_axis, m_axis
-
-
 def sky_figure(view, npix=256, title=None):
     """The sky plot of a FitView's model: (fig, numbers) as :func:`uvfit.show.plots.sky_plot`."""
     model, vset = view.model, view.vset
@@ -105,7 +62,7 @@ def sky_figure(view, npix=256, title=None):
     resolution = plots.nominal_resolution(vset) / float(model.rad_per_unit)
     outlines = component_outlines(model, frequency)
     centre, width = field(outlines, resolution)
-    image, l_axis, m_axis = render(model, npix, width, frequency=frequency, centre=centre)
+    image, l_axis, m_axis = model.render(npix, width, frequency=frequency, centre=centre)
     step = width / npix
     extent = (l_axis[0] - step / 2, l_axis[-1] + step / 2, m_axis[0] - step / 2, m_axis[-1] + step / 2)
     # compact members put their flux in a pixel or two and would saturate the scale: set the scale

@@ -43,7 +43,7 @@ def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, *
     for note in notes:
         click.echo(note, err=True)
     if kind == "radial":
-        fig, numbers = plots.radial_plot(view.vset, view.model_vis)
+        fig, numbers = plots.radial_plot(view.vset, view.model_vis, note=view.phase_note)
     elif kind == "uv":
         fig, numbers = plots.uv_coverage_plot(view.vset, colour_by=colour_by)
     elif kind == "closure":

@@ -184,6 +184,14 @@ class FitView:
     def mode(self):
         return self.fit.get("mode") or "unknown"
 
+    @property
+    def phase_note(self):
+        """A sentence for the radial figure when the fit did not use the visibility phases."""
+        if self.mode in ("closure", "closure_phase", "closure_amplitude", "amplitude", "hybrid"):
+            return (f"Fitted in {self.mode} mode: the visibility phases were not fitted (absolute "
+                    "position free, station phases uncalibrated), so phase residuals are expected.")
+        return None
+
 
 def fit_view(vset, fit, selection=None):
     """Build a :class:`FitView` from the selected data and a fit output dict."""

@@ -328,11 +328,7 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
     """[(anchor, caption, Figure)] for the report; a figure that cannot be made becomes a note."""
     out = []
     vset, mvis = view.vset, view.model_vis
-    mode_note = None
-    if view.mode in ("closure", "closure_phase", "closure_amplitude", "amplitude"):
-        mode_note = (f"Fitted in {view.mode} mode: the absolute visibility phases were not fitted, "
-                     "so phase residuals here are expected.")
-    fig, _ = plots.radial_plot(vset, mvis, note=mode_note)
+    fig, _ = plots.radial_plot(vset, mvis, note=view.phase_note)
     out.append(("radial", "Visibility amplitude and phase against uv distance: data with 1σ errors "
                 "(blue), the model at the data's own (u, v) (vermillion); normalised residuals "
                 "below.", fig))

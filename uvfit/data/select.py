@@ -124,7 +124,7 @@ def average_time(vset, seconds, field_radius=None):
     if good.n == 0:
         raise DataError("nothing to average: every row is flagged")
     t_s = (good.time - good.time.min()) * _SECONDS_PER_DAY
-    bins = np.floor(t_s / seconds + 1e-9).astype(np.int64)
+    bins = np.floor((t_s + 1e-5) / seconds).astype(np.int64)   # 10 us: MJD rounding
     keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel])
     inv, n_groups, weight, wsum = _weighted_groups(good, keys)
     out, count = _reduce(good, inv, n_groups, weight, wsum, good.channel)

@@ -125,3 +125,55 @@ def test_uv_geometry_is_station2_minus_station1(data_dir):
     # effects than this textbook projection); the opposite sign would be off by 200%
     q = np.hypot(u, v)
     assert np.all(np.hypot(vs.u[pick] - u, vs.v[pick] - v) < 1e-4 * q)
+
+
+def test_orientation_guard_closure_phases_put_the_jet_south_west(data_dir):
+    """A light guard of the reader's one sign mapping (the full proof belongs to the closure layer).
+
+    Closure phases are blind to station phase errors but change sign if the sky is point-reflected.
+    Two circular Gaussians, visibilities from REFERENCES.md (Gaussian closed form and the shift
+    theorem with the kernel exp[-2 pi i (u l + v m)]), fitted to the closure phases of triangles at
+    common times: the fainter component must lie south-west of the brighter, position angle between
+    180 and 270 deg, 25-35 microarcsec away (Kim et al. 2020, A&A 640, A69; REFERENCES.md).
+    """
+    import itertools
+    from scipy.optimize import least_squares
+
+    vs = uvfit.read(_paths(data_dir, "hi")[0]).good()
+    key = {}
+    for i, (t, a, b) in enumerate(zip(vs.time, vs.station1, vs.station2)):
+        key[(t, a, b)] = (i, 1)
+        key[(t, b, a)] = (i, -1)
+    tri = []
+    times = np.unique(vs.time)
+    for t in times[::3]:
+        here = sorted(set(vs.station1[vs.time == t]) | set(vs.station2[vs.time == t]) - {"AP", "SM"})
+        for a, b, c in itertools.combinations(here, 3):     # AP and SM: co-sited twins of AA, JC
+            if (t, a, b) in key and (t, b, c) in key and (t, c, a) in key:
+                tri.append([key[(t, a, b)], key[(t, b, c)], key[(t, c, a)]])
+    tri = np.array(tri)
+    idx, sgn = tri[..., 0], tri[..., 1]
+    u, v = vs.u[idx] * sgn, vs.v[idx] * sgn                  # V(-u,-v) = conj V(u,v)
+    vis = np.where(sgn > 0, vs.vis[idx], np.conj(vs.vis[idx]))
+    cphase = np.angle(vis.prod(axis=1))
+    err = np.hypot(np.sqrt(((vs.sigma[idx] / np.abs(vis)) ** 2).sum(axis=1)), 0.02)
+    uas = np.radians(1.0 / 3.6e9)
+    q = np.hypot(u, v)
+
+    def model(p):
+        f2, x, y, s1, s2 = p
+        g1 = np.exp(-(np.pi * s1 * uas * q) ** 2 / (4 * np.log(2)))
+        g2 = np.exp(-(np.pi * s2 * uas * q) ** 2 / (4 * np.log(2)))
+        return g1 + f2 * g2 * np.exp(-2j * np.pi * (u * x + v * y) * uas)
+
+    def resid(p):
+        return np.angle(np.exp(1j * (cphase - np.angle(model(p).prod(axis=1))))) / err
+
+    fits_ = [least_squares(resid, [0.5, x0, y0, 20.0, 20.0], bounds=([0, -80, -80, 0, 0], [1, 80, 80, 80, 80]))
+             for x0, y0 in ((20.0, 15.0), (-20.0, -15.0), (20.0, -15.0), (-20.0, 15.0))]
+    best = min(fits_, key=lambda r: r.cost)
+    f2, x, y = best.x[:3]
+    pa = np.degrees(np.arctan2(x, y)) % 360.0
+    assert f2 < 1.0
+    assert 180.0 < pa < 270.0, f"fainter component at PA {pa:.0f} deg: the sky is point-reflected"
+    assert 25.0 < np.hypot(x, y) < 35.0

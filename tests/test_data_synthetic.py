@@ -164,3 +164,32 @@ def test_no_uu_parameter_is_a_clear_error(tmp_path):
     make_file(path, drop_uu=True)
     with pytest.raises(DataError, match="UU"):
         uvfit.read(path)
+
+
+def test_multi_source_file_needs_a_source_choice(tmp_path):
+    n = 4
+    data = np.zeros((n, 1, 1, 1, 1, 1, 3))
+    data[..., 0] = np.arange(n)[:, None, None, None, None, None]
+    data[..., 2] = 1.0
+    g = fits.GroupData(data, parnames=["UU", "VV", "WW", "BASELINE", "DATE", "SOURCE"],
+                       pardata=[np.full(n, 1e-6), np.full(n, 1e-6), np.zeros(n), np.full(n, 258.0),
+                                np.full(n, 2458000.6), np.array([1, 2, 1, 2.0])], bitpix=-64)
+    hdu = fits.GroupsHDU(g)
+    for k, ct in enumerate(["COMPLEX", "STOKES", "FREQ", "IF", "RA", "DEC"], start=2):
+        hdu.header[f"CTYPE{k}"] = ct
+        hdu.header[f"CRVAL{k}"] = 1.0e9 if ct == "FREQ" else 1.0
+    su = fits.BinTableHDU.from_columns([
+        fits.Column(name="ID. NO.", format="1J", array=np.array([1, 2])),
+        fits.Column(name="SOURCE", format="16A", array=np.array(["QSO-A", "QSO-B"])),
+        fits.Column(name="RAEPO", format="1D", array=np.array([10.0, 20.0])),
+        fits.Column(name="DECEPO", format="1D", array=np.array([-1.0, -2.0]))])
+    su.header["EXTNAME"] = "AIPS SU"
+    path = tmp_path / "multi.uvfits"
+    fits.HDUList([hdu, su]).writeto(path)
+    with pytest.raises(DataError, match="QSO-A, QSO-B"):
+        uvfit.read(path)
+    vs = uvfit.read(path, source="QSO-B")
+    assert vs.n == 2 and vs.source == "QSO-B" and (vs.ra_deg, vs.dec_deg) == (20.0, -2.0)
+    assert np.allclose(vs.vis.real, [1, 3])
+    with pytest.raises(DataError, match="no source 'QSO-C'"):
+        uvfit.read(path, source="QSO-C")

@@ -142,9 +142,11 @@ def _scan_structure(path):
             found_end = False
             for block in range(_MAX_HEADER_BLOCKS):
                 chunk = handle.read(_BLOCK)
+                if block == 0 and units and not chunk.startswith(b"XTENSION="):
+                    return units             # padding or stray bytes after the last unit
                 if len(chunk) < _BLOCK:
-                    if units and not chunk.strip(b"\0 "):
-                        return units         # padding after the last unit
+                    if units:
+                        return units         # an incomplete trailing unit: astropy skips it too
                     _fail(path, "is truncated or damaged inside a FITS header (the header ends early)",
                           "copy or download the file again")
                 text = chunk.decode("ascii", errors="replace")

@@ -6,7 +6,6 @@ visibility in the file's group order. The CSV lists the stored (u, v) of the fil
 phase; the project's convention negates (u, v) (the one mapping, in
 uvfit.data.uvfits._to_sky_convention), so the comparison goes through that function.
 """
-import os
 from pathlib import Path
 
 import numpy as np

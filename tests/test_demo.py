@@ -203,3 +203,11 @@ def test_blas_helper_leaves_results_unchanged():
     with single_threaded():
         one = np.linalg.svd(a, compute_uv=False)
     np.testing.assert_allclose(one, ref, rtol=1e-12)
+
+
+def test_headline_keys_documented_in_readme(demo):
+    _, _, load = demo
+    with open(os.path.join(ROOT, "README.md"), encoding="utf-8") as handle:
+        readme = handle.read()
+    missing = [k for k in load("headline.json") if f"`{k}`" not in readme]
+    assert not missing, missing

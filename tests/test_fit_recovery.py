@@ -237,6 +237,7 @@ def test_position_angle_error_near_the_wrap():
         errs.append(d["a-b.position_angle"]["error"])
         assert d["a-b.position_angle"]["error"] == pytest.approx(expect, rel=0.05)
         assert 0 <= d["a-b.position_angle"]["value"] < 360
+    assert errs[0] == pytest.approx(errs[1], rel=0.1)
 
 
 @pytest.mark.parametrize("mode", ["complex", "amplitude", "closure_phase", "closure_amplitude",

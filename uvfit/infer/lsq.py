@@ -325,11 +325,12 @@ def rebuild_statistic(statistic, model, vset=None, systematic=None):
 def fix_degeneracies(statistic):
     """Fix, in the statistic's model, every parameter the statistic says it cannot constrain.
 
-    Returns (statistic rebuilt on the changed model, [names fixed], [notices]).
+    Returns (statistic rebuilt on the changed model, [names fixed], [notices]); the notices start
+    with the statistic's own ``notices`` / ``notes`` (lists of str), if it has them.
     """
     model = statistic.model
     degs = list(statistic.degeneracies() or [])
-    notices = list(getattr(statistic, "notices", []) or [])
+    notices = list(getattr(statistic, "notices", []) or []) + list(getattr(statistic, "notes", []) or [])
     fixed = []
     for name, reason in degs:
         p = model.parameters[name]

@@ -60,13 +60,15 @@ class Shape:
     def parameter_bounds(self, name):
         """(min, max) a parameter gets when the model file gives none.
 
-        A shape may list them in a class attribute ``bounds`` ({name: (min, max)}); otherwise sizes
-        (kind "length") are >= 0 and everything else is unbounded."""
+        A shape may list them in a class attribute ``bounds`` ({name: (min, max)}); otherwise the
+        rule of ``uvfit.sky.parameters.default_bounds`` applies (sizes >= 0, an axis ratio in
+        [0, 1], a modulation amplitude in [0, 0.5], anything else unbounded)."""
         bounds = getattr(self, "bounds", None) or {}
         if name in bounds:
             lo, hi = bounds[name]
             return float(lo), float(hi)
-        return (0.0, np.inf) if self.parameter_kind(name) == "length" else (-np.inf, np.inf)
+        from .parameters import default_bounds
+        return default_bounds(name, self.parameter_kind(name))
 
     # image domain ---------------------------------------------------------------------------------
     def singular(self, p):

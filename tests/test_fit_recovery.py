@@ -237,6 +237,7 @@ def test_position_angle_error_near_the_wrap():
         errs.append(d["a-b.position_angle"]["error"])
         assert d["a-b.position_angle"]["error"] == pytest.approx(expect, rel=0.05)
         assert 0 <= d["a-b.position_angle"]["value"] < 360
+    assert errs[0] == pytest.approx(errs[1], rel=0.1)
 
 
 @pytest.mark.parametrize("mode", ["complex", "amplitude", "closure_phase", "closure_amplitude",
@@ -284,3 +285,21 @@ def test_double_component_members_and_rescaled_errors():
     factor = math.sqrt(scaled.chi2 / scaled.dof)
     np.testing.assert_allclose(scaled.errors, res.errors * factor, rtol=1e-9)
     assert scaled.rescale_errors and scaled.error_scale == pytest.approx(factor)
+
+
+def test_amplitude_residuals_unbiased_at_every_snr():
+    # for the true model the whitened residuals must have mean 0 and variance 1 in both the
+    # debiased (high-SNR) and the Rice-mean (low-SNR) classes; reference: Monte Carlo draws of
+    # complex Gaussian noise (numpy), no model of the bias assumed
+    truth = double(flux1=0.1, flux2=0.04)
+    r_high, r_low = [], []
+    for seed in range(100):
+        vs = simulate(truth, n=400, sigma=0.02, seed=seed)
+        st = make_statistic("amplitude", vs, truth.copy())
+        r = st.residuals(truth.get_free())
+        r_high.append(r[st.high])
+        r_low.append(r[~st.high])
+    for r in (np.concatenate(r_high), np.concatenate(r_low)):
+        assert r.size > 5000
+        assert abs(r.mean()) < 5 / np.sqrt(r.size) + 0.01
+        assert abs(np.mean(r ** 2) - 1) < 0.05

@@ -248,6 +248,11 @@ def _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits):
         if full not in model.parameters or model.root(full) not in free:
             continue
         root = model.root(full)
+        lengths = [pn for pn in m["parameters"]
+                   if _full_name(model, m, pn) in model.parameters
+                   and model.parameters[_full_name(model, m, pn)].kind == "length"]
+        if lengths != [size]:
+            continue  # several sizes (a shell's two radii, a blurred ring): no single "point" limit
         extra = {}
         for other in ("axis_ratio", "position_angle"):
             if other in m["parameters"]:

@@ -142,16 +142,6 @@ def _kind(model, name):
     return "length" if local in ("east", "north", "fwhm", "diameter", "radius", "separation") else "ratio"
 
 
-def _unit_text(model, name):
-    p = model.parameters[name]
-    unit = getattr(p, "unit", None)
-    if unit is not None:
-        text = str(unit)
-        return "" if text in ("", "dimensionless") else text
-    return {"flux": "Jy", "length": str(getattr(model, "angular_unit", "mas")), "angle": "deg"}.get(
-        _kind(model, name), "")
-
-
 def random_starts(model, statistic, n, rng):
     """``n`` start vectors: uniform inside finite bounds; otherwise a scatter around the start
     value scaled to the parameter's kind (the array's resolution for a length, 180 deg for an
@@ -335,11 +325,12 @@ def rebuild_statistic(statistic, model, vset=None, systematic=None):
 def fix_degeneracies(statistic):
     """Fix, in the statistic's model, every parameter the statistic says it cannot constrain.
 
-    Returns (statistic rebuilt on the changed model, [names fixed], [notices]).
+    Returns (statistic rebuilt on the changed model, [names fixed], [notices]); the notices start
+    with the statistic's own ``notices`` / ``notes`` (lists of str), if it has them.
     """
     model = statistic.model
     degs = list(statistic.degeneracies() or [])
-    notices = list(getattr(statistic, "notices", []) or [])
+    notices = list(getattr(statistic, "notices", []) or []) + list(getattr(statistic, "notes", []) or [])
     fixed = []
     for name, reason in degs:
         p = model.parameters[name]

@@ -14,14 +14,17 @@ Amplitude mode
         p(A | nu, sigma) = A / sigma^2 exp[-(A^2 + nu^2) / (2 sigma^2)] I0(A nu / sigma^2).
     * ``log_likelihood`` is this exact Rice likelihood (evaluated stably with scipy.special.i0e).
     * The least-squares objective (``residuals``, ``jacobian``, ``chi2``) is a sum of squares of
-      well-defined smooth functions of the parameters:
-        - rows with A / sigma_eff >= ``debias_snr`` (default 3): datum = the debiased amplitude
+      smooth functions of the parameters. Each row is classed ONCE, when the statistic is built,
+      by the SNR of the MODEL amplitude at its current (start) values, nu_ref / sigma: a class
+      taken from the noisy data would select rows by their noise and bias the fit.
+        - rows with nu_ref / sigma >= ``debias_snr`` (default 3): datum = the debiased amplitude
           sqrt(A^2 - sigma^2) (common practice; its mean is nu to first order in sigma/nu),
-          prediction = |V_model|;
-        - rows below that SNR: datum = A itself, prediction = the Rice mean
-          E[A] = sigma sqrt(pi/2) L_1/2(-nu^2 / (2 sigma^2)), which is exact at any SNR, so faint
-          rows neither bias the fit nor are thrown away.
-      Residual = (datum - prediction) / sigma_eff in both cases.
+          prediction = |V_model|, weight 1 / sigma^2;
+        - fainter rows: datum = A itself, prediction = the Rice mean
+          E[A] = sigma sqrt(pi/2) L_1/2(-nu^2 / (2 sigma^2)), exact at any SNR, so faint rows
+          neither bias the fit nor are thrown away; weight 1 / Var(A | nu_ref), the Rice variance
+          2 sigma^2 + nu_ref^2 - E[A]^2 (fixed during the fit).
+      Residual = (datum - prediction) / weight^-1/2.
     Amplitudes carry no information on absolute position, and a model and its point reflection
     through the origin have the same amplitudes (a 180-degree ambiguity).
 """
@@ -134,20 +137,25 @@ class AmplitudeStatistic(Statistic):
         self.amplitude = amp
         self.sigma = effective_sigma(rows, self.systematic)
         self.noise_sigma = self.sigma.copy()  # per real/imaginary part, for the Rice law
-        self.high = amp >= self.debias_snr * self.sigma
+        # class and weight every row by the model's amplitude at its current values (not by the
+        # data, which would select rows by their noise)
+        try:
+            nu_ref = np.abs(_model_vis(model, rows, None))
+        except Exception:  # a model that cannot be evaluated yet: treat every row as faint
+            nu_ref = np.zeros(rows.n)
+        if not np.all(np.isfinite(nu_ref)):
+            nu_ref = np.where(np.isfinite(nu_ref), nu_ref, 0.0)
+        self.reference_amplitude = nu_ref
+        self.high = nu_ref >= self.debias_snr * self.sigma
         debiased = np.sqrt(np.maximum(amp ** 2 - self.sigma ** 2, 0.0))
         self.data = np.where(self.high, debiased, amp)
-        # faint rows: the scatter of a Rice amplitude is below sigma (sqrt(2 - pi/2) sigma at zero
-        # signal); weight them by the Rice standard deviation at a data-based estimate of the
-        # true amplitude (fixed during the fit, so the objective stays a plain sum of squares)
         low = ~self.high
         if np.any(low):
             s = self.sigma[low]
-            nu_hat = np.sqrt(np.maximum(amp[low] ** 2 - 2.0 * s ** 2, 0.0))
-            mean, _ = self._rice_mean(nu_hat, s)
-            var = 2.0 * s ** 2 + nu_hat ** 2 - mean ** 2
+            mean, _ = self._rice_mean(nu_ref[low], s)
+            var = 2.0 * s ** 2 + nu_ref[low] ** 2 - mean ** 2
             self.sigma = self.sigma.copy()
-            self.sigma[low] = np.sqrt(np.maximum(var, (2.0 - np.pi / 2.0) * s ** 2))
+            self.sigma[low] = np.sqrt(np.maximum(var, 1e-6 * s ** 2))
             self.rice_sigma = s
         else:
             self.rice_sigma = self.sigma[low]

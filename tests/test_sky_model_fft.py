@@ -77,3 +77,57 @@ def test_rendered_ellipse_points_along_its_position_angle():
     # FWHM = sqrt(8 ln 2) sigma for a Gaussian (definition)
     assert math.sqrt(8 * math.log(2) * evals[1]) == pytest.approx(0.15, rel=1e-3)
     assert math.sqrt(8 * math.log(2) * evals[0]) == pytest.approx(0.15 * 0.35, rel=1e-3)
+
+
+SHAPE_CASES = [
+    ("gaussian", {}, {"fwhm": 0.08 * MAS}),
+    ("elliptical_gaussian", {}, {"fwhm": 0.1 * MAS, "axis_ratio": 0.4, "position_angle": 0.6}),
+    ("double", {"member": "elliptical_gaussian"},
+     {"flux_ratio": 0.5, "separation": 0.2 * MAS, "position_angle": 2.0, "fwhm_1": 0.05 * MAS,
+      "axis_ratio_1": 0.6, "position_angle_1": 0.3, "fwhm_2": 0.08 * MAS, "axis_ratio_2": 0.9,
+      "position_angle_2": -1.0}),
+]
+
+
+@pytest.mark.parametrize("key,settings,p", SHAPE_CASES)
+def test_brightness_integrates_to_one(key, settings, p):
+    # scipy.integrate.dblquad of the brightness per steradian (outside reference)
+    from scipy import integrate
+    from uvfit.sky.shapes import shape_class
+    shape = shape_class(key)(**settings)
+    assert not shape.singular(p)
+    half = 0.6 * MAS
+    total, _ = integrate.dblquad(lambda m, l: float(shape.brightness(np.array(l), np.array(m), p)),
+                                 -half, half, -half, half, epsabs=1e-10)
+    assert total == pytest.approx(1.0, abs=1e-6)
+
+
+@pytest.mark.parametrize("key,settings,p", SHAPE_CASES + [("point", {}, {}),
+                                                          ("double", {}, {"flux_ratio": 0.3, "separation": 0.1 * MAS,
+                                                                          "position_angle": 4.0})])
+def test_sample_points_reproduce_the_visibility(key, settings, p):
+    # the quadrature nodes, summed with the Fourier kernel, against the closed form (TMS 2017 ch. 3)
+    from uvfit.sky.shapes import shape_class
+    shape = shape_class(key)(**settings)
+    lp, mp, w = shape.sample_points(p)
+    assert np.sum(w) == pytest.approx(1.0, abs=1e-12)
+    rng = np.random.default_rng(2)
+    u, v = rng.normal(0, 1.0e9, (2, 30))
+    direct = np.exp(-2j * np.pi * (u[:, None] * lp[None, :] + v[:, None] * mp[None, :])) @ w
+    # (the Gaussians' nodes stop at 6 sigma: 1.5e-8 of the flux is left out)
+    np.testing.assert_allclose(direct, shape.structure(u, v, p), atol=1e-7)
+
+
+def test_point_and_narrow_components_keep_their_flux_on_a_grid():
+    # a point goes into its nearest pixel; a Gaussian narrower than a pixel keeps its flux
+    m = SkyModel.build([{"name": "p", "shape": "point", "flux": 2.0, "east": 0.0101, "north": -0.02},
+                        {"name": "g", "shape": "elliptical_gaussian", "flux": 0.5, "east": 0.3, "fwhm": 0.05,
+                         "axis_ratio": 0.01, "position_angle": 45.0}])
+    img, l_axis, m_axis = m.render(64, 1.0)
+    assert img.sum() == pytest.approx(2.5, abs=1e-9)
+    i, j = np.unravel_index(np.argmax(img), img.shape)
+    assert img[i, j] == pytest.approx(2.0)
+    assert abs(l_axis[j] - 0.0101) <= 0.5 / 64 and abs(m_axis[i] + 0.02) <= 0.5 / 64
+    # off the grid: nothing drawn
+    far = SkyModel.build([{"name": "p", "shape": "point", "flux": 1.0, "east": 5.0}])
+    assert far.render(32, 1.0)[0].sum() == 0.0

@@ -254,3 +254,20 @@ def test_free_parameters_bounds_and_prior():
     c.fix("core.axis_ratio", reason="not constrained")
     assert "core.axis_ratio" not in c.free_names and "core.axis_ratio" in m.free_names
     assert c.n_free == 3 and m.n_free == 4
+
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+
+@settings(max_examples=25, deadline=None)
+@given(fwhm=st.floats(0.005, 0.3), ratio=st.floats(0.05, 1.0), pa=st.floats(-360.0, 360.0),
+       fr=st.floats(0.0, 5.0), sep=st.floats(0.0, 0.5), spa=st.floats(-180.0, 540.0),
+       east=st.floats(-1.0, 1.0), north=st.floats(-1.0, 1.0))
+def test_jacobian_at_random_parameters(fwhm, ratio, pa, fr, sep, spa, east, north):
+    # central finite differences at arbitrary parameter values (definition of the derivative)
+    m = SkyModel.build([
+        {"name": "e", "shape": "elliptical_gaussian", "flux": 0.7, "east": east, "north": north,
+         "fwhm": fwhm, "axis_ratio": ratio, "position_angle": pa},
+        {"name": "d", "shape": "double", "member": "gaussian", "flux": 0.4, "east": -north, "north": east,
+         "flux_ratio": fr, "separation": sep, "position_angle": spa, "fwhm_1": fwhm, "fwhm_2": 0.5 * fwhm}])
+    fd_check(m, u=U[:20], v=V[:20], freq=None, tol=1e-5)

@@ -12,6 +12,7 @@ every derivative it returns is per model-file unit.
 import numpy as np
 
 from .parameters import COMPONENT_KINDS
+from .shape import render_fractions
 
 DEG = np.pi / 180.0
 
@@ -48,6 +49,14 @@ class Component:
             return COMPONENT_KINDS[local]
         return self.shape.parameter_kind(local)
 
+    def default_bounds(self, local):
+        """(min, max) of a parameter the model file gives no bounds for: flux, position and
+        spectral index unbounded; the shape's own parameters as the shape says
+        (``Shape.parameter_bounds``: sizes >= 0, an axis ratio in [0, 1], ...)."""
+        if local in COMPONENT_KINDS:
+            return -np.inf, np.inf
+        return self.shape.parameter_bounds(local)
+
     def _factor(self, kind, rad_per_unit):
         return {"length": rad_per_unit, "angle": DEG}.get(kind, 1.0)
 
@@ -65,7 +74,8 @@ class Component:
 
     def flux_at(self, frequency, values):
         """Flux density (Jy) at ``frequency`` (Hz; None: the reference frequency)."""
-        return float(values["flux"]) * self.spectral_factor(frequency, values)[0]
+        out = float(values["flux"]) * self.spectral_factor(frequency, values)[0]
+        return float(out) if np.ndim(out) == 0 else out
 
     def evaluate(self, u, v, frequency, values, rad_per_unit, gradient=False):
         """Visibility (complex Jy) and, with ``gradient``, {local name: dV / d parameter}.
@@ -112,7 +122,7 @@ class Component:
         l0 = float(values["east"]) * rad_per_unit
         m0 = float(values["north"]) * rad_per_unit
         p = self.shape_values(values, rad_per_unit)
-        frac = self.shape.brightness(np.asarray(l, dtype=float) - l0, np.asarray(m, dtype=float) - m0, p)
+        frac = render_fractions(self.shape, np.asarray(l, dtype=float) - l0, np.asarray(m, dtype=float) - m0, p)
         return self.flux_at(frequency, values) * np.real(frac)
 
     def same_as(self, other):

@@ -64,6 +64,11 @@ class SkyModel:
         dup = sorted({n for n in names if names.count(n) > 1})
         if dup:
             raise ModelError(f"duplicate component name(s) {dup}", "give every component its own name")
+        for c in self.components:
+            missing = [ln for ln in c.parameter_names() if f"{c.name}.{ln}" not in self.parameters]
+            if missing:
+                raise ModelError(f"component '{c.name}' has no parameter(s) {missing}",
+                                 "give every parameter of the shape a value")
         for full, p in self.parameters.items():
             if p.tie is None:
                 continue
@@ -297,7 +302,10 @@ class SkyModel:
         img = np.zeros(l.shape)
         for c in self.components:
             local = {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}
-            img += c.brightness(l, m, local, self.rad_per_unit, frequency)
+            try:
+                img += c.brightness(l, m, local, self.rad_per_unit, frequency)
+            except NotImplementedError:
+                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet")
         return img
 
     def render(self, npix, fov, frequency=None, theta=None, centre=(0.0, 0.0)):
@@ -316,6 +324,24 @@ class SkyModel:
         return self.image(ll, mm, frequency=frequency, theta=theta), l_axis, m_axis
 
     # -- files ----------------------------------------------------------------------------------
+    def to_dict(self):
+        """A plain description for JSON outputs (``uvfit.outputs.to_json`` turns infinities into null)."""
+        comps = []
+        for c in self.components:
+            params = {}
+            for ln in c.parameter_names():
+                p = self.parameters[f"{c.name}.{ln}"]
+                params[ln] = {"value": p.value, "min": p.min, "max": p.max, "fixed": bool(p.fixed),
+                              "tie": p.tie, "free": p.free, "kind": p.kind,
+                              "unit": p.unit.to_string() if p.unit is not None else "",
+                              "prior": None if p.prior is None else {p.prior.key: list(p.prior.args())}}
+                if p.note:
+                    params[ln]["note"] = p.note
+            comps.append({"name": c.name, "shape": c.key, "settings": dict(c.shape.config),
+                          "reference_frequency_hz": c.reference_frequency, "parameters": params})
+        return {"angular_unit": self.angular_unit_text, "description": self.description,
+                "free_names": self.free_names, "components": comps}
+
     def to_toml(self):
         from .modelfile import model_to_toml
         return model_to_toml(self)

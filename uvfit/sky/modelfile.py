@@ -20,10 +20,10 @@ import tomllib
 
 import astropy.units as un
 
-from ..errors import ModelError
+from ..errors import ModelError, UvfitError
 from .component import Component
-from .parameters import (PRIORS, LogUniform, Parameter, ParameterSet, Uniform, _toml_float,
-                         default_bounds, kind_unit)
+from .parameters import PRIORS, LogUniform, Parameter, Uniform, _toml_float, kind_unit
+from .parameters import ParameterSet
 from .shapes import SHAPES, shape_class
 
 _TOP_KEYS = ("angular_unit", "description", "component")
@@ -181,9 +181,11 @@ def _component(table, i, loc, unit, names):
             settings[s] = _setting(table[s], s, cls, err)
     try:
         shape = cls(**settings)
-    except (ValueError, TypeError) as exc:
-        bad = next((s for s in settings if s in str(exc)), None)
-        raise err(str(exc), key=bad or (setting_names[0] if setting_names else "shape"))
+    except (ValueError, TypeError, UvfitError) as exc:
+        text = exc.message if isinstance(exc, UvfitError) else str(exc)
+        hint = exc.hint if isinstance(exc, UvfitError) else None
+        bad = next((s for s in settings if s in text), None)
+        raise err(text, hint, key=bad or (setting_names[0] if setting_names else "shape"))
 
     ref = None
     if "spectral_index" in table:
@@ -207,7 +209,8 @@ def _component(table, i, loc, unit, names):
     params = {}
     for local in comp.parameter_names():
         kind = comp.parameter_kind(local)
-        params[f"{name}.{local}"] = _parameter(table.get(local), name, local, kind, unit, err)
+        params[f"{name}.{local}"] = _parameter(table.get(local), name, local, kind, unit, err,
+                                               comp.default_bounds(local))
     return comp, params
 
 
@@ -265,9 +268,9 @@ def _default(local):
     return None
 
 
-def _parameter(spec, cname, local, kind, unit, err):
+def _parameter(spec, cname, local, kind, unit, err, bounds):
     full = f"{cname}.{local}"
-    dmin, dmax = default_bounds(local, kind)
+    dmin, dmax = bounds
     p = Parameter(name=full, value=math.nan, min=dmin, max=dmax, unit=kind_unit(kind, unit), kind=kind)
     if spec is None:
         d = _default(local)
@@ -305,6 +308,9 @@ def _parameter(spec, cname, local, kind, unit, err):
         elif p.tie is None:
             raise err(f"'{local}' has no value", f"write {local} = {{ value = ..., ... }}", key=local)
         if "prior" in spec:
+            if p.tie is not None:
+                raise err(f"'{local}' is tied, so it takes the prior of the parameter it is tied to",
+                          "remove 'prior' here, or give it to the parameter it is tied to", key=local)
             p.prior = _prior(spec["prior"], p, local, err)
     else:
         raise err(f"'{local}' must be a number or a table like {{ value = 1.0, min = 0.0 }}, got {spec!r}",
@@ -388,9 +394,9 @@ def _toml_value(x):
     return json.dumps(str(x))
 
 
-def _parameter_text(p):
+def _parameter_text(p, bounds):
     local = p.local
-    dmin, dmax = default_bounds(local, p.kind)
+    dmin, dmax = bounds
     if p.free and p.prior is None and p.min == dmin and p.max == dmax:
         text = f"{local} = {_toml_float(p.value)}"
     else:
@@ -425,5 +431,5 @@ def model_to_toml(model):
         if comp.reference_frequency is not None:
             out.append(f"reference_frequency = {_toml_float(comp.reference_frequency)}  # Hz")
         for local in comp.parameter_names():
-            out.append(_parameter_text(model.parameters[f"{comp.name}.{local}"]))
+            out.append(_parameter_text(model.parameters[f"{comp.name}.{local}"], comp.default_bounds(local)))
     return "\n".join(out) + "\n"

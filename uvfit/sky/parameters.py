@@ -8,7 +8,7 @@ parameter's column).
 """
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import astropy.units as un
@@ -18,7 +18,8 @@ COMPONENT_KINDS = {"flux": "flux", "east": "length", "north": "length", "spectra
 
 
 def default_bounds(local_name, kind):
-    """(min, max) a parameter gets when the model file gives none.
+    """(min, max) by name and kind alone (the model layer asks ``Component.default_bounds``,
+    which asks the shape; this is the same rule for the shapes of this package).
 
     Positions, fluxes, angles and spectral indices are unbounded (a negative component flux can be
     legitimate in a fit); sizes (every other length, including a separation) are >= 0; an axis ratio

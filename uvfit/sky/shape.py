@@ -57,43 +57,105 @@ class Shape:
         """(value, {name: d value / d parameter}) at (u, v), derivatives per radian."""
         raise NotImplementedError
 
+    def parameter_bounds(self, name):
+        """(min, max) a parameter gets when the model file gives none.
+
+        A shape may list them in a class attribute ``bounds`` ({name: (min, max)}); otherwise the
+        rule of ``uvfit.sky.parameters.default_bounds`` applies (sizes >= 0, an axis ratio in
+        [0, 1], a modulation amplitude in [0, 0.5], anything else unbounded)."""
+        bounds = getattr(self, "bounds", None) or {}
+        if name in bounds:
+            lo, hi = bounds[name]
+            return float(lo), float(hi)
+        from .parameters import default_bounds
+        return default_bounds(name, self.parameter_kind(name))
+
+    # image domain ---------------------------------------------------------------------------------
+    def singular(self, p):
+        """True when the flux sits on points or curves (no finite brightness to sample)."""
+        return False
+
     def brightness(self, l, m, p):
-        """Fraction of the (unit) flux in each pixel of a regular grid, centred on the shape.
+        """Brightness per steradian of the unit-flux shape at offsets (l east, m north; radians)
+        from its centre; it integrates to 1. Only for ``singular(p)`` False (else ValueError)."""
+        raise NotImplementedError(f"shape '{self.key}' has no brightness function")
 
-        ``l`` (east) and ``m`` (north) are 2-D arrays of pixel-centre offsets from the shape's
-        centre, in radians, on a regular grid (e.g. from ``numpy.meshgrid``). Returns an array of
-        their shape: intensity times pixel area (so it sums to about 1 on a grid that covers and
-        resolves the shape). Unresolved features (a point, a ring thinner than a pixel) put their
-        flux into the nearest pixels; see :func:`grid_steps` and :func:`nearest_pixel`.
-        """
-        raise NotImplementedError(f"shape '{self.key}' cannot render a brightness image")
+    def sample_points(self, p, n=64):
+        """Quadrature nodes ``(l, m, weight)`` (flat arrays, radians, weights summing to 1) such
+        that sum(weight * f(l, m)) approximates the integral of I f for smooth f."""
+        raise NotImplementedError(f"shape '{self.key}' has no point-set description")
 
 
-def grid_steps(l, m):
-    """(dl, dm): the pixel spacings of a regular 2-D grid of (l, m) pixel centres (radians)."""
+def render_fractions(shape, l, m, p):
+    """Fraction of the shape's unit flux in each pixel of a regular grid of pixel centres.
+
+    ``l``, ``m``: 2-D arrays (e.g. from numpy.meshgrid) of offsets from the shape's centre, in
+    radians. A shape may provide its own ``pixel_fractions(l, m, p)``; a singular one is rendered
+    by putting the weights of its ``sample_points`` into the nearest pixels; any other one is its
+    brightness at the pixel centres times the pixel area.
+    """
+    own = getattr(shape, "pixel_fractions", None)
+    if own is not None:
+        return own(l, m, p)
+    if shape.singular(p):
+        lp, mp, w = shape.sample_points(p)
+        return splat(l, m, lp, mp, w)
+    dl, dm = grid_steps(l, m)
+    return np.asarray(shape.brightness(l, m, p), dtype=float) * (dl * dm)
+
+
+def _grid_axes(l, m):
+    """For a regular 2-D grid: (axis of l, l origin, signed l step, axis of m, m origin, m step)."""
     l = np.asarray(l, dtype=float)
     m = np.asarray(m, dtype=float)
     if l.ndim != 2 or l.shape != m.shape:
         raise ValueError("l and m must be 2-D arrays of the same shape")
 
-    def step(a):
-        d = [np.max(np.abs(np.diff(a, axis=k))) for k in (0, 1) if a.shape[k] > 1]
-        return max(d) if d else 1.0
+    def axis_of(a):
+        for k in (1, 0):
+            if a.shape[k] > 1:
+                idx = [0, 0]
+                idx[k] = 1
+                step = a[tuple(idx)] - a[0, 0]
+                if step != 0:
+                    return k, float(step)
+        return None, 1.0
 
-    return step(l), step(m)
+    al, sl = axis_of(l)
+    am, sm = axis_of(m)
+    if al is None and am is None:
+        al, am = 1, 0
+    elif al is None:
+        al = 1 - am
+    elif am is None:
+        am = 1 - al
+    return al, float(l[0, 0]), sl, am, float(m[0, 0]), sm
+
+
+def grid_steps(l, m):
+    """(dl, dm): the pixel spacings of a regular 2-D grid of (l, m) pixel centres (radians)."""
+    _, _, sl, _, _, sm = _grid_axes(l, m)
+    return abs(sl), abs(sm)
+
+
+def splat(l, m, lp, mp, w):
+    """A grid like ``l`` with each weight ``w`` added to the pixel nearest to its point (lp, mp);
+    points more than half a pixel off the grid are dropped."""
+    l = np.asarray(l, dtype=float)
+    al, l00, sl, am, m00, sm = _grid_axes(l, m)
+    il = np.rint((np.ravel(lp) - l00) / sl).astype(np.int64)
+    im = np.rint((np.ravel(mp) - m00) / sm).astype(np.int64)
+    w = np.broadcast_to(np.asarray(w, dtype=float), il.shape)
+    ok = (il >= 0) & (il < l.shape[al]) & (im >= 0) & (im < l.shape[am])
+    index = [None, None]
+    index[al], index[am] = il[ok], im[ok]
+    flat = np.ravel_multi_index(tuple(index), l.shape)
+    return np.bincount(flat, weights=w[ok], minlength=l.size).reshape(l.shape)
 
 
 def nearest_pixel(l, m, l0=0.0, m0=0.0):
     """A grid of zeros with 1 in the pixel nearest to (l0, m0); all zeros if it lies off the grid."""
-    l = np.asarray(l, dtype=float)
-    m = np.asarray(m, dtype=float)
-    out = np.zeros(l.shape)
-    dl, dm = grid_steps(l, m)
-    k = np.argmin((l - l0) ** 2 / dl ** 2 + (m - m0) ** 2 / dm ** 2)
-    idx = np.unravel_index(k, l.shape)
-    if abs(l[idx] - l0) <= 0.5 * dl * (1 + 1e-9) and abs(m[idx] - m0) <= 0.5 * dm * (1 + 1e-9):
-        out[idx] = 1.0
-    return out
+    return splat(l, m, [l0], [m0], [1.0])
 
 
 def uv_position_angle(u, v):

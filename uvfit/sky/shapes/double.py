@@ -112,7 +112,18 @@ class Double(Shape):
             grads[f"{n}_2"] = g2[n] * (r * w) * shift
         return val, grads
 
+    def parameter_bounds(self, name):
+        if name in _OWN:
+            return {"flux_ratio": (0.0, np.inf), "separation": (0.0, np.inf),
+                    "position_angle": (-np.inf, np.inf)}[name]
+        return self.member.parameter_bounds(self.member_parameter(name)[0])
+
+    # image domain ---------------------------------------------------------------------------------
+    def singular(self, p):
+        return bool(self.member.singular(self.member_values(p, 1)) or self.member.singular(self.member_values(p, 2)))
+
     def brightness(self, l, m, p):
+        """Brightness per steradian: [B1(l, m) + r B2(l - dx, m - dy)] / (1 + r)."""
         r = float(p["flux_ratio"])
         dx, dy = self.member_offset(p)
         l = np.asarray(l, dtype=float)
@@ -120,3 +131,21 @@ class Double(Shape):
         b1 = self.member.brightness(l, m, self.member_values(p, 1))
         b2 = self.member.brightness(l - dx, m - dy, self.member_values(p, 2))
         return (b1 + r * b2) / (1.0 + r)
+
+    def pixel_fractions(self, l, m, p):
+        from ..shape import render_fractions
+        r = float(p["flux_ratio"])
+        dx, dy = self.member_offset(p)
+        l = np.asarray(l, dtype=float)
+        m = np.asarray(m, dtype=float)
+        f1 = render_fractions(self.member, l, m, self.member_values(p, 1))
+        f2 = render_fractions(self.member, l - dx, m - dy, self.member_values(p, 2))
+        return (f1 + r * f2) / (1.0 + r)
+
+    def sample_points(self, p, n=64):
+        r = float(p["flux_ratio"])
+        dx, dy = self.member_offset(p)
+        l1, m1, w1 = self.member.sample_points(self.member_values(p, 1), n)
+        l2, m2, w2 = self.member.sample_points(self.member_values(p, 2), n)
+        return (np.concatenate([l1, l2 + dx]), np.concatenate([m1, m2 + dy]),
+                np.concatenate([np.asarray(w1) / (1.0 + r), np.asarray(w2) * (r / (1.0 + r))]))

@@ -1,7 +1,7 @@
 """A point source: all its flux at one position, the same visibility on every baseline."""
 import numpy as np
 
-from ..shape import Shape, nearest_pixel
+from ..shape import Shape
 
 
 class Point(Shape):
@@ -19,6 +19,13 @@ class Point(Shape):
     def structure_gradient(self, u, v, p):
         return self.structure(u, v, p), {}
 
+    def singular(self, p):
+        """True: all the flux at one point; rendered into the nearest pixel."""
+        return True
+
     def brightness(self, l, m, p):
-        # all the flux in the pixel nearest the centre
-        return nearest_pixel(l, m)
+        raise ValueError("a point has no finite brightness; render it from sample_points()")
+
+    def sample_points(self, p, n=1):
+        """One node at the centre with all the weight."""
+        return np.zeros(1), np.zeros(1), np.ones(1)

@@ -114,3 +114,23 @@ def test_scaled_statistic_keeps_its_class(corrupted):
     assert type(half) is type(stat)
     th = model.get_free()
     assert np.isclose(half.chi2(th), stat.chi2(th) / 4.0)
+
+
+def test_full_set_is_flagged_redundant_and_diagonal(corrupted):
+    from uvfit.errors import UvfitError
+    res = check_closures(corrupted, double(**TRUTH), full=True)
+    assert res["set"].startswith("full") and res["covariance_mode"] == "diagonal"
+    assert "redundant" in res["verdict"]
+    with pytest.raises(UvfitError, match="singular"):
+        make_statistic("closure", corrupted, double(**TRUTH), full=True, covariance="snapshot")
+
+
+def test_closure_mode_through_the_fit_orchestration(corrupted):
+    # the fitter's result dictionary carries the per-station breakdown from row_index
+    from uvfit.infer.run import run_fit
+    start = double(**dict(TRUTH, w1=25.0, f2=0.3, e2=-10.0, n2=-12.0, w2=10.0))
+    out = run_fit(corrupted, start, mode="closure", systematic=0.0, starts=2, seed=3)
+    assert out["mode"] == "closure" and out["seed"] == 3
+    assert set(out["fixed_by_fitter"]) == {"a.east", "a.north", "a.flux"}
+    assert len(out["per_station"]) == 7
+    assert abs(out["parameters"]["b.east"]["value"] + 15.0) < 3 * out["parameters"]["b.east"]["error"]

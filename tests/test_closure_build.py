@@ -90,13 +90,11 @@ def test_reference_station_is_the_highest_snr_one():
     # With a complete snapshot every chosen triangle runs through the station of largest summed SNR
     # (the reference-station construction of REFERENCES.md).
     vs = snapshot_set(6, seed=3)
-    amp = np.abs(vs.vis)
     boost = (vs.station1 == "Q4") | (vs.station2 == "Q4")
     vs = vs.with_vis(vs.vis * np.where(boost, 10.0, 1.0))
     cp = build_closures(vs, snr_cut=0)["phase"]
     ref = vs.stations.index("Q4")
     assert np.all(np.any(cp.stations == ref, axis=1))
-    assert amp.size == vs.n
 
 
 def test_orientation_of_stored_baselines_does_not_matter():

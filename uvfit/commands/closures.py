@@ -83,12 +83,15 @@ def render(res):
               help="Use only visibilities with |V|/sigma of at least X.")
 @click.option("--full", is_flag=True, help="Every triangle and quadrangle (redundant) instead of a "
                                            "non-redundant set per snapshot.")
+@click.option("--covariance", type=click.Choice(["snapshot", "diagonal"]), default=None,
+              help="Errors of the chi2 totals: full covariance within each snapshot (default for the "
+                   "non-redundant set) or diagonal (always for --full).")
 @click.option("--json", "json_out", default=None, metavar="OUT", help="Also write the results as JSON.")
 @click.option("--table", "table_out", default=None, metavar="OUT.ecsv",
               help="Write every closure quantity (time, stations, value, sigma, model) as ECSV.")
 @selection_options
 @force_option
-def command(data, model_path, systematic, snr_cut, full, json_out, table_out, force, **kwargs):
+def command(data, model_path, systematic, snr_cut, full, covariance, json_out, table_out, force, **kwargs):
     """Closure phases and log closure amplitudes of DATA; with --model, whether they support it.
 
     Closure quantities do not change with station-based gain errors, so a model that fits the
@@ -113,7 +116,8 @@ def command(data, model_path, systematic, snr_cut, full, json_out, table_out, fo
         model, info = load_any_model(model_path)
     if systematic is None:
         systematic = float(info.get("fit_systematic") or 0.0)
-    res = check_closures(vset, model, systematic=systematic, snr_cut=snr_cut, full=full)
+    res = check_closures(vset, model, systematic=systematic, snr_cut=snr_cut, full=full,
+                         covariance=covariance)
     click.echo(render(res))
     summary = json_summary(res)
     summary.update({"data": str(data), "model": model_path, **info,

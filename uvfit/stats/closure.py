@@ -170,24 +170,32 @@ class _ClosurePart(Statistic):
     @staticmethod
     def _whitening(vset, cs):
         """Block-diagonal W with W C W^T = 1 (C the covariance of each snapshot's closures) and
-        0.5 log det C. The loop runs over snapshots at construction only."""
-        from scipy.linalg import cholesky, solve_triangular
+        0.5 log det C. The covariance blocks are built in a loop over snapshots (construction
+        only); their Cholesky factors and inverses are computed in batches of equal size."""
         from scipy.sparse import block_diag
 
         amp = np.abs(vset.vis)
         rel2 = (vset.sigma ** 2 + (cs.systematic * amp) ** 2) / amp ** 2
-        blocks, logdet = [], 0.0
         bounds = np.flatnonzero(np.diff(cs.snapshot)) + 1
-        for idx in np.split(np.arange(cs.n), bounds):
+        groups = np.split(np.arange(cs.n), bounds)
+        covs = []
+        for idx in groups:
             rows = cs.rows[idx]
             uniq, inv = np.unique(rows, return_inverse=True)
             a = np.zeros((len(idx), len(uniq)))
             np.add.at(a, (np.repeat(np.arange(len(idx)), rows.shape[1]), inv.ravel()),
                       cs.signs[idx].ravel())
-            c = (a * rel2[uniq]) @ a.T
-            low = cholesky(c, lower=True)
-            blocks.append(solve_triangular(low, np.eye(len(idx)), lower=True))
-            logdet += float(np.sum(np.log(np.diag(low))))
+            covs.append((a * rel2[uniq]) @ a.T)
+        blocks = [None] * len(groups)
+        logdet = 0.0
+        sizes = np.array([len(g) for g in groups])
+        for k in np.unique(sizes):
+            which = np.flatnonzero(sizes == k)
+            low = np.linalg.cholesky(np.stack([covs[i] for i in which]))
+            white = np.linalg.inv(low)
+            logdet += float(np.sum(np.log(np.diagonal(low, axis1=1, axis2=2))))
+            for j, i in enumerate(which):
+                blocks[i] = white[j]
         return block_diag(blocks, format="csr"), logdet
 
     def _vis(self, theta):

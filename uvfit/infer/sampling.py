@@ -644,7 +644,7 @@ def corner_plot(samples, names, units, path, force=False, truths=None):
 
 
 def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0, mode="",
-                    data_path=None, derived=True, extra=None):
+                    data_path=None, derived=True, extra=None, movable=()):
     """A :class:`Posterior` from a :class:`Chain` on ``model`` (whose free parameters it sampled)."""
     from .posterior import order_samples, summarize, swap_groups
     from .derived import PERIODS
@@ -655,9 +655,9 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
                          "use the model file the chain was run with")
     samples, log_prob = chain.flat()
     groups = swap_groups(model)
-    samples, ordering = order_samples(model, samples, order_by, groups)
+    samples, ordering = order_samples(model, samples, order_by, groups, movable)
     theta_max, _ = chain.max_posterior()
-    theta_max = order_samples(model, theta_max[None, :], order_by, groups)[0][0]
+    theta_max = order_samples(model, theta_max[None, :], order_by, groups, movable)[0][0]
     # the max-posterior sample joins the set for the "max_posterior" entries
     both = np.vstack([samples, theta_max[None, :]])
     i_max = both.shape[0] - 1
@@ -751,6 +751,7 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
                       resume=resume, force=force, progress=progress, meta=meta)
     post = summarize_chain(chain, work, order_by=order_by, frequency=frequency, redshift=redshift,
-                           mode=mode, data_path=data_path, derived=derived, extra=extra)
+                           mode=mode, data_path=data_path, derived=derived, extra=extra,
+                           movable=fixed)
     post.notes = list(notices) + post.notes
     return post

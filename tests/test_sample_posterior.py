@@ -158,3 +158,30 @@ def test_double_members_swap_to_the_same_sky():
     out, info = order_samples(model, np.vstack([theta, other]), "flux")
     assert np.allclose(out[0], theta) and np.allclose(out[1], theta)
     assert info["doubles"] == ["pair"] and "brighter member first" in info["description"]
+
+
+def test_faint_companion_flux_at_its_bound_gives_an_upper_limit():
+    from scipy import stats as st
+
+    truth = two_points(1.0, 0.0, east=0.3, north=0.2, free_position=False)
+    vs = simulate(truth, n=120, sigma=0.05, seed=12)
+    model = SkyModel.build([
+        {"name": "a", "shape": "point", "flux": 1.0, "east": FIXED0, "north": FIXED0},
+        {"name": "b", "shape": "point", "flux": {"value": 0.02, "min": 0.0},
+         "east": {"value": 0.3, "fixed": True}, "north": {"value": 0.2, "fixed": True}}],
+        angular_unit="mas")
+    post = sample(vs, model, n_walkers=12, max_steps=1500, seed=4, derived=False)
+    s = post.parameters["b.flux"]
+    # reference: linear model in the two fluxes (shift theorem, TMS 2017 ch. 3), flat priors: the
+    # posterior of b.flux is the weighted least-squares Gaussian truncated at 0 (scipy.stats.truncnorm)
+    ph = np.exp(-2j * np.pi * (vs.u * 0.3 + vs.v * 0.2) * MAS)
+    a = np.vstack([np.column_stack([np.ones(vs.n), ph.real]), np.column_stack([np.zeros(vs.n), ph.imag])])
+    y = np.concatenate([vs.vis.real, vs.vis.imag])
+    cov = np.linalg.inv(a.T @ a) * 0.05 ** 2
+    mean = cov @ a.T @ y / 0.05 ** 2
+    m, sd = mean[1], math.sqrt(cov[1, 1])
+    ref = st.truncnorm((0 - m) / sd, np.inf, loc=m, scale=sd)
+    assert ref.ppf(0.025) < 0.05 * ref.ppf(0.975)  # the exact posterior meets the rule
+    assert "upper_limit_95" in s
+    assert s["upper_limit_95"] == pytest.approx(ref.ppf(0.95), rel=0.15)
+    assert s["median"] == pytest.approx(ref.median(), rel=0.3)

@@ -16,7 +16,10 @@ Rules, stated once (README "sample" and DEVELOPERS "Sampling" repeat them):
   with L" when (p2.5 - L) < 0.05 (p97.5 - L) — the 95% interval reaches down to the bound — or
   when the sample histogram (20 bins from L to the 99.5th percentile) peaks in its lowest bin. It is
   then reported as a one-sided 95% upper limit, ``upper_limit_95`` = the 95th percentile, and the
-  two-sided interval must not be read as a detection of a size.
+  two-sided interval must not be read as a detection of a size. The same rule is tried against
+  every finite bound of every other parameter (e.g. a companion's flux with min = 0, an axis ratio
+  pressed against 1, mirrored: ``lower_limit_95`` = the 5th percentile), except angles on the
+  circle. A brightness temperature whose size is an upper limit gets a 95% lower limit.
 """
 import math
 
@@ -36,29 +39,36 @@ def circular_unwrap(x, period=360.0):
     return centre + (x - centre + period / 2) % period - period / 2
 
 
-def consistent_with_bound(x, lower):
-    """True when a size posterior reaches its lower bound (see the module docstring for the rule)."""
+def consistent_with_bound(x, bound, side="lower"):
+    """True when a posterior reaches its bound (see the module docstring for the rule).
+
+    ``side`` "lower" (a size reaching zero) or "upper" (the same rule mirrored).
+    """
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
+    if side == "upper":
+        x, bound = -x, -bound
     if x.size < 2:
         return False
     p025, p975, p995 = np.percentile(x, [2.5, 97.5, 99.5])
-    if p975 <= lower:
+    if p975 <= bound:
         return True
-    if (p025 - lower) < BOUND_FRACTION * (p975 - lower):
+    if (p025 - bound) < BOUND_FRACTION * (p975 - bound):
         return True
-    top = max(p995, lower + 1e-300)
-    counts, _ = np.histogram(x, bins=HISTOGRAM_BINS, range=(lower, top))
+    top = max(p995, bound + 1e-300)
+    counts, _ = np.histogram(x, bins=HISTOGRAM_BINS, range=(bound, top))
     return bool(np.argmax(counts) == 0)
 
 
-def summarize(x, i_max=None, unit="", period=None, size_bound=None):
+def summarize(x, i_max=None, unit="", period=None, lower_bound=None, upper_bound=None):
     """Summary dict of one quantity's samples ``x``.
 
     ``i_max``: index of the max-posterior sample in ``x``; ``period``: circular statistics with this
-    period (e.g. 360 for degrees); ``size_bound``: the lower bound of a size (enables the upper-limit
-    rule). Keys: median, lower, upper, lower_95, upper_95, mean, std, max_posterior, unit, and
-    ``upper_limit_95`` when the size rule applies.
+    period (e.g. 360 for degrees); ``lower_bound`` / ``upper_bound``: bounds against which the limit
+    rule is tried (a size's 0, a parameter's finite min or max). Keys: median, lower, upper,
+    lower_95, upper_95, mean, std, max_posterior, unit, and ``upper_limit_95`` (95th percentile)
+    when the posterior reaches its lower bound, ``lower_limit_95`` (5th percentile) when it reaches
+    its upper bound.
     """
     x = np.asarray(x, dtype=float)
     good = np.isfinite(x)
@@ -72,7 +82,8 @@ def summarize(x, i_max=None, unit="", period=None, size_bound=None):
     xs = x[good]
     if period:
         xs = circular_unwrap(xs, period)
-    p025, p16, p50, p84, p975 = np.percentile(xs, PERCENTILES)
+    p025, p16, p50, p84, p975 = np.percentile(xs, PERCENTILES,
+                                              method="nearest" if np.isinf(xs).any() else "linear")
     shift = 0.0
     if period:
         shift = -period * math.floor(p50 / period)
@@ -84,8 +95,12 @@ def summarize(x, i_max=None, unit="", period=None, size_bound=None):
                std=float(np.std(xs, ddof=1)) if xs.size > 1 else float("nan"))
     if period:
         out["circular"] = True
-    if size_bound is not None and consistent_with_bound(xs, size_bound):
-        out["upper_limit_95"] = float(np.percentile(xs, 95.0))
+    method = "nearest" if np.isinf(xs).any() else "linear"
+    if lower_bound is not None and np.isfinite(lower_bound) and consistent_with_bound(xs, lower_bound):
+        out["upper_limit_95"] = float(np.percentile(xs, 95.0, method=method))
+    if upper_bound is not None and np.isfinite(upper_bound) and \
+            consistent_with_bound(xs, upper_bound, side="upper"):
+        out["lower_limit_95"] = float(np.percentile(xs, 5.0, method=method))
     if good.sum() < x.size:
         out["n_undefined"] = int(x.size - good.sum())
     return out

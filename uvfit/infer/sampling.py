@@ -403,6 +403,11 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
                                                      tau_factor, tau_change)
                     if converged:
                         break
+    except BaseException:
+        if pool is not None:
+            pool.terminate()
+            pool = None
+        raise
     finally:
         if pool is not None:
             pool.close()
@@ -467,13 +472,21 @@ def _parameter_period(model, name):
     return period
 
 
-def _size_bound(model, name):
-    """Lower bound of a size parameter (a length other than a position), or None."""
+def _limit_bounds(model, name):
+    """(lower, upper) bounds against which the limit rule is tried for a parameter.
+
+    A size (a length other than a position) has 0 as lower bound when the model gives none; every
+    parameter uses its finite min and max; an angle summarised on the circle uses none.
+    """
     p = model.parameters[name]
     local = name.split(".", 1)[1]
-    if getattr(p, "kind", None) != "length" or local in ("east", "north"):
-        return None
-    return float(p.min) if np.isfinite(p.min) else 0.0
+    lo = float(p.min) if np.isfinite(p.min) else None
+    hi = float(p.max) if np.isfinite(p.max) else None
+    if getattr(p, "kind", None) == "length" and local not in ("east", "north") and lo is None:
+        lo = 0.0
+    if _parameter_period(model, name):
+        return None, None
+    return lo, hi
 
 
 def derived_samples(model, samples, frequency=None, redshift=0.0):
@@ -576,8 +589,17 @@ class Posterior:
             lines.append(head)
             for name, s in block.items():
                 unit = s.get("unit", "")
-                if "upper_limit_95" in s:
-                    text = f"< {_g(s['upper_limit_95'])} (95% upper limit; consistent with zero)"
+                text = None
+                if "upper_limit_95" in s and "lower_limit_95" in s:
+                    text = (f"{_g(s['lower_limit_95'])} .. {_g(s['upper_limit_95'])} (5-95%; "
+                            "fills its bounds: not constrained)")
+                elif "upper_limit_95" in s:
+                    at = "consistent with zero" if name.endswith((".size", "fwhm", "diameter",
+                                                                  "radius")) else "at its lower bound"
+                    text = f"< {_g(s['upper_limit_95'])} (95% upper limit; {at})"
+                elif "lower_limit_95" in s and name in self.parameters:
+                    text = f"> {_g(s['lower_limit_95'])} (95% lower limit; at its upper bound)"
+                if text is not None:
                     lines.append(f"{name:34s} {text:64s} {_g(s['max_posterior']):>12s}  {unit}")
                     continue
                 lo = s["lower"] - s["median"]
@@ -663,8 +685,9 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
     i_max = both.shape[0] - 1
     params = {}
     for j, name in enumerate(names):
+        lo, hi = _limit_bounds(model, name)
         s = summarize(both[:-1, j], unit=_unit_text(model.parameters[name]),
-                      period=_parameter_period(model, name), size_bound=_size_bound(model, name))
+                      period=_parameter_period(model, name), lower_bound=lo, upper_bound=hi)
         s["max_posterior"] = _max_value(both[i_max, j], _parameter_period(model, name))
         params[name] = s
     out_derived = {}
@@ -673,7 +696,7 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
         limited = set()
         for key, x in values.items():
             bound = 0.0 if key.endswith(".size") else None
-            s = summarize(x[:-1], unit=units.get(key, ""), period=PERIODS.get(key), size_bound=bound)
+            s = summarize(x[:-1], unit=units.get(key, ""), period=PERIODS.get(key), lower_bound=bound)
             s["max_posterior"] = _max_value(x[i_max], PERIODS.get(key))
             if "upper_limit_95" in s:
                 limited.add(key[:-len(".size")])

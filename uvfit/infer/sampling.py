@@ -722,7 +722,7 @@ def _max_value(x, period):
 def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_steps=5000, seed=0,
            procs=1, chain_path=None, resume=False, force=False, order_by="flux", progress=None,
            starts=1, frequency=None, redshift=0.0, data_path=None, derived=True,
-           fit_progress=None, **options):
+           fit_progress=None, ball_scale=0.3, **options):
     """Sample the posterior of ``model`` (not changed) given ``vset`` in ``mode``; a :class:`Posterior`.
 
     A new chain starts from the least-squares best fit (``starts`` starts, seeded), in a ball scaled
@@ -772,7 +772,8 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
     meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
     chain = run_chain(log_prob, start, cov, bounds, work.free_names, n_walkers=n_walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
-                      resume=resume, force=force, progress=progress, meta=meta)
+                      resume=resume, force=force, progress=progress, meta=meta,
+                      ball_scale=ball_scale)
     post = summarize_chain(chain, work, order_by=order_by, frequency=frequency, redshift=redshift,
                            mode=mode, data_path=data_path, derived=derived, extra=extra,
                            movable=fixed)

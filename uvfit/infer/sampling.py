@@ -387,6 +387,9 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
         if previous and previous % check_every == 0:
             converged, _ = convergence_check(sampler.get_chain(), previous, check_every,
                                              tau_factor, tau_change)
+            if converged:
+                notes.append(f"the chain had converged already at its {previous} steps; no steps "
+                             "were added")
         todo = max_steps - previous
         if previous and todo <= 0:
             notes.append(f"the chain already has {previous} steps (--max-steps {max_steps}); "

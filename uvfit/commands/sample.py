@@ -1,5 +1,4 @@
 """uvfit sample: posterior distributions of a model's parameters by ensemble MCMC."""
-import os
 import sys
 
 import click
@@ -47,7 +46,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     parameter and derived quantity; sizes consistent with zero are given as 95% upper limits.
     """
     from .. import load_model
-    from ..infer.sampling import chain_info, sample
+    from ..infer.sampling import check_chain_file, sample
     from ..outputs import check_writable, write_json
 
     selection = pop_selection(kwargs)
@@ -61,17 +60,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     for path in (json_path, corner_path):
         if path is not None:
             check_writable(path, force)
-    previous = 0
-    if resume:
-        if chain_path is None:
-            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
-        if not os.path.exists(chain_path):
-            raise UvfitError(f"there is no chain file {chain_path} to resume",
-                             "run once without --resume to start the chain")
-        previous = chain_info(chain_path)["iteration"]
-    elif chain_path is not None and os.path.exists(chain_path) and not force:
-        raise UvfitError(f"the chain file {chain_path} exists already",
-                         "pass --resume to continue it, or --force to start it again")
+    previous = check_chain_file(chain_path, resume, force)
 
     vset = load_data(data, selection)
     sky = load_model(model)

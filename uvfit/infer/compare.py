@@ -16,7 +16,7 @@ import numpy as np
 from .. import __version__
 from ..errors import FitError, UvfitError
 from ..stats.modes import make_statistic
-from .lsq import fit
+from .lsq import fit, rebuild_statistic
 
 FAMILY_CAUTION = ("This holds for these model families only: a model outside them may describe the "
                   "data better, and calibration errors can mimic structure (check `uvfit closures`).")
@@ -27,16 +27,10 @@ def _fit_model(vset, model, mode, systematic, starts, seed):
     return fit(stat, starts=starts, seed=seed)
 
 
-def _rebuild_on(statistic, vset, model):
-    parts = getattr(statistic, "parts", None)
-    if parts is not None:
-        from ..stats.base import CombinedStatistic
-        return CombinedStatistic([_rebuild_on(p, vset, model) for p in parts], statistic.mode)
-    return type(statistic)(vset, model, systematic=0.0, **dict(getattr(statistic, "options", {}) or {}))
-
-
 def _refit_on(result, vset_sim, seed, starts):
-    stat = _rebuild_on(result.statistic, vset_sim, result.model.copy())
+    """chi2 of a refit of a fitted model on simulated rows (systematic 0: the simulated sigmas
+    include it), starting from its best fit."""
+    stat = rebuild_statistic(result.statistic, result.model.copy(), vset=vset_sim, systematic=0.0)
     try:
         res = fit(stat, starts=starts, seed=seed, strict=False)
     except FitError:
@@ -108,6 +102,7 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
         for i in richer:
             rows[i]["false_alarm_probability"] = (1.0 + exceed[i]) / (1.0 + valid[i])
             rows[i]["n_simulations"] = valid[i]
+            rows[i]["n_exceeding"] = exceed[i]
     verdict, preferred = _verdict(rows, simple, richer, bootstrap, alpha)
     return {"version": __version__, "mode": mode, "systematic": float(systematic), "seed": int(seed),
             "n_bootstrap": bootstrap, "n_failed_refits": n_failed, "alpha": alpha,
@@ -128,12 +123,26 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
         return text + ". " + FAMILY_CAUTION, rows[best]["name"]
     if bootstrap > 0:
         required = [i for i in richer if rows[i]["false_alarm_probability"] is not None
-                    and rows[i]["false_alarm_probability"] < alpha]
+                    and (rows[i]["false_alarm_probability"] < alpha
+                         or (rows[i].get("n_exceeding") == 0 and rows[i]["false_alarm_probability"] <= 0.05))]
+        too_few = [i for i in richer if rows[i].get("n_exceeding") == 0 and i not in required]
         if required:
             best = min(required, key=lambda i: rows[i]["bic"])
             r = rows[best]
-            text = (f"'{r['name']}' preferred over '{s['name']}'; false-alarm probability "
-                    f"{_fmt_p(r['false_alarm_probability'])} (N = {r.get('n_simulations', bootstrap)} simulations)")
+            n_sim = r.get("n_simulations", bootstrap)
+            fap = r["false_alarm_probability"]
+            if r.get("n_exceeding") == 0:
+                fap_text = f"at most {_fmt_p(fap)} (no simulation reached the observed improvement"
+                fap_text += f"; N = {n_sim} simulations" + (", use more for a tighter bound)" if fap >= alpha else ")")
+            else:
+                fap_text = f"{_fmt_p(fap)} (N = {n_sim} simulations)"
+            text = f"'{r['name']}' preferred over '{s['name']}'; false-alarm probability {fap_text}"
+        elif too_few:
+            best = simple
+            text = (f"undecided: no simulation reached the improvement of "
+                    + ", ".join(f"'{rows[i]['name']}'" for i in too_few)
+                    + f" over '{s['name']}', but N = {bootstrap} simulations cannot show a false-alarm "
+                    "probability below 5%; run again with --bootstrap 100 or more")
         else:
             faps = ", ".join(f"of '{rows[i]['name']}': {_fmt_p(rows[i]['false_alarm_probability'])}"
                              for i in richer if rows[i]["false_alarm_probability"] is not None)

@@ -11,7 +11,8 @@ Keys ("a", "b" are component names in model order; a double "pair" counts as "pa
   ``a-b.separation``     distance of b from a (model angular unit)
   ``a-b.position_angle`` position angle of b seen from a, north through east, in [0, 360) deg
   ``a-b.flux_ratio``     flux of b / flux of a
-  ``a.size``             the main size (FWHM, or diameter, or radius: see "parameter"), and for
+  ``a.size``             the main size (FWHM, or diameter, or radius: see "parameter"; the same
+                         entry also appears as ``a.fwhm``, ``a.diameter``..., with "alias_of"), and for
                          an elliptical Gaussian also ``a.axis_ratio``, ``a.position_angle``
   ``a.brightness_temperature``  (K) for Gaussians and uniform disks, rest frame with ``redshift``:
       Gaussian:  Tb = 2 ln2 c^2 S / (pi k nu^2 theta_maj theta_min) (1 + z)
@@ -179,7 +180,8 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
     model = result.model
     if frequency is None:
         vs = result.statistic.vset
-        frequency = float(np.mean(vs.frequency)) if vs.n else float("nan")
+        good = ~vs.flag
+        frequency = float(np.mean(vs.frequency[good])) if good.any() else float("nan")
     if redshift is None:
         redshift = 0.0
     if float(redshift) <= -1.0:
@@ -203,6 +205,11 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
         out[key] = {"value": values[key], "error": err, "unit": units[key], **info.get(key, {})}
     if resolved_test or limits:
         _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits)
+    # the size also under its own name ("core.fwhm", "shell.radius"), for readers that look for it
+    for key in [k for k in out if k.endswith(".size")]:
+        alias = key[:-len("size")] + out[key]["parameter"]
+        if alias not in out:
+            out[alias] = dict(out[key], alias_of=key)
     return out
 
 
@@ -241,6 +248,11 @@ def _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits):
         if full not in model.parameters or model.root(full) not in free:
             continue
         root = model.root(full)
+        lengths = [pn for pn in m["parameters"]
+                   if _full_name(model, m, pn) in model.parameters
+                   and model.parameters[_full_name(model, m, pn)].kind == "length"]
+        if lengths != [size]:
+            continue  # several sizes (a shell's two radii, a blurred ring): no single "point" limit
         extra = {}
         for other in ("axis_ratio", "position_angle"):
             if other in m["parameters"]:
@@ -282,7 +294,8 @@ def _upper_limit(result, root, extra, best, max_steps=14):
     """Size where the chi2 profile rises by LIMIT_DCHI2 above the best fit (bisection)."""
     target = result.chi2 + LIMIT_DCHI2 * (result.error_scale ** 2)
     vs = result.statistic.vset
-    qmax = float(np.max(np.hypot(vs.u, vs.v))) if vs.n else 0.0
+    good = ~vs.flag
+    qmax = float(np.max(np.hypot(vs.u[good], vs.v[good]))) if good.any() else 0.0
     if qmax <= 0:
         return None
     resolution = (1.0 / qmax) / float(result.model.rad_per_unit)

@@ -142,16 +142,6 @@ def _kind(model, name):
     return "length" if local in ("east", "north", "fwhm", "diameter", "radius", "separation") else "ratio"
 
 
-def _unit_text(model, name):
-    p = model.parameters[name]
-    unit = getattr(p, "unit", None)
-    if unit is not None:
-        text = str(unit)
-        return "" if text in ("", "dimensionless") else text
-    return {"flux": "Jy", "length": str(getattr(model, "angular_unit", "mas")), "angle": "deg"}.get(
-        _kind(model, name), "")
-
-
 def random_starts(model, statistic, n, rng):
     """``n`` start vectors: uniform inside finite bounds; otherwise a scatter around the start
     value scaled to the parameter's kind (the array's resolution for a length, 180 deg for an
@@ -160,9 +150,10 @@ def random_starts(model, statistic, n, rng):
     x0 = np.asarray(model.get_free(), float)
     lo, hi = free_bounds(model)
     vs = statistic.vset
-    qmax = float(np.max(np.hypot(vs.u, vs.v))) if vs.n else 1.0
+    good = ~vs.flag
+    qmax = float(np.max(np.hypot(vs.u[good], vs.v[good]))) if good.any() else 1.0
     resolution = (1.0 / qmax) / rad_per_unit(model) if qmax > 0 else 1.0
-    fmax = float(np.max(np.abs(vs.vis))) if vs.n else 1.0
+    fmax = float(np.max(np.abs(vs.vis[good]))) if good.any() else 1.0
     out = []
     for _ in range(n):
         x = np.empty_like(x0)
@@ -317,26 +308,29 @@ def residual_breakdown(statistic, residuals):
     return per_station, per_baseline
 
 
-def rebuild_statistic(statistic, model):
-    """The same statistic (mode, rows, options) on another model, or the same model after its
-    free set changed."""
-    parts = getattr(statistic, "parts", None)
-    if parts is not None:
-        from ..stats.base import CombinedStatistic
-        return CombinedStatistic([rebuild_statistic(p, model) for p in parts], statistic.mode)
-    out = type(statistic)(statistic.vset, model, systematic=statistic.systematic,
-                          **dict(getattr(statistic, "options", {}) or {}))
-    return out
+def rebuild_statistic(statistic, model, vset=None, systematic=None):
+    """The same statistic (mode, options) on another model (or the same model after its free set
+    changed), optionally on other rows ``vset`` and with another ``systematic``."""
+    from ..stats.base import CombinedStatistic
+
+    vset = statistic.vset if vset is None else vset
+    systematic = getattr(statistic, "systematic", 0.0) if systematic is None else systematic
+    if type(statistic) is CombinedStatistic:
+        return CombinedStatistic([rebuild_statistic(p, model, vset, systematic) for p in statistic.parts],
+                                 statistic.mode)
+    return type(statistic)(vset, model, systematic=systematic,
+                           **dict(getattr(statistic, "options", {}) or {}))
 
 
 def fix_degeneracies(statistic):
     """Fix, in the statistic's model, every parameter the statistic says it cannot constrain.
 
-    Returns (statistic rebuilt on the changed model, [names fixed], [notices]).
+    Returns (statistic rebuilt on the changed model, [names fixed], [notices]); the notices start
+    with the statistic's own ``notices`` / ``notes`` (lists of str), if it has them.
     """
     model = statistic.model
     degs = list(statistic.degeneracies() or [])
-    notices = list(getattr(statistic, "notices", []) or [])
+    notices = list(getattr(statistic, "notices", []) or []) + list(getattr(statistic, "notes", []) or [])
     fixed = []
     for name, reason in degs:
         p = model.parameters[name]

@@ -90,19 +90,20 @@ def result_dict(result, derived=None, mode=None, data_path=None, selection=None,
 
 def run_fit(vset, model, mode="complex", systematic=0.0, rescale_errors=False, starts=1, seed=0,
             global_search=False, redshift=0.0, progress=None, data_path=None, selection=None,
-            resolved_test=True, frequency=None, return_result=False, **options):
+            resolved_test=True, frequency=None, return_result=False, max_evaluations=None, **options):
     """Fit ``model`` (not changed; a copy is fitted) to ``vset`` in ``mode``; returns the result
     dictionary (and the FitResult too with ``return_result``). ``options`` go to the statistic.
 
     ``frequency`` (Hz) for the brightness temperatures: default the data's mean frequency.
+    ``max_evaluations``: limit of model evaluations per start (default 200 (k + 1)).
     """
     work = model.copy()
     stat = make_statistic(mode, vset, work, systematic=systematic, **options)
     result = fit(stat, starts=starts, seed=seed, global_search=global_search, progress=progress,
-                 rescale_errors=rescale_errors)
+                 rescale_errors=rescale_errors, max_nfev=max_evaluations)
     if frequency is None:
         vs = result.statistic.vset
-        frequency = float(np.mean(vs.frequency))
+        frequency = float(np.mean(vs.frequency[~vs.flag]))
     derived = derived_quantities(result, redshift=redshift, frequency=frequency,
                                  resolved_test=resolved_test)
     out = result_dict(result, derived, mode=mode, data_path=data_path, selection=selection,

@@ -14,14 +14,17 @@ Amplitude mode
         p(A | nu, sigma) = A / sigma^2 exp[-(A^2 + nu^2) / (2 sigma^2)] I0(A nu / sigma^2).
     * ``log_likelihood`` is this exact Rice likelihood (evaluated stably with scipy.special.i0e).
     * The least-squares objective (``residuals``, ``jacobian``, ``chi2``) is a sum of squares of
-      well-defined smooth functions of the parameters:
-        - rows with A / sigma_eff >= ``debias_snr`` (default 3): datum = the debiased amplitude
+      smooth functions of the parameters. Each row is classed ONCE, when the statistic is built,
+      by the SNR of the MODEL amplitude at its current (start) values, nu_ref / sigma: a class
+      taken from the noisy data would select rows by their noise and bias the fit.
+        - rows with nu_ref / sigma >= ``debias_snr`` (default 3): datum = the debiased amplitude
           sqrt(A^2 - sigma^2) (common practice; its mean is nu to first order in sigma/nu),
-          prediction = |V_model|;
-        - rows below that SNR: datum = A itself, prediction = the Rice mean
-          E[A] = sigma sqrt(pi/2) L_1/2(-nu^2 / (2 sigma^2)), which is exact at any SNR, so faint
-          rows neither bias the fit nor are thrown away.
-      Residual = (datum - prediction) / sigma_eff in both cases.
+          prediction = |V_model|, weight 1 / sigma^2;
+        - fainter rows: datum = A itself, prediction = the Rice mean
+          E[A] = sigma sqrt(pi/2) L_1/2(-nu^2 / (2 sigma^2)), exact at any SNR, so faint rows
+          neither bias the fit nor are thrown away; weight 1 / Var(A | nu_ref), the Rice variance
+          2 sigma^2 + nu_ref^2 - E[A]^2 (fixed during the fit).
+      Residual = (datum - prediction) / weight^-1/2.
     Amplitudes carry no information on absolute position, and a model and its point reflection
     through the origin have the same amplitudes (a 180-degree ambiguity).
 """
@@ -33,14 +36,14 @@ from .base import Statistic
 _SQRT_HALF_PI = np.sqrt(np.pi / 2.0)
 
 
-def _model_vis_and_jac(model, vset, theta):
-    """(V, dV/dtheta) of the model on the rows of vset, with the fastest call the model offers."""
+def _model_vis_and_jac(model, rows, theta):
+    """(V, dV/dtheta) of the model on the good rows, with the fastest call the model offers."""
     both = getattr(model, "visibilities_and_jacobian", None)
     if both is not None:
-        vis, jac = both(vset.u, vset.v, frequency=vset.frequency, theta=theta)
+        vis, jac = both(rows.u, rows.v, frequency=rows.frequency, theta=theta)
     else:
-        vis = model.visibilities(vset.u, vset.v, frequency=vset.frequency, theta=theta)
-        jac = model.jacobian(vset.u, vset.v, frequency=vset.frequency, theta=theta)
+        vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+        jac = model.jacobian(rows.u, rows.v, frequency=rows.frequency, theta=theta)
     vis = np.asarray(vis, dtype=complex).reshape(-1)
     jac = np.asarray(jac, dtype=complex).reshape(vis.size, -1)
     return vis, jac
@@ -78,27 +81,43 @@ def free_translation(model):
 first_free_position = free_translation
 
 
+class _Rows:
+    """The unflagged rows of a visibility set, and their indices in it."""
+
+    def __init__(self, vset):
+        good = vset.good()  # DataError when nothing is left
+        self.index = np.flatnonzero(~vset.flag)
+        self.u, self.v, self.frequency = good.u, good.v, good.frequency
+        self.vis, self.sigma = good.vis, good.sigma
+        self.n = good.n
+        self.set = good
+
+
+def _model_vis(model, rows, theta):
+    vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+    return np.asarray(vis, dtype=complex).reshape(-1)
+
+
 class ComplexStatistic(Statistic):
     """Real and imaginary parts of the visibilities (see the module docstring)."""
 
     mode = "complex"
 
     def __init__(self, vset, model, systematic=0.0, **options):
-        super().__init__(vset.good(), model, systematic, **options)
-        vs = self.vset
-        self.data = np.concatenate([vs.vis.real, vs.vis.imag])
-        s = effective_sigma(vs, self.systematic)
+        super().__init__(vset, model, systematic, **options)
+        self.rows = rows = _Rows(vset)
+        self.data = np.concatenate([rows.vis.real, rows.vis.imag])
+        s = effective_sigma(rows, self.systematic)
         self.sigma = np.concatenate([s, s])
-        self.row_index = np.concatenate([np.arange(vs.n), np.arange(vs.n)])
+        #: the row of ``vset`` behind each datum (two data per row)
+        self.row_index = np.concatenate([rows.index, rows.index])
 
     def predict(self, theta):
-        vis = self.model.visibilities(self.vset.u, self.vset.v, frequency=self.vset.frequency,
-                                      theta=theta)
-        vis = np.asarray(vis, dtype=complex).reshape(-1)
+        vis = _model_vis(self.model, self.rows, theta)
         return np.concatenate([vis.real, vis.imag])
 
     def predict_jacobian(self, theta):
-        vis, jac = _model_vis_and_jac(self.model, self.vset, theta)
+        vis, jac = _model_vis_and_jac(self.model, self.rows, theta)
         return np.concatenate([vis.real, vis.imag]), np.vstack([jac.real, jac.imag])
 
     def degeneracies(self):
@@ -111,31 +130,36 @@ class AmplitudeStatistic(Statistic):
     mode = "amplitude"
 
     def __init__(self, vset, model, systematic=0.0, debias_snr=3.0, **options):
-        super().__init__(vset.good(), model, systematic, debias_snr=debias_snr, **options)
-        vs = self.vset
+        super().__init__(vset, model, systematic, debias_snr=debias_snr, **options)
+        self.rows = rows = _Rows(vset)
         self.debias_snr = float(debias_snr)
-        amp = np.abs(vs.vis)
+        amp = np.abs(rows.vis)
         self.amplitude = amp
-        self.sigma = effective_sigma(vs, self.systematic)
+        self.sigma = effective_sigma(rows, self.systematic)
         self.noise_sigma = self.sigma.copy()  # per real/imaginary part, for the Rice law
-        self.high = amp >= self.debias_snr * self.sigma
+        # class and weight every row by the model's amplitude at its current values (not by the
+        # data, which would select rows by their noise)
+        try:
+            nu_ref = np.abs(_model_vis(model, rows, None))
+        except Exception:  # a model that cannot be evaluated yet: treat every row as faint
+            nu_ref = np.zeros(rows.n)
+        if not np.all(np.isfinite(nu_ref)):
+            nu_ref = np.where(np.isfinite(nu_ref), nu_ref, 0.0)
+        self.reference_amplitude = nu_ref
+        self.high = nu_ref >= self.debias_snr * self.sigma
         debiased = np.sqrt(np.maximum(amp ** 2 - self.sigma ** 2, 0.0))
         self.data = np.where(self.high, debiased, amp)
-        # faint rows: the scatter of a Rice amplitude is below sigma (sqrt(2 - pi/2) sigma at zero
-        # signal); weight them by the Rice standard deviation at a data-based estimate of the
-        # true amplitude (fixed during the fit, so the objective stays a plain sum of squares)
         low = ~self.high
         if np.any(low):
             s = self.sigma[low]
-            nu_hat = np.sqrt(np.maximum(amp[low] ** 2 - 2.0 * s ** 2, 0.0))
-            mean, _ = self._rice_mean(nu_hat, s)
-            var = 2.0 * s ** 2 + nu_hat ** 2 - mean ** 2
+            mean, _ = self._rice_mean(nu_ref[low], s)
+            var = 2.0 * s ** 2 + nu_ref[low] ** 2 - mean ** 2
             self.sigma = self.sigma.copy()
-            self.sigma[low] = np.sqrt(np.maximum(var, (2.0 - np.pi / 2.0) * s ** 2))
+            self.sigma[low] = np.sqrt(np.maximum(var, 1e-6 * s ** 2))
             self.rice_sigma = s
         else:
             self.rice_sigma = self.sigma[low]
-        self.row_index = np.arange(vs.n)
+        self.row_index = rows.index
         self.notices = ["amplitudes cannot fix the absolute position, and a model and its point "
                         "reflection through the origin (every position angle + 180 deg) fit equally "
                         "well: position angles are ambiguous by 180 degrees in this mode"]
@@ -165,19 +189,15 @@ class AmplitudeStatistic(Statistic):
         return pred, dnu
 
     def predict(self, theta):
-        vis = self.model.visibilities(self.vset.u, self.vset.v, frequency=self.vset.frequency,
-                                      theta=theta)
-        return self._amp_prediction(np.asarray(vis, dtype=complex).reshape(-1))[0]
+        return self._amp_prediction(_model_vis(self.model, self.rows, theta))[0]
 
     def predict_jacobian(self, theta):
-        vis, jac = _model_vis_and_jac(self.model, self.vset, theta)
+        vis, jac = _model_vis_and_jac(self.model, self.rows, theta)
         return self._amp_prediction(vis, jac)
 
     def log_likelihood(self, theta):
         """Exact Rice log-likelihood of the measured amplitudes (not the least-squares objective)."""
-        vis = self.model.visibilities(self.vset.u, self.vset.v, frequency=self.vset.frequency,
-                                      theta=theta)
-        nu = np.abs(np.asarray(vis, dtype=complex).reshape(-1))
+        nu = np.abs(_model_vis(self.model, self.rows, theta))
         a = self.amplitude
         s2 = self.noise_sigma ** 2
         z = a * nu / s2

@@ -32,12 +32,15 @@ from ._common import force_option, load_data, pop_selection, seed_option, select
 @click.option("--order-by", type=click.Choice(["flux", "distance"]), default="flux", show_default=True,
               help="Label components of the same shape in every sample by flux (brightest first) "
                    "or by distance from the phase centre (nearest first).")
+@click.option("--starts", type=int, default=1, show_default=True, metavar="N",
+              help="Least-squares starts for the point the walkers start from (the first at the "
+                   "model file's values, the others random, seeded).")
 @click.option("--redshift", type=float, default=0.0, show_default=True,
               help="Redshift for the rest-frame brightness temperatures.")
 @force_option
 @selection_options
 def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chain_path, resume,
-            corner_path, json_path, order_by, redshift, force, **kwargs):
+            corner_path, json_path, order_by, starts, redshift, force, **kwargs):
     """Sample the posterior of MODEL's free parameters given the visibilities in DATA.
 
     The chain starts at the least-squares best fit and stops when the autocorrelation time has
@@ -77,7 +80,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
         post = sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
                       resume=resume, force=force, order_by=order_by, progress=progress,
-                      redshift=redshift, data_path=data)
+                      starts=starts, redshift=redshift, data_path=data)
     for note in post.notes:
         click.echo(f"note: {note}", err=True)
     click.echo(post.table())

@@ -38,3 +38,24 @@ def two_points(flux_a=1.0, flux_b=0.3, east=0.3, north=0.2, free_position=True):
          "north": {"value": 0.0, "fixed": True}},
         {"name": "b", "shape": "point", "flux": flux_b, "east": pos(east), "north": pos(north)},
     ], angular_unit="mas")
+
+
+def snapshots(model, n_times=12, sigma=0.02, seed=0, scale=4e8):
+    """Every baseline of the invented 6-station array at ``n_times`` snapshots, the array turning
+    on the sky between snapshots (enough triangles and quadrangles for the closure modes)."""
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(-0.5, 0.5, (len(STATIONS), 2)) * scale
+    rows = []
+    for t, ang in enumerate(np.linspace(0, np.pi, n_times, endpoint=False)):
+        c, s = np.cos(ang), np.sin(ang)
+        for i in range(len(STATIONS)):
+            for j in range(i + 1, len(STATIONS)):
+                d = xy[i] - xy[j]
+                rows.append((c * d[0] - s * d[1], s * d[0] + c * d[1], t, STATIONS[i], STATIONS[j]))
+    u = np.array([r[0] for r in rows])
+    v = np.array([r[1] for r in rows])
+    n = u.size
+    vis = model.visibilities(u, v) + sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    return VisibilitySet(u=u, v=v, w=None, time=60000.0 + np.array([r[2] for r in rows]) / 144.0,
+                         frequency=86e9, station1=[r[3] for r in rows], station2=[r[4] for r in rows],
+                         vis=vis, sigma=np.full(n, sigma), source="INVENTED-2")

@@ -16,7 +16,10 @@ Rules, stated once (README "sample" and DEVELOPERS "Sampling" repeat them):
   with L" when (p2.5 - L) < 0.05 (p97.5 - L) — the 95% interval reaches down to the bound — or
   when the sample histogram (20 bins from L to the 99.5th percentile) peaks in its lowest bin. It is
   then reported as a one-sided 95% upper limit, ``upper_limit_95`` = the 95th percentile, and the
-  two-sided interval must not be read as a detection of a size.
+  two-sided interval must not be read as a detection of a size. The same rule is tried against
+  every finite bound of every other parameter (e.g. a companion's flux with min = 0, an axis ratio
+  pressed against 1, mirrored: ``lower_limit_95`` = the 5th percentile), except angles on the
+  circle. A brightness temperature whose size is an upper limit gets a 95% lower limit.
 """
 import math
 
@@ -36,29 +39,36 @@ def circular_unwrap(x, period=360.0):
     return centre + (x - centre + period / 2) % period - period / 2
 
 
-def consistent_with_bound(x, lower):
-    """True when a size posterior reaches its lower bound (see the module docstring for the rule)."""
+def consistent_with_bound(x, bound, side="lower"):
+    """True when a posterior reaches its bound (see the module docstring for the rule).
+
+    ``side`` "lower" (a size reaching zero) or "upper" (the same rule mirrored).
+    """
     x = np.asarray(x, dtype=float)
     x = x[np.isfinite(x)]
+    if side == "upper":
+        x, bound = -x, -bound
     if x.size < 2:
         return False
     p025, p975, p995 = np.percentile(x, [2.5, 97.5, 99.5])
-    if p975 <= lower:
+    if p975 <= bound:
         return True
-    if (p025 - lower) < BOUND_FRACTION * (p975 - lower):
+    if (p025 - bound) < BOUND_FRACTION * (p975 - bound):
         return True
-    top = max(p995, lower + 1e-300)
-    counts, _ = np.histogram(x, bins=HISTOGRAM_BINS, range=(lower, top))
+    top = max(p995, bound + 1e-300)
+    counts, _ = np.histogram(x, bins=HISTOGRAM_BINS, range=(bound, top))
     return bool(np.argmax(counts) == 0)
 
 
-def summarize(x, i_max=None, unit="", period=None, size_bound=None):
+def summarize(x, i_max=None, unit="", period=None, lower_bound=None, upper_bound=None):
     """Summary dict of one quantity's samples ``x``.
 
     ``i_max``: index of the max-posterior sample in ``x``; ``period``: circular statistics with this
-    period (e.g. 360 for degrees); ``size_bound``: the lower bound of a size (enables the upper-limit
-    rule). Keys: median, lower, upper, lower_95, upper_95, mean, std, max_posterior, unit, and
-    ``upper_limit_95`` when the size rule applies.
+    period (e.g. 360 for degrees); ``lower_bound`` / ``upper_bound``: bounds against which the limit
+    rule is tried (a size's 0, a parameter's finite min or max). Keys: median, lower, upper,
+    lower_95, upper_95, mean, std, max_posterior, unit, and ``upper_limit_95`` (95th percentile)
+    when the posterior reaches its lower bound, ``lower_limit_95`` (5th percentile) when it reaches
+    its upper bound.
     """
     x = np.asarray(x, dtype=float)
     good = np.isfinite(x)
@@ -72,7 +82,8 @@ def summarize(x, i_max=None, unit="", period=None, size_bound=None):
     xs = x[good]
     if period:
         xs = circular_unwrap(xs, period)
-    p025, p16, p50, p84, p975 = np.percentile(xs, PERCENTILES)
+    p025, p16, p50, p84, p975 = np.percentile(xs, PERCENTILES,
+                                              method="nearest" if np.isinf(xs).any() else "linear")
     shift = 0.0
     if period:
         shift = -period * math.floor(p50 / period)
@@ -84,8 +95,12 @@ def summarize(x, i_max=None, unit="", period=None, size_bound=None):
                std=float(np.std(xs, ddof=1)) if xs.size > 1 else float("nan"))
     if period:
         out["circular"] = True
-    if size_bound is not None and consistent_with_bound(xs, size_bound):
-        out["upper_limit_95"] = float(np.percentile(xs, 95.0))
+    method = "nearest" if np.isinf(xs).any() else "linear"
+    if lower_bound is not None and np.isfinite(lower_bound) and consistent_with_bound(xs, lower_bound):
+        out["upper_limit_95"] = float(np.percentile(xs, 95.0, method=method))
+    if upper_bound is not None and np.isfinite(upper_bound) and \
+            consistent_with_bound(xs, upper_bound, side="upper"):
+        out["lower_limit_95"] = float(np.percentile(xs, 5.0, method=method))
     if good.sum() < x.size:
         out["n_undefined"] = int(x.size - good.sum())
     return out
@@ -119,24 +134,102 @@ def swap_groups(model):
     return [g for g in signature.values() if len(g) > 1]
 
 
-def order_samples(model, samples, order_by="flux", groups=None):
+def double_members(model, movable=()):
+    """Doubles whose two members can trade places: [(component, {role: free index}, [(i1, i2)])].
+
+    Swapping the members of a double maps (east, north, flux_ratio r, separation s, position angle
+    psi) to (east + s sin psi, north + s cos psi, 1 / r, s, psi + 180 deg) and exchanges every
+    member parameter ``x_1`` with ``x_2``: the same sky. It needs flux_ratio, separation and
+    position_angle free, the member parameters free in pairs, and east / north free or fixed only
+    because the mode cannot see the absolute position (``movable``; then they stay as they are).
+    """
+    names = list(model.free_names)
+    index = {n: j for j, n in enumerate(names)}
+    movable = set(movable)
+    out = []
+    comps = {m["component"] for m in model.members() if m["name"] != m["component"]}
+    for comp in sorted(comps, key=lambda c: list(model.parameters).index(f"{c}.flux")):
+        own = {r: index.get(f"{comp}.{r}") for r in ("flux_ratio", "separation", "position_angle",
+                                                     "east", "north")}
+        if any(own[r] is None for r in ("flux_ratio", "separation", "position_angle")):
+            continue
+        if any(own[r] is None and f"{comp}.{r}" not in movable for r in ("east", "north")):
+            continue
+        pairs, ok = [], True
+        for full in model.parameters:
+            c, local = full.split(".", 1)
+            if c != comp or not local.endswith("_1"):
+                continue
+            other = f"{comp}.{local[:-2]}_2"
+            a, b = index.get(full), index.get(other)
+            if (a is None) != (b is None):
+                ok = False
+            elif a is not None:
+                pairs.append((a, b))
+        if ok:
+            out.append((comp, own, pairs))
+    return out
+
+
+def _swap_double_members(model, samples, order_by, doubles):
+    """Apply the member swap of :func:`double_members` where the rule asks for it; (texts, swapped)."""
+    texts = []
+    swapped = np.zeros(samples.shape[0], dtype=bool)
+    for comp, own, pairs in doubles:
+        r = samples[:, own["flux_ratio"]]
+        sep = samples[:, own["separation"]]
+        psi = np.radians(samples[:, own["position_angle"]])
+        de, dn = sep * np.sin(psi), sep * np.cos(psi)
+        if order_by == "flux":
+            swap = r > 1.0
+            rule = "brighter member first (flux_ratio <= 1)"
+        else:
+            e = samples[:, own["east"]] if own["east"] is not None else model.parameters[f"{comp}.east"].value
+            n = samples[:, own["north"]] if own["north"] is not None else model.parameters[f"{comp}.north"].value
+            swap = np.hypot(e + de, n + dn) < np.hypot(e, n)
+            rule = "member nearer the phase centre first"
+        if not swap.any():
+            texts.append(f"the members of double {comp} are labelled {rule}")
+            continue
+        rows = np.flatnonzero(swap)
+        if own["east"] is not None:
+            samples[rows, own["east"]] += de[rows]
+        if own["north"] is not None:
+            samples[rows, own["north"]] += dn[rows]
+        with np.errstate(divide="ignore"):
+            samples[rows, own["flux_ratio"]] = 1.0 / r[rows]
+        pa = (samples[rows, own["position_angle"]] + 180.0) % 360.0
+        p = model.parameters[f"{comp}.position_angle"]
+        pa = np.where(pa > p.max, pa - 360.0, pa)
+        pa = np.where(pa < p.min, pa + 360.0, pa)
+        samples[rows, own["position_angle"]] = pa
+        for a, b in pairs:
+            samples[rows, a], samples[rows, b] = samples[rows, b].copy(), samples[rows, a].copy()
+        swapped |= swap
+        texts.append(f"the members of double {comp} are labelled {rule} in every sample")
+    return texts, swapped
+
+
+def order_samples(model, samples, order_by="flux", groups=None, movable=()):
     """Relabel swappable components in every sample so that they follow the ordering rule.
 
     ``order_by``: "flux" (brightest first) or "distance" (nearest the phase centre first). Each
     sample's parameter blocks are permuted so that the first-named component of a group has the
-    largest flux (or smallest distance) in that sample. Returns (ordered samples, description).
+    largest flux (or smallest distance) in that sample; the two members of a double are swapped
+    likewise (see :func:`double_members`; ``movable`` names positions fixed only because the mode
+    cannot see them). Returns (ordered samples, description dict).
     """
     samples = np.array(samples, dtype=float, copy=True)
-    if groups is None:
-        groups = swap_groups(model)
-    if not groups:
-        return samples, {"rule": order_by, "groups": [], "description":
-                         "no two components can swap labels; no ordering applied"}
     if order_by not in ("flux", "distance"):
         raise ValueError(f"unknown ordering {order_by!r}")
+    if groups is None:
+        groups = swap_groups(model)
+    doubles = double_members(model, movable)
+    if not groups and not doubles:
+        return samples, {"rule": order_by, "groups": [], "description":
+                         "no two components can swap labels; no ordering applied"}
     names = list(model.free_names)
-    texts = []
-    swapped = np.zeros(samples.shape[0], dtype=bool)
+    texts, swapped = _swap_double_members(model, samples, order_by, doubles)
     for group in groups:
         comps = [c for c, _ in group]
         blocks = np.array([idx for _, idx in group])          # (m, p)
@@ -161,5 +254,6 @@ def order_samples(model, samples, order_by="flux", groups=None):
         texts.append(f"components {', '.join(comps)} (same shape) are labelled in every sample by "
                      f"{order_by}, {rule}")
     return samples, {"rule": order_by, "groups": [[c for c, _ in g] for g in groups],
+                     "doubles": [d[0] for d in doubles],
                      "description": "; ".join(texts) if texts else "no ordering applied",
                      "fraction_relabelled": float(np.mean(swapped)) if samples.shape[0] else 0.0}

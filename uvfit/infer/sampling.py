@@ -288,6 +288,29 @@ def chain_info(path):
     return _read_chain_attrs(path)
 
 
+def check_chain_file(chain_path, resume=False, force=False):
+    """Refuse what a run would refuse about its chain file; the steps already in it (0 if new).
+
+    ``resume`` needs an existing chain file; without it an existing file needs ``force``, and its
+    folder must exist. Commands call this before any long work.
+    """
+    if resume:
+        if chain_path is None:
+            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
+        if not os.path.exists(chain_path):
+            raise UvfitError(f"there is no chain file {chain_path} to resume",
+                             "run once without --resume to start the chain")
+        return _read_chain_attrs(chain_path)["iteration"]
+    if chain_path is not None:
+        if os.path.exists(chain_path) and not force:
+            raise UvfitError(f"the chain file {chain_path} exists already",
+                             "pass --resume to continue it, or --force to start it again")
+        if not os.path.isdir(os.path.dirname(os.path.abspath(chain_path))):
+            raise UvfitError(f"the folder for the chain file {chain_path} does not exist",
+                             "create it first")
+    return 0
+
+
 def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_steps=5000, seed=0,
               procs=1, chain_path=None, resume=False, force=False, progress=None,
               check_every=CHECK_EVERY, tau_factor=TAU_FACTOR, tau_change=TAU_CHANGE,
@@ -315,12 +338,8 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
     notes = []
     backend = None
     previous = 0
+    check_chain_file(chain_path, resume, force)
     if resume:
-        if chain_path is None:
-            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
-        if not os.path.exists(chain_path):
-            raise UvfitError(f"there is no chain file {chain_path} to resume",
-                             "run once without --resume to start the chain")
         info = _read_chain_attrs(chain_path)
         if info["names"] != names:
             raise UvfitError(f"the chain in {chain_path} was run on other free parameters "
@@ -348,14 +367,7 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
                              f"use --walkers {2 * n_dim + 2} or more")
         if chain_path is not None:
             if os.path.exists(chain_path):
-                if not force:
-                    raise UvfitError(f"the chain file {chain_path} exists already",
-                                     "pass --resume to continue it, or --force to start it again")
-                os.unlink(chain_path)
-            folder = os.path.dirname(os.path.abspath(chain_path))
-            if not os.path.isdir(folder):
-                raise UvfitError(f"the folder for the chain file {chain_path} does not exist",
-                                 "create it first")
+                os.unlink(chain_path)  # --force: start the chain again
             backend = emcee.backends.HDFBackend(chain_path, name=CHAIN_GROUP)
             backend.reset(n_walkers, n_dim)
             _write_chain_attrs(chain_path, names, seed, meta)
@@ -387,6 +399,9 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
         if previous and previous % check_every == 0:
             converged, _ = convergence_check(sampler.get_chain(), previous, check_every,
                                              tau_factor, tau_change)
+            if converged:
+                notes.append(f"the chain had converged already at its {previous} steps; no steps "
+                             "were added")
         todo = max_steps - previous
         if previous and todo <= 0:
             notes.append(f"the chain already has {previous} steps (--max-steps {max_steps}); "
@@ -403,6 +418,11 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
                                                      tau_factor, tau_change)
                     if converged:
                         break
+    except BaseException:
+        if pool is not None:
+            pool.terminate()
+            pool = None
+        raise
     finally:
         if pool is not None:
             pool.close()
@@ -467,13 +487,21 @@ def _parameter_period(model, name):
     return period
 
 
-def _size_bound(model, name):
-    """Lower bound of a size parameter (a length other than a position), or None."""
+def _limit_bounds(model, name):
+    """(lower, upper) bounds against which the limit rule is tried for a parameter.
+
+    A size (a length other than a position) has 0 as lower bound when the model gives none; every
+    parameter uses its finite min and max; an angle summarised on the circle uses none.
+    """
     p = model.parameters[name]
     local = name.split(".", 1)[1]
-    if getattr(p, "kind", None) != "length" or local in ("east", "north"):
-        return None
-    return float(p.min) if np.isfinite(p.min) else 0.0
+    lo = float(p.min) if np.isfinite(p.min) else None
+    hi = float(p.max) if np.isfinite(p.max) else None
+    if getattr(p, "kind", None) == "length" and local not in ("east", "north") and lo is None:
+        lo = 0.0
+    if _parameter_period(model, name):
+        return None, None
+    return lo, hi
 
 
 def derived_samples(model, samples, frequency=None, redshift=0.0):
@@ -576,8 +604,17 @@ class Posterior:
             lines.append(head)
             for name, s in block.items():
                 unit = s.get("unit", "")
-                if "upper_limit_95" in s:
-                    text = f"< {_g(s['upper_limit_95'])} (95% upper limit; consistent with zero)"
+                text = None
+                if "upper_limit_95" in s and "lower_limit_95" in s:
+                    text = (f"{_g(s['lower_limit_95'])} .. {_g(s['upper_limit_95'])} (5-95%; "
+                            "fills its bounds: not constrained)")
+                elif "upper_limit_95" in s:
+                    at = "consistent with zero" if name.endswith((".size", "fwhm", "diameter",
+                                                                  "radius")) else "at its lower bound"
+                    text = f"< {_g(s['upper_limit_95'])} (95% upper limit; {at})"
+                elif "lower_limit_95" in s and name in self.parameters:
+                    text = f"> {_g(s['lower_limit_95'])} (95% lower limit; at its upper bound)"
+                if text is not None:
                     lines.append(f"{name:34s} {text:64s} {_g(s['max_posterior']):>12s}  {unit}")
                     continue
                 lo = s["lower"] - s["median"]
@@ -644,7 +681,7 @@ def corner_plot(samples, names, units, path, force=False, truths=None):
 
 
 def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0, mode="",
-                    data_path=None, derived=True, extra=None):
+                    data_path=None, derived=True, extra=None, movable=()):
     """A :class:`Posterior` from a :class:`Chain` on ``model`` (whose free parameters it sampled)."""
     from .posterior import order_samples, summarize, swap_groups
     from .derived import PERIODS
@@ -655,16 +692,17 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
                          "use the model file the chain was run with")
     samples, log_prob = chain.flat()
     groups = swap_groups(model)
-    samples, ordering = order_samples(model, samples, order_by, groups)
+    samples, ordering = order_samples(model, samples, order_by, groups, movable)
     theta_max, _ = chain.max_posterior()
-    theta_max = order_samples(model, theta_max[None, :], order_by, groups)[0][0]
+    theta_max = order_samples(model, theta_max[None, :], order_by, groups, movable)[0][0]
     # the max-posterior sample joins the set for the "max_posterior" entries
     both = np.vstack([samples, theta_max[None, :]])
     i_max = both.shape[0] - 1
     params = {}
     for j, name in enumerate(names):
+        lo, hi = _limit_bounds(model, name)
         s = summarize(both[:-1, j], unit=_unit_text(model.parameters[name]),
-                      period=_parameter_period(model, name), size_bound=_size_bound(model, name))
+                      period=_parameter_period(model, name), lower_bound=lo, upper_bound=hi)
         s["max_posterior"] = _max_value(both[i_max, j], _parameter_period(model, name))
         params[name] = s
     out_derived = {}
@@ -673,7 +711,7 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
         limited = set()
         for key, x in values.items():
             bound = 0.0 if key.endswith(".size") else None
-            s = summarize(x[:-1], unit=units.get(key, ""), period=PERIODS.get(key), size_bound=bound)
+            s = summarize(x[:-1], unit=units.get(key, ""), period=PERIODS.get(key), lower_bound=bound)
             s["max_posterior"] = _max_value(x[i_max], PERIODS.get(key))
             if "upper_limit_95" in s:
                 limited.add(key[:-len(".size")])
@@ -699,7 +737,7 @@ def _max_value(x, period):
 def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_steps=5000, seed=0,
            procs=1, chain_path=None, resume=False, force=False, order_by="flux", progress=None,
            starts=1, frequency=None, redshift=0.0, data_path=None, derived=True,
-           fit_progress=None, **options):
+           fit_progress=None, ball_scale=0.3, **options):
     """Sample the posterior of ``model`` (not changed) given ``vset`` in ``mode``; a :class:`Posterior`.
 
     A new chain starts from the least-squares best fit (``starts`` starts, seeded), in a ball scaled
@@ -749,8 +787,10 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
     meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
     chain = run_chain(log_prob, start, cov, bounds, work.free_names, n_walkers=n_walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
-                      resume=resume, force=force, progress=progress, meta=meta)
+                      resume=resume, force=force, progress=progress, meta=meta,
+                      ball_scale=ball_scale)
     post = summarize_chain(chain, work, order_by=order_by, frequency=frequency, redshift=redshift,
-                           mode=mode, data_path=data_path, derived=derived, extra=extra)
+                           mode=mode, data_path=data_path, derived=derived, extra=extra,
+                           movable=fixed)
     post.notes = list(notices) + post.notes
     return post

@@ -13,6 +13,7 @@ import numpy as np
 from .. import __version__
 from ..errors import UvfitError
 from . import plots, style
+from .sky import sky_figure
 
 CAUTIONS = [
     ("Model family",
@@ -342,7 +343,6 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
                     "triangles (largest sum of 1/σ²): data with 1σ errors and the model.", fig))
     except UvfitError as exc:
         out.append(("closure-phases", f"No closure-phase figure: {exc}", None))
-    from .sky import sky_figure
     fig, _ = sky_figure(view)
     out.append(("sky", "The fitted model on the sky (east to the left) with each component's "
                 "outline and the nominal resolution λ/B_max for scale.", fig))

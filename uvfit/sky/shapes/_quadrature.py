@@ -66,7 +66,7 @@ def shell_points(inner, outer, n):
             (wr[:, None] * ws[None, :]).ravel())
 
 
-def gaussian_blur_points(l, m, w, fwhm, n=12):
+def gaussian_blur_points(l, m, w, fwhm, n=20):
     """Convolve a point set with a circular Gaussian of the given FWHM (2-D Gauss-Hermite nodes)."""
     if fwhm == 0:
         return l, m, w

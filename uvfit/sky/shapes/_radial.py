@@ -13,13 +13,15 @@ import math
 import numpy as np
 from scipy import special
 
-#: below this |x| the series are used (their truncation error there is < 1e-17)
-SERIES_BELOW = 0.5
+#: below these |x| the series are used: there the closed forms lose more than ~1e-16 to
+#: cancellation, while the truncated series (14 terms) are accurate to < 1e-17
+AIRY_SERIES_BELOW = 1.5
+BALL_SERIES_BELOW = 1.5
 
 # 2 J1(x)/x = sum_k (-1)^k (x/2)^(2k) / (k! (k+1)!)    (Abramowitz & Stegun 9.1.10)
-_AIRY = [(-1) ** k / (math.factorial(k) * math.factorial(k + 1) * 4.0 ** k) for k in range(10)]
+_AIRY = [(-1) ** k / (math.factorial(k) * math.factorial(k + 1) * 4.0 ** k) for k in range(14)]
 # 3 (sin x - x cos x)/x^3 = sum_n (-1)^(n+1) 6 n x^(2n-2) / (2n+1)!   (from the sine/cosine series)
-_BALL = [(-1) ** (n + 1) * 6.0 * n / math.factorial(2 * n + 1) for n in range(1, 11)]
+_BALL = [(-1) ** (n + 1) * 6.0 * n / math.factorial(2 * n + 1) for n in range(1, 15)]
 
 
 def _poly_x2(coeffs, x):
@@ -37,22 +39,22 @@ def _poly_x2_derivative(coeffs, x):
     return x * _poly_x2(d, x)
 
 
-def _split(x):
+def _split(x, below):
     x = np.asarray(x, dtype=float)
-    small = np.abs(x) < SERIES_BELOW
+    small = np.abs(x) < below
     safe = np.where(small, 1.0, x)  # keeps the closed form away from 0/0 where the series is used
     return x, small, safe
 
 
 def airy(x):
     """2 J1(x)/x, equal to 1 at x = 0."""
-    x, small, safe = _split(x)
+    x, small, safe = _split(x, AIRY_SERIES_BELOW)
     return np.where(small, _poly_x2(_AIRY, x), 2.0 * special.j1(safe) / safe)
 
 
 def airy_derivative(x):
     """d/dx [2 J1(x)/x] = -2 J2(x)/x = 2 (x J0(x) - 2 J1(x)) / x^2 (J1' = J0 - J1/x)."""
-    x, small, safe = _split(x)
+    x, small, safe = _split(x, AIRY_SERIES_BELOW)
     closed = 2.0 * (safe * special.j0(safe) - 2.0 * special.j1(safe)) / safe ** 2
     return np.where(small, _poly_x2_derivative(_AIRY, x), closed)
 
@@ -70,14 +72,14 @@ def sinc_derivative(x):
 
 def ball(x):
     """3 (sin x - x cos x)/x^3, equal to 1 at x = 0."""
-    x, small, safe = _split(x)
+    x, small, safe = _split(x, BALL_SERIES_BELOW)
     closed = 3.0 * (np.sin(safe) - safe * np.cos(safe)) / safe ** 3
     return np.where(small, _poly_x2(_BALL, x), closed)
 
 
 def ball_derivative(x):
     """d/dx ball(x) = 3 (sinc(x) - ball(x)) / x (from d/dx (sin x - x cos x) = x sin x)."""
-    x, small, safe = _split(x)
+    x, small, safe = _split(x, BALL_SERIES_BELOW)
     closed = 3.0 * (sinc(safe) - ball(safe)) / safe
     return np.where(small, _poly_x2_derivative(_BALL, x), closed)
 

@@ -11,7 +11,7 @@ x = 3.8317 (the first zero of J1), i.e. q = 1.2197 / theta.
 import numpy as np
 
 from uvfit.sky.shape import Shape
-from uvfit.sky.shapes import _radial
+from uvfit.sky.shapes import _pixels, _radial
 from uvfit.sky.shapes._quadrature import disk_points
 
 
@@ -44,6 +44,14 @@ class UniformDisk(Shape):
         radius = 0.5 * abs(p["diameter"])
         r = np.hypot(np.asarray(l, dtype=float), np.asarray(m, dtype=float))
         return np.where(r <= radius, 1.0 / (np.pi * radius ** 2), 0.0)
+
+    def pixel_fractions(self, l, m, p):
+        """Flux fraction per pixel: brightness averaged over 4 x 4 sub-pixel points (the rim
+        resolved to a quarter pixel); a disk under two pixels across is drawn as a pixel-wide
+        Gaussian of the same second moment (R^2/4 per axis), keeping its flux."""
+        radius = 0.5 * abs(p["diameter"])
+        return _pixels.compact_or_oversampled(lambda a, b: self.brightness(a, b, p), l, m,
+                                              2 * radius, radius ** 2 / 4.0)
 
     def sample_points(self, p, n=64):
         """Quadrature nodes (l, m, weight) of the disk: Gauss-Legendre in radius, uniform in angle."""

@@ -34,10 +34,19 @@ from scipy import special
 
 from uvfit.errors import ModelError
 from uvfit.sky.shape import Shape, uv_position_angle
-from uvfit.sky.shapes import _radial
+from uvfit.sky.shapes import _pixels, _radial
 from uvfit.sky.shapes._quadrature import gaussian_blur_points, ring_points
 
 _LN2 = np.log(2.0)
+
+
+def _bessel_j(top, z):
+    """[J_0(z), ..., J_top(z)] stacked on a new first axis (scipy.special j0, j1, jv)."""
+    out = [special.j0(z), special.j1(z)]
+    if top >= 2:
+        orders = np.arange(2, top + 1).reshape((-1,) + (1,) * np.ndim(z))
+        out.extend(special.jv(orders, z[None, ...]))
+    return np.stack(out[:top + 1])
 
 
 class ThinRing(Shape):
@@ -64,6 +73,12 @@ class ThinRing(Shape):
 
     def brightness(self, l, m, p):
         raise ValueError("a thin ring has no finite brightness; render it from sample_points()")
+
+    def pixel_fractions(self, l, m, p):
+        """Flux fraction per pixel: the ring drawn with a Gaussian cross-section of
+        _pixels.MIN_LINE_SIGMA pixels (see ModulatedRing.pixel_fractions)."""
+        return ModulatedRing(order=0).pixel_fractions(l, m, {"diameter": p["diameter"],
+                                                             "blur": 0.0})
 
     def sample_points(self, p, n=1024):
         """n equally spaced nodes (l, m, weight) on the ring."""
@@ -131,8 +146,7 @@ class ModulatedRing(Shape):
         z = np.pi * p["diameter"] * q
         blur = p.get("blur", 0.0)
         taper = np.exp(-(np.pi * blur * q) ** 2 / (4.0 * _LN2))
-        orders = np.arange(self.order + 2).reshape((-1,) + (1,) * z.ndim)
-        bessel = special.jv(orders, z[None, ...])  # J_0 .. J_(order+1)
+        bessel = _bessel_j(self.order + 1, z)  # J_0 .. J_(order+1)
         ring = bessel[0].astype(complex)
         grads = {}
         d_ring_dz = -bessel[1].astype(complex)  # J0' = -J1
@@ -196,6 +210,20 @@ class ModulatedRing(Shape):
         ratio = special.ive(orders, z[None, ...])
         envelope = np.exp(-(r - radius) ** 2 / (2.0 * sigma ** 2)) / (2.0 * np.pi * sigma ** 2)
         return envelope * self._azimuthal(psi, p, ratio)
+
+    def pixel_fractions(self, l, m, p):
+        """Flux fraction per pixel of a regular grid of pixel centres (l, m: 2-D, radians).
+
+        A blur under 1.5 pixels (standard deviation) is widened in quadrature by
+        _pixels.MIN_LINE_SIGMA pixels so that sampling at the pixel centres keeps the flux; an
+        unblurred ring thus appears about a pixel wide. A wider blur is drawn as it is."""
+        dl, dm = _pixels.grid_steps(l, m)
+        pixel = np.sqrt(dl * dm)
+        to_sigma = np.sqrt(8.0 * _LN2)
+        sigma = abs(p.get("blur", 0.0)) / to_sigma
+        if sigma < 1.5 * pixel:
+            sigma = np.hypot(sigma, _pixels.MIN_LINE_SIGMA * pixel)
+        return self.brightness(l, m, {**p, "blur": sigma * to_sigma}) * (dl * dm)
 
     def sample_points(self, p, n=1024):
         """Nodes (l, m, weight) of the ring, weighted by the modulation; blurred by Gauss-Hermite

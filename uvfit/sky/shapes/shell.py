@@ -19,7 +19,7 @@ each square root taken as 0 where its argument is negative.
 import numpy as np
 
 from uvfit.sky.shape import Shape
-from uvfit.sky.shapes import _radial
+from uvfit.sky.shapes import _pixels, _radial
 from uvfit.sky.shapes._quadrature import shell_points
 
 #: Gauss-Legendre nodes on [0, 1] for the thin-shell branch; with 2 pi q (Ro - Ri) <= 1 the
@@ -174,6 +174,14 @@ class Sphere(Shape):
         radius = abs(p["radius"])
         r = np.hypot(np.asarray(l, dtype=float), np.asarray(m, dtype=float))
         return 3.0 * _projected_root(radius, r) / (2.0 * np.pi * radius ** 3)
+
+    def pixel_fractions(self, l, m, p):
+        """Flux fraction per pixel: brightness averaged over 4 x 4 sub-pixel points; a sphere
+        under two pixels across is drawn as a pixel-wide Gaussian of the same second moment
+        (R^2/5 per axis), keeping its flux."""
+        radius = abs(p["radius"])
+        return _pixels.compact_or_oversampled(lambda a, b: self.brightness(a, b, p), l, m,
+                                              2 * radius, radius ** 2 / 5.0)
 
     def sample_points(self, p, n=64):
         """Quadrature nodes (l, m, weight) of the 3-D ball projected on the sky."""

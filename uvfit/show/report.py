@@ -167,8 +167,13 @@ def data_summary_table(summary, vset, model=None):
 def parameter_rows(parameters):
     rows = []
     for name, p in parameters.items():
-        rows.append([name, p.get("value"), p.get("error"), p.get("unit", ""),
-                     "free" if p.get("free", True) else "fixed/tied"])
+        if p.get("free", True):
+            status = "free"
+        elif p.get("tie"):
+            status = f"tied: {p['tie']}"
+        else:
+            status = "fixed"
+        rows.append([name, p.get("value"), p.get("error"), p.get("unit", ""), status])
     return rows
 
 

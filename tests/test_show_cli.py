@@ -171,3 +171,16 @@ def test_bad_inputs_are_clear(sim_files, tmp_path):
     html.write_text("keep")
     _fails(run("report", data, "--fit", fit, "-o", html), "exists")
     assert html.read_text() == "keep"
+
+
+def test_report_on_real_data(real_files):
+    d, data, fit = real_files
+    out = d / "report.html"
+    res = run("report", data, "--fit", fit, "-o", out, "--force")
+    assert res.returncode == 0, res.stderr
+    text = out.read_text(encoding="utf-8")
+    assert text.count('src="data:image/png;base64,') == 4  # radial, coverage, closure, sky
+    # the stations of the lo-band file (ABOUT.md of the data: 8 stations, 7 with good rows here)
+    for station in ("AA", "AP", "AZ", "JC", "LM", "PV", "SM"):
+        assert station in text
+    assert "closure_phase_chi2" in text and "Cautions" in text

@@ -4,7 +4,6 @@ Expected values come from outside uvfit's model code: the Gaussian visibility an
 theorem (Pearson 1995; see tests/show_sim.py), Hermitian symmetry and the closure-phase invariance
 under station phase errors (REFERENCES.md, "Conventions", "Closure quantities").
 """
-import itertools
 
 import numpy as np
 import pytest

@@ -214,7 +214,12 @@ def open_fit_view(data_path, fit_path, options=None):
     if selection:
         from ..data.select import apply_selection
         vset, notes = apply_selection(vset, **selection)
-    return fit_view(vset.good(), fit, selection), list(notes)
+        notes = list(notes)
+    fitted = fit.get("data")
+    if fitted and os.path.basename(str(fitted)) != os.path.basename(os.fspath(data_path)):
+        notes.append(f"note: the fit was made on {os.path.basename(str(fitted))}, the figures show "
+                     f"{os.path.basename(os.fspath(data_path))}")
+    return fit_view(vset.good(), fit, selection), notes
 
 
 def order_chain(samples, model, posterior):

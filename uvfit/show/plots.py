@@ -286,8 +286,6 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
             ph = np.degrees(np.asarray(series["phase"])[sel][order])
             sg = np.degrees(np.clip(np.asarray(series["sigma"])[sel][order], 0, np.pi))
             md = np.degrees(np.asarray(series["model"])[sel][order])
-            # draw the model continuous near the data: unwrap it relative to the data phase
-            md_near = ph + _wrap_deg(md - ph)
             ax.errorbar(h, ph, yerr=sg, fmt="o", ms=3, lw=0.7, color=DATA_COLOUR, alpha=0.7,
                         label="data ±1σ")
             hx, mx = _break_gaps(h, md)
@@ -298,8 +296,7 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
             ax.set_yticks([-180, -90, 0, 90, 180])
             if k == 0:
                 ax.legend(loc="upper right", fontsize=8)
-            panels[tri] = {"hours": h, "phase_deg": ph, "sigma_deg": sg, "model_deg": md,
-                           "model_near_deg": md_near}
+            panels[tri] = {"hours": h, "phase_deg": ph, "sigma_deg": sg, "model_deg": md}
         for k in range(n, nrow * ncol):
             axes[k // ncol][k % ncol].set_visible(False)
         for c in range(ncol):

@@ -13,6 +13,7 @@ import numpy as np
 from .. import __version__
 from ..errors import UvfitError
 from . import plots, style
+from .sky import sky_figure
 
 CAUTIONS = [
     ("Model family",
@@ -166,8 +167,13 @@ def data_summary_table(summary, vset, model=None):
 def parameter_rows(parameters):
     rows = []
     for name, p in parameters.items():
-        rows.append([name, p.get("value"), p.get("error"), p.get("unit", ""),
-                     "free" if p.get("free", True) else "fixed/tied"])
+        if p.get("free", True):
+            status = "free"
+        elif p.get("tie"):
+            status = f"tied: {p['tie']}"
+        else:
+            status = "fixed"
+        rows.append([name, p.get("value"), p.get("error"), p.get("unit", ""), status])
     return rows
 
 
@@ -342,7 +348,6 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
                     "triangles (largest sum of 1/σ²): data with 1σ errors and the model.", fig))
     except UvfitError as exc:
         out.append(("closure-phases", f"No closure-phase figure: {exc}", None))
-    from .sky import sky_figure
     fig, _ = sky_figure(view)
     out.append(("sky", "The fitted model on the sky (east to the left) with each component's "
                 "outline and the nominal resolution λ/B_max for scale.", fig))

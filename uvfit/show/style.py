@@ -12,7 +12,6 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from ..errors import UvfitError
 from ..outputs import atomic_write
 
 #: Okabe-Ito colours, in their usual order
@@ -85,31 +84,11 @@ def uv_unit(max_uv):
     return 1.0, "λ"
 
 
-# radians per unit, from the definitions of the units (common practice)
-_ARCSEC = np.pi / 180.0 / 3600.0
-ANGLE_UNITS = {
-    "rad": 1.0,
-    "deg": np.pi / 180.0,
-    "arcmin": np.pi / 180.0 / 60.0,
-    "arcsec": _ARCSEC,
-    "mas": 1e-3 * _ARCSEC,
-    "uas": 1e-6 * _ARCSEC,
-    "µas": 1e-6 * _ARCSEC,
-    "μas": 1e-6 * _ARCSEC,
-}
 _ANGLE_LABELS = {"uas": "µas", "μas": "µas", "arcsec": "arcsec", "arcmin": "arcmin"}
 
 
-def radians_per(unit):
-    """Radians in one ``unit`` (rad, deg, arcmin, arcsec, mas, uas)."""
-    try:
-        return ANGLE_UNITS[str(unit)]
-    except KeyError:
-        raise UvfitError(f"unknown angular unit '{unit}'",
-                         "use one of: " + ", ".join(k for k in ANGLE_UNITS if k.isascii())) from None
-
-
 def angle_label(unit):
+    """How an angular unit's name is printed on an axis ("uas" as "µas")."""
     return _ANGLE_LABELS.get(str(unit), str(unit))
 
 

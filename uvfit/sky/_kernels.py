@@ -40,7 +40,7 @@ from numba.extending import intrinsic
 #: rows per chunk: the scratch arrays of one chunk stay in the first-level caches
 CHUNK = 1024
 #: rows of the scratch array ``evaluate`` needs
-SCRATCH_ROWS = 11
+SCRATCH_ROWS = 9
 
 _HALF_PI = math.pi / 2.0
 _TWO_PI = 2.0 * math.pi
@@ -122,155 +122,184 @@ def exp_array(x, out):
 @njit(cache=True, nogil=True)
 def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen_d, gen_g,
              cols, facs, out, jac, want_jac, scratch):
-    """For rows r0 <= i < r1: add every component's visibility to ``out`` (complex, n) and, with ``want_jac``, its
-    derivatives to ``jac`` (complex, (n_free, n)). ``scratch``: float64 (SCRATCH_ROWS, CHUNK)
-    work space, given by the caller so that its memory is accounted for. ``gen_d`` / ``gen_g``
-    hold rows r0..r1 only (index i - r0)."""
+    """For rows r0 <= i < r1: add every component's visibility to ``out`` (complex, n) and, with
+    ``want_jac``, its derivatives to ``jac`` (complex, (n_free, n)). ``scratch``: float64
+    (SCRATCH_ROWS, CHUNK) work space, given by the caller so that its memory is accounted for. ``gen_d`` / ``gen_g`` hold rows r0..r1 only (index
+    i - r0)."""
     ncomp = kinds.size
-    pc = scratch[0]
-    ps = scratch[1]
-    wr = scratch[2]
+    sf = scratch[0]     # spectral factor (nu/nu0)^alpha
+    am = scratch[1]     # amplitude: flux * spectral factor
+    wr = scratch[2]     # W = D P: the unit-flux shifted structure
     wi = scratch[3]
-    dr = scratch[4]
-    di = scratch[5]
-    am = scratch[6]
+    pc = scratch[4]     # P = cos - i sin
+    ps = scratch[5]
+    hs = scratch[6:9]   # real factors h_p with dD/dp = D h_p (Gaussians)
     for i0 in range(r0, r1, CHUNK):
         i1 = min(i0 + CHUNK, r1)
         m = i1 - i0
+        o = out[i0:i1]
+        uc = u[i0:i1]
+        vc = v[i0:i1]
         for c in range(ncomp):
             kind = kinds[c]
             flux = par[c, 0]
             l0 = par[c, 1]
             m0 = par[c, 2]
             si = sidx[c]
-            # --- shape structure D (real for kinds 0-2) and, with want_jac, dD per parameter
-            if kind == 0:
-                for j in range(m):
-                    dr[j] = 1.0
-                    di[j] = 0.0
-            elif kind == 1:
-                th = par[c, 3]
-                a = -C_VIS * th * th
-                if want_jac:
-                    g = scratch[8]
-                    b = -2.0 * C_VIS * th
-                    for j in range(m):
-                        i = i0 + j
-                        q2 = u[i] * u[i] + v[i] * v[i]
-                        d = exp_(a * q2)
-                        dr[j] = d
-                        di[j] = 0.0
-                        g[j] = b * q2 * d
-                else:
-                    for j in range(m):
-                        i = i0 + j
-                        dr[j] = exp_(a * (u[i] * u[i] + v[i] * v[i]))
-                        di[j] = 0.0
-            elif kind == 2:
-                fa = par[c, 3]
-                rho = par[c, 4]
-                phi = par[c, 5]
-                sp = math.sin(phi)
-                cp = math.cos(phi)
-                r2 = rho * rho
-                a2c = -C_VIS * fa * fa
-                if want_jac:
-                    g0 = scratch[8]
-                    g1 = scratch[9]
-                    g2 = scratch[10]
-                    for j in range(m):
-                        i = i0 + j
-                        qp = u[i] * sp + v[i] * cp
-                        qn = u[i] * cp - v[i] * sp
-                        qp2 = qp * qp
-                        qn2 = qn * qn
-                        d = exp_(a2c * (qp2 + r2 * qn2))
-                        cv = -C_VIS * d
-                        dr[j] = d
-                        di[j] = 0.0
-                        g0[j] = cv * 2.0 * fa * (qp2 + r2 * qn2)
-                        g1[j] = cv * 2.0 * fa * fa * rho * qn2
-                        g2[j] = cv * 2.0 * fa * fa * (1.0 - r2) * qp * qn
-                else:
-                    for j in range(m):
-                        i = i0 + j
-                        qp = u[i] * sp + v[i] * cp
-                        qn = u[i] * cp - v[i] * sp
-                        dr[j] = exp_(a2c * (qp * qp + r2 * qn * qn))
-                        di[j] = 0.0
-            else:
-                gi = gidx[c]
-                for j in range(m):
-                    z = gen_d[gi, i0 + j - r0]
-                    dr[j] = z.real
-                    di[j] = z.imag
-            # --- phase, amplitude, visibility
             if si >= 0:
                 for j in range(m):
-                    am[j] = flux * spec[si, i0 + j]
+                    sf[j] = spec[si, i0 + j]
+                    am[j] = flux * sf[j]
             else:
                 for j in range(m):
+                    sf[j] = 1.0
                     am[j] = flux
-            for j in range(m):
-                i = i0 + j
-                s, co = sincos_turns(u[i] * l0 + v[i] * m0)
-                # W = D P, P = cos - i sin
-                xr = dr[j] * co + di[j] * s
-                xi = di[j] * co - dr[j] * s
-                pc[j] = co
-                ps[j] = s
-                wr[j] = xr
-                wi[j] = xi
-                out[i] += complex(am[j] * xr, am[j] * xi)
             if not want_jac:
+                # ---- visibility only: one fused loop per shape
+                if kind == 0:
+                    for j in range(m):
+                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                        xi = -s
+                        o[j] += complex(am[j] * co, am[j] * xi)
+                elif kind == 1:
+                    th = par[c, 3]
+                    a = -C_VIS * th * th
+                    for j in range(m):
+                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                        q2 = uc[j] * uc[j] + vc[j] * vc[j]
+                        d = exp_(a * q2)
+                        xr = d * co
+                        xi = -d * s
+                        o[j] += complex(am[j] * xr, am[j] * xi)
+                elif kind == 2:
+                    fa = par[c, 3]
+                    r2 = par[c, 4] * par[c, 4]
+                    sp = math.sin(par[c, 5])
+                    cp = math.cos(par[c, 5])
+                    a2c = -C_VIS * fa * fa
+                    for j in range(m):
+                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                        qp = uc[j] * sp + vc[j] * cp
+                        qn = uc[j] * cp - vc[j] * sp
+                        d = exp_(a2c * (qp * qp + r2 * qn * qn))
+                        xr = d * co
+                        xi = -d * s
+                        o[j] += complex(am[j] * xr, am[j] * xi)
+                else:
+                    gd = gen_d[gidx[c], i0 - r0:i1 - r0]
+                    for j in range(m):
+                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                        zr = gd[j].real
+                        zi = gd[j].imag
+                        xr = zr * co + zi * s
+                        xi = zi * co - zr * s
+                        o[j] += complex(am[j] * xr, am[j] * xi)
                 continue
-            # --- derivatives, slot by slot, from the chunk's scratch
+            # ---- visibility and derivatives: the phase factor reused by every column. Short
+            # loops over the chunk (few arrays each, so that every one compiles to SIMD code).
             nshape = 0
-            if kind == 1:
+            if kind == 0:
+                for j in range(m):
+                    s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                    wr[j] = co
+                    wi[j] = -s
+            elif kind == 1:
                 nshape = 1
+                th = par[c, 3]
+                a2 = -C_VIS * th * th
+                b = -2.0 * C_VIS * th           # d/d fwhm: -2 c theta q^2 D
+                h0 = hs[0]
+                for j in range(m):
+                    s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                    q2 = uc[j] * uc[j] + vc[j] * vc[j]
+                    d = exp_(a2 * q2)
+                    wr[j] = d * co
+                    wi[j] = -d * s
+                    h0[j] = b * q2
             elif kind == 2:
                 nshape = 3
-            elif kind == 3:
+                fa = par[c, 3]
+                rho = par[c, 4]
+                r2 = rho * rho
+                sp = math.sin(par[c, 5])
+                cp = math.cos(par[c, 5])
+                a2c = -C_VIS * fa * fa
+                b3 = -C_VIS * 2.0 * fa
+                b4 = -C_VIS * 2.0 * fa * fa * rho
+                b5 = -C_VIS * 2.0 * fa * fa * (1.0 - r2)
+                h0 = hs[0]
+                h1 = hs[1]
+                h2 = hs[2]
+                for j in range(m):
+                    s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                    qp = uc[j] * sp + vc[j] * cp
+                    qn = uc[j] * cp - vc[j] * sp
+                    qp2 = qp * qp
+                    qn2 = qn * qn
+                    e = qp2 + r2 * qn2
+                    d = exp_(a2c * e)
+                    wr[j] = d * co
+                    wi[j] = -d * s
+                    h0[j] = b3 * e
+                    h1[j] = b4 * qn2
+                    h2[j] = b5 * qp * qn
+            else:
                 nshape = gnum[c]
-            for slot in range(3 + nshape + (1 if si >= 0 else 0)):
-                col = cols[c, slot]
+                gd = gen_d[gidx[c], i0 - r0:i1 - r0]
+                for j in range(m):
+                    s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                    pc[j] = co
+                    ps[j] = s
+                for j in range(m):
+                    zr = gd[j].real
+                    zi = gd[j].imag
+                    wr[j] = zr * pc[j] + zi * ps[j]
+                    wi[j] = zi * pc[j] - zr * ps[j]
+            for j in range(m):
+                o[j] += complex(am[j] * wr[j], am[j] * wi[j])
+            col = cols[c, 0]
+            if col >= 0:
+                jr = jac[col, i0:i1]
+                f = facs[c, 0]
+                for j in range(m):
+                    h = f * sf[j]
+                    jr[j] += complex(h * wr[j], h * wi[j])
+            for axis in range(2):
+                col = cols[c, 1 + axis]
                 if col < 0:
                     continue
-                f = facs[c, slot]
-                if slot == 0:
-                    if si >= 0:
-                        for j in range(m):
-                            sf = f * spec[si, i0 + j]
-                            jac[col, i0 + j] += complex(sf * wr[j], sf * wi[j])
-                    else:
-                        for j in range(m):
-                            jac[col, i0 + j] += complex(f * wr[j], f * wi[j])
-                elif slot == 1 or slot == 2:
-                    # -2 pi i x A W = 2 pi x A (Wi - i Wr), x = u or v
-                    if slot == 1:
-                        for j in range(m):
-                            h = _TWO_PI * f * am[j] * u[i0 + j]
-                            jac[col, i0 + j] += complex(h * wi[j], -h * wr[j])
-                    else:
-                        for j in range(m):
-                            h = _TWO_PI * f * am[j] * v[i0 + j]
-                            jac[col, i0 + j] += complex(h * wi[j], -h * wr[j])
-                elif slot < 3 + nshape:
-                    p = slot - 3
-                    if kind == 3:
-                        row = gstart[c] + p
-                        for j in range(m):
-                            z = gen_g[row, i0 + j - r0]
-                            h = f * am[j]
-                            jac[col, i0 + j] += complex(h * (z.real * pc[j] + z.imag * ps[j]),
-                                                        h * (z.imag * pc[j] - z.real * ps[j]))
-                    else:
-                        g = scratch[8 + p]
-                        for j in range(m):
-                            h = f * am[j] * g[j]
-                            jac[col, i0 + j] += complex(h * pc[j], -h * ps[j])
+                # -2 pi i x A W = 2 pi x A (Wi - i Wr), x = u (east) or v (north)
+                jr = jac[col, i0:i1]
+                x = uc if axis == 0 else vc
+                f = _TWO_PI * facs[c, 1 + axis]
+                for j in range(m):
+                    h = f * am[j] * x[j]
+                    jr[j] += complex(h * wi[j], -h * wr[j])
+            for p in range(nshape):
+                col = cols[c, 3 + p]
+                if col < 0:
+                    continue
+                jr = jac[col, i0:i1]
+                f = facs[c, 3 + p]
+                if kind == 3:
+                    gg = gen_g[gstart[c] + p, i0 - r0:i1 - r0]
+                    for j in range(m):
+                        zr = gg[j].real
+                        zi = gg[j].imag
+                        h = f * am[j]
+                        jr[j] += complex(h * (zr * pc[j] + zi * ps[j]), h * (zi * pc[j] - zr * ps[j]))
                 else:
+                    # dD/dp = D h_p for the Gaussians: the column is A h_p W
+                    hp = hs[p]
+                    for j in range(m):
+                        h = f * am[j] * hp[j]
+                        jr[j] += complex(h * wr[j], h * wi[j])
+            if si >= 0:
+                col = cols[c, 3 + nshape]
+                if col >= 0:
                     # spectral index: A W ln(nu / nu0)
+                    jr = jac[col, i0:i1]
+                    f = facs[c, 3 + nshape]
                     for j in range(m):
                         h = f * am[j] * logr[si, i0 + j]
-                        jac[col, i0 + j] += complex(h * wr[j], h * wi[j])
+                        jr[j] += complex(h * wr[j], h * wi[j])

@@ -32,6 +32,7 @@ ENGINES = ("numba", "numpy")
 BLOCK = 1 << 16
 
 _chosen = None
+_from_env = None
 _numba_ok = None
 _kernels = None
 
@@ -54,9 +55,10 @@ def numba_available():
 def set_engine(name):
     """Select the engine for this process: "numba", "numpy", or None / "auto" (back to the
     environment variable's choice)."""
-    global _chosen
+    global _chosen, _from_env
     if name is None or str(name).lower() == "auto":
         _chosen = None
+        _from_env = None
         return
     _chosen = _check(str(name).lower())
 
@@ -84,13 +86,18 @@ def _check(name):
 
 
 def current():
-    """Name of the engine that the next evaluation uses."""
+    """Name of the engine that the next evaluation uses (the environment variable is read when
+    first needed; ``set_engine(None)`` reads it again)."""
+    global _from_env
     if _chosen is not None:
         return _chosen
-    env = os.environ.get(ENGINE_VARIABLE, "").strip().lower()
-    if env in ("", "auto"):
-        return "numba" if numba_available() else "numpy"
-    return _check(env)
+    if _from_env is None:
+        env = os.environ.get(ENGINE_VARIABLE, "").strip().lower()
+        if env in ("", "auto"):
+            _from_env = "numba" if numba_available() else "numpy"
+        else:
+            _from_env = _check(env)
+    return _from_env
 
 
 def kernels():
@@ -170,6 +177,10 @@ class Plan:
                     self.facs[c, s] = comp._factor(comp.shape.parameter_kind(ln), rpu)
             if comp.spectral:
                 self.spectral.append((c, comp.reference_frequency, li["spectral_index"]))
+        self.tied = bool(np.any(self.root != np.arange(len(names))))
+        self.fixed_index = np.array([i for i, n in enumerate(names) if n not in col_of], dtype=np.int64)
+        self.fixed_params = [params[names[i]] for i in self.fixed_index]
+        self.no_spectrum = np.full(nc, -1, dtype=np.int64)
         self.gather = gather.ravel()
         self.scale = scale.ravel()
         self.n_generic_rows = ng_rows
@@ -178,7 +189,7 @@ class Plan:
 
 def _structure_key(model):
     pv = model.parameters.values()
-    return (id(model.parameters), len(model.parameters), tuple(map(id, model.components)),
+    return (id(model.parameters), tuple(map(id, pv)), tuple(map(id, model.components)),
             model.rad_per_unit, tuple([p.tie if p.tie is not None else bool(p.fixed) for p in pv]))
 
 
@@ -194,13 +205,18 @@ def plan_of(model):
 
 def value_vector(model, plan, theta):
     """All parameter values (model units) in parameter order, ``theta`` and ties applied."""
-    vals = np.fromiter((p.value for p in model.parameters.values()), dtype=float, count=plan.n_params)
-    if theta is not None:
+    vals = np.empty(plan.n_params)
+    if plan.fixed_params:
+        vals[plan.fixed_index] = [p.value for p in plan.fixed_params]
+    params = model.parameters
+    if theta is None:
+        vals[plan.free] = [params[n].value for n in model.free_names]
+    else:
         theta = np.asarray(theta, dtype=float).ravel()
         if theta.size != plan.n_free:
             raise ModelError(f"got {theta.size} free-parameter values for {plan.n_free} free parameters")
         vals[plan.free] = theta
-    return vals[plan.root]
+    return vals[plan.root] if plan.tied else vals
 
 
 _EMPTY_F = np.zeros((0, 0))
@@ -220,9 +236,10 @@ def evaluate_numba(model, u, v, frequency, theta, gradient):
     out = np.zeros(n, dtype=complex)
     jac = np.zeros((plan.n_free, n), dtype=complex) if gradient else _EMPTY_C
     scratch = np.empty((k.SCRATCH_ROWS, k.CHUNK))
-    sidx = np.full(plan.nc, -1, dtype=np.int64)
+    sidx = plan.no_spectrum
     spec = logr = _EMPTY_F
     if plan.spectral and frequency is not None:
+        sidx = sidx.copy()
         nu = np.broadcast_to(np.asarray(frequency, dtype=float), shape).reshape(-1)
         spec = np.empty((len(plan.spectral), n))
         logr = np.empty((len(plan.spectral), n))

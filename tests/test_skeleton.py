@@ -36,3 +36,13 @@ def test_atomic_write_refuses_overwrite(tmp_path):
         atomic_write(p, "two")
     atomic_write(p, "two", force=True)
     assert p.read_text() == "two"
+
+
+def test_written_files_get_ordinary_permissions(tmp_path):
+    # a written file is readable like any other new file (mode 0666 less the umask; POSIX practice)
+    import os
+    p = tmp_path / "y.txt"
+    atomic_write(p, "x")
+    mask = os.umask(0)
+    os.umask(mask)
+    assert (os.stat(p).st_mode & 0o777) == (0o666 & ~mask)

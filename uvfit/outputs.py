@@ -12,6 +12,13 @@ import numpy as np
 from .errors import UvfitError
 
 
+def _umask_mode():
+    """The mode a plain new file gets (0666 less the umask): temporary files start at 0600."""
+    mask = os.umask(0)
+    os.umask(mask)
+    return 0o666 & ~mask
+
+
 def check_writable(path, force=False):
     """Raise a clear error if ``path`` exists and ``force`` is false, or its folder is missing."""
     path = os.fspath(path)
@@ -34,6 +41,7 @@ def atomic_write(path, data, force=False):
     try:
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
+        os.chmod(tmp, _umask_mode())
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
@@ -57,6 +65,7 @@ def atomic_write_with(path, writer, force=False, suffix=None):
     os.unlink(tmp)
     try:
         writer(tmp)
+        os.chmod(tmp, _umask_mode())
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):

@@ -1,0 +1,104 @@
+"""uvfit sample: posterior distributions of a model's parameters by ensemble MCMC."""
+import os
+import sys
+
+import click
+
+from ..errors import UvfitError
+from ..stats.modes import MODES
+from ._common import force_option, load_data, pop_selection, seed_option, selection_options
+
+
+@click.command("sample")
+@click.argument("data")
+@click.argument("model")
+@click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
+              help="Which quantities the likelihood compares.")
+@click.option("--systematic", type=float, default=0.0, show_default=True, metavar="F",
+              help="Fraction of |V| added in quadrature to every sigma.")
+@click.option("--walkers", type=int, default=None, metavar="N",
+              help="Number of walkers (default max(32, 4 x free parameters); taken from the chain on --resume).")
+@click.option("--max-steps", type=int, default=5000, show_default=True, metavar="N",
+              help="Longest chain (steps per walker, counting steps already in a resumed chain).")
+@seed_option
+@click.option("--procs", type=int, default=1, show_default=True, metavar="N",
+              help="Evaluate the walkers in N processes.")
+@click.option("--chain", "chain_path", default=None, metavar="OUT.h5",
+              help="Keep the chain in this HDF5 file (needed for --resume).")
+@click.option("--resume", is_flag=True, help="Continue the chain in --chain where it stopped.")
+@click.option("--corner", "corner_path", default=None, metavar="OUT.png",
+              help="Write a corner plot of the free parameters.")
+@click.option("--json", "json_path", default=None, metavar="OUT.json",
+              help="Write the posterior summaries as JSON.")
+@click.option("--order-by", type=click.Choice(["flux", "distance"]), default="flux", show_default=True,
+              help="Label components of the same shape in every sample by flux (brightest first) "
+                   "or by distance from the phase centre (nearest first).")
+@click.option("--redshift", type=float, default=0.0, show_default=True,
+              help="Redshift for the rest-frame brightness temperatures.")
+@force_option
+@selection_options
+def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chain_path, resume,
+            corner_path, json_path, order_by, redshift, force, **kwargs):
+    """Sample the posterior of MODEL's free parameters given the visibilities in DATA.
+
+    The chain starts at the least-squares best fit and stops when the autocorrelation time has
+    settled (or at --max-steps). Priors are those of the model file (uniform inside the bounds
+    where none is given). Prints medians with 68% and 95% credible intervals of every free
+    parameter and derived quantity; sizes consistent with zero are given as 95% upper limits.
+    """
+    from .. import load_model
+    from ..infer.sampling import chain_info, sample
+    from ..outputs import check_writable, write_json
+
+    selection = pop_selection(kwargs)
+    if procs < 1:
+        raise UvfitError(f"--procs must be at least 1 (got {procs})")
+    if walkers is not None and walkers < 2:
+        raise UvfitError(f"--walkers must be at least 2 (got {walkers})")
+    if max_steps < 1:
+        raise UvfitError(f"--max-steps must be at least 1 (got {max_steps})")
+    # refuse early, before any long work, whatever would be refused at the end
+    for path in (json_path, corner_path):
+        if path is not None:
+            check_writable(path, force)
+    previous = 0
+    if resume:
+        if chain_path is None:
+            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
+        if not os.path.exists(chain_path):
+            raise UvfitError(f"there is no chain file {chain_path} to resume",
+                             "run once without --resume to start the chain")
+        previous = chain_info(chain_path)["iteration"]
+    elif chain_path is not None and os.path.exists(chain_path) and not force:
+        raise UvfitError(f"the chain file {chain_path} exists already",
+                         "pass --resume to continue it, or --force to start it again")
+
+    vset = load_data(data, selection)
+    sky = load_model(model)
+
+    todo = max(max_steps - previous, 0)
+    with click.progressbar(length=max(todo, 1), label="sampling", file=sys.stderr,
+                           show_pos=True) as bar:
+        state = {"done": 0}
+
+        def progress(done):
+            bar.update(done - state["done"])
+            state["done"] = done
+
+        post = sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
+                      max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
+                      resume=resume, force=force, order_by=order_by, progress=progress,
+                      redshift=redshift, data_path=data)
+    for note in post.notes:
+        click.echo(f"note: {note}", err=True)
+    click.echo(post.table())
+    click.echo("Credible intervals hold for this model family and these data weights; calibration "
+               "errors outside the statistic are not in them.")
+    if json_path is not None:
+        out = post.to_dict()
+        out["selection"] = {k: v for k, v in selection.items() if v not in (None, ())}
+        write_json(json_path, out, force=force)
+        click.echo(f"wrote {json_path}", err=True)
+    if corner_path is not None:
+        post.corner_plot(corner_path, force=force)
+        click.echo(f"wrote {corner_path}", err=True)

@@ -1,0 +1,391 @@
+"""Construction of closure phases and log closure amplitudes from a VisibilitySet.
+
+A closure quantity is a signed sum over a few visibility rows:
+
+- closure phase on the triangle (a, b, c):  psi = arg V_ab + arg V_bc + arg V_ca;
+- log closure amplitude on the quadrangle (a, b, c, d):
+  log CA = log|V_ab| + log|V_cd| - log|V_ac| - log|V_bd|, i.e. CA = |V_ab| |V_cd| / (|V_ac| |V_bd|).
+
+Both are unchanged by any station-based complex gain g_a, because V_ab -> g_a conj(g_b) V_ab and the
+gains cancel around the loop (Thompson, Moran & Swenson 2017, ch. 10). Each closure is stored as
+the rows it uses and a sign per row, so that the same closure can be evaluated on any set of
+visibilities at those rows (data, model, corrupted data): closure phase = sum_k s_k arg V[row_k],
+log closure amplitude = sum_k t_k log|V[row_k]|. A row stored on (b, a) although the loop needs
+(a, b) enters with s = -1 (V_ab = conj V_ba); amplitudes do not care about the orientation.
+
+Snapshots. Closures are formed among rows observed at exactly the same time and in the same channel
+(and frequency). Within a snapshot a baseline observed twice keeps its highest-SNR row; rows
+between a station and itself are ignored.
+
+SNR cut. A row takes part only if its thermal SNR |V| / sigma is at least ``snr_cut`` (default 3):
+below that the linear propagation of errors below is poor and the phase noise is far from Gaussian.
+
+Errors (linear propagation, valid at high SNR; Chael et al. 2018, ApJ 857, 23):
+sigma(psi) = sqrt(sum_k (sigma_k / |V_k|)^2) radians and the same sum for the log closure
+amplitude, where sigma_k = sqrt(sigma_thermal^2 + (systematic |V_k|)^2) includes the systematic
+floor (a fraction of |V| added in quadrature). No amplitude debiasing is applied: for a visibility
+of true amplitude A and noise sigma per part, log|V| = log A + n_par/A + (n_perp^2 - n_par^2)/(2A^2)
++ ..., whose mean is log A to second order in 1/SNR, so subtracting sigma^2 from |V|^2 would
+introduce a bias rather than remove one.
+
+Non-redundant set (default). With N stations observing at once there are (N-1)(N-2)/2
+independent closure phases and N(N-3)/2 independent closure amplitudes (TMS 2017, ch. 10):
+- phases: the reference station is the one with the largest summed SNR of its baselines in the
+  snapshot; every triangle through it is taken (these are independent, each holds its own
+  baseline not through the reference). Where baselines are missing, further triangles are added in
+  order of increasing error while they raise the rank of the set (Blackburn et al. 2020, ApJ 894,
+  31 discuss the general construction);
+- amplitudes: every candidate quadrangle (three per set of four stations) is sorted by its error
+  and taken while it raises the rank (greedy selection on a linear matroid, which gives the
+  independent set of maximal size with the smallest summed error).
+The rank is that of the design matrix (closures x baselines, entries the signs). The errors of the
+members of a set are still correlated where they share a baseline; the statistics use the diagonal
+approximation (common practice) and say so.
+
+Full set (``full=True``): every triangle, and for every set of four stations all three closure
+amplitudes that can be formed. It is redundant (its members are linear combinations of one another)
+so a chi-square over it counts the same information several times: use it to look, not to weigh.
+"""
+from dataclasses import dataclass, field
+from functools import lru_cache
+from itertools import combinations
+
+import numpy as np
+
+from ..errors import DataError
+
+#: default SNR cut on the contributing visibilities (thermal SNR |V| / sigma)
+DEFAULT_SNR_CUT = 3.0
+
+#: words used in outputs for the error model of the closure set
+COVARIANCE_NOTE = ("diagonal approximation: errors by linear propagation; correlations between "
+                   "closures that share a baseline are ignored")
+
+
+@dataclass
+class ClosureSet:
+    """Closure quantities of one kind ("phase" or "amplitude") built from a VisibilitySet.
+
+    Arrays over the closures (length n): ``rows`` (n, k) row indices into the VisibilitySet the
+    set was built from (k = 3 for phases, 4 for amplitudes), ``signs`` (n, k) of +1 / -1,
+    ``stations`` (n, k) station-table indices in loop order (triangle a, b, c; quadrangle a, b, c, d
+    meaning |V_ab| |V_cd| / (|V_ac| |V_bd|)), ``time`` (MJD), ``frequency`` (Hz), ``channel``,
+    ``snapshot`` (index of the snapshot), ``value`` (closure phase in radians wrapped into
+    (-pi, pi], or natural log of the closure amplitude) and ``sigma`` (same units).
+    """
+
+    kind: str
+    rows: np.ndarray
+    signs: np.ndarray
+    stations: np.ndarray
+    time: np.ndarray
+    frequency: np.ndarray
+    channel: np.ndarray
+    snapshot: np.ndarray
+    value: np.ndarray
+    sigma: np.ndarray
+    station_names: list = field(default_factory=list)
+    full: bool = False
+    snr_cut: float = DEFAULT_SNR_CUT
+    systematic: float = 0.0
+    n_snapshots: int = 0
+
+    def __len__(self):
+        return len(self.value)
+
+    @property
+    def n(self):
+        return len(self.value)
+
+    @property
+    def labels(self):
+        """'A-B-C' (triangle) or 'A-B-C-D' (quadrangle) label of every closure."""
+        names = np.asarray(self.station_names, dtype=object)
+        if self.n == 0:
+            return np.zeros(0, dtype=str)
+        parts = names[self.stations]
+        return np.array(["-".join(p) for p in parts], dtype=str)
+
+    def evaluate(self, vis):
+        """The closure quantities of complex visibilities ``vis`` given at every row of the set's
+        VisibilitySet (vis[row] is used): phases in radians wrapped into (-pi, pi], or log CA."""
+        vis = np.asarray(vis)
+        if self.kind == "phase":
+            return _wrap(np.sum(self.signs * np.angle(vis[self.rows]), axis=1))
+        return np.sum(self.signs * np.log(np.abs(vis[self.rows])), axis=1)
+
+    def design_matrix(self):
+        """(n_closures, n_baselines) matrix of the signs, and the list of baselines (a, b), a < b.
+
+        For phases the entry is the sign with which arg V_ab (a < b in station-table order) enters;
+        for amplitudes the sign with which log|V_ab| enters. Its rank is the number of independent
+        closures in the set.
+        """
+        if self.kind == "phase":
+            s1 = self.stations
+            s2 = np.roll(self.stations, -1, axis=1)
+            orient = np.where(s1 < s2, 1.0, -1.0)
+            pairs = np.stack([np.minimum(s1, s2), np.maximum(s1, s2)], axis=-1)
+            coef = orient
+        else:
+            st = self.stations
+            pairs = np.stack([np.stack([np.minimum(st[:, i], st[:, j]), np.maximum(st[:, i], st[:, j])], -1)
+                              for i, j in ((0, 1), (2, 3), (0, 2), (1, 3))], axis=1)
+            coef = np.broadcast_to(np.array([1.0, 1.0, -1.0, -1.0]), pairs.shape[:2])
+        # one column per (baseline, snapshot): closures of different snapshots never share a column
+        key = np.concatenate([pairs.reshape(-1, 2),
+                              np.repeat(self.snapshot, pairs.shape[1])[:, None]], axis=1)
+        uniq, inv = np.unique(key, axis=0, return_inverse=True)
+        mat = np.zeros((self.n, len(uniq)))
+        rows = np.repeat(np.arange(self.n), pairs.shape[1])
+        np.add.at(mat, (rows, inv.ravel()), coef.ravel())
+        return mat, [tuple(k) for k in uniq]
+
+
+def _wrap(x):
+    """Angles wrapped into (-pi, pi]."""
+    return np.angle(np.exp(1j * np.asarray(x)))
+
+
+# ---------------------------------------------------------------------------- combinatorics
+@lru_cache(maxsize=64)
+def _triangles(n):
+    if n < 3:
+        return np.zeros((0, 3), int)
+    return np.array(list(combinations(range(n), 3)), dtype=int)
+
+
+@lru_cache(maxsize=64)
+def _quadrangles(n):
+    """All closure-amplitude loops (a, b, c, d) of n stations: three per set of four stations."""
+    if n < 4:
+        return np.zeros((0, 4), int)
+    sets = np.array(list(combinations(range(n), 4)), dtype=int)
+    a, b, c, d = sets.T
+    out = np.stack([np.stack([a, b, c, d], 1),      # |ab||cd| / (|ac||bd|)
+                    np.stack([a, d, c, b], 1),      # |ad||bc| / (|ac||bd|)
+                    np.stack([a, b, d, c], 1)],     # |ab||cd| / (|ad||bc|)
+                   axis=1)
+    return out.reshape(-1, 4)
+
+
+def _greedy_independent(vectors, order, start=None, limit=None, tol=1e-9):
+    """Indices (in ``order``) of the vectors taken greedily while they raise the rank.
+
+    ``start``: indices taken first without test (known independent); ``limit``: stop at this rank.
+    Incremental Gram-Schmidt on small dense vectors (length = number of baselines in a snapshot).
+    """
+    basis = []
+    chosen = []
+    if start is not None:
+        for i in start:
+            x = vectors[i].astype(float)
+            for q in basis:
+                x = x - (q @ x) * q
+            nx = np.linalg.norm(x)
+            if nx > tol * max(1.0, np.linalg.norm(vectors[i])):
+                basis.append(x / nx)
+                chosen.append(i)
+    taken = set(chosen)
+    for i in order:
+        if limit is not None and len(chosen) >= limit:
+            break
+        if i in taken:
+            continue
+        x = vectors[i].astype(float)
+        if basis:
+            q = np.array(basis)
+            x = x - q.T @ (q @ x)
+            x = x - q.T @ (q @ x)  # second pass for numerical safety
+        nx = np.linalg.norm(x)
+        if nx > tol * max(1.0, np.linalg.norm(vectors[i])):
+            basis.append(x / nx)
+            chosen.append(i)
+            taken.add(i)
+    return np.array(chosen, dtype=int)
+
+
+def _graph_bounds(n_nodes, edges):
+    """(maximal number of independent closure phases, of closure amplitudes) of a graph.
+
+    Phases: the cycle rank E - V + C (connected components C over the stations with a baseline).
+    Amplitudes: E - rank of the unsigned incidence matrix (the station-gain amplitudes).
+    """
+    if len(edges) == 0:
+        return 0, 0
+    inc = np.zeros((len(edges), n_nodes))
+    idx = np.arange(len(edges))
+    inc[idx, edges[:, 0]] = 1.0
+    inc[idx, edges[:, 1]] = 1.0
+    signed = inc.copy()
+    signed[idx, edges[:, 1]] = -1.0
+    r_signed = np.linalg.matrix_rank(signed)
+    r_unsigned = np.linalg.matrix_rank(inc)
+    return len(edges) - r_signed, len(edges) - r_unsigned
+
+
+# ------------------------------------------------------------------------------- snapshots
+def _snapshots(vset, usable):
+    """Groups of row indices with exactly the same (time, frequency, channel)."""
+    idx = np.flatnonzero(usable)
+    if idx.size == 0:
+        return []
+    t, f, c = vset.time[idx], vset.frequency[idx], vset.channel[idx]
+    order = np.lexsort((c, f, t))
+    idx = idx[order]
+    t, f, c = t[order], f[order], c[order]
+    new = np.ones(idx.size, bool)
+    new[1:] = (t[1:] != t[:-1]) | (f[1:] != f[:-1]) | (c[1:] != c[:-1])
+    starts = np.flatnonzero(new)
+    return np.split(idx, starts[1:])
+
+
+def build_closures(vset, snr_cut=DEFAULT_SNR_CUT, systematic=0.0, full=False, kinds=("phase", "amplitude")):
+    """Closure phases and log closure amplitudes of ``vset`` (see the module docstring).
+
+    Returns a dict kind -> ClosureSet for the requested ``kinds`` ("phase", "amplitude"). Row
+    indices refer to ``vset`` as given (flagged rows never take part). The loop runs over
+    snapshots (times), never over visibilities inside a likelihood.
+    """
+    snr_cut = float(snr_cut if snr_cut is not None else 0.0)
+    systematic = float(systematic or 0.0)
+    if snr_cut < 0 or not np.isfinite(snr_cut):
+        raise DataError(f"the SNR cut must be a finite number >= 0, not {snr_cut}",
+                        "give e.g. --snr-cut 3")
+    if systematic < 0 or not np.isfinite(systematic):
+        raise DataError(f"the systematic floor must be a finite fraction >= 0, not {systematic}",
+                        "give e.g. --systematic 0.02 for 2 per cent of |V|")
+    names = list(vset.stations.names)
+    ant1, ant2 = vset.ant1, vset.ant2
+    amp = np.abs(vset.vis)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        snr = np.where(vset.sigma > 0, amp / vset.sigma, 0.0)
+        sig_eff = np.sqrt(vset.sigma ** 2 + (systematic * amp) ** 2)
+        rel = sig_eff / amp  # sigma / |V| of every row (radians of phase, or of log amplitude)
+    usable = (~vset.flag) & (ant1 != ant2) & np.isfinite(rel) & (amp > 0) & (snr >= snr_cut)
+
+    acc = {k: {"rows": [], "signs": [], "stations": [], "snap": []} for k in kinds}
+    groups = _snapshots(vset, usable)
+    for s_i, rows in enumerate(groups):
+        a1, a2 = ant1[rows], ant2[rows]
+        st = np.unique(np.concatenate([a1, a2]))
+        if st.size < 3:
+            continue
+        # local station order: by name, so that loops are labelled reproducibly across files
+        st = st[np.argsort(np.array([names[i] for i in st]), kind="stable")]
+        n = st.size
+        local = np.full(len(names), -1)
+        local[st] = np.arange(n)
+        p, q = local[a1], local[a2]
+        # one row per baseline: the highest SNR wins
+        rowof = np.full((n, n), -1)
+        best = np.full((n, n), -np.inf)
+        for r, i, j in zip(rows, p, q):  # rows of one snapshot: tens at most
+            if snr[r] > best[i, j]:
+                best[i, j] = best[j, i] = snr[r]
+                rowof[i, j] = rowof[j, i] = r
+        sign = np.zeros((n, n))
+        present = rowof >= 0
+        rr = rowof[present]
+        ii, jj = np.nonzero(present)
+        sign[ii, jj] = np.where(ant1[rr] == st[ii], 1.0, -1.0)
+        e_i, e_j = np.nonzero(np.triu(present, 1))
+        edges = np.stack([e_i, e_j], 1)
+        eid = np.full((n, n), -1)
+        eid[e_i, e_j] = eid[e_j, e_i] = np.arange(len(edges))
+        max_cp, max_ca = _graph_bounds(n, edges)
+
+        if "phase" in kinds:
+            tri = _triangles(n)
+            loop = np.stack([tri[:, [0, 1]], tri[:, [1, 2]], tri[:, [2, 0]]], axis=1)  # (m, 3, 2)
+            ok = np.all(present[loop[..., 0], loop[..., 1]], axis=1)
+            tri, loop = tri[ok], loop[ok]
+            if len(tri) and not full:
+                tsig = np.sqrt(np.sum(rel[rowof[loop[..., 0], loop[..., 1]]] ** 2, axis=1))
+                vec = np.zeros((len(tri), len(edges)))
+                for k in range(3):
+                    e = eid[loop[:, k, 0], loop[:, k, 1]]
+                    vec[np.arange(len(tri)), e] += np.where(loop[:, k, 0] < loop[:, k, 1], 1.0, -1.0)
+                summed = np.zeros(n)
+                np.add.at(summed, ii, best[ii, jj])
+                ref = int(np.argmax(summed))
+                through = np.flatnonzero(np.any(tri == ref, axis=1))
+                through = through[np.argsort(tsig[through], kind="stable")]
+                pick = _greedy_independent(vec, np.argsort(tsig, kind="stable"), start=through, limit=max_cp)
+                pick = np.sort(pick)
+                tri, loop = tri[pick], loop[pick]
+            if len(tri):
+                _append(acc["phase"], rowof, sign, loop, st, tri, s_i, [1, 1, 1])
+
+        if "amplitude" in kinds:
+            quad = _quadrangles(n)
+            # the four baselines: (a,b), (c,d) numerator; (a,c), (b,d) denominator
+            loop = np.stack([quad[:, [0, 1]], quad[:, [2, 3]], quad[:, [0, 2]], quad[:, [1, 3]]], axis=1)
+            ok = np.all(present[loop[..., 0], loop[..., 1]], axis=1)
+            quad, loop = quad[ok], loop[ok]
+            if len(quad) and not full:
+                qsig = np.sqrt(np.sum(rel[rowof[loop[..., 0], loop[..., 1]]] ** 2, axis=1))
+                vec = np.zeros((len(quad), len(edges)))
+                for k, t in enumerate((1.0, 1.0, -1.0, -1.0)):
+                    e = eid[loop[:, k, 0], loop[:, k, 1]]
+                    vec[np.arange(len(quad)), e] += t
+                pick = np.sort(_greedy_independent(vec, np.argsort(qsig, kind="stable"), limit=max_ca))
+                quad, loop = quad[pick], loop[pick]
+            if len(quad):
+                _append(acc["amplitude"], rowof, None, loop, st, quad, s_i, [1, 1, -1, -1])
+
+    out = {}
+    for kind in kinds:
+        a = acc[kind]
+        k = 3 if kind == "phase" else 4
+        if a["rows"]:
+            rows = np.concatenate(a["rows"])
+            signs = np.concatenate(a["signs"])
+            stations = np.concatenate(a["stations"])
+            snap = np.concatenate(a["snap"])
+        else:
+            rows = np.zeros((0, k), int)
+            signs = np.zeros((0, k))
+            stations = np.zeros((0, k), int)
+            snap = np.zeros(0, int)
+        first = rows[:, 0] if len(rows) else np.zeros(0, int)
+        cs = ClosureSet(kind=kind, rows=rows, signs=signs, stations=stations,
+                        time=vset.time[first], frequency=vset.frequency[first],
+                        channel=vset.channel[first], snapshot=snap,
+                        value=np.zeros(len(rows)), sigma=np.sqrt(np.sum(rel[rows] ** 2, axis=1)),
+                        station_names=names, full=bool(full), snr_cut=snr_cut,
+                        systematic=systematic, n_snapshots=len(groups))
+        cs.value = cs.evaluate(vset.vis)
+        out[kind] = cs
+    return out
+
+
+def _append(store, rowof, sign, loop, st, members, s_i, coef):
+    rows = rowof[loop[..., 0], loop[..., 1]]
+    if sign is None:
+        signs = np.broadcast_to(np.asarray(coef, float), rows.shape).copy()
+    else:
+        signs = sign[loop[..., 0], loop[..., 1]] * np.asarray(coef, float)
+    store["rows"].append(rows)
+    store["signs"].append(signs)
+    store["stations"].append(st[members])
+    store["snap"].append(np.full(len(rows), s_i))
+
+
+def no_closure_error(vset, kind, snr_cut):
+    """The DataError for a set from which no closure of ``kind`` can be formed, with the reason."""
+    need = 3 if kind == "phase" else 4
+    what = "closure phases" if kind == "phase" else "closure amplitudes"
+    usable = (~vset.flag) & (vset.ant1 != vset.ant2)
+    most = 0
+    for rows in _snapshots(vset, usable):
+        most = max(most, np.unique(np.concatenate([vset.ant1[rows], vset.ant2[rows]])).size)
+    if most < need:
+        return DataError(f"no {what} can be formed: at most {most} station(s) observe at the same "
+                         f"time and channel, and {what} need {need}",
+                         "closures need at least three (phases) or four (amplitudes) stations "
+                         "observing at once; check the selection (--stations, --exclude-stations, "
+                         "--time-range) or use a visibility mode")
+    return DataError(f"no {what} can be formed after the SNR cut of {snr_cut:g} on the "
+                     f"contributing visibilities",
+                     "lower --snr-cut, or average in time (--average) to raise the SNR")

@@ -40,7 +40,7 @@ from numba.extending import intrinsic
 #: rows per chunk: the scratch arrays of one chunk stay in the first-level caches
 CHUNK = 1024
 #: rows of the scratch array ``evaluate`` needs
-SCRATCH_ROWS = 9
+SCRATCH_ROWS = 10
 
 _HALF_PI = math.pi / 2.0
 _TWO_PI = 2.0 * math.pi
@@ -121,11 +121,20 @@ def exp_array(x, out):
 
 @njit(cache=True, nogil=True)
 def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen_d, gen_g,
-             cols, facs, out, jac, want_jac, scratch):
+             cols, facs, out, jac, want_jac, scratch, data, weight, local):
     """For rows r0 <= i < r1: add every component's visibility to ``out`` (complex, n) and, with
     ``want_jac``, its derivatives to ``jac`` (complex, (n_free, n)). ``scratch``: float64
-    (SCRATCH_ROWS, CHUNK) work space, given by the caller so that its memory is accounted for. ``gen_d`` / ``gen_g`` hold rows r0..r1 only (index
-    i - r0)."""
+    (SCRATCH_ROWS, CHUNK) work space, given by the caller so that its memory is accounted for.
+    ``gen_d`` / ``gen_g`` hold rows r0..r1 only (index i - r0).
+
+    With ``data`` (complex, n; not empty) and ``weight`` (n), nothing is written to ``out``: the
+    model of each chunk goes to ``local`` (complex, CHUNK) and the return value is
+    sum weight |data - V|^2 over the rows (0.0 otherwise)."""
+    reduce = data.size > 0
+    acc = scratch[9]    # per-position partial sums of weight |data - V|^2
+    if reduce:
+        for j in range(CHUNK):
+            acc[j] = 0.0
     ncomp = kinds.size
     sf = scratch[0]     # spectral factor (nu/nu0)^alpha
     am = scratch[1]     # amplitude: flux * spectral factor
@@ -137,7 +146,13 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
     for i0 in range(r0, r1, CHUNK):
         i1 = min(i0 + CHUNK, r1)
         m = i1 - i0
-        o = out[i0:i1]
+        if reduce:
+            # start from -data: after the components o holds V - data
+            o = local[0:m]
+            for j in range(m):
+                o[j] = -data[i0 + j]
+        else:
+            o = out[i0:i1]
         uc = u[i0:i1]
         vc = v[i0:i1]
         for c in range(ncomp):
@@ -303,3 +318,13 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
                     for j in range(m):
                         h = f * am[j] * logr[si, i0 + j]
                         jr[j] += complex(h * wr[j], h * wi[j])
+        if reduce:
+            for j in range(m):
+                dr = o[j].real
+                di = o[j].imag
+                acc[j] += weight[i0 + j] * (dr * dr + di * di)
+    total = 0.0
+    if reduce:
+        for j in range(CHUNK):
+            total += acc[j]
+    return total

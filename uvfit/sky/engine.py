@@ -223,8 +223,13 @@ _EMPTY_F = np.zeros((0, 0))
 _EMPTY_C = np.zeros((0, 0), dtype=complex)
 
 
-def evaluate_numba(model, u, v, frequency, theta, gradient):
-    """(vis, jac or None) with the compiled kernel; u, v: equal-shaped float arrays."""
+_EMPTY_C1 = np.zeros(0, dtype=complex)
+_EMPTY_R1 = np.zeros(0)
+
+
+def evaluate_numba(model, u, v, frequency, theta, gradient, data=None, weight=None):
+    """(vis, jac or None) with the compiled kernel; u, v: equal-shaped float arrays. With ``data``
+    and ``weight`` (flat, one per row): the float sum weight |data - V|^2 instead."""
     k = kernels()
     plan = plan_of(model)
     vals = value_vector(model, plan, theta)
@@ -233,7 +238,18 @@ def evaluate_numba(model, u, v, frequency, theta, gradient):
     vf = np.ascontiguousarray(v).reshape(-1)
     n = uf.size
     par = (vals[plan.gather] * plan.scale).reshape(plan.nc, 6)
-    out = np.zeros(n, dtype=complex)
+    reduce = data is not None
+    if reduce:
+        data = np.ascontiguousarray(data, dtype=complex).reshape(-1)
+        weight = np.ascontiguousarray(weight, dtype=float).reshape(-1)
+        if data.size != n or weight.size != n:
+            raise ModelError(f"data and weights need one value per row ({n}); got {data.size} and {weight.size}")
+        out = _EMPTY_C1
+        local = np.empty(k.CHUNK, dtype=complex)
+        gradient = False
+    else:
+        data, weight, local = _EMPTY_C1, _EMPTY_R1, _EMPTY_C1
+        out = np.zeros(n, dtype=complex)
     jac = np.zeros((plan.n_free, n), dtype=complex) if gradient else _EMPTY_C
     scratch = np.empty((k.SCRATCH_ROWS, k.CHUNK))
     sidx = plan.no_spectrum
@@ -247,9 +263,11 @@ def evaluate_numba(model, u, v, frequency, theta, gradient):
             np.log(nu / nu0, out=logr[r])
             np.exp(vals[ia] * logr[r], out=spec[r])
             sidx[c] = r
+    total = 0.0
     if not plan.generic:
-        k.evaluate(uf, vf, 0, n, plan.kinds, par, sidx, spec, logr, plan.gidx, plan.gstart, plan.gnum,
-                   _EMPTY_C, _EMPTY_C, plan.cols, plan.facs, out, jac, bool(gradient), scratch)
+        total = k.evaluate(uf, vf, 0, n, plan.kinds, par, sidx, spec, logr, plan.gidx, plan.gstart,
+                           plan.gnum, _EMPTY_C, _EMPTY_C, plan.cols, plan.facs, out, jac, bool(gradient),
+                           scratch, data, weight, local)
     else:
         comps = model.components
         rpu = model.rad_per_unit
@@ -273,8 +291,11 @@ def evaluate_numba(model, u, v, frequency, theta, gradient):
                 else:
                     d = shp.structure(ub, vb, shape_p[g])
                 gen_d[g] = d
-            k.evaluate(uf, vf, b0, b1, plan.kinds, par, sidx, spec, logr, plan.gidx, plan.gstart,
-                       plan.gnum, gen_d, gen_g, plan.cols, plan.facs, out, jac, bool(gradient), scratch)
+            total += k.evaluate(uf, vf, b0, b1, plan.kinds, par, sidx, spec, logr, plan.gidx,
+                                plan.gstart, plan.gnum, gen_d, gen_g, plan.cols, plan.facs, out, jac,
+                                bool(gradient), scratch, data, weight, local)
+    if reduce:
+        return float(total)
     vis = out.reshape(shape)
     if not gradient:
         return vis, None
@@ -319,6 +340,24 @@ def evaluate_numpy(model, u, v, frequency, theta, gradient):
     if gradient:
         jac = jac.reshape(shape + (len(names),))
     return vis, jac
+
+
+def misfit(model, u, v, data, weight, frequency=None, theta=None):
+    """sum weight |data - V_model|^2 over the rows, without an array of model visibilities on the
+    compiled path (the numpy path forms them, in blocks)."""
+    u = np.asarray(u, dtype=float)
+    v = np.asarray(v, dtype=float)
+    if u.shape != v.shape:
+        u, v = np.broadcast_arrays(u, v)
+    if current() == "numba":
+        return evaluate_numba(model, u, v, frequency, theta, False, data, weight)
+    vis = evaluate_numpy(model, u, v, frequency, theta, False)[0].reshape(-1)
+    data = np.asarray(data, dtype=complex).reshape(-1)
+    weight = np.asarray(weight, dtype=float).reshape(-1)
+    if data.size != vis.size or weight.size != vis.size:
+        raise ModelError(f"data and weights need one value per row ({vis.size}); got {data.size} and {weight.size}")
+    d = data - vis
+    return float(np.sum(weight * (d.real ** 2 + d.imag ** 2)))
 
 
 def evaluate(model, u, v, frequency=None, theta=None, gradient=False):

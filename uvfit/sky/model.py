@@ -235,6 +235,13 @@ class SkyModel:
         """(visibilities, jacobian) computed together."""
         return self._evaluate(u, v, frequency, theta, gradient=True)
 
+    def misfit(self, u, v, data, weight, frequency=None, theta=None):
+        """sum_i weight_i |data_i - V_i|^2 (float) over the rows, e.g. chi^2 of complex
+        visibilities with weight = 1 / sigma^2 (sigma per real and imaginary part). The compiled
+        engine forms no array of model visibilities for it (used by likelihoods in samplers)."""
+        from . import engine
+        return engine.misfit(self, u, v, data, weight, frequency=frequency, theta=theta)
+
     def total_flux(self, frequency=None, theta=None):
         """Sum of the component fluxes (Jy): the visibility at zero spacing."""
         vals = self.values(theta)

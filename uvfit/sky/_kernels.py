@@ -124,27 +124,34 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
              cols, facs, out, jac, want_jac, scratch, data, weight, local):
     """For rows r0 <= i < r1: add every component's visibility to ``out`` (complex, n) and, with
     ``want_jac``, its derivatives to ``jac`` (complex, (n_free, n)). ``scratch``: float64
-    (SCRATCH_ROWS, CHUNK) work space, given by the caller so that its memory is accounted for.
+    (rows, chunk) work space, given by the caller so that its memory is accounted for: rows =
+    SCRATCH_ROWS with ``want_jac``, else 3 (with ``data``) or 2; chunk (<= CHUNK) the rows done
+    per pass, and the length of ``local``.
     ``gen_d`` / ``gen_g`` hold rows r0..r1 only (index i - r0).
 
     With ``data`` (complex, n; not empty) and ``weight`` (n), nothing is written to ``out``: the
-    model of each chunk goes to ``local`` (complex, CHUNK) and the return value is
+    model of each chunk goes to ``local`` (complex, chunk) and the return value is
     sum weight |data - V|^2 over the rows (0.0 otherwise)."""
-    reduce = data.size > 0
-    acc = scratch[9]    # per-position partial sums of weight |data - V|^2
-    if reduce:
-        for j in range(CHUNK):
-            acc[j] = 0.0
     ncomp = kinds.size
+    reduce = data.size > 0
+    chunk = scratch.shape[1]
     sf = scratch[0]     # spectral factor (nu/nu0)^alpha
     am = scratch[1]     # amplitude: flux * spectral factor
-    wr = scratch[2]     # W = D P: the unit-flux shifted structure
-    wi = scratch[3]
-    pc = scratch[4]     # P = cos - i sin
-    ps = scratch[5]
-    hs = scratch[6:9]   # real factors h_p with dD/dp = D h_p (Gaussians)
-    for i0 in range(r0, r1, CHUNK):
-        i1 = min(i0 + CHUNK, r1)
+    acc = scratch[2] if reduce else scratch[0]   # partial sums of weight |data - V|^2
+    if want_jac:
+        wr = scratch[3]     # W = D P: the unit-flux shifted structure
+        wi = scratch[4]
+        pc = scratch[5]     # P = cos - i sin
+        ps = scratch[6]
+        hs = scratch[7:10]  # real factors h_p with dD/dp = D h_p (Gaussians)
+    else:
+        wr = wi = pc = ps = scratch[0]
+        hs = scratch[0:1]
+    if reduce:
+        for j in range(chunk):
+            acc[j] = 0.0
+    for i0 in range(r0, r1, chunk):
+        i1 = min(i0 + chunk, r1)
         m = i1 - i0
         if reduce:
             # start from -data: after the components o holds V - data
@@ -325,6 +332,6 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
                 acc[j] += weight[i0 + j] * (dr * dr + di * di)
     total = 0.0
     if reduce:
-        for j in range(CHUNK):
+        for j in range(chunk):
             total += acc[j]
     return total

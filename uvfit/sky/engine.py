@@ -245,13 +245,15 @@ def evaluate_numba(model, u, v, frequency, theta, gradient, data=None, weight=No
         if data.size != n or weight.size != n:
             raise ModelError(f"data and weights need one value per row ({n}); got {data.size} and {weight.size}")
         out = _EMPTY_C1
-        local = np.empty(k.CHUNK, dtype=complex)
         gradient = False
     else:
         data, weight, local = _EMPTY_C1, _EMPTY_R1, _EMPTY_C1
         out = np.zeros(n, dtype=complex)
     jac = np.zeros((plan.n_free, n), dtype=complex) if gradient else _EMPTY_C
-    scratch = np.empty((k.SCRATCH_ROWS, k.CHUNK))
+    chunk = min(k.CHUNK, max(n, 1))
+    scratch = np.empty((k.SCRATCH_ROWS if gradient else (3 if reduce else 2), chunk))
+    if reduce:
+        local = np.empty(chunk, dtype=complex)
     sidx = plan.no_spectrum
     spec = logr = _EMPTY_F
     if plan.spectral and frequency is not None:

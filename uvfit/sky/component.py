@@ -17,6 +17,22 @@ from .shape import render_fractions
 DEG = np.pi / 180.0
 
 
+def shift_factor(u, v, l0, m0):
+    """exp[-2 pi i (u l0 + v m0)] (shift theorem), one sine and one cosine per row.
+
+    The phase is reduced in turns first (t - round(t) is exact), so that a phase of many turns
+    loses no accuracy to the rounding of 2 pi t."""
+    t = u * l0
+    t += v * m0
+    t -= np.rint(t)
+    t *= 2.0 * np.pi
+    out = np.empty(t.shape, dtype=complex)
+    np.cos(t, out=out.real)
+    np.sin(t, out=out.imag)
+    np.negative(out.imag, out=out.imag)
+    return out
+
+
 class Component:
     """``name``, ``shape`` (a Shape instance), and an optional spectral index.
 
@@ -96,7 +112,7 @@ class Component:
             phase = None
             shaped = np.asarray(struct)
         else:
-            phase = np.exp(-2j * np.pi * (u * l0 + v * m0))
+            phase = shift_factor(u, v, l0, m0)
             shaped = struct * phase
         spec, logr = self.spectral_factor(frequency, values)
         flux = float(values["flux"])

@@ -217,25 +217,10 @@ class SkyModel:
 
     # -- prediction ---------------------------------------------------------------------------
     def _evaluate(self, u, v, frequency, theta, gradient):
-        u, v = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(v, dtype=float))
-        if frequency is not None:
-            frequency = np.broadcast_to(np.asarray(frequency, dtype=float), u.shape) \
-                if np.ndim(frequency) else float(frequency)
-        vals = self.values(theta)
-        names = self.free_names
-        index = {n: j for j, n in enumerate(names)}
-        vis = np.zeros(u.shape, dtype=complex)
-        jac = np.zeros(u.shape + (len(names),), dtype=complex) if gradient else None
-        for comp in self.components:
-            local = {ln: vals[f"{comp.name}.{ln}"] for ln in comp.parameter_names()}
-            vc, grads = comp.evaluate(u, v, frequency, local, self.rad_per_unit, gradient=gradient)
-            vis += vc
-            if gradient:
-                for ln, d in grads.items():
-                    j = index.get(self.root(f"{comp.name}.{ln}"))
-                    if j is not None:
-                        jac[..., j] += d
-        return vis, jac
+        """(vis, jac or None) by the current visibility engine (``uvfit.sky.engine``: a compiled
+        kernel, or the numpy reference path; both give the same numbers)."""
+        from . import engine
+        return engine.evaluate(self, u, v, frequency, theta, gradient)
 
     def visibilities(self, u, v, frequency=None, theta=None):
         """Model visibilities (complex Jy) at (u, v) in wavelengths; ``frequency`` (Hz, scalar or
@@ -249,6 +234,13 @@ class SkyModel:
     def visibilities_and_jacobian(self, u, v, frequency=None, theta=None):
         """(visibilities, jacobian) computed together."""
         return self._evaluate(u, v, frequency, theta, gradient=True)
+
+    def misfit(self, u, v, data, weight, frequency=None, theta=None):
+        """sum_i weight_i |data_i - V_i|^2 (float) over the rows, e.g. chi^2 of complex
+        visibilities with weight = 1 / sigma^2 (sigma per real and imaginary part). The compiled
+        engine forms no array of model visibilities for it (used by likelihoods in samplers)."""
+        from . import engine
+        return engine.misfit(self, u, v, data, weight, frequency=frequency, theta=theta)
 
     def total_flux(self, frequency=None, theta=None):
         """Sum of the component fluxes (Jy): the visibility at zero spacing."""

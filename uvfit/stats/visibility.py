@@ -123,6 +123,41 @@ class ComplexStatistic(Statistic):
     def degeneracies(self):
         return []
 
+    # chi2 and log-likelihood straight from the model's misfit sum (no residual vector), with the
+    # complex data, weights and normalisation kept until ``data`` or ``sigma`` is replaced
+    def _misfit_parts(self):
+        cache = self.__dict__.get("_misfit_cache")
+        if cache is not None and cache[0] is self.data and cache[1] is self.sigma:
+            return cache[2]
+        n = self.rows.n
+        s = self.sigma
+        parts = None
+        if s.shape == (2 * n,) and self.data.shape == (2 * n,) and np.array_equal(s[:n], s[n:]):
+            data = self.data[:n] + 1j * self.data[n:]
+            weight = 1.0 / s[:n] ** 2
+            norm = -float(np.sum(np.log(s))) - 0.5 * s.size * np.log(2 * np.pi)
+            parts = (data, weight, norm)
+        self.__dict__["_misfit_cache"] = (self.data, self.sigma, parts)
+        return parts
+
+    def chi2(self, theta):
+        fast = getattr(self.model, "misfit", None)
+        parts = self._misfit_parts() if fast is not None else None
+        if parts is None:
+            return super().chi2(theta)
+        r = self.rows
+        return float(fast(r.u, r.v, parts[0], parts[1], frequency=r.frequency, theta=theta))
+
+    def log_likelihood(self, theta):
+        """Gaussian log-likelihood, including the normalisation (as ``Statistic``)."""
+        fast = getattr(self.model, "misfit", None)
+        parts = self._misfit_parts() if fast is not None else None
+        if parts is None:
+            return super().log_likelihood(theta)
+        r = self.rows
+        return float(-0.5 * fast(r.u, r.v, parts[0], parts[1], frequency=r.frequency, theta=theta)
+                     + parts[2])
+
 
 class AmplitudeStatistic(Statistic):
     """Visibility amplitudes, debiased at high SNR, Rice mean at low SNR; Rice likelihood."""

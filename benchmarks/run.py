@@ -1,0 +1,353 @@
+"""Speed of the visibility engine, as ratios measured in one run on one machine.
+
+    python3 benchmarks/run.py [--quick] [-o benchmarks/results/latest.json] [--force]
+                              [--engine numba|numpy]
+
+Prints a table and writes the same numbers as JSON (never over an existing file without --force).
+Every time is the minimum over repeats (``timeit``), each measured quantity and its reference
+interleaved repeat by repeat so that both see the same load; compiled code is warmed up first.
+Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcseconds.
+
+1. trig_bound: time of one evaluation of a two-component model (two offset circular Gaussians)
+   divided by the time of the bare trigonometric work over the same arrays: numpy sin and cos of
+   the phase, once per component, into preallocated arrays (the phase itself precomputed, so not
+   counted). Also given against the engine's own sine-cosine kernel over the same phases.
+2. jacobian_fit: least squares (scipy.optimize.least_squares, trust-region reflective, the
+   options of uvfit.infer.lsq) of a three-component model to 1e5 visibilities through the complex
+   statistic, with the analytic Jacobian and with two-point finite differences; time ratio,
+   evaluations, and the difference of the optima in units of the parameters' errors.
+3. scaling: one evaluation of the two-component model at 1e3 ... 1e7 rows (--quick: to 1e6):
+   time per visibility, and the peak of memory allocated during the call (tracemalloc, which
+   numpy reports its allocations to) divided by the size of the data arrays, defined as the
+   bytes of the input u and v (float64) plus the output visibilities (complex128): 32 bytes per
+   row. No frequency is passed (the model has no spectral index). The engine's scratch space is
+   allocated by numpy and so counted.
+4. sampler_overhead: wall time per step of the project's ensemble sampler (uvfit.infer.sampling,
+   emcee) on the complex-mode log-posterior of the two-component model, divided by (walkers x one
+   model evaluation on the same rows), at 1e4 and 1e5 visibilities (--quick: 1e4).
+"""
+import argparse
+import datetime
+import math
+import os
+import platform
+import sys
+import time
+import timeit
+import tracemalloc
+
+import numpy as np
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
+
+from uvfit.data.visset import VisibilitySet  # noqa: E402
+from uvfit.outputs import write_json  # noqa: E402
+from uvfit.sky import engine  # noqa: E402
+from uvfit.sky.model import SkyModel  # noqa: E402
+
+GOALS = {"trig_bound": ("<=", 1.3), "jacobian_fit": (">=", 5.0), "scaling_flatness": ("<=", 1.3),
+         "scaling_memory": ("<=", 4.0), "sampler_overhead": ("<=", 1.2)}
+
+
+def two_gaussians():
+    return SkyModel.build([
+        {"name": "core", "shape": "gaussian", "flux": 1.0, "east": 0.12, "north": -0.25, "fwhm": 0.3},
+        {"name": "jet", "shape": "gaussian", "flux": 0.5, "east": -0.4, "north": 0.33, "fwhm": 0.5}],
+        angular_unit="mas")
+
+
+def three_components():
+    return SkyModel.build([
+        {"name": "core", "shape": "elliptical_gaussian", "flux": 1.0, "east": {"value": 0.0, "fixed": True},
+         "north": {"value": 0.0, "fixed": True}, "fwhm": 0.25, "axis_ratio": 0.6, "position_angle": 30.0},
+        {"name": "knot", "shape": "gaussian", "flux": 0.4, "east": 0.6, "north": 0.45, "fwhm": 0.35},
+        {"name": "hotspot", "shape": "gaussian", "flux": 0.2, "east": -0.9, "north": -0.3, "fwhm": 0.2}],
+        angular_unit="mas")
+
+
+def uv_rows(n, seed):
+    rng = np.random.default_rng(seed)
+    r = 1e9 * np.sqrt(rng.uniform(0.001, 1.0, n))
+    phi = rng.uniform(0.0, 2.0 * np.pi, n)
+    return r * np.sin(phi), r * np.cos(phi)
+
+
+def simulate(model, n, sigma, seed):
+    u, v = uv_rows(n, seed)
+    rng = np.random.default_rng(seed + 1)
+    vis = model.visibilities(u, v) + sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    return VisibilitySet(u=u, v=v, w=None, time=np.zeros(n), frequency=230e9, station1=["AA"] * n,
+                         station2=["BB"] * n, vis=vis, sigma=np.full(n, sigma))
+
+
+def best_of(funcs, repeat, number=1):
+    """Minimum time (s) of each function over ``repeat`` rounds, the functions interleaved."""
+    best = [math.inf] * len(funcs)
+    for _ in range(repeat):
+        for k, f in enumerate(funcs):
+            t = timeit.timeit(f, number=number) / number
+            best[k] = min(best[k], t)
+    return best
+
+
+def repeats_for(n, quick):
+    base = 2e6 if quick else 1e7
+    return int(min(200, max(5 if not quick else 3, base / max(n, 1))))
+
+
+# ------------------------------------------------------------------------------------------ 1
+def trig_bound(quick):
+    model = two_gaussians()
+    theta = model.get_free()
+    rpu = model.rad_per_unit
+    out = {}
+    for n in ([10 ** 5] if quick else [10 ** 5, 10 ** 6]):
+        u, v = uv_rows(n, 1)
+        turns = [u * (c["east"] * rpu) + v * (c["north"] * rpu) for c in model.members()]
+        phases = [2.0 * np.pi * t for t in turns]
+        s = np.empty(n)
+        c = np.empty(n)
+
+        def numpy_trig():
+            for ph in phases:
+                np.sin(ph, out=s)
+                np.cos(ph, out=c)
+
+        funcs = [lambda: model.visibilities(u, v, theta=theta), numpy_trig]
+        if engine.current() == "numba":
+            k = engine.kernels()
+            k.sincos_array(turns[0], s, c)
+
+            def own_trig():
+                for t in turns:
+                    k.sincos_array(t, s, c)
+            funcs.append(own_trig)
+        for f in funcs:
+            f()
+        times = best_of(funcs, repeats_for(n, quick) * 2)
+        row = {"rows": n, "model_ns_per_row": times[0] / n * 1e9,
+               "numpy_sin_cos_ns_per_row": times[1] / n * 1e9, "ratio": times[0] / times[1]}
+        if len(times) > 2:
+            row["engine_sincos_ns_per_row"] = times[2] / n * 1e9
+            row["ratio_to_engine_sincos"] = times[0] / times[2]
+        out[str(n)] = row
+    worst = max(r["ratio"] for r in out.values())
+    return {"by_rows": out, "ratio": worst,
+            "definition": "t(model.visibilities, 2 offset Gaussians) / t(numpy sin + cos of each "
+                          "component's precomputed phase into preallocated arrays); worst size"}
+
+
+# ------------------------------------------------------------------------------------------ 2
+def jacobian_fit(quick):
+    from scipy.optimize import least_squares
+    from uvfit.stats.modes import make_statistic
+
+    truth = three_components()
+    n = 10 ** 5
+    vs = simulate(truth, n, 0.05, 3)
+    start = truth.copy()
+    x_true = truth.get_free()
+    rng = np.random.default_rng(5)
+    x0 = x_true + np.where([nm.endswith(("flux", "fwhm")) for nm in start.free_names],
+                           0.1 * np.abs(x_true), 0.03) * rng.standard_normal(x_true.size)
+    start.set_free(x0)
+    stat = make_statistic("complex", vs, start)
+    lo, hi = start.free_bounds()
+
+    def run(jac):
+        t0 = time.perf_counter()
+        with np.errstate(all="ignore"):
+            res = least_squares(stat.residuals, x0, jac=jac, bounds=(lo, hi), method="trf",
+                                x_scale="jac", max_nfev=200 * (x0.size + 1))
+        return time.perf_counter() - t0, res
+
+    run(stat.jacobian)  # warm-up
+    rounds = 1 if quick else 3
+    ta, tf = math.inf, math.inf
+    for _ in range(rounds):
+        t, ra = run(stat.jacobian)
+        ta = min(ta, t)
+        t, rf = run("2-point")
+        tf = min(tf, t)
+    jac = stat.jacobian(ra.x)
+    cov = np.linalg.inv(jac.T @ jac)
+    err = np.sqrt(np.diag(cov))
+    shift = float(np.max(np.abs(ra.x - rf.x) / err))
+    chi2a, chi2f = 2 * ra.cost, 2 * rf.cost
+    # the project's fitter, for the record (analytic Jacobian, one start)
+    from uvfit.infer.lsq import fit
+    m2 = start.copy()
+    t0 = time.perf_counter()
+    fit(make_statistic("complex", vs, m2), seed=0)
+    t_fit = time.perf_counter() - t0
+    return {"rows": n, "free_parameters": int(x0.size), "analytic_s": ta, "finite_difference_s": tf,
+            "ratio": tf / ta, "analytic_evaluations": {"residuals": int(ra.nfev), "jacobian": int(ra.njev)},
+            "finite_difference_evaluations": {"residuals": int(rf.nfev), "jacobian": int(rf.njev)},
+            "chi2_analytic": chi2a, "chi2_finite_difference": chi2f,
+            "max_shift_in_errors": shift, "uvfit_fit_s": t_fit,
+            "definition": "t(least_squares, 2-point FD Jacobian) / t(same, analytic Jacobian); "
+                          "min of rounds; same start, bounds and options"}
+
+
+# ------------------------------------------------------------------------------------------ 3
+def scaling(quick):
+    model = two_gaussians()
+    theta = model.get_free()
+    sizes = [10 ** k for k in range(3, 7 if quick else 8)]
+    rows = {}
+    for n in sizes:
+        u, v = uv_rows(n, 2)
+        f = lambda: model.visibilities(u, v, theta=theta)  # noqa: E731
+        f()
+        t = best_of([f], repeats_for(n, quick))[0]
+        tracemalloc.start()
+        try:
+            base = tracemalloc.get_traced_memory()[0]
+            tracemalloc.reset_peak()
+            vis = model.visibilities(u, v, theta=theta)
+            peak = tracemalloc.get_traced_memory()[1] - base
+        finally:
+            tracemalloc.stop()
+        data_bytes = u.nbytes + v.nbytes + vis.nbytes
+        rows[str(n)] = {"ns_per_row": t / n * 1e9, "call_us": t * 1e6, "peak_bytes": int(peak),
+                        "data_bytes": int(data_bytes), "memory_ratio": peak / data_bytes}
+        del vis
+    per = [r["ns_per_row"] for r in rows.values()]
+    big = [r["ns_per_row"] for k, r in rows.items() if int(k) >= 10 ** 4]
+    # fixed cost per call: intercept of t = a + b n through the two smallest sizes
+    t1, t2 = rows[str(sizes[0])]["call_us"], rows[str(sizes[1])]["call_us"]
+    fixed = (t1 * sizes[1] - t2 * sizes[0]) / (sizes[1] - sizes[0])
+    return {"by_rows": rows, "flatness": max(per) / min(per),
+            "flatness_from_1e4": max(big) / min(big),
+            "fixed_cost_per_call_us": fixed,
+            "memory_ratio": max(r["memory_ratio"] for r in rows.values()),
+            "data_arrays": "u and v (8 bytes per row each) + output visibilities (16 bytes per row)",
+            "definition": "flatness = max / min of the time per row over the sizes; memory ratio = "
+                          "tracemalloc peak during the call / data bytes"}
+
+
+# ------------------------------------------------------------------------------------------ 4
+def sampler_overhead(quick):
+    from uvfit.infer.sampling import LogPosterior, run_chain
+    from uvfit.stats.modes import make_statistic
+
+    out = {}
+    for n in ([10 ** 4] if quick else [10 ** 4, 10 ** 5]):
+        model = two_gaussians()
+        vs = simulate(model, n, 0.05, 4)
+        stat = make_statistic("complex", vs, model)
+        lp = LogPosterior(stat, model)
+        theta = model.get_free()
+        names = model.free_names
+        lo, hi = model.free_bounds()
+        walkers = max(32, 4 * len(names))
+        steps = 20 if quick else (60 if n > 10 ** 4 else 150)
+        cov = np.diag((1e-3 * np.maximum(np.abs(theta), 0.01)) ** 2)
+        rows = stat.rows
+        one = lambda: model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)  # noqa: E731
+        run_chain(lp, theta, cov, (lo, hi), names, n_walkers=walkers, max_steps=5, seed=1)  # warm-up
+        t_eval = math.inf
+        t_step = math.inf
+        for _ in range(1 if quick else 2):
+            t_eval = min(t_eval, best_of([one], 20)[0])
+            t0 = time.perf_counter()
+            chain = run_chain(lp, theta, cov, (lo, hi), names, n_walkers=walkers, max_steps=steps, seed=2)
+            t_step = min(t_step, (time.perf_counter() - t0) / steps)
+            t_eval = min(t_eval, best_of([one], 20)[0])
+        out[str(n)] = {"rows": n, "walkers": walkers, "steps": steps, "step_s": t_step,
+                       "model_evaluation_s": t_eval, "ratio": t_step / (walkers * t_eval),
+                       "acceptance": float(np.mean(chain.acceptance_fraction))}
+    return {"by_rows": out, "ratio": out[max(out, key=int)]["ratio"],
+            "definition": "wall time per ensemble step / (walkers x one model.visibilities on the "
+                          "statistic's rows); ratio reported at the largest size"}
+
+
+def machine():
+    cpu = platform.processor()
+    try:
+        with open("/proc/cpuinfo") as fh:
+            for line in fh:
+                if line.startswith("model name"):
+                    cpu = line.split(":", 1)[1].strip()
+                    break
+    except OSError:
+        pass
+    info = {"cpu": cpu, "cores": os.cpu_count(), "python": platform.python_version(),
+            "numpy": np.__version__, "platform": platform.platform(),
+            "load_average": list(os.getloadavg()) if hasattr(os, "getloadavg") else None,
+            "OPENBLAS_CORETYPE": os.environ.get("OPENBLAS_CORETYPE")}
+    try:
+        import numba
+        info["numba"] = numba.__version__
+    except Exception:
+        info["numba"] = None
+    return info
+
+
+def verdict(key, value):
+    op, goal = GOALS[key]
+    ok = value <= goal if op == "<=" else value >= goal
+    return f"{value:8.3f}  (goal {op} {goal}: {'met' if ok else 'NOT met'})"
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--quick", action="store_true", help="smaller sizes and fewer repeats")
+    ap.add_argument("-o", "--output", default=None, help="JSON file for the results")
+    ap.add_argument("--force", action="store_true", help="overwrite the JSON file")
+    ap.add_argument("--engine", choices=engine.ENGINES, default=None,
+                    help="visibility engine (default: UVFIT_ENGINE, else numba when available)")
+    ap.add_argument("--only", default=None, help="comma-separated subset: trig,fit,scaling,sampler")
+    args = ap.parse_args(argv)
+    if args.engine:
+        engine.set_engine(args.engine)
+    only = set((args.only or "trig,fit,scaling,sampler").split(","))
+    started = datetime.datetime.now(datetime.timezone.utc)
+    res = {"date_utc": started.isoformat(timespec="seconds"), "quick": bool(args.quick),
+           "engine": engine.current(), "machine": machine(), "goals": GOALS}
+    t0 = time.perf_counter()
+    two_gaussians().visibilities(*uv_rows(10, 0))  # compile / load the kernels
+    res["first_use_s"] = time.perf_counter() - t0
+    print(f"engine {res['engine']}, first use (import, compile or cache load) {res['first_use_s']:.2f} s",
+          file=sys.stderr)
+    if "trig" in only:
+        res["trig_bound"] = trig_bound(args.quick)
+        print("1. model / numpy trig       " + verdict("trig_bound", res["trig_bound"]["ratio"]))
+        for n, r in res["trig_bound"]["by_rows"].items():
+            extra = (f", engine sincos {r['engine_sincos_ns_per_row']:.2f} ns/row "
+                     f"(model / it {r['ratio_to_engine_sincos']:.2f})") if "engine_sincos_ns_per_row" in r else ""
+            print(f"     {n:>9} rows: model {r['model_ns_per_row']:.2f} ns/row, numpy sin+cos "
+                  f"{r['numpy_sin_cos_ns_per_row']:.2f} ns/row{extra}")
+    if "fit" in only:
+        res["jacobian_fit"] = jacobian_fit(args.quick)
+        r = res["jacobian_fit"]
+        print("2. fit FD / analytic        " + verdict("jacobian_fit", r["ratio"]))
+        print(f"     {r['rows']} rows, {r['free_parameters']} free: analytic {r['analytic_s']:.2f} s, "
+              f"finite differences {r['finite_difference_s']:.2f} s; optima differ by "
+              f"{r['max_shift_in_errors']:.2g} errors, chi2 {r['chi2_analytic']:.2f} / "
+              f"{r['chi2_finite_difference']:.2f}; uvfit fit() {r['uvfit_fit_s']:.2f} s")
+    if "scaling" in only:
+        res["scaling"] = r = scaling(args.quick)
+        print("3. scaling: time per row    " + verdict("scaling_flatness", r["flatness"]))
+        print("            peak memory     " + verdict("scaling_memory", r["memory_ratio"]))
+        print(f"     from 1e4 rows on: max/min {r['flatness_from_1e4']:.3f}; fixed cost per call "
+              f"{r['fixed_cost_per_call_us']:.1f} us")
+        for n, x in r["by_rows"].items():
+            print(f"     {n:>9} rows: {x['ns_per_row']:.2f} ns/row, peak {x['peak_bytes'] / 1e6:.3f} MB "
+                  f"= {x['memory_ratio']:.3f} x data")
+    if "sampler" in only:
+        res["sampler_overhead"] = r = sampler_overhead(args.quick)
+        print("4. sampler step / evals     " + verdict("sampler_overhead", r["ratio"]))
+        for n, x in r["by_rows"].items():
+            print(f"     {n:>9} rows: {x['walkers']} walkers, step {x['step_s'] * 1e3:.2f} ms, "
+                  f"model {x['model_evaluation_s'] * 1e6:.1f} us, ratio {x['ratio']:.3f}")
+    res["elapsed_s"] = time.perf_counter() - t0
+    res["machine"]["load_average_end"] = list(os.getloadavg()) if hasattr(os, "getloadavg") else None
+    if args.output:
+        write_json(args.output, res, force=args.force)
+        print(f"wrote {args.output}", file=sys.stderr)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

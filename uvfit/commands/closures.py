@@ -108,8 +108,8 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
         raise UvfitError("--json and --table name the same file", "give two different file names")
     selection = pop_selection(kwargs)
     if selection.get("average"):
-        click.echo("note: averaging gives each baseline its own mean time; closures are formed "
-                   "only among rows with exactly the same time", err=True)
+        click.echo("note: averaging gives every row of a time bin the bin's common time; closures "
+                   "are formed among rows with exactly the same time", err=True)
     vset = load_data(data, selection)
     model, info = (None, {})
     if model_path:

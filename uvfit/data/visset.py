@@ -196,4 +196,23 @@ class VisibilitySet:
             "uv_max_lambda": float(q.max()) if good.n else None,
             "median_snr": float(np.median(good.snr)) if good.n else None,
         }
+        # Added for `uvfit info`: derived numbers a reader of the data wants at a glance.
+        out["n_rows"] = int(self.n)
+        out["channels"] = sorted(int(c) for c in np.unique(good.channel))
+        out["time_span_hours"] = ((out["time_end_mjd"] - out["time_start_mjd"]) * 24.0
+                                  if good.n else None)
+        if good.n:
+            from astropy.time import Time
+            out["time_start_utc"] = Time(out["time_start_mjd"], format="mjd", scale="utc").isot
+            out["time_end_utc"] = Time(out["time_end_mjd"], format="mjd", scale="utc").isot
+        cross = q[good.station1 != good.station2] if good.n else q
+        cross = cross[cross > 0]
+        rad_to_mas = 180.0 / np.pi * 3.6e6
+        # nominal resolution lambda / B_max and largest angular scale lambda / B_min, radians
+        # (common practice), with B in wavelengths
+        out["resolution_mas"] = float(rad_to_mas / cross.max()) if cross.size else None
+        out["largest_scale_mas"] = float(rad_to_mas / cross.min()) if cross.size else None
+        out["median_sigma_jy"] = float(np.median(good.sigma)) if good.n else None
+        integ = good.integration[np.isfinite(good.integration)] if good.n else good.integration
+        out["median_integration_s"] = float(np.median(integ)) if integ.size else None
         return out

@@ -1,0 +1,84 @@
+"""Choosing a reader or writer for a visibility file, by suffix and by content.
+
+To add a format: write ``uvfit/data/<format>.py`` with a reader and a writer, add its suffixes to
+``_SUFFIXES``, its content test to :func:`sniff`, and its two functions to ``_READERS`` /
+``_WRITERS`` (see DEVELOPERS.md, "Data layer").
+"""
+import os
+
+from ..errors import DataError
+
+_SUFFIXES = {
+    ".uvfits": "uvfits", ".uvf": "uvfits", ".fits": "uvfits", ".fit": "uvfits", ".fts": "uvfits",
+    ".ecsv": "ecsv",
+}
+_NAMES = {"uvfits": "UVFITS (FITS random groups)", "ecsv": "ECSV visibility table"}
+
+
+def sniff(path):
+    """The format the file's first bytes say it is: 'uvfits' (any FITS), 'ecsv', or None."""
+    with open(path, "rb") as handle:
+        start = handle.read(80)
+    if start.startswith(b"SIMPLE  ="):
+        return "uvfits"
+    if start.lstrip().startswith(b"# %ECSV"):
+        return "ecsv"
+    return None
+
+
+def _readers():
+    from .table import read_table
+    from .uvfits import read_uvfits
+    return {"uvfits": read_uvfits, "ecsv": read_table}
+
+
+def _writers():
+    from .table import write_table
+    from .uvfits import write_uvfits
+    return {"uvfits": write_uvfits, "ecsv": write_table}
+
+
+def read(path, format=None, **options):
+    """Read a visibility file into a VisibilitySet.
+
+    The suffix (.uvfits .uvf .fits .fit .fts or .ecsv) says what the file should be; its first
+    bytes must agree. ``format`` ('uvfits' or 'ecsv') overrides the suffix. Other options go to the
+    reader (UVFITS: ``source=NAME`` for a multi-source file).
+    """
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise DataError(f"{path}: no such file", "check the path")
+    if os.path.isdir(path):
+        raise DataError(f"{path}: is a folder, not a visibility file")
+    if not os.access(path, os.R_OK):
+        raise DataError(f"{path}: cannot be read (permission denied)", "check the file's permissions")
+    try:
+        content = sniff(path)
+    except OSError as exc:
+        raise DataError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    if format is not None and format not in _NAMES:
+        raise DataError(f"unknown format '{format}'", "use 'uvfits' or 'ecsv'")
+    expected = format or _SUFFIXES.get(os.path.splitext(path)[1].lower())
+    if expected is None:
+        if content is None:
+            raise DataError(f"{path}: unknown file type (neither FITS nor ECSV by content or suffix)",
+                            "give a .uvfits or .ecsv visibility file")
+        expected = content
+    if content != expected:
+        what = {"uvfits": "a FITS file", "ecsv": "an ECSV table"}.get(content, "neither FITS nor ECSV")
+        if expected == "uvfits":
+            raise DataError(f"{path}: is not a FITS file (by content it is {what})",
+                            "give a UVFITS visibility file, or an .ecsv visibility table")
+        raise DataError(f"{path}: is named as an {_NAMES[expected]} but by content it is {what}",
+                        "rename the file to match its content")
+    return _readers()[expected](path, **options)
+
+
+def write(vset, path, force=False, format=None, **options):
+    """Write a VisibilitySet; the format follows ``format`` or the suffix (.uvfits or .ecsv)."""
+    path = os.fspath(path)
+    kind = format or _SUFFIXES.get(os.path.splitext(path)[1].lower())
+    if kind not in _NAMES:
+        raise DataError(f"{path}: cannot tell which format to write from the name",
+                        "end the name in .uvfits or .ecsv")
+    return _writers()[kind](vset, path, force=force, **options)

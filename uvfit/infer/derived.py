@@ -1,0 +1,313 @@
+"""Quantities derived from a fit, with errors propagated through the full covariance.
+
+For a quantity q(theta) the error is sqrt(g^T C g), with g = dq/dtheta by central differences
+(steps of 1e-3 of each parameter's error, one-sided at a bound) and C the fit's covariance
+(first-order error propagation, e.g. Bevington & Robinson, "Data Reduction and Error Analysis",
+3rd ed. 2003, ch. 3). Position angles are differenced on the circle, so an angle near the
+0/360 wrap gets the right error.
+
+Keys ("a", "b" are component names in model order; a double "pair" counts as "pair.1" and
+"pair.2"):
+  ``a-b.separation``     distance of b from a (model angular unit)
+  ``a-b.position_angle`` position angle of b seen from a, north through east, in [0, 360) deg
+  ``a-b.flux_ratio``     flux of b / flux of a
+  ``a.size``             the main size (FWHM, or diameter, or radius: see "parameter"), and for
+                         an elliptical Gaussian also ``a.axis_ratio``, ``a.position_angle``
+  ``a.brightness_temperature``  (K) for Gaussians and uniform disks, rest frame with ``redshift``:
+      Gaussian:  Tb = 2 ln2 c^2 S / (pi k nu^2 theta_maj theta_min) (1 + z)
+                 (e.g. Kovalev et al. 2005, AJ 130, 2473);
+      disk of diameter D: the mean brightness S / (pi D^2 / 4) in the Rayleigh-Jeans law
+                 T = c^2 I / (2 k nu^2) gives Tb = 2 c^2 S / (pi k nu^2 D^2) (1 + z).
+      nu is the data's mean frequency (or the one given).
+  ``a.resolved``         likelihood-ratio test of the component against a point of the same
+      position (its size fixed at zero, everything else refitted): delta chi2 = chi2(point) -
+      chi2(best) and its p-value. The size sits on the boundary of its range under the null, so the
+      reference distribution is the mixture 0.5 chi2_0 + 0.5 chi2_1 (Self & Liang 1987, JASA 82,
+      605): p = 0.5 P(chi2_1 >= delta chi2). "resolved" is p < ``alpha`` (default 0.01). For an
+      elliptical Gaussian the axis ratio and angle are held at their best values in the point
+      refit (they mean nothing for a point), so the p-value is approximate.
+When a size is not significant (best value below twice its error, or the component is not
+resolved) an upper limit on the size is given (``upper_limit``: where the chi2 profile, other
+parameters refitted, rises by 2.71 above the minimum, one-sided 95%), and a lower limit on Tb.
+"""
+import math
+
+import numpy as np
+from scipy import stats as _st
+
+from ..errors import UvfitError
+
+# SI constants (CODATA 2018 exact values; c and k are defined exactly in the SI)
+C_LIGHT = 299792458.0
+K_BOLTZMANN = 1.380649e-23
+JY = 1e-26
+
+#: delta chi2 of a one-sided 95% limit (the 90% point of chi2 with 1 d.o.f.)
+LIMIT_DCHI2 = float(_st.chi2.ppf(0.90, 1))
+
+#: quantities that live on a circle, key -> period (deg)
+PERIODS = {}
+
+_SIZE_NAMES = ("fwhm", "diameter", "radius", "outer_radius", "radius_outer")
+
+
+def brightness_temperature_gaussian(flux_jy, nu_hz, major_rad, minor_rad, redshift=0.0):
+    """Tb (K) of a Gaussian: 2 ln2 c^2 S / (pi k nu^2 theta_maj theta_min) (1 + z)."""
+    return (2.0 * math.log(2.0) * C_LIGHT ** 2 * flux_jy * JY
+            / (math.pi * K_BOLTZMANN * nu_hz ** 2 * major_rad * minor_rad) * (1.0 + redshift))
+
+
+def brightness_temperature_disk(flux_jy, nu_hz, diameter_rad, redshift=0.0):
+    """Tb (K) of a uniform disk of diameter D: 2 c^2 S / (pi k nu^2 D^2) (1 + z)."""
+    return (2.0 * C_LIGHT ** 2 * flux_jy * JY
+            / (math.pi * K_BOLTZMANN * nu_hz ** 2 * diameter_rad ** 2) * (1.0 + redshift))
+
+
+def _size_parameter(member):
+    """(local name of the main size parameter, its member-free name) or (None, None)."""
+    params = member["parameters"]
+    for name in _SIZE_NAMES:
+        if name in params:
+            return name
+    return None
+
+
+def _full_name(model, member, local):
+    """Full parameter name of a member's size parameter ("core.fwhm" or "pair.fwhm_2")."""
+    comp = member["component"]
+    if member["name"] != comp:  # a member of a double
+        k = member["name"].rsplit(".", 1)[1]
+        return f"{comp}.{local}_{k}"
+    return f"{comp}.{local}"
+
+
+def _quantities(model, theta, frequency, redshift):
+    """{key: value} of every derived quantity at theta, and {key: unit}, {key: extra info}."""
+    unit = model.angular_unit_text if hasattr(model, "angular_unit_text") else str(model.angular_unit)
+    rad = float(model.rad_per_unit)
+    members = model.members(theta=theta, frequency=frequency)
+    out, units, info = {}, {}, {}
+    for i, a in enumerate(members):
+        for b in members[i + 1:]:
+            key = f"{a['name']}-{b['name']}"
+            de, dn = b["east"] - a["east"], b["north"] - a["north"]
+            out[key + ".separation"] = math.hypot(de, dn)
+            units[key + ".separation"] = unit
+            out[key + ".position_angle"] = math.degrees(math.atan2(de, dn)) % 360.0
+            units[key + ".position_angle"] = "deg"
+            PERIODS[key + ".position_angle"] = 360.0
+            out[key + ".flux_ratio"] = b["flux"] / a["flux"] if a["flux"] != 0 else float("nan")
+            units[key + ".flux_ratio"] = ""
+    for m in members:
+        size = _size_parameter(m)
+        if size is None:
+            continue
+        name = m["name"]
+        s = float(m["parameters"][size])
+        out[f"{name}.size"] = s
+        units[f"{name}.size"] = unit
+        info[f"{name}.size"] = {"parameter": size}
+        ratio = m["parameters"].get("axis_ratio")
+        if ratio is not None:
+            out[f"{name}.axis_ratio"] = float(ratio)
+            units[f"{name}.axis_ratio"] = ""
+            out[f"{name}.position_angle"] = float(m["parameters"].get("position_angle", 0.0)) % 180.0
+            units[f"{name}.position_angle"] = "deg"
+            PERIODS[f"{name}.position_angle"] = 180.0
+        tb = _tb(m, s, ratio, frequency, redshift, rad)
+        if tb is not None:
+            out[f"{name}.brightness_temperature"] = tb
+            units[f"{name}.brightness_temperature"] = "K"
+    return out, units, info
+
+
+def _tb(member, size, ratio, frequency, redshift, rad):
+    shape = member["shape"]
+    if frequency is None or not np.isfinite(frequency):
+        return None
+    if shape in ("gaussian", "elliptical_gaussian") and "fwhm" in member["parameters"]:
+        major = size * rad
+        minor = major * (float(ratio) if ratio is not None else 1.0)
+        with np.errstate(divide="ignore"):
+            if major <= 0 or minor <= 0:
+                return float("inf")
+            return brightness_temperature_gaussian(member["flux"], frequency, major, minor, redshift)
+    if shape == "disk" and "diameter" in member["parameters"]:
+        d = size * rad
+        if d <= 0:
+            return float("inf")
+        return brightness_temperature_disk(member["flux"], frequency, d, redshift)
+    return None
+
+
+def _gradients(model, theta, errors, bounds, frequency, redshift, keys):
+    """d q / d theta for every key, by central differences (one-sided at a bound)."""
+    lo, hi = bounds
+    k = len(theta)
+    grads = {key: np.zeros(k) for key in keys}
+    base, _, _ = _quantities(model, theta, frequency, redshift)
+    for i in range(k):
+        e = errors[i]
+        h = 1e-3 * e if np.isfinite(e) and e > 0 else 1e-6 * max(abs(theta[i]), 1.0)
+        up, down = theta.copy(), theta.copy()
+        hu = h if theta[i] + h <= hi[i] else 0.0
+        hd = h if theta[i] - h >= lo[i] else 0.0
+        if hu == 0.0 and hd == 0.0:
+            continue
+        up[i] += hu
+        down[i] -= hd
+        qu, _, _ = _quantities(model, up, frequency, redshift)
+        qd, _, _ = _quantities(model, down, frequency, redshift)
+        for key in keys:
+            diff = qu[key] - qd[key]
+            period = PERIODS.get(key)
+            if period:
+                diff = (diff + period / 2.0) % period - period / 2.0
+            grads[key][i] = diff / (hu + hd)
+    return base, grads
+
+
+def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True, alpha=0.01,
+                       limits=True):
+    """{key: {"value", "error", "unit", ...}} for a :class:`uvfit.infer.lsq.FitResult`.
+
+    ``frequency`` (Hz): for the brightness temperature; default the data's mean frequency.
+    ``resolved_test``: one refit per component with a free size (see the module docstring).
+    """
+    from .lsq import free_bounds
+
+    model = result.model
+    if frequency is None:
+        vs = result.statistic.vset
+        good = ~vs.flag
+        frequency = float(np.mean(vs.frequency[good])) if good.any() else float("nan")
+    if redshift is None:
+        redshift = 0.0
+    if float(redshift) <= -1.0:
+        raise UvfitError(f"redshift must be > -1 (got {redshift})")
+    theta = np.asarray(result.values, float)
+    cov = np.asarray(result.covariance, float)
+    errors = np.asarray(result.errors, float)
+    bounds = free_bounds(model)
+    values, units, info = _quantities(model, theta, frequency, redshift)
+    keys = list(values)
+    _, grads = _gradients(model, theta, errors, bounds, frequency, redshift, keys)
+    out = {}
+    for key in keys:
+        g = grads[key]
+        used = g != 0
+        if not used.any():
+            err = 0.0
+        else:
+            sub = cov[np.ix_(used, used)]
+            err = float(np.sqrt(g[used] @ sub @ g[used])) if np.all(np.isfinite(sub)) else float("inf")
+        out[key] = {"value": values[key], "error": err, "unit": units[key], **info.get(key, {})}
+    if resolved_test or limits:
+        _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits)
+    return out
+
+
+def _refit_chi2(result, fix):
+    """chi2 of a refit from the best fit with the parameters in ``fix`` ({name: value}) fixed."""
+    from .lsq import fit, rebuild_statistic
+    from ..errors import FitError
+
+    model = result.model.copy()
+    for name, value in fix.items():
+        p = model.parameters[name]
+        if p.min > value:
+            p.min = value
+        p.value = value
+        p.fixed = True
+        p.tie = None
+    if not model.free_names:
+        stat = rebuild_statistic(result.statistic, model)
+        return stat.chi2(np.zeros(0))
+    stat = rebuild_statistic(result.statistic, model)
+    try:
+        res = fit(stat, starts=1, seed=result.seed, strict=False)
+    except FitError:
+        return float("nan")
+    return res.chi2
+
+
+def _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits):
+    model = result.model
+    free = set(model.free_names)
+    for m in model.members():
+        size = _size_parameter(m)
+        if size is None:
+            continue
+        full = _full_name(model, m, size)
+        if full not in model.parameters or model.root(full) not in free:
+            continue
+        root = model.root(full)
+        extra = {}
+        for other in ("axis_ratio", "position_angle"):
+            if other in m["parameters"]:
+                oname = _full_name(model, m, other)
+                if oname in model.parameters and model.root(oname) in free:
+                    extra[model.root(oname)] = model.values()[oname]
+        name = m["name"]
+        entry = out.get(f"{name}.size")
+        resolved = None
+        if resolved_test:
+            c0 = _refit_chi2(result, {root: 0.0, **extra})
+            dchi2 = max(float(c0 - result.chi2), 0.0) if np.isfinite(c0) else float("nan")
+            p = 0.5 * float(_st.chi2.sf(dchi2, 1)) if dchi2 > 0 else 1.0
+            if not np.isfinite(dchi2):
+                p = float("nan")
+            resolved = bool(p < alpha) if np.isfinite(p) else None
+            out[f"{name}.resolved"] = {
+                "value": p, "delta_chi2": dchi2, "resolved": resolved, "alpha": alpha, "unit": "",
+                "test": "likelihood ratio against a point (size fixed at 0), reference 0.5 chi2_0 + "
+                        "0.5 chi2_1"}
+        if limits and entry is not None:
+            small = not (entry["value"] > 2.0 * entry["error"]) or resolved is False
+            if small:
+                ul = _upper_limit(result, root, extra, entry["value"])
+                if ul is not None:
+                    entry["upper_limit"] = ul
+                    entry["note"] = "not significantly resolved: upper limit (one-sided 95%)"
+                    tb_key = f"{name}.brightness_temperature"
+                    if tb_key in out:
+                        rad = float(model.rad_per_unit)
+                        ratio = m["parameters"].get("axis_ratio")
+                        tb = _tb(m, ul, ratio, frequency, redshift, rad)
+                        if tb is not None:
+                            out[tb_key]["lower_limit"] = tb
+                            out[tb_key]["note"] = "lower limit from the size's upper limit"
+
+
+def _upper_limit(result, root, extra, best, max_steps=14):
+    """Size where the chi2 profile rises by LIMIT_DCHI2 above the best fit (bisection)."""
+    target = result.chi2 + LIMIT_DCHI2 * (result.error_scale ** 2)
+    vs = result.statistic.vset
+    good = ~vs.flag
+    qmax = float(np.max(np.hypot(vs.u[good], vs.v[good]))) if good.any() else 0.0
+    if qmax <= 0:
+        return None
+    resolution = (1.0 / qmax) / float(result.model.rad_per_unit)
+    lo = max(float(best), 0.0)
+    hi = max(2.0 * lo, 0.1 * resolution)
+    for _ in range(12):
+        c = _refit_chi2(result, {root: hi, **extra})
+        if not np.isfinite(c):
+            return None
+        if c >= target:
+            break
+        lo, hi = hi, 2.0 * hi
+    else:
+        return None
+    for _ in range(max_steps):
+        mid = 0.5 * (lo + hi)
+        c = _refit_chi2(result, {root: mid, **extra})
+        if not np.isfinite(c):
+            break
+        if c >= target:
+            hi = mid
+        else:
+            lo = mid
+        if hi - lo < 1e-3 * hi:
+            break
+    return float(hi)

@@ -1,0 +1,522 @@
+"""Weighted least squares on a statistic: several starts, an optional global stage, honest errors.
+
+The objective is chi2(theta) = sum of the statistic's whitened residuals squared, minimised with
+scipy.optimize.least_squares (trust-region reflective, analytic Jacobian, the model's bounds). The
+covariance is the inverse of the Fisher matrix of the linearised problem, C = (J^T J)^-1 at the
+optimum (e.g. Press et al., Numerical Recipes, 3rd ed. 2007, sec. 15.5), computed by SVD of the
+column-scaled Jacobian so that a near-singular problem is detected and named instead of inverted.
+
+AIC = chi2 + 2k (Akaike 1974, IEEE Trans. Autom. Control 19, 716) and BIC = chi2 + k ln n
+(Schwarz 1978, Ann. Stat. 6, 461), with k free parameters and n data, up to a constant common to
+all models fitted to the same data.
+
+Priors other than the bounds are ignored here (use the sampler for them).
+"""
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import differential_evolution, least_squares
+
+from ..errors import FitError, UvfitError
+
+#: relative singular value (of the column-normalised Jacobian) below which a direction counts as
+#: unconstrained by the data
+NULL_TOL = 1e-7
+
+
+@dataclass
+class FitResult:
+    """Everything a least-squares fit found. Arrays follow ``names`` (the free parameters)."""
+
+    names: list
+    values: np.ndarray
+    errors: np.ndarray
+    covariance: np.ndarray
+    correlation: np.ndarray
+    chi2: float
+    dof: int
+    n_data: int
+    log_likelihood: float
+    converged: bool
+    status: str
+    nfev: int
+    model: object
+    statistic: object
+    seed: int = 0
+    starts: int = 1
+    global_search: bool = False
+    rescale_errors: bool = False
+    error_scale: float = 1.0
+    systematic: float = 0.0
+    per_station: dict = field(default_factory=dict)
+    per_baseline: dict = field(default_factory=dict)
+    notices: list = field(default_factory=list)
+    fixed_by_fitter: list = field(default_factory=list)
+    start_chi2: list = field(default_factory=list)
+    unconstrained: list = field(default_factory=list)
+
+    @property
+    def n_free(self):
+        return len(self.names)
+
+    @property
+    def reduced_chi2(self):
+        return self.chi2 / self.dof if self.dof > 0 else float("nan")
+
+    @property
+    def aic(self):
+        return aic(self.chi2, self.n_free)
+
+    @property
+    def bic(self):
+        return bic(self.chi2, self.n_free, self.n_data)
+
+    def value(self, name):
+        return float(self.values[self.names.index(name)])
+
+    def error(self, name):
+        return float(self.errors[self.names.index(name)])
+
+
+def aic(chi2, k):
+    """Akaike information criterion, chi2 + 2k (Akaike 1974)."""
+    return float(chi2 + 2.0 * k)
+
+
+def bic(chi2, k, n):
+    """Bayesian information criterion, chi2 + k ln n (Schwarz 1978)."""
+    return float(chi2 + k * np.log(n))
+
+
+# -------------------------------------------------------------------------------------- helpers
+
+def free_bounds(model):
+    """(lower, upper) arrays of the free parameters, whatever form the model returns them in."""
+    b = model.free_bounds()
+    k = len(model.free_names)
+    if isinstance(b, tuple) and len(b) == 2 and all(np.ndim(x) == 1 and len(x) == k for x in b) \
+            and not (k == 2 and all(isinstance(x, tuple) for x in b)):
+        lo, hi = np.asarray(b[0], float), np.asarray(b[1], float)
+    else:
+        arr = np.asarray(b, dtype=float).reshape(k, 2) if k else np.zeros((0, 2))
+        lo, hi = arr[:, 0], arr[:, 1]
+    return lo, hi
+
+
+def check_bounds(model):
+    """Raise a FitError naming any free parameter whose bounds or start value are inconsistent."""
+    lo, hi = free_bounds(model)
+    x0 = np.asarray(model.get_free(), float)
+    for name, a, b, x in zip(model.free_names, lo, hi, x0):
+        if not (a < b):
+            raise FitError(f"parameter {name} has inconsistent bounds: min {a:g} is not below max {b:g}",
+                           "correct min/max in the model file")
+        if not np.isfinite(x):
+            raise FitError(f"parameter {name} has no finite start value", "set a value in the model file")
+        if not (a <= x <= b):
+            raise FitError(f"the start value {x:g} of parameter {name} lies outside its bounds "
+                           f"[{a:g}, {b:g}]", "move the value inside the bounds or widen them")
+    return lo, hi
+
+
+def rad_per_unit(model):
+    """Radians per model angular unit (1 mas if the model does not say)."""
+    import astropy.units as un
+    unit = getattr(model, "angular_unit", "mas")
+    try:
+        return float(un.Unit(unit).to(un.rad))
+    except Exception:
+        return float(un.mas.to(un.rad))
+
+
+def _kind(model, name):
+    p = model.parameters[name]
+    kind = getattr(p, "kind", None)
+    if kind:
+        return kind
+    local = name.split(".", 1)[-1]
+    if local == "flux":
+        return "flux"
+    if local.startswith("position_angle"):
+        return "angle"
+    return "length" if local in ("east", "north", "fwhm", "diameter", "radius", "separation") else "ratio"
+
+
+def _unit_text(model, name):
+    p = model.parameters[name]
+    unit = getattr(p, "unit", None)
+    if unit is not None:
+        text = str(unit)
+        return "" if text in ("", "dimensionless") else text
+    return {"flux": "Jy", "length": str(getattr(model, "angular_unit", "mas")), "angle": "deg"}.get(
+        _kind(model, name), "")
+
+
+def random_starts(model, statistic, n, rng):
+    """``n`` start vectors: uniform inside finite bounds; otherwise a scatter around the start
+    value scaled to the parameter's kind (the array's resolution for a length, 180 deg for an
+    angle, half the value for a flux), reflected into one-sided bounds."""
+    names = model.free_names
+    x0 = np.asarray(model.get_free(), float)
+    lo, hi = free_bounds(model)
+    vs = statistic.vset
+    good = ~vs.flag
+    qmax = float(np.max(np.hypot(vs.u[good], vs.v[good]))) if good.any() else 1.0
+    resolution = (1.0 / qmax) / rad_per_unit(model) if qmax > 0 else 1.0
+    fmax = float(np.max(np.abs(vs.vis[good]))) if good.any() else 1.0
+    out = []
+    for _ in range(n):
+        x = np.empty_like(x0)
+        for i, name in enumerate(names):
+            a, b = lo[i], hi[i]
+            if np.isfinite(a) and np.isfinite(b):
+                x[i] = rng.uniform(a, b)
+                continue
+            kind = _kind(model, name)
+            if kind == "angle":
+                val = x0[i] + rng.uniform(-180.0, 180.0)
+            else:
+                base = {"length": 2.0 * resolution, "flux": 0.3 * fmax}.get(kind, 0.3)
+                scale = max(0.5 * abs(x0[i]), base)
+                val = rng.normal(x0[i], scale)
+            if np.isfinite(a) and val < a:
+                val = a + (a - val)
+            if np.isfinite(b) and val > b:
+                val = b - (val - b)
+            x[i] = val
+        out.append(x)
+    return out
+
+
+def null_directions(jac, names, tol=NULL_TOL):
+    """Groups of parameter names the data cannot constrain (near-null directions of ``jac``).
+
+    Columns are scaled to unit norm first (so units do not matter); a zero column is a parameter
+    with no effect at all; a singular value below ``tol`` times the largest is a combination the
+    data cannot tell apart, named by the parameters that dominate its null vector.
+    """
+    jac = np.asarray(jac, float)
+    if jac.size == 0:
+        return [[n] for n in names], np.inf
+    norms = np.sqrt(np.sum(jac ** 2, axis=0))
+    scale = norms.max() if norms.size else 0.0
+    if not np.isfinite(scale) or scale == 0:
+        return [list(names)], np.inf
+    groups = []
+    zero = norms <= 1e-12 * scale
+    for i in np.where(zero)[0]:
+        groups.append([names[i]])
+    keep = np.where(~zero)[0]
+    cond = np.inf if zero.any() else 1.0
+    if keep.size:
+        jn = jac[:, keep] / norms[keep]
+        _, s, vt = np.linalg.svd(jn, full_matrices=False)
+        if s[0] > 0:
+            rel = s / s[0]
+            if not zero.any():
+                cond = float(1.0 / rel[-1]) if rel[-1] > 0 else np.inf
+            for j in np.where(rel < tol)[0]:
+                vec = np.abs(vt[j])
+                order = np.argsort(vec)[::-1]
+                dominant = [names[keep[i]] for i in order if vec[i] >= 0.3 * vec[order[0]]]
+                groups.append(dominant)
+    return groups, cond
+
+
+def covariance_from_jacobian(jac, tol=NULL_TOL):
+    """(covariance, mask of parameters in an unconstrained direction) from C = (J^T J)^-1.
+
+    The inverse is taken by SVD of the column-normalised Jacobian; singular values below ``tol``
+    times the largest are dropped (pseudo-inverse) and every parameter with weight in a dropped
+    direction is marked, its variance set to infinity.
+    """
+    jac = np.asarray(jac, float)
+    k = jac.shape[1]
+    norms = np.sqrt(np.sum(jac ** 2, axis=0))
+    bad = np.zeros(k, bool)
+    cov = np.full((k, k), np.nan)
+    if k == 0:
+        return np.zeros((0, 0)), bad
+    good = norms > 1e-12 * max(norms.max(), 1e-300)
+    bad |= ~good
+    idx = np.where(good)[0]
+    if idx.size:
+        jn = jac[:, idx] / norms[idx]
+        _, s, vt = np.linalg.svd(jn, full_matrices=False)
+        keep = s > tol * s[0]
+        inv = (vt[keep].T / s[keep] ** 2) @ vt[keep]
+        for j in np.where(~keep)[0]:
+            vec = np.abs(vt[j])
+            bad[idx[vec >= 0.3 * vec.max()]] = True
+        sub = inv / np.outer(norms[idx], norms[idx])
+        cov[np.ix_(idx, idx)] = sub
+    cov[bad, :] = np.nan
+    cov[:, bad] = np.nan
+    for i in np.where(bad)[0]:
+        cov[i, i] = np.inf
+    return cov, bad
+
+
+def correlation_from_covariance(cov):
+    d = np.sqrt(np.diag(cov))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        corr = cov / np.outer(d, d)
+    for i in range(len(d)):
+        if np.isfinite(d[i]):
+            corr[i, i] = 1.0
+    return corr
+
+
+def residual_breakdown(statistic, residuals):
+    """chi2 and number of data per station and per baseline, from the whitened residuals.
+
+    Uses ``statistic.row_index`` (an int array mapping each datum to a row of ``statistic.vset``,
+    -1 for none; a 2-D array lists several rows per datum, whose chi2 is then shared equally).
+    Without it, a data vector of n or 2n entries on n rows is mapped in order; otherwise the
+    breakdown is empty.
+    """
+    vs = statistic.vset
+    r2 = np.asarray(residuals, float) ** 2
+    index = getattr(statistic, "row_index", None)
+    if index is None:
+        if len(r2) == vs.n:
+            index = np.arange(vs.n)
+        elif len(r2) == 2 * vs.n:
+            index = np.concatenate([np.arange(vs.n), np.arange(vs.n)])
+        else:
+            return {}, {}
+    index = np.asarray(index, int)
+    if index.ndim == 1:
+        index = index[:, None]
+    if index.shape[0] != len(r2):
+        return {}, {}
+    valid = index >= 0
+    count = np.maximum(valid.sum(axis=1), 1)
+    share = (r2 / count)[:, None] * np.ones(index.shape)
+    rows = index[valid]
+    weights = share[valid]
+    ones = np.ones_like(weights)
+    # per row totals, then per baseline and station
+    row_chi2 = np.bincount(rows, weights=weights, minlength=vs.n)
+    row_n = np.bincount(rows, weights=ones, minlength=vs.n)
+    labels, inverse = np.unique(vs.baseline_labels, return_inverse=True)
+    b_chi2 = np.bincount(inverse, weights=row_chi2, minlength=len(labels))
+    b_n = np.bincount(inverse, weights=row_n, minlength=len(labels))
+    per_baseline = {str(lab): {"chi2": float(c), "n": float(m)}
+                    for lab, c, m in zip(labels, b_chi2, b_n) if m > 0}
+    names = np.array(vs.stations.names)
+    a1, a2 = vs.ant1, vs.ant2
+    s_chi2 = np.bincount(a1, weights=row_chi2, minlength=len(names)) + \
+        np.bincount(a2, weights=row_chi2, minlength=len(names))
+    s_n = np.bincount(a1, weights=row_n, minlength=len(names)) + \
+        np.bincount(a2, weights=row_n, minlength=len(names))
+    per_station = {str(nm): {"chi2": float(c), "n": float(m)}
+                   for nm, c, m in zip(names, s_chi2, s_n) if m > 0}
+    for d in (per_baseline, per_station):
+        for item in d.values():
+            item["n"] = int(round(item["n"])) if float(item["n"]).is_integer() else item["n"]
+    return per_station, per_baseline
+
+
+def rebuild_statistic(statistic, model, vset=None, systematic=None):
+    """The same statistic (mode, options) on another model (or the same model after its free set
+    changed), optionally on other rows ``vset`` and with another ``systematic``."""
+    from ..stats.base import CombinedStatistic
+
+    vset = statistic.vset if vset is None else vset
+    systematic = getattr(statistic, "systematic", 0.0) if systematic is None else systematic
+    if type(statistic) is CombinedStatistic:
+        return CombinedStatistic([rebuild_statistic(p, model, vset, systematic) for p in statistic.parts],
+                                 statistic.mode)
+    return type(statistic)(vset, model, systematic=systematic,
+                           **dict(getattr(statistic, "options", {}) or {}))
+
+
+def fix_degeneracies(statistic):
+    """Fix, in the statistic's model, every parameter the statistic says it cannot constrain.
+
+    Returns (statistic rebuilt on the changed model, [names fixed], [notices]).
+    """
+    model = statistic.model
+    degs = list(statistic.degeneracies() or [])
+    notices = list(getattr(statistic, "notices", []) or [])
+    fixed = []
+    for name, reason in degs:
+        p = model.parameters[name]
+        if p.fixed or getattr(p, "tie", None) is not None:
+            continue
+        p.fixed = True
+        if hasattr(p, "note"):
+            p.note = f"fixed by the fitter: {reason}"
+        fixed.append(name)
+        notices.append(f"{name} fixed at {p.value:g}: {reason}")
+    if fixed:
+        statistic = rebuild_statistic(statistic, model)
+    return statistic, fixed, notices
+
+
+# ------------------------------------------------------------------------------------- the fit
+
+def _run_start(statistic, x0, lo, hi, max_nfev):
+    # least_squares needs a start inside the bounds; nudge one sitting on a bound inward a little
+    with np.errstate(invalid="ignore"):
+        span = np.where(np.isfinite(hi - lo), hi - lo, np.maximum(np.abs(x0), 1.0))
+        x0 = np.clip(np.asarray(x0, float), lo, hi)
+        on_lo = np.isfinite(lo) & (x0 <= lo)
+        on_hi = np.isfinite(hi) & (x0 >= hi)
+        x0 = np.where(on_lo, lo + 1e-9 * span, x0)
+        x0 = np.where(on_hi, hi - 1e-9 * span, x0)
+    with np.errstate(all="ignore"):
+        return least_squares(statistic.residuals, x0, jac=statistic.jacobian, bounds=(lo, hi),
+                             method="trf", x_scale="jac", max_nfev=max_nfev)
+
+
+def _global_start(statistic, lo, hi, seed, maxiter=150):
+    names = statistic.model.free_names
+    open_ = [n for n, a, b in zip(names, lo, hi) if not (np.isfinite(a) and np.isfinite(b))]
+    if open_:
+        raise FitError("the global search needs a finite min and max for every free parameter; "
+                       "these have none: " + ", ".join(open_),
+                       "set min and max for them in the model file, or drop --global-search")
+
+    def objective(x):
+        with np.errstate(all="ignore"):
+            try:
+                c = statistic.chi2(x)
+            except (ValueError, FloatingPointError, ZeroDivisionError):
+                return 1e300
+        return c if np.isfinite(c) else 1e300
+
+    res = differential_evolution(objective, list(zip(lo, hi)), seed=seed, maxiter=maxiter,
+                                 popsize=15, tol=1e-7, polish=False, init="latinhypercube")
+    return np.asarray(res.x, float)
+
+
+def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=None,
+        rescale_errors=False, max_nfev=None, strict=True):
+    """Least-squares fit of the statistic's model; returns a :class:`FitResult`.
+
+    ``model``: the model to fit (default: the statistic's own); it is changed in place (parameters
+    the statistic cannot constrain are fixed, the best-fit values are set), ``result.model`` is a
+    copy. ``starts``: the first start is the model's values, the others are random (see
+    :func:`random_starts`), seeded by ``numpy.random.default_rng(seed)``. ``global_search``: first a
+    seeded differential-evolution search of chi2 inside the (finite) bounds, its result polished
+    as one more start. ``progress``: called with 1 after each start. ``rescale_errors``: multiply
+    every error by sqrt(chi2/dof), as if the sigmas were scaled to give a reduced chi2 of 1.
+    ``strict``: raise FitError when no start converged (False: return the best anyway).
+    """
+    if model is not None and model is not statistic.model:
+        statistic = rebuild_statistic(statistic, model)
+    model = statistic.model
+    if int(starts) < 1:
+        raise UvfitError(f"--starts must be at least 1 (got {starts})")
+    statistic, fixed, notices = fix_degeneracies(statistic)
+    names = list(model.free_names)
+    k = len(names)
+    if k == 0:
+        raise FitError("the model has no free parameter left to fit" +
+                       (f" (fixed because the mode cannot constrain them: {', '.join(fixed)})" if fixed else ""),
+                       "free at least one parameter in the model file, or use another --mode")
+    n = statistic.n_data
+    if n <= k:
+        raise FitError(f"only {n} data for {k} free parameters: the fit is not determined",
+                       "fix some parameters, or use more data (check the selection options)")
+    lo, hi = check_bounds(model)
+    x_start = np.asarray(model.get_free(), float)
+
+    with np.errstate(all="ignore"):
+        r0 = statistic.residuals(x_start)
+    if not np.all(np.isfinite(r0)):
+        raise FitError("the model gives non-finite predictions at its start values",
+                       "check the parameter values in the model file")
+    with np.errstate(all="ignore"):
+        j0 = statistic.jacobian(x_start)
+    j0 = np.asarray(j0, float)
+    if not np.all(np.isfinite(j0)):
+        raise FitError("the model's derivatives are not finite at its start values",
+                       "check the parameter values in the model file (a size of exactly zero?)")
+    if not np.any(j0 != 0):
+        raise FitError("the data cannot constrain any free parameter at the start values (the "
+                       f"{statistic.mode} data do not change when {', '.join(names)} change)",
+                       "fix these parameters, choose start values where they matter, or use another --mode")
+    groups, _ = null_directions(j0, names)
+    for grp in groups:
+        if len(grp) == 1:
+            notices.append(f"at the start values the data do not constrain {grp[0]}")
+        else:
+            notices.append("at the start values the data cannot separate " + ", ".join(grp) +
+                           " (a degenerate combination)")
+
+    rng = np.random.default_rng(seed)
+    start_list = [x_start] + random_starts(model, statistic, int(starts) - 1, rng)
+    if global_search:
+        start_list.append(_global_start(statistic, lo, hi, seed))
+    if max_nfev is None:
+        max_nfev = 200 * (k + 1)
+
+    best, best_any, start_chi2 = None, None, []
+    for x0 in start_list:
+        try:
+            res = _run_start(statistic, x0, lo, hi, max_nfev)
+        except ValueError:  # non-finite residuals at a random start, typically
+            start_chi2.append(float("nan"))
+            if progress:
+                progress(1)
+            continue
+        c = float(2.0 * res.cost)
+        start_chi2.append(c)
+        if np.isfinite(c):
+            if best_any is None or c < 2.0 * best_any.cost:
+                best_any = res
+            if res.status > 0 and (best is None or c < 2.0 * best.cost):
+                best = res
+        if progress:
+            progress(1)
+    if best is None:
+        if best_any is None:
+            raise FitError("every start of the fit failed: the model's predictions were not finite",
+                           "check the start values and bounds in the model file")
+        if strict:
+            raise FitError(f"the fit did not converge after {best_any.nfev} evaluations "
+                           f"({len(start_list)} start(s))",
+                           "try --starts 20, tighter bounds, or better start values")
+        best = best_any
+        notices.append(f"the fit did not converge after {best.nfev} evaluations")
+
+    theta = np.asarray(best.x, float)
+    model.set_free(theta)
+    r = statistic.residuals(theta)
+    chi2 = float(r @ r)
+    jac = statistic.jacobian(theta)
+    cov, bad = covariance_from_jacobian(jac)
+    unconstrained = [names[i] for i in np.where(bad)[0]]
+    if unconstrained:
+        if len(unconstrained) == k:
+            msg = "the data constrain none of the free parameters at the best fit"
+            if strict:
+                raise FitError(msg + f" ({', '.join(names)})",
+                               "fix or tie parameters, or choose a model with fewer free parameters")
+        groups, _ = null_directions(jac, names)
+        for grp in groups:
+            notices.append("at the best fit the data cannot constrain " + " + ".join(grp) +
+                           ": their errors are undefined (reported as infinite); fix or tie one of them")
+    dof = n - k
+    scale = 1.0
+    if rescale_errors:
+        scale = float(np.sqrt(chi2 / dof)) if dof > 0 and chi2 > 0 else 1.0
+        cov = cov * scale ** 2
+        notices.append(f"errors multiplied by sqrt(chi2/dof) = {scale:.3g} (--rescale-errors)")
+    with np.errstate(invalid="ignore"):
+        errors = np.sqrt(np.diag(cov))
+    corr = correlation_from_covariance(cov)
+    per_station, per_baseline = residual_breakdown(statistic, r)
+    result = FitResult(
+        names=names, values=theta, errors=errors, covariance=cov, correlation=corr, chi2=chi2,
+        dof=dof, n_data=n, log_likelihood=float(statistic.log_likelihood(theta)),
+        converged=bool(best.status > 0), status=str(best.message), nfev=int(best.nfev),
+        model=model.copy(), statistic=statistic, seed=int(seed), starts=int(starts),
+        global_search=bool(global_search), rescale_errors=bool(rescale_errors), error_scale=scale,
+        systematic=float(getattr(statistic, "systematic", 0.0)), per_station=per_station,
+        per_baseline=per_baseline, notices=notices, fixed_by_fitter=fixed, start_chi2=start_chi2,
+        unconstrained=unconstrained)
+    return result

@@ -1,0 +1,110 @@
+"""Library-side orchestration of a fit: statistic -> least squares -> derived quantities -> a dict.
+
+``run_fit`` returns the very dictionary that ``uvfit fit --json`` writes, so that the batch runner,
+the demo and the report can fit without the command line. See README, "fit", for the keys.
+"""
+import numpy as np
+
+from .. import __version__
+from ..stats.modes import make_statistic
+from .derived import derived_quantities
+from .lsq import fit
+
+CAUTIONS = [
+    "These results hold for the model family fitted; a different family could fit as well or better.",
+    "A fit of a few components is no substitute for an image when the structure is complex.",
+    "Calibration errors can mimic or hide structure: check the closure quantities with `uvfit closures`.",
+]
+
+
+def _unit(p):
+    unit = getattr(p, "unit", None)
+    text = "" if unit is None else str(unit)
+    return "" if text in ("", "dimensionless") else text
+
+
+def parameter_table(result):
+    """{name: {"value", "error", "unit", "free", "fixed", "tie"}} for every model parameter."""
+    model = result.model
+    errors = dict(zip(result.names, result.errors))
+    out = {}
+    for name, p in model.parameters.items():
+        tie = getattr(p, "tie", None)
+        free = name in errors
+        if free:
+            err = float(errors[name])
+        elif tie is not None:
+            root = model.root(name) if hasattr(model, "root") else tie
+            err = float(errors.get(root, float("nan")))
+        else:
+            err = None
+        out[name] = {"value": float(p.value), "error": err, "unit": _unit(p), "free": bool(free),
+                     "fixed": bool(p.fixed), "tie": tie}
+        note = getattr(p, "note", None)
+        if note:
+            out[name]["note"] = note
+    return out
+
+
+def result_dict(result, derived=None, mode=None, data_path=None, selection=None, redshift=0.0,
+                frequency=None):
+    """The JSON-ready dictionary of a fit (see README, "fit", for the keys)."""
+    model = result.model
+    stat = result.statistic
+    names = list(result.names)
+    out = {
+        "version": __version__,
+        "mode": mode or stat.mode,
+        "seed": int(result.seed),
+        "data": None if data_path is None else str(data_path),
+        "selection": {k: v for k, v in (selection or {}).items()},
+        "systematic": float(result.systematic),
+        "rescale_errors": bool(result.rescale_errors),
+        "error_scale": float(result.error_scale),
+        "starts": int(result.starts),
+        "global_search": bool(result.global_search),
+        "angular_unit": getattr(model, "angular_unit_text", str(getattr(model, "angular_unit", ""))),
+        "frequency_hz": frequency,
+        "redshift": float(redshift or 0.0),
+        "parameters": parameter_table(result),
+        "derived": derived or {},
+        "statistics": {
+            "chi2": result.chi2, "dof": result.dof, "reduced_chi2": result.reduced_chi2,
+            "n_data": result.n_data, "n_free": result.n_free, "aic": result.aic, "bic": result.bic,
+            "log_likelihood": result.log_likelihood, "converged": result.converged,
+            "status": result.status, "n_evaluations": result.nfev,
+        },
+        "covariance": {"names": names, "matrix": np.asarray(result.covariance).tolist()},
+        "correlation": {"names": names, "matrix": np.asarray(result.correlation).tolist()},
+        "per_station": result.per_station,
+        "per_baseline": result.per_baseline,
+        "fixed_by_fitter": list(result.fixed_by_fitter),
+        "unconstrained": list(result.unconstrained),
+        "start_chi2": list(result.start_chi2),
+        "notices": list(result.notices),
+        "cautions": list(CAUTIONS),
+        "model_toml": model.to_toml(),
+    }
+    return out
+
+
+def run_fit(vset, model, mode="complex", systematic=0.0, rescale_errors=False, starts=1, seed=0,
+            global_search=False, redshift=0.0, progress=None, data_path=None, selection=None,
+            resolved_test=True, frequency=None, return_result=False, **options):
+    """Fit ``model`` (not changed; a copy is fitted) to ``vset`` in ``mode``; returns the result
+    dictionary (and the FitResult too with ``return_result``). ``options`` go to the statistic.
+
+    ``frequency`` (Hz) for the brightness temperatures: default the data's mean frequency.
+    """
+    work = model.copy()
+    stat = make_statistic(mode, vset, work, systematic=systematic, **options)
+    result = fit(stat, starts=starts, seed=seed, global_search=global_search, progress=progress,
+                 rescale_errors=rescale_errors)
+    if frequency is None:
+        vs = result.statistic.vset
+        frequency = float(np.mean(vs.frequency[~vs.flag]))
+    derived = derived_quantities(result, redshift=redshift, frequency=frequency,
+                                 resolved_test=resolved_test)
+    out = result_dict(result, derived, mode=mode, data_path=data_path, selection=selection,
+                      redshift=redshift, frequency=frequency)
+    return (out, result) if return_result else out

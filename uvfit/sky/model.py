@@ -1,0 +1,343 @@
+"""The sky model: components, their parameters, and the visibilities and Jacobian they predict.
+
+Conventions (TMS 2017, ch. 3): V(u, v) = integral I(l, m) exp[-2 pi i (u l + v m)] dl dm with l
+toward east (increasing right ascension), m toward north, u and v in wavelengths; position angles
+north through east. Parameter values are in the model's units (Jy, ``angular_unit``, degrees);
+shapes see radians. See DEVELOPERS.md, "SkyModel", for the contract.
+"""
+import copy as _copy
+import math
+
+import numpy as np
+import astropy.units as un
+
+from ..errors import ModelError
+from .parameters import ParameterSet
+
+
+def angular_unit_of(text):
+    """(astropy unit, its text) for an angular unit given as text or as a unit; ModelError if bad."""
+    if isinstance(text, un.UnitBase):
+        unit = text
+        text = unit.to_string()
+    else:
+        try:
+            unit = un.Unit(str(text))
+        except ValueError:
+            raise ModelError(f"angular_unit '{text}' is not a unit astropy knows",
+                             "use e.g. \"uas\", \"mas\", \"arcsec\", \"deg\"")
+    if not unit.is_equivalent(un.rad):
+        raise ModelError(f"angular_unit '{text}' is not an angle", "use e.g. \"uas\", \"mas\", \"arcsec\"")
+    return unit, str(text)
+
+
+class SkyModel:
+    """A list of components and an ordered set of parameters ("component.parameter")."""
+
+    def __init__(self, components, parameters, angular_unit="mas", description=None):
+        self.components = list(components)
+        self.parameters = parameters if isinstance(parameters, ParameterSet) else ParameterSet(parameters)
+        self.angular_unit, self.angular_unit_text = angular_unit_of(angular_unit)
+        self.rad_per_unit = float((1.0 * self.angular_unit).to_value(un.rad))
+        self.description = description
+        self.check()
+
+    # -- construction -------------------------------------------------------------------------
+    @classmethod
+    def build(cls, components, angular_unit="mas", description=None):
+        """A model from component specifications written as in a model file, e.g.
+        ``SkyModel.build([{"name": "core", "shape": "gaussian", "flux": 1.0, "fwhm": 0.05}])``.
+        Each value is a number (a free parameter started there) or a table
+        ``{"value": .., "min": .., "max": .., "fixed": .., "tie": .., "prior": ..}``."""
+        from .modelfile import model_from_dict
+        data = {"angular_unit": angular_unit if isinstance(angular_unit, str) else angular_unit.to_string(),
+                "component": list(components)}
+        if description:
+            data["description"] = description
+        return model_from_dict(data)
+
+    from_components = build
+
+    def check(self):
+        """Validate names, ties (targets exist, no cycles, same kind). Raises ModelError."""
+        names = [c.name for c in self.components]
+        dup = sorted({n for n in names if names.count(n) > 1})
+        if dup:
+            raise ModelError(f"duplicate component name(s) {dup}", "give every component its own name")
+        for full, p in self.parameters.items():
+            if p.tie is None:
+                continue
+            if p.tie not in self.parameters:
+                raise ModelError(f"parameter {full} is tied to {p.tie}, which does not exist",
+                                 "tie to an existing 'component.parameter'")
+            seen = [full]
+            target = p.tie
+            while target is not None:
+                if target in seen:
+                    raise ModelError(f"the ties of {full} form a loop ({' -> '.join(seen + [target])})",
+                                     "tie every parameter to one that is not tied back")
+                seen.append(target)
+                target = self.parameters[target].tie
+            root = self.parameters[seen[-1]]
+            if root.kind != p.kind:
+                raise ModelError(f"parameter {full} ({p.kind}) is tied to {root.name} ({root.kind})",
+                                 "tie only parameters of the same kind (a size to a size, ...)")
+
+    # -- parameters ---------------------------------------------------------------------------
+    @property
+    def free_names(self):
+        return self.parameters.free_names
+
+    @property
+    def n_free(self):
+        return len(self.free_names)
+
+    def root(self, full):
+        """The parameter that ``full`` finally equals through its ties (itself when untied)."""
+        p = self.parameters[full]
+        while p.tie is not None:
+            p = self.parameters[p.tie]
+        return p.name
+
+    def get_free(self):
+        return np.array([self.parameters[n].value for n in self.free_names], dtype=float)
+
+    def set_free(self, theta):
+        names = self.free_names
+        theta = np.asarray(theta, dtype=float).ravel()
+        if theta.size != len(names):
+            raise ModelError(f"got {theta.size} free-parameter values for {len(names)} free parameters")
+        for n, x in zip(names, theta):
+            self.parameters[n].value = float(x)
+        for p in self.parameters.values():
+            if p.tie is not None:
+                p.value = self.parameters[self.root(p.name)].value
+
+    def free_bounds(self):
+        """(lo, hi) arrays over the free parameters, -inf / +inf where unbounded."""
+        ps = [self.parameters[n] for n in self.free_names]
+        return (np.array([p.min for p in ps], dtype=float), np.array([p.max for p in ps], dtype=float))
+
+    def values(self, theta=None):
+        """{full name: value in model units} with ``theta`` (or the current free values), ties applied."""
+        vals = {n: p.value for n, p in self.parameters.items()}
+        if theta is not None:
+            names = self.free_names
+            theta = np.asarray(theta, dtype=float).ravel()
+            if theta.size != len(names):
+                raise ModelError(f"got {theta.size} free-parameter values for {len(names)} free parameters")
+            vals.update(zip(names, (float(x) for x in theta)))
+        for n, p in self.parameters.items():
+            if p.tie is not None:
+                vals[n] = vals[self.root(n)]
+        return vals
+
+    def component_values(self, name, theta=None, values=None):
+        """{local name: value} of one component."""
+        vals = self.values(theta) if values is None else values
+        comp = self.component(name)
+        return {ln: vals[f"{comp.name}.{ln}"] for ln in comp.parameter_names()}
+
+    def log_prior(self, theta):
+        """Sum of the free parameters' log priors: -inf outside [min, max]; the given prior, or a
+        flat one (normalised where both bounds are finite). Tied parameters must lie within their
+        own bounds too."""
+        theta = np.asarray(theta, dtype=float).ravel()
+        names = self.free_names
+        if theta.size != len(names):
+            raise ModelError(f"got {theta.size} free-parameter values for {len(names)} free parameters")
+        total = 0.0
+        for n, x in zip(names, theta):
+            lp = self.parameters[n].log_prior(x)
+            if lp == -math.inf:
+                return -math.inf
+            total += lp
+        if any(p.tie is not None for p in self.parameters.values()):
+            vals = self.values(theta)
+            for n, p in self.parameters.items():
+                if p.tie is not None and not (p.min <= vals[n] <= p.max):
+                    return -math.inf
+        return float(total)
+
+    def sample_prior(self, n, seed):
+        """(n, n_free) draws from the priors (a flat prior needs finite bounds). Seeded."""
+        rng = np.random.default_rng(seed)
+        out = np.empty((int(n), self.n_free))
+        from .parameters import Uniform
+        for j, name in enumerate(self.free_names):
+            p = self.parameters[name]
+            prior = p.prior
+            if prior is None:
+                if not (math.isfinite(p.min) and math.isfinite(p.max)):
+                    raise ModelError(f"cannot draw {name} from its prior: it has no prior and no finite bounds",
+                                     "give it min and max, or a prior")
+                prior = Uniform(p.min, p.max)
+            x = prior.sample(rng, int(n))
+            # a prior wider than the bounds: redraw outside values (few rounds; then clip)
+            for _ in range(100):
+                bad = (x < p.min) | (x > p.max)
+                if not bad.any():
+                    break
+                x[bad] = prior.sample(rng, int(bad.sum()))
+            out[:, j] = np.clip(x, p.min, p.max)
+        return out
+
+    def fix(self, name, reason=None):
+        """Fix a parameter at its current value (a tied one: at the value of its tie, untied)."""
+        if name not in self.parameters:
+            raise ModelError(f"no parameter {name}", "known: " + ", ".join(self.parameters))
+        p = self.parameters[name]
+        if p.tie is not None:
+            p.value = self.parameters[self.root(name)].value
+            p.tie = None
+        p.fixed = True
+        if reason:
+            p.note = str(reason)
+
+    def release(self, name):
+        """Make a fixed parameter free again."""
+        if name not in self.parameters:
+            raise ModelError(f"no parameter {name}", "known: " + ", ".join(self.parameters))
+        self.parameters[name].fixed = False
+        self.parameters[name].note = None
+
+    def component(self, name):
+        for c in self.components:
+            if c.name == name:
+                return c
+        raise ModelError(f"no component named '{name}'", "known: " + ", ".join(c.name for c in self.components))
+
+    def copy(self):
+        return _copy.deepcopy(self)
+
+    # -- prediction ---------------------------------------------------------------------------
+    def _evaluate(self, u, v, frequency, theta, gradient):
+        u, v = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(v, dtype=float))
+        if frequency is not None:
+            frequency = np.broadcast_to(np.asarray(frequency, dtype=float), u.shape) \
+                if np.ndim(frequency) else float(frequency)
+        vals = self.values(theta)
+        names = self.free_names
+        index = {n: j for j, n in enumerate(names)}
+        vis = np.zeros(u.shape, dtype=complex)
+        jac = np.zeros(u.shape + (len(names),), dtype=complex) if gradient else None
+        for comp in self.components:
+            local = {ln: vals[f"{comp.name}.{ln}"] for ln in comp.parameter_names()}
+            vc, grads = comp.evaluate(u, v, frequency, local, self.rad_per_unit, gradient=gradient)
+            vis += vc
+            if gradient:
+                for ln, d in grads.items():
+                    j = index.get(self.root(f"{comp.name}.{ln}"))
+                    if j is not None:
+                        jac[..., j] += d
+        return vis, jac
+
+    def visibilities(self, u, v, frequency=None, theta=None):
+        """Model visibilities (complex Jy) at (u, v) in wavelengths; ``frequency`` (Hz, scalar or
+        per row) matters only for components with a spectral index (None: reference frequency)."""
+        return self._evaluate(u, v, frequency, theta, gradient=False)[0]
+
+    def jacobian(self, u, v, frequency=None, theta=None):
+        """d V / d theta, complex, shape (n, n_free), per model unit of each free parameter."""
+        return self._evaluate(u, v, frequency, theta, gradient=True)[1]
+
+    def visibilities_and_jacobian(self, u, v, frequency=None, theta=None):
+        """(visibilities, jacobian) computed together."""
+        return self._evaluate(u, v, frequency, theta, gradient=True)
+
+    def total_flux(self, frequency=None, theta=None):
+        """Sum of the component fluxes (Jy): the visibility at zero spacing."""
+        vals = self.values(theta)
+        return float(sum(np.sum(c.flux_at(frequency, {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}))
+                         for c in self.components))
+
+    # -- geometry helpers for fits and reports ---------------------------------------------------
+    def component_centres(self, theta=None):
+        """{component name: (east, north)} in the model's angular unit."""
+        vals = self.values(theta)
+        return {c.name: (vals[f"{c.name}.east"], vals[f"{c.name}.north"]) for c in self.components}
+
+    def members(self, theta=None, frequency=None):
+        """Every component as a list of dicts, a double expanded into its two members.
+
+        Each dict: ``name`` ("jet", or "pair.1" / "pair.2" for the members of double "pair"),
+        ``component``, ``shape`` (the member's shape for a double), ``flux`` (Jy, at ``frequency``),
+        ``east``, ``north`` (model angular unit) and ``parameters`` (the shape's size parameters,
+        model units, without the member suffix).
+        """
+        vals = self.values(theta)
+        out = []
+        for c in self.components:
+            local = {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}
+            flux = c.flux_at(frequency, local)
+            if c.key == "double":
+                r = local["flux_ratio"]
+                sep, pa = local["separation"], math.radians(local["position_angle"])
+                member = c.shape.config["member"]
+                for k, (f, e, n) in enumerate(
+                        [(flux / (1.0 + r), local["east"], local["north"]),
+                         (flux * r / (1.0 + r), local["east"] + sep * math.sin(pa),
+                          local["north"] + sep * math.cos(pa))], start=1):
+                    out.append({"name": f"{c.name}.{k}", "component": c.name, "shape": member,
+                                "flux": f, "east": e, "north": n,
+                                "parameters": {pn: local[f"{pn}_{k}"] for pn in c.shape.member.parameter_names()}})
+            else:
+                out.append({"name": c.name, "component": c.name, "shape": c.key, "flux": flux,
+                            "east": local["east"], "north": local["north"],
+                            "parameters": {pn: local[pn] for pn in c.shape.parameter_names()}})
+        return out
+
+    # -- images ---------------------------------------------------------------------------------
+    def image(self, l, m, frequency=None, theta=None):
+        """Model brightness (Jy per pixel) on a regular 2-D grid of pixel centres ``l`` (east),
+        ``m`` (north), in the model's angular unit."""
+        l = np.asarray(l, dtype=float) * self.rad_per_unit
+        m = np.asarray(m, dtype=float) * self.rad_per_unit
+        vals = self.values(theta)
+        img = np.zeros(l.shape)
+        for c in self.components:
+            local = {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}
+            try:
+                img += c.brightness(l, m, local, self.rad_per_unit, frequency)
+            except NotImplementedError:
+                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet")
+        return img
+
+    def render(self, npix, fov, frequency=None, theta=None, centre=(0.0, 0.0)):
+        """(image, l, m): the model on an npix x npix grid spanning ``fov`` (model angular unit).
+
+        ``image[i, j]`` is the flux (Jy) in the pixel at north ``m[i]``, east ``l[j]``; ``l`` and
+        ``m`` increase with the index and the pixel npix // 2 is at ``centre``. East increases to
+        the LEFT on the sky: a plot should show l decreasing to the right.
+        """
+        npix = int(npix)
+        step = float(fov) / npix
+        axis = (np.arange(npix) - npix // 2) * step
+        l_axis = axis + float(centre[0])
+        m_axis = axis + float(centre[1])
+        ll, mm = np.meshgrid(l_axis, m_axis)
+        return self.image(ll, mm, frequency=frequency, theta=theta), l_axis, m_axis
+
+    # -- files ----------------------------------------------------------------------------------
+    def to_toml(self):
+        from .modelfile import model_to_toml
+        return model_to_toml(self)
+
+    def save(self, path, force=False):
+        from ..outputs import atomic_write
+        return atomic_write(path, self.to_toml(), force=force)
+
+    def __eq__(self, other):
+        if not isinstance(other, SkyModel):
+            return NotImplemented
+        return (self.angular_unit == other.angular_unit
+                and len(self.components) == len(other.components)
+                and all(a.same_as(b) for a, b in zip(self.components, other.components))
+                and list(self.parameters) == list(other.parameters)
+                and all(a.same_as(b) for a, b in zip(self.parameters.values(), other.parameters.values())))
+
+    __hash__ = None
+
+    def __repr__(self):
+        comps = ", ".join(f"{c.name}:{c.key}" for c in self.components)
+        return f"SkyModel([{comps}], {self.n_free} free, unit={self.angular_unit_text})"

@@ -1,0 +1,211 @@
+"""Statistics on the visibilities themselves: complex (real and imaginary parts) and amplitudes.
+
+Both use the unflagged rows of the visibility set. ``sigma`` of a row is the error of its real and
+of its imaginary part each; a systematic floor ``f`` (a fraction of the amplitude) is added in
+quadrature, sigma_eff = sqrt(sigma^2 + (f |V_data|)^2) (common practice).
+
+Complex mode
+    data vector [Re V_1..Re V_n, Im V_1..Im V_n]; each row gives two residuals, both mapped back to
+    that row by ``row_index``. The Gaussian likelihood is exact for thermal noise.
+
+Amplitude mode
+    The amplitude A = |V| of a visibility with true amplitude nu and Gaussian noise sigma per part
+    follows the Rice distribution (Rice 1944, Bell Syst. Tech. J. 23, 282):
+        p(A | nu, sigma) = A / sigma^2 exp[-(A^2 + nu^2) / (2 sigma^2)] I0(A nu / sigma^2).
+    * ``log_likelihood`` is this exact Rice likelihood (evaluated stably with scipy.special.i0e).
+    * The least-squares objective (``residuals``, ``jacobian``, ``chi2``) is a sum of squares of
+      well-defined smooth functions of the parameters:
+        - rows with A / sigma_eff >= ``debias_snr`` (default 3): datum = the debiased amplitude
+          sqrt(A^2 - sigma^2) (common practice; its mean is nu to first order in sigma/nu),
+          prediction = |V_model|;
+        - rows below that SNR: datum = A itself, prediction = the Rice mean
+          E[A] = sigma sqrt(pi/2) L_1/2(-nu^2 / (2 sigma^2)), which is exact at any SNR, so faint
+          rows neither bias the fit nor are thrown away.
+      Residual = (datum - prediction) / sigma_eff in both cases.
+    Amplitudes carry no information on absolute position, and a model and its point reflection
+    through the origin have the same amplitudes (a 180-degree ambiguity).
+"""
+import numpy as np
+from scipy.special import i0e, i1e
+
+from .base import Statistic
+
+_SQRT_HALF_PI = np.sqrt(np.pi / 2.0)
+
+
+def _model_vis_and_jac(model, rows, theta):
+    """(V, dV/dtheta) of the model on the good rows, with the fastest call the model offers."""
+    both = getattr(model, "visibilities_and_jacobian", None)
+    if both is not None:
+        vis, jac = both(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+    else:
+        vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+        jac = model.jacobian(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+    vis = np.asarray(vis, dtype=complex).reshape(-1)
+    jac = np.asarray(jac, dtype=complex).reshape(vis.size, -1)
+    return vis, jac
+
+
+def effective_sigma(vset, systematic=0.0):
+    """sqrt(sigma^2 + (f |V|)^2) per row (common practice)."""
+    f = float(systematic)
+    if f < 0:
+        from ..errors import UvfitError
+        raise UvfitError(f"the systematic floor must be >= 0 (got {f})", "pass e.g. --systematic 0.02")
+    return np.sqrt(vset.sigma ** 2 + (f * np.abs(vset.vis)) ** 2)
+
+
+def free_translation(model):
+    """[names] of the position parameters that make a common shift of the whole model free.
+
+    A shift of every component together changes no amplitude and no closure quantity. It is free
+    along east (north) when no component has its east (north) fixed; then the east (north) of the
+    first component whose position is free is returned, to be held fixed. When some component's
+    position is fixed, the absolute position is anchored already and nothing is returned.
+    """
+    params = model.parameters
+    out = []
+    for axis in ("east", "north"):
+        names = [n for n in params if n.partition(".")[2] == axis]
+        if not names or any(params[n].fixed for n in names):
+            continue
+        free = [n for n in names if params[n].tie is None]
+        if free:
+            out.append(free[0])
+    return out
+
+
+first_free_position = free_translation
+
+
+class _Rows:
+    """The unflagged rows of a visibility set, and their indices in it."""
+
+    def __init__(self, vset):
+        good = vset.good()  # DataError when nothing is left
+        self.index = np.flatnonzero(~vset.flag)
+        self.u, self.v, self.frequency = good.u, good.v, good.frequency
+        self.vis, self.sigma = good.vis, good.sigma
+        self.n = good.n
+        self.set = good
+
+
+def _model_vis(model, rows, theta):
+    vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+    return np.asarray(vis, dtype=complex).reshape(-1)
+
+
+class ComplexStatistic(Statistic):
+    """Real and imaginary parts of the visibilities (see the module docstring)."""
+
+    mode = "complex"
+
+    def __init__(self, vset, model, systematic=0.0, **options):
+        super().__init__(vset, model, systematic, **options)
+        self.rows = rows = _Rows(vset)
+        self.data = np.concatenate([rows.vis.real, rows.vis.imag])
+        s = effective_sigma(rows, self.systematic)
+        self.sigma = np.concatenate([s, s])
+        #: the row of ``vset`` behind each datum (two data per row)
+        self.row_index = np.concatenate([rows.index, rows.index])
+
+    def predict(self, theta):
+        vis = _model_vis(self.model, self.rows, theta)
+        return np.concatenate([vis.real, vis.imag])
+
+    def predict_jacobian(self, theta):
+        vis, jac = _model_vis_and_jac(self.model, self.rows, theta)
+        return np.concatenate([vis.real, vis.imag]), np.vstack([jac.real, jac.imag])
+
+    def degeneracies(self):
+        return []
+
+
+class AmplitudeStatistic(Statistic):
+    """Visibility amplitudes, debiased at high SNR, Rice mean at low SNR; Rice likelihood."""
+
+    mode = "amplitude"
+
+    def __init__(self, vset, model, systematic=0.0, debias_snr=3.0, **options):
+        super().__init__(vset, model, systematic, debias_snr=debias_snr, **options)
+        self.rows = rows = _Rows(vset)
+        self.debias_snr = float(debias_snr)
+        amp = np.abs(rows.vis)
+        self.amplitude = amp
+        self.sigma = effective_sigma(rows, self.systematic)
+        self.noise_sigma = self.sigma.copy()  # per real/imaginary part, for the Rice law
+        self.high = amp >= self.debias_snr * self.sigma
+        debiased = np.sqrt(np.maximum(amp ** 2 - self.sigma ** 2, 0.0))
+        self.data = np.where(self.high, debiased, amp)
+        # faint rows: the scatter of a Rice amplitude is below sigma (sqrt(2 - pi/2) sigma at zero
+        # signal); weight them by the Rice standard deviation at a data-based estimate of the
+        # true amplitude (fixed during the fit, so the objective stays a plain sum of squares)
+        low = ~self.high
+        if np.any(low):
+            s = self.sigma[low]
+            nu_hat = np.sqrt(np.maximum(amp[low] ** 2 - 2.0 * s ** 2, 0.0))
+            mean, _ = self._rice_mean(nu_hat, s)
+            var = 2.0 * s ** 2 + nu_hat ** 2 - mean ** 2
+            self.sigma = self.sigma.copy()
+            self.sigma[low] = np.sqrt(np.maximum(var, (2.0 - np.pi / 2.0) * s ** 2))
+            self.rice_sigma = s
+        else:
+            self.rice_sigma = self.sigma[low]
+        self.row_index = rows.index
+        self.notices = ["amplitudes cannot fix the absolute position, and a model and its point "
+                        "reflection through the origin (every position angle + 180 deg) fit equally "
+                        "well: position angles are ambiguous by 180 degrees in this mode"]
+
+    # Rice mean E[A] = sigma sqrt(pi/2) [(1 + 2y) i0e(y) + 2y i1e(y)], y = nu^2 / (4 sigma^2);
+    # d/dy of the bracket = i0e(y) + i1e(y).
+    def _rice_mean(self, nu, sigma):
+        y = nu ** 2 / (4.0 * sigma ** 2)
+        mean = sigma * _SQRT_HALF_PI * ((1.0 + 2.0 * y) * i0e(y) + 2.0 * y * i1e(y))
+        dmean = _SQRT_HALF_PI * (i0e(y) + i1e(y)) * nu / (2.0 * sigma)
+        return mean, dmean
+
+    def _amp_prediction(self, vis, jac=None):
+        nu = np.abs(vis)
+        low = ~self.high
+        pred = nu.copy()
+        if np.any(low):
+            mean, dmean = self._rice_mean(nu[low], self.rice_sigma)
+            pred[low] = mean
+        if jac is None:
+            return pred, None
+        safe = np.where(nu > 0, nu, 1.0)
+        dnu = np.real(np.conj(vis)[:, None] * jac) / safe[:, None]
+        dnu[nu == 0] = 0.0
+        if np.any(low):
+            dnu[low] *= dmean[:, None]
+        return pred, dnu
+
+    def predict(self, theta):
+        return self._amp_prediction(_model_vis(self.model, self.rows, theta))[0]
+
+    def predict_jacobian(self, theta):
+        vis, jac = _model_vis_and_jac(self.model, self.rows, theta)
+        return self._amp_prediction(vis, jac)
+
+    def log_likelihood(self, theta):
+        """Exact Rice log-likelihood of the measured amplitudes (not the least-squares objective)."""
+        nu = np.abs(_model_vis(self.model, self.rows, theta))
+        a = self.amplitude
+        s2 = self.noise_sigma ** 2
+        z = a * nu / s2
+        with np.errstate(divide="ignore"):
+            loga = np.log(a)
+        # log I0(z) = log i0e(z) + z, so the exponent becomes -(a - nu)^2 / (2 s^2)
+        return float(np.sum(loga - np.log(s2) - (a - nu) ** 2 / (2.0 * s2) + np.log(i0e(z))))
+
+    def scaled(self, factor):
+        out = super().scaled(factor)
+        out.noise_sigma = self.noise_sigma * float(factor)
+        out.rice_sigma = self.rice_sigma * float(factor)
+        return out
+
+    def degeneracies(self):
+        reason = ("visibility amplitudes do not depend on the absolute position; it is held at its "
+                  "start value (positions of other components are relative to it, and the whole "
+                  "model is still ambiguous by a 180-degree point reflection)")
+        return [(name, reason) for name in free_translation(self.model)]

@@ -134,9 +134,12 @@ def run_job(job):
 
     row = {"name": job["name"], "command": job["command"], "data": job["data"],
            "model": job["model"], "status": "failed", "error": "", "output": job_output(job)}
+    from .._blas import single_threaded
+
     try:
         digest = job_digest(job)
-        result = _run(job)
+        with single_threaded():
+            result = _run(job)
         result["batch"] = {"name": job["name"], "input_digest": digest, "options": {
             k: job[k] for k in sorted(JOB_OPTIONS)}}
         os.makedirs(job["output_dir"], exist_ok=True)

@@ -201,3 +201,43 @@ def test_environment_variable_selects_the_path():
                              env=env, timeout=300)
         assert out.returncode == 0, out.stderr
         assert out.stdout.strip() == name
+
+
+@pytest.mark.parametrize("case", ["gaussian", "elliptical_gaussian", "double_disk", "shell"])
+def test_misfit_equals_the_sum_over_model_visibilities(case):
+    # reference: the definition sum w |d - V|^2 with V from the numpy path
+    model = SkyModel.build([CASES[case]])
+    rng = np.random.default_rng(5)
+    with engine.using("numpy"):
+        vis = model.visibilities(U, V, F)
+    data = vis + 0.01 * (rng.standard_normal(N) + 1j * rng.standard_normal(N))
+    weight = rng.uniform(0.5, 2.0, N)
+    d = data - vis
+    expected = float(np.sum(weight * (d.real ** 2 + d.imag ** 2)))
+    theta = model.get_free()
+    for name in ("numpy", "numba"):
+        with engine.using(name):
+            got = model.misfit(U, V, data, weight, F, theta=theta)
+        assert got == pytest.approx(expected, rel=1e-10), name
+    with pytest.raises(ModelError, match="one value per row"):
+        model.misfit(U, V, data[:-1], weight, F)
+
+
+def test_complex_statistic_fast_likelihood_and_jacobian_equal_the_generic_ones():
+    # reference: the Statistic base class (residual vector, Gaussian likelihood with normalisation)
+    from uvfit.data.visset import VisibilitySet
+    from uvfit.stats.base import Statistic
+    from uvfit.stats.modes import make_statistic
+    model = SkyModel.build([spec_for("gaussian", "g"), spec_for("point", "p", -0.1, 0.2)])
+    rng = np.random.default_rng(9)
+    vis = model.visibilities(U, V) + 0.02 * (rng.standard_normal(N) + 1j * rng.standard_normal(N))
+    vs = VisibilitySet(u=U, v=V, w=None, time=np.zeros(N), frequency=230e9, station1=["AA"] * N,
+                       station2=["BB"] * N, vis=vis, sigma=rng.uniform(0.01, 0.03, N))
+    stat = make_statistic("complex", vs, model, systematic=0.01)
+    theta = model.get_free() * 1.01
+    for s in (stat, stat.scaled(1.7)):
+        assert s.log_likelihood(theta) == pytest.approx(Statistic.log_likelihood(s, theta), rel=1e-12)
+        assert s.chi2(theta) == pytest.approx(Statistic.chi2(s, theta), rel=1e-12)
+        np.testing.assert_allclose(s.jacobian(theta), Statistic.jacobian(s, theta), rtol=1e-13, atol=0)
+    with engine.using("numpy"):
+        np.testing.assert_allclose(stat.jacobian(theta), Statistic.jacobian(stat, theta), rtol=1e-13, atol=0)

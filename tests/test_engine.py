@@ -17,7 +17,9 @@ from uvfit.sky import engine
 from uvfit.sky.model import SkyModel
 from uvfit.sky.shapes import SHAPES, shape_class
 
-pytest.importorskip("numba")
+#: the compiled path is an optional extra; without numba only the reference path is tested
+needs_numba = pytest.mark.skipif(not engine.numba_available(), reason="numba is not installed")
+PATHS = ["numpy", "numba"] if engine.numba_available() else ["numpy"]
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 RNG = np.random.default_rng(7)
@@ -81,12 +83,14 @@ def assert_same(ref, fast, rtol=1e-12):
         assert err <= rtol * col_scale or err <= 1e-14 * scale, j
 
 
+@needs_numba
 @pytest.mark.parametrize("case", list(CASES))
 def test_fast_path_equals_reference_for_every_shape(case):
     model = SkyModel.build([CASES[case]])
     assert_same(*both(model))
 
 
+@needs_numba
 @pytest.mark.parametrize("case", ["gaussian", "elliptical_gaussian", "disk", "double_point"])
 def test_fast_path_with_spectral_index_and_frequencies(case):
     spec = dict(CASES[case], spectral_index=-0.7, reference_frequency="230 GHz")
@@ -95,6 +99,7 @@ def test_fast_path_with_spectral_index_and_frequencies(case):
         assert_same(*both(model, freq=freq))
 
 
+@needs_numba
 def test_fast_path_several_components_ties_fixed_and_theta():
     specs = [spec_for("gaussian", "core", 0.0, 0.0),
              spec_for("elliptical_gaussian", "jet", 0.2, 0.1) | {"axis_ratio": {"value": 0.4, "fixed": True}},
@@ -115,6 +120,7 @@ def test_fast_path_several_components_ties_fixed_and_theta():
     assert_same(*both(model))
 
 
+@needs_numba
 def test_fast_path_any_input_shape_and_many_rows():
     model = SkyModel.build([spec_for("gaussian", "g"), spec_for("disk", "d", -0.1, 0.05)])
     u2, v2 = U[:240].reshape(12, 20), V[:240].reshape(12, 20)
@@ -129,12 +135,13 @@ def test_fast_path_any_input_shape_and_many_rows():
     # broadcasting u against v, and empty input
     ref, fast = both(model, U[:5, None], V[None, :7], None)
     assert_same(ref, fast)
-    for name in ("numpy", "numba"):
+    for name in PATHS:
         with engine.using(name):
             vis, jac = model.visibilities_and_jacobian(np.zeros(0), np.zeros(0))
             assert vis.shape == (0,) and jac.shape == (0, model.n_free)
 
 
+@needs_numba
 def test_kernel_trigonometry_and_exponential_against_numpy():
     from uvfit.sky import _kernels as k
     rng = np.random.default_rng(11)
@@ -162,6 +169,7 @@ def test_kernel_trigonometry_and_exponential_against_numpy():
     assert np.all(e[:3] == 0.0)
 
 
+@needs_numba
 def test_engine_choice_and_messages(monkeypatch):
     default = engine.current()
     with pytest.raises(ModelError, match="unknown visibility engine"):
@@ -191,6 +199,7 @@ def test_import_does_not_load_numba():
     assert out.stdout.strip() == "False"
 
 
+@needs_numba
 def test_environment_variable_selects_the_path():
     code = ("import numpy as np; from uvfit.sky import engine; from uvfit.sky.model import SkyModel; "
             "m = SkyModel.build([{'name': 'a', 'shape': 'gaussian', 'flux': 1.0, 'east': 0.1, 'fwhm': 0.05}]); "
@@ -215,7 +224,7 @@ def test_misfit_equals_the_sum_over_model_visibilities(case):
     d = data - vis
     expected = float(np.sum(weight * (d.real ** 2 + d.imag ** 2)))
     theta = model.get_free()
-    for name in ("numpy", "numba"):
+    for name in PATHS:
         with engine.using(name):
             got = model.misfit(U, V, data, weight, F, theta=theta)
         assert got == pytest.approx(expected, rel=1e-10), name

@@ -351,7 +351,7 @@ def misfit(model, u, v, data, weight, frequency=None, theta=None):
     v = np.asarray(v, dtype=float)
     if u.shape != v.shape:
         u, v = np.broadcast_arrays(u, v)
-    if current() == "numba":
+    if current() == "numba" and model.components:
         return evaluate_numba(model, u, v, frequency, theta, False, data, weight)
     vis = evaluate_numpy(model, u, v, frequency, theta, False)[0].reshape(-1)
     data = np.asarray(data, dtype=complex).reshape(-1)

@@ -109,8 +109,9 @@ def _codes(values):
 def average_time(vset, seconds, field_radius=None):
     """Average coherently in time bins of ``seconds`` per baseline and channel.
 
-    Bins start at the earliest row; weights 1/sigma^2; the mean visibility, u, v, w, time and
-    frequency are weighted means; sigma of the mean is 1/sqrt(sum of weights); the integration time
+    Bins start at the earliest row; weights 1/sigma^2; the mean visibility, u, v, w and
+    frequency are weighted means; every row of a bin gets the bin's common time (the mean time of
+    the rows in it, over all baselines), so averaged baselines stay simultaneous for closures; sigma of the mean is 1/sqrt(sum of weights); the integration time
     is the sum over the bin. Flagged rows are left out. Returns ``(vset, report)`` where ``report``
     holds the counts, the worst-case time-smearing loss at ``field_radius`` (radians; default 10
     times the nominal resolution 1/q_max) and a note in words. Coherent averaging assumes the
@@ -124,10 +125,19 @@ def average_time(vset, seconds, field_radius=None):
     if good.n == 0:
         raise DataError("nothing to average: every row is flagged")
     t_s = (good.time - good.time.min()) * _SECONDS_PER_DAY
-    bins = np.floor(t_s / seconds + 1e-9).astype(np.int64)
+    bins = np.floor((t_s + 1e-5) / seconds).astype(np.int64)   # 10 us: MJD rounding
     keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel])
     inv, n_groups, weight, wsum = _weighted_groups(good, keys)
     out, count = _reduce(good, inv, n_groups, weight, wsum, good.channel)
+    # Every row of one bin gets the bin's common time stamp (the mean time of all rows in it), so
+    # that baselines averaged together stay simultaneous and closures can still be formed. The
+    # (u, v, w) of each row remain its own baseline's weighted means.
+    _, bin_index = np.unique(bins, return_inverse=True)
+    t0 = good.time.min()   # sum offsets, not MJDs, to keep the precision of the stamp
+    bin_time = t0 + np.bincount(bin_index, weights=good.time - t0) / np.bincount(bin_index)
+    group_bin = np.zeros(n_groups, dtype=np.int64)
+    group_bin[inv] = bin_index
+    out.time = bin_time[group_bin]
     order = np.lexsort((out.channel, out.station2, out.station1, out.time))
     out = out.subset(order)
     radius = _default_radius(good) if field_radius is None else float(field_radius)

@@ -113,14 +113,88 @@ def _axes(header, path):
     return axes, unnamed
 
 
-def _expected_data_bytes(header):
-    naxis = int(header.get("NAXIS", 0))
-    size = 1
-    for k in range(2, naxis + 1):
-        size *= int(header.get(f"NAXIS{k}", 0))
-    pcount = int(header.get("PCOUNT", 0))
-    gcount = int(header.get("GCOUNT", 1))
-    return abs(int(header.get("BITPIX", 8))) // 8 * gcount * (pcount + size)
+_BLOCK = 2880
+_MAX_HEADER_BLOCKS = 4000
+
+
+def _card_value(card):
+    text = card[10:].split("/")[0].strip()
+    if text in ("T", "F"):
+        return text == "T"
+    if text.lstrip("+-").isdigit():
+        return int(text)
+    return text
+
+
+def _scan_structure(path):
+    """Walk the FITS units of a file from their raw headers, before astropy sees them.
+
+    Checks what a damaged file can get wrong and what would make a reader hang or allocate without
+    bound: NAXIS within 0..999 (FITS standard), integer non-negative sizes, an END card, and data
+    that the file really holds. Returns ``[(cards, data_offset, data_bytes), ...]``.
+    """
+    size = os.path.getsize(path)
+    units = []
+    with open(path, "rb") as handle:
+        offset = 0
+        while offset < size:
+            cards = {}
+            found_end = False
+            for block in range(_MAX_HEADER_BLOCKS):
+                chunk = handle.read(_BLOCK)
+                if block == 0 and units and not chunk.startswith(b"XTENSION="):
+                    return units             # padding or stray bytes after the last unit
+                if len(chunk) < _BLOCK:
+                    if units:
+                        return units         # an incomplete trailing unit: astropy skips it too
+                    _fail(path, "is truncated or damaged inside a FITS header (the header ends early)",
+                          "copy or download the file again")
+                text = chunk.decode("ascii", errors="replace")
+                for i in range(0, _BLOCK, 80):
+                    card = text[i:i + 80]
+                    key = card[:8].strip()
+                    if key == "END":
+                        found_end = True
+                        break
+                    if card[8:10] == "= " and key not in cards:
+                        cards[key] = _card_value(card)
+                if found_end:
+                    break
+            if not found_end:
+                _fail(path, "has a FITS header without an END card", "the file is damaged")
+            header_end = handle.tell()
+            naxis = cards.get("NAXIS", 0)
+            if not isinstance(naxis, int) or isinstance(naxis, bool) or not 0 <= naxis <= 999:
+                _fail(path, f"has an impossible NAXIS = {naxis!r} (FITS allows 0 to 999)", "the file is damaged")
+            dims = []
+            for key in [f"NAXIS{k}" for k in range(1, naxis + 1)] + ["PCOUNT", "GCOUNT"]:
+                val = cards.get(key, 1 if key == "GCOUNT" else 0)
+                if not isinstance(val, int) or isinstance(val, bool) or val < 0:
+                    _fail(path, f"header card {key} = {val!r} is not a non-negative integer", "the file is damaged")
+                if key.startswith("NAXIS"):
+                    dims.append(val)
+            bitpix = cards.get("BITPIX")
+            if bitpix not in (8, 16, 32, 64, -32, -64):
+                _fail(path, f"header card BITPIX = {bitpix!r} is not a FITS data type", "the file is damaged")
+            groups = not units and cards.get("GROUPS") is True and dims[:1] == [0]
+            if naxis == 0:
+                nbytes = 0
+            else:
+                prod = 1
+                for d in (dims[1:] if groups else dims):
+                    prod *= d
+                if units or groups:
+                    nbytes = abs(bitpix) // 8 * cards.get("GCOUNT", 1) * (cards.get("PCOUNT", 0) + prod)
+                else:
+                    nbytes = abs(bitpix) // 8 * prod
+            if header_end + nbytes > size:
+                what = "visibilities" if groups else "data"
+                _fail(path, f"is truncated: a header promises {nbytes} bytes of {what}, the file holds "
+                            f"{max(size - header_end, 0)}", "copy or download the file again")
+            units.append((cards, header_end, nbytes))
+            offset = header_end + -(-nbytes // _BLOCK) * _BLOCK
+            handle.seek(offset)
+    return units
 
 
 def _table_column(table, name):
@@ -320,6 +394,7 @@ def _read(path, source):
     if not start.startswith(b"SIMPLE  ="):
         _fail(path, "is not a FITS file (it does not begin with the card 'SIMPLE  =')",
               "give a UVFITS file, or an .ecsv visibility table")
+    _scan_structure(path)
     with fits.open(path, memmap=False, lazy_load_hdus=True) as hdul:
         hdu = hdul[0]
         header = hdu.header
@@ -327,12 +402,6 @@ def _read(path, source):
             kind = "an image" if int(header.get("NAXIS", 0)) >= 2 else "no data array"
             _fail(path, f"is a FITS file but holds no visibilities (no random groups, GROUPS = T missing; "
                         f"the primary unit is {kind})", "give a UVFITS visibility file")
-        expected = _expected_data_bytes(header)
-        offset = hdu.fileinfo()["datLoc"]
-        size = os.path.getsize(path)
-        if offset + expected > size:
-            _fail(path, f"is truncated: the header promises {expected} bytes of visibilities, the file "
-                        f"holds {max(size - offset, 0)}", "copy or download the file again")
         pcount = int(header.get("PCOUNT", 0))
         ptypes = [str(header.get(f"PTYPE{i}", "")) for i in range(1, pcount + 1)]
         pnames = [_norm_param(p) for p in ptypes]

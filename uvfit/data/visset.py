@@ -5,7 +5,9 @@ Conventions (see README, "Conventions"):
   V(u, v) = integral I(l, m) exp[-2 pi i (u l + v m)] dl dm, l toward east, m toward north
   (Thompson, Moran & Swenson 2017, ch. 3).
 - A row on stations (station1, station2) is the correlation of station1 with the conjugate of
-  station2; the (u, v, w) of a row is the baseline from station1 to station2 as stored in the file.
+  station2; the (u, v, w) of a row is the baseline from station1 to station2, i.e. the projection of
+  x(station2) - x(station1) as in TMS 2017 eq. 4.1. A reader maps its file's convention onto this in
+  one function (UVFITS: uvfit.data.uvfits._to_sky_convention, which negates the stored u, v, w).
 - vis and sigma in Jy; sigma is the 1-sigma error of the real and of the imaginary part each.
 - time is MJD (UTC) as a float; frequency in Hz, per row.
 - flag is True for a row that must not be used.

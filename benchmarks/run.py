@@ -15,7 +15,9 @@ Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcsec
 2. jacobian_fit: least squares (scipy.optimize.least_squares, trust-region reflective, the
    options of uvfit.infer.lsq) of a three-component model to 1e5 visibilities through the complex
    statistic, with the analytic Jacobian and with two-point finite differences; time ratio,
-   evaluations, and the difference of the optima in units of the parameters' errors.
+   evaluations, and the difference of the optima in units of the parameters' errors. Beside it:
+   the cost of one Jacobian each way, of the solver's SVD of the Jacobian, and both fits again
+   with scipy's iterative trust-region solver (tr_solver="lsmr").
 3. scaling: one evaluation of the two-component model at 1e3 ... 1e7 rows (--quick: to 1e6):
    time per visibility, and the peak of memory allocated during the call (tracemalloc, which
    numpy reports its allocations to) divided by the size of the data arrays, defined as the
@@ -155,11 +157,11 @@ def jacobian_fit(quick):
     stat = make_statistic("complex", vs, start)
     lo, hi = start.free_bounds()
 
-    def run(jac):
+    def run(jac, solver="exact"):
         t0 = time.perf_counter()
         with np.errstate(all="ignore"):
             res = least_squares(stat.residuals, x0, jac=jac, bounds=(lo, hi), method="trf",
-                                x_scale="jac", max_nfev=200 * (x0.size + 1))
+                                x_scale="jac", max_nfev=200 * (x0.size + 1), tr_solver=solver)
         return time.perf_counter() - t0, res
 
     run(stat.jacobian)  # warm-up
@@ -172,12 +174,20 @@ def jacobian_fit(quick):
         tf = min(tf, t)
     # where the time goes: one Jacobian of the statistic, analytic against k residual vectors
     # (what the 2-point rule costs), and one SVD of the Jacobian (done by the solver each iteration)
+    # the same with scipy's iterative trust-region solver (no SVD of the Jacobian per iteration)
+    tla, tlf = math.inf, math.inf
+    for _ in range(rounds):
+        t, rla = run(stat.jacobian, "lsmr")
+        tla = min(tla, t)
+        t, rlf = run("2-point", "lsmr")
+        tlf = min(tlf, t)
     jac = stat.jacobian(ra.x)
     t_res, t_jac, t_svd = best_of([lambda: stat.residuals(ra.x), lambda: stat.jacobian(ra.x),
                                    lambda: np.linalg.svd(jac, full_matrices=False)], 3 if quick else 7)
     cov = np.linalg.inv(jac.T @ jac)
     err = np.sqrt(np.diag(cov))
     shift = float(np.max(np.abs(ra.x - rf.x) / err))
+    shift_lsmr = float(np.max(np.abs(rla.x - ra.x) / err))
     chi2a, chi2f = 2 * ra.cost, 2 * rf.cost
     # the project's fitter, for the record (analytic Jacobian, one start)
     from uvfit.infer.lsq import fit
@@ -194,6 +204,8 @@ def jacobian_fit(quick):
                                    "finite_difference_jacobian": x0.size * t_res * 1e3,
                                    "svd_of_jacobian": t_svd * 1e3},
             "jacobian_stage_ratio": x0.size * t_res / t_jac,
+            "iterative_solver": {"analytic_s": tla, "finite_difference_s": tlf, "ratio": tlf / tla,
+                                 "max_shift_in_errors_from_exact": shift_lsmr},
             "definition": "t(least_squares, 2-point FD Jacobian) / t(same, analytic Jacobian); "
                           "min of rounds; same start, bounds and options"}
 
@@ -342,6 +354,9 @@ def main(argv=None):
         print(f"     per iteration: analytic Jacobian {c['analytic_jacobian']:.1f} ms, finite-difference "
               f"Jacobian {c['finite_difference_jacobian']:.1f} ms (ratio {r['jacobian_stage_ratio']:.2f}), "
               f"SVD of the Jacobian in the solver {c['svd_of_jacobian']:.1f} ms")
+        it = r["iterative_solver"]
+        print(f"     with tr_solver='lsmr': analytic {it['analytic_s']:.2f} s, finite differences "
+              f"{it['finite_difference_s']:.2f} s, ratio {it['ratio']:.2f}")
         print(f"     {r['rows']} rows, {r['free_parameters']} free: analytic {r['analytic_s']:.2f} s, "
               f"finite differences {r['finite_difference_s']:.2f} s; optima differ by "
               f"{r['max_shift_in_errors']:.2g} errors, chi2 {r['chi2_analytic']:.2f} / "

@@ -118,6 +118,14 @@ def test_fast_path_several_components_ties_fixed_and_theta():
     model.fix("core.fwhm")
     model.parameters["jet.axis_ratio"].value = 0.7
     assert_same(*both(model))
+    model.release("core.fwhm")
+    model.component("halo").reference_frequency = 240e9
+    assert_same(*both(model))
+    # a copy evaluates alike and keeps its own structure
+    other = model.copy()
+    other.fix("jet.flux")
+    assert_same(*both(other))
+    assert_same(*both(model))
 
 
 @needs_numba

@@ -189,7 +189,8 @@ class Plan:
 
 def _structure_key(model):
     pv = model.parameters.values()
-    return (id(model.parameters), tuple(map(id, pv)), tuple(map(id, model.components)),
+    return (id(model.parameters), tuple(map(id, pv)),
+            tuple([(id(c), id(c.shape), c.reference_frequency) for c in model.components]),
             model.rad_per_unit, tuple([p.tie if p.tie is not None else bool(p.fixed) for p in pv]))
 
 

@@ -44,7 +44,8 @@ import numpy as np
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 
 from uvfit.data.visset import VisibilitySet  # noqa: E402
-from uvfit.outputs import write_json  # noqa: E402
+from uvfit.errors import UvfitError  # noqa: E402
+from uvfit.outputs import check_writable, write_json  # noqa: E402
 from uvfit.sky import engine  # noqa: E402
 from uvfit.sky.model import SkyModel  # noqa: E402
 
@@ -329,6 +330,13 @@ def main(argv=None):
     args = ap.parse_args(argv)
     if args.engine:
         engine.set_engine(args.engine)
+    if args.output:
+        os.makedirs(os.path.dirname(os.path.abspath(args.output)), exist_ok=True)
+        try:  # refuse before minutes of measuring, not after
+            check_writable(args.output, force=args.force)
+        except UvfitError as exc:
+            print(f"error: {exc}", file=sys.stderr)
+            return 2
     only = set((args.only or "trig,fit,scaling,sampler").split(","))
     started = datetime.datetime.now(datetime.timezone.utc)
     res = {"date_utc": started.isoformat(timespec="seconds"), "quick": bool(args.quick),

@@ -175,6 +175,23 @@ def test_kernel_trigonometry_and_exponential_against_numpy():
     below = np.array([-746.0, -1e4, -1e300])
     k.exp_array(below, e[:3])
     assert np.all(e[:3] == 0.0)
+    odd = np.array([np.nan, np.inf, -np.inf, 710.0])
+    k.exp_array(odd, e[:4])
+    assert np.isnan(e[0]) and e[1] == np.inf and e[2] == 0.0 and e[3] == np.inf
+    k.sincos_array(np.array([np.nan, np.inf]), s[:2], c[:2])
+    assert np.all(np.isnan(s[:2])) and np.all(np.isnan(c[:2]))
+
+
+@needs_numba
+def test_non_finite_parameters_give_non_finite_visibilities_on_both_paths():
+    # the fitter relies on non-finite predictions to reject bad parameter values
+    model = SkyModel.build([CASES["elliptical_gaussian"], CASES["point"] | {"name": "b"}])
+    theta = model.get_free()
+    theta[model.free_names.index("a.fwhm")] = np.nan
+    for name in PATHS:
+        with engine.using(name):
+            vis = model.visibilities(U, V, theta=theta)
+            assert np.all(np.isnan(vis)), name
 
 
 @needs_numba

@@ -19,7 +19,7 @@ calls, so that the compiler emits SIMD code for the whole loop:
 * exp(x): x = k ln 2 + r with a two-part ln 2 (Cody & Waite 1980, "Software Manual for the
   Elementary Functions"), |r| <= ln2 / 2, Taylor series to r^13 (error < 1e-17 relative), times
   2^k built from its bits in two factors (so that results down to the subnormal range are right).
-  Arguments below -745.5 give 0, above 709 are clipped (never reached by these shapes).
+  Arguments below -745 give 0, above 709.78 infinity, nan gives nan (as the C library).
 
 Layout of the model description (built by ``uvfit.sky.engine``), for component c:
 ``kinds[c]``: 0 point, 1 circular Gaussian, 2 elliptical Gaussian, 3 any shape whose structure
@@ -92,16 +92,18 @@ def sincos_turns(t):
 @njit(inline="always", cache=True)
 def exp_(x):
     """exp(x) for finite x (see the module docstring)."""
-    x = min(max(x, -745.5), 709.0)
-    kf = np.floor(x * LOG2E + 0.5)
-    r = (x - kf * LN2_HI) - kf * LN2_LO
+    xc = min(max(x, -745.5), 709.0)
+    kf = np.floor(xc * LOG2E + 0.5)
+    r = (xc - kf * LN2_HI) - kf * LN2_LO
     p = E0 + r * (E1 + r * (E2 + r * (E3 + r * (E4 + r * (E5 + r * (E6 + r * (E7 + r * (
         E8 + r * (E9 + r * (E10 + r * (E11 + r * (E12 + r * E13))))))))))))
     k = np.int64(kf)
     k1 = k >> 1
     k2 = k - k1
     out = p * _bits_to_float((k1 + 1023) << 52) * _bits_to_float((k2 + 1023) << 52)
-    return out if x > -745.0 else 0.0
+    out = out if x > -745.0 else 0.0
+    out = out if x < 709.782712893384 else np.inf
+    return out if x == x else x             # nan stays nan
 
 
 @njit(cache=True, nogil=True)

@@ -1,5 +1,4 @@
 """uvfit sample: posterior distributions of a model's parameters by ensemble MCMC."""
-import os
 import sys
 
 import click
@@ -33,12 +32,15 @@ from ._common import force_option, load_data, pop_selection, seed_option, select
 @click.option("--order-by", type=click.Choice(["flux", "distance"]), default="flux", show_default=True,
               help="Label components of the same shape in every sample by flux (brightest first) "
                    "or by distance from the phase centre (nearest first).")
+@click.option("--starts", type=int, default=1, show_default=True, metavar="N",
+              help="Least-squares starts for the point the walkers start from (the first at the "
+                   "model file's values, the others random, seeded).")
 @click.option("--redshift", type=float, default=0.0, show_default=True,
               help="Redshift for the rest-frame brightness temperatures.")
 @force_option
 @selection_options
 def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chain_path, resume,
-            corner_path, json_path, order_by, redshift, force, **kwargs):
+            corner_path, json_path, order_by, starts, redshift, force, **kwargs):
     """Sample the posterior of MODEL's free parameters given the visibilities in DATA.
 
     The chain starts at the least-squares best fit and stops when the autocorrelation time has
@@ -47,7 +49,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     parameter and derived quantity; sizes consistent with zero are given as 95% upper limits.
     """
     from .. import load_model
-    from ..infer.sampling import chain_info, sample
+    from ..infer.sampling import check_chain_file, sample
     from ..outputs import check_writable, write_json
 
     selection = pop_selection(kwargs)
@@ -61,17 +63,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     for path in (json_path, corner_path):
         if path is not None:
             check_writable(path, force)
-    previous = 0
-    if resume:
-        if chain_path is None:
-            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
-        if not os.path.exists(chain_path):
-            raise UvfitError(f"there is no chain file {chain_path} to resume",
-                             "run once without --resume to start the chain")
-        previous = chain_info(chain_path)["iteration"]
-    elif chain_path is not None and os.path.exists(chain_path) and not force:
-        raise UvfitError(f"the chain file {chain_path} exists already",
-                         "pass --resume to continue it, or --force to start it again")
+    previous = check_chain_file(chain_path, resume, force)
 
     vset = load_data(data, selection)
     sky = load_model(model)
@@ -88,7 +80,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
         post = sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
                       resume=resume, force=force, order_by=order_by, progress=progress,
-                      redshift=redshift, data_path=data)
+                      starts=starts, redshift=redshift, data_path=data)
     for note in post.notes:
         click.echo(f"note: {note}", err=True)
     click.echo(post.table())

@@ -288,6 +288,29 @@ def chain_info(path):
     return _read_chain_attrs(path)
 
 
+def check_chain_file(chain_path, resume=False, force=False):
+    """Refuse what a run would refuse about its chain file; the steps already in it (0 if new).
+
+    ``resume`` needs an existing chain file; without it an existing file needs ``force``, and its
+    folder must exist. Commands call this before any long work.
+    """
+    if resume:
+        if chain_path is None:
+            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
+        if not os.path.exists(chain_path):
+            raise UvfitError(f"there is no chain file {chain_path} to resume",
+                             "run once without --resume to start the chain")
+        return _read_chain_attrs(chain_path)["iteration"]
+    if chain_path is not None:
+        if os.path.exists(chain_path) and not force:
+            raise UvfitError(f"the chain file {chain_path} exists already",
+                             "pass --resume to continue it, or --force to start it again")
+        if not os.path.isdir(os.path.dirname(os.path.abspath(chain_path))):
+            raise UvfitError(f"the folder for the chain file {chain_path} does not exist",
+                             "create it first")
+    return 0
+
+
 def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_steps=5000, seed=0,
               procs=1, chain_path=None, resume=False, force=False, progress=None,
               check_every=CHECK_EVERY, tau_factor=TAU_FACTOR, tau_change=TAU_CHANGE,
@@ -315,12 +338,8 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
     notes = []
     backend = None
     previous = 0
+    check_chain_file(chain_path, resume, force)
     if resume:
-        if chain_path is None:
-            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
-        if not os.path.exists(chain_path):
-            raise UvfitError(f"there is no chain file {chain_path} to resume",
-                             "run once without --resume to start the chain")
         info = _read_chain_attrs(chain_path)
         if info["names"] != names:
             raise UvfitError(f"the chain in {chain_path} was run on other free parameters "
@@ -348,14 +367,7 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
                              f"use --walkers {2 * n_dim + 2} or more")
         if chain_path is not None:
             if os.path.exists(chain_path):
-                if not force:
-                    raise UvfitError(f"the chain file {chain_path} exists already",
-                                     "pass --resume to continue it, or --force to start it again")
-                os.unlink(chain_path)
-            folder = os.path.dirname(os.path.abspath(chain_path))
-            if not os.path.isdir(folder):
-                raise UvfitError(f"the folder for the chain file {chain_path} does not exist",
-                                 "create it first")
+                os.unlink(chain_path)  # --force: start the chain again
             backend = emcee.backends.HDFBackend(chain_path, name=CHAIN_GROUP)
             backend.reset(n_walkers, n_dim)
             _write_chain_attrs(chain_path, names, seed, meta)
@@ -387,6 +399,9 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
         if previous and previous % check_every == 0:
             converged, _ = convergence_check(sampler.get_chain(), previous, check_every,
                                              tau_factor, tau_change)
+            if converged:
+                notes.append(f"the chain had converged already at its {previous} steps; no steps "
+                             "were added")
         todo = max_steps - previous
         if previous and todo <= 0:
             notes.append(f"the chain already has {previous} steps (--max-steps {max_steps}); "

@@ -20,7 +20,8 @@ the Jacobian uses d arg V = Im(dV / V) and d log|V| = Re(dV / V).
 """
 import numpy as np
 
-from .base import CombinedStatistic, Statistic
+from ..errors import UvfitError
+from .base import Statistic
 from .closures_build import (COVARIANCE_NOTE, DEFAULT_SNR_CUT, ClosureSet, build_closures,
                              no_closure_error)
 
@@ -100,16 +101,44 @@ def flux_degeneracies(model, why):
 
 
 # ------------------------------------------------------------------------------ statistics
+COVARIANCES = ("diagonal", "snapshot")
+
+
+def _check_covariance(covariance, full):
+    """The covariance to use: "snapshot" by default for the non-redundant set, "diagonal" for the
+    full set (whose covariance is singular)."""
+    if covariance is None:
+        return "diagonal" if full else "snapshot"
+    if covariance not in COVARIANCES:
+        raise UvfitError(f"unknown closure covariance '{covariance}'",
+                         "use 'diagonal' (default) or 'snapshot'")
+    if covariance == "snapshot" and full:
+        raise UvfitError("the full (redundant) closure set has a singular covariance",
+                         "use the non-redundant set (no --full) with the snapshot covariance")
+    return covariance
+
+
 class _ClosurePart(Statistic):
-    """A statistic on one kind of closure quantity (see the module docstring)."""
+    """A statistic on one kind of closure quantity (see the module docstring).
+
+    ``covariance``: "snapshot" (default for the non-redundant set) whitens the residuals of each
+    snapshot with the full covariance A diag(sigma_k^2 / |V_k|^2) A^T of its closures (A: the
+    signs on the rows), so that the chi2 and the errors account for shared baselines; "diagonal"
+    (common practice; always used for the redundant full set) weighs every closure by its own
+    sigma and ignores those correlations, which on simulated data underestimated the errors of
+    relative positions by some 30 per cent. ``sigma`` is the per-closure error either way.
+    """
 
     kind = ""
     why = ""
 
     def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                 closures=None, **options):
-        super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=full, **options)
+                 covariance=None, closures=None, **options):
+        vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+        covariance = _check_covariance(covariance, full)
+        super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
+                         covariance=covariance, **options)
         cs = closures if closures is not None else build_closures(
             vset, snr_cut=snr_cut, systematic=systematic, full=full, kinds=(self.kind,))[self.kind]
         if cs.n == 0:
@@ -117,7 +146,10 @@ class _ClosurePart(Statistic):
         self.closures = cs
         self.snr_cut = snr_cut
         self.full = bool(full)
-        self.covariance = COVARIANCE_NOTE
+        self.covariance = covariance
+        self.covariance_note = (COVARIANCE_NOTE if covariance == "diagonal" else
+                                "full covariance within each snapshot (closures sharing a baseline "
+                                "correlated); snapshots independent")
         self.data = cs.value.copy()
         self.sigma = cs.sigma.copy()
         #: rows of ``vset`` that enter each datum (n_data, 3 or 4), and their stations
@@ -130,12 +162,78 @@ class _ClosurePart(Statistic):
         self._u = vset.u[self._used]
         self._v = vset.v[self._used]
         self._f = vset.frequency[self._used]
+        self._white = None
+        self._logdet = 0.0
+        if covariance == "snapshot":
+            self._white, self._logdet = self._whitening(vset, cs)
+
+    @staticmethod
+    def _whitening(vset, cs):
+        """Block-diagonal W with W C W^T = 1 (C the covariance of each snapshot's closures) and
+        0.5 log det C. The covariance blocks are built in a loop over snapshots (construction
+        only); their Cholesky factors and inverses are computed in batches of equal size."""
+        from scipy.sparse import block_diag
+
+        amp = np.abs(vset.vis)
+        rel2 = (vset.sigma ** 2 + (cs.systematic * amp) ** 2) / amp ** 2
+        bounds = np.flatnonzero(np.diff(cs.snapshot)) + 1
+        groups = np.split(np.arange(cs.n), bounds)
+        covs = []
+        for idx in groups:
+            rows = cs.rows[idx]
+            uniq, inv = np.unique(rows, return_inverse=True)
+            a = np.zeros((len(idx), len(uniq)))
+            np.add.at(a, (np.repeat(np.arange(len(idx)), rows.shape[1]), inv.ravel()),
+                      cs.signs[idx].ravel())
+            covs.append((a * rel2[uniq]) @ a.T)
+        blocks = [None] * len(groups)
+        logdet = 0.0
+        sizes = np.array([len(g) for g in groups])
+        for k in np.unique(sizes):
+            which = np.flatnonzero(sizes == k)
+            low = np.linalg.cholesky(np.stack([covs[i] for i in which]))
+            white = np.linalg.inv(low)
+            logdet += float(np.sum(np.log(np.diagonal(low, axis1=1, axis2=2))))
+            for j, i in enumerate(which):
+                blocks[i] = white[j]
+        return block_diag(blocks, format="csr"), logdet
 
     def _vis(self, theta):
         return np.asarray(self.model.visibilities(self._u, self._v, self._f, theta=theta))
 
-    def _jac(self, theta):
-        return np.asarray(self.model.jacobian(self._u, self._v, self._f, theta=theta))
+    def _vis_jac(self, theta):
+        both = getattr(self.model, "visibilities_and_jacobian", None)
+        if both is not None:
+            vis, jac = both(self._u, self._v, frequency=self._f, theta=theta)
+        else:
+            vis = self.model.visibilities(self._u, self._v, self._f, theta=theta)
+            jac = self.model.jacobian(self._u, self._v, self._f, theta=theta)
+        vis = np.asarray(vis, complex).reshape(-1)
+        return vis, np.asarray(jac, complex).reshape(vis.size, -1)
+
+    def residuals(self, theta):
+        if self._white is None:
+            return super().residuals(theta)
+        return self._white @ self._difference(self.predict(theta))
+
+    def jacobian(self, theta):
+        if self._white is None:
+            return super().jacobian(theta)
+        _, dpred = self.predict_jacobian(theta)
+        return -(self._white @ dpred)
+
+    def log_likelihood(self, theta):
+        if self._white is None:
+            return super().log_likelihood(theta)
+        r = self.residuals(theta)
+        return float(-0.5 * (r @ r) - self._logdet - 0.5 * self.n_data * np.log(2 * np.pi))
+
+    def scaled(self, factor):
+        out = super().scaled(factor)
+        if self._white is not None:
+            out._white = self._white / float(factor)
+            out._logdet = self._logdet + self.n_data * np.log(float(factor))
+        return out
 
     def model_values(self, theta=None):
         """The model's closure quantities (phases wrapped into (-pi, pi])."""
@@ -158,8 +256,7 @@ class ClosurePhaseStatistic(_ClosurePart):
         return np.angle(np.exp(1j * np.sum(self._signs * ph[self._local], axis=1)))
 
     def predict_jacobian(self, theta):
-        vis = self._vis(theta)
-        jac = self._jac(theta)
+        vis, jac = self._vis_jac(theta)
         with np.errstate(divide="ignore", invalid="ignore"):
             dph = (jac / vis[:, None]).imag
         pred = np.angle(np.exp(1j * np.sum(self._signs * np.angle(vis)[self._local], axis=1)))
@@ -180,8 +277,7 @@ class LogClosureAmplitudeStatistic(_ClosurePart):
         return np.sum(self._signs * la[self._local], axis=1)
 
     def predict_jacobian(self, theta):
-        vis = self._vis(theta)
-        jac = self._jac(theta)
+        vis, jac = self._vis_jac(theta)
         with np.errstate(divide="ignore", invalid="ignore"):
             dla = (jac / vis[:, None]).real
             la = np.log(np.abs(vis))
@@ -190,19 +286,50 @@ class LogClosureAmplitudeStatistic(_ClosurePart):
 
 
 def _pad(a, width=4):
+    a = np.asarray(a, int)
+    if a.ndim == 1:
+        a = a[:, None]
     out = np.full((a.shape[0], width), -1, dtype=int)
     out[:, :a.shape[1]] = a
     return out
 
 
-class _Joined(CombinedStatistic):
-    """A CombinedStatistic that keeps its class (and attributes) when scaled."""
+class _Joined(Statistic):
+    """Several statistics on the same model, joined end to end (like CombinedStatistic).
+
+    The members are kept in ``members`` rather than ``parts`` so that a fitter that rebuilds a
+    statistic on a changed model calls this class again (``type(s)(s.vset, model, systematic,
+    **s.options)``) and keeps its attributes (``row_index``, ``closures``, degeneracies).
+    """
+
+    def _join(self, members):
+        self.members = list(members)
+        self.data = np.concatenate([p.data for p in self.members])
+        self.sigma = np.concatenate([p.sigma for p in self.members])
+        self.wrapped = np.concatenate([np.broadcast_to(
+            False if p.wrapped is None else p.wrapped, (p.n_data,)) for p in self.members])
+
+    def predict(self, theta):
+        return np.concatenate([p.predict(theta) for p in self.members])
+
+    def predict_jacobian(self, theta):
+        out = [p.predict_jacobian(theta) for p in self.members]
+        return np.concatenate([o[0] for o in out]), np.vstack([o[1] for o in out])
+
+    def residuals(self, theta):
+        return np.concatenate([p.residuals(theta) for p in self.members])
+
+    def jacobian(self, theta):
+        return np.vstack([p.jacobian(theta) for p in self.members])
+
+    def log_likelihood(self, theta):
+        return float(sum(p.log_likelihood(theta) for p in self.members))
 
     def scaled(self, factor):
         out = object.__new__(type(self))
         out.__dict__.update(self.__dict__)
-        out.parts = [p.scaled(factor) for p in self.parts]
-        out.sigma = np.concatenate([p.sigma for p in out.parts])
+        out.members = [p.scaled(factor) for p in self.members]
+        out.sigma = np.concatenate([p.sigma for p in out.members])
         return out
 
 
@@ -211,34 +338,41 @@ class ClosureStatistic(_Joined):
 
     Immune to every station-based gain; blind to absolute position and to the total flux.
     With only three stations there are no closure amplitudes and the closure phases are used alone
-    (a note says so in ``notes``).
+    (``notices`` says so). Phase and log-amplitude noise are independent at high SNR (they come
+    from the perpendicular and parallel noise components), so the two blocks are not correlated.
     """
 
     mode = "closure"
 
-    def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False, **options):
+    def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
+                 covariance=None, **options):
+        vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+        covariance = _check_covariance(covariance, full)
+        super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
+                         covariance=covariance, **options)
         cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full)
         if cs["phase"].n == 0:
             raise no_closure_error(vset, "phase", snr_cut)
-        parts = [ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, closures=cs["phase"])]
-        self.notes = []
+        members = [ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, covariance,
+                                         closures=cs["phase"])]
+        self.notices = []
         if cs["amplitude"].n:
-            parts.append(LogClosureAmplitudeStatistic(vset, model, systematic, snr_cut, full,
-                                                      closures=cs["amplitude"]))
+            members.append(LogClosureAmplitudeStatistic(vset, model, systematic, snr_cut, full,
+                                                        covariance, closures=cs["amplitude"]))
         else:
-            self.notes.append("no closure amplitudes can be formed (fewer than four stations with "
-                              "enough SNR at every time): closure phases only")
-        super().__init__(parts, mode="closure")
-        self.options = dict(snr_cut=snr_cut, full=bool(full), **options)
+            self.notices.append("no closure amplitudes can be formed (fewer than four stations with "
+                                "enough SNR at every time): closure phases only")
+        self._join(members)
         self.snr_cut = snr_cut
         self.full = bool(full)
-        self.covariance = COVARIANCE_NOTE
+        self.covariance = covariance
+        self.covariance_note = members[0].covariance_note
         self.closures = cs
-        self.row_index = np.vstack([_pad(p.row_index) for p in parts])
-        self.station_index = np.vstack([_pad(p.station_index) for p in parts])
-        self.labels = np.concatenate([p.labels for p in parts])
-        self.kinds = np.concatenate([np.full(p.n_data, p.kind) for p in parts])
+        self.row_index = np.vstack([_pad(p.row_index) for p in members])
+        self.station_index = np.vstack([_pad(p.station_index) for p in members])
+        self.labels = np.concatenate([p.labels for p in members])
+        self.kinds = np.concatenate([np.full(p.n_data, p.kind) for p in members])
 
     def degeneracies(self):
         why = "closure phases and log closure amplitudes"
@@ -246,29 +380,28 @@ class ClosureStatistic(_Joined):
 
 
 class _AmplitudePart(Statistic):
-    """Visibility amplitudes |V| with sigma (the noise of either part; high-SNR approximation)."""
+    """Visibility amplitudes |V| with sigma (the noise of either part; high-SNR approximation);
+    used only where the fitting layer's AmplitudeStatistic is not available."""
 
     mode = "amplitude"
     wrapped = None
 
     def __init__(self, vset, model, systematic=0.0, **options):
+        vset = vset.good()
         super().__init__(vset, model, systematic=systematic, **options)
-        use = np.flatnonzero(~vset.flag)
-        if use.size == 0:
-            vset.good()  # raises the DataError that says why
-        self._used = use
-        amp = np.abs(vset.vis[use])
+        amp = np.abs(vset.vis)
         self.data = amp
-        self.sigma = np.sqrt(vset.sigma[use] ** 2 + (self.systematic * amp) ** 2)
-        self.row_index = use[:, None]
-        self._u, self._v, self._f = vset.u[use], vset.v[use], vset.frequency[use]
+        self.sigma = np.sqrt(vset.sigma ** 2 + (self.systematic * amp) ** 2)
+        self.row_index = np.arange(vset.n)
 
     def predict(self, theta):
-        return np.abs(self.model.visibilities(self._u, self._v, self._f, theta=theta))
+        return np.abs(self.model.visibilities(self.vset.u, self.vset.v, self.vset.frequency,
+                                              theta=theta))
 
     def predict_jacobian(self, theta):
-        vis = np.asarray(self.model.visibilities(self._u, self._v, self._f, theta=theta))
-        jac = np.asarray(self.model.jacobian(self._u, self._v, self._f, theta=theta))
+        vs = self.vset
+        vis = np.asarray(self.model.visibilities(vs.u, vs.v, vs.frequency, theta=theta))
+        jac = np.asarray(self.model.jacobian(vs.u, vs.v, vs.frequency, theta=theta))
         amp = np.abs(vis)
         with np.errstate(divide="ignore", invalid="ignore"):
             d = (np.conj(vis)[:, None] * jac).real / amp[:, None]
@@ -291,30 +424,33 @@ class HybridStatistic(_Joined):
     """Visibility amplitudes and closure phases (mode "hybrid").
 
     Immune to station-based phase errors (not to amplitude errors); the amplitudes fix the total
-    flux, nothing fixes the absolute position.
+    flux, nothing fixes the absolute position. The closure phases use the SNR cut, the amplitudes
+    every unflagged row (low-SNR rows as the amplitude statistic treats them).
     """
 
     mode = "hybrid"
 
-    def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False, **options):
+    def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
+                 covariance=None, **options):
+        vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+        super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
+                         covariance=covariance, **options)
         amp = _amplitude_statistic(vset, model, systematic, **options)
-        cp = ClosurePhaseStatistic(vset, model, systematic, snr_cut, full)
-        super().__init__([amp, cp], mode="hybrid")
-        self.options = dict(snr_cut=snr_cut, full=bool(full), **options)
+        cp = ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, covariance)
+        self._join([amp, cp])
+        self.notices = list(getattr(amp, "notices", []) or [])
         self.snr_cut = snr_cut
         self.full = bool(full)
-        self.covariance = COVARIANCE_NOTE + " (closure phases); visibility amplitudes independent"
+        self.covariance = covariance
+        self.covariance_note = cp.covariance_note + " (closure phases); amplitudes independent"
         self.closures = {"phase": cp.closures}
         amp_rows = getattr(amp, "row_index", None)
-        if amp_rows is None:
-            amp_rows = np.flatnonzero(~vset.flag)[:, None]
-        amp_rows = np.asarray(amp_rows).reshape(amp.n_data, -1)
+        if amp_rows is None or len(amp_rows) != amp.n_data:
+            amp_rows = np.arange(amp.n_data)
+        amp_rows = _pad(amp_rows, 1)[:, 0]
         self.row_index = np.vstack([_pad(amp_rows), _pad(cp.row_index)])
-        amp_st = np.full(amp_rows.shape[:1] + (2,), -1)
-        ok = amp_rows[:, 0] >= 0
-        amp_st[ok, 0] = vset.ant1[amp_rows[ok, 0]]
-        amp_st[ok, 1] = vset.ant2[amp_rows[ok, 0]]
+        amp_st = np.stack([vset.ant1[amp_rows], vset.ant2[amp_rows]], 1)
         self.station_index = np.vstack([_pad(amp_st), _pad(cp.station_index)])
         self.kinds = np.concatenate([np.full(amp.n_data, "visibility_amplitude"),
                                      np.full(cp.n_data, "phase")])
@@ -381,39 +517,48 @@ def _judge(what, chi2, n, full):
     return True, text + " -> consistent"
 
 
-def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False, worst=5):
+def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
+                   covariance=None, worst=5):
     """Counts of the closure quantities of ``vset`` and, with a model, how well the model's closure
     phases and log closure amplitudes match the data (at the model's current parameter values).
 
     Returns a dict: counts (``n_closure_phases``, ``n_closure_amplitudes``, ``n_triangles``,
-    ``n_quadrangles``, ``n_stations``, ``n_snapshots``), settings, ``covariance`` (the diagonal
-    approximation), ``caution``; with a model also ``closure_phase_chi2``,
-    ``closure_amplitude_chi2``, their reduced values and expected spreads sqrt(2/n),
-    ``per_triangle``, ``per_quadrangle``, ``per_station`` (worst first), ``worst_*`` (the first
-    ``worst`` of each), ``supported`` (bool) and ``verdict`` (words). Also ``closures``: the
-    ClosureSet of each kind and, with a model, ``model_values`` (for tables; not JSON material).
-    Raises DataError when no closure phase can be formed.
+    ``n_quadrangles``, ``n_stations``, ``n_snapshots``), settings, ``covariance`` (words),
+    ``caution``; with a model also ``closure_phase_chi2`` and ``closure_amplitude_chi2`` (with the
+    snapshot covariance for the non-redundant set, diagonal for the full set), the diagonal values
+    ``*_chi2_diagonal``, reduced values and their expected spread sqrt(2/n), ``per_triangle``,
+    ``per_quadrangle``, ``per_station`` (worst first; from diagonal per-closure residuals, each
+    closure counted toward each of its stations), ``worst_*`` (the first ``worst`` of each),
+    ``supported`` (bool) and ``verdict`` (words). Also ``closures`` (the ClosureSet of each kind)
+    and, with a model, ``model_values`` (radians / natural log) for tables; these two are not JSON
+    material (see :func:`json_summary`). Raises DataError when no closure phase can be formed.
     """
+    vset = vset.good()
     snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+    covariance = _check_covariance(covariance, full)
     cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full)
     cp, ca = cs["phase"], cs["amplitude"]
     if cp.n == 0:
         raise no_closure_error(vset, "phase", snr_cut)
     used_st = np.unique(np.concatenate([cp.stations.ravel(), ca.stations.ravel()]))
-    good = vset.subset(~vset.flag) if vset.n else vset
+    note = (COVARIANCE_NOTE if covariance == "diagonal" else
+            "linear propagation; full covariance within each snapshot for the chi2 totals "
+            "(closures sharing a baseline are correlated), diagonal errors for the per-triangle, "
+            "per-quadrangle and per-station breakdown")
     out = {
         "n_closure_phases": int(cp.n),
         "n_closure_amplitudes": int(ca.n),
         "n_triangles": int(len(np.unique(cp.labels))),
         "n_quadrangles": int(len(np.unique(ca.labels))) if ca.n else 0,
-        "n_stations": int(len(good.station_names)),
-        "stations": list(good.station_names),
+        "n_stations": int(len(vset.station_names)),
+        "stations": list(vset.station_names),
         "n_stations_in_closures": int(len(used_st)),
         "n_snapshots": int(cp.n_snapshots),
         "set": "full (redundant)" if full else "non-redundant",
         "snr_cut": snr_cut,
         "systematic": float(systematic),
-        "covariance": COVARIANCE_NOTE,
+        "covariance": note,
+        "covariance_mode": covariance,
         "closure_phase_unit": "deg",
         "closure_amplitude_unit": "natural log",
         "caution": CLOSURE_CAUTION,
@@ -423,19 +568,27 @@ def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, fu
         return out
     mvis = _model_vis_at_rows(model, vset, np.concatenate([cp.rows.ravel(), ca.rows.ravel()]))
     m_cp = cp.evaluate(mvis)
-    r_cp = np.angle(np.exp(1j * (cp.value - m_cp))) / cp.sigma
-    if ca.n:
-        m_ca = ca.evaluate(mvis)
-        r_ca = (ca.value - m_ca) / ca.sigma
-    else:
-        m_ca = np.zeros(0)
-        r_ca = np.zeros(0)
-    chi_cp, chi_ca = r_cp ** 2, r_ca ** 2
+    d_cp = np.angle(np.exp(1j * (cp.value - m_cp)))
+    m_ca = ca.evaluate(mvis) if ca.n else np.zeros(0)
+    d_ca = ca.value - m_ca
+    chi_cp, chi_ca = (d_cp / cp.sigma) ** 2, (d_ca / ca.sigma) ** 2
+    tot = {}
+    for kind, c, d, chi in (("phase", cp, d_cp, chi_cp), ("amplitude", ca, d_ca, chi_ca)):
+        if c.n == 0:
+            tot[kind] = None
+        elif covariance == "snapshot":
+            w, _ = _ClosurePart._whitening(vset, c)
+            r = w @ d
+            tot[kind] = float(r @ r)
+        else:
+            tot[kind] = float(chi.sum())
     out["model_values"] = {"phase": m_cp, "amplitude": m_ca}
-    out["closure_phase_chi2"] = float(chi_cp.sum())
-    out["closure_amplitude_chi2"] = float(chi_ca.sum()) if ca.n else None
-    out["closure_phase_reduced_chi2"] = float(chi_cp.mean())
-    out["closure_amplitude_reduced_chi2"] = float(chi_ca.mean()) if ca.n else None
+    out["closure_phase_chi2"] = tot["phase"]
+    out["closure_amplitude_chi2"] = tot["amplitude"]
+    out["closure_phase_chi2_diagonal"] = float(chi_cp.sum())
+    out["closure_amplitude_chi2_diagonal"] = float(chi_ca.sum()) if ca.n else None
+    out["closure_phase_reduced_chi2"] = tot["phase"] / cp.n
+    out["closure_amplitude_reduced_chi2"] = tot["amplitude"] / ca.n if ca.n else None
     out["closure_phase_expected_spread"] = float(np.sqrt(2.0 / cp.n))
     out["closure_amplitude_expected_spread"] = float(np.sqrt(2.0 / ca.n)) if ca.n else None
     out["per_triangle"] = _group_chi2(cp.labels, chi_cp)
@@ -444,8 +597,8 @@ def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, fu
     out["worst_triangles"] = out["per_triangle"][:worst]
     out["worst_quadrangles"] = out["per_quadrangle"][:worst]
     out["worst_stations"] = out["per_station"][:worst]
-    ok_p, t_p = _judge("closure phases", out["closure_phase_chi2"], cp.n, full)
-    ok_a, t_a = _judge("log closure amplitudes", out["closure_amplitude_chi2"] or 0.0, ca.n, full)
+    ok_p, t_p = _judge("closure phases", tot["phase"], cp.n, full)
+    ok_a, t_a = _judge("log closure amplitudes", tot["amplitude"] or 0.0, ca.n, full)
     supported = bool(ok_p and ok_a is not False)
     if supported:
         head = "The closure quantities support the fitted structure."
@@ -454,8 +607,8 @@ def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, fu
         if out["worst_stations"]:
             w = out["worst_stations"][0]
             head += (f" The largest misfit involves station {w['station']} (reduced chi2 "
-                     f"{w['reduced_chi2']:.3g}); the model may miss structure, or the errors are "
-                     f"underestimated (try a systematic floor), or that station has "
+                     f"{w['reduced_chi2']:.3g}): the model may miss structure, the errors may be "
+                     f"underestimated (try a systematic floor), or that station may carry "
                      f"baseline-based errors.")
     out["supported"] = supported
     out["verdict"] = " ".join([head, t_p + ";", t_a + "."])

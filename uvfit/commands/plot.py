@@ -1,0 +1,62 @@
+"""uvfit plot: one figure of a fit (radial, uv, closure, sky) written as a PNG."""
+import click
+
+from ._common import force_option, pop_selection, selection_options
+
+KINDS = ("radial", "uv", "closure", "sky")
+
+
+@click.command("plot")
+@click.argument("data", type=click.Path(dir_okay=False))
+@click.option("--fit", "fit_path", required=True, type=click.Path(dir_okay=False),
+              help="Fit output written by 'uvfit fit --json'; its model is drawn.")
+@click.option("--kind", required=True, type=click.Choice(KINDS),
+              help="radial: amplitude and phase against uv distance with residuals; uv: the (u, v) "
+                   "coverage; closure: closure phases against time; sky: the model on the sky.")
+@click.option("--colour-by", type=click.Choice(["baseline", "time"]), default="baseline",
+              show_default=True, help="Colouring of the (u, v) coverage.")
+@click.option("--panels", type=click.IntRange(1, 12), default=6, show_default=True,
+              help="Number of closure-phase triangles shown (the most informative first).")
+@click.option("-o", "--out", "out", required=True, type=click.Path(dir_okay=False),
+              help="PNG file to write.")
+@click.option("--numbers", "numbers_path", default=None, type=click.Path(dir_okay=False),
+              help="Also write the numbers behind the figure as JSON.")
+@force_option
+@selection_options
+def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, **kwargs):
+    """Draw one figure of the fit in FIT.json on the visibilities in DATA.
+
+    The model is rebuilt from the fit's own model text, and the data are selected as the fit
+    recorded; selection options given here override the recorded ones. Figures show east to the
+    left, as on the sky.
+    """
+    from ..outputs import check_writable, write_json
+    from ..show import plots, style
+    from ..show.inputs import open_fit_view
+    from ..show.sky import sky_figure
+
+    selection = pop_selection(kwargs)
+    check_writable(out, force)
+    if numbers_path:
+        check_writable(numbers_path, force)
+    view, notes = open_fit_view(data, fit_path, selection)
+    for note in notes:
+        click.echo(note, err=True)
+    if kind == "radial":
+        fig, numbers = plots.radial_plot(view.vset, view.model_vis, note=view.phase_note)
+    elif kind == "uv":
+        fig, numbers = plots.uv_coverage_plot(view.vset, colour_by=colour_by)
+    elif kind == "closure":
+        series = plots.closure_phase_series(view.vset, view.model_vis, systematic=view.systematic)
+        fig, numbers = plots.closure_phase_plot(series, max_panels=panels)
+    else:
+        fig, numbers = sky_figure(view)
+    try:
+        style.save_png(fig, out, force=force)
+    finally:
+        style.close(fig)
+    click.echo(f"wrote {out}")
+    if numbers_path:
+        write_json(numbers_path, {"kind": kind, "data": str(data), "fit": str(fit_path),
+                                  "selection": view.selection, **numbers}, force=force)
+        click.echo(f"wrote {numbers_path}")

@@ -1,0 +1,238 @@
+"""Reading what the plots and the report are made of: fit, posterior and comparison JSON, chains.
+
+Each reader checks that the file is what it claims to be and raises :class:`UvfitError` naming the
+file and the fix otherwise. The model is rebuilt from the fit's own ``model_toml`` text, so that a
+figure shows exactly the model that was fitted, and the data are selected as the fit recorded.
+"""
+import json
+import os
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import UvfitError
+
+#: keys every fit output (``uvfit fit --json``) has
+FIT_KEYS = ("parameters", "statistics", "model_toml")
+#: selection options a fit records and a command may override
+SELECTION_KEYS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels",
+                  "average")
+
+
+def read_json(path, what):
+    """The JSON object in ``path``; ``what`` names the kind of file in the messages."""
+    path = os.fspath(path)
+    if not os.path.isfile(path):
+        raise UvfitError(f"{what} file {path} does not exist", "check the path")
+    try:
+        with open(path, "r", encoding="utf-8") as handle:
+            obj = json.load(handle)
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise UvfitError(f"{what} file {path} is not valid JSON ({exc})",
+                         f"give the JSON written by the command that makes a {what}") from None
+    if not isinstance(obj, dict):
+        raise UvfitError(f"{what} file {path} does not hold a JSON object",
+                         f"give the JSON written by the command that makes a {what}")
+    return obj
+
+
+def load_fit(path):
+    """A fit output written by ``uvfit fit --json``, checked for the keys the figures need."""
+    fit = read_json(path, "fit")
+    missing = [k for k in FIT_KEYS if k not in fit]
+    bad_params = not isinstance(fit.get("parameters"), dict) or not all(
+        isinstance(p, dict) and "value" in p for p in fit.get("parameters", {}).values())
+    if missing or bad_params or not isinstance(fit.get("model_toml"), str):
+        what = f"it lacks {', '.join(missing)}" if missing else "its parameters or model are malformed"
+        raise UvfitError(f"{path} is not a fit output ({what})",
+                         "give the file written by 'uvfit fit ... --json FIT.json'")
+    return fit
+
+
+def load_posterior(path):
+    """A posterior summary written by ``uvfit sample --json``."""
+    post = read_json(path, "posterior")
+    params = post.get("parameters")
+    if not isinstance(params, dict) or not params or not all(
+            isinstance(p, dict) and "median" in p for p in params.values()):
+        raise UvfitError(f"{path} is not a posterior summary (no parameters with medians)",
+                         "give the JSON written by 'uvfit sample ... --json'")
+    return post
+
+
+def load_compare(path):
+    """A model comparison written by ``uvfit compare --json``."""
+    comp = read_json(path, "comparison")
+    if "models" not in comp and "verdict" not in comp:
+        raise UvfitError(f"{path} is not a model comparison (no models, no verdict)",
+                         "give the JSON written by 'uvfit compare ... --json'")
+    return comp
+
+
+def chain_settings(posterior):
+    """(discard, thin) recorded in a posterior summary (0 and 1 where it records none)."""
+    posterior = posterior or {}
+    discard = posterior.get("discard", posterior.get("burn_in", 0)) or 0
+    thin = posterior.get("thin", 1) or 1
+    return int(discard), max(1, int(thin))
+
+
+def _chain_group(path):
+    """The HDF5 group holding the emcee chain: the sampler's own, else the first that has one."""
+    import h5py
+
+    try:
+        from ..infer.sampling import CHAIN_GROUP
+    except ImportError:
+        CHAIN_GROUP = "mcmc"
+    try:
+        with h5py.File(path, "r") as handle:
+            if CHAIN_GROUP in handle:
+                return CHAIN_GROUP
+            for name in sorted(handle):
+                if isinstance(handle[name], h5py.Group) and "chain" in handle[name]:
+                    return name
+    except OSError as exc:
+        raise UvfitError(f"chain file {path} is not an HDF5 file ({exc})",
+                         "give the HDF5 chain written by 'uvfit sample'") from None
+    raise UvfitError(f"chain file {path} holds no sampler chain",
+                     "give the HDF5 chain written by 'uvfit sample'")
+
+
+def read_chain(path, discard=0, thin=1):
+    """Flat posterior samples (n, n_parameters) from an emcee HDF5 backend file."""
+    path = os.fspath(path)
+    if not os.path.isfile(path):
+        raise UvfitError(f"chain file {path} does not exist", "check the path")
+    import emcee
+
+    try:
+        backend = emcee.backends.HDFBackend(path, name=_chain_group(path), read_only=True)
+        samples = backend.get_chain(discard=int(discard), thin=int(thin), flat=True)
+    except (OSError, KeyError, AttributeError, ValueError) as exc:
+        raise UvfitError(f"chain file {path} is not a readable sampler chain ({exc})",
+                         "give the HDF5 chain written by 'uvfit sample'") from None
+    if samples is None or samples.size == 0:
+        raise UvfitError(f"chain file {path} has no samples left after discarding {discard} steps",
+                         "check the chain, or the discard recorded in the posterior JSON")
+    return np.asarray(samples)
+
+
+# --------------------------------------------------------------------------- the model
+
+
+def model_from_text(text):
+    """A SkyModel from TOML text (the fit's ``model_toml``)."""
+    from ..sky import modelfile
+
+    for name in ("loads_model", "load_model_text", "model_from_toml", "loads"):
+        loader = getattr(modelfile, name, None)
+        if callable(loader):
+            return loader(text)
+    raise UvfitError("this installation cannot read a model from text")  # pragma: no cover
+
+
+def model_from_fit(fit):
+    """The fitted model: the fit's ``model_toml`` with the fitted values of its free parameters."""
+    try:
+        model = model_from_text(fit["model_toml"])
+    except UvfitError as exc:
+        raise UvfitError(f"the model recorded in the fit cannot be rebuilt: {exc.message}",
+                         exc.hint) from None
+    params = fit.get("parameters", {})
+    names = list(getattr(model, "free_names", []))
+    if names and all(n in params for n in names):
+        model.set_free(np.array([float(params[n]["value"]) for n in names]))
+    return model
+
+
+def merged_selection(fit, options):
+    """The fit's recorded selection, each key overridden by a command option that was given."""
+    recorded = fit.get("selection") or {}
+    if not isinstance(recorded, dict):
+        recorded = {}
+    out = {k: recorded.get(k) for k in SELECTION_KEYS}
+    for k, v in (options or {}).items():
+        if v not in (None, (), ""):
+            out[k] = v
+    if out.get("time_range") is not None:
+        out["time_range"] = tuple(out["time_range"])
+    return {k: v for k, v in out.items() if v not in (None, (), "", [])}
+
+
+@dataclass
+class FitView:
+    """The data as the fit saw them, the fitted model and its visibilities at the data's (u, v)."""
+
+    vset: object
+    model: object
+    model_vis: np.ndarray
+    fit: dict
+    selection: dict
+
+    @property
+    def angular_unit(self):
+        return self.fit.get("angular_unit") or getattr(self.model, "angular_unit", None) or "mas"
+
+    @property
+    def systematic(self):
+        """The fit's systematic floor (fraction of |V| added to each sigma in quadrature)."""
+        value = self.fit.get("systematic") or 0.0
+        return float(value) if isinstance(value, (int, float)) else 0.0
+
+    @property
+    def mode(self):
+        return self.fit.get("mode") or "unknown"
+
+    @property
+    def phase_note(self):
+        """A sentence for the radial figure when the fit did not use the visibility phases."""
+        if self.mode in ("closure", "closure_phase", "closure_amplitude", "amplitude", "hybrid"):
+            return (f"Fitted in {self.mode} mode: the visibility phases were not fitted (absolute "
+                    "position free, station phases uncalibrated), so phase residuals are expected.")
+        return None
+
+
+def fit_view(vset, fit, selection=None):
+    """Build a :class:`FitView` from the selected data and a fit output dict."""
+    model = model_from_fit(fit)
+    model_vis = np.asarray(model.visibilities(vset.u, vset.v, vset.frequency), dtype=complex)
+    return FitView(vset=vset, model=model, model_vis=model_vis, fit=fit, selection=selection or {})
+
+
+def open_fit_view(data_path, fit_path, options=None):
+    """Read data and fit, apply the fit's selection (overridden by ``options``).
+
+    Returns (FitView, notes), notes being the selection's messages for the user.
+    """
+    from .. import read
+
+    fit = load_fit(fit_path)
+    selection = merged_selection(fit, options)
+    vset = read(data_path)
+    notes = []
+    if selection:
+        from ..data.select import apply_selection
+        vset, notes = apply_selection(vset, **selection)
+        notes = list(notes)
+    fitted = fit.get("data")
+    if fitted and os.path.basename(str(fitted)) != os.path.basename(os.fspath(data_path)):
+        notes.append(f"note: the fit was made on {os.path.basename(str(fitted))}, the figures show "
+                     f"{os.path.basename(os.fspath(data_path))}")
+    return fit_view(vset.good(), fit, selection), notes
+
+
+def order_chain(samples, model, posterior):
+    """Relabel swappable components in raw chain samples by the rule the posterior recorded.
+
+    The sampler's summaries are of ordered samples (brightest first, or nearest first); the chain
+    file holds them unordered, so the corner plot applies the same rule to match the table.
+    """
+    ordering = (posterior or {}).get("ordering")
+    if not isinstance(ordering, dict) or not ordering.get("groups"):
+        return samples
+    if samples.shape[1] != len(model.free_names):
+        return samples
+    from ..infer.posterior import order_samples
+
+    return order_samples(model, samples, ordering.get("rule", "flux"))[0]

@@ -1,0 +1,440 @@
+"""The figures by which a fit is judged; one function per figure.
+
+Every function takes arrays or in-memory objects (a VisibilitySet, model visibilities, closure
+series, an image), never file names, and returns ``(figure, numbers)``: the matplotlib Figure and a
+dict of the numbers drawn, so that tests can check what a figure shows without reading pixels.
+The caller writes the figure with :func:`uvfit.show.style.save_png` and closes it.
+
+Orientation (see README, "Conventions"): l (relative right ascension) increases to the east and m
+(relative declination) to the north. Sky images and (u, v) coverage are drawn with east to the
+LEFT, as the sky is seen, so the u axis increases to the left too (common practice).
+"""
+import matplotlib
+import numpy as np
+from matplotlib.patches import Circle, Ellipse
+
+from ..errors import UvfitError
+from . import style
+from .style import DATA_COLOUR, MODEL_COLOUR, OKABE_ITO
+
+# --------------------------------------------------------------------------- helpers
+
+
+def _hours(time_mjd):
+    """Hours since 0 h UTC of the first day in ``time_mjd``, and that day's MJD."""
+    time_mjd = np.asarray(time_mjd, float)
+    day0 = float(np.floor(np.nanmin(time_mjd))) if time_mjd.size else 0.0
+    return (time_mjd - day0) * 24.0, day0
+
+
+def _wrap_deg(x):
+    return (np.asarray(x) + 180.0) % 360.0 - 180.0
+
+
+def _break_gaps(x, *ys, factor=5.0):
+    """Insert NaN where the step in sorted ``x`` exceeds ``factor`` times the median step."""
+    x = np.asarray(x, float)
+    if x.size < 3:
+        return (x, *ys)
+    dx = np.diff(x)
+    positive = dx[dx > 0]
+    if positive.size == 0:
+        return (x, *ys)
+    cut = np.nonzero(dx > factor * np.median(positive))[0] + 1
+    out_x = np.insert(x, cut, np.nan)
+    return (out_x, *[np.insert(np.asarray(y, float), cut, np.nan) for y in ys])
+
+
+def _check_lengths(vset, model_vis):
+    model_vis = np.asarray(model_vis, dtype=complex).ravel()
+    if model_vis.shape[0] != vset.n:
+        raise UvfitError(f"model visibilities have {model_vis.shape[0]} rows but the data {vset.n}",
+                         "evaluate the model at the data's own (u, v)")
+    return model_vis
+
+
+# --------------------------------------------------------------------------- radial plot
+
+
+def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
+    """Amplitude and phase against uv distance, data with errors and the model, residuals below.
+
+    ``model_vis`` is the model evaluated at the data's own (u, v) (one complex value per row, Jy).
+    The model is drawn as points at the data's uv distances (a 2-D model is not a function of uv
+    distance alone). The residual panel shows (|V| - |M|) / sigma and the wrapped phase
+    difference divided by its error sigma / |V| (high-SNR error, Chael et al. 2018, ApJ 857, 23).
+
+    Returns (fig, numbers); numbers holds every plotted array in uv-distance order: ``uv``
+    (wavelengths), ``uv_scale`` and ``uv_unit`` of the axis, ``amplitude``, ``sigma``,
+    ``model_amplitude`` (Jy), ``phase_deg``, ``phase_sigma_deg``, ``model_phase_deg``,
+    ``residual_amplitude``, ``residual_phase`` (both in units of their error), ``order``.
+    """
+    model_vis = _check_lengths(vset, model_vis)
+    q = vset.uv_distance
+    order = np.argsort(q, kind="stable")
+    q = q[order]
+    vis = vset.vis[order]
+    mod = model_vis[order]
+    sigma = vset.sigma[order]
+    scale, unit = style.uv_unit(q.max() if q.size else 0.0)
+    amp, mamp = np.abs(vis), np.abs(mod)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        phase_sigma = np.degrees(np.clip(sigma / amp, 0.0, np.pi))
+    phase, mphase = np.degrees(np.angle(vis)), np.degrees(np.angle(mod))
+    dphase = _wrap_deg(phase - mphase)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        res_amp = (amp - mamp) / sigma
+        res_phase = np.where(phase_sigma > 0, dphase / phase_sigma, np.nan)
+    x = q / scale
+
+    fig, axes = style.new_figure(3, 1, sharex=True, figsize=(8.0, 8.5),
+                                 gridspec_kw={"height_ratios": [3, 2, 1.6]})
+    with style.style():
+        ax_a, ax_p, ax_r = axes
+        ax_a.errorbar(x, amp, yerr=sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR,
+                      alpha=0.6, label="data ±1σ", zorder=2)
+        ax_a.plot(x, mamp, ".", ms=2.5, color=MODEL_COLOUR, label="model at the data's (u, v)",
+                  zorder=3)
+        ax_a.set_ylabel("amplitude (Jy)")
+        if log_amplitude:
+            ax_a.set_yscale("log")
+        else:
+            ax_a.set_ylim(bottom=0.0)
+        ax_a.legend(loc="upper right", markerscale=2.5)
+        ax_p.errorbar(x, phase, yerr=phase_sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR,
+                      alpha=0.6, zorder=2)
+        ax_p.plot(x, mphase, ".", ms=2.5, color=MODEL_COLOUR, zorder=3)
+        ax_p.set_ylabel("phase (deg)")
+        ax_p.set_ylim(-190, 190)
+        ax_p.set_yticks([-180, -90, 0, 90, 180])
+        ax_r.axhline(0.0, color="0.3", lw=0.8)
+        ax_r.plot(x, res_amp, "o", ms=2.5, color=DATA_COLOUR, alpha=0.7,
+                  label="(|V| − |M|) / σ")
+        ax_r.plot(x, res_phase, "^", ms=2.5, color=OKABE_ITO["orange"], alpha=0.7,
+                  label="(φ − φ_M) / σ_φ")
+        finite = np.concatenate([res_amp[np.isfinite(res_amp)], res_phase[np.isfinite(res_phase)]])
+        lim = max(5.0, float(np.max(np.abs(finite))) * 1.1) if finite.size else 5.0
+        if lim > 30.0:
+            # a poor fit: linear within +-3 sigma, logarithmic beyond, so both stay readable
+            ax_r.set_yscale("symlog", linthresh=3.0)
+            ticks = [10.0 ** k for k in range(1, int(np.log10(lim)) + 1)]
+            ticks = [-t for t in ticks[::-1]] + [0.0] + ticks
+            ax_r.set_yticks(ticks)
+            ax_r.set_yticklabels([f"{t:g}" for t in ticks])
+        ax_r.set_ylim(-lim, lim)
+        ax_r.set_ylabel("normalised\nresidual (σ)")
+        ax_r.legend(loc="upper right", ncol=2, markerscale=2.5)
+        ax_r.set_xlabel(f"uv distance ({unit})")
+        ax_r.set_xlim(left=0.0)
+        head = title or f"{vset.source}: visibilities against uv distance"
+        ax_a.set_title(head)
+        if note:
+            fig.text(0.01, 0.005, note, fontsize=8, color="0.25", ha="left", va="bottom")
+        fig.tight_layout()
+    numbers = {
+        "uv": q, "uv_scale": scale, "uv_unit": unit, "order": order,
+        "amplitude": amp, "sigma": sigma, "model_amplitude": mamp,
+        "phase_deg": phase, "phase_sigma_deg": phase_sigma, "model_phase_deg": mphase,
+        "residual_amplitude": res_amp, "residual_phase": res_phase,
+    }
+    return fig, numbers
+
+
+# --------------------------------------------------------------------------- (u, v) coverage
+
+
+def uv_coverage_plot(vset, colour_by="baseline", title=None):
+    """The (u, v) coverage, each row and its Hermitian conjugate (-u, -v).
+
+    ``colour_by`` is "baseline" (one colour and marker per baseline) or "time" (a sequential map
+    of the hours of UTC). u increases to the LEFT (east on the sky), v upward (north).
+
+    Returns (fig, numbers): ``u``, ``v`` (wavelengths, the rows followed by their conjugates),
+    ``scale``, ``unit``, ``baselines`` (the labels in legend order), ``colour_key`` (per point:
+    baseline index or hours).
+    """
+    if colour_by not in ("baseline", "time"):
+        raise UvfitError(f"unknown colouring '{colour_by}'", "use 'baseline' or 'time'")
+    u = np.concatenate([vset.u, -vset.u])
+    v = np.concatenate([vset.v, -vset.v])
+    scale, unit = style.uv_unit(np.hypot(u, v).max() if u.size else 0.0)
+    labels = vset.baseline_labels
+    baselines, index = np.unique(labels, return_inverse=True)
+    hours, day0 = _hours(vset.time)
+    fig, ax = style.new_figure(figsize=(8.6, 7.0))
+    with style.style():
+        if colour_by == "baseline":
+            key = np.concatenate([index, index])
+            for i, name in enumerate(baselines):
+                sel = key == i
+                ax.plot(u[sel] / scale, v[sel] / scale, linestyle="none",
+                        marker=style.MARKERS[(i // len(style.CYCLE)) % len(style.MARKERS)],
+                        ms=2.5, color=style.CYCLE[i % len(style.CYCLE)], label=name)
+            ncol = 1 if len(baselines) <= 20 else 2
+            ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), ncol=ncol, fontsize=7,
+                      markerscale=2.0, title="baseline", title_fontsize=8, frameon=False)
+        else:
+            key = np.concatenate([hours, hours])
+            sc = ax.scatter(u / scale, v / scale, c=key, s=4, cmap=style.SEQUENTIAL_CMAP,
+                            linewidths=0)
+            cb = fig.colorbar(sc, ax=ax, shrink=0.85)
+            cb.set_label(f"time (h UTC from MJD {day0:.0f})")
+        lim = (np.abs(np.concatenate([u, v])).max() / scale * 1.05) if u.size else 1.0
+        ax.set_xlim(lim, -lim)  # u increases to the left: east on the sky
+        ax.set_ylim(-lim, lim)
+        ax.set_aspect("equal")
+        ax.set_xlabel(f"u ({unit}), increasing to the left (east)")
+        ax.set_ylabel(f"v ({unit}), north up")
+        ax.set_title(title or f"{vset.source}: (u, v) coverage with conjugates")
+        fig.tight_layout()
+    numbers = {"u": u, "v": v, "scale": scale, "unit": unit, "baselines": baselines.tolist(),
+               "colour_key": key, "colour_by": colour_by}
+    return fig, numbers
+
+
+# --------------------------------------------------------------------------- closure phases
+
+
+def closure_phase_series(vset, model_vis, systematic=0.0, snr_cut=None):
+    """Closure phases of every triangle at every time (and channel), data and model.
+
+    Built by the closure layer (:func:`uvfit.stats.closure.build_closures`) with its full
+    (redundant) set, so that every triangle can be drawn; the statistics use the non-redundant set.
+    Closure phase on stations (a, b, c): arg(V_ab V_bc V_ca), unchanged by any station-based phase
+    error; its error sqrt(sum_k (sigma_k / |V_k|)^2) radians at high SNR (Chael et al. 2018,
+    ApJ 857, 23), with ``systematic`` (a fraction of |V|) added to each sigma in quadrature and
+    rows below ``snr_cut`` (default: the closure layer's) left out.
+
+    Returns a dict of 1-D arrays over the closure phases: ``triangle`` (labels "A-B-C"),
+    ``time`` (MJD), ``channel``, ``phase``, ``sigma``, ``model`` (radians) and ``shortest_uv``
+    (the shortest of the three baselines, wavelengths); and ``longest_uv``, the longest baseline
+    of the set (a number).
+    """
+    from ..stats.closure import DEFAULT_SNR_CUT, build_closures
+
+    model_vis = _check_lengths(vset, model_vis)
+    cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+    cp = build_closures(vset, snr_cut=cut, systematic=systematic, full=True, kinds=("phase",))["phase"]
+    q = vset.uv_distance
+    longest = float(q.max()) if q.size else 0.0
+    if cp.n == 0:
+        return {"triangle": np.zeros(0, str), "time": np.zeros(0), "channel": np.zeros(0, int),
+                "phase": np.zeros(0), "sigma": np.zeros(0), "model": np.zeros(0),
+                "shortest_uv": np.zeros(0), "longest_uv": longest}
+    return {"triangle": cp.labels, "time": np.asarray(cp.time, float),
+            "channel": np.asarray(cp.channel, int), "phase": np.asarray(cp.value, float),
+            "sigma": np.asarray(cp.sigma, float), "model": cp.evaluate(model_vis),
+            "shortest_uv": q[cp.rows].min(axis=1), "longest_uv": longest}
+
+
+#: a triangle whose shortest baseline is below this fraction of the longest is "trivial"
+TRIVIAL_FRACTION = 0.01
+
+
+def rank_triangles(series, max_panels=6):
+    """Triangles by information, sum over their closure phases of 1 / sigma^2 (highest first).
+
+    Triangles with a very short baseline (median shortest baseline below ``TRIVIAL_FRACTION`` of
+    the longest in the series, e.g. two stations on one site) close to zero whatever the source
+    looks like, so they come after every other triangle.
+    """
+    tri = np.asarray(series["triangle"])
+    if tri.size == 0:
+        return []
+    names, inv = np.unique(tri, return_inverse=True)
+    info = np.bincount(inv, weights=1.0 / np.asarray(series["sigma"], float) ** 2,
+                       minlength=len(names))
+    trivial = np.zeros(len(names), bool)
+    shortest = series.get("shortest_uv")
+    longest = float(series.get("longest_uv") or 0.0)
+    if shortest is not None and len(shortest) == tri.size and longest > 0:
+        shortest = np.asarray(shortest, float)
+        for i in range(len(names)):
+            trivial[i] = np.median(shortest[inv == i]) < TRIVIAL_FRACTION * longest
+    order = np.lexsort((names, -info, trivial))  # ties broken by name: a reproducible choice
+    return [str(names[i]) for i in order[:max_panels]]
+
+
+def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
+    """Closure phases against time for the most informative triangles (up to ``max_panels``).
+
+    ``series`` is a dict as returned by :func:`closure_phase_series` (phases in radians, time in
+    MJD). Data are drawn with their errors, the model as a line through its values at the same
+    times (broken across gaps in the data).
+
+    Returns (fig, numbers): ``triangles`` (chosen, in panel order) and per triangle ``panels``
+    {label: {hours, phase_deg, sigma_deg, model_deg}}, and ``day0`` (MJD of 0 h on the axis).
+    """
+    if triangles is None:
+        triangles = rank_triangles(series, max_panels)
+    if not triangles:
+        raise UvfitError("no closed triangle of baselines in the data, so there is no closure phase "
+                         "to plot", "closure phases need three stations observing at the same time")
+    hours_all, day0 = _hours(series["time"])
+    n = len(triangles)
+    ncol = 1 if n == 1 else 2
+    nrow = int(np.ceil(n / ncol))
+    fig, axes = style.new_figure(nrow, ncol, sharex=True, figsize=(10.0, 2.6 * nrow + 1.0),
+                                 squeeze=False)
+    panels = {}
+    with style.style():
+        for k, tri in enumerate(triangles):
+            ax = axes[k // ncol][k % ncol]
+            sel = np.asarray(series["triangle"]) == tri
+            order = np.argsort(hours_all[sel], kind="stable")
+            h = hours_all[sel][order]
+            ph = np.degrees(np.asarray(series["phase"])[sel][order])
+            sg = np.degrees(np.clip(np.asarray(series["sigma"])[sel][order], 0, np.pi))
+            md = np.degrees(np.asarray(series["model"])[sel][order])
+            ax.errorbar(h, ph, yerr=sg, fmt="o", ms=3, lw=0.7, color=DATA_COLOUR, alpha=0.7,
+                        label="data ±1σ")
+            hx, mx = _break_gaps(h, md)
+            ax.plot(hx, mx, "-", lw=1.4, color=MODEL_COLOUR, label="model")
+            ax.set_title(f"{tri}   (N = {sel.sum()}, median σ = {np.median(sg):.1f}°)", fontsize=10)
+            ax.set_ylabel("closure phase (deg)")
+            ax.set_ylim(-190, 190)
+            ax.set_yticks([-180, -90, 0, 90, 180])
+            if k == 0:
+                ax.legend(loc="upper right", fontsize=8)
+            panels[tri] = {"hours": h, "phase_deg": ph, "sigma_deg": sg, "model_deg": md}
+        for k in range(n, nrow * ncol):
+            axes[k // ncol][k % ncol].set_visible(False)
+        for c in range(ncol):
+            last = max(r for r in range(nrow) if r * ncol + c < n) if n > c else 0
+            axes[last][c].set_xlabel(f"time (h UTC from MJD {day0:.0f})")
+            axes[last][c].xaxis.set_tick_params(labelbottom=True)
+        fig.suptitle(title or "closure phases of the most informative triangles")
+        fig.tight_layout()
+    return fig, {"triangles": list(triangles), "panels": panels, "day0": day0}
+
+
+# --------------------------------------------------------------------------- the model on the sky
+
+
+def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None, note=None,
+             vmax=None):
+    """The fitted model on the sky, east to the LEFT, with component outlines and the resolution.
+
+    ``image``: 2-D brightness, Jy per pixel, ``image[j, i]`` at relative declination y_j and
+    relative right ascension x_i (x increasing east); ``extent`` = (x_min, x_max, y_min, y_max),
+    the outer pixel edges in ``unit``. ``outlines``: dicts with ``label``, ``kind`` ("ellipse" for
+    a Gaussian's FWHM, "circle" for a disk or sphere edge, "ring", "point"), ``x``, ``y`` (centre,
+    ``unit``), ``major``, ``minor`` (full axes, ``unit``) and ``pa_deg`` (major axis, north through
+    east). ``resolution``: the nominal resolution lambda / B_max in ``unit``, drawn as a circle of
+    that diameter in the lower left corner. ``vmax``: top of the colour scale (Jy per square
+    ``unit``; default the brightest pixel).
+
+    Returns (fig, numbers): ``image`` (Jy per square ``unit``), ``extent``, ``peak_xy`` (position of
+    the brightest pixel), ``outlines``, ``resolution``, ``unit``.
+    """
+    image = np.asarray(image, float)
+    if image.ndim != 2 or image.size == 0:
+        raise UvfitError("the sky image must be a 2-D array")
+    x0, x1, y0, y1 = (float(e) for e in extent)
+    ny, nx = image.shape
+    pixel_area = abs((x1 - x0) / nx * (y1 - y0) / ny)
+    brightness = image / pixel_area
+    label = style.angle_label(unit)
+    j, i = np.unravel_index(np.argmax(brightness), brightness.shape)
+    peak = (x0 + (i + 0.5) * (x1 - x0) / nx, y0 + (j + 0.5) * (y1 - y0) / ny)
+    fig, ax = style.new_figure(figsize=(7.6, 6.6))
+    with style.style():
+        if vmax is None:
+            top = float(np.max(brightness))
+            vmax = top if np.isfinite(top) and top > 0 else 1.0
+        im = ax.imshow(brightness, origin="lower", extent=(x0, x1, y0, y1), cmap=style.IMAGE_CMAP,
+                       vmin=0.0, vmax=vmax, interpolation="nearest", aspect="equal")
+        cb = fig.colorbar(im, ax=ax, shrink=0.85)
+        cb.set_label(f"brightness (Jy / {label}²)")
+        halo = {"facecolor": "white", "alpha": 0.8, "edgecolor": "none", "pad": 1.5}
+        for k, o in enumerate(outlines):
+            colour = style.CYCLE[(k + 1) % len(style.CYCLE)]
+            if colour == OKABE_ITO["black"] or colour == OKABE_ITO["blue"]:
+                colour = OKABE_ITO["orange"] if k % 2 else OKABE_ITO["sky_blue"]
+            kind = o.get("kind", "point")
+            x, y = float(o["x"]), float(o["y"])
+            if kind == "point" or not o.get("major"):
+                ax.plot([x], [y], marker="+", ms=12, mew=2, color=colour)
+            else:
+                major = float(o["major"])
+                minor = float(o.get("minor", major) or major)
+                pa = float(o.get("pa_deg", 0.0) or 0.0)
+                # data axes: x east, y north; the major axis points to (sin pa, cos pa), whose
+                # angle from +x is 90 deg - pa (the inverted x axis then shows it as on the sky)
+                ax.add_patch(Ellipse((x, y), width=major, height=minor, angle=90.0 - pa,
+                                     fill=False, lw=1.8, color=colour,
+                                     linestyle="--" if kind == "ring" else "-"))
+            # labels alternate above and below their centre, so neighbours do not overwrite
+            ax.annotate(o.get("label", f"c{k}"), (x, y), xytext=(6, 6 if k % 2 == 0 else -16),
+                        textcoords="offset points", fontsize=9, color="black", bbox=halo)
+        if resolution and np.isfinite(resolution) and resolution > 0:
+            # lower left on the sky = large x (east) and small y, since x increases to the left
+            width = abs(x1 - x0)
+            r = 0.5 * float(resolution)
+            cx = max(x0, x1) - 0.06 * width - r
+            cy = min(y0, y1) + 0.06 * abs(y1 - y0) + r
+            ax.add_patch(Circle((cx, cy), r, fill=True, facecolor="white", alpha=0.5,
+                                edgecolor="white", lw=1.2, hatch="///"))
+            small = 2 * r < 0.01 * width
+            ax.annotate(f"λ/B_max = {resolution:.3g} {label}" + (" (too small to draw)" if small
+                                                                  else ""), (cx + r, cy + r),
+                        xytext=(0, 4), textcoords="offset points", ha="left", fontsize=8,
+                        bbox=halo)
+        ax.grid(False)
+        ax.set_xlim(max(x0, x1), min(x0, x1))  # east to the left
+        ax.set_ylim(min(y0, y1), max(y0, y1))
+        ax.set_xlabel(f"relative right ascension ({label}), east to the left")
+        ax.set_ylabel(f"relative declination ({label}), north up")
+        ax.set_title(title or "fitted model on the sky")
+        if note:
+            fig.text(0.01, 0.005, note, fontsize=8, color="0.25", ha="left", va="bottom")
+        fig.tight_layout()
+    numbers = {"image": brightness, "extent": (x0, x1, y0, y1), "peak_xy": peak,
+               "outlines": list(outlines), "resolution": resolution, "unit": unit}
+    return fig, numbers
+
+
+def nominal_resolution(vset):
+    """Nominal resolution lambda / B_max in radians: 1 / (longest projected baseline in wavelengths).
+
+    (common practice; u, v are already in wavelengths.)
+    """
+    q = vset.uv_distance
+    if q.size == 0 or q.max() <= 0:
+        return float("nan")
+    return 1.0 / float(q.max())
+
+
+# --------------------------------------------------------------------------- posterior
+
+
+def corner_plot(samples, names, units=None, truths=None, title=None):
+    """Corner plot of posterior samples (n_samples, n_parameters), with 16/50/84 % quantiles.
+
+    Returns (fig, numbers): ``names``, ``n_samples``, ``median``, ``lower``, ``upper`` (16th and
+    84th percentiles) per parameter.
+    """
+    import corner
+
+    samples = np.asarray(samples, float)
+    if samples.ndim != 2 or samples.shape[0] < 2:
+        raise UvfitError("the chain has too few samples for a corner plot",
+                         "sample longer, or discard fewer steps")
+    if samples.shape[1] != len(names):
+        raise UvfitError(f"the chain has {samples.shape[1]} parameters but {len(names)} names")
+    units = [style.angle_label(u) if u else "" for u in (units or [""] * len(names))]
+    labels = [f"{n}\n({u})" if u else n for n, u in zip(names, units)]
+    size = max(6.0, 1.9 * len(names))
+    fig, _ = style.new_figure(len(names), len(names), figsize=(size, size), grid=False)
+    with style.style(), matplotlib.rc_context({"axes.grid": False}):
+        corner.corner(samples, labels=labels, titles=list(names), fig=fig,
+                      quantiles=[0.16, 0.5, 0.84], show_titles=True, title_fmt=".3g",
+                      color=DATA_COLOUR, hist_kwargs={"color": DATA_COLOUR}, truths=truths,
+                      truth_color=MODEL_COLOUR, label_kwargs={"fontsize": 9},
+                      title_kwargs={"fontsize": 9})
+        if title:
+            fig.subplots_adjust(top=0.92)
+            fig.suptitle(title)
+    q = np.percentile(samples, [16, 50, 84], axis=0)
+    return fig, {"names": list(names), "n_samples": int(samples.shape[0]),
+                 "lower": q[0], "median": q[1], "upper": q[2]}

@@ -4,6 +4,7 @@
                               [--engine numba|numpy]
 
 Prints a table and writes the same numbers as JSON (never over an existing file without --force).
+OpenBLAS runs with one thread, as the uvfit commands do (--threaded-blas: its default).
 Every time is the minimum over repeats (``timeit``), each measured quantity and its reference
 interleaved repeat by repeat so that both see the same load; compiled code is warmed up first.
 Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcseconds.
@@ -30,6 +31,7 @@ Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcsec
    step-by-step times (the machine may be shared), the ratio of minima beside it.
 """
 import argparse
+import contextlib
 import datetime
 import math
 import os
@@ -327,6 +329,8 @@ def main(argv=None):
     ap.add_argument("--engine", choices=engine.ENGINES, default=None,
                     help="visibility engine (default: UVFIT_ENGINE, else numba when available)")
     ap.add_argument("--only", default=None, help="comma-separated subset: trig,fit,scaling,sampler")
+    ap.add_argument("--threaded-blas", action="store_true",
+                    help="leave OpenBLAS its threads (default: one thread, as the commands run)")
     args = ap.parse_args(argv)
     if args.engine:
         engine.set_engine(args.engine)
@@ -338,8 +342,15 @@ def main(argv=None):
             print(f"error: {exc}", file=sys.stderr)
             return 2
     only = set((args.only or "trig,fit,scaling,sampler").split(","))
+    from uvfit._blas import single_threaded
+    with (contextlib.nullcontext() if args.threaded_blas else single_threaded()):
+        return measure(args, only)
+
+
+def measure(args, only):
     started = datetime.datetime.now(datetime.timezone.utc)
     res = {"date_utc": started.isoformat(timespec="seconds"), "quick": bool(args.quick),
+           "blas_threads": "default" if args.threaded_blas else 1,
            "engine": engine.current(), "machine": machine(), "goals": GOALS}
     t0 = time.perf_counter()
     two_gaussians().visibilities(*uv_rows(10, 0))  # compile / load the kernels

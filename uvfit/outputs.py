@@ -31,16 +31,11 @@ def check_writable(path, force=False):
     return path
 
 
-def atomic_write(path, data, force=False):
-    """Write ``data`` (bytes or str) to ``path`` atomically; refuse to overwrite without ``force``."""
-    path = check_writable(path, force)
-    if isinstance(data, str):
-        data = data.encode("utf-8")
-    folder = os.path.dirname(os.path.abspath(path))
-    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=os.path.basename(path), dir=folder)
+def _produce_and_rename(produce, tmp, path):
+    """Call ``produce()`` to fill the temporary file ``tmp``, give it a plain file's mode and
+    rename it to ``path``; on any failure remove ``tmp`` and re-raise."""
     try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
+        produce()
         os.chmod(tmp, _umask_mode())
         os.replace(tmp, path)
     except BaseException:
@@ -48,6 +43,21 @@ def atomic_write(path, data, force=False):
             os.unlink(tmp)
         raise
     return path
+
+
+def atomic_write(path, data, force=False):
+    """Write ``data`` (bytes or str) to ``path`` atomically; refuse to overwrite without ``force``."""
+    path = check_writable(path, force)
+    if isinstance(data, str):
+        data = data.encode("utf-8")
+    folder = os.path.dirname(os.path.abspath(path))
+    fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=os.path.basename(path), dir=folder)
+
+    def produce():
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+
+    return _produce_and_rename(produce, tmp, path)
 
 
 def atomic_write_with(path, writer, force=False, suffix=None):
@@ -63,15 +73,7 @@ def atomic_write_with(path, writer, force=False, suffix=None):
     fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=suffix, dir=folder)
     os.close(fd)
     os.unlink(tmp)
-    try:
-        writer(tmp)
-        os.chmod(tmp, _umask_mode())
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path
+    return _produce_and_rename(lambda: writer(tmp), tmp, path)
 
 
 def _to_builtin(obj):

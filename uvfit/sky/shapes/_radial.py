@@ -13,6 +13,8 @@ import math
 import numpy as np
 from scipy import special
 
+from uvfit.sky.shape import Shape
+
 #: below these |x| the series are used: there the closed forms lose more than ~1e-16 to
 #: cancellation, while the truncated series (14 terms) are accurate to < 1e-17
 AIRY_SERIES_BELOW = 1.5
@@ -87,3 +89,43 @@ def ball_derivative(x):
 def radius(u, v):
     """q = sqrt(u^2 + v^2), broadcast, as float array."""
     return np.hypot(np.asarray(u, dtype=float), np.asarray(v, dtype=float))
+
+
+class OneSizeRadial(Shape):
+    """A circularly symmetric shape with one size parameter s and V(q) = f(c s q), f(0) = 1.
+
+    Subclasses set ``key``, ``size`` (the parameter's name, a length >= 0), ``scale`` (c) and
+    ``profile`` / ``profile_derivative`` (f and df/dx, as staticmethods); ``gradient_k_first``
+    picks the order of the product c q s in the gradient (see there)."""
+
+    size = ""
+    scale = np.pi
+    gradient_k_first = False
+    settings = {}
+    real_when_centred = True
+
+    def __init_subclass__(cls, **kwargs):
+        super().__init_subclass__(**kwargs)
+        if cls.size:
+            cls.parameters = (cls.size,)
+            cls.kinds = {cls.size: "length"}
+            cls.bounds = {cls.size: (0.0, np.inf)}
+
+    @staticmethod
+    def profile(x):
+        raise NotImplementedError
+
+    @staticmethod
+    def profile_derivative(x):
+        raise NotImplementedError
+
+    def structure(self, u, v, p):
+        return self.profile(self.scale * p[self.size] * radius(u, v))
+
+    def structure_gradient(self, u, v, p):
+        q = radius(u, v)
+        k = self.scale * q
+        # the order of the product decides the last bit of x, which matters at large x: the
+        # shells form it as the thick Shell does, the others as in ``structure``
+        x = k * p[self.size] if self.gradient_k_first else self.scale * p[self.size] * q
+        return self.profile(x), {self.size: k * self.profile_derivative(x)}

@@ -10,29 +10,18 @@ x = 3.8317 (the first zero of J1), i.e. q = 1.2197 / theta.
 """
 import numpy as np
 
-from uvfit.sky.shape import Shape
 from uvfit.sky.shapes import _pixels, _radial
 from uvfit.sky.shapes._quadrature import disk_points
 
 
-class UniformDisk(Shape):
+class UniformDisk(_radial.OneSizeRadial):
     """Uniformly bright circular disk, parameter ``diameter`` (radians inside the shape)."""
 
     key = "disk"
-    parameters = ("diameter",)
-    kinds = {"diameter": "length"}
-    settings = {}
-    real_when_centred = True
-    #: physical range of each parameter (the model layer may narrow it)
-    bounds = {"diameter": (0.0, np.inf)}
-
-    def structure(self, u, v, p):
-        return _radial.airy(np.pi * p["diameter"] * _radial.radius(u, v))
-
-    def structure_gradient(self, u, v, p):
-        q = _radial.radius(u, v)
-        x = np.pi * p["diameter"] * q
-        return _radial.airy(x), {"diameter": np.pi * q * _radial.airy_derivative(x)}
+    size = "diameter"
+    scale = np.pi
+    profile = staticmethod(_radial.airy)
+    profile_derivative = staticmethod(_radial.airy_derivative)
 
     # image domain -------------------------------------------------------------------------------
     def singular(self, p):

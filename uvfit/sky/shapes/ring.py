@@ -49,23 +49,19 @@ def _bessel_j(top, z):
     return np.stack(out[:top + 1])
 
 
-class ThinRing(Shape):
+def _minus_j1(x):
+    """d/dx J0(x) = -J1(x)."""
+    return -special.j1(x)
+
+
+class ThinRing(_radial.OneSizeRadial):
     """Infinitely thin uniform ring, parameter ``diameter`` (radians inside the shape)."""
 
     key = "ring"
-    parameters = ("diameter",)
-    kinds = {"diameter": "length"}
-    settings = {}
-    real_when_centred = True
-    bounds = {"diameter": (0.0, np.inf)}
-
-    def structure(self, u, v, p):
-        return special.j0(np.pi * p["diameter"] * _radial.radius(u, v))
-
-    def structure_gradient(self, u, v, p):
-        q = _radial.radius(u, v)
-        x = np.pi * p["diameter"] * q
-        return special.j0(x), {"diameter": -np.pi * q * special.j1(x)}
+    size = "diameter"
+    scale = np.pi
+    profile = staticmethod(special.j0)
+    profile_derivative = staticmethod(_minus_j1)
 
     def singular(self, p):
         """True: all the flux is on a curve; render it from ``sample_points``."""

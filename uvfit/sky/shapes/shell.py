@@ -112,23 +112,15 @@ class Shell(Shape):
         return shell_points(ri, ro, n)
 
 
-class ThinShell(Shape):
+class ThinShell(_radial.OneSizeRadial):
     """Optically thin spherical shell of zero thickness, parameter ``radius``."""
 
     key = "thin_shell"
-    parameters = ("radius",)
-    kinds = {"radius": "length"}
-    settings = {}
-    real_when_centred = True
-    bounds = {"radius": (0.0, np.inf)}
-
-    def structure(self, u, v, p):
-        return _radial.sinc(2.0 * np.pi * p["radius"] * _radial.radius(u, v))
-
-    def structure_gradient(self, u, v, p):
-        k = 2.0 * np.pi * _radial.radius(u, v)
-        x = k * p["radius"]
-        return _radial.sinc(x), {"radius": k * _radial.sinc_derivative(x)}
+    size = "radius"
+    scale = 2.0 * np.pi
+    gradient_k_first = True
+    profile = staticmethod(_radial.sinc)
+    profile_derivative = staticmethod(_radial.sinc_derivative)
 
     def singular(self, p):
         """True: the projected brightness diverges at the rim; render from ``sample_points``."""
@@ -147,23 +139,15 @@ class ThinShell(Shape):
         return shell_points(abs(p["radius"]), abs(p["radius"]), n)
 
 
-class Sphere(Shape):
+class Sphere(_radial.OneSizeRadial):
     """Optically thin uniform sphere, parameter ``radius``."""
 
     key = "sphere"
-    parameters = ("radius",)
-    kinds = {"radius": "length"}
-    settings = {}
-    real_when_centred = True
-    bounds = {"radius": (0.0, np.inf)}
-
-    def structure(self, u, v, p):
-        return _radial.ball(2.0 * np.pi * p["radius"] * _radial.radius(u, v))
-
-    def structure_gradient(self, u, v, p):
-        k = 2.0 * np.pi * _radial.radius(u, v)
-        x = k * p["radius"]
-        return _radial.ball(x), {"radius": k * _radial.ball_derivative(x)}
+    size = "radius"
+    scale = 2.0 * np.pi
+    gradient_k_first = True
+    profile = staticmethod(_radial.ball)
+    profile_derivative = staticmethod(_radial.ball_derivative)
 
     def singular(self, p):
         """False: the projected brightness is bounded."""

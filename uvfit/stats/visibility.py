@@ -159,23 +159,28 @@ class ComplexStatistic(Statistic):
         np.multiply(jac.imag, scale[n:, None], out=out[n:])
         return out
 
-    def chi2(self, theta):
+    def _fast_misfit(self, theta):
+        """(chi-square, log-likelihood normalisation) from the model's fused ``misfit``, or None
+        when the model or the data cannot use it."""
         fast = getattr(self.model, "misfit", None)
         parts = self._misfit_parts() if fast is not None else None
         if parts is None:
-            return super().chi2(theta)
+            return None
         r = self.rows
-        return float(fast(r.u, r.v, parts[0], parts[1], frequency=r.frequency, theta=theta))
+        return fast(r.u, r.v, parts[0], parts[1], frequency=r.frequency, theta=theta), parts[2]
+
+    def chi2(self, theta):
+        fast = self._fast_misfit(theta)
+        if fast is None:
+            return super().chi2(theta)
+        return float(fast[0])
 
     def log_likelihood(self, theta):
         """Gaussian log-likelihood, including the normalisation (as ``Statistic``)."""
-        fast = getattr(self.model, "misfit", None)
-        parts = self._misfit_parts() if fast is not None else None
-        if parts is None:
+        fast = self._fast_misfit(theta)
+        if fast is None:
             return super().log_likelihood(theta)
-        r = self.rows
-        return float(-0.5 * fast(r.u, r.v, parts[0], parts[1], frequency=r.frequency, theta=theta)
-                     + parts[2])
+        return float(-0.5 * fast[0] + fast[1])
 
 
 class AmplitudeStatistic(Statistic):

@@ -10,29 +10,14 @@ import math
 
 import numpy as np
 
+from _invented import component, model_toml
 from uvfit.data.visset import VisibilitySet
 
 UAS = math.pi / 180 / 3600 * 1e-6  # radians per microarcsecond (definition)
 
-MODEL_TOML = """angular_unit = "uas"
-description = "invented core and knot"
-
-[[component]]
-name = "core"
-shape = "gaussian"
-flux = 1.0
-east = { value = 0.0, fixed = true }
-north = { value = 0.0, fixed = true }
-fwhm = 20.0
-
-[[component]]
-name = "knot"
-shape = "gaussian"
-flux = 0.4
-east = -15.0
-north = -20.0
-fwhm = 30.0
-"""
+MODEL_TOML = model_toml(component("core", 1.0, fwhm=20.0),
+                        component("knot", 0.4, east=-15.0, north=-20.0, fwhm=30.0),
+                        description="invented core and knot", gap="\n")
 
 TRUTH = {"core.flux": 1.0, "core.fwhm": 20.0, "knot.flux": 0.4, "knot.east": -15.0,
          "knot.north": -20.0, "knot.fwhm": 30.0}

@@ -17,24 +17,13 @@ import uvfit
 from uvfit.data.visset import VisibilitySet
 from uvfit.sky.model import SkyModel
 
+from _invented import component, model_toml
+
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
-DOUBLE = """angular_unit = "mas"
-[[component]]
-name = "a"
-shape = "gaussian"
-flux = 1.0
-east = { value = 0.0, fixed = true }
-north = { value = 0.0, fixed = true }
-fwhm = { value = 0.3, min = 0.0, max = 3.0 }
-[[component]]
-name = "b"
-shape = "gaussian"
-flux = 0.5
-east = 0.6
-north = -0.4
-fwhm = { value = 0.3, min = 0.0, max = 3.0 }
-"""
+_FWHM = "{ value = 0.3, min = 0.0, max = 3.0 }"
+DOUBLE = model_toml(component("a", 1.0, fwhm=_FWHM), component("b", 0.5, east=0.6, north=-0.4, fwhm=_FWHM),
+                    unit="mas")
 
 
 def _simulated(seed, sep_east):

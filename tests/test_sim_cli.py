@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
+from _invented import component, model_toml
 import uvfit
 from uvfit.cli import cli
 
@@ -37,32 +38,10 @@ sefd = 300.0
 diameter = 20.0
 """
 
-SINGLE = """angular_unit = "uas"
-[[component]]
-name = "core"
-shape = "gaussian"
-flux = 1.0
-east = { value = 0.0, fixed = true }
-north = { value = 0.0, fixed = true }
-fwhm = 60.0
-"""
+SINGLE = model_toml(component("core", 1.0, fwhm=60.0))
 
-DOUBLE = """angular_unit = "uas"
-[[component]]
-name = "core"
-shape = "gaussian"
-flux = 1.0
-east = { value = 0.0, fixed = true }
-north = { value = 0.0, fixed = true }
-fwhm = 40.0
-[[component]]
-name = "knot"
-shape = "gaussian"
-flux = 0.4
-east = -60.0
-north = -80.0
-fwhm = 50.0
-"""
+DOUBLE = model_toml(component("core", 1.0, fwhm=40.0),
+                    component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0))
 
 OBS = ["--ra", "12h30m49s", "--dec", "+12d23m", "--start", "2027-03-01T02:00", "--duration", "4h",
        "--integration", "5min", "--frequency", "86GHz"]

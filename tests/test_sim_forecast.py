@@ -4,6 +4,7 @@ import os
 import numpy as np
 from scipy.stats import chi2
 
+from _invented import component, model_toml
 import uvfit
 from uvfit.sim.array import load_array
 from uvfit.sim.forecast import forecast
@@ -12,24 +13,10 @@ from uvfit.sim.tracks import parse_time
 
 HERE = os.path.join(os.path.dirname(__file__), "..", "examples", "planning")
 
-SINGLE = """angular_unit = "uas"
-[[component]]
-name = "core"
-shape = "gaussian"
-flux = 1.0
-east = { value = 0.0, fixed = true }
-north = { value = 0.0, fixed = true }
-fwhm = 40.0
-"""
+SINGLE = model_toml(component("core", 1.0, fwhm=40.0))
 
-DOUBLE = SINGLE + """[[component]]
-name = "knot"
-shape = "gaussian"
-flux = 0.4
-east = -60.0
-north = -80.0
-fwhm = 50.0
-"""
+DOUBLE = model_toml(component("core", 1.0, fwhm=40.0),
+                    component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0))
 
 
 def test_forecast_simpler_true_model(tmp_path):

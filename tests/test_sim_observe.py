@@ -3,6 +3,7 @@ import numpy as np
 import pytest
 from astropy.io import fits
 
+from _invented import component, model_toml
 import uvfit
 from uvfit.sim.array import parse_array
 from uvfit.sim.observe import Observation, simulate, write_simulation
@@ -10,31 +11,10 @@ from uvfit.sim.tracks import parse_time
 
 C = 299792458.0
 
-POINT = """angular_unit = "uas"
-[[component]]
-name = "p"
-shape = "point"
-flux = 1.5
-east = { value = 0.0, fixed = true }
-north = { value = 0.0, fixed = true }
-"""
+POINT = model_toml(component("p", 1.5, shape="point"))
 
-DOUBLE = """angular_unit = "uas"
-[[component]]
-name = "a"
-shape = "gaussian"
-flux = 1.0
-east = { value = 0.0, fixed = true }
-north = { value = 0.0, fixed = true }
-fwhm = 100.0
-[[component]]
-name = "b"
-shape = "gaussian"
-flux = 0.4
-east = -150.0
-north = -250.0
-fwhm = 120.0
-"""
+DOUBLE = model_toml(component("a", 1.0, fwhm=100.0),
+                    component("b", 0.4, east=-150.0, north=-250.0, fwhm=120.0))
 
 
 def invented_array(n=4, sefd=(300.0, 500.0, 800.0, 1200.0, 650.0)):

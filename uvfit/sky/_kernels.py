@@ -199,50 +199,36 @@ def _make_pass(kind, mode):
     return run
 
 
-_P00, _P01, _P02, _P03 = (_make_pass(0, k) for k in range(4))
-_P10, _P11, _P12, _P13 = (_make_pass(1, k) for k in range(4))
-_P20, _P21, _P22, _P23 = (_make_pass(2, k) for k in range(4))
-_P30, _P31, _P32, _P33 = (_make_pass(3, k) for k in range(4))
+def _make_mode_dispatch(kind):
+    """The loop of one shape kind, picking its specialised pass by ``mode`` (see _make_pass)."""
+    p0, p1, p2, p3 = (_make_pass(kind, mode) for mode in range(4))
+
+    @njit(inline="always", cache=True)
+    def run(mode, o, acc, dc, wc, uc, vc, am, m, pr, gd):
+        if mode == 0:
+            p0(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 1:
+            p1(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 2:
+            p2(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        else:
+            p3(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+    return run
+
+
+_K0, _K1, _K2, _K3 = (_make_mode_dispatch(kind) for kind in range(4))
 
 
 @njit(inline="always", cache=True)
 def _visibility_pass(kind, mode, o, acc, dc, wc, uc, vc, am, m, pr, gd):
     if kind == 0:
-        if mode == 0:
-            _P00(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 1:
-            _P01(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 2:
-            _P02(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        else:
-            _P03(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        _K0(mode, o, acc, dc, wc, uc, vc, am, m, pr, gd)
     elif kind == 1:
-        if mode == 0:
-            _P10(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 1:
-            _P11(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 2:
-            _P12(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        else:
-            _P13(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        _K1(mode, o, acc, dc, wc, uc, vc, am, m, pr, gd)
     elif kind == 2:
-        if mode == 0:
-            _P20(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 1:
-            _P21(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 2:
-            _P22(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        else:
-            _P23(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        _K2(mode, o, acc, dc, wc, uc, vc, am, m, pr, gd)
     else:
-        if mode == 0:
-            _P30(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 1:
-            _P31(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        elif mode == 2:
-            _P32(o, acc, dc, wc, uc, vc, am, m, pr, gd)
-        else:
-            _P33(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        _K3(mode, o, acc, dc, wc, uc, vc, am, m, pr, gd)
 
 
 @njit(cache=True, nogil=True)

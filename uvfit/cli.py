@@ -50,8 +50,12 @@ def cli():
 def main(argv=None):
     """Entry point: run the group, turning known problems into one line and an exit code."""
     debug = bool(os.environ.get("UVFIT_DEBUG"))
+    from ._blas import single_threaded
+
     try:
-        cli.main(args=argv, prog_name="uvfit", standalone_mode=False)
+        # many small least-squares steps: one BLAS thread is faster and gives the same numbers
+        with single_threaded():
+            cli.main(args=argv, prog_name="uvfit", standalone_mode=False)
     except click.exceptions.Abort:
         click.echo("aborted", err=True)
         sys.exit(130)

@@ -1,0 +1,63 @@
+"""uvfit batch: run a manifest of fit or sample jobs on a Dask cluster."""
+import os
+
+import click
+
+from ._common import force_option
+from ..outputs import atomic_write_with
+
+
+@click.command("batch")
+@click.argument("manifest", type=click.Path(dir_okay=False))
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Connect to a running Dask scheduler (tcp://HOST:PORT) instead of a local cluster.")
+@click.option("--workers", type=int, default=2, show_default=True,
+              help="Worker processes of the local cluster (ignored with --scheduler).")
+@click.option("-o", "--output", "output", default=None, metavar="RESULTS.ecsv",
+              help="Results table, one row per job (default: batch-results.ecsv beside the manifest).")
+@force_option
+def command(manifest, scheduler, workers, output, force):
+    """Fit many datasets: one Dask task per job of MANIFEST, results gathered into one table.
+
+    Jobs whose JSON output exists and matches their inputs are not run again.
+    """
+    from ..infer.batch import load_manifest, results_table, run_batch
+
+    jobs = load_manifest(manifest)
+    if output is None:
+        output = os.path.join(os.path.dirname(os.path.abspath(manifest)), "batch-results.ecsv")
+    # Rule: the results table is derived from the jobs' own JSON files, so a table written by an
+    # earlier batch run of the same manifest is rewritten; any other existing file needs --force.
+    rewrite = force or _is_own_table(output, manifest)
+    if os.path.exists(output) and not rewrite:
+        from ..errors import UvfitError
+        raise UvfitError(f"results table {output} exists and was not written by this manifest",
+                         "choose another -o, or pass --force to overwrite it")
+    with click.progressbar(length=len(jobs), label="jobs", file=click.get_text_stream("stderr")) as bar:
+        rows, n_run = run_batch(jobs, scheduler=scheduler, workers=workers, progress=bar.update)
+    table = results_table(rows)
+    table.meta["uvfit_batch_manifest"] = os.path.abspath(manifest)
+    atomic_write_with(output, lambda tmp: table.write(tmp, format="ascii.ecsv"), force=rewrite)
+    n_failed = sum(r["status"] == "failed" for r in rows)
+    n_cached = sum(r["status"] == "cached" for r in rows)
+    click.echo(f"{len(rows)} jobs: {n_run} run, {n_cached} up to date (skipped), {n_failed} failed")
+    width = max(len(r["name"]) for r in rows)
+    for r in rows:
+        stats = (r.get("result") or {}).get("statistics") or {}
+        chi = stats.get("reduced_chi2")
+        tail = f"reduced chi2 {chi:.3f}" if isinstance(chi, (int, float)) else r["error"]
+        click.echo(f"  {r['name']:<{width}}  {r['status']:<7}  {tail}")
+    click.echo(f"results table: {output}")
+    if n_failed:
+        raise SystemExit(1)
+
+
+def _is_own_table(path, manifest):
+    if not os.path.exists(path):
+        return False
+    try:
+        from astropy.table import Table
+        meta = Table.read(path, format="ascii.ecsv").meta
+    except Exception:
+        return False
+    return meta.get("uvfit_batch_manifest") == os.path.abspath(manifest)

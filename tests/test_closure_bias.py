@@ -112,3 +112,16 @@ def test_closure_errors_from_reference_amplitudes():
     # every row used passes the SNR cut on its reference amplitude, not on its own |V|
     used = np.unique(np.concatenate([cs["phase"].rows.ravel(), cs["amplitude"].rows.ravel()]))
     assert np.all(ref[used] / vs.sigma[used] >= 3.0)
+
+
+def test_measured_amplitudes_where_gains_jump_between_rows():
+    # Station amplitude gains drawn afresh for every time (up to 30%) at high SNR: neighbouring
+    # rows are no reference for a row's amplitude, and the construction falls back to the
+    # measured |V| (definition; the gain-corruption recovery test in test_closure_stats.py
+    # checks the fit). Calibrated low-SNR data keep the neighbours.
+    gains = make_vset(double(), n_stations=6, n_times=12, sigma=0.01, seed=5, gain_amp=0.3)
+    cs = build_closures(gains)["amplitude"]
+    assert cs.amplitude_reference == "measured" and cs.smoothness > 2.0
+    calm = make_vset(double(), n_stations=6, n_times=12, sigma=SIGMA, seed=5)
+    cs = build_closures(calm)["amplitude"]
+    assert cs.amplitude_reference == "neighbours" and cs.smoothness < 2.0

@@ -377,12 +377,11 @@ def amplitude_smoothness(vset, ref, found, window=NEIGHBOURS):
     e_log, _ = rice_errors(snr)
     var = e_log ** 2 + (1.0 / snr ** 2 + 1.0 / snr ** 4) / (2 * window)
     y = np.log(amp[ok]) - np.log(ref[ok])
-    return float(np.median(y ** 2 / var) / stats_chi2_median())
+    return float(np.median(y ** 2 / var) / _CHI2_1_MEDIAN)
 
 
-def stats_chi2_median():
-    """Median of the chi-square distribution with one degree of freedom (0.45494)."""
-    return 0.454936423119572
+#: median of the chi-square distribution with one degree of freedom (scipy.stats.chi2(1).median())
+_CHI2_1_MEDIAN = 0.454936423119572
 
 
 def build_closures(vset, snr_cut=DEFAULT_SNR_CUT, systematic=0.0, full=False, kinds=("phase", "amplitude"),

@@ -4,6 +4,7 @@
                               [--engine numba|numpy]
 
 Prints a table and writes the same numbers as JSON (never over an existing file without --force).
+OpenBLAS runs with one thread, as the uvfit commands do (--threaded-blas: its default).
 Every time is the minimum over repeats (``timeit``), each measured quantity and its reference
 interleaved repeat by repeat so that both see the same load; compiled code is warmed up first.
 Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcseconds.
@@ -15,7 +16,9 @@ Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcsec
 2. jacobian_fit: least squares (scipy.optimize.least_squares, trust-region reflective, the
    options of uvfit.infer.lsq) of a three-component model to 1e5 visibilities through the complex
    statistic, with the analytic Jacobian and with two-point finite differences; time ratio,
-   evaluations, and the difference of the optima in units of the parameters' errors.
+   evaluations, and the difference of the optima in units of the parameters' errors. Beside it:
+   the cost of one Jacobian each way, of the solver's SVD of the Jacobian, and both fits again
+   with scipy's iterative trust-region solver (tr_solver="lsmr").
 3. scaling: one evaluation of the two-component model at 1e3 ... 1e7 rows (--quick: to 1e6):
    time per visibility, and the peak of memory allocated during the call (tracemalloc, which
    numpy reports its allocations to) divided by the size of the data arrays, defined as the
@@ -24,9 +27,11 @@ Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcsec
    allocated by numpy and so counted.
 4. sampler_overhead: wall time per step of the project's ensemble sampler (uvfit.infer.sampling,
    emcee) on the complex-mode log-posterior of the two-component model, divided by (walkers x one
-   model evaluation on the same rows), at 1e4 and 1e5 visibilities (--quick: 1e4).
+   model evaluation on the same rows), at 1e4 and 1e5 visibilities (--quick: 1e4); medians of
+   step-by-step times (the machine may be shared), the ratio of minima beside it.
 """
 import argparse
+import contextlib
 import datetime
 import math
 import os
@@ -41,7 +46,8 @@ import numpy as np
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 
 from uvfit.data.visset import VisibilitySet  # noqa: E402
-from uvfit.outputs import write_json  # noqa: E402
+from uvfit.errors import UvfitError  # noqa: E402
+from uvfit.outputs import check_writable, write_json  # noqa: E402
 from uvfit.sky import engine  # noqa: E402
 from uvfit.sky.model import SkyModel  # noqa: E402
 
@@ -154,11 +160,11 @@ def jacobian_fit(quick):
     stat = make_statistic("complex", vs, start)
     lo, hi = start.free_bounds()
 
-    def run(jac):
+    def run(jac, solver="exact"):
         t0 = time.perf_counter()
         with np.errstate(all="ignore"):
             res = least_squares(stat.residuals, x0, jac=jac, bounds=(lo, hi), method="trf",
-                                x_scale="jac", max_nfev=200 * (x0.size + 1))
+                                x_scale="jac", max_nfev=200 * (x0.size + 1), tr_solver=solver)
         return time.perf_counter() - t0, res
 
     run(stat.jacobian)  # warm-up
@@ -169,10 +175,22 @@ def jacobian_fit(quick):
         ta = min(ta, t)
         t, rf = run("2-point")
         tf = min(tf, t)
+    # where the time goes: one Jacobian of the statistic, analytic against k residual vectors
+    # (what the 2-point rule costs), and one SVD of the Jacobian (done by the solver each iteration)
+    # the same with scipy's iterative trust-region solver (no SVD of the Jacobian per iteration)
+    tla, tlf = math.inf, math.inf
+    for _ in range(rounds):
+        t, rla = run(stat.jacobian, "lsmr")
+        tla = min(tla, t)
+        t, rlf = run("2-point", "lsmr")
+        tlf = min(tlf, t)
     jac = stat.jacobian(ra.x)
+    t_res, t_jac, t_svd = best_of([lambda: stat.residuals(ra.x), lambda: stat.jacobian(ra.x),
+                                   lambda: np.linalg.svd(jac, full_matrices=False)], 3 if quick else 7)
     cov = np.linalg.inv(jac.T @ jac)
     err = np.sqrt(np.diag(cov))
     shift = float(np.max(np.abs(ra.x - rf.x) / err))
+    shift_lsmr = float(np.max(np.abs(rla.x - ra.x) / err))
     chi2a, chi2f = 2 * ra.cost, 2 * rf.cost
     # the project's fitter, for the record (analytic Jacobian, one start)
     from uvfit.infer.lsq import fit
@@ -185,6 +203,12 @@ def jacobian_fit(quick):
             "finite_difference_evaluations": {"residuals": int(rf.nfev), "jacobian": int(rf.njev)},
             "chi2_analytic": chi2a, "chi2_finite_difference": chi2f,
             "max_shift_in_errors": shift, "uvfit_fit_s": t_fit,
+            "iteration_costs_ms": {"residuals": t_res * 1e3, "analytic_jacobian": t_jac * 1e3,
+                                   "finite_difference_jacobian": x0.size * t_res * 1e3,
+                                   "svd_of_jacobian": t_svd * 1e3},
+            "jacobian_stage_ratio": x0.size * t_res / t_jac,
+            "iterative_solver": {"analytic_s": tla, "finite_difference_s": tlf, "ratio": tlf / tla,
+                                 "max_shift_in_errors_from_exact": shift_lsmr},
             "definition": "t(least_squares, 2-point FD Jacobian) / t(same, analytic Jacobian); "
                           "min of rounds; same start, bounds and options"}
 
@@ -246,20 +270,27 @@ def sampler_overhead(quick):
         rows = stat.rows
         one = lambda: model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)  # noqa: E731
         run_chain(lp, theta, cov, (lo, hi), names, n_walkers=walkers, max_steps=5, seed=1)  # warm-up
-        t_eval = math.inf
-        t_step = math.inf
+        evals = []
+        stamps = []
         for _ in range(1 if quick else 2):
-            t_eval = min(t_eval, best_of([one], 20)[0])
-            t0 = time.perf_counter()
-            chain = run_chain(lp, theta, cov, (lo, hi), names, n_walkers=walkers, max_steps=steps, seed=2)
-            t_step = min(t_step, (time.perf_counter() - t0) / steps)
-            t_eval = min(t_eval, best_of([one], 20)[0])
-        out[str(n)] = {"rows": n, "walkers": walkers, "steps": steps, "step_s": t_step,
-                       "model_evaluation_s": t_eval, "ratio": t_step / (walkers * t_eval),
+            evals += [timeit.timeit(one, number=1) for _ in range(30)]
+            marks = [time.perf_counter()]
+            chain = run_chain(lp, theta, cov, (lo, hi), names, n_walkers=walkers, max_steps=steps,
+                              seed=2, progress=lambda k: marks.append(time.perf_counter()))
+            stamps += list(np.diff(marks[1:]))   # step k -> k+1 (the first interval holds setup)
+            evals += [timeit.timeit(one, number=1) for _ in range(30)]
+        step_med, step_min = float(np.median(stamps)), float(np.min(stamps))
+        eval_med, eval_min = float(np.median(evals)), float(np.min(evals))
+        out[str(n)] = {"rows": n, "walkers": walkers, "steps": len(stamps), "step_s_median": step_med,
+                       "step_s_min": step_min, "step_s_mean": float(np.mean(stamps)),
+                       "model_evaluation_s_median": eval_med, "model_evaluation_s_min": eval_min,
+                       "ratio": step_med / (walkers * eval_med),
+                       "ratio_of_minima": step_min / (walkers * eval_min),
                        "acceptance": float(np.mean(chain.acceptance_fraction))}
     return {"by_rows": out, "ratio": out[max(out, key=int)]["ratio"],
-            "definition": "wall time per ensemble step / (walkers x one model.visibilities on the "
-                          "statistic's rows); ratio reported at the largest size"}
+            "definition": "median wall time per ensemble step (timed step by step) / (walkers x "
+                          "median of one model.visibilities on the statistic's rows, timed before "
+                          "and after the chain); reported at the largest size"}
 
 
 def machine():
@@ -298,12 +329,28 @@ def main(argv=None):
     ap.add_argument("--engine", choices=engine.ENGINES, default=None,
                     help="visibility engine (default: UVFIT_ENGINE, else numba when available)")
     ap.add_argument("--only", default=None, help="comma-separated subset: trig,fit,scaling,sampler")
+    ap.add_argument("--threaded-blas", action="store_true",
+                    help="leave OpenBLAS its threads (default: one thread, as the commands run)")
     args = ap.parse_args(argv)
     if args.engine:
         engine.set_engine(args.engine)
+    if args.output:
+        os.makedirs(os.path.dirname(os.path.abspath(args.output)), exist_ok=True)
+        try:  # refuse before minutes of measuring, not after
+            check_writable(args.output, force=args.force)
+        except UvfitError as exc:
+            print(f"error: {exc}", file=sys.stderr)
+            return 2
     only = set((args.only or "trig,fit,scaling,sampler").split(","))
+    from uvfit._blas import single_threaded
+    with (contextlib.nullcontext() if args.threaded_blas else single_threaded()):
+        return measure(args, only)
+
+
+def measure(args, only):
     started = datetime.datetime.now(datetime.timezone.utc)
     res = {"date_utc": started.isoformat(timespec="seconds"), "quick": bool(args.quick),
+           "blas_threads": "default" if args.threaded_blas else 1,
            "engine": engine.current(), "machine": machine(), "goals": GOALS}
     t0 = time.perf_counter()
     two_gaussians().visibilities(*uv_rows(10, 0))  # compile / load the kernels
@@ -322,6 +369,13 @@ def main(argv=None):
         res["jacobian_fit"] = jacobian_fit(args.quick)
         r = res["jacobian_fit"]
         print("2. fit FD / analytic        " + verdict("jacobian_fit", r["ratio"]))
+        c = r["iteration_costs_ms"]
+        print(f"     per iteration: analytic Jacobian {c['analytic_jacobian']:.1f} ms, finite-difference "
+              f"Jacobian {c['finite_difference_jacobian']:.1f} ms (ratio {r['jacobian_stage_ratio']:.2f}), "
+              f"SVD of the Jacobian in the solver {c['svd_of_jacobian']:.1f} ms")
+        it = r["iterative_solver"]
+        print(f"     with tr_solver='lsmr': analytic {it['analytic_s']:.2f} s, finite differences "
+              f"{it['finite_difference_s']:.2f} s, ratio {it['ratio']:.2f}")
         print(f"     {r['rows']} rows, {r['free_parameters']} free: analytic {r['analytic_s']:.2f} s, "
               f"finite differences {r['finite_difference_s']:.2f} s; optima differ by "
               f"{r['max_shift_in_errors']:.2g} errors, chi2 {r['chi2_analytic']:.2f} / "
@@ -339,8 +393,9 @@ def main(argv=None):
         res["sampler_overhead"] = r = sampler_overhead(args.quick)
         print("4. sampler step / evals     " + verdict("sampler_overhead", r["ratio"]))
         for n, x in r["by_rows"].items():
-            print(f"     {n:>9} rows: {x['walkers']} walkers, step {x['step_s'] * 1e3:.2f} ms, "
-                  f"model {x['model_evaluation_s'] * 1e6:.1f} us, ratio {x['ratio']:.3f}")
+            print(f"     {n:>9} rows: {x['walkers']} walkers, step {x['step_s_median'] * 1e3:.2f} ms "
+                  f"(median), model {x['model_evaluation_s_median'] * 1e6:.1f} us (median), ratio "
+                  f"{x['ratio']:.3f}; of the minima {x['ratio_of_minima']:.3f}")
     res["elapsed_s"] = time.perf_counter() - t0
     res["machine"]["load_average_end"] = list(os.getloadavg()) if hasattr(os, "getloadavg") else None
     if args.output:

@@ -17,7 +17,9 @@ from uvfit.sky import engine
 from uvfit.sky.model import SkyModel
 from uvfit.sky.shapes import SHAPES, shape_class
 
-pytest.importorskip("numba")
+#: the compiled path is an optional extra; without numba only the reference path is tested
+needs_numba = pytest.mark.skipif(not engine.numba_available(), reason="numba is not installed")
+PATHS = ["numpy", "numba"] if engine.numba_available() else ["numpy"]
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 RNG = np.random.default_rng(7)
@@ -81,12 +83,14 @@ def assert_same(ref, fast, rtol=1e-12):
         assert err <= rtol * col_scale or err <= 1e-14 * scale, j
 
 
+@needs_numba
 @pytest.mark.parametrize("case", list(CASES))
 def test_fast_path_equals_reference_for_every_shape(case):
     model = SkyModel.build([CASES[case]])
     assert_same(*both(model))
 
 
+@needs_numba
 @pytest.mark.parametrize("case", ["gaussian", "elliptical_gaussian", "disk", "double_point"])
 def test_fast_path_with_spectral_index_and_frequencies(case):
     spec = dict(CASES[case], spectral_index=-0.7, reference_frequency="230 GHz")
@@ -95,6 +99,7 @@ def test_fast_path_with_spectral_index_and_frequencies(case):
         assert_same(*both(model, freq=freq))
 
 
+@needs_numba
 def test_fast_path_several_components_ties_fixed_and_theta():
     specs = [spec_for("gaussian", "core", 0.0, 0.0),
              spec_for("elliptical_gaussian", "jet", 0.2, 0.1) | {"axis_ratio": {"value": 0.4, "fixed": True}},
@@ -113,8 +118,17 @@ def test_fast_path_several_components_ties_fixed_and_theta():
     model.fix("core.fwhm")
     model.parameters["jet.axis_ratio"].value = 0.7
     assert_same(*both(model))
+    model.release("core.fwhm")
+    model.component("halo").reference_frequency = 240e9
+    assert_same(*both(model))
+    # a copy evaluates alike and keeps its own structure
+    other = model.copy()
+    other.fix("jet.flux")
+    assert_same(*both(other))
+    assert_same(*both(model))
 
 
+@needs_numba
 def test_fast_path_any_input_shape_and_many_rows():
     model = SkyModel.build([spec_for("gaussian", "g"), spec_for("disk", "d", -0.1, 0.05)])
     u2, v2 = U[:240].reshape(12, 20), V[:240].reshape(12, 20)
@@ -129,12 +143,13 @@ def test_fast_path_any_input_shape_and_many_rows():
     # broadcasting u against v, and empty input
     ref, fast = both(model, U[:5, None], V[None, :7], None)
     assert_same(ref, fast)
-    for name in ("numpy", "numba"):
+    for name in PATHS:
         with engine.using(name):
             vis, jac = model.visibilities_and_jacobian(np.zeros(0), np.zeros(0))
             assert vis.shape == (0,) and jac.shape == (0, model.n_free)
 
 
+@needs_numba
 def test_kernel_trigonometry_and_exponential_against_numpy():
     from uvfit.sky import _kernels as k
     rng = np.random.default_rng(11)
@@ -160,8 +175,26 @@ def test_kernel_trigonometry_and_exponential_against_numpy():
     below = np.array([-746.0, -1e4, -1e300])
     k.exp_array(below, e[:3])
     assert np.all(e[:3] == 0.0)
+    odd = np.array([np.nan, np.inf, -np.inf, 710.0])
+    k.exp_array(odd, e[:4])
+    assert np.isnan(e[0]) and e[1] == np.inf and e[2] == 0.0 and e[3] == np.inf
+    k.sincos_array(np.array([np.nan, np.inf]), s[:2], c[:2])
+    assert np.all(np.isnan(s[:2])) and np.all(np.isnan(c[:2]))
 
 
+@needs_numba
+def test_non_finite_parameters_give_non_finite_visibilities_on_both_paths():
+    # the fitter relies on non-finite predictions to reject bad parameter values
+    model = SkyModel.build([CASES["elliptical_gaussian"], CASES["point"] | {"name": "b"}])
+    theta = model.get_free()
+    theta[model.free_names.index("a.fwhm")] = np.nan
+    for name in PATHS:
+        with engine.using(name):
+            vis = model.visibilities(U, V, theta=theta)
+            assert np.all(np.isnan(vis)), name
+
+
+@needs_numba
 def test_engine_choice_and_messages(monkeypatch):
     default = engine.current()
     with pytest.raises(ModelError, match="unknown visibility engine"):
@@ -191,6 +224,7 @@ def test_import_does_not_load_numba():
     assert out.stdout.strip() == "False"
 
 
+@needs_numba
 def test_environment_variable_selects_the_path():
     code = ("import numpy as np; from uvfit.sky import engine; from uvfit.sky.model import SkyModel; "
             "m = SkyModel.build([{'name': 'a', 'shape': 'gaussian', 'flux': 1.0, 'east': 0.1, 'fwhm': 0.05}]); "
@@ -201,3 +235,43 @@ def test_environment_variable_selects_the_path():
                              env=env, timeout=300)
         assert out.returncode == 0, out.stderr
         assert out.stdout.strip() == name
+
+
+@pytest.mark.parametrize("case", ["gaussian", "elliptical_gaussian", "double_disk", "shell"])
+def test_misfit_equals_the_sum_over_model_visibilities(case):
+    # reference: the definition sum w |d - V|^2 with V from the numpy path
+    model = SkyModel.build([CASES[case]])
+    rng = np.random.default_rng(5)
+    with engine.using("numpy"):
+        vis = model.visibilities(U, V, F)
+    data = vis + 0.01 * (rng.standard_normal(N) + 1j * rng.standard_normal(N))
+    weight = rng.uniform(0.5, 2.0, N)
+    d = data - vis
+    expected = float(np.sum(weight * (d.real ** 2 + d.imag ** 2)))
+    theta = model.get_free()
+    for name in PATHS:
+        with engine.using(name):
+            got = model.misfit(U, V, data, weight, F, theta=theta)
+        assert got == pytest.approx(expected, rel=1e-10), name
+    with pytest.raises(ModelError, match="one value per row"):
+        model.misfit(U, V, data[:-1], weight, F)
+
+
+def test_complex_statistic_fast_likelihood_and_jacobian_equal_the_generic_ones():
+    # reference: the Statistic base class (residual vector, Gaussian likelihood with normalisation)
+    from uvfit.data.visset import VisibilitySet
+    from uvfit.stats.base import Statistic
+    from uvfit.stats.modes import make_statistic
+    model = SkyModel.build([spec_for("gaussian", "g"), spec_for("point", "p", -0.1, 0.2)])
+    rng = np.random.default_rng(9)
+    vis = model.visibilities(U, V) + 0.02 * (rng.standard_normal(N) + 1j * rng.standard_normal(N))
+    vs = VisibilitySet(u=U, v=V, w=None, time=np.zeros(N), frequency=230e9, station1=["AA"] * N,
+                       station2=["BB"] * N, vis=vis, sigma=rng.uniform(0.01, 0.03, N))
+    stat = make_statistic("complex", vs, model, systematic=0.01)
+    theta = model.get_free() * 1.01
+    for s in (stat, stat.scaled(1.7)):
+        assert s.log_likelihood(theta) == pytest.approx(Statistic.log_likelihood(s, theta), rel=1e-12)
+        assert s.chi2(theta) == pytest.approx(Statistic.chi2(s, theta), rel=1e-12)
+        np.testing.assert_allclose(s.jacobian(theta), Statistic.jacobian(s, theta), rtol=1e-13, atol=0)
+    with engine.using("numpy"):
+        np.testing.assert_allclose(stat.jacobian(theta), Statistic.jacobian(stat, theta), rtol=1e-13, atol=0)

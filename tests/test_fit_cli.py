@@ -119,3 +119,10 @@ def test_non_converging_fit_is_reported(files):
     out = run("fit", files / "data.uvfits", files / "model.toml", "--max-evaluations", 2)
     assert out.returncode == 2
     assert "did not converge after 2 evaluations" in out.stderr and "--starts" in out.stderr
+
+
+def test_poor_fit_is_told_plainly():
+    # a chi2 beyond the 99.9% point of chi2(dof) (scipy.stats) earns a notice that errors are too small
+    from uvfit.infer.lsq import _poor_fit_chi2
+    from scipy.stats import chi2
+    assert _poor_fit_chi2(100) == pytest.approx(chi2.ppf(0.999, 100))

@@ -78,6 +78,12 @@ class FitResult:
         return float(self.errors[self.names.index(name)])
 
 
+def _poor_fit_chi2(dof):
+    """The 99.9% point of the chi-square distribution with ``dof`` degrees of freedom (scipy)."""
+    from scipy.stats import chi2 as chi2_dist
+    return float(chi2_dist.isf(1e-3, dof))
+
+
 def aic(chi2, k):
     """Akaike information criterion, chi2 + 2k (Akaike 1974)."""
     return float(chi2 + 2.0 * k)
@@ -497,6 +503,12 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         scale = float(np.sqrt(chi2 / dof)) if dof > 0 and chi2 > 0 else 1.0
         cov = cov * scale ** 2
         notices.append(f"errors multiplied by sqrt(chi2/dof) = {scale:.3g} (--rescale-errors)")
+    elif dof > 0 and chi2 > _poor_fit_chi2(dof):
+        notices.append(
+            f"reduced chi2 {chi2 / dof:.3g} is far above 1 (beyond the 99.9% point of chi2 with "
+            f"{dof} degrees of freedom): the model does not describe the data to within their "
+            "errors, so the quoted errors are too small; consider a richer model, a systematic "
+            "floor (--systematic) or --rescale-errors")
     with np.errstate(invalid="ignore"):
         errors = np.sqrt(np.diag(cov))
     corr = correlation_from_covariance(cov)

@@ -19,7 +19,7 @@ calls, so that the compiler emits SIMD code for the whole loop:
 * exp(x): x = k ln 2 + r with a two-part ln 2 (Cody & Waite 1980, "Software Manual for the
   Elementary Functions"), |r| <= ln2 / 2, Taylor series to r^13 (error < 1e-17 relative), times
   2^k built from its bits in two factors (so that results down to the subnormal range are right).
-  Arguments below -745.5 give 0, above 709 are clipped (never reached by these shapes).
+  Arguments below -745 give 0, above 709.78 infinity, nan gives nan (as the C library).
 
 Layout of the model description (built by ``uvfit.sky.engine``), for component c:
 ``kinds[c]``: 0 point, 1 circular Gaussian, 2 elliptical Gaussian, 3 any shape whose structure
@@ -92,16 +92,18 @@ def sincos_turns(t):
 @njit(inline="always", cache=True)
 def exp_(x):
     """exp(x) for finite x (see the module docstring)."""
-    x = min(max(x, -745.5), 709.0)
-    kf = np.floor(x * LOG2E + 0.5)
-    r = (x - kf * LN2_HI) - kf * LN2_LO
+    xc = min(max(x, -745.5), 709.0)
+    kf = np.floor(xc * LOG2E + 0.5)
+    r = (xc - kf * LN2_HI) - kf * LN2_LO
     p = E0 + r * (E1 + r * (E2 + r * (E3 + r * (E4 + r * (E5 + r * (E6 + r * (E7 + r * (
         E8 + r * (E9 + r * (E10 + r * (E11 + r * (E12 + r * E13))))))))))))
     k = np.int64(kf)
     k1 = k >> 1
     k2 = k - k1
     out = p * _bits_to_float((k1 + 1023) << 52) * _bits_to_float((k2 + 1023) << 52)
-    return out if x > -745.0 else 0.0
+    out = out if x > -745.0 else 0.0
+    out = out if x < 709.782712893384 else np.inf
+    return out if x == x else x             # nan stays nan
 
 
 @njit(cache=True, nogil=True)
@@ -117,6 +119,130 @@ def sincos_array(t, out_sin, out_cos):
 def exp_array(x, out):
     for i in range(x.size):
         out[i] = exp_(x[i])
+
+
+def _make_pass(kind, mode):
+    """The visibility-only loop over one chunk for one shape kind, specialised (at compile time)
+    to what it does with each component's contribution x = A W:
+    mode 0: o += x; 1 (first component of a misfit): o = x - data; 2 (last): acc += w |o + x|^2;
+    3 (only component): acc += w |x - data|^2. Fusing the data into the first and last loops
+    saves two passes over the chunk."""
+
+    @njit(inline="always", cache=True)
+    def emit(o, acc, dc, wc, j, xr, xi):
+        if mode == 0:
+            o[j] += complex(xr, xi)
+        elif mode == 1:
+            o[j] = complex(xr - dc[j].real, xi - dc[j].imag)
+        elif mode == 2:
+            rr = o[j].real + xr
+            ri = o[j].imag + xi
+            acc[j] += wc[j] * (rr * rr + ri * ri)
+        else:
+            rr = xr - dc[j].real
+            ri = xi - dc[j].imag
+            acc[j] += wc[j] * (rr * rr + ri * ri)
+
+    if kind == 0:
+        @njit(inline="always", cache=True)
+        def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
+            l0 = pr[1]
+            m0 = pr[2]
+            for j in range(m):
+                s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                emit(o, acc, dc, wc, j, am[j] * co, -am[j] * s)
+    elif kind == 1:
+        @njit(inline="always", cache=True)
+        def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
+            l0 = pr[1]
+            m0 = pr[2]
+            a = -C_VIS * pr[3] * pr[3]
+            for j in range(m):
+                s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                q2 = uc[j] * uc[j] + vc[j] * vc[j]
+                d = exp_(a * q2)
+                xr = d * co
+                xi = -d * s
+                emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
+    elif kind == 2:
+        @njit(inline="always", cache=True)
+        def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
+            l0 = pr[1]
+            m0 = pr[2]
+            fa = pr[3]
+            r2 = pr[4] * pr[4]
+            sp = math.sin(pr[5])
+            cp = math.cos(pr[5])
+            a2c = -C_VIS * fa * fa
+            for j in range(m):
+                s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                qp = uc[j] * sp + vc[j] * cp
+                qn = uc[j] * cp - vc[j] * sp
+                qp2 = qp * qp
+                qn2 = qn * qn
+                d = exp_(a2c * (qp2 + r2 * qn2))
+                xr = d * co
+                xi = -d * s
+                emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
+    else:
+        @njit(inline="always", cache=True)
+        def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
+            l0 = pr[1]
+            m0 = pr[2]
+            for j in range(m):
+                s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
+                zr = gd[j].real
+                zi = gd[j].imag
+                xr = zr * co + zi * s
+                xi = zi * co - zr * s
+                emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
+    return run
+
+
+_P00, _P01, _P02, _P03 = (_make_pass(0, k) for k in range(4))
+_P10, _P11, _P12, _P13 = (_make_pass(1, k) for k in range(4))
+_P20, _P21, _P22, _P23 = (_make_pass(2, k) for k in range(4))
+_P30, _P31, _P32, _P33 = (_make_pass(3, k) for k in range(4))
+
+
+@njit(inline="always", cache=True)
+def _visibility_pass(kind, mode, o, acc, dc, wc, uc, vc, am, m, pr, gd):
+    if kind == 0:
+        if mode == 0:
+            _P00(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 1:
+            _P01(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 2:
+            _P02(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        else:
+            _P03(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+    elif kind == 1:
+        if mode == 0:
+            _P10(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 1:
+            _P11(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 2:
+            _P12(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        else:
+            _P13(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+    elif kind == 2:
+        if mode == 0:
+            _P20(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 1:
+            _P21(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 2:
+            _P22(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        else:
+            _P23(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+    else:
+        if mode == 0:
+            _P30(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 1:
+            _P31(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        elif mode == 2:
+            _P32(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+        else:
+            _P33(o, acc, dc, wc, uc, vc, am, m, pr, gd)
 
 
 @njit(cache=True, nogil=True)
@@ -154,12 +280,11 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
         i1 = min(i0 + chunk, r1)
         m = i1 - i0
         if reduce:
-            # start from -data: after the components o holds V - data
-            o = local[0:m]
-            for j in range(m):
-                o[j] = -data[i0 + j]
+            o = local[0:m]      # V - data of the components so far (first and last fused)
         else:
             o = out[i0:i1]
+        dc = data[i0:i1]
+        wc = weight[i0:i1]
         uc = u[i0:i1]
         vc = v[i0:i1]
         for c in range(ncomp):
@@ -178,44 +303,16 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
                     am[j] = flux
             if not want_jac:
                 # ---- visibility only: one fused loop per shape
-                if kind == 0:
-                    for j in range(m):
-                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
-                        xi = -s
-                        o[j] += complex(am[j] * co, am[j] * xi)
-                elif kind == 1:
-                    th = par[c, 3]
-                    a = -C_VIS * th * th
-                    for j in range(m):
-                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
-                        q2 = uc[j] * uc[j] + vc[j] * vc[j]
-                        d = exp_(a * q2)
-                        xr = d * co
-                        xi = -d * s
-                        o[j] += complex(am[j] * xr, am[j] * xi)
-                elif kind == 2:
-                    fa = par[c, 3]
-                    r2 = par[c, 4] * par[c, 4]
-                    sp = math.sin(par[c, 5])
-                    cp = math.cos(par[c, 5])
-                    a2c = -C_VIS * fa * fa
-                    for j in range(m):
-                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
-                        qp = uc[j] * sp + vc[j] * cp
-                        qn = uc[j] * cp - vc[j] * sp
-                        d = exp_(a2c * (qp * qp + r2 * qn * qn))
-                        xr = d * co
-                        xi = -d * s
-                        o[j] += complex(am[j] * xr, am[j] * xi)
-                else:
-                    gd = gen_d[gidx[c], i0 - r0:i1 - r0]
-                    for j in range(m):
-                        s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
-                        zr = gd[j].real
-                        zi = gd[j].imag
-                        xr = zr * co + zi * s
-                        xi = zi * co - zr * s
-                        o[j] += complex(am[j] * xr, am[j] * xi)
+                mode = 0
+                if reduce:
+                    if ncomp == 1:
+                        mode = 3
+                    elif c == 0:
+                        mode = 1
+                    elif c == ncomp - 1:
+                        mode = 2
+                gd = gen_d[gidx[c], i0 - r0:i1 - r0] if kind == 3 else local
+                _visibility_pass(kind, mode, o, acc, dc, wc, uc, vc, am, m, par[c], gd)
                 continue
             # ---- visibility and derivatives: the phase factor reused by every column. Short
             # loops over the chunk (few arrays each, so that every one compiles to SIMD code).
@@ -325,11 +422,6 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
                     for j in range(m):
                         h = f * am[j] * logr[si, i0 + j]
                         jr[j] += complex(h * wr[j], h * wi[j])
-        if reduce:
-            for j in range(m):
-                dr = o[j].real
-                di = o[j].imag
-                acc[j] += weight[i0 + j] * (dr * dr + di * di)
     total = 0.0
     if reduce:
         for j in range(chunk):

@@ -189,7 +189,8 @@ class Plan:
 
 def _structure_key(model):
     pv = model.parameters.values()
-    return (id(model.parameters), tuple(map(id, pv)), tuple(map(id, model.components)),
+    return (id(model.parameters), tuple(map(id, pv)),
+            tuple([(id(c), id(c.shape), c.reference_frequency) for c in model.components]),
             model.rad_per_unit, tuple([p.tie if p.tie is not None else bool(p.fixed) for p in pv]))
 
 
@@ -351,7 +352,7 @@ def misfit(model, u, v, data, weight, frequency=None, theta=None):
     v = np.asarray(v, dtype=float)
     if u.shape != v.shape:
         u, v = np.broadcast_arrays(u, v)
-    if current() == "numba":
+    if current() == "numba" and model.components:
         return evaluate_numba(model, u, v, frequency, theta, False, data, weight)
     vis = evaluate_numpy(model, u, v, frequency, theta, False)[0].reshape(-1)
     data = np.asarray(data, dtype=complex).reshape(-1)

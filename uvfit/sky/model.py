@@ -12,6 +12,7 @@ import numpy as np
 import astropy.units as un
 
 from ..errors import ModelError
+from . import engine as _engine
 from .parameters import ParameterSet
 
 
@@ -219,8 +220,7 @@ class SkyModel:
     def _evaluate(self, u, v, frequency, theta, gradient):
         """(vis, jac or None) by the current visibility engine (``uvfit.sky.engine``: a compiled
         kernel, or the numpy reference path; both give the same numbers)."""
-        from . import engine
-        return engine.evaluate(self, u, v, frequency, theta, gradient)
+        return _engine.evaluate(self, u, v, frequency, theta, gradient)
 
     def visibilities(self, u, v, frequency=None, theta=None):
         """Model visibilities (complex Jy) at (u, v) in wavelengths; ``frequency`` (Hz, scalar or
@@ -239,8 +239,7 @@ class SkyModel:
         """sum_i weight_i |data_i - V_i|^2 (float) over the rows, e.g. chi^2 of complex
         visibilities with weight = 1 / sigma^2 (sigma per real and imaginary part). The compiled
         engine forms no array of model visibilities for it (used by likelihoods in samplers)."""
-        from . import engine
-        return engine.misfit(self, u, v, data, weight, frequency=frequency, theta=theta)
+        return _engine.misfit(self, u, v, data, weight, frequency=frequency, theta=theta)
 
     def total_flux(self, frequency=None, theta=None):
         """Sum of the component fluxes (Jy): the visibility at zero spacing."""

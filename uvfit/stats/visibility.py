@@ -140,6 +140,25 @@ class ComplexStatistic(Statistic):
         self.__dict__["_misfit_cache"] = (self.data, self.sigma, parts)
         return parts
 
+    def jacobian(self, theta):
+        """d residuals / d theta, (2n, n_free): -[Re J; Im J] / sigma, written in one pass per
+        part (column-major when the model's Jacobian is, which LAPACK takes without a copy)."""
+        _, jac = _model_vis_and_jac(self.model, self.rows, theta)
+        n = jac.shape[0]
+        if self.sigma.shape != (2 * n,):
+            return -np.vstack([jac.real, jac.imag]) / self.sigma[:, None]
+        scale = -1.0 / self.sigma
+        if jac.T.flags.c_contiguous:
+            jt = jac.T                      # (n_free, n), rows contiguous
+            out = np.empty((jac.shape[1], 2 * n))
+            np.multiply(jt.real, scale[:n], out=out[:, :n])
+            np.multiply(jt.imag, scale[n:], out=out[:, n:])
+            return out.T
+        out = np.empty((2 * n, jac.shape[1]))
+        np.multiply(jac.real, scale[:n, None], out=out[:n])
+        np.multiply(jac.imag, scale[n:, None], out=out[n:])
+        return out
+
     def chi2(self, theta):
         fast = getattr(self.model, "misfit", None)
         parts = self._misfit_parts() if fast is not None else None

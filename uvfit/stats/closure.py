@@ -133,14 +133,15 @@ class _ClosurePart(Statistic):
     why = ""
 
     def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                 covariance=None, closures=None, **options):
+                 covariance=None, closures=None, amplitude_reference="neighbours", **options):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
         covariance = _check_covariance(covariance, full)
         super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
-                         covariance=covariance, **options)
+                         covariance=covariance, amplitude_reference=amplitude_reference, **options)
         cs = closures if closures is not None else build_closures(
-            vset, snr_cut=snr_cut, systematic=systematic, full=full, kinds=(self.kind,))[self.kind]
+            vset, snr_cut=snr_cut, systematic=systematic, full=full, kinds=(self.kind,),
+            amplitude_reference=amplitude_reference)[self.kind]
         if cs.n == 0:
             raise no_closure_error(vset, self.kind, snr_cut)
         self.closures = cs
@@ -174,8 +175,12 @@ class _ClosurePart(Statistic):
         only); their Cholesky factors and inverses are computed in batches of equal size."""
         from scipy.sparse import block_diag
 
-        amp = np.abs(vset.vis)
-        rel2 = (vset.sigma ** 2 + (cs.systematic * amp) ** 2) / amp ** 2
+        if cs.row_sigma is not None:
+            rel2 = cs.row_sigma ** 2
+        else:
+            amp = np.abs(vset.vis)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                rel2 = (vset.sigma ** 2 + (cs.systematic * amp) ** 2) / amp ** 2
         bounds = np.flatnonzero(np.diff(cs.snapshot)) + 1
         groups = np.split(np.arange(cs.n), bounds)
         covs = []
@@ -345,21 +350,24 @@ class ClosureStatistic(_Joined):
     mode = "closure"
 
     def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                 covariance=None, **options):
+                 covariance=None, amplitude_reference="neighbours", **options):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
         covariance = _check_covariance(covariance, full)
         super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
-                         covariance=covariance, **options)
-        cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full)
+                         covariance=covariance, amplitude_reference=amplitude_reference, **options)
+        cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full,
+                            amplitude_reference=amplitude_reference)
         if cs["phase"].n == 0:
             raise no_closure_error(vset, "phase", snr_cut)
         members = [ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, covariance,
-                                         closures=cs["phase"])]
+                                         closures=cs["phase"],
+                                         amplitude_reference=amplitude_reference)]
         self.notices = []
         if cs["amplitude"].n:
             members.append(LogClosureAmplitudeStatistic(vset, model, systematic, snr_cut, full,
-                                                        covariance, closures=cs["amplitude"]))
+                                                        covariance, closures=cs["amplitude"],
+                                                        amplitude_reference=amplitude_reference))
         else:
             self.notices.append("no closure amplitudes can be formed (fewer than four stations with "
                                 "enough SNR at every time): closure phases only")
@@ -431,13 +439,14 @@ class HybridStatistic(_Joined):
     mode = "hybrid"
 
     def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                 covariance=None, **options):
+                 covariance=None, amplitude_reference="neighbours", **options):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
         super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
-                         covariance=covariance, **options)
+                         covariance=covariance, amplitude_reference=amplitude_reference, **options)
         amp = _amplitude_statistic(vset, model, systematic, **options)
-        cp = ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, covariance)
+        cp = ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, covariance,
+                                   amplitude_reference=amplitude_reference)
         self._join([amp, cp])
         self.notices = list(getattr(amp, "notices", []) or [])
         self.snr_cut = snr_cut
@@ -518,7 +527,7 @@ def _judge(what, chi2, n, full):
 
 
 def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                   covariance=None, worst=5):
+                   covariance=None, worst=5, amplitude_reference="neighbours"):
     """Counts of the closure quantities of ``vset`` and, with a model, how well the model's closure
     phases and log closure amplitudes match the data (at the model's current parameter values).
 
@@ -536,7 +545,8 @@ def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, fu
     vset = vset.good()
     snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
     covariance = _check_covariance(covariance, full)
-    cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full)
+    cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full,
+                        amplitude_reference=amplitude_reference)
     cp, ca = cs["phase"], cs["amplitude"]
     if cp.n == 0:
         raise no_closure_error(vset, "phase", snr_cut)

@@ -82,7 +82,7 @@ def _full_name(model, member, local):
     return f"{comp}.{local}"
 
 
-def _quantities(model, theta, frequency, redshift):
+def quantities_at(model, theta, frequency, redshift=0.0):
     """{key: value} of every derived quantity at theta, and {key: unit}, {key: extra info}."""
     unit = model.angular_unit_text if hasattr(model, "angular_unit_text") else str(model.angular_unit)
     rad = float(model.rad_per_unit)
@@ -146,7 +146,7 @@ def _gradients(model, theta, errors, bounds, frequency, redshift, keys):
     lo, hi = bounds
     k = len(theta)
     grads = {key: np.zeros(k) for key in keys}
-    base, _, _ = _quantities(model, theta, frequency, redshift)
+    base, _, _ = quantities_at(model, theta, frequency, redshift)
     for i in range(k):
         e = errors[i]
         h = 1e-3 * e if np.isfinite(e) and e > 0 else 1e-6 * max(abs(theta[i]), 1.0)
@@ -157,8 +157,8 @@ def _gradients(model, theta, errors, bounds, frequency, redshift, keys):
             continue
         up[i] += hu
         down[i] -= hd
-        qu, _, _ = _quantities(model, up, frequency, redshift)
-        qd, _, _ = _quantities(model, down, frequency, redshift)
+        qu, _, _ = quantities_at(model, up, frequency, redshift)
+        qd, _, _ = quantities_at(model, down, frequency, redshift)
         for key in keys:
             diff = qu[key] - qd[key]
             period = PERIODS.get(key)
@@ -190,7 +190,7 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
     cov = np.asarray(result.covariance, float)
     errors = np.asarray(result.errors, float)
     bounds = free_bounds(model)
-    values, units, info = _quantities(model, theta, frequency, redshift)
+    values, units, info = quantities_at(model, theta, frequency, redshift)
     keys = list(values)
     _, grads = _gradients(model, theta, errors, bounds, frequency, redshift, keys)
     out = {}

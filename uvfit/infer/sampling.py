@@ -511,19 +511,19 @@ def derived_samples(model, samples, frequency=None, redshift=0.0):
     brightness temperatures) are those of :mod:`uvfit.infer.derived`, evaluated on every sample.
     They are a few scalar formulas per sample (not visibilities), so a loop over samples is used.
     """
-    from .derived import _quantities
+    from .derived import quantities_at
 
     samples = np.asarray(samples, dtype=float)
     if samples.shape[0] == 0:
         return {}, {}
-    first, units, _ = _quantities(model, samples[0], frequency, redshift)
+    first, units, _ = quantities_at(model, samples[0], frequency, redshift)
     keys = list(first)
     out = {k: np.empty(samples.shape[0]) for k in keys}
     for k in keys:
         out[k][0] = first[k]
     with np.errstate(all="ignore"):
         for i in range(1, samples.shape[0]):
-            q, _, _ = _quantities(model, samples[i], frequency, redshift)
+            q, _, _ = quantities_at(model, samples[i], frequency, redshift)
             for k in keys:
                 out[k][i] = q[k]
     return out, units

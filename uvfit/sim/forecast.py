@@ -53,8 +53,8 @@ def _fit(vset, model, mode, systematic, starts, seed, frequency):
 
 def true_structure(model, frequency):
     """Derived structure quantities of the true model itself (no fit)."""
-    from ..infer.derived import _quantities
-    values, _, _ = _quantities(model, model.get_free(), frequency, 0.0)
+    from ..infer.derived import quantities_at
+    values, _, _ = quantities_at(model, model.get_free(), frequency, 0.0)
     return {k: float(v) for k, v in values.items() if k.endswith(STRUCTURE_SUFFIXES)}
 
 

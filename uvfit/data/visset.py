@@ -135,16 +135,23 @@ class VisibilitySet:
         used = set(self.station1.tolist()) | set(self.station2.tolist())
         return [n for n in self.stations.names if n in used]
 
+    def _station_index(self, names):
+        """Station-table index of every name in ``names`` (vectorised: one lookup per distinct name)."""
+        if len(names) == 0:
+            return np.zeros(0, int)
+        distinct, inverse = np.unique(names, return_inverse=True)
+        table = {name: i for i, name in enumerate(self.stations.names)}
+        return np.array([table[name] for name in distinct.tolist()], dtype=int)[inverse.ravel()]
+
     @property
     def ant1(self):
         """Station-table index of station1 for every row."""
-        lookup = {name: i for i, name in enumerate(self.stations.names)}
-        return np.array([lookup[s] for s in self.station1], dtype=int) if self.n else np.zeros(0, int)
+        return self._station_index(self.station1)
 
     @property
     def ant2(self):
-        lookup = {name: i for i, name in enumerate(self.stations.names)}
-        return np.array([lookup[s] for s in self.station2], dtype=int) if self.n else np.zeros(0, int)
+        """Station-table index of station2 for every row."""
+        return self._station_index(self.station2)
 
     @property
     def baseline_labels(self):

@@ -550,10 +550,11 @@ def no_closure_error(vset, kind, snr_cut):
     """The DataError for a set from which no closure of ``kind`` can be formed, with the reason."""
     need = 3 if kind == "phase" else 4
     what = "closure phases" if kind == "phase" else "closure amplitudes"
-    usable = (~vset.flag) & (vset.ant1 != vset.ant2)
+    ant1, ant2 = vset.ant1, vset.ant2
+    usable = (~vset.flag) & (ant1 != ant2)
     most = 0
     for rows in _snapshots(vset, usable):
-        most = max(most, np.unique(np.concatenate([vset.ant1[rows], vset.ant2[rows]])).size)
+        most = max(most, np.unique(np.concatenate([ant1[rows], ant2[rows]])).size)
     if most < need:
         return DataError(f"no {what} can be formed: at most {most} station(s) observe at the same "
                          f"time and channel, and {what} need {need}",

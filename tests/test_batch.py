@@ -17,7 +17,7 @@ import uvfit
 from uvfit.data.visset import VisibilitySet
 from uvfit.sky.model import SkyModel
 
-from _invented import component, model_toml
+from tests.helpers.invented import component, model_toml
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 

@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from closure_tools import make_vset
+from tests.helpers.closure_tools import make_vset
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel
 from uvfit.stats.closures_build import build_closures, reference_amplitudes, rice_errors

@@ -10,7 +10,7 @@ from astropy.table import Table
 from click.testing import CliRunner
 
 import uvfit
-from closure_tools import make_vset
+from tests.helpers.closure_tools import make_vset
 from uvfit.cli import cli
 from uvfit.data.visset import VisibilitySet
 from uvfit.sky.model import SkyModel

@@ -2,7 +2,7 @@
 import numpy as np
 import pytest
 
-from closure_tools import make_vset
+from tests.helpers.closure_tools import make_vset
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel
 from uvfit.stats.closure import check_closures

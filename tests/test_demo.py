@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-import _demo_run
+from tests.helpers import demo_run as _demo_run
 import uvfit
 
 ROOT = _demo_run.ROOT

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from _fit_sim import coverage, double
+from tests.helpers.fit_sim import coverage, double
 from uvfit.data.visset import VisibilitySet
 from uvfit.infer.derived import derived_quantities
 from uvfit.infer.lsq import fit

@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 
 import uvfit
-from _fit_sim import double, simulate
+from tests.helpers.fit_sim import double, simulate
 from uvfit.sky.model import SkyModel
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from _fit_sim import simulate
+from tests.helpers.fit_sim import simulate
 from uvfit.infer.compare import compare
 from uvfit.sky.model import SkyModel
 

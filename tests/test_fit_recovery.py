@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from _fit_sim import double, simulate
+from tests.helpers.fit_sim import double, simulate
 from uvfit.errors import FitError
 from uvfit.infer.derived import (brightness_temperature_disk, brightness_temperature_gaussian,
                                  derived_quantities)
@@ -245,7 +245,7 @@ def test_position_angle_error_near_the_wrap():
 def test_every_registered_mode_fits_and_recovers_the_geometry(mode):
     import importlib
 
-    from _fit_sim import snapshots
+    from tests.helpers.fit_sim import snapshots
     from uvfit.stats.modes import MODES
     try:
         importlib.import_module(MODES[mode][0])

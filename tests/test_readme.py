@@ -5,7 +5,7 @@ import re
 
 import pytest
 
-import _demo_run
+from tests.helpers import demo_run as _demo_run
 
 ROOT = _demo_run.ROOT
 

@@ -10,7 +10,7 @@ from click.testing import CliRunner
 import uvfit
 from uvfit.cli import cli
 
-from _sample_data import simulate, two_points
+from tests.helpers.sample_data import simulate, two_points
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 

@@ -7,7 +7,7 @@ import pytest
 
 from uvfit.infer.sampling import sample
 
-from _sample_data import simulate, two_points
+from tests.helpers.sample_data import simulate, two_points
 
 N_SIM = 250
 TRUE = {"flux_a": 1.0, "flux_b": 0.3, "east": 0.3, "north": 0.2}

@@ -11,7 +11,7 @@ from uvfit.sky.model import SkyModel
 from uvfit.stats.base import Statistic
 from uvfit.stats.modes import make_statistic
 
-from _sample_data import simulate, two_points
+from tests.helpers.sample_data import simulate, two_points
 
 MAS = math.pi / 180 / 3600e3
 

@@ -10,7 +10,7 @@ from uvfit.infer.posterior import order_samples, swap_groups
 from uvfit.infer.sampling import sample
 from uvfit.sky.model import SkyModel
 
-from _sample_data import simulate, two_points
+from tests.helpers.sample_data import simulate, two_points
 
 MAS = math.pi / 180 / 3600e3
 FIXED0 = {"value": 0.0, "fixed": True}
@@ -118,7 +118,7 @@ def test_label_switching_order_by_flux_and_distance():
 
 
 def test_closure_mode_samples_the_structure():
-    from _sample_data import snapshots
+    from tests.helpers.sample_data import snapshots
 
     truth = SkyModel.build([
         {"name": "a", "shape": "gaussian", "flux": 1.0, "east": 0.0, "north": 0.0, "fwhm": 0.2},

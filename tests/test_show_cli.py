@@ -8,7 +8,7 @@ import sys
 import numpy as np
 import pytest
 
-import show_sim
+from tests.helpers import show_sim
 import uvfit
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))

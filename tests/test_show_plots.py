@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-import show_sim
+from tests.helpers import show_sim
 from uvfit.errors import UvfitError
 from uvfit.show import plots, style
 from uvfit.show.inputs import fit_view

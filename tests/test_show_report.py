@@ -13,7 +13,7 @@ import subprocess
 import numpy as np
 import pytest
 
-import show_sim
+from tests.helpers import show_sim
 import uvfit
 from uvfit.outputs import write_json
 from test_show_cli import run

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from _invented import component, model_toml
+from tests.helpers.invented import component, model_toml
 import uvfit
 from uvfit.cli import cli
 

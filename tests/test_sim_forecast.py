@@ -4,7 +4,7 @@ import os
 import numpy as np
 from scipy.stats import chi2
 
-from _invented import component, model_toml
+from tests.helpers.invented import component, model_toml
 import uvfit
 from uvfit.sim.array import load_array
 from uvfit.sim.forecast import forecast

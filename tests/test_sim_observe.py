@@ -3,7 +3,7 @@ import numpy as np
 import pytest
 from astropy.io import fits
 
-from _invented import component, model_toml
+from tests.helpers.invented import component, model_toml
 import uvfit
 from uvfit.sim.array import parse_array
 from uvfit.sim.observe import Observation, simulate, write_simulation

@@ -25,7 +25,7 @@ from scipy import integrate, special
 
 from uvfit.sky.shapes import shape_class
 
-from tests._sky_cases import case_params, importable, scaled
+from tests.helpers.sky_cases import case_params, importable, scaled
 
 MAS = np.pi / (180.0 * 3600.0 * 1000.0)
 N = 512                 # grid size (pixels per side)

@@ -1,8 +1,9 @@
 """Small invented data sets for the sampler tests (an invented 6-station array, random uv points)."""
 import numpy as np
 
-from uvfit.data.visset import VisibilitySet
 from uvfit.sky.model import SkyModel
+
+from .arrays import every_baseline, observe, turning_array
 
 STATIONS = ["KESTREL", "HERON", "OSPREY", "PLOVER", "SWIFT", "TERN"]
 
@@ -22,12 +23,9 @@ def uv_points(n, q_max, seed):
 def simulate(model, n=150, q_max=4e8, sigma=0.02, seed=0, noise_seed=None, frequency=86e9):
     """A VisibilitySet of ``model`` on random uv points with Gaussian noise ``sigma`` per part."""
     u, v, s1, s2 = uv_points(n, q_max, seed)
-    vis = model.visibilities(u, v)
     rng = np.random.default_rng(seed + 1000 if noise_seed is None else noise_seed)
-    noise = sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
-    return VisibilitySet(u=u, v=v, w=None, time=60000.0 + np.arange(n) / 1440.0, frequency=frequency,
-                         station1=s1, station2=s2, vis=vis + noise, sigma=np.full(n, sigma),
-                         source="INVENTED-1")
+    return observe(u, v, s1, s2, 60000.0 + np.arange(n) / 1440.0, frequency=frequency, sigma=sigma,
+                   model=model, noise=sigma, rng=rng, source="INVENTED-1")
 
 
 def two_points(flux_a=1.0, flux_b=0.3, east=0.3, north=0.2, free_position=True):
@@ -45,17 +43,9 @@ def snapshots(model, n_times=12, sigma=0.02, seed=0, scale=4e8):
     on the sky between snapshots (enough triangles and quadrangles for the closure modes)."""
     rng = np.random.default_rng(seed)
     xy = rng.uniform(-0.5, 0.5, (len(STATIONS), 2)) * scale
-    rows = []
-    for t, ang in enumerate(np.linspace(0, np.pi, n_times, endpoint=False)):
-        c, s = np.cos(ang), np.sin(ang)
-        for i in range(len(STATIONS)):
-            for j in range(i + 1, len(STATIONS)):
-                d = xy[i] - xy[j]
-                rows.append((c * d[0] - s * d[1], s * d[0] + c * d[1], t, STATIONS[i], STATIONS[j]))
-    u = np.array([r[0] for r in rows])
-    v = np.array([r[1] for r in rows])
-    n = u.size
-    vis = model.visibilities(u, v) + sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
-    return VisibilitySet(u=u, v=v, w=None, time=60000.0 + np.array([r[2] for r in rows]) / 144.0,
-                         frequency=86e9, station1=[r[3] for r in rows], station2=[r[4] for r in rows],
-                         vis=vis, sigma=np.full(n, sigma), source="INVENTED-2")
+    t, i, j = every_baseline(len(STATIONS), n_times)
+    angles = np.linspace(0, np.pi, n_times, endpoint=False)
+    u, v = turning_array(xy, angles, j, i, t)  # the baselines xy[i] - xy[j]
+    names = np.array(STATIONS)
+    return observe(u, v, names[i], names[j], 60000.0 + t / 144.0, frequency=86e9, sigma=sigma,
+                   model=model, noise=sigma, rng=rng, source="INVENTED-2")

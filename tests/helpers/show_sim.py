@@ -10,8 +10,8 @@ import math
 
 import numpy as np
 
-from _invented import component, model_toml
-from uvfit.data.visset import VisibilitySet
+from .arrays import earth_rotation_uv, every_baseline, observe
+from .invented import component, model_toml
 
 UAS = math.pi / 180 / 3600 * 1e-6  # radians per microarcsecond (definition)
 
@@ -47,25 +47,13 @@ def simulated_set(noise=0.0, n_times=30, seed=3, frequency=230e9):
     xyz = rng.normal(size=(len(STATIONS), 3)) * 3.0e6  # metres, an invented Earth-sized array
     hours = np.linspace(-2.0, 2.0, n_times)
     dec = math.radians(25.0)
-    rows = {k: [] for k in ("u", "v", "time", "s1", "s2")}
-    for k, h in enumerate(np.radians(15.0 * hours)):
-        for i in range(len(STATIONS)):
-            for j in range(i + 1, len(STATIONS)):
-                lx, ly, lz = (xyz[j] - xyz[i]) / lam
-                rows["u"].append(math.sin(h) * lx + math.cos(h) * ly)
-                rows["v"].append(-math.sin(dec) * math.cos(h) * lx + math.sin(dec) * math.sin(h) * ly
-                                 + math.cos(dec) * lz)
-                rows["time"].append(60000.25 + k * 120.0 / 86400.0)
-                rows["s1"].append(STATIONS[i])
-                rows["s2"].append(STATIONS[j])
-    u, v = np.array(rows["u"]), np.array(rows["v"])
-    vis = truth_vis(u, v)
-    sigma = np.full(u.size, noise if noise > 0 else 0.01)
-    if noise > 0:
-        vis = vis + noise * (rng.normal(size=u.size) + 1j * rng.normal(size=u.size))
-    return VisibilitySet(u=u, v=v, w=None, time=rows["time"], frequency=frequency,
-                         station1=rows["s1"], station2=rows["s2"], vis=vis, sigma=sigma,
-                         integration=120.0, source="INVENTED-1", ra_deg=150.0, dec_deg=25.0)
+    t, i, j = every_baseline(len(STATIONS), n_times)
+    u, v = earth_rotation_uv(xyz, i, j, np.radians(15.0 * hours)[t], dec, lam)
+    names = np.array(STATIONS)
+    return observe(u, v, names[i], names[j], 60000.25 + t * 120.0 / 86400.0, frequency=frequency,
+                   sigma=noise if noise > 0 else 0.01, vis=truth_vis(u, v),
+                   noise=noise if noise > 0 else None, rng=rng, integration=120.0,
+                   source="INVENTED-1", ra_deg=150.0, dec_deg=25.0)
 
 
 def truth_fit_json(mode="complex"):

@@ -1,8 +1,9 @@
 """Simulated data for the fitting tests: (u, v) coverage built in code, seeded Gaussian noise."""
 import numpy as np
 
-from uvfit.data.visset import VisibilitySet
 from uvfit.sky.model import SkyModel
+
+from .arrays import every_baseline, observe, turning_array
 
 STATIONS = np.array(["KA", "LO", "MU", "NE", "OR"])
 
@@ -20,12 +21,10 @@ def simulate(model, n=300, sigma=0.01, seed=0, uv_seed=0, frequency=86e9, flag=N
     per part (seeded); stations cycle over a small invented array."""
     u, v = coverage(n, uv_seed, qmax=qmax)
     rng = np.random.default_rng(seed)
-    vis = model.visibilities(u, v) + rng.normal(0, sigma, n) + 1j * rng.normal(0, sigma, n)
     i = np.arange(n) % (len(STATIONS) - 1)
     j = i + 1 + (np.arange(n) // (len(STATIONS) - 1)) % (len(STATIONS) - 1 - i)
-    return VisibilitySet(u=u, v=v, w=None, time=60000.0 + np.arange(n) * 1e-4, frequency=frequency,
-                         station1=STATIONS[i], station2=STATIONS[j], vis=vis,
-                         sigma=np.full(n, float(sigma)), flag=flag)
+    return observe(u, v, STATIONS[i], STATIONS[j], 60000.0 + np.arange(n) * 1e-4,
+                   frequency=frequency, sigma=sigma, model=model, noise=sigma, rng=rng, flag=flag)
 
 
 def double(flux1=1.0, flux2=0.4, east2=-0.5, north2=-0.8, fwhm1=0.3, fwhm2=0.5, fix_first=False):
@@ -42,16 +41,7 @@ def snapshots(model, n_times=40, sigma=0.01, seed=0, frequency=86e9, scale=1.2e8
     quantities can be formed), the array rotating slowly; complex Gaussian noise, seeded."""
     rng = np.random.default_rng(seed)
     pos = rng.normal(0.0, scale, (len(STATIONS), 2))
-    pairs = [(i, j) for i in range(len(STATIONS)) for j in range(i + 1, len(STATIONS))]
-    t = np.repeat(np.arange(n_times), len(pairs))
-    i = np.tile([p[0] for p in pairs], n_times)
-    j = np.tile([p[1] for p in pairs], n_times)
-    ang = 0.05 * t
-    d = pos[j] - pos[i]
-    u = d[:, 0] * np.cos(ang) - d[:, 1] * np.sin(ang)
-    v = d[:, 0] * np.sin(ang) + d[:, 1] * np.cos(ang)
-    n = len(u)
-    vis = model.visibilities(u, v) + rng.normal(0, sigma, n) + 1j * rng.normal(0, sigma, n)
-    return VisibilitySet(u=u, v=v, w=None, time=60000.0 + t / 1440.0, frequency=frequency,
-                         station1=STATIONS[i], station2=STATIONS[j], vis=vis,
-                         sigma=np.full(n, float(sigma)))
+    t, i, j = every_baseline(len(STATIONS), n_times)
+    u, v = turning_array(pos, 0.05 * np.arange(n_times), i, j, t)
+    return observe(u, v, STATIONS[i], STATIONS[j], 60000.0 + t / 1440.0, frequency=frequency,
+                   sigma=sigma, model=model, noise=sigma, rng=rng)

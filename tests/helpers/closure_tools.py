@@ -1,9 +1,9 @@
 """Invented arrays and data for the closure tests (station names and source are made up)."""
-from itertools import combinations
-
 import numpy as np
 
-from uvfit.data.visset import VisibilitySet
+from uvfit.data.visset import StationTable
+
+from .arrays import earth_rotation_uv, every_baseline, observe
 
 EARTH_RADIUS_M = 6.371e6
 
@@ -20,22 +20,17 @@ def invented_stations(n, seed=0):
 
 def tracks(xyz, names, n_times=20, dec_deg=-5.0, wavelength_m=1.3e-3, hours=8.0, seed=0,
            swap_fraction=0.3):
-    """Rows for every baseline at every time: (u, v) by Earth rotation (TMS 2017 eq. 4.1, as
-    quoted in REFERENCES.md); some baselines stored the other way round to test orientation."""
+    """Rows (t, i, j, u, v) for every baseline at every time: (u, v) by Earth rotation (TMS 2017
+    eq. 4.1, as quoted in REFERENCES.md); some baselines stored the other way round to test
+    orientation."""
     rng = np.random.default_rng(seed)
     dec = np.radians(dec_deg)
     h = np.radians(np.linspace(-hours / 2, hours / 2, n_times) * 15.0)
-    rows = []
-    for t, hh in enumerate(h):
-        for i, j in combinations(range(len(names)), 2):
-            if rng.random() < swap_fraction:
-                i, j = j, i
-            lx, ly, lz = (xyz[j] - xyz[i]) / wavelength_m
-            u = np.sin(hh) * lx + np.cos(hh) * ly
-            v = -np.sin(dec) * np.cos(hh) * lx + np.sin(dec) * np.sin(hh) * ly + np.cos(dec) * lz
-            rows.append((t, i, j, u, v))
-    rows = np.array(rows)
-    return rows
+    t, i, j = every_baseline(len(names), n_times)
+    swap = rng.random(t.size) < swap_fraction
+    i, j = np.where(swap, j, i), np.where(swap, i, j)
+    u, v = earth_rotation_uv(xyz, i, j, h[t], dec, wavelength_m)
+    return np.column_stack([t, i, j, u, v])
 
 
 def make_vset(model, n_stations=6, n_times=20, sigma=0.01, seed=0, gain_amp=0.0, gain_phase=False,
@@ -55,10 +50,6 @@ def make_vset(model, n_stations=6, n_times=20, sigma=0.01, seed=0, gain_amp=0.0,
     if gain_phase:
         g = g * np.exp(1j * rng.uniform(-np.pi, np.pi, g.shape))
     vis = vis * g[t, a1] * np.conj(g[t, a2])
-    if noise:
-        vis = vis + sigma * (rng.normal(size=len(u)) + 1j * rng.normal(size=len(u)))
-    from uvfit.data.visset import StationTable
-    return VisibilitySet(u=u, v=v, w=None, time=60000.0 + t / 1440.0, frequency=230e9,
-                         station1=np.array(names)[a1], station2=np.array(names)[a2], vis=vis,
-                         sigma=np.full(len(u), sigma), stations=StationTable(names, xyz),
-                         source="INVENTED-1")
+    return observe(u, v, np.array(names)[a1], np.array(names)[a2], 60000.0 + t / 1440.0,
+                   frequency=230e9, sigma=sigma, vis=vis, noise=sigma if noise else None, rng=rng,
+                   stations=StationTable(names, xyz), source="INVENTED-1")

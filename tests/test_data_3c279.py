@@ -1,41 +1,23 @@
 """The UVFITS reader against the publishers' own text export of the same 3C 279 rows.
 
-Source of the expected values: the CSV files beside each UVFITS file in ../shared/data/3c279
+Source of the expected values: the CSV files beside each UVFITS file in tests/data/3c279
 (Event Horizon Telescope Collaboration data release 2020-D01-01, see its ABOUT.md), one line per
 visibility in the file's group order. The CSV lists the stored (u, v) of the file and the stored
 phase; the project's convention negates (u, v) (the one mapping, in
 uvfit.data.uvfits._to_sky_convention), so the comparison goes through that function.
 """
-from pathlib import Path
-
 import numpy as np
 import pytest
 
 import uvfit
 from uvfit.data.uvfits import _to_sky_convention
 
-ROOT = Path(__file__).resolve().parents[1]
 BANDS = ["hi", "lo"]
 
 
-def _data_dir():
-    for cand in (ROOT / ".." / "shared" / "data" / "3c279", Path("/work/shared/data/3c279")):
-        if cand.is_dir():
-            return cand.resolve()
-    return None
-
-
-@pytest.fixture(scope="module")
-def data_dir():
-    d = _data_dir()
-    if d is None:
-        pytest.skip("the real data folder ../shared/data/3c279 is absent (CI always has it)")
-    return d
-
-
-def _paths(data_dir, band):
+def _paths(real_data, band):
     stem = f"SR1_3C279_2017_095_{band}_hops_netcal_StokesI"
-    return data_dir / f"{stem}.uvfits", data_dir / f"{stem}.csv"
+    return real_data / f"{stem}.uvfits", real_data / f"{stem}.csv"
 
 
 def _read_csv(path):
@@ -53,8 +35,8 @@ def _half_unit(column_text_values):
 
 
 @pytest.mark.parametrize("band", BANDS)
-def test_every_row_matches_the_publishers_export(data_dir, band):
-    uvf, csv = _paths(data_dir, band)
+def test_every_row_matches_the_publishers_export(real_data, band):
+    uvf, csv = _paths(real_data, band)
     vs = uvfit.read(uvf)
     header, ref = _read_csv(csv)
     lines = [ln.strip().split(",") for ln in open(csv) if not ln.startswith("#")]
@@ -85,8 +67,8 @@ def test_every_row_matches_the_publishers_export(data_dir, band):
 
 
 @pytest.mark.parametrize("band", BANDS)
-def test_header_facts(data_dir, band):
-    uvf, _ = _paths(data_dir, band)
+def test_header_facts(real_data, band):
+    uvf, _ = _paths(real_data, band)
     vs = uvfit.read(uvf)
     # values from the FITS header and antenna table of the file itself, read with astropy
     from astropy.io import fits
@@ -102,12 +84,12 @@ def test_header_facts(data_dir, band):
     assert vs.meta["stokes_i_from"] == "(RR+LL)/2"
 
 
-def test_uv_geometry_is_station2_minus_station1(data_dir):
+def test_uv_geometry_is_station2_minus_station1(real_data):
     """The project's (u, v) of a row is the baseline x(station2) - x(station1) projected with
     TMS 2017 eq. 4.1 (from memory; REFERENCES.md), the Greenwich sidereal time from astropy.time.
     """
     from astropy.time import Time
-    uvf, _ = _paths(data_dir, "hi")
+    uvf, _ = _paths(real_data, "hi")
     vs = uvfit.read(uvf)
     pick = np.linspace(0, vs.n - 1, 40).astype(int)
     pick = pick[vs.uv_distance[pick] > 1e8]            # long baselines: geometry dominates rounding
@@ -126,7 +108,7 @@ def test_uv_geometry_is_station2_minus_station1(data_dir):
     assert np.all(np.hypot(vs.u[pick] - u, vs.v[pick] - v) < 1e-4 * q)
 
 
-def test_orientation_guard_closure_phases_put_the_jet_south_west(data_dir):
+def test_orientation_guard_closure_phases_put_the_jet_south_west(real_data):
     """A light guard of the reader's one sign mapping (the full proof belongs to the closure layer).
 
     Closure phases are blind to station phase errors but change sign if the sky is point-reflected.
@@ -138,7 +120,7 @@ def test_orientation_guard_closure_phases_put_the_jet_south_west(data_dir):
     import itertools
     from scipy.optimize import least_squares
 
-    vs = uvfit.read(_paths(data_dir, "hi")[0]).good()
+    vs = uvfit.read(_paths(real_data, "hi")[0]).good()
     key = {}
     for i, (t, a, b) in enumerate(zip(vs.time, vs.station1, vs.station2)):
         key[(t, a, b)] = (i, 1)

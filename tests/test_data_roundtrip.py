@@ -4,6 +4,7 @@ import pytest
 from astropy.io import fits
 from astropy.table import Table
 
+from tests.helpers.real_data import real_file
 import uvfit
 from uvfit.data.uvfits import _to_sky_convention
 from uvfit.data.visset import StationTable, VisibilitySet
@@ -100,15 +101,7 @@ def test_astropy_reads_the_written_uvfits(tmp_path):
 
 
 def test_uvfits_round_trip_of_the_real_file(tmp_path):
-    from pathlib import Path
-    src = None
-    for cand in (Path(__file__).resolve().parents[1] / ".." / "shared" / "data" / "3c279",
-                 Path("/work/shared/data/3c279")):
-        if cand.is_dir():
-            src = cand / "SR1_3C279_2017_095_hi_hops_netcal_StokesI.uvfits"
-            break
-    if src is None:
-        pytest.skip("the real data folder ../shared/data/3c279 is absent")
+    src = real_file("hi")
     vs = uvfit.read(src)
     uvfit.write(vs, tmp_path / "copy.uvfits")
     back = uvfit.read(tmp_path / "copy.uvfits")

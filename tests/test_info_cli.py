@@ -9,17 +9,11 @@ import pytest
 from astropy.io import fits
 from click.testing import CliRunner
 
+from tests.helpers.real_data import REAL_DATA
 from uvfit.cli import cli
 
 ROOT = Path(__file__).resolve().parents[1]
 HI = "SR1_3C279_2017_095_hi_hops_netcal_StokesI.uvfits"
-
-
-def _real(name):
-    for cand in (ROOT / ".." / "shared" / "data" / "3c279", Path("/work/shared/data/3c279")):
-        if (cand / name).is_file():
-            return (cand / name).resolve()
-    pytest.skip("the real data folder ../shared/data/3c279 is absent (CI always has it)")
 
 
 def run_cli(*args):
@@ -28,7 +22,7 @@ def run_cli(*args):
 
 
 def test_info_table_and_json(tmp_path):
-    path = _real(HI)
+    path = REAL_DATA / HI
     out = tmp_path / "info.json"
     res = CliRunner().invoke(cli, ["info", str(path), "--json", str(out)])
     assert res.exit_code == 0, res.output
@@ -51,7 +45,7 @@ def test_info_table_and_json(tmp_path):
 
 
 def test_info_json_to_stdout_with_selection():
-    path = _real(HI)
+    path = REAL_DATA / HI
     res = run_cli("info", path, "--json", "-", "--stations", "AA,LM,PV", "--average", "60")
     assert res.returncode == 0, res.stderr
     s = json.loads(res.stdout)
@@ -118,6 +112,6 @@ def test_the_complete_small_file_reads(tmp_path):
 
 
 def test_unknown_station_lists_known_ones():
-    res = run_cli("info", _real(HI), "--stations", "AA,XX")
+    res = run_cli("info", REAL_DATA / HI, "--stations", "AA,XX")
     assert res.returncode == 2 and "XX" in res.stderr and "AA, AP, AZ, JC, LM, PV, SM" in res.stderr
     assert "Traceback" not in res.stderr

@@ -1,17 +1,11 @@
-"""The sampler on real data: 3C 279 at 230 GHz, 2017 April 5 (see shared/data/3c279/ABOUT.md)."""
-from pathlib import Path
-
-import pytest
-
+"""The sampler on real data: 3C 279 at 230 GHz, 2017 April 5 (see tests/data/3c279/ABOUT.md)."""
+from tests.helpers.real_data import REAL_DATA
 import uvfit
 from uvfit.data.select import apply_selection
 from uvfit.infer.sampling import sample
 from uvfit.sky.model import SkyModel
 
-_ROOT = Path(__file__).resolve().parents[1]
-_CANDIDATES = [_ROOT / ".." / "shared" / "data" / "3c279", Path("/work/shared/data/3c279")]
-DATA = next((p for p in _CANDIDATES if p.is_dir()), None)
-pytestmark = pytest.mark.skipif(DATA is None, reason="real data folder ../shared/data/3c279 is absent")
+DATA = REAL_DATA
 
 
 def test_closure_posterior_puts_the_jet_south_west():

@@ -9,17 +9,11 @@ import numpy as np
 import pytest
 
 from tests.helpers import show_sim
+from tests.helpers.real_data import REAL_DATA
 import uvfit
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 KINDS = ("radial", "uv", "closure", "sky")
-
-
-def real_data_dir():
-    for d in (os.path.join(ROOT, "..", "shared", "data", "3c279"), "/work/shared/data/3c279"):
-        if os.path.isdir(d):
-            return os.path.abspath(d)
-    return None
 
 
 class Result:
@@ -73,9 +67,7 @@ def sim_files(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def real_files(tmp_path_factory):
-    folder = real_data_dir()
-    if folder is None:
-        pytest.skip("the shared real data (../shared/data/3c279/) are absent")
+    folder = str(REAL_DATA)
     d = tmp_path_factory.mktemp("real")
     data = os.path.join(folder, "SR1_3C279_2017_095_lo_hops_netcal_StokesI.uvfits")
     # two circular Gaussians, the fainter some 27 uas south-west of the brighter

@@ -10,16 +10,21 @@ from astropy import units as u
 from astropy.coordinates import AltAz, EarthLocation, SkyCoord, TETE
 from astropy.time import Time
 
+from tests.helpers.real_data import REAL_DATA
 from uvfit.errors import UvfitError
 from uvfit.sim.array import load_array, parse_array
-from uvfit.sim.tracks import compute_tracks, configure_offline, time_grid
+from uvfit.sim.tracks import compute_tracks, offline_earth_orientation, time_grid
 
-configure_offline()
+
+@pytest.fixture(autouse=True)
+def _astropy_offline():
+    # the independent checks below call astropy directly: they run offline too
+    with offline_earth_orientation():
+        yield
+
 
 C = 299792458.0
-DATA = os.path.join(os.path.dirname(__file__), "..", "..", "..", "shared", "data", "3c279")
-if not os.path.isdir(DATA):
-    DATA = "/work/shared/data/3c279"
+DATA = str(REAL_DATA)
 
 
 def invented_array(min_elevation=-90.0, stations=None):
@@ -166,7 +171,7 @@ def test_elevation_matches_astropy_altaz_and_limits_drop_stations():
 
 
 def test_sign_and_frame_against_real_uvfits_file():
-    # The (u, v) stored in a real archive file (EHT 2017 3C 279, ../shared/data/3c279) for
+    # The (u, v) stored in a real archive file (EHT 2017 3C 279, tests/data/3c279) for
     # station pairs (ant1, ant2) have the sign of r[ant1] - r[ant2], minus the project's
     # station1 -> station2 (the reader negates them, uvfit.data.uvfits._to_sky_convention). Their
     # writer neglected precession (a simple J2000 hour-angle formula reproduces them to ~1e-4,
@@ -174,8 +179,6 @@ def test_sign_and_frame_against_real_uvfits_file():
     # (~4e-3 in 2017).
     fits = pytest.importorskip("astropy.io.fits")
     path = os.path.join(DATA, "SR1_3C279_2017_095_lo_hops_netcal_StokesI.uvfits")
-    if not os.path.exists(path):
-        pytest.skip("real data folder ../shared/data/3c279 is absent")
     with fits.open(path) as h:
         an = h["AIPS AN"].data
         names = [n.strip() for n in an["ANNAME"]]
@@ -268,8 +271,6 @@ def test_tracks_agree_with_reader_presentation_of_real_file():
     # with the project's sign: ours agree to the precession its writer neglected (~4e-3, see above).
     import uvfit
     path = os.path.join(DATA, "SR1_3C279_2017_095_hi_hops_netcal_StokesI.uvfits")
-    if not os.path.exists(path):
-        pytest.skip("real data folder ../shared/data/3c279 is absent")
     vs = uvfit.read(path)
     sel = np.arange(0, vs.n, 60)
     arr = parse_array({"name": "real", "station": [

@@ -2,9 +2,7 @@
 simulated observations and forecasts (see README, "simulate and forecast", and DEVELOPERS.md,
 "Simulation").
 
-Importing this package configures astropy to work offline: it never tries to download
-Earth-orientation tables and accepts the ones it ships, however old (see ``tracks.configure_offline``).
+Importing this package changes no astropy setting. The functions that need Earth-orientation
+data run offline, with astropy's IERS settings set for the call only (see
+``tracks.offline_earth_orientation``): no download is ever attempted.
 """
-from .tracks import configure_offline
-
-configure_offline()

@@ -28,12 +28,17 @@ UVFITS file (equal to minus ours, to the precession its writer neglected). The s
 visibility is then ``model.visibilities(u, v)`` with the project's Fourier kernel
 exp[-2 pi i (u l + v m)], so a simulated file read back presents the same sky as the model.
 
-Offline: importing this module sets astropy to never download Earth-orientation tables and to
-accept the tables it has however old they are. A date past the end of the tables (a future
+Offline: the functions here that need Earth-orientation data (:func:`compute_tracks`,
+:func:`terrestrial_to_celestial`, :func:`iers_last_mjd`, :func:`extrapolation_notice`) run inside
+:func:`offline_earth_orientation`, which sets astropy, for the duration of the call only, to never
+download Earth-orientation tables and to accept the tables it ships however old they are.
+Importing this module changes no astropy setting. A date past the end of the tables (a future
 observation being planned) proceeds, with UT1-UTC and polar motion extrapolated by astropy; the
 :class:`Tracks` object then carries a one-line ``notice`` saying so (no stack of warnings).
 """
+import functools
 import warnings
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 import numpy as np
@@ -43,16 +48,25 @@ from ..errors import UvfitError
 C_LIGHT = 299792458.0  # m/s (exact, SI definition)
 
 
-def configure_offline():
-    """Make astropy use only the Earth-orientation data it ships; never attempt a download."""
+@contextmanager
+def offline_earth_orientation():
+    """Within the block, astropy uses only the Earth-orientation data it ships and never attempts
+    a download; its IERS settings are restored on leaving (nothing changes for the rest of the
+    process)."""
     from astropy.utils import iers
-    iers.conf.auto_download = False
-    iers.conf.auto_max_age = None
     # Beyond the tables astropy keeps going with the last values (with a warning we collect).
-    iers.conf.iers_degraded_accuracy = "warn"
+    with iers.conf.set_temp("auto_download", False), iers.conf.set_temp("auto_max_age", None), \
+            iers.conf.set_temp("iers_degraded_accuracy", "warn"):
+        yield
 
 
-configure_offline()
+def _offline(func):
+    """Run ``func`` inside :func:`offline_earth_orientation`."""
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        with offline_earth_orientation():
+            return func(*args, **kwargs)
+    return wrapper
 
 
 class _Quiet(warnings.catch_warnings):
@@ -64,8 +78,10 @@ class _Quiet(warnings.catch_warnings):
         return log
 
 
+@_offline
 def iers_last_mjd():
-    """Last MJD covered by the Earth-orientation table astropy uses (None if unavailable)."""
+    """Last MJD covered by the Earth-orientation table astropy ships (None if unavailable); read
+    offline (see :func:`offline_earth_orientation`)."""
     try:
         from astropy.utils import iers
         table = iers.earth_orientation_table.get()
@@ -75,6 +91,7 @@ def iers_last_mjd():
         return None
 
 
+@_offline
 def extrapolation_notice(mjd):
     """One line if any of the times lies past the Earth-orientation tables, else None."""
     last = iers_last_mjd()
@@ -118,6 +135,7 @@ def time_grid(start, duration_s, integration_s):
         return start + offsets * u.s
 
 
+@_offline
 def terrestrial_to_celestial(times):
     """(T, 3, 3) rotation matrices taking ITRS vectors to GCRS vectors at each time."""
     from astropy.coordinates import GCRS, ITRS, CartesianRepresentation
@@ -181,6 +199,7 @@ class Tracks:
         return self.uvw_m[:, :, None, :] * (f[None, None, :, None] / C_LIGHT)
 
 
+@_offline
 def compute_tracks(array, ra_deg, dec_deg, times, of_date=False):
     """(u, v, w) tracks of ``array`` (a uvfit.sim.array.Array) for a source at (ra, dec) in degrees
     (ICRS), at the astropy Time array ``times`` (UTC).
@@ -188,6 +207,10 @@ def compute_tracks(array, ra_deg, dec_deg, times, of_date=False):
     With ``of_date=True`` the baselines and the basis are instead those of the true equator and
     equinox of date with the source's apparent (of-date) direction: the intermediate used to check
     the geometry against the classical hour-angle formula (tests); planning uses the default.
+
+    Runs offline: astropy's IERS settings are set for this call only, by
+    :func:`offline_earth_orientation` (no download is ever attempted; the tables astropy ships
+    are accepted however old, and dates past their end are extrapolated with a ``notice``).
     """
     if not -90.0 <= dec_deg <= 90.0:
         raise UvfitError(f"declination {dec_deg} deg is outside -90..90")

@@ -282,6 +282,17 @@ class SkyModel:
         """{component name: full name of its flux}, in component order."""
         return {c.name: f"{c.name}.flux" for c in self.components}
 
+    def size_names(self):
+        """Full names of the members' size parameters (``Shape.size_parameter``), model order."""
+        out = []
+        for c in self.components:
+            local = {ln: 0.0 for ln in c.parameter_names()}
+            for mb in c.shape.members(c.geometry_values(local)):
+                size = mb.shape.size_parameter()
+                if size is not None:
+                    out.append(f"{c.name}.{mb.names[size]}")
+        return out
+
     def periods(self):
         """{full name: period in degrees} of the parameters that live on a circle (``Shape.periods``)."""
         return {f"{c.name}.{ln}": period for c in self.components

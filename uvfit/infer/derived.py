@@ -11,10 +11,14 @@ Keys ("a", "b" are component names in model order; a double "pair" counts as "pa
   ``a-b.separation``     distance of b from a (model angular unit)
   ``a-b.position_angle`` position angle of b seen from a, north through east, in [0, 360) deg
   ``a-b.flux_ratio``     flux of b / flux of a
-  ``a.size``             the main size (FWHM, or diameter, or radius: see "parameter"; the same
-                         entry also appears as ``a.fwhm``, ``a.diameter``..., with "alias_of"), and for
-                         an elliptical Gaussian also ``a.axis_ratio``, ``a.position_angle``
-  ``a.brightness_temperature``  (K) for Gaussians and uniform disks, rest frame with ``redshift``:
+  ``a.size``             the main size (``Shape.size_parameter``: FWHM, or diameter, or radius: see
+                         "parameter"; the same entry also appears as ``a.fwhm``, ``a.diameter``...,
+                         with "alias_of"), and the shape's ``reported_parameters`` (for an
+                         elliptical Gaussian ``a.axis_ratio``, ``a.position_angle``); a shape that
+                         gives no brightness temperature says so in the size entry
+                         ("brightness_temperature_note")
+  ``a.brightness_temperature``  (K) from ``Shape.brightness_temperature`` (Gaussians and uniform
+      disks; ``uvfit.sky.temperature``), rest frame with ``redshift``:
       Gaussian:  Tb = 2 ln2 c^2 S / (pi k nu^2 theta_maj theta_min) (1 + z)
                  (e.g. Kovalev et al. 2005, AJ 130, 2473);
       disk of diameter D: the mean brightness S / (pi D^2 / 4) in the Rayleigh-Jeans law
@@ -37,55 +41,41 @@ import numpy as np
 from scipy import stats as _st
 
 from ..errors import UvfitError
-
-# SI constants (CODATA 2018 exact values; c and k are defined exactly in the SI)
-C_LIGHT = 299792458.0
-K_BOLTZMANN = 1.380649e-23
-JY = 1e-26
+from ..sky.temperature import (C_LIGHT, JY, K_BOLTZMANN,  # noqa: F401 (public here too)
+                               brightness_temperature_disk, brightness_temperature_gaussian)
 
 #: delta chi2 of a one-sided 95% limit (the 90% point of chi2 with 1 d.o.f.)
 LIMIT_DCHI2 = float(_st.chi2.ppf(0.90, 1))
 
-#: quantities that live on a circle, key -> period (deg)
-PERIODS = {}
-
-_SIZE_NAMES = ("fwhm", "diameter", "radius", "outer_radius", "radius_outer")
+_UNIT_OF_KIND = {"ratio": "", "angle": "deg"}
 
 
-def brightness_temperature_gaussian(flux_jy, nu_hz, major_rad, minor_rad, redshift=0.0):
-    """Tb (K) of a Gaussian: 2 ln2 c^2 S / (pi k nu^2 theta_maj theta_min) (1 + z)."""
-    return (2.0 * math.log(2.0) * C_LIGHT ** 2 * flux_jy * JY
-            / (math.pi * K_BOLTZMANN * nu_hz ** 2 * major_rad * minor_rad) * (1.0 + redshift))
+def _member_units(model, member):
+    """The member's parameters as its shape sees them (lengths in radians, angles in radians)."""
+    shape = member["member"]
+    rad = float(model.rad_per_unit)
+    factor = {"length": rad, "angle": math.pi / 180.0}
+    return {n: float(x) * factor.get(shape.parameter_kind(n), 1.0)
+            for n, x in member["parameters"].items()}
 
 
-def brightness_temperature_disk(flux_jy, nu_hz, diameter_rad, redshift=0.0):
-    """Tb (K) of a uniform disk of diameter D: 2 c^2 S / (pi k nu^2 D^2) (1 + z)."""
-    return (2.0 * C_LIGHT ** 2 * flux_jy * JY
-            / (math.pi * K_BOLTZMANN * nu_hz ** 2 * diameter_rad ** 2) * (1.0 + redshift))
-
-
-def _size_parameter(member):
-    """(local name of the main size parameter, its member-free name) or (None, None)."""
-    params = member["parameters"]
-    for name in _SIZE_NAMES:
-        if name in params:
-            return name
-    return None
-
-
-def _full_name(model, member, local):
-    """Full parameter name of a member's size parameter ("core.fwhm" or "pair.fwhm_2")."""
-    comp = member["component"]
-    if member["name"] != comp:  # a member of a double
-        k = member["name"].rsplit(".", 1)[1]
-        return f"{comp}.{local}_{k}"
-    return f"{comp}.{local}"
+def _tb(model, member, frequency, redshift, size=None):
+    """The member's brightness temperature (K) from its shape, with its size replaced by ``size``
+    (model units) when given; None without a frequency or when the shape gives none."""
+    if frequency is None or not np.isfinite(frequency):
+        return None
+    shape = member["member"]
+    p = _member_units(model, member)
+    if size is not None:
+        p[shape.size_parameter()] = float(size) * float(model.rad_per_unit)
+    return shape.brightness_temperature(member["flux"], frequency, p, redshift)
 
 
 def quantities_at(model, theta, frequency, redshift=0.0):
-    """{key: value} of every derived quantity at theta, and {key: unit}, {key: extra info}."""
-    unit = model.angular_unit_text if hasattr(model, "angular_unit_text") else str(model.angular_unit)
-    rad = float(model.rad_per_unit)
+    """{key: value} of every derived quantity at theta, and {key: unit}, {key: extra info}.
+
+    The periods of the quantities that live on a circle are given by :func:`derived_periods`."""
+    unit = model.angular_unit_text
     members = model.members(theta=theta, frequency=frequency)
     out, units, info = {}, {}, {}
     for i, a in enumerate(members):
@@ -96,49 +86,52 @@ def quantities_at(model, theta, frequency, redshift=0.0):
             units[key + ".separation"] = unit
             out[key + ".position_angle"] = math.degrees(math.atan2(de, dn)) % 360.0
             units[key + ".position_angle"] = "deg"
-            PERIODS[key + ".position_angle"] = 360.0
             out[key + ".flux_ratio"] = b["flux"] / a["flux"] if a["flux"] != 0 else float("nan")
             units[key + ".flux_ratio"] = ""
     for m in members:
-        size = _size_parameter(m)
+        shape = m["member"]
+        size = shape.size_parameter()
         if size is None:
             continue
         name = m["name"]
-        s = float(m["parameters"][size])
-        out[f"{name}.size"] = s
+        out[f"{name}.size"] = shape.main_size(m["parameters"])
         units[f"{name}.size"] = unit
         info[f"{name}.size"] = {"parameter": size}
-        ratio = m["parameters"].get("axis_ratio")
-        if ratio is not None:
-            out[f"{name}.axis_ratio"] = float(ratio)
-            units[f"{name}.axis_ratio"] = ""
-            out[f"{name}.position_angle"] = float(m["parameters"].get("position_angle", 0.0)) % 180.0
-            units[f"{name}.position_angle"] = "deg"
-            PERIODS[f"{name}.position_angle"] = 180.0
-        tb = _tb(m, s, ratio, frequency, redshift, rad)
+        periods = shape.periods()
+        for pn in shape.reported_parameters():
+            x = float(m["parameters"][pn])
+            if pn in periods:
+                x = x % periods[pn]
+            out[f"{name}.{pn}"] = x
+            units[f"{name}.{pn}"] = _UNIT_OF_KIND.get(shape.parameter_kind(pn), unit)
+        tb = _tb(model, m, frequency, redshift)
         if tb is not None:
             out[f"{name}.brightness_temperature"] = tb
             units[f"{name}.brightness_temperature"] = "K"
+        elif frequency is not None and np.isfinite(frequency):
+            info[f"{name}.size"]["brightness_temperature_note"] = (
+                f"shape '{shape.key}' gives no brightness temperature")
     return out, units, info
 
 
-def _tb(member, size, ratio, frequency, redshift, rad):
-    shape = member["shape"]
-    if frequency is None or not np.isfinite(frequency):
-        return None
-    if shape in ("gaussian", "elliptical_gaussian") and "fwhm" in member["parameters"]:
-        major = size * rad
-        minor = major * (float(ratio) if ratio is not None else 1.0)
-        with np.errstate(divide="ignore"):
-            if major <= 0 or minor <= 0:
-                return float("inf")
-            return brightness_temperature_gaussian(member["flux"], frequency, major, minor, redshift)
-    if shape == "disk" and "diameter" in member["parameters"]:
-        d = size * rad
-        if d <= 0:
-            return float("inf")
-        return brightness_temperature_disk(member["flux"], frequency, d, redshift)
-    return None
+def derived_periods(model):
+    """{key: period in degrees} of the derived quantities of ``model`` that live on a circle:
+    the position angle between two members (360) and the shapes' periodic reported parameters
+    (an elliptical member's position angle, 180)."""
+    members = model.members()
+    out = {}
+    for i, a in enumerate(members):
+        for b in members[i + 1:]:
+            out[f"{a['name']}-{b['name']}.position_angle"] = 360.0
+    for m in members:
+        shape = m["member"]
+        if shape.size_parameter() is None:
+            continue
+        periods = shape.periods()
+        for pn in shape.reported_parameters():
+            if pn in periods:
+                out[f"{m['name']}.{pn}"] = periods[pn]
+    return out
 
 
 def _gradients(model, theta, errors, bounds, frequency, redshift, keys):
@@ -147,6 +140,7 @@ def _gradients(model, theta, errors, bounds, frequency, redshift, keys):
     k = len(theta)
     grads = {key: np.zeros(k) for key in keys}
     base, _, _ = quantities_at(model, theta, frequency, redshift)
+    periods = derived_periods(model)
     for i in range(k):
         e = errors[i]
         h = 1e-3 * e if np.isfinite(e) and e > 0 else 1e-6 * max(abs(theta[i]), 1.0)
@@ -161,7 +155,7 @@ def _gradients(model, theta, errors, bounds, frequency, redshift, keys):
         qd, _, _ = quantities_at(model, down, frequency, redshift)
         for key in keys:
             diff = qu[key] - qd[key]
-            period = PERIODS.get(key)
+            period = periods.get(key)
             if period:
                 diff = (diff + period / 2.0) % period - period / 2.0
             grads[key][i] = diff / (hu + hd)
@@ -241,24 +235,22 @@ def _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits):
     model = result.model
     free = set(model.free_names)
     for m in model.members():
-        size = _size_parameter(m)
+        shape = m["member"]
+        size = shape.size_parameter()
         if size is None:
             continue
-        full = _full_name(model, m, size)
-        if full not in model.parameters or model.root(full) not in free:
+        full = m["names"][size]
+        if model.root(full) not in free:
             continue
         root = model.root(full)
-        lengths = [pn for pn in m["parameters"]
-                   if _full_name(model, m, pn) in model.parameters
-                   and model.parameters[_full_name(model, m, pn)].kind == "length"]
+        lengths = [pn for pn in m["parameters"] if shape.parameter_kind(pn) == "length"]
         if lengths != [size]:
             continue  # several sizes (a shell's two radii, a blurred ring): no single "point" limit
         extra = {}
-        for other in ("axis_ratio", "position_angle"):
-            if other in m["parameters"]:
-                oname = _full_name(model, m, other)
-                if oname in model.parameters and model.root(oname) in free:
-                    extra[model.root(oname)] = model.values()[oname]
+        for other in shape.reported_parameters():
+            oname = m["names"][other]
+            if model.root(oname) in free:
+                extra[model.root(oname)] = model.values()[oname]
         name = m["name"]
         entry = out.get(f"{name}.size")
         resolved = None
@@ -282,9 +274,7 @@ def _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits):
                     entry["note"] = "not significantly resolved: upper limit (one-sided 95%)"
                     tb_key = f"{name}.brightness_temperature"
                     if tb_key in out:
-                        rad = float(model.rad_per_unit)
-                        ratio = m["parameters"].get("axis_ratio")
-                        tb = _tb(m, ul, ratio, frequency, redshift, rad)
+                        tb = _tb(model, m, frequency, redshift, size=ul)
                         if tb is not None:
                             out[tb_key]["lower_limit"] = tb
                             out[tb_key]["note"] = "lower limit from the size's upper limit"

@@ -115,59 +115,56 @@ def swap_groups(model):
     """
     names = list(model.free_names)
     index = {n: j for j, n in enumerate(names)}
-    by_component = {}
-    for full in model.parameters:
-        comp, local = full.split(".", 1)
-        by_component.setdefault(comp, []).append((local, full))
-    shapes = {}
-    for m in model.members():
-        if m["name"] == m["component"]:
-            shapes[m["component"]] = m["shape"]
     signature = {}
-    for comp, items in by_component.items():
-        if comp not in shapes:
+    for comp in model.components:
+        if comp.shape.compound:
             continue  # a double: its two members are not separate blocks of parameters
-        if not all(full in index for _, full in items):
+        items = model.component_parameter_names(comp.name)
+        if not all(full in index for full in items):
             continue  # a fixed or tied parameter breaks the symmetry
-        key = (shapes[comp], tuple(local for local, _ in items))
-        signature.setdefault(key, []).append((comp, [index[full] for _, full in items]))
+        key = (comp.key, tuple(comp.parameter_names()))
+        signature.setdefault(key, []).append((comp.name, [index[full] for full in items]))
     return [g for g in signature.values() if len(g) > 1]
 
 
 def double_members(model, movable=()):
-    """Doubles whose two members can trade places: [(component, {role: free index}, [(i1, i2)])].
+    """Components whose two members can trade places (``Shape.symmetric_members``):
+    [(component, {role: free index}, [(i1, i2)], {role: full name})], roles "flux_ratio",
+    "separation", "position_angle", "east", "north".
 
     Swapping the members of a double maps (east, north, flux_ratio r, separation s, position angle
-    psi) to (east + s sin psi, north + s cos psi, 1 / r, s, psi + 180 deg) and exchanges every
-    member parameter ``x_1`` with ``x_2``: the same sky. It needs flux_ratio, separation and
+    psi) to (east + s sin psi, north + s cos psi, 1 / r, s, psi + 180 deg) and exchanges the
+    member parameters of each pair (``x_1`` with ``x_2``): the same sky. It needs flux_ratio, separation and
     position_angle free, the member parameters free in pairs, and east / north free or fixed only
     because the mode cannot see the absolute position (``movable``; then they stay as they are).
     """
     names = list(model.free_names)
     index = {n: j for j, n in enumerate(names)}
     movable = set(movable)
+    positions = model.position_names()
     out = []
-    comps = {m["component"] for m in model.members() if m["name"] != m["component"]}
-    for comp in sorted(comps, key=lambda c: list(model.parameters).index(f"{c}.flux")):
-        own = {r: index.get(f"{comp}.{r}") for r in ("flux_ratio", "separation", "position_angle",
-                                                     "east", "north")}
+    for comp in model.components:
+        swap = comp.shape.symmetric_members()
+        if swap is None:
+            continue
+        full = {r: f"{comp.name}.{local}" for r, local in
+                (("flux_ratio", swap.ratio), ("separation", swap.separation),
+                 ("position_angle", swap.angle))}
+        full["east"], full["north"] = positions[comp.name]
+        own = {r: index.get(n) for r, n in full.items()}
         if any(own[r] is None for r in ("flux_ratio", "separation", "position_angle")):
             continue
-        if any(own[r] is None and f"{comp}.{r}" not in movable for r in ("east", "north")):
+        if any(own[r] is None and full[r] not in movable for r in ("east", "north")):
             continue
         pairs, ok = [], True
-        for full in model.parameters:
-            c, local = full.split(".", 1)
-            if c != comp or not local.endswith("_1"):
-                continue
-            other = f"{comp}.{local[:-2]}_2"
-            a, b = index.get(full), index.get(other)
+        for one, two in swap.pairs:
+            a, b = index.get(f"{comp.name}.{one}"), index.get(f"{comp.name}.{two}")
             if (a is None) != (b is None):
                 ok = False
             elif a is not None:
                 pairs.append((a, b))
         if ok:
-            out.append((comp, own, pairs))
+            out.append((comp.name, own, pairs, full))
     return out
 
 
@@ -175,7 +172,7 @@ def _swap_double_members(model, samples, order_by, doubles):
     """Apply the member swap of :func:`double_members` where the rule asks for it; (texts, swapped)."""
     texts = []
     swapped = np.zeros(samples.shape[0], dtype=bool)
-    for comp, own, pairs in doubles:
+    for comp, own, pairs, full in doubles:
         r = samples[:, own["flux_ratio"]]
         sep = samples[:, own["separation"]]
         psi = np.radians(samples[:, own["position_angle"]])
@@ -184,8 +181,8 @@ def _swap_double_members(model, samples, order_by, doubles):
             swap = r > 1.0
             rule = "brighter member first (flux_ratio <= 1)"
         else:
-            e = samples[:, own["east"]] if own["east"] is not None else model.parameters[f"{comp}.east"].value
-            n = samples[:, own["north"]] if own["north"] is not None else model.parameters[f"{comp}.north"].value
+            e = samples[:, own["east"]] if own["east"] is not None else model.parameters[full["east"]].value
+            n = samples[:, own["north"]] if own["north"] is not None else model.parameters[full["north"]].value
             swap = np.hypot(e + de, n + dn) < np.hypot(e, n)
             rule = "member nearer the phase centre first"
         if not swap.any():
@@ -199,7 +196,7 @@ def _swap_double_members(model, samples, order_by, doubles):
         with np.errstate(divide="ignore"):
             samples[rows, own["flux_ratio"]] = 1.0 / r[rows]
         pa = (samples[rows, own["position_angle"]] + 180.0) % 360.0
-        p = model.parameters[f"{comp}.position_angle"]
+        p = model.parameters[full["position_angle"]]
         pa = np.where(pa > p.max, pa - 360.0, pa)
         pa = np.where(pa < p.min, pa + 360.0, pa)
         samples[rows, own["position_angle"]] = pa
@@ -233,16 +230,12 @@ def order_samples(model, samples, order_by="flux", groups=None, movable=()):
     for group in groups:
         comps = [c for c, _ in group]
         blocks = np.array([idx for _, idx in group])          # (m, p)
-        local = [names[j].split(".", 1)[1] for j in group[0][1]]
+        first = [names[j] for j in group[0][1]]
         if order_by == "flux":
-            if "flux" not in local:
-                continue
-            k = local.index("flux")
+            k = first.index(model.flux_names()[comps[0]])
             key = -samples[:, blocks[:, k]]                    # brightest first
         else:
-            if "east" not in local or "north" not in local:
-                continue
-            ke, kn = local.index("east"), local.index("north")
+            ke, kn = (first.index(n) for n in model.position_names()[comps[0]])
             key = np.hypot(samples[:, blocks[:, ke]], samples[:, blocks[:, kn]])
         order = np.argsort(key, axis=1, kind="stable")         # (n, m)
         rows = np.arange(samples.shape[0])[:, None, None]

@@ -476,12 +476,9 @@ def _parameter_period(model, name):
     posterior lives on an interval, not on the circle).
     """
     p = model.parameters[name]
-    if getattr(p, "kind", None) != "angle":
+    period = model.periods().get(name)
+    if period is None:
         return None
-    comp, local = name.split(".", 1)
-    base, _, suffix = local.rpartition("_")
-    ratio = f"{comp}.axis_ratio" + (f"_{suffix}" if base and suffix.isdigit() else "")
-    period = 180.0 if ratio in model.parameters else 360.0
     if np.isfinite(p.min) and np.isfinite(p.max) and (p.max - p.min) < period:
         return None
     return period
@@ -494,10 +491,10 @@ def _limit_bounds(model, name):
     parameter uses its finite min and max; an angle summarised on the circle uses none.
     """
     p = model.parameters[name]
-    local = name.split(".", 1)[1]
+    positions = {n for pair in model.position_names().values() for n in pair}
     lo = float(p.min) if np.isfinite(p.min) else None
     hi = float(p.max) if np.isfinite(p.max) else None
-    if getattr(p, "kind", None) == "length" and local not in ("east", "north") and lo is None:
+    if getattr(p, "kind", None) == "length" and name not in positions and lo is None:
         lo = 0.0
     if _parameter_period(model, name):
         return None, None
@@ -609,8 +606,8 @@ class Posterior:
                     text = (f"{_g(s['lower_limit_95'])} .. {_g(s['upper_limit_95'])} (5-95%; "
                             "fills its bounds: not constrained)")
                 elif "upper_limit_95" in s:
-                    at = "consistent with zero" if name.endswith((".size", "fwhm", "diameter",
-                                                                  "radius")) else "at its lower bound"
+                    at = "consistent with zero" if (name.endswith(".size") or name in
+                                                    self.model.size_names()) else "at its lower bound"
                     text = f"< {_g(s['upper_limit_95'])} (95% upper limit; {at})"
                 elif "lower_limit_95" in s and name in self.parameters:
                     text = f"> {_g(s['lower_limit_95'])} (95% lower limit; at its upper bound)"
@@ -684,7 +681,7 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
                     data_path=None, derived=True, extra=None, movable=()):
     """A :class:`Posterior` from a :class:`Chain` on ``model`` (whose free parameters it sampled)."""
     from .posterior import order_samples, summarize, swap_groups
-    from .derived import PERIODS
+    from .derived import derived_periods
 
     names = list(chain.names)
     if list(model.free_names) != names:
@@ -708,11 +705,12 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
     out_derived = {}
     if derived:
         values, units = derived_samples(model, both, frequency, redshift)
+        periods = derived_periods(model)
         limited = set()
         for key, x in values.items():
             bound = 0.0 if key.endswith(".size") else None
-            s = summarize(x[:-1], unit=units.get(key, ""), period=PERIODS.get(key), lower_bound=bound)
-            s["max_posterior"] = _max_value(x[i_max], PERIODS.get(key))
+            s = summarize(x[:-1], unit=units.get(key, ""), period=periods.get(key), lower_bound=bound)
+            s["max_posterior"] = _max_value(x[i_max], periods.get(key))
             if "upper_limit_95" in s:
                 limited.add(key[:-len(".size")])
             out_derived[key] = s

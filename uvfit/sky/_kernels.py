@@ -44,8 +44,15 @@ SCRATCH_ROWS = 10
 
 _HALF_PI = math.pi / 2.0
 _TWO_PI = 2.0 * math.pi
-#: pi^2 / (4 ln 2), the Gaussian visibility constant (as in uvfit.sky.shapes.gaussian)
-C_VIS = math.pi ** 2 / (4.0 * math.log(2.0))
+from .shapes import gaussian as _gaussian
+
+#: the Gaussians' visibility formulas, shared with the shapes (uvfit.sky.shapes.gaussian)
+C_VIS = _gaussian.C_VIS
+circular_exponent = njit(inline="always", cache=True)(_gaussian.circular_exponent)
+circular_log_derivative = njit(inline="always", cache=True)(_gaussian.circular_log_derivative)
+elliptical_axes = njit(inline="always", cache=True)(_gaussian.elliptical_axes)
+elliptical_exponent = njit(inline="always", cache=True)(_gaussian.elliptical_exponent)
+elliptical_log_derivatives = njit(inline="always", cache=True)(_gaussian.elliptical_log_derivatives)
 
 _S = [(-1) ** k / math.factorial(2 * k + 1) for k in range(8)]
 _C = [(-1) ** k / math.factorial(2 * k) for k in range(9)]
@@ -156,11 +163,11 @@ def _make_pass(kind, mode):
         def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
             l0 = pr[1]
             m0 = pr[2]
-            a = -C_VIS * pr[3] * pr[3]
+            th = pr[3]
             for j in range(m):
                 s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
                 q2 = uc[j] * uc[j] + vc[j] * vc[j]
-                d = exp_(a * q2)
+                d = exp_(circular_exponent(th, q2))
                 xr = d * co
                 xi = -d * s
                 emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
@@ -170,17 +177,13 @@ def _make_pass(kind, mode):
             l0 = pr[1]
             m0 = pr[2]
             fa = pr[3]
-            r2 = pr[4] * pr[4]
+            rho = pr[4]
             sp = math.sin(pr[5])
             cp = math.cos(pr[5])
-            a2c = -C_VIS * fa * fa
             for j in range(m):
                 s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
-                qp = uc[j] * sp + vc[j] * cp
-                qn = uc[j] * cp - vc[j] * sp
-                qp2 = qp * qp
-                qn2 = qn * qn
-                d = exp_(a2c * (qp2 + r2 * qn2))
+                qp, qn = elliptical_axes(uc[j], vc[j], sp, cp)
+                d = exp_(elliptical_exponent(fa, rho, qp, qn))
                 xr = d * co
                 xi = -d * s
                 emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
@@ -311,43 +314,30 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
             elif kind == 1:
                 nshape = 1
                 th = par[c, 3]
-                a2 = -C_VIS * th * th
-                b = -2.0 * C_VIS * th           # d/d fwhm: -2 c theta q^2 D
                 h0 = hs[0]
                 for j in range(m):
                     s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
                     q2 = uc[j] * uc[j] + vc[j] * vc[j]
-                    d = exp_(a2 * q2)
+                    d = exp_(circular_exponent(th, q2))
                     wr[j] = d * co
                     wi[j] = -d * s
-                    h0[j] = b * q2
+                    h0[j] = circular_log_derivative(th, q2)
             elif kind == 2:
                 nshape = 3
                 fa = par[c, 3]
                 rho = par[c, 4]
-                r2 = rho * rho
                 sp = math.sin(par[c, 5])
                 cp = math.cos(par[c, 5])
-                a2c = -C_VIS * fa * fa
-                b3 = -C_VIS * 2.0 * fa
-                b4 = -C_VIS * 2.0 * fa * fa * rho
-                b5 = -C_VIS * 2.0 * fa * fa * (1.0 - r2)
                 h0 = hs[0]
                 h1 = hs[1]
                 h2 = hs[2]
                 for j in range(m):
                     s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
-                    qp = uc[j] * sp + vc[j] * cp
-                    qn = uc[j] * cp - vc[j] * sp
-                    qp2 = qp * qp
-                    qn2 = qn * qn
-                    e = qp2 + r2 * qn2
-                    d = exp_(a2c * e)
+                    qp, qn = elliptical_axes(uc[j], vc[j], sp, cp)
+                    d = exp_(elliptical_exponent(fa, rho, qp, qn))
                     wr[j] = d * co
                     wi[j] = -d * s
-                    h0[j] = b3 * e
-                    h1[j] = b4 * qn2
-                    h2[j] = b5 * qp * qn
+                    h0[j], h1[j], h2[j] = elliptical_log_derivatives(fa, rho, qp, qn)
             else:
                 nshape = gnum[c]
                 gd = gen_d[gidx[c], i0 - r0:i1 - r0]

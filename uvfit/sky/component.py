@@ -73,6 +73,20 @@ class Component:
             return -np.inf, np.inf
         return self.shape.parameter_bounds(local)
 
+    def default_value(self, local):
+        """(value, fixed) of a parameter the model file may leave out, or None when required: a
+        position defaults to 0 (free); the shape's own parameters as the shape says."""
+        if local in ("east", "north"):
+            return 0.0, False
+        if local in COMPONENT_KINDS:
+            return None
+        return self.shape.default_value(local)
+
+    def geometry_values(self, values):
+        """The shape's parameters for ``Shape.members``: angles in radians, lengths as given."""
+        return {n: float(values[n]) * (DEG if self.shape.parameter_kind(n) == "angle" else 1.0)
+                for n in self.shape.parameter_names()}
+
     def _factor(self, kind, rad_per_unit):
         return {"length": rad_per_unit, "angle": DEG}.get(kind, 1.0)
 

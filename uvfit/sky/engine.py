@@ -5,10 +5,11 @@ Two paths give the same numbers (tests compare them to ~1e-12 relative):
 ``numba``  compiled kernels (``uvfit.sky._kernels``): all components in one pass over the rows,
            chunk by chunk, no temporary array per term; the phase factor of each component is
            computed once per row (sine and cosine together, reduced in turns) and reused by the
-           visibility and by every derivative. Point, circular and elliptical Gaussian components
-           are evaluated entirely in the kernel; any other shape gives its structure and
+           visibility and by every derivative. Shapes that name a built-in kernel
+           (``Shape.kernel``: point, circular and elliptical Gaussian) are evaluated entirely in the
+           kernel; any other shape, a newly registered one included, gives its structure and
            derivatives from its own numpy code (in blocks of rows), and the kernel applies flux,
-           position and spectral index. Compiled on first use (``cache=True``: the compiled code
+           position and spectral index: a new shape needs nothing in the engine. Compiled on first use (``cache=True``: the compiled code
            is kept in numba's cache directory, the package's own or a user-wide one when that is
            read-only), never at import.
 ``numpy``  the reference path: ``Component.evaluate`` per component, in blocks of rows so that
@@ -36,7 +37,9 @@ _from_env = None
 _numba_ok = None
 _kernels = None
 
+#: kernel kind of each built-in kernel (``Shape.kernel``); 3: the shape's own numpy code
 _KIND = {"point": 0, "gaussian": 1, "elliptical_gaussian": 2}
+_GENERIC = 3
 _DEG = np.pi / 180.0
 
 
@@ -111,7 +114,9 @@ def kernels():
 
 # ---------------------------------------------------------------------------------------- plans
 class Plan:
-    """Everything about a model's structure the kernel needs, built once per structure.
+    """Everything about a model's structure the kernel needs, built once per structure and kept
+    by the model (``SkyModel.plan``, rebuilt when ``SkyModel.structure_key`` changes). It holds
+    indices and numbers only, no reference to the model's objects.
 
     ``gather`` / ``scale``: par = values[gather] * scale, shaped (n_components, 6);
     ``root``: index of the parameter each one equals through its ties; ``free``: indices of the
@@ -148,13 +153,13 @@ class Plan:
             local = comp.parameter_names()
             li = {ln: index[f"{comp.name}.{ln}"] for ln in local}
             self.local_index.append(li)
-            kind = _KIND.get(comp.key, 3)
+            kind = _KIND.get(comp.shape.kernel, _GENERIC)
             self.kinds[c] = kind
             shape_names = list(comp.shape.parameter_names())
             gather[c, 0], scale[c, 0] = li["flux"], 1.0
             gather[c, 1], scale[c, 1] = li["east"], rpu
             gather[c, 2], scale[c, 2] = li["north"], rpu
-            if kind == 3:
+            if kind == _GENERIC:
                 self.gidx[c] = len(self.generic)
                 self.generic.append(c)
                 self.gstart[c] = ng_rows
@@ -179,7 +184,7 @@ class Plan:
                 self.spectral.append((c, comp.reference_frequency, li["spectral_index"]))
         self.tied = bool(np.any(self.root != np.arange(len(names))))
         self.fixed_index = np.array([i for i, n in enumerate(names) if n not in col_of], dtype=np.int64)
-        self.fixed_params = [params[names[i]] for i in self.fixed_index]
+        self.fixed_names = [names[i] for i in self.fixed_index]
         self.no_spectrum = np.full(nc, -1, dtype=np.int64)
         self.gather = gather.ravel()
         self.scale = scale.ravel()
@@ -187,29 +192,17 @@ class Plan:
         self.nc = nc
 
 
-def _structure_key(model):
-    pv = model.parameters.values()
-    return (id(model.parameters), tuple(map(id, pv)),
-            tuple([(id(c), id(c.shape), c.reference_frequency) for c in model.components]),
-            model.rad_per_unit, tuple([p.tie if p.tie is not None else bool(p.fixed) for p in pv]))
-
-
 def plan_of(model):
-    key = _structure_key(model)
-    cached = model.__dict__.get("_engine_plan")
-    if cached is not None and cached[0] == key:
-        return cached[1]
-    plan = Plan(model)
-    model.__dict__["_engine_plan"] = (key, plan)
-    return plan
+    """The model's plan for its current structure (built on first use, kept by the model)."""
+    return model.plan(Plan)
 
 
 def value_vector(model, plan, theta):
     """All parameter values (model units) in parameter order, ``theta`` and ties applied."""
     vals = np.empty(plan.n_params)
-    if plan.fixed_params:
-        vals[plan.fixed_index] = [p.value for p in plan.fixed_params]
     params = model.parameters
+    if plan.fixed_names:
+        vals[plan.fixed_index] = [params[n].value for n in plan.fixed_names]
     if theta is None:
         vals[plan.free] = [params[n].value for n in model.free_names]
     else:

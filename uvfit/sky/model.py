@@ -13,7 +13,7 @@ import astropy.units as un
 
 from ..errors import ModelError
 from . import engine as _engine
-from .parameters import ParameterSet
+from .parameters import ParameterSet, Uniform
 
 
 def angular_unit_of(text):
@@ -41,23 +41,12 @@ class SkyModel:
         self.angular_unit, self.angular_unit_text = angular_unit_of(angular_unit)
         self.rad_per_unit = float((1.0 * self.angular_unit).to_value(un.rad))
         self.description = description
+        self._plan = None
         self.check()
 
-    # -- construction -------------------------------------------------------------------------
-    @classmethod
-    def build(cls, components, angular_unit="mas", description=None):
-        """A model from component specifications written as in a model file, e.g.
-        ``SkyModel.build([{"name": "core", "shape": "gaussian", "flux": 1.0, "fwhm": 0.05}])``.
-        Each value is a number (a free parameter started there) or a table
-        ``{"value": .., "min": .., "max": .., "fixed": .., "tie": .., "prior": ..}``."""
-        from .modelfile import model_from_dict
-        data = {"angular_unit": angular_unit if isinstance(angular_unit, str) else angular_unit.to_string(),
-                "component": list(components)}
-        if description:
-            data["description"] = description
-        return model_from_dict(data)
-
-    from_components = build
+    # Construction from specifications (``SkyModel.build``) and the model-file text (``to_toml``,
+    # ``save``) are provided by ``uvfit.sky.modelfile``, the only module that knows files; the
+    # package ``uvfit.sky`` attaches them to this class, so that this module does not import it.
 
     def check(self):
         """Validate names, ties (targets exist, no cycles, same kind). Raises ModelError."""
@@ -169,7 +158,6 @@ class SkyModel:
         """(n, n_free) draws from the priors (a flat prior needs finite bounds). Seeded."""
         rng = np.random.default_rng(seed)
         out = np.empty((int(n), self.n_free))
-        from .parameters import Uniform
         for j, name in enumerate(self.free_names):
             p = self.parameters[name]
             prior = p.prior
@@ -254,34 +242,81 @@ class SkyModel:
         return {c.name: (vals[f"{c.name}.east"], vals[f"{c.name}.north"]) for c in self.components}
 
     def members(self, theta=None, frequency=None):
-        """Every component as a list of dicts, a double expanded into its two members.
+        """Every component as a list of dicts, each expanded into its members (``Shape.members``:
+        a double gives two, any other shape itself).
 
         Each dict: ``name`` ("jet", or "pair.1" / "pair.2" for the members of double "pair"),
-        ``component``, ``shape`` (the member's shape for a double), ``flux`` (Jy, at ``frequency``),
-        ``east``, ``north`` (model angular unit) and ``parameters`` (the shape's size parameters,
-        model units, without the member suffix).
+        ``component``, ``shape`` (the member's shape key), ``flux`` (Jy, at ``frequency``),
+        ``east``, ``north`` (model angular unit), ``parameters`` (the member shape's parameters,
+        model units, without the member suffix), ``member`` (the member's Shape) and ``names``
+        ({member parameter: full parameter name}).
         """
         vals = self.values(theta)
         out = []
         for c in self.components:
             local = {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}
             flux = c.flux_at(frequency, local)
-            if c.key == "double":
-                r = local["flux_ratio"]
-                sep, pa = local["separation"], math.radians(local["position_angle"])
-                member = c.shape.config["member"]
-                for k, (f, e, n) in enumerate(
-                        [(flux / (1.0 + r), local["east"], local["north"]),
-                         (flux * r / (1.0 + r), local["east"] + sep * math.sin(pa),
-                          local["north"] + sep * math.cos(pa))], start=1):
-                    out.append({"name": f"{c.name}.{k}", "component": c.name, "shape": member,
-                                "flux": f, "east": e, "north": n,
-                                "parameters": {pn: local[f"{pn}_{k}"] for pn in c.shape.member.parameter_names()}})
-            else:
-                out.append({"name": c.name, "component": c.name, "shape": c.key, "flux": flux,
-                            "east": local["east"], "north": local["north"],
-                            "parameters": {pn: local[pn] for pn in c.shape.parameter_names()}})
+            for mb in c.shape.members(c.geometry_values(local), flux):
+                east, north = local["east"], local["north"]
+                if mb.offset is not None:
+                    east, north = east + mb.offset[0], north + mb.offset[1]
+                out.append({"name": f"{c.name}.{mb.suffix}" if mb.suffix else c.name,
+                            "component": c.name, "shape": mb.shape.key, "flux": mb.flux,
+                            "east": east, "north": north,
+                            "parameters": {pn: local[ln] for pn, ln in mb.names.items()},
+                            "member": mb.shape,
+                            "names": {pn: f"{c.name}.{ln}" for pn, ln in mb.names.items()}})
         return out
+
+    # -- structure: what consumers ask instead of parsing parameter names -------------------------
+    def component_parameter_names(self, name):
+        """Full parameter names of one component, in its local order."""
+        comp = self.component(name)
+        return [f"{comp.name}.{ln}" for ln in comp.parameter_names()]
+
+    def position_names(self):
+        """{component name: (full name of its east, of its north)}, in component order."""
+        return {c.name: (f"{c.name}.east", f"{c.name}.north") for c in self.components}
+
+    def flux_names(self):
+        """{component name: full name of its flux}, in component order."""
+        return {c.name: f"{c.name}.flux" for c in self.components}
+
+    def size_names(self):
+        """Full names of the members' size parameters (``Shape.size_parameter``), model order."""
+        out = []
+        for c in self.components:
+            local = {ln: 0.0 for ln in c.parameter_names()}
+            for mb in c.shape.members(c.geometry_values(local)):
+                size = mb.shape.size_parameter()
+                if size is not None:
+                    out.append(f"{c.name}.{mb.names[size]}")
+        return out
+
+    def periods(self):
+        """{full name: period in degrees} of the parameters that live on a circle (``Shape.periods``)."""
+        return {f"{c.name}.{ln}": period for c in self.components
+                for ln, period in c.shape.periods().items()}
+
+    def structure_key(self):
+        """A value equal for two states of the model exactly when their structure is the same:
+        parameter names and order, which are free, fixed or tied (and to what), the components'
+        shapes, settings and reference frequencies, and the angular unit. Values do not enter."""
+        return (self.rad_per_unit, tuple(self.parameters),
+                tuple([p.tie if p.tie is not None else bool(p.fixed) for p in self.parameters.values()]),
+                tuple([(c.name, c.key, c.reference_frequency, tuple(sorted(c.shape.config.items())))
+                       for c in self.components]))
+
+    def plan(self, build):
+        """The evaluation plan of this model's structure: ``build(model)`` when the structure has
+        changed since the plan was last built (``structure_key``), else the plan kept by the model.
+        The plan must hold no reference to the model's objects (copies and pickles keep it)."""
+        key = self.structure_key()
+        kept = getattr(self, "_plan", None)
+        if kept is None or kept[0] != key:
+            kept = (key, build(self))
+            self._plan = kept
+        return kept[1]
 
     # -- images ---------------------------------------------------------------------------------
     def image(self, l, m, frequency=None, theta=None):
@@ -332,14 +367,6 @@ class SkyModel:
                           "reference_frequency_hz": c.reference_frequency, "parameters": params})
         return {"angular_unit": self.angular_unit_text, "description": self.description,
                 "free_names": self.free_names, "components": comps}
-
-    def to_toml(self):
-        from .modelfile import model_to_toml
-        return model_to_toml(self)
-
-    def save(self, path, force=False):
-        from ..outputs import atomic_write
-        return atomic_write(path, self.to_toml(), force=force)
 
     def __eq__(self, other):
         if not isinstance(other, SkyModel):

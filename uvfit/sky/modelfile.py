@@ -21,7 +21,9 @@ import tomllib
 import astropy.units as un
 
 from ..errors import ModelError, UvfitError
+from ..outputs import atomic_write
 from .component import Component
+from .model import SkyModel, angular_unit_of
 from .parameters import PRIORS, LogUniform, Parameter, Uniform, _toml_float, kind_unit
 from .parameters import ParameterSet
 from .shapes import SHAPES, shape_class
@@ -112,10 +114,21 @@ def loads(text, path=None):
     return model_from_dict(data, source=text, path=path)
 
 
+def build_model(components, angular_unit="mas", description=None):
+    """A model from component specifications written as in a model file, e.g.
+    ``build_model([{"name": "core", "shape": "gaussian", "flux": 1.0, "fwhm": 0.05}])``.
+    Each value is a number (a free parameter started there) or a table
+    ``{"value": .., "min": .., "max": .., "fixed": .., "tie": .., "prior": ..}``. Also
+    ``SkyModel.build`` (alias ``SkyModel.from_components``)."""
+    data = {"angular_unit": angular_unit if isinstance(angular_unit, str) else angular_unit.to_string(),
+            "component": list(components)}
+    if description:
+        data["description"] = description
+    return model_from_dict(data)
+
+
 def model_from_dict(data, source=None, path=None):
     """A SkyModel from the parsed TOML (a dict), or from the same structure built in code."""
-    from .model import SkyModel, angular_unit_of
-
     loc = _Locator(source, path)
     if not isinstance(data, dict):
         raise loc.error("a model must be a table with 'angular_unit' and [[component]] entries")
@@ -210,7 +223,7 @@ def _component(table, i, loc, unit, names):
     for local in comp.parameter_names():
         kind = comp.parameter_kind(local)
         params[f"{name}.{local}"] = _parameter(table.get(local), name, local, kind, unit, err,
-                                               comp.default_bounds(local))
+                                               comp.default_bounds(local), comp.default_value(local))
     return comp, params
 
 
@@ -256,27 +269,16 @@ def _frequency(value, err):
     return hz
 
 
-_DEFAULTS = {"east": (0.0, False), "north": (0.0, False)}
-
-
-def _default(local):
-    """(value, fixed) for a parameter the file may leave out, or None if it is required."""
-    if local in _DEFAULTS:
-        return _DEFAULTS[local]
-    if re.fullmatch(r"blur(_[12])?", local):
-        return (0.0, True)
-    return None
-
-
-def _parameter(spec, cname, local, kind, unit, err, bounds):
+def _parameter(spec, cname, local, kind, unit, err, bounds, default):
+    """A Parameter from its model-file entry ``spec``; ``default`` = (value, fixed) when the file
+    may leave it out (``Component.default_value``), else None."""
     full = f"{cname}.{local}"
     dmin, dmax = bounds
     p = Parameter(name=full, value=math.nan, min=dmin, max=dmax, unit=kind_unit(kind, unit), kind=kind)
     if spec is None:
-        d = _default(local)
-        if d is None:
+        if default is None:
             raise err(f"parameter '{local}' is missing", f"add {local} = <value> to the component")
-        p.value, p.fixed = d
+        p.value, p.fixed = default
         return p
     if _is_number(spec):
         p.value = float(spec)
@@ -433,3 +435,20 @@ def model_to_toml(model):
         for local in comp.parameter_names():
             out.append(_parameter_text(model.parameters[f"{comp.name}.{local}"], comp.default_bounds(local)))
     return "\n".join(out) + "\n"
+
+
+def save_model(model, path, force=False):
+    """Write ``model_to_toml(model)`` to ``path`` atomically (refuses to overwrite unless
+    ``force``). Also ``model.save(path, force)``."""
+    return atomic_write(path, model_to_toml(model), force=force)
+
+
+def _build(cls, components, angular_unit="mas", description=None):
+    return build_model(components, angular_unit=angular_unit, description=description)
+
+
+# the model's conveniences for files, provided here so that uvfit.sky.model needs no file code
+SkyModel.build = classmethod(_build)
+SkyModel.from_components = SkyModel.build
+SkyModel.to_toml = model_to_toml
+SkyModel.save = save_model

@@ -7,7 +7,6 @@ a tied parameter always equals the parameter it is tied to (its Jacobian column 
 parameter's column).
 """
 import math
-import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -17,22 +16,11 @@ import astropy.units as un
 COMPONENT_KINDS = {"flux": "flux", "east": "length", "north": "length", "spectral_index": "ratio"}
 
 
-def default_bounds(local_name, kind):
-    """(min, max) by name and kind alone (the model layer asks ``Component.default_bounds``,
-    which asks the shape; this is the same rule for the shapes of this package).
-
-    Positions, fluxes, angles and spectral indices are unbounded (a negative component flux can be
-    legitimate in a fit); sizes (every other length, including a separation) are >= 0; an axis ratio
-    lies in [0, 1], a modulation amplitude in [0, 0.5], a flux ratio is >= 0.
-    """
-    if local_name in ("east", "north", "flux", "spectral_index"):
-        return -math.inf, math.inf
-    if re.fullmatch(r"axis_ratio(_[12])?", local_name):
-        return 0.0, 1.0
-    if re.fullmatch(r"amplitude_\d+(_[12])?", local_name):
-        return 0.0, 0.5
-    if local_name == "flux_ratio":
-        return 0.0, math.inf
+def default_bounds(kind):
+    """(min, max) of a parameter by its kind alone, when neither the model file nor the shape
+    (``Shape.bounds``) gives bounds: a length (a size, a separation) >= 0, anything else unbounded.
+    Positions, fluxes and spectral indices are unbounded at the component (a negative component
+    flux can be legitimate in a fit)."""
     if kind == "length":
         return 0.0, math.inf
     return -math.inf, math.inf

@@ -9,13 +9,56 @@ Units inside a shape: u, v in wavelengths; every length (size, separation) in ra
 angle (position angle, modulation angle) in radians, position angles measured north through east.
 The component converts from the model file's units (mas, deg) and chains the derivatives.
 """
-from typing import ClassVar
+from typing import ClassVar, NamedTuple
 
 import numpy as np
 
+from .parameters import default_bounds
+
+
+class Member(NamedTuple):
+    """One member of a shape as seen on the sky (see ``Shape.members``).
+
+    ``suffix``: "" for a shape that is its own single member, "1", "2" for the members of a double;
+    ``shape``: the member's Shape; ``names``: {member parameter: the owner's local name};
+    ``flux``: the member's share of the flux given to ``members``; ``offset``: (east, north) of
+    the member from the owner's reference point in the length unit of ``p`` (None: no offset)."""
+
+    suffix: str
+    shape: "Shape"
+    names: dict
+    flux: object
+    offset: object
+
+
+class MemberSwap(NamedTuple):
+    """How two members of one shape trade labels without changing the sky (``symmetric_members``).
+
+    The second member sits at offset ``separation`` (a length) in direction ``angle`` (a position
+    angle, degrees in model units) from the first, the component's reference point, and has
+    ``ratio`` times its flux. Swapping moves the reference point by that offset, maps the ratio r
+    to 1 / r and the angle to angle + 180 deg, and exchanges the parameters of each pair in
+    ``pairs`` ((local name of member 1, local name of member 2), ...)."""
+
+    ratio: str
+    separation: str
+    angle: str
+    pairs: tuple
+
 
 class Shape:
-    """Base class. Subclasses set ``key``, ``parameters`` and ``kinds`` and implement two methods."""
+    """Base class. Subclasses set ``key``, ``parameters`` and ``kinds`` and implement two methods.
+
+    What the rest of the package asks a shape (each with a default here, overridden per shape):
+    ``members(p, flux)`` (what is on the sky: the shape itself, or a double's two members),
+    ``size_parameter()`` / ``main_size(p)`` (the parameter reported as "the size"),
+    ``brightness_temperature(flux, frequency, p, redshift)`` (None when the shape has no formula),
+    ``reported_parameters()`` (parameters reported among the derived quantities besides the size),
+    ``default_value(name)`` (for a parameter a model file leaves out), ``periods()`` (angles on
+    the circle) and ``symmetric_members()`` (a label swap of two equal members, or None).
+    ``kernel`` names the compiled engine's built-in evaluation of the shape (None: the engine
+    takes the shape's own ``structure`` / ``structure_gradient``, see ``uvfit.sky.engine``).
+    """
 
     #: the shape's name in model files, e.g. "gaussian"
     key: ClassVar[str] = ""
@@ -28,6 +71,10 @@ class Shape:
     settings: ClassVar[dict] = {}
     #: True when the centred visibility is real for every parameter value
     real_when_centred: ClassVar[bool] = True
+    #: True when the shape is made of several members with parameters of their own (a double)
+    compound: ClassVar[bool] = False
+    #: built-in kernel of the compiled engine ("point", "gaussian", "elliptical_gaussian"), or None
+    kernel: ClassVar = None
 
     def __init__(self, **settings):
         unknown = set(settings) - set(self.settings)
@@ -61,14 +108,54 @@ class Shape:
         """(min, max) a parameter gets when the model file gives none.
 
         A shape may list them in a class attribute ``bounds`` ({name: (min, max)}); otherwise the
-        rule of ``uvfit.sky.parameters.default_bounds`` applies (sizes >= 0, an axis ratio in
-        [0, 1], a modulation amplitude in [0, 0.5], anything else unbounded)."""
+        rule of ``uvfit.sky.parameters.default_bounds`` applies (a length >= 0, anything else
+        unbounded)."""
         bounds = getattr(self, "bounds", None) or {}
         if name in bounds:
             lo, hi = bounds[name]
             return float(lo), float(hi)
-        from .parameters import default_bounds
-        return default_bounds(name, self.parameter_kind(name))
+        return default_bounds(self.parameter_kind(name))
+
+    # what the rest of the package asks -----------------------------------------------------------
+    def members(self, p, flux=1.0):
+        """[Member, ...]: what is on the sky. ``p``: {name: value}, angles in radians, lengths in
+        any one unit (the offsets come back in it). Default: the shape itself, all the flux."""
+        return [Member("", self, {n: n for n in self.parameter_names()}, flux, None)]
+
+    def size_parameter(self):
+        """Local name of the parameter reported as the shape's size (derived quantity ``.size``,
+        the resolved test, upper limits), or None. Default: the first length parameter."""
+        return next((n for n in self.parameter_names() if self.parameter_kind(n) == "length"), None)
+
+    def main_size(self, p):
+        """The value of ``size_parameter()`` in ``p`` (same units), or None without one."""
+        name = self.size_parameter()
+        return None if name is None else float(p[name])
+
+    def brightness_temperature(self, flux, frequency, p, redshift=0.0):
+        """Brightness temperature (K) of the shape with ``flux`` (Jy) at ``frequency`` (Hz),
+        rest frame at ``redshift``; ``p`` in radians. None: the shape gives none (default)."""
+        return None
+
+    def reported_parameters(self):
+        """Local names reported among the derived quantities besides the size (an angle reduced
+        to ``periods()``), and held at their best values when the size is tested against zero.
+        Default: none."""
+        return ()
+
+    def default_value(self, name):
+        """(value, fixed) for a parameter that a model file may leave out, or None when required.
+        Default: every parameter is required."""
+        return None
+
+    def periods(self):
+        """{local name: period in degrees} of the parameters that live on a circle.
+        Default: 360 for every angle parameter (a position angle)."""
+        return {n: 360.0 for n in self.parameter_names() if self.parameter_kind(n) == "angle"}
+
+    def symmetric_members(self):
+        """A MemberSwap when two members of the shape can trade labels, else None (default)."""
+        return None
 
     # image domain ---------------------------------------------------------------------------------
     def singular(self, p):

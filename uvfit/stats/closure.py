@@ -42,15 +42,6 @@ def _parameters(model):
     return getattr(model, "parameters", None) or {}
 
 
-def _components(model):
-    seen = []
-    for name in _parameters(model):
-        comp = name.split(".", 1)[0]
-        if comp not in seen:
-            seen.append(comp)
-    return seen
-
-
 def _status(model, name):
     """'free', 'fixed', 'tied' or None (no such parameter)."""
     p = _parameters(model).get(name)
@@ -61,13 +52,12 @@ def _status(model, name):
     return "fixed" if getattr(p, "fixed", False) else "free"
 
 
-def _common_mode(model, local):
-    """The first free ``component.local`` when no component has it fixed (so that a common shift or
-    scale of all of them is unconstrained); else None."""
+def _common_mode(model, names):
+    """The first free one of ``names`` (one parameter per component) when none of them is fixed
+    (so that a common shift or scale of all of them is unconstrained); else None."""
     free_names = list(getattr(model, "free_names", []))
     first = None
-    for comp in _components(model):
-        name = f"{comp}.{local}"
+    for name in names:
         st = _status(model, name)
         if st == "fixed":
             return None
@@ -80,8 +70,8 @@ def position_degeneracies(model, why):
     """[(name, reason)] for the east and north of the first component with a free position, when
     no component's position is fixed (a shift of the whole model is then unconstrained)."""
     out = []
-    for local in ("east", "north"):
-        name = _common_mode(model, local)
+    for axis in (0, 1):
+        name = _common_mode(model, [pair[axis] for pair in model.position_names().values()])
         if name:
             out.append((name, f"{why} are blind to the absolute position of the source (a shift of "
                               f"the whole model cancels in them); {name} is fixed and the other "
@@ -92,7 +82,7 @@ def position_degeneracies(model, why):
 def flux_degeneracies(model, why):
     """[(name, reason)] for the flux of the first component with a free flux, when no flux is
     fixed (a common scale of all fluxes is then unconstrained)."""
-    name = _common_mode(model, "flux")
+    name = _common_mode(model, list(model.flux_names().values()))
     if not name:
         return []
     return [(name, f"{why} constrain flux ratios but not the total flux (scaling every flux by "

@@ -68,8 +68,8 @@ def free_translation(model):
     """
     params = model.parameters
     out = []
-    for axis in ("east", "north"):
-        names = [n for n in params if n.partition(".")[2] == axis]
+    for axis in (0, 1):
+        names = [pair[axis] for pair in model.position_names().values()]
         if not names or any(params[n].fixed for n in names):
             continue
         free = [n for n in names if params[n].tie is None]

@@ -1,4 +1,8 @@
-"""Registry of component shapes: model-file name -> (module, class). One file per family."""
+"""Registry of component shapes: model-file name -> where its class is. One file per family.
+
+A value is either (module, class name), imported on first use, or a Shape subclass itself: a
+shape defined elsewhere (e.g. in a test) is registered with ``SHAPES["crescent"] = Crescent``.
+"""
 import importlib
 
 SHAPES = {
@@ -17,5 +21,8 @@ SHAPES = {
 
 def shape_class(key):
     """The Shape subclass for a model-file shape name (KeyError if unknown)."""
-    module, name = SHAPES[key]
+    entry = SHAPES[key]
+    if isinstance(entry, type):
+        return entry
+    module, name = entry
     return getattr(importlib.import_module(module), name)

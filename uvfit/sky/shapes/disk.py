@@ -11,6 +11,7 @@ x = 3.8317 (the first zero of J1), i.e. q = 1.2197 / theta.
 import numpy as np
 
 from uvfit.sky.shapes import _pixels, _radial
+from uvfit.sky.temperature import brightness_temperature_disk
 from uvfit.sky.shapes._quadrature import disk_points
 
 
@@ -22,6 +23,14 @@ class UniformDisk(_radial.OneSizeRadial):
     scale = np.pi
     profile = staticmethod(_radial.airy)
     profile_derivative = staticmethod(_radial.airy_derivative)
+
+    def brightness_temperature(self, flux, frequency, p, redshift=0.0):
+        """Tb (K) of the mean brightness (``uvfit.sky.temperature.brightness_temperature_disk``);
+        inf at zero diameter."""
+        d = p["diameter"]
+        if d <= 0:
+            return float("inf")
+        return brightness_temperature_disk(flux, frequency, d, redshift)
 
     # image domain -------------------------------------------------------------------------------
     def singular(self, p):

@@ -9,9 +9,12 @@ member from the first (separation s, position angle psi north through east). The
 position is that of the FIRST member; its flux is the total of both. Each member's size parameters
 carry the suffix ``_1`` or ``_2`` (``fwhm_1``, ``axis_ratio_2``...).
 """
+import math
+
 import numpy as np
 
-from ..shape import Shape
+from ..shape import Member, MemberSwap, Shape, render_fractions
+from . import SHAPES, shape_class
 
 _OWN = ("flux_ratio", "separation", "position_angle")
 _OWN_KINDS = {"flux_ratio": "ratio", "separation": "length", "position_angle": "angle"}
@@ -28,10 +31,9 @@ class Double(Shape):
     kinds = dict(_OWN_KINDS)
     settings = {"member": "point"}
     real_when_centred = False
+    compound = True
 
     def __init__(self, **settings):
-        from . import SHAPES, shape_class
-
         member = settings.pop("member", "point")
         if member not in SHAPES:
             raise ValueError(f"unknown member shape '{member}' for a double; known shapes: "
@@ -47,7 +49,6 @@ class Double(Shape):
     @classmethod
     def accepted_settings(cls, table):
         """Settings a double accepts: ``member`` plus the member shape's own settings."""
-        from . import SHAPES, shape_class
         member = table.get("member", "point")
         if not isinstance(member, str) or member not in SHAPES or member == "double":
             return ["member"]
@@ -66,6 +67,41 @@ class Double(Shape):
         """("fwhm", 2) for "fwhm_2"."""
         base, _, k = name.rpartition("_")
         return base, int(k)
+
+    # what the rest of the package asks -----------------------------------------------------------
+    def members(self, p, flux=1.0):
+        """The two members: the first at the reference point with flux / (1 + r), the second at
+        (s sin psi, s cos psi) from it with flux r / (1 + r); parameters without the suffix."""
+        r = p["flux_ratio"]
+        sep, pa = p["separation"], p["position_angle"]
+        out = []
+        for k, (f, offset) in enumerate([(flux / (1.0 + r), None),
+                                         (flux * r / (1.0 + r),
+                                          (sep * math.sin(pa), sep * math.cos(pa)))], start=1):
+            names = {n: f"{n}_{k}" for n in self._member_names}
+            out.append(Member(str(k), self.member, names, f, offset))
+        return out
+
+    def size_parameter(self):
+        """None: the double has no size of its own (its members have theirs)."""
+        return None
+
+    def default_value(self, name):
+        if name in _OWN:
+            return None
+        return self.member.default_value(self.member_parameter(name)[0])
+
+    def periods(self):
+        out = {"position_angle": 360.0}
+        for n, period in self.member.periods().items():
+            for k in (1, 2):
+                out[f"{n}_{k}"] = period
+        return out
+
+    def symmetric_members(self):
+        """The members trade places: see MemberSwap (flux_ratio, separation, position_angle)."""
+        return MemberSwap("flux_ratio", "separation", "position_angle",
+                          tuple((f"{n}_1", f"{n}_2") for n in self._member_names))
 
     def member_values(self, p, k):
         """The size parameters of member k (1 or 2) from the double's parameter mapping."""
@@ -133,7 +169,6 @@ class Double(Shape):
         return (b1 + r * b2) / (1.0 + r)
 
     def pixel_fractions(self, l, m, p):
-        from ..shape import render_fractions
         r = float(p["flux_ratio"])
         dx, dy = self.member_offset(p)
         l = np.asarray(l, dtype=float)

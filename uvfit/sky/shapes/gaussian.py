@@ -9,12 +9,47 @@ the major axis) and q_perp = u cos phi - v sin phi.
 """
 import numpy as np
 
+import math
+
 from ..shape import Shape, grid_steps, nearest_pixel
+from ..temperature import brightness_temperature_gaussian
 
 #: pi^2 / (4 ln 2): the constant in the exponent of a Gaussian's visibility in terms of its FWHM
-C_VIS = np.pi ** 2 / (4.0 * np.log(2.0))
+C_VIS = math.pi ** 2 / (4.0 * math.log(2.0))
 #: 4 ln 2: the constant in the exponent of a Gaussian's brightness in terms of its FWHM
 C_IMG = 4.0 * np.log(2.0)
+
+
+# The visibility formulas, as plain arithmetic on scalars or arrays: the shapes below evaluate
+# them with numpy, and the compiled engine (uvfit.sky._kernels) compiles the same functions.
+def circular_exponent(fwhm, q2):
+    """ln V of a circular Gaussian: -C_VIS fwhm^2 q^2 (q2 = u^2 + v^2)."""
+    return -C_VIS * fwhm * fwhm * q2
+
+
+def circular_log_derivative(fwhm, q2):
+    """(dV/d fwhm) / V = -2 C_VIS fwhm q^2."""
+    return -2.0 * C_VIS * fwhm * q2
+
+
+def elliptical_axes(u, v, sin_pa, cos_pa):
+    """(q_par, q_perp): the (u, v) components along and across the major axis."""
+    return u * sin_pa + v * cos_pa, u * cos_pa - v * sin_pa
+
+
+def elliptical_exponent(fwhm, ratio, q_par, q_perp):
+    """ln V of an elliptical Gaussian: -C_VIS a^2 (q_par^2 + rho^2 q_perp^2)."""
+    return -C_VIS * fwhm * fwhm * (q_par * q_par + ratio * ratio * (q_perp * q_perp))
+
+
+def elliptical_log_derivatives(fwhm, ratio, q_par, q_perp):
+    """(dV/da, dV/drho, dV/dphi) / V. With E = a^2 (q_par^2 + rho^2 q_perp^2), V = exp(-c E),
+    d q_par / d phi = q_perp and d q_perp / d phi = -q_par: dE/dphi = 2 a^2 q_par q_perp (1 - rho^2),
+    zero at rho = 1."""
+    qn2 = q_perp * q_perp
+    e = q_par * q_par + ratio * ratio * qn2
+    return (-C_VIS * 2.0 * fwhm * e, -C_VIS * 2.0 * fwhm * fwhm * ratio * qn2,
+            -C_VIS * 2.0 * fwhm * fwhm * (1.0 - ratio * ratio) * q_par * q_perp)
 
 
 def gaussian_density(l, m, fwhm_major, fwhm_minor, phi):
@@ -105,18 +140,29 @@ class CircularGaussian(Shape):
     settings = {}
     real_when_centred = True
 
+    kernel = "gaussian"
+
     def structure(self, u, v, p):
         u, v = _uv(u, v)
         theta = float(p["fwhm"])
-        return np.exp(-C_VIS * theta * theta * (u * u + v * v))
+        return np.exp(circular_exponent(theta, u * u + v * v))
 
     def structure_gradient(self, u, v, p):
         u, v = _uv(u, v)
         theta = float(p["fwhm"])
         q2 = u * u + v * v
-        val = np.exp(-C_VIS * theta * theta * q2)
-        # d/dtheta exp(-c theta^2 q^2) = -2 c theta q^2 V
-        return val, {"fwhm": -2.0 * C_VIS * theta * q2 * val}
+        val = np.exp(circular_exponent(theta, q2))
+        return val, {"fwhm": circular_log_derivative(theta, q2) * val}
+
+    def size_parameter(self):
+        return "fwhm"
+
+    def brightness_temperature(self, flux, frequency, p, redshift=0.0):
+        """Tb (K) from ``uvfit.sky.temperature.brightness_temperature_gaussian``; inf at zero size."""
+        major = p["fwhm"]
+        if major <= 0:
+            return float("inf")
+        return brightness_temperature_gaussian(flux, frequency, major, major, redshift)
 
     def singular(self, p):
         return float(p["fwhm"]) == 0.0
@@ -149,36 +195,45 @@ class EllipticalGaussian(Shape):
     settings = {}
     real_when_centred = True
 
+    kernel = "elliptical_gaussian"
+
     @staticmethod
     def _parts(u, v, p):
         u, v = _uv(u, v)
         a = float(p["fwhm"])
         rho = float(p["axis_ratio"])
         phi = float(p["position_angle"])
-        s, c = np.sin(phi), np.cos(phi)
-        q_par = u * s + v * c
-        q_perp = u * c - v * s
+        q_par, q_perp = elliptical_axes(u, v, math.sin(phi), math.cos(phi))
         return a, rho, q_par, q_perp
 
     def structure(self, u, v, p):
         a, rho, q_par, q_perp = self._parts(u, v, p)
-        return np.exp(-C_VIS * a * a * (q_par * q_par + rho * rho * q_perp * q_perp))
+        return np.exp(elliptical_exponent(a, rho, q_par, q_perp))
 
     def structure_gradient(self, u, v, p):
         a, rho, q_par, q_perp = self._parts(u, v, p)
-        qp2 = q_par * q_par
-        qn2 = q_perp * q_perp
-        val = np.exp(-C_VIS * a * a * (qp2 + rho * rho * qn2))
-        # exponent E = a^2 (q_par^2 + rho^2 q_perp^2); V = exp(-c E); dV = -c V dE
-        # d q_par / d phi = q_perp, d q_perp / d phi = -q_par
-        # => dE/dphi = 2 a^2 q_par q_perp (1 - rho^2), zero at rho = 1
-        cv = -C_VIS * val
-        grads = {
-            "fwhm": cv * 2.0 * a * (qp2 + rho * rho * qn2),
-            "axis_ratio": cv * 2.0 * a * a * rho * qn2,
-            "position_angle": cv * 2.0 * a * a * (1.0 - rho * rho) * q_par * q_perp,
-        }
-        return val, grads
+        val = np.exp(elliptical_exponent(a, rho, q_par, q_perp))
+        h_a, h_rho, h_phi = elliptical_log_derivatives(a, rho, q_par, q_perp)
+        return val, {"fwhm": h_a * val, "axis_ratio": h_rho * val, "position_angle": h_phi * val}
+
+    def size_parameter(self):
+        return "fwhm"
+
+    def reported_parameters(self):
+        return ("axis_ratio", "position_angle")
+
+    def periods(self):
+        """The major axis is the same after half a turn: its position angle has period 180."""
+        return {"position_angle": 180.0}
+
+    def brightness_temperature(self, flux, frequency, p, redshift=0.0):
+        """Tb (K) from ``uvfit.sky.temperature.brightness_temperature_gaussian`` with the major and
+        minor FWHM; inf at zero size."""
+        major = p["fwhm"]
+        minor = major * float(p["axis_ratio"])
+        if major <= 0 or minor <= 0:
+            return float("inf")
+        return brightness_temperature_gaussian(flux, frequency, major, minor, redshift)
 
     def singular(self, p):
         return float(p["fwhm"]) * float(p["axis_ratio"]) == 0.0

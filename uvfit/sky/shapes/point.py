@@ -12,6 +12,7 @@ class Point(Shape):
     kinds = {}
     settings = {}
     real_when_centred = True
+    kernel = "point"
 
     def structure(self, u, v, p):
         return np.ones(np.broadcast(np.asarray(u), np.asarray(v)).shape)

@@ -134,6 +134,10 @@ class ModulatedRing(Shape):
     def parameter_kind(self, name):
         return self._kind(name)
 
+    def default_value(self, name):
+        """A model file may leave out ``blur``: 0, fixed (an unblurred ring)."""
+        return (0.0, True) if name == "blur" else None
+
     # Fourier domain -----------------------------------------------------------------------------
     def _terms(self, u, v, p, derivatives):
         u, v = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(v, dtype=float))

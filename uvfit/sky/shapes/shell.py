@@ -45,6 +45,10 @@ class Shell(Shape):
     real_when_centred = True
     bounds = {"inner_radius": (0.0, np.inf), "outer_radius": (0.0, np.inf)}
 
+    def size_parameter(self):
+        """The outer radius is the shell's size."""
+        return "outer_radius"
+
     def _evaluate(self, u, v, p, derivatives):
         ri = float(abs(p["inner_radius"]))
         ro = float(abs(p["outer_radius"]))

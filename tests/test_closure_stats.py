@@ -5,7 +5,7 @@ import pytest
 from closure_tools import make_vset
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel
-from uvfit.stats.closure import check_closures
+from uvfit.stats.closures import check_closures
 from uvfit.stats.modes import make_statistic
 
 

@@ -12,7 +12,7 @@ seeded, by the simulation layer). The demo, in order:
    parametric bootstrap (``uvfit.infer.compare``);
 4. samples the posterior of the double (``uvfit.infer.sampling``, emcee);
 5. checks the double against the closure phases and log closure amplitudes
-   (``uvfit.stats.closure``), which station-based calibration errors cannot change;
+   (``uvfit.stats.closures``), which station-based calibration errors cannot change;
 6. draws the figures and writes the one-file HTML report (``uvfit.show``);
 7. says where everything is and gives the answer in one line (the "headline").
 
@@ -204,7 +204,7 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     from .show import inputs, plots, style
     from .show.report import build_report
     from .show.sky import sky_figure
-    from .stats.closure import check_closures, closure_table, json_summary
+    from .stats.closures import check_closures, closure_table, json_summary
 
     def path(key):
         return os.path.join(out_dir, OUTPUTS[key])

@@ -215,7 +215,7 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
 
 def _refit_chi2(result, fix):
     """chi2 of a refit from the best fit with the parameters in ``fix`` ({name: value}) fixed."""
-    from .lsq import fit, rebuild_statistic
+    from .lsq import fit
     from ..errors import FitError
 
     model = result.model.copy()
@@ -227,9 +227,9 @@ def _refit_chi2(result, fix):
         p.fixed = True
         p.tie = None
     if not model.free_names:
-        stat = rebuild_statistic(result.statistic, model)
+        stat = result.statistic.rebuilt(model)
         return stat.chi2(np.zeros(0))
-    stat = rebuild_statistic(result.statistic, model)
+    stat = result.statistic.rebuilt(model)
     try:
         res = fit(stat, starts=1, seed=result.seed, strict=False)
     except FitError:

@@ -198,7 +198,7 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
 def closure_phase_series(vset, model_vis, systematic=0.0, snr_cut=None):
     """Closure phases of every triangle at every time (and channel), data and model.
 
-    Built by the closure layer (:func:`uvfit.stats.closure.build_closures`) with its full
+    Built by the closure layer (:func:`uvfit.stats.closures.build_closures`) with its full
     (redundant) set, so that every triangle can be drawn; the statistics use the non-redundant set.
     Closure phase on stations (a, b, c): arg(V_ab V_bc V_ca), unchanged by any station-based phase
     error; its error sqrt(sum_k (sigma_k / |V_k|)^2) radians at high SNR (Chael et al. 2018,
@@ -210,7 +210,7 @@ def closure_phase_series(vset, model_vis, systematic=0.0, snr_cut=None):
     (the shortest of the three baselines, wavelengths); and ``longest_uv``, the longest baseline
     of the set (a number).
     """
-    from ..stats.closure import DEFAULT_SNR_CUT, build_closures
+    from ..stats.closures import DEFAULT_SNR_CUT, build_closures
 
     model_vis = _check_lengths(vset, model_vis)
     cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)

@@ -427,7 +427,7 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
 def run_closure_check(view):
     """The closure check of the fitted model on the data (a dict), or a sentence saying why not."""
     try:
-        from ..stats.closure import check_closures
+        from ..stats.closures import check_closures
     except ImportError:
         return "The closure check is not available in this installation."
     try:

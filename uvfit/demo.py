@@ -202,6 +202,7 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     from .infer.sampling import sample
     from .outputs import atomic_write, atomic_write_with, write_json
     from .show import inputs, plots, style
+    from .show.corner import write_corner_plot
     from .show.report import build_report
     from .show.sky import sky_figure
     from .stats.closures import check_closures, closure_table, json_summary
@@ -276,7 +277,7 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     posterior = post.to_dict()
     posterior["selection"] = {}
     write_json(path("posterior"), posterior, force=force)
-    post.corner_plot(path("corner"), force=force)
+    write_corner_plot(post, path("corner"), force=force)
     posterior = _roundtrip(posterior)
 
     # 5. the closure check of the fitted double

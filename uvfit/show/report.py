@@ -13,6 +13,7 @@ import numpy as np
 from .. import __version__
 from ..errors import UvfitError
 from . import plots, style
+from .corner import corner_plot
 from .sky import sky_figure
 
 CAUTIONS = [
@@ -352,7 +353,7 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
     out.append(("sky", "The fitted model on the sky (east to the left) with each component's "
                 "outline and the nominal resolution λ/B_max for scale.", fig))
     if chain is not None:
-        fig, _ = plots.corner_plot(chain, chain_names, chain_units)
+        fig, _ = corner_plot(chain, chain_names, chain_units)
         out.append(("corner", "Posterior samples of the free parameters (16, 50, 84 % quantiles "
                     "marked).", fig))
     return out

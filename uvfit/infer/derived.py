@@ -83,7 +83,15 @@ def _full_name(model, member, local):
 
 
 def quantities_at(model, theta, frequency, redshift=0.0):
-    """{key: value} of every derived quantity at theta, and {key: unit}, {key: extra info}."""
+    """The derived quantities of ``model`` at one free-parameter vector ``theta``.
+
+    Returns three dicts over the same keys: values, units and extra information (the parameter
+    behind each size). Keys: ``A-B.separation``, ``A-B.position_angle`` (deg, east of north) and
+    ``A-B.flux_ratio`` (B / A) for every pair of members, ``A.size`` (and ``A.axis_ratio``,
+    ``A.position_angle`` for elliptical members) and ``A.brightness_temperature`` (K, when the
+    frequency is known). One vector per call: the sampler and the forecast loop over theirs.
+    The period of every angle is recorded in ``PERIODS`` for circular statistics.
+    """
     unit = model.angular_unit_text if hasattr(model, "angular_unit_text") else str(model.angular_unit)
     rad = float(model.rad_per_unit)
     members = model.members(theta=theta, frequency=frequency)

@@ -31,7 +31,12 @@ Amplitude mode
 import numpy as np
 from scipy.special import i0e, i1e
 
-from .base import Statistic, common_shift, effective_sigma, model_visibilities_and_jacobian
+from .base import (
+    Statistic,
+    common_shift,
+    effective_sigma,
+    model_visibilities_and_jacobian,
+)
 
 _SQRT_HALF_PI = np.sqrt(np.pi / 2.0)
 

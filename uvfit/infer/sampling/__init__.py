@@ -20,6 +20,6 @@ from .runner import Chain, run_chain, sample
 from .start import initial_ball
 from .summary import Posterior, summarize_chain
 
-__all__ = ["sample", "run_chain", "Chain", "Posterior", "summarize_chain", "LogPosterior",
-           "initial_ball", "autocorrelation_time", "convergence_check", "burn_and_thin",
-           "CHAIN_GROUP", "chain_info", "check_chain_file", "read_chain"]
+__all__ = ["CHAIN_GROUP", "Chain", "LogPosterior", "Posterior", "autocorrelation_time",
+           "burn_and_thin", "chain_info", "check_chain_file", "convergence_check", "initial_ball",
+           "read_chain", "run_chain", "sample", "summarize_chain"]

@@ -13,9 +13,17 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ...errors import FitError, UvfitError
-from .chainfile import check_chain_file, chain_info, new_backend, resume_backend
-from .convergence import (BURN_FACTOR, CHECK_EVERY, TAU_CHANGE, TAU_FACTOR, autocorrelation_time,
-                          burn_and_thin, convergence_check, convergence_state)
+from .chainfile import chain_info, check_chain_file, new_backend, resume_backend
+from .convergence import (
+    BURN_FACTOR,
+    CHECK_EVERY,
+    TAU_CHANGE,
+    TAU_FACTOR,
+    autocorrelation_time,
+    burn_and_thin,
+    convergence_check,
+    convergence_state,
+)
 from .logpost import LogPosterior, _init_worker, _WorkerLogProb
 from .start import initial_ball
 from .summary import summarize_chain

@@ -149,8 +149,8 @@ class Posterior:
 def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0, mode="",
                     data_path=None, derived=True, extra=None, movable=()):
     """A :class:`Posterior` from a :class:`Chain` on ``model`` (whose free parameters it sampled)."""
-    from ..posterior import order_samples, summarize, swap_groups
     from ..derived import PERIODS
+    from ..posterior import order_samples, summarize, swap_groups
 
     names = list(chain.names)
     if list(model.free_names) != names:

@@ -12,11 +12,15 @@ Modules, one concept each:
 """
 from .build import DEFAULT_SNR_CUT, ClosureSet, build_closures
 from .check import CLOSURE_CAUTION, check_closures, json_summary
-from .statistics import (ClosurePhaseStatistic, ClosureStatistic, HybridStatistic,
-                         LogClosureAmplitudeStatistic)
 from .covariance import COVARIANCE_NOTE
+from .statistics import (
+                         ClosurePhaseStatistic,
+                         ClosureStatistic,
+                         HybridStatistic,
+                         LogClosureAmplitudeStatistic,
+)
 from .table import closure_table
 
-__all__ = ["ClosurePhaseStatistic", "LogClosureAmplitudeStatistic", "ClosureStatistic",
-           "HybridStatistic", "check_closures", "closure_table", "json_summary", "build_closures",
-           "ClosureSet", "DEFAULT_SNR_CUT", "COVARIANCE_NOTE", "CLOSURE_CAUTION"]
+__all__ = ["CLOSURE_CAUTION", "COVARIANCE_NOTE", "DEFAULT_SNR_CUT", "ClosurePhaseStatistic",
+           "ClosureSet", "ClosureStatistic", "HybridStatistic", "LogClosureAmplitudeStatistic",
+           "build_closures", "check_closures", "closure_table", "json_summary"]

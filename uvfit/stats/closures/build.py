@@ -72,8 +72,8 @@ from itertools import combinations
 
 import numpy as np
 
-from ..base import effective_sigma
 from ...errors import DataError
+from ..base import effective_sigma
 
 #: default SNR cut on the contributing visibilities (thermal SNR |V| / sigma)
 DEFAULT_SNR_CUT = 3.0

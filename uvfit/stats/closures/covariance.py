@@ -9,8 +9,8 @@ only the diagonal, each closure weighed by its own sigma.
 """
 import numpy as np
 
-from ..base import effective_sigma
 from ...errors import UvfitError
+from ..base import effective_sigma
 
 #: words used in outputs for the error model of a diagonal covariance
 COVARIANCE_NOTE = ("diagonal approximation: errors by linear propagation; correlations between "

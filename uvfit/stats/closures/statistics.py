@@ -21,7 +21,12 @@ the Jacobian uses d arg V = Im(dV / V) and d log|V| = Re(dV / V).
 """
 import numpy as np
 
-from ..base import JoinedStatistic, Statistic, common_shift, model_visibilities_and_jacobian
+from ..base import (
+    JoinedStatistic,
+    Statistic,
+    common_shift,
+    model_visibilities_and_jacobian,
+)
 from ..visibility import AmplitudeStatistic
 from .build import DEFAULT_SNR_CUT, build_closures, no_closure_error
 from .covariance import COVARIANCE_NOTE, check_covariance, whitening

@@ -8,8 +8,8 @@ def closure_table(result, vset=None):
     """An astropy Table of the closure quantities in ``result`` (from :func:`check_closures`):
     kind, time (MJD), frequency (Hz), channel, stations, value, sigma, model (NaN without a
     model), unit (deg for closure phases, empty for natural-log closure amplitudes)."""
-    from astropy.table import Table, vstack
     import astropy.units as un
+    from astropy.table import Table, vstack
 
     cs = result["closures"]
     models = result.get("model_values") or {}

@@ -7,7 +7,7 @@ import uvfit
 from uvfit.data.select import apply_selection
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel
-from uvfit.stats.closures_build import build_closures
+from uvfit.stats.closures.build import build_closures
 from uvfit.stats.modes import make_statistic
 
 DATA = REAL_DATA

@@ -10,7 +10,7 @@ from scipy import stats
 from tests.helpers.closure_tools import make_vset
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel
-from uvfit.stats.closures_build import build_closures, reference_amplitudes, rice_errors
+from uvfit.stats.closures.build import build_closures, reference_amplitudes, rice_errors
 from uvfit.stats.modes import make_statistic
 
 RATIO, SEP = 0.3, 15.0  # flux ratio, separation (uas) of the injected double

@@ -8,8 +8,8 @@ from hypothesis import given, settings, strategies as st
 
 from uvfit.data.visset import VisibilitySet
 from uvfit.errors import DataError
-from uvfit.stats.closure import check_closures, ClosurePhaseStatistic, ClosureStatistic
-from uvfit.stats.closures_build import build_closures
+from uvfit.stats.closures import check_closures, ClosurePhaseStatistic, ClosureStatistic
+from uvfit.stats.closures.build import build_closures
 
 
 def snapshot_set(n_stations, n_times=1, seed=0, swap=0.5, sigma=0.05):
@@ -203,7 +203,7 @@ def test_missing_baseline_keeps_every_independent_closure(n):
 
 
 def test_three_stations_give_phases_but_no_amplitudes():
-    from uvfit.stats.closure import LogClosureAmplitudeStatistic
+    from uvfit.stats.closures import LogClosureAmplitudeStatistic
     vs = snapshot_set(3, n_times=4, seed=1)
     with pytest.raises(DataError, match="four"):
         LogClosureAmplitudeStatistic(vs, None)

@@ -12,6 +12,7 @@ from scipy import stats
 from tests.helpers import show_sim
 from uvfit.errors import UvfitError
 from uvfit.show import plots, style
+from uvfit.show.corner import corner_plot
 from uvfit.show.inputs import fit_view
 from uvfit.show.sky import sky_figure
 
@@ -175,14 +176,14 @@ def test_sky_plot_ellipse_and_point_outlines():
 def test_corner_plot_quantiles():
     rng = np.random.default_rng(4)
     samples = rng.normal(size=(20000, 2)) * [1.0, 3.0] + [0.0, 5.0]
-    fig, d = plots.corner_plot(samples, ["a.flux", "a.fwhm"], ["Jy", "uas"])
+    fig, d = corner_plot(samples, ["a.flux", "a.fwhm"], ["Jy", "uas"])
     style.close(fig)
     # 16th and 84th percentiles of a normal: mean -+ 0.9945 sigma (scipy.stats.norm)
     z = stats.norm.ppf(0.84)
     np.testing.assert_allclose(d["upper"] - d["median"], [z, 3 * z], rtol=0.05)
     np.testing.assert_allclose(d["median"], [0.0, 5.0], atol=0.06)
     with pytest.raises(UvfitError):
-        plots.corner_plot(samples, ["only one"])
+        corner_plot(samples, ["only one"])
 
 
 def test_png_is_reproducible_and_valid(noiseless, tmp_path):

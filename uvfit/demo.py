@@ -12,7 +12,7 @@ seeded, by the simulation layer). The demo, in order:
    parametric bootstrap (``uvfit.infer.compare``);
 4. samples the posterior of the double (``uvfit.infer.sampling``, emcee);
 5. checks the double against the closure phases and log closure amplitudes
-   (``uvfit.stats.closure``), which station-based calibration errors cannot change;
+   (``uvfit.stats.closures``), which station-based calibration errors cannot change;
 6. draws the figures and writes the one-file HTML report (``uvfit.show``);
 7. says where everything is and gives the answer in one line (the "headline").
 
@@ -202,9 +202,10 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     from .infer.sampling import sample
     from .outputs import atomic_write, atomic_write_with, write_json
     from .show import inputs, plots, style
+    from .show.corner import write_corner_plot
     from .show.report import build_report
     from .show.sky import sky_figure
-    from .stats.closure import check_closures, closure_table, json_summary
+    from .stats.closures import check_closures, closure_table, json_summary
 
     def path(key):
         return os.path.join(out_dir, OUTPUTS[key])
@@ -276,7 +277,7 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     posterior = post.to_dict()
     posterior["selection"] = {}
     write_json(path("posterior"), posterior, force=force)
-    post.corner_plot(path("corner"), force=force)
+    write_corner_plot(post, path("corner"), force=force)
     posterior = _roundtrip(posterior)
 
     # 5. the closure check of the fitted double

@@ -99,7 +99,7 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
     baseline-based errors, and cannot fix the absolute position or the total flux.
     """
     from ..outputs import atomic_write_with, check_writable, write_json
-    from ..stats.closure import check_closures, closure_table, json_summary
+    from ..stats.closures import check_closures, closure_table, json_summary
 
     for out in (json_out, table_out):
         if out:

@@ -51,6 +51,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     from .. import load_model
     from ..infer.sampling import check_chain_file, sample
     from ..outputs import check_writable, write_json
+    from ..show.corner import write_corner_plot
 
     selection = pop_selection(kwargs)
     if procs < 1:
@@ -92,5 +93,5 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
         write_json(json_path, out, force=force)
         click.echo(f"wrote {json_path}", err=True)
     if corner_path is not None:
-        post.corner_plot(corner_path, force=force)
+        write_corner_plot(post, corner_path, force=force)
         click.echo(f"wrote {corner_path}", err=True)

@@ -15,8 +15,9 @@ import numpy as np
 
 from .. import __version__
 from ..errors import FitError, UvfitError
+from ..stats.base import effective_sigma
 from ..stats.modes import make_statistic
-from .lsq import fit, rebuild_statistic
+from .lsq import fit
 
 FAMILY_CAUTION = ("This holds for these model families only: a model outside them may describe the "
                   "data better, and calibration errors can mimic structure (check `uvfit closures`).")
@@ -30,7 +31,7 @@ def _fit_model(vset, model, mode, systematic, starts, seed):
 def _refit_on(result, vset_sim, seed, starts):
     """chi2 of a refit of a fitted model on simulated rows (systematic 0: the simulated sigmas
     include it), starting from its best fit."""
-    stat = rebuild_statistic(result.statistic, result.model.copy(), vset=vset_sim, systematic=0.0)
+    stat = result.statistic.rebuilt(result.model.copy(), vset=vset_sim, systematic=0.0)
     try:
         res = fit(stat, starts=starts, seed=seed, strict=False)
     except FitError:
@@ -77,7 +78,7 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     if bootstrap > 0 and richer:
         sim_stat = s_res.statistic
         vs = sim_stat.vset
-        sigma = np.sqrt(vs.sigma ** 2 + (float(systematic) * np.abs(vs.vis)) ** 2)
+        sigma = effective_sigma(vs.sigma, np.abs(vs.vis), systematic)
         truth = np.asarray(s_res.model.visibilities(vs.u, vs.v, frequency=vs.frequency), complex)
         obs = {i: rows[i]["likelihood_ratio"] for i in richer}
         exceed = {i: 0 for i in richer}

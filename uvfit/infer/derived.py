@@ -72,9 +72,15 @@ def _tb(model, member, frequency, redshift, size=None):
 
 
 def quantities_at(model, theta, frequency, redshift=0.0):
-    """{key: value} of every derived quantity at theta, and {key: unit}, {key: extra info}.
+    """The derived quantities of ``model`` at one free-parameter vector ``theta``.
 
-    The periods of the quantities that live on a circle are given by :func:`derived_periods`."""
+    Returns three dicts over the same keys: values, units and extra information (the parameter
+    behind each size). Keys: ``A-B.separation``, ``A-B.position_angle`` (deg, east of north) and
+    ``A-B.flux_ratio`` (B / A) for every pair of members, ``A.size`` (and ``A.axis_ratio``,
+    ``A.position_angle`` for elliptical members) and ``A.brightness_temperature`` (K, when the
+    frequency is known). One vector per call: the sampler and the forecast loop over theirs.
+    The periods of the quantities that live on a circle are given by :func:`derived_periods`.
+    """
     unit = model.angular_unit_text
     members = model.members(theta=theta, frequency=frequency)
     out, units, info = {}, {}, {}
@@ -209,7 +215,7 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
 
 def _refit_chi2(result, fix):
     """chi2 of a refit from the best fit with the parameters in ``fix`` ({name: value}) fixed."""
-    from .lsq import fit, rebuild_statistic
+    from .lsq import fit
     from ..errors import FitError
 
     model = result.model.copy()
@@ -221,9 +227,9 @@ def _refit_chi2(result, fix):
         p.fixed = True
         p.tie = None
     if not model.free_names:
-        stat = rebuild_statistic(result.statistic, model)
+        stat = result.statistic.rebuilt(model)
         return stat.chi2(np.zeros(0))
-    stat = rebuild_statistic(result.statistic, model)
+    stat = result.statistic.rebuilt(model)
     try:
         res = fit(stat, starts=1, seed=result.seed, strict=False)
     except FitError:

@@ -314,20 +314,6 @@ def residual_breakdown(statistic, residuals):
     return per_station, per_baseline
 
 
-def rebuild_statistic(statistic, model, vset=None, systematic=None):
-    """The same statistic (mode, options) on another model (or the same model after its free set
-    changed), optionally on other rows ``vset`` and with another ``systematic``."""
-    from ..stats.base import CombinedStatistic
-
-    vset = statistic.vset if vset is None else vset
-    systematic = getattr(statistic, "systematic", 0.0) if systematic is None else systematic
-    if type(statistic) is CombinedStatistic:
-        return CombinedStatistic([rebuild_statistic(p, model, vset, systematic) for p in statistic.parts],
-                                 statistic.mode)
-    return type(statistic)(vset, model, systematic=systematic,
-                           **dict(getattr(statistic, "options", {}) or {}))
-
-
 def fix_degeneracies(statistic):
     """Fix, in the statistic's model, every parameter the statistic says it cannot constrain.
 
@@ -348,7 +334,7 @@ def fix_degeneracies(statistic):
         fixed.append(name)
         notices.append(f"{name} fixed at {p.value:g}: {reason}")
     if fixed:
-        statistic = rebuild_statistic(statistic, model)
+        statistic = statistic.rebuilt(model)
     return statistic, fixed, notices
 
 
@@ -403,7 +389,7 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
     ``strict``: raise FitError when no start converged (False: return the best anyway).
     """
     if model is not None and model is not statistic.model:
-        statistic = rebuild_statistic(statistic, model)
+        statistic = statistic.rebuilt(model)
     model = statistic.model
     if int(starts) < 1:
         raise UvfitError(f"--starts must be at least 1 (got {starts})")

@@ -77,45 +77,12 @@ def chain_settings(posterior):
     return int(discard), max(1, int(thin))
 
 
-def _chain_group(path):
-    """The HDF5 group holding the emcee chain: the sampler's own, else the first that has one."""
-    import h5py
-
-    try:
-        from ..infer.sampling import CHAIN_GROUP
-    except ImportError:
-        CHAIN_GROUP = "mcmc"
-    try:
-        with h5py.File(path, "r") as handle:
-            if CHAIN_GROUP in handle:
-                return CHAIN_GROUP
-            for name in sorted(handle):
-                if isinstance(handle[name], h5py.Group) and "chain" in handle[name]:
-                    return name
-    except OSError as exc:
-        raise UvfitError(f"chain file {path} is not an HDF5 file ({exc})",
-                         "give the HDF5 chain written by 'uvfit sample'") from None
-    raise UvfitError(f"chain file {path} holds no sampler chain",
-                     "give the HDF5 chain written by 'uvfit sample'")
-
-
 def read_chain(path, discard=0, thin=1):
-    """Flat posterior samples (n, n_parameters) from an emcee HDF5 backend file."""
-    path = os.fspath(path)
-    if not os.path.isfile(path):
-        raise UvfitError(f"chain file {path} does not exist", "check the path")
-    import emcee
+    """Flat posterior samples (n, n_parameters) from a chain file (see
+    :func:`uvfit.infer.sampling.chainfile.read_chain`)."""
+    from ..infer.sampling.chainfile import read_chain as read_chain_file
 
-    try:
-        backend = emcee.backends.HDFBackend(path, name=_chain_group(path), read_only=True)
-        samples = backend.get_chain(discard=int(discard), thin=int(thin), flat=True)
-    except (OSError, KeyError, AttributeError, ValueError) as exc:
-        raise UvfitError(f"chain file {path} is not a readable sampler chain ({exc})",
-                         "give the HDF5 chain written by 'uvfit sample'") from None
-    if samples is None or samples.size == 0:
-        raise UvfitError(f"chain file {path} has no samples left after discarding {discard} steps",
-                         "check the chain, or the discard recorded in the posterior JSON")
-    return np.asarray(samples)
+    return read_chain_file(path, discard=discard, thin=thin)
 
 
 # --------------------------------------------------------------------------- the model

@@ -9,7 +9,6 @@ Orientation (see README, "Conventions"): l (relative right ascension) increases 
 (relative declination) to the north. Sky images and (u, v) coverage are drawn with east to the
 LEFT, as the sky is seen, so the u axis increases to the left too (common practice).
 """
-import matplotlib
 import numpy as np
 from matplotlib.patches import Circle, Ellipse
 
@@ -198,7 +197,7 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
 def closure_phase_series(vset, model_vis, systematic=0.0, snr_cut=None):
     """Closure phases of every triangle at every time (and channel), data and model.
 
-    Built by the closure layer (:func:`uvfit.stats.closure.build_closures`) with its full
+    Built by the closure layer (:func:`uvfit.stats.closures.build_closures`) with its full
     (redundant) set, so that every triangle can be drawn; the statistics use the non-redundant set.
     Closure phase on stations (a, b, c): arg(V_ab V_bc V_ca), unchanged by any station-based phase
     error; its error sqrt(sum_k (sigma_k / |V_k|)^2) radians at high SNR (Chael et al. 2018,
@@ -210,7 +209,7 @@ def closure_phase_series(vset, model_vis, systematic=0.0, snr_cut=None):
     (the shortest of the three baselines, wavelengths); and ``longest_uv``, the longest baseline
     of the set (a number).
     """
-    from ..stats.closure import DEFAULT_SNR_CUT, build_closures
+    from ..stats.closures import DEFAULT_SNR_CUT, build_closures
 
     model_vis = _check_lengths(vset, model_vis)
     cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
@@ -403,38 +402,3 @@ def nominal_resolution(vset):
     if q.size == 0 or q.max() <= 0:
         return float("nan")
     return 1.0 / float(q.max())
-
-
-# --------------------------------------------------------------------------- posterior
-
-
-def corner_plot(samples, names, units=None, truths=None, title=None):
-    """Corner plot of posterior samples (n_samples, n_parameters), with 16/50/84 % quantiles.
-
-    Returns (fig, numbers): ``names``, ``n_samples``, ``median``, ``lower``, ``upper`` (16th and
-    84th percentiles) per parameter.
-    """
-    import corner
-
-    samples = np.asarray(samples, float)
-    if samples.ndim != 2 or samples.shape[0] < 2:
-        raise UvfitError("the chain has too few samples for a corner plot",
-                         "sample longer, or discard fewer steps")
-    if samples.shape[1] != len(names):
-        raise UvfitError(f"the chain has {samples.shape[1]} parameters but {len(names)} names")
-    units = [style.angle_label(u) if u else "" for u in (units or [""] * len(names))]
-    labels = [f"{n}\n({u})" if u else n for n, u in zip(names, units)]
-    size = max(6.0, 1.9 * len(names))
-    fig, _ = style.new_figure(len(names), len(names), figsize=(size, size), grid=False)
-    with style.style(), matplotlib.rc_context({"axes.grid": False}):
-        corner.corner(samples, labels=labels, titles=list(names), fig=fig,
-                      quantiles=[0.16, 0.5, 0.84], show_titles=True, title_fmt=".3g",
-                      color=DATA_COLOUR, hist_kwargs={"color": DATA_COLOUR}, truths=truths,
-                      truth_color=MODEL_COLOUR, label_kwargs={"fontsize": 9},
-                      title_kwargs={"fontsize": 9})
-        if title:
-            fig.subplots_adjust(top=0.92)
-            fig.suptitle(title)
-    q = np.percentile(samples, [16, 50, 84], axis=0)
-    return fig, {"names": list(names), "n_samples": int(samples.shape[0]),
-                 "lower": q[0], "median": q[1], "upper": q[2]}

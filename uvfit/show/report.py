@@ -13,6 +13,7 @@ import numpy as np
 from .. import __version__
 from ..errors import UvfitError
 from . import plots, style
+from .corner import corner_plot
 from .sky import sky_figure
 
 CAUTIONS = [
@@ -352,7 +353,7 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
     out.append(("sky", "The fitted model on the sky (east to the left) with each component's "
                 "outline and the nominal resolution λ/B_max for scale.", fig))
     if chain is not None:
-        fig, _ = plots.corner_plot(chain, chain_names, chain_units)
+        fig, _ = corner_plot(chain, chain_names, chain_units)
         out.append(("corner", "Posterior samples of the free parameters (16, 50, 84 % quantiles "
                     "marked).", fig))
     return out
@@ -427,7 +428,7 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
 def run_closure_check(view):
     """The closure check of the fitted model on the data (a dict), or a sentence saying why not."""
     try:
-        from ..stats.closure import check_closures
+        from ..stats.closures import check_closures
     except ImportError:
         return "The closure check is not available in this installation."
     try:

@@ -11,13 +11,13 @@ MODES = {
                 "real and imaginary parts of the calibrated visibilities"),
     "amplitude": ("uvfit.stats.visibility", "AmplitudeStatistic",
                   "visibility amplitudes only (absolute position unconstrained)"),
-    "closure_phase": ("uvfit.stats.closure", "ClosurePhaseStatistic",
+    "closure_phase": ("uvfit.stats.closures.statistics", "ClosurePhaseStatistic",
                       "closure phases only (absolute position and flux unconstrained)"),
-    "closure_amplitude": ("uvfit.stats.closure", "LogClosureAmplitudeStatistic",
+    "closure_amplitude": ("uvfit.stats.closures.statistics", "LogClosureAmplitudeStatistic",
                           "log closure amplitudes only (total flux and position unconstrained)"),
-    "closure": ("uvfit.stats.closure", "ClosureStatistic",
+    "closure": ("uvfit.stats.closures.statistics", "ClosureStatistic",
                 "closure phases and log closure amplitudes (immune to station gains)"),
-    "hybrid": ("uvfit.stats.closure", "HybridStatistic",
+    "hybrid": ("uvfit.stats.closures.statistics", "HybridStatistic",
                "visibility amplitudes and closure phases (immune to station phase errors)"),
 }
 

@@ -31,31 +31,14 @@ Amplitude mode
 import numpy as np
 from scipy.special import i0e, i1e
 
-from .base import Statistic
+from .base import (
+    Statistic,
+    common_shift,
+    effective_sigma,
+    model_visibilities_and_jacobian,
+)
 
 _SQRT_HALF_PI = np.sqrt(np.pi / 2.0)
-
-
-def _model_vis_and_jac(model, rows, theta):
-    """(V, dV/dtheta) of the model on the good rows, with the fastest call the model offers."""
-    both = getattr(model, "visibilities_and_jacobian", None)
-    if both is not None:
-        vis, jac = both(rows.u, rows.v, frequency=rows.frequency, theta=theta)
-    else:
-        vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
-        jac = model.jacobian(rows.u, rows.v, frequency=rows.frequency, theta=theta)
-    vis = np.asarray(vis, dtype=complex).reshape(-1)
-    jac = np.asarray(jac, dtype=complex).reshape(vis.size, -1)
-    return vis, jac
-
-
-def effective_sigma(vset, systematic=0.0):
-    """sqrt(sigma^2 + (f |V|)^2) per row (common practice)."""
-    f = float(systematic)
-    if f < 0:
-        from ..errors import UvfitError
-        raise UvfitError(f"the systematic floor must be >= 0 (got {f})", "pass e.g. --systematic 0.02")
-    return np.sqrt(vset.sigma ** 2 + (f * np.abs(vset.vis)) ** 2)
 
 
 def free_translation(model):
@@ -63,22 +46,11 @@ def free_translation(model):
 
     A shift of every component together changes no amplitude and no closure quantity. It is free
     along east (north) when no component has its east (north) fixed; then the east (north) of the
-    first component whose position is free is returned, to be held fixed. When some component's
-    position is fixed, the absolute position is anchored already and nothing is returned.
+    first component whose position is free is returned, to be held fixed (:func:`common_shift`).
+    When some component's position is fixed, the absolute position is anchored already and
+    nothing is returned.
     """
-    params = model.parameters
-    out = []
-    for axis in (0, 1):
-        names = [pair[axis] for pair in model.position_names().values()]
-        if not names or any(params[n].fixed for n in names):
-            continue
-        free = [n for n in names if params[n].tie is None]
-        if free:
-            out.append(free[0])
-    return out
-
-
-first_free_position = free_translation
+    return [name for name in (common_shift(model, axis) for axis in ("east", "north")) if name]
 
 
 class _Rows:
@@ -91,6 +63,10 @@ class _Rows:
         self.vis, self.sigma = good.vis, good.sigma
         self.n = good.n
         self.set = good
+
+
+def _model_vis_and_jac(model, rows, theta):
+    return model_visibilities_and_jacobian(model, rows.u, rows.v, rows.frequency, theta)
 
 
 def _model_vis(model, rows, theta):
@@ -107,7 +83,7 @@ class ComplexStatistic(Statistic):
         super().__init__(vset, model, systematic, **options)
         self.rows = rows = _Rows(vset)
         self.data = np.concatenate([rows.vis.real, rows.vis.imag])
-        s = effective_sigma(rows, self.systematic)
+        s = effective_sigma(rows.sigma, np.abs(rows.vis), self.systematic)
         self.sigma = np.concatenate([s, s])
         #: the row of ``vset`` behind each datum (two data per row)
         self.row_index = np.concatenate([rows.index, rows.index])
@@ -194,7 +170,7 @@ class AmplitudeStatistic(Statistic):
         self.debias_snr = float(debias_snr)
         amp = np.abs(rows.vis)
         self.amplitude = amp
-        self.sigma = effective_sigma(rows, self.systematic)
+        self.sigma = effective_sigma(rows.sigma, np.abs(rows.vis), self.systematic)
         self.noise_sigma = self.sigma.copy()  # per real/imaginary part, for the Rice law
         # class and weight every row by the model's amplitude at its current values (not by the
         # data, which would select rows by their noise)

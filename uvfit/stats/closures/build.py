@@ -59,8 +59,8 @@ independent closure phases and N(N-3)/2 independent closure amplitudes (TMS 2017
   independent set of maximal size with the smallest summed error).
 The rank is that of the design matrix (closures x baselines, entries the signs). The SNRs and
 errors behind these choices are those of the reference amplitudes. The errors of the members of a
-set are still correlated where they share a baseline (see ``uvfit.stats.closure`` for the
-snapshot covariance).
+set are still correlated where they share a baseline (see :mod:`uvfit.stats.closures.covariance`
+for the snapshot covariance, the default of the statistics on this set).
 
 Full set (``full=True``): every triangle, and for every set of four stations all three closure
 amplitudes that can be formed. It is redundant (its members are linear combinations of one another)
@@ -72,15 +72,11 @@ from itertools import combinations
 
 import numpy as np
 
-from ..errors import DataError
+from ...errors import DataError
+from ..base import effective_sigma
 
 #: default SNR cut on the contributing visibilities (thermal SNR |V| / sigma)
 DEFAULT_SNR_CUT = 3.0
-
-#: words used in outputs for the error model of the closure set
-COVARIANCE_NOTE = ("diagonal approximation: errors by linear propagation; correlations between "
-                   "closures that share a baseline are ignored")
-
 
 @dataclass
 class ClosureSet:
@@ -422,7 +418,7 @@ def build_closures(vset, snr_cut=DEFAULT_SNR_CUT, systematic=0.0, full=False, ki
     used_reference = "neighbours" if np.any(from_neighbours) else "measured"
     with np.errstate(divide="ignore", invalid="ignore"):
         snr = np.where(vset.sigma > 0, amp / vset.sigma, 0.0)
-        sig_eff = np.sqrt(vset.sigma ** 2 + (systematic * amp) ** 2)
+        sig_eff = effective_sigma(vset.sigma, amp, systematic)
         rel = sig_eff / amp  # sigma / |V| of every row (radians of phase, or of log amplitude)
     # errors of arg V and log|V| per row: the Rice law at the reference SNR where the reference
     # comes from the neighbours, the linear sigma/|V| where it is the row's own amplitude

@@ -34,6 +34,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import FitError, UvfitError
+from ..labels import unit_text as _unit_text
 
 #: defaults of the stopping rule (see the module docstring)
 CHECK_EVERY = 100
@@ -462,10 +463,6 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
 
 
 # --------------------------------------------------------------------------- the posterior
-def _unit_text(param):
-    unit = getattr(param, "unit", None)
-    text = "" if unit is None else str(unit)
-    return "" if text in ("", "dimensionless") else text
 
 
 def _parameter_period(model, name):

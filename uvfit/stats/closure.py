@@ -21,6 +21,7 @@ the Jacobian uses d arg V = Im(dV / V) and d log|V| = Re(dV / V).
 import numpy as np
 
 from ..errors import UvfitError
+from ..labels import CLOSURE_CAUTION
 from .base import Statistic
 from .closures_build import (COVARIANCE_NOTE, DEFAULT_SNR_CUT, ClosureSet, build_closures,
                              no_closure_error)
@@ -28,13 +29,6 @@ from .closures_build import (COVARIANCE_NOTE, DEFAULT_SNR_CUT, ClosureSet, build
 __all__ = ["ClosurePhaseStatistic", "LogClosureAmplitudeStatistic", "ClosureStatistic",
            "HybridStatistic", "check_closures", "closure_table", "build_closures", "ClosureSet",
            "DEFAULT_SNR_CUT", "COVARIANCE_NOTE", "CLOSURE_CAUTION"]
-
-#: the caution every closure result carries
-CLOSURE_CAUTION = ("Closure quantities are immune to station-based gain errors but not to "
-                   "baseline-based errors (e.g. bandpass or polarisation leakage that differ per "
-                   "baseline), and they cannot fix the absolute position or the total flux of the "
-                   "model. A good closure fit supports the model family fitted; it does not exclude "
-                   "other structure the model cannot represent.")
 
 
 # ---------------------------------------------------------------------------- degeneracies

@@ -12,7 +12,7 @@ from scipy import stats
 import show_sim
 from uvfit.errors import UvfitError
 from uvfit.show import plots, style
-from uvfit.show.inputs import fit_view
+from uvfit.show.readback import fit_view
 from uvfit.show.sky import sky_figure
 
 

@@ -13,7 +13,7 @@ from tests.helpers import show_sim
 from uvfit.errors import UvfitError
 from uvfit.show import plots, style
 from uvfit.show.corner import corner_plot
-from uvfit.show.inputs import fit_view
+from uvfit.show.readback import fit_view
 from uvfit.show.sky import sky_figure
 
 

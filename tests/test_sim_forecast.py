@@ -9,7 +9,7 @@ import uvfit
 from uvfit.sim.array import load_array
 from uvfit.sim.forecast import forecast
 from uvfit.sim.observe import Observation
-from uvfit.sim.tracks import parse_time
+from uvfit.data.select import parse_time
 
 HERE = os.path.join(os.path.dirname(__file__), "..", "examples", "planning")
 

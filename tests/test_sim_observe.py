@@ -7,7 +7,7 @@ from tests.helpers.invented import component, model_toml
 import uvfit
 from uvfit.sim.array import parse_array
 from uvfit.sim.observe import Observation, simulate, write_simulation
-from uvfit.sim.tracks import parse_time
+from uvfit.data.select import parse_time
 
 C = 299792458.0
 

@@ -26,6 +26,8 @@ from importlib import resources
 import numpy as np
 
 from .errors import UvfitError
+from .labels import DEMO_CAUTION
+from .show import text as show_text
 
 #: the files shipped in uvfit/demo_data
 DATA_FILE = "uvd0917.uvfits"
@@ -54,6 +56,8 @@ OUTPUTS = {
     "corner": "corner.png",
     "headline": "headline.json",
 }
+#: the output of each figure of uvfit.show.figures.KINDS
+FIGURE_OUTPUTS = {"radial": "radial", "uv": "uv", "closure": "closure_plot", "sky": "sky"}
 
 
 def demo_file(name):
@@ -69,15 +73,15 @@ def check_out_dir(out_dir, force=False):
     """Refuse an existing, non-empty folder unless ``force``; create the folder if needed."""
     out_dir = os.fspath(out_dir)
     if os.path.exists(out_dir) and not os.path.isdir(out_dir):
-        raise UvfitError(f"{out_dir} exists and is not a folder", "give a new folder with --out")
+        raise UvfitError(f"{out_dir} exists and is not a folder", "give a new folder as out_dir")
     if os.path.isdir(out_dir) and os.listdir(out_dir) and not force:
         raise UvfitError(f"the output folder {out_dir} exists already and is not empty",
-                         "give a new folder with --out DIR, or pass --force to overwrite the "
+                         "give a new folder as out_dir, or pass force to overwrite the "
                          "demo's files in it")
     parent = os.path.dirname(os.path.abspath(out_dir))
     if not os.path.isdir(parent):
         raise UvfitError(f"the folder {parent} for the demo's output folder does not exist",
-                         "create it first, or give another --out")
+                         "create it first, or give another out_dir")
     os.makedirs(out_dir, exist_ok=True)
     return out_dir
 
@@ -182,9 +186,9 @@ def run_demo(out_dir, seed=0, bootstrap=DEFAULT_BOOTSTRAP, force=False,
     from ._blas import single_threaded
 
     if int(bootstrap) < 0:
-        raise UvfitError(f"--bootstrap must be >= 0 (got {bootstrap})")
+        raise UvfitError(f"bootstrap must be >= 0 (got {bootstrap})")
     if int(max_steps) < 1:
-        raise UvfitError(f"the chain needs at least one step (got {max_steps})")
+        raise UvfitError(f"max_steps must be at least 1 (got {max_steps})")
     out_dir = check_out_dir(out_dir, force)
     bar = progressbar or _NoBar
     with single_threaded():
@@ -192,20 +196,12 @@ def run_demo(out_dir, seed=0, bootstrap=DEFAULT_BOOTSTRAP, force=False,
 
 
 def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
-    from . import load_model, read
-    from .commands.closures import render as render_closures
-    from .commands.compare import print_compare
-    from .commands.fit import print_fit
-    from .commands.info import render as render_info, summarise
-    from .infer.compare import compare
-    from .infer.run import run_fit
-    from .infer.sampling import sample
+    from . import tasks
     from .outputs import atomic_write, atomic_write_with, write_json
-    from .show import inputs, plots, style
-    from .show.corner import write_corner_plot
+    from .show import readback, style
+    from .show.figures import KINDS, make_figure
     from .show.report import build_report
-    from .show.sky import sky_figure
-    from .stats.closures import check_closures, closure_table, json_summary
+    from .show.corner import write_corner_plot
 
     def path(key):
         return os.path.join(out_dir, OUTPUTS[key])
@@ -229,35 +225,31 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
 
     # 1. the data
     step(f"1. the data ({DATA_FILE}; uvfit info)")
-    vset = read(data_path).good()
-    summary = summarise(vset)
-    summary["path"] = data_path
-    echo(render_info(summary))
-    write_json(path("info"), summary, force=force)
+    vset, _ = tasks.load_data(data_path)
+    described = tasks.info(vset, data_path=data_path)
+    echo(described.text())
+    write_json(path("info"), described.to_dict(), force=force)
 
     # 2. two least-squares fits
-    models = {key: load_model(p) for key, p in model_paths.items()}
     fits = {}
     for key, label in (("one", "one component: a circular Gaussian"),
                        ("two", "two components: a double of points")):
         step(f"2{'ab'[key == 'two']}. least-squares fit, {label} ({MODEL_FILES[key]}; uvfit fit)")
-        out = run_fit(vset, models[key], mode=MODE, seed=seed, data_path=data_path, selection={})
-        out["model_file"] = model_paths[key]
+        out = tasks.fit(vset, model_paths[key], mode=MODE, seed=seed, data_path=data_path,
+                        selection={}).to_dict()
         write_json(path(f"fit_{key}"), out, force=force)
         fits[key] = _roundtrip(out)
-        print_fit(fits[key], echo=echo)
+        echo(show_text.fit_text(fits[key]))
 
     # 3. one or two? the bootstrap false-alarm probability
     step(f"3. one or two components? ({bootstrap} bootstrap simulations; uvfit compare)")
     with bar(length=max(bootstrap, 1), label="bootstrap") as b:
-        cmp = compare(vset, [models["one"], models["two"]], mode=MODE, bootstrap=bootstrap,
-                      seed=seed, progress=b.update, names=["one", "two"])
-    cmp["data"] = data_path
-    cmp["selection"] = {}
-    cmp["model_files"] = [model_paths["one"], model_paths["two"]]
+        cmp = tasks.compare(vset, [model_paths["one"], model_paths["two"]], mode=MODE,
+                            bootstrap=bootstrap, seed=seed, progress=b.update,
+                            data_path=data_path, selection={}).to_dict()
     write_json(path("compare"), cmp, force=force)
     cmp = _roundtrip(cmp)
-    print_compare(cmp, echo=echo)
+    echo(show_text.compare_text(cmp))
 
     # 4. the posterior of the double
     step(f"4. posterior of the double (emcee, at most {max_steps} steps; uvfit sample)")
@@ -268,52 +260,41 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
             b.update(done - state["done"])
             state["done"] = done
 
-        post = sample(vset, models["two"], mode=MODE, max_steps=max_steps, seed=seed,
-                      chain_path=path("chain"), force=force, progress=progress,
-                      data_path=data_path)
-    for note in post.notes:
+        sampled = tasks.sample(vset, model_paths["two"], mode=MODE, max_steps=max_steps,
+                               seed=seed, chain=path("chain"), force=force, progress=progress,
+                               data_path=data_path, selection={})
+    for note in sampled.posterior.notes:
         echo(f"note: {note}")
-    echo(post.table())
-    posterior = post.to_dict()
-    posterior["selection"] = {}
-    write_json(path("posterior"), posterior, force=force)
-    write_corner_plot(post, path("corner"), force=force)
-    posterior = _roundtrip(posterior)
+    echo(sampled.posterior.table())
+    write_json(path("posterior"), sampled.to_dict(), force=force)
+    write_corner_plot(sampled.posterior, path("corner"), force=force)
+    posterior = _roundtrip(sampled.to_dict())
 
     # 5. the closure check of the fitted double
     step("5. closure check of the fitted double (uvfit closures)")
-    view = inputs.fit_view(vset, fits["two"], {})
-    check = check_closures(vset, view.model, systematic=float(fits["two"].get("systematic") or 0.0))
-    echo(render_closures(check))
-    closures = json_summary(check)
-    closures.update({"data": data_path, "model": path("fit_two"), "model_from": "fit result",
-                     "fit_mode": fits["two"].get("mode"), "fit_systematic": fits["two"].get("systematic"),
-                     "selection": {}})
-    write_json(path("closures"), closures, force=force)
-    table = closure_table(check)
+    checked = tasks.closures(vset, fits["two"], data_path=data_path, model_path=path("fit_two"),
+                             selection={})
+    check = checked.result
+    echo(checked.text())
+    write_json(path("closures"), checked.to_dict(), force=force)
+    table = checked.table()
     atomic_write_with(path("closure_table"), lambda p: table.write(p, format="ascii.ecsv"),
                       force=force)
 
     # 6. figures and the report
     step("6. figures and the report (uvfit plot, uvfit report)")
-    figures = [
-        ("radial", lambda: plots.radial_plot(view.vset, view.model_vis, note=view.phase_note)),
-        ("uv", lambda: plots.uv_coverage_plot(view.vset, colour_by="baseline")),
-        ("closure_plot", lambda: plots.closure_phase_plot(
-            plots.closure_phase_series(view.vset, view.model_vis, systematic=view.systematic))),
-        ("sky", lambda: sky_figure(view)),
-    ]
-    with bar(length=len(figures) + 1, label="figures and report") as b:
-        for key, make in figures:
-            fig, _ = make()
+    view = readback.fit_view(vset, fits["two"], {})
+    with bar(length=len(KINDS) + 1, label="figures and report") as b:
+        for kind in KINDS:
+            fig, _ = make_figure(kind, view)
             try:
-                style.save_png(fig, path(key), force=force)
+                style.save_png(fig, path(FIGURE_OUTPUTS[kind]), force=force)
             finally:
                 style.close(fig)
             b.update(1)
-        discard, thin = inputs.chain_settings(posterior)
-        chain = inputs.order_chain(inputs.read_chain(path("chain"), discard, thin), view.model,
-                                   posterior)
+        discard, thin = readback.chain_settings(posterior)
+        chain = readback.order_chain(readback.read_chain(path("chain"), discard, thin), view.model,
+                                     posterior)
         page = build_report(view, closure_check=check, posterior=posterior, chain=chain,
                             compare=cmp, data_name=DATA_FILE)
         atomic_write(path("report"), page, force=force)
@@ -347,8 +328,7 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
         echo(f"  {os.path.join(out_dir, name):<{width + len(out_dir) + 1}}  {described[key]}")
     echo(f"  inputs: {data_path}, {model_paths['one']}, {model_paths['two']}")
     echo("")
-    echo("Caution: the answer holds for the two model families tried, and these invented data are "
-         "perfectly calibrated; with real data check the closures and try other models.")
+    echo(DEMO_CAUTION)
     echo("")
     echo(f"answer: {text}")
     return {"headline": text, "numbers": numbers,

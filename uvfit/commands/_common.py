@@ -1,8 +1,10 @@
-"""Options and helpers shared by the commands: data selection, output files, printing."""
-import functools
+"""Options and helpers shared by the commands: data selection, output files, library errors."""
+import contextlib
+import re
 
 import click
 
+from ..data.select import SELECTION_OPTIONS
 from ..errors import UvfitError
 
 
@@ -24,27 +26,32 @@ def selection_options(func):
     return func
 
 
-_SELECTION_KEYS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels", "average")
-
-
 def pop_selection(kwargs):
     """Remove the selection options from a command's kwargs and return them as a dict."""
-    return {k: kwargs.pop(k, None) for k in _SELECTION_KEYS}
+    return {k: kwargs.pop(k, None) for k in SELECTION_OPTIONS}
 
 
-def load_data(path, selection=None, echo=True):
-    """Read a data file and apply the selection options; returns the VisibilitySet of good rows."""
-    from .. import read
-    from ..data.select import apply_selection
+def echo_notes(notes, prefix=""):
+    """Print a task's notes (selection messages) to stderr."""
+    for note in notes:
+        click.echo(f"{prefix}{note}", err=True)
 
-    vset = read(path)
-    selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "")}
-    if selection:
-        vset, notes = apply_selection(vset, **selection)
-        if echo:
-            for note in notes:
-                click.echo(note, err=True)
-    return vset.good()
+
+@contextlib.contextmanager
+def as_options(**names):
+    """Re-word the library's errors for the command line: each parameter name given (a keyword)
+    becomes its option (the value), e.g. ``as_options(max_evaluations="--max-evaluations")``."""
+    try:
+        yield
+    except UvfitError as exc:
+        message, hint = exc.message, exc.hint
+        for name, option in names.items():
+            pattern = re.compile(rf"(?<![\w-]){re.escape(name)}(?!\w)")
+            message = pattern.sub(option, message)
+            hint = None if hint is None else pattern.sub(option, hint)
+        if message == exc.message and hint == exc.hint:
+            raise
+        raise type(exc)(message, hint) from None
 
 
 def force_option(func):
@@ -56,5 +63,7 @@ def seed_option(func):
                         help="Seed of every random step; recorded in the outputs.")(func)
 
 
-def fail(message, hint=None):
-    raise UvfitError(message, hint)
+def progressbar(length, label, **options):
+    """A click progress bar on stderr."""
+    return click.progressbar(length=length, label=label, file=click.get_text_stream("stderr"),
+                             **options)

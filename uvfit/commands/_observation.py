@@ -1,8 +1,6 @@
 """Options shared by the commands that simulate observations (simulate, forecast)."""
 import click
 
-from ..errors import UvfitError
-
 _KEYS = ("ra", "dec", "start", "duration", "integration", "frequency", "bandwidth", "channels",
          "scan_length", "gain_error", "phase_error", "systematic", "source")
 
@@ -34,32 +32,21 @@ def observation_options(func):
 
 
 def pop_observation(kwargs):
-    """Remove the observation options from kwargs; return (Observation, corruption dict)."""
-    from ..sim.observe import Observation
-    from ..sim.options import parse_angle, parse_duration, parse_frequency
-    from ..sim.tracks import parse_time
+    """Remove the observation options from kwargs; return (Observation, corruption keywords of
+    the simulate and forecast tasks)."""
+    from ..tasks import observation
 
     o = {k: kwargs.pop(k) for k in _KEYS}
     if _is_number(o["ra"]):
         # a bare number is taken as degrees; say so, since hours are common for RA
         click.echo(f"note: --ra {o['ra']} read as degrees", err=True)
-    ra = parse_angle(o["ra"], "right ascension", colon_unit="hourangle")
-    dec = parse_angle(o["dec"], "declination", colon_unit="deg")
-    if not -90 <= dec <= 90:
-        raise UvfitError(f"the declination {o['dec']} is outside -90..+90 degrees")
-    obs = Observation(
-        ra_deg=ra % 360.0, dec_deg=dec, start=parse_time(o["start"]),
-        duration_s=parse_duration(o["duration"], "duration"),
-        integration_s=parse_duration(o["integration"], "integration time"),
-        frequency_hz=parse_frequency(o["frequency"], "frequency"),
-        bandwidth_hz=parse_frequency(o["bandwidth"], "bandwidth"),
-        channels=o["channels"], scan_length_s=parse_duration(o["scan_length"], "scan length"),
-        source=o["source"])
-    corruption = {"gain_error": o["gain_error"], "phase_error_deg": o["phase_error"],
+    obs = observation(o["ra"], o["dec"], o["start"], o["duration"], o["frequency"],
+                      integration=o["integration"], bandwidth=o["bandwidth"],
+                      channels=o["channels"], scan_length=o["scan_length"], source=o["source"])
+    corruption = {"gain_error": o["gain_error"], "phase_error": o["phase_error"],
                   "systematic": o["systematic"]}
     from ..sim.noise import check_corruption
-    check_corruption(**corruption)
-    obs.check()
+    check_corruption(corruption["gain_error"], corruption["phase_error"], corruption["systematic"])
     return obs, corruption
 
 

@@ -3,7 +3,7 @@ import os
 
 import click
 
-from ._common import force_option
+from ._common import force_option, progressbar
 from ..outputs import atomic_write_with
 
 
@@ -22,6 +22,7 @@ def command(manifest, scheduler, workers, output, force):
     Jobs whose JSON output exists and matches their inputs are not run again.
     """
     from ..infer.batch import load_manifest, results_table, run_batch
+    from ..show.text import batch_text
 
     jobs = load_manifest(manifest)
     if output is None:
@@ -33,21 +34,13 @@ def command(manifest, scheduler, workers, output, force):
         from ..errors import UvfitError
         raise UvfitError(f"results table {output} exists and was not written by this manifest",
                          "choose another -o, or pass --force to overwrite it")
-    with click.progressbar(length=len(jobs), label="jobs", file=click.get_text_stream("stderr")) as bar:
+    with progressbar(len(jobs), "jobs") as bar:
         rows, n_run = run_batch(jobs, scheduler=scheduler, workers=workers, progress=bar.update)
     table = results_table(rows)
     table.meta["uvfit_batch_manifest"] = os.path.abspath(manifest)
     atomic_write_with(output, lambda tmp: table.write(tmp, format="ascii.ecsv"), force=rewrite)
+    click.echo(batch_text(rows, n_run, output))
     n_failed = sum(r["status"] == "failed" for r in rows)
-    n_cached = sum(r["status"] == "cached" for r in rows)
-    click.echo(f"{len(rows)} jobs: {n_run} run, {n_cached} up to date (skipped), {n_failed} failed")
-    width = max(len(r["name"]) for r in rows)
-    for r in rows:
-        stats = (r.get("result") or {}).get("statistics") or {}
-        chi = stats.get("reduced_chi2")
-        tail = f"reduced chi2 {chi:.3f}" if isinstance(chi, (int, float)) else r["error"]
-        click.echo(f"  {r['name']:<{width}}  {r['status']:<7}  {tail}")
-    click.echo(f"results table: {output}")
     if n_failed:
         raise SystemExit(1)
 

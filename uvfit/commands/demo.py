@@ -3,7 +3,7 @@ import sys
 
 import click
 
-from ._common import seed_option
+from ._common import as_options, seed_option
 
 
 @click.command("demo")
@@ -28,10 +28,12 @@ def command(out_dir, seed, bootstrap, max_steps, force):
     figures, chain, copies of the data and model files) go into DIR; the last line printed is the
     answer. About a minute or two.
     """
-    from ..demo import run_demo
+    from ..demo import check_out_dir, run_demo
 
     def progressbar(length, label):
         return click.progressbar(length=length, label=label, file=sys.stderr)
 
+    with as_options(out_dir="--out", force="--force"):
+        check_out_dir(out_dir, force)   # the folder is checked (and made) before any work
     run_demo(out_dir, seed=seed, bootstrap=bootstrap, force=force, max_steps=max_steps,
              echo=click.echo, progressbar=progressbar)

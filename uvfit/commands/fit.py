@@ -2,62 +2,8 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import force_option, load_data, pop_selection, seed_option, selection_options
-
-
-def _fmt(value, error=None):
-    if value is None:
-        return "-"
-    if error is None:
-        return f"{value:.6g}"
-    if error != error or error == float("inf"):
-        return f"{value:.6g} ± unconstrained"
-    return f"{value:.6g} ± {error:.2g}"
-
-
-def print_fit(out, echo=click.echo):
-    """The human table of a fit result dictionary (as returned by uvfit.infer.run.run_fit)."""
-    st = out["statistics"]
-    echo(f"mode {out['mode']}, {st['n_data']} data, {st['n_free']} free parameters, "
-         f"systematic floor {out['systematic']:g}, seed {out['seed']}")
-    echo("")
-    echo(f"{'parameter':<28} {'value ± error':<30} {'unit':<6} status")
-    for name, p in out["parameters"].items():
-        status = "free" if p["free"] else (f"tied to {p['tie']}" if p.get("tie") else "fixed")
-        echo(f"{name:<28} {_fmt(p['value'], p['error'] if p['free'] or p.get('tie') else None):<30} "
-             f"{p['unit']:<6} {status}")
-    if out["derived"]:
-        echo("")
-        echo(f"{'derived quantity':<36} {'value ± error':<30} unit")
-        for key, d in out["derived"].items():
-            if d.get("alias_of"):
-                continue
-            if key.endswith(".resolved"):
-                verdict = "yes" if d.get("resolved") else ("no" if d.get("resolved") is False else "?")
-                echo(f"{key:<36} {verdict} (delta chi2 {d['delta_chi2']:.3g}, p = {d['value']:.3g})")
-                continue
-            text = _fmt(d["value"], d["error"])
-            if "upper_limit" in d:
-                text += f"  (< {d['upper_limit']:.3g})"
-            if "lower_limit" in d:
-                text += f"  (> {d['lower_limit']:.3g})"
-            echo(f"{key:<36} {text:<30} {d['unit']}")
-    echo("")
-    echo(f"chi2 {st['chi2']:.6g} for {st['dof']} degrees of freedom (reduced {st['reduced_chi2']:.4g}); "
-         f"AIC {st['aic']:.6g}, BIC {st['bic']:.6g}")
-    if out["rescale_errors"]:
-        echo(f"errors scaled by {out['error_scale']:.4g} (reduced chi2 set to 1)")
-    for label, key in (("stations", "per_station"), ("baselines", "per_baseline")):
-        table = out.get(key) or {}
-        if not table:
-            continue
-        worst = sorted(table.items(), key=lambda kv: -(kv[1]["chi2"] / max(kv[1]["n"], 1)))[:5]
-        echo(f"worst {label} (chi2 / n): " + ", ".join(
-            f"{k} {v['chi2'] / max(v['n'], 1):.3g} ({v['n']})" for k, v in worst))
-    for note in out["notices"]:
-        echo(f"notice: {note}")
-    for caution in out["cautions"]:
-        echo(f"caution: {caution}")
+from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
+                      selection_options)
 
 
 @click.command("fit")
@@ -93,35 +39,30 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     flux ratios, sizes, brightness temperatures, whether each component is resolved), the
     goodness of fit and the stations and baselines that fit worst.
     """
-    from .. import load_model
-    from ..infer.run import run_fit
-    from ..outputs import check_writable, write_json
+    from .. import tasks
+    from ..outputs import atomic_write, check_writable, write_json
 
     selection = pop_selection(kwargs)
     for path in (json_out, save_model):
         if path:
             check_writable(path, force)
-    sky = load_model(model)
-    vset = load_data(data, selection)
-    if max_evaluations is not None and max_evaluations < 1:
-        from ..errors import UvfitError
-        raise UvfitError(f"--max-evaluations must be at least 1 (got {max_evaluations})")
-    common = dict(mode=mode, systematic=systematic, rescale_errors=rescale_errors, starts=starts,
-                  seed=seed, global_search=global_search, redshift=redshift, data_path=data,
-                  selection=selection, resolved_test=not no_resolved_test,
-                  max_evaluations=max_evaluations)
+    options = dict(mode=mode, systematic=systematic, rescale_errors=rescale_errors, starts=starts,
+                   seed=seed, global_search=global_search, redshift=redshift,
+                   selection=selection, resolved_test=not no_resolved_test,
+                   max_evaluations=max_evaluations)
     total = starts + (1 if global_search else 0)
-    if total > 1:
-        with click.progressbar(length=total, label="fitting", file=click.get_text_stream("stderr")) as bar:
-            out = run_fit(vset, sky, progress=bar.update, **common)
-    else:
-        out = run_fit(vset, sky, **common)
-    out["model_file"] = str(model)
-    print_fit(out)
+    with as_options(max_evaluations="--max-evaluations"):
+        if total > 1:
+            with progressbar(total, "fitting") as bar:
+                report = tasks.fit(data, model, progress=bar.update, **options)
+        else:
+            report = tasks.fit(data, model, **options)
+    echo_notes(report.notes)
+    out = report.to_dict()
+    click.echo(report.text())
     if json_out:
         write_json(json_out, out, force=force)
         click.echo(f"wrote {json_out}", err=True)
     if save_model:
-        from ..outputs import atomic_write
         atomic_write(save_model, out["model_toml"], force=force)
         click.echo(f"wrote {save_model}", err=True)

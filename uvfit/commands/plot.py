@@ -1,18 +1,16 @@
 """uvfit plot: one figure of a fit (radial, uv, closure, sky) written as a PNG."""
 import click
 
-from ._common import force_option, pop_selection, selection_options
-
-KINDS = ("radial", "uv", "closure", "sky")
+from ..show.figures import KINDS
+from ._common import echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("plot")
 @click.argument("data", type=click.Path(dir_okay=False))
 @click.option("--fit", "fit_path", required=True, type=click.Path(dir_okay=False),
               help="Fit output written by 'uvfit fit --json'; its model is drawn.")
-@click.option("--kind", required=True, type=click.Choice(KINDS),
-              help="radial: amplitude and phase against uv distance with residuals; uv: the (u, v) "
-                   "coverage; closure: closure phases against time; sky: the model on the sky.")
+@click.option("--kind", required=True, type=click.Choice(list(KINDS)),
+              help="; ".join(f"{k}: {v}" for k, v in KINDS.items()) + ".")
 @click.option("--colour-by", type=click.Choice(["baseline", "time"]), default="baseline",
               show_default=True, help="Colouring of the (u, v) coverage.")
 @click.option("--panels", type=click.IntRange(1, 12), default=6, show_default=True,
@@ -31,26 +29,17 @@ def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, *
     left, as on the sky.
     """
     from ..outputs import check_writable, write_json
-    from ..show import plots, style
-    from ..show.inputs import open_fit_view
-    from ..show.sky import sky_figure
+    from ..show import style
+    from ..show.figures import make_figure
+    from ..show.readback import open_fit_view
 
     selection = pop_selection(kwargs)
     check_writable(out, force)
     if numbers_path:
         check_writable(numbers_path, force)
     view, notes = open_fit_view(data, fit_path, selection)
-    for note in notes:
-        click.echo(note, err=True)
-    if kind == "radial":
-        fig, numbers = plots.radial_plot(view.vset, view.model_vis, note=view.phase_note)
-    elif kind == "uv":
-        fig, numbers = plots.uv_coverage_plot(view.vset, colour_by=colour_by)
-    elif kind == "closure":
-        series = plots.closure_phase_series(view.vset, view.model_vis, systematic=view.systematic)
-        fig, numbers = plots.closure_phase_plot(series, max_panels=panels)
-    else:
-        fig, numbers = sky_figure(view)
+    echo_notes(notes)
+    fig, numbers = make_figure(kind, view, colour_by=colour_by, panels=panels)
     try:
         style.save_png(fig, out, force=force)
     finally:

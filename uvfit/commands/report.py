@@ -1,7 +1,7 @@
 """uvfit report: one self-contained HTML page of a fit, its checks, figures and cautions."""
 import click
 
-from ._common import force_option, pop_selection, selection_options
+from ._common import echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("report")
@@ -29,22 +29,21 @@ def command(data, fit_path, posterior_path, chain_path, compare_path, out, force
     import os
 
     from ..outputs import atomic_write, check_writable
-    from ..show import inputs
+    from ..show import readback
     from ..show.report import build_report, run_closure_check
 
     selection = pop_selection(kwargs)
     check_writable(out, force)
-    posterior = inputs.load_posterior(posterior_path) if posterior_path else None
-    compare = inputs.load_compare(compare_path) if compare_path else None
+    posterior = readback.load_posterior(posterior_path) if posterior_path else None
+    compare = readback.load_compare(compare_path) if compare_path else None
     chain = None
     if chain_path:
-        discard, thin = inputs.chain_settings(posterior)
-        chain = inputs.read_chain(chain_path, discard, thin)
-    view, notes = inputs.open_fit_view(data, fit_path, selection)
-    for note in notes:
-        click.echo(note, err=True)
+        discard, thin = readback.chain_settings(posterior)
+        chain = readback.read_chain(chain_path, discard, thin)
+    view, notes = readback.open_fit_view(data, fit_path, selection)
+    echo_notes(notes)
     if chain is not None:
-        chain = inputs.order_chain(chain, view.model, posterior)
+        chain = readback.order_chain(chain, view.model, posterior)
     check = run_closure_check(view)
     page = build_report(view, closure_check=check, posterior=posterior, chain=chain,
                         compare=compare, data_name=os.path.basename(str(data)))

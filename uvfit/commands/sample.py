@@ -1,11 +1,9 @@
 """uvfit sample: posterior distributions of a model's parameters by ensemble MCMC."""
-import sys
-
 import click
 
-from ..errors import UvfitError
 from ..stats.modes import MODES
-from ._common import force_option, load_data, pop_selection, seed_option, selection_options
+from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
+                      selection_options)
 
 
 @click.command("sample")
@@ -48,50 +46,40 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     where none is given). Prints medians with 68% and 95% credible intervals of every free
     parameter and derived quantity; sizes consistent with zero are given as 95% upper limits.
     """
-    from .. import load_model
-    from ..infer.sampling import check_chain_file, sample
+    from .. import tasks
+    from ..infer.sampling import check_chain_file
     from ..outputs import check_writable, write_json
     from ..show.corner import write_corner_plot
 
     selection = pop_selection(kwargs)
-    if procs < 1:
-        raise UvfitError(f"--procs must be at least 1 (got {procs})")
-    if walkers is not None and walkers < 2:
-        raise UvfitError(f"--walkers must be at least 2 (got {walkers})")
-    if max_steps < 1:
-        raise UvfitError(f"--max-steps must be at least 1 (got {max_steps})")
+    names = dict(procs="--procs", walkers="--walkers", max_steps="--max-steps", order_by="--order-by")
+    with as_options(**names):
+        tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps,
+                                   order_by=order_by)
     # refuse early, before any long work, whatever would be refused at the end
     for path in (json_path, corner_path):
         if path is not None:
             check_writable(path, force)
     previous = check_chain_file(chain_path, resume, force)
 
-    vset = load_data(data, selection)
-    sky = load_model(model)
-
     todo = max(max_steps - previous, 0)
-    with click.progressbar(length=max(todo, 1), label="sampling", file=sys.stderr,
-                           show_pos=True) as bar:
+    with progressbar(max(todo, 1), "sampling", show_pos=True) as bar:
         state = {"done": 0}
 
         def progress(done):
             bar.update(done - state["done"])
             state["done"] = done
 
-        post = sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
-                      max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
-                      resume=resume, force=force, order_by=order_by, progress=progress,
-                      starts=starts, redshift=redshift, data_path=data)
-    for note in post.notes:
-        click.echo(f"note: {note}", err=True)
-    click.echo(post.table())
-    click.echo("Credible intervals hold for this model family and these data weights; calibration "
-               "errors outside the statistic are not in them.")
+        report = tasks.sample(data, model, mode=mode, systematic=systematic, walkers=walkers,
+                              max_steps=max_steps, seed=seed, procs=procs, chain=chain_path,
+                              resume=resume, force=force, order_by=order_by, progress=progress,
+                              starts=starts, redshift=redshift, selection=selection)
+    echo_notes(report.notes)
+    echo_notes(report.posterior.notes, prefix="note: ")
+    click.echo(report.text())
     if json_path is not None:
-        out = post.to_dict()
-        out["selection"] = {k: v for k, v in selection.items() if v not in (None, ())}
-        write_json(json_path, out, force=force)
+        write_json(json_path, report.to_dict(), force=force)
         click.echo(f"wrote {json_path}", err=True)
     if corner_path is not None:
-        write_corner_plot(post, corner_path, force=force)
+        write_corner_plot(report.posterior, corner_path, force=force)
         click.echo(f"wrote {corner_path}", err=True)

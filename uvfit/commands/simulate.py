@@ -24,40 +24,19 @@ def command(array_file, model_file, output, json_path, seed, force, no_noise, **
     from the stations' SEFDs. The result is only as realistic as those assumptions: no
     atmosphere, no calibration errors beyond the gain errors asked for.
     """
-    from .. import load_model
+    from .. import tasks
     from ..outputs import check_writable, write_json
-    from ..sim.array import load_array
-    from ..sim.observe import simulate, write_simulation
+    from ..sim.observe import write_simulation
 
     observation, corruption = pop_observation(kwargs)
     check_writable(output, force)
     if json_path:
         check_writable(json_path, force)
-    array = load_array(array_file)
-    model = load_model(model_file)
-    vset, layout = simulate(array, model, observation, seed=seed, thermal=not no_noise, **corruption)
-    write_simulation(vset, output, force=force)
-    summary = layout.summary()
-    summary.update({"seed": seed, "output": output, "model": model_file, **corruption})
-    if summary["notice"]:
-        click.echo(summary["notice"], err=True)
-    click.echo(format_summary(summary, observation))
+    report = tasks.simulate(array_file, model_file, observation, seed=seed, noise=not no_noise,
+                            output=output, **corruption)
+    write_simulation(report.vset, output, force=force)
+    if report.notice:
+        click.echo(report.notice, err=True)
+    click.echo(report.text())
     if json_path:
-        write_json(json_path, {**summary, "observation": observation.describe()}, force=force)
-
-
-def format_summary(s, obs):
-    lines = [
-        f"wrote {s['output']}: {s['rows']} visibilities over {s['times']} integrations and "
-        f"{s['channels']} channel(s), source {s['source']}, seed {s['seed']}",
-        f"band: {obs.frequency_hz / 1e9:.6g} GHz centre, {obs.bandwidth_hz / 1e6:.6g} MHz in "
-        f"{obs.channels} channel(s) of {obs.channel_width_hz / 1e6:.6g} MHz; integration "
-        f"{obs.integration_s:g} s; scans of {obs.scan_length_s:g} s",
-        f"baselines with data: {s['baselines_with_data']} of {s['baselines_in_array']}",
-        f"nominal resolution lambda/B_max: {s['nominal_resolution_uas']:.1f} microarcsec "
-        f"(longest projected baseline {s['max_uv_lambda'] / 1e6:.1f} Mlambda)",
-        f"median thermal sigma per real/imaginary part: {s['median_sigma_jy'] * 1e3:.3g} mJy",
-        "time on source (h, above the elevation limit):",
-    ]
-    lines += [f"  {name:<10s} {h:6.2f}" for name, h in s["hours_on_source"].items()]
-    return "\n".join(lines)
+        write_json(json_path, report.to_dict(), force=force)

@@ -264,21 +264,69 @@ def parse_channels(value):
     return sorted(out)
 
 
+#: the selection every command that reads data takes (keyword arguments of apply_selection)
+SELECTION_OPTIONS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels",
+                     "average")
+
+
 def parse_time(text):
-    """An ISO UTC time ('2017-04-05T03:00') or an MJD number -> MJD (float)."""
-    if isinstance(text, (int, float, np.floating, np.integer)):
-        return float(text)
-    text = str(text).strip()
-    try:
-        return float(text)
-    except ValueError:
-        pass
+    """An astropy Time (UTC) from an ISO UTC string ('2017-04-05T03:00') or an MJD number.
+
+    Raises DataError naming the text when it is neither. The one time parser of uvfit: the data
+    selection takes ``parse_time(x).mjd`` (a number is kept exactly, see :func:`to_mjd`), the
+    simulation the Time itself.
+    """
+    import warnings
+
     from astropy.time import Time
+    number = _as_number(text)
     try:
-        return float(Time(text, scale="utc").mjd)
-    except Exception:
-        raise DataError(f"cannot read the time '{text}'",
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")   # ERFA's 'dubious year' for dates past its tables
+            if number is not None:
+                return Time(number, format="mjd", scale="utc")
+            return Time(str(text).strip(), scale="utc")
+    except (ValueError, TypeError):
+        raise DataError(f"cannot read the time {str(text).strip()!r}",
                         "give an ISO UTC time such as 2017-04-05T03:00:00, or an MJD number") from None
+
+
+def _as_number(text):
+    if isinstance(text, (int, float, np.floating, np.integer)) and not isinstance(text, bool):
+        return float(text)
+    try:
+        return float(str(text).strip())
+    except ValueError:
+        return None
+
+
+def to_mjd(text):
+    """:func:`parse_time` as an MJD number (a number given is returned as it is)."""
+    number = _as_number(text)
+    return number if number is not None else float(parse_time(text).mjd)
+
+
+def read_selected(data, selection=None, good=True):
+    """Read a visibility file (or take a VisibilitySet) and apply a selection: ``(vset, notes)``.
+
+    ``data``: a path or a VisibilitySet; ``selection``: keyword arguments of
+    :func:`apply_selection` (entries that are None or empty are ignored); ``good``: keep only the
+    unflagged rows (DataError when none is left; with ``good=False`` the check is still made, but
+    the flagged rows are kept). ``notes``: the selection's messages for the user (a list of str).
+    Every command, task, batch job and the demo read data through this function.
+    """
+    if isinstance(data, (str, bytes)) or hasattr(data, "__fspath__"):
+        from .io import read
+        vset = read(data)
+    else:
+        vset = data
+    selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "", [])}
+    notes = []
+    if selection:
+        vset, notes = apply_selection(vset, **selection)
+        notes = list(notes)
+    good_rows = vset.good()
+    return (good_rows if good else vset), notes
 
 
 def _check_known(names, vset, what):
@@ -333,7 +381,7 @@ def apply_selection(vset, min_uv=None, max_uv=None, stations=None, exclude_stati
     if time_range is not None and len(time_range):
         if len(time_range) != 2:
             raise DataError("a time range needs two times, START and END")
-        t0, t1 = parse_time(time_range[0]), parse_time(time_range[1])
+        t0, t1 = to_mjd(time_range[0]), to_mjd(time_range[1])
         if t1 < t0:
             raise DataError(f"the time range ends ({time_range[1]}) before it starts ({time_range[0]})")
         cut((vset.time >= t0) & (vset.time <= t1), f"times {time_range[0]} to {time_range[1]}")

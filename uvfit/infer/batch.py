@@ -153,26 +153,19 @@ def run_job(job):
 
 
 def _run(job):
-    """The same library calls the fit and sample commands make."""
-    from ..commands._common import load_data
-    from .. import load_model
+    """The same tasks the fit and sample commands call (``uvfit.tasks``)."""
+    from .. import tasks
 
-    vset = load_data(job["data"], job["selection"] or {}, echo=False)
-    model = load_model(job["model"])
+    selection = job["selection"] or {}
     if job["command"] == "fit":
-        from .run import run_fit
-        return run_fit(vset, model, mode=job["mode"], systematic=job["systematic"],
-                       rescale_errors=job["rescale_errors"], starts=job["starts"],
-                       global_search=job["global_search"], seed=job["seed"],
-                       redshift=job["redshift"], data_path=job["data"],
-                       selection=job["selection"] or {})
-    from .sampling import sample
-    post = sample(vset, model, mode=job["mode"], systematic=job["systematic"],
-                  n_walkers=job["walkers"], max_steps=job["max_steps"], seed=job["seed"],
-                  starts=job["starts"], redshift=job["redshift"], data_path=job["data"])
-    out = post.to_dict()
-    out["selection"] = dict(job["selection"] or {})
-    return out
+        return tasks.fit(job["data"], job["model"], mode=job["mode"], systematic=job["systematic"],
+                         rescale_errors=job["rescale_errors"], starts=job["starts"],
+                         global_search=job["global_search"], seed=job["seed"],
+                         redshift=job["redshift"], selection=selection).to_dict()
+    return tasks.sample(job["data"], job["model"], mode=job["mode"], systematic=job["systematic"],
+                        walkers=job["walkers"], max_steps=job["max_steps"], seed=job["seed"],
+                        starts=job["starts"], redshift=job["redshift"],
+                        selection=selection).to_dict()
 
 
 def cached_row(job):

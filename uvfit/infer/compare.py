@@ -16,11 +16,9 @@ import numpy as np
 from .. import __version__
 from ..errors import FitError, UvfitError
 from ..stats.base import effective_sigma
+from ..labels import COMPARE_CAUTION
 from ..stats.modes import make_statistic
 from .lsq import fit
-
-FAMILY_CAUTION = ("This holds for these model families only: a model outside them may describe the "
-                  "data better, and calibration errors can mimic structure (check `uvfit closures`).")
 
 
 def _fit_model(vset, model, mode, systematic, starts, seed):
@@ -50,13 +48,13 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     """
     models = list(models)
     if len(models) < 2:
-        raise UvfitError("compare needs at least two models", "give two or more model files")
+        raise UvfitError(f"compare needs at least two models (got {len(models)})", "pass two or more models")
     names = list(names) if names else [f"model{i + 1}" for i in range(len(models))]
     if len(set(names)) != len(names):
         names = [f"{n} ({i + 1})" for i, n in enumerate(names)]
     bootstrap = int(bootstrap or 0)
     if bootstrap < 0:
-        raise UvfitError(f"--bootstrap must be >= 0 (got {bootstrap})")
+        raise UvfitError(f"bootstrap must be >= 0 (got {bootstrap})")
     vset = vset.good()
     results = []
     for name, model in zip(names, models):
@@ -108,7 +106,7 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     return {"version": __version__, "mode": mode, "systematic": float(systematic), "seed": int(seed),
             "n_bootstrap": bootstrap, "n_failed_refits": n_failed, "alpha": alpha,
             "simplest": names[simple], "models": rows, "preferred": preferred, "verdict": verdict,
-            "caution": FAMILY_CAUTION}
+            "caution": COMPARE_CAUTION}
 
 
 def _fmt_p(p):
@@ -121,7 +119,7 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
         best = min(range(len(rows)), key=lambda i: rows[i]["bic"])
         text = (f"every model has the same number of free parameters; the lowest BIC is "
                 f"'{rows[best]['name']}'")
-        return text + ". " + FAMILY_CAUTION, rows[best]["name"]
+        return text + ". " + COMPARE_CAUTION, rows[best]["name"]
     if bootstrap > 0:
         required = [i for i in richer if rows[i]["false_alarm_probability"] is not None
                     and (rows[i]["false_alarm_probability"] < alpha
@@ -140,7 +138,7 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
             text = f"'{r['name']}' preferred over '{s['name']}'; false-alarm probability {fap_text}"
         elif too_few:
             best = simple
-            text = (f"undecided: no simulation reached the improvement of "
+            text = ("undecided: no simulation reached the improvement of "
                     + ", ".join(f"'{rows[i]['name']}'" for i in too_few)
                     + f" over '{s['name']}', but N = {bootstrap} simulations cannot show a false-alarm "
                     "probability below 5%; run again with --bootstrap 100 or more")
@@ -150,11 +148,11 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
             best = simple
             text = (f"the data do not require a richer model than '{s['name']}' (false-alarm "
                     f"probability {faps}, N = {bootstrap} simulations)")
-        return text + ". " + FAMILY_CAUTION, rows[best]["name"]
+        return text + ". " + COMPARE_CAUTION, rows[best]["name"]
     best = min(range(len(rows)), key=lambda i: rows[i]["bic"])
     best_aic = min(range(len(rows)), key=lambda i: rows[i]["aic"])
     text = f"BIC prefers '{rows[best]['name']}'"
     text += (", and so does AIC" if best_aic == best else f", AIC prefers '{rows[best_aic]['name']}'")
     text += ("; no false-alarm probability was computed (use --bootstrap N to calibrate the "
              "likelihood ratio on simulated data)")
-    return text + ". " + FAMILY_CAUTION, rows[best]["name"]
+    return text + ". " + COMPARE_CAUTION, rows[best]["name"]

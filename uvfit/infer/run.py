@@ -6,21 +6,11 @@ the demo and the report can fit without the command line. See README, "fit", for
 import numpy as np
 
 from .. import __version__
+from ..labels import FIT_CAUTIONS, unit_text
 from ..stats.modes import make_statistic
 from .derived import derived_quantities
 from .lsq import fit
 
-CAUTIONS = [
-    "These results hold for the model family fitted; a different family could fit as well or better.",
-    "A fit of a few components is no substitute for an image when the structure is complex.",
-    "Calibration errors can mimic or hide structure: check the closure quantities with `uvfit closures`.",
-]
-
-
-def _unit(p):
-    unit = getattr(p, "unit", None)
-    text = "" if unit is None else str(unit)
-    return "" if text in ("", "dimensionless") else text
 
 
 def parameter_table(result):
@@ -38,7 +28,7 @@ def parameter_table(result):
             err = float(errors.get(root, float("nan")))
         else:
             err = None
-        out[name] = {"value": float(p.value), "error": err, "unit": _unit(p), "free": bool(free),
+        out[name] = {"value": float(p.value), "error": err, "unit": unit_text(p), "free": bool(free),
                      "fixed": bool(p.fixed), "tie": tie}
         note = getattr(p, "note", None)
         if note:
@@ -82,7 +72,7 @@ def result_dict(result, derived=None, mode=None, data_path=None, selection=None,
         "unconstrained": list(result.unconstrained),
         "start_chi2": list(result.start_chi2),
         "notices": list(result.notices),
-        "cautions": list(CAUTIONS),
+        "cautions": list(FIT_CAUTIONS),
         "model_toml": model.to_toml(),
     }
     return out

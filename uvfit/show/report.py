@@ -12,30 +12,11 @@ import numpy as np
 
 from .. import __version__
 from ..errors import UvfitError
+from ..labels import REPORT_CAUTIONS
 from . import plots, style
 from .corner import corner_plot
-from .sky import sky_figure
+from .figures import KINDS, make_figure
 
-CAUTIONS = [
-    ("Model family",
-     "Every number here holds for the model family that was fitted. A good chi-square says the "
-     "data do not contradict this model; it does not say the source is made of these components. "
-     "A fit of a few components is no substitute for an image where the structure is complex."),
-    ("Calibration",
-     "The complex mode trusts the phase calibration: station phase errors become structure. "
-     "The amplitude modes trust the amplitude calibration and flux scale. Closure modes are immune "
-     "to station-based gains but give up absolute position and (for closure amplitudes) total "
-     "flux. A systematic error floor, where one was used, is an assumption, not a measurement."),
-    ("What the closure check rules out",
-     "Closure phases and closure amplitudes cannot be changed by any station-based gain error, so "
-     "a model that matches the visibilities but not the closures is suspect. The check is blind to "
-     "baseline-based errors (which do change closures, and could mimic or hide structure), and it "
-     "says nothing about the absolute position or the flux scale."),
-    ("Errors",
-     "Least-squares errors come from the curvature of chi-square at the best fit and assume "
-     "Gaussian noise with the stated sigmas; where the posterior is asymmetric or the sigmas are "
-     "mis-scaled, prefer the sampler's intervals and look at the reduced chi-square."),
-]
 
 _CSS = """
 body{font-family:Georgia,'DejaVu Serif',serif;max-width:1100px;margin:1.5em auto;padding:0 1em;
@@ -331,27 +312,33 @@ def _posterior_section(posterior):
 # --------------------------------------------------------------------------- figures
 
 
+#: anchor and caption of each figure of :data:`uvfit.show.figures.KINDS` in the page
+_CAPTIONS = {
+    "radial": ("radial", "Visibility amplitude and phase against uv distance: data with 1σ errors "
+               "(blue), the model at the data's own (u, v) (vermillion); normalised residuals "
+               "below."),
+    "uv": ("coverage", "(u, v) coverage, each visibility with its conjugate; u increases to "
+           "the left (east)."),
+    "closure": ("closure-phases", "Closure phases against time for the most informative "
+                "triangles (largest sum of 1/σ²): data with 1σ errors and the model."),
+    "sky": ("sky", "The fitted model on the sky (east to the left) with each component's "
+            "outline and the nominal resolution λ/B_max for scale."),
+}
+
+
 def figures(view, chain=None, chain_names=None, chain_units=None):
     """[(anchor, caption, Figure)] for the report; a figure that cannot be made becomes a note."""
     out = []
-    vset, mvis = view.vset, view.model_vis
-    fig, _ = plots.radial_plot(vset, mvis, note=view.phase_note)
-    out.append(("radial", "Visibility amplitude and phase against uv distance: data with 1σ errors "
-                "(blue), the model at the data's own (u, v) (vermillion); normalised residuals "
-                "below.", fig))
-    fig, _ = plots.uv_coverage_plot(vset, colour_by="baseline")
-    out.append(("coverage", "(u, v) coverage, each visibility with its conjugate; u increases to "
-                "the left (east).", fig))
-    try:
-        series = plots.closure_phase_series(vset, mvis, systematic=view.systematic)
-        fig, _ = plots.closure_phase_plot(series)
-        out.append(("closure-phases", "Closure phases against time for the most informative "
-                    "triangles (largest sum of 1/σ²): data with 1σ errors and the model.", fig))
-    except UvfitError as exc:
-        out.append(("closure-phases", f"No closure-phase figure: {exc}", None))
-    fig, _ = sky_figure(view)
-    out.append(("sky", "The fitted model on the sky (east to the left) with each component's "
-                "outline and the nominal resolution λ/B_max for scale.", fig))
+    for kind in KINDS:
+        anchor, caption = _CAPTIONS[kind]
+        try:
+            fig, _ = make_figure(kind, view)
+        except UvfitError as exc:
+            if kind != "closure":
+                raise
+            out.append((anchor, f"No closure-phase figure: {exc}", None))
+            continue
+        out.append((anchor, caption, fig))
     if chain is not None:
         fig, _ = corner_plot(chain, chain_names, chain_units)
         out.append(("corner", "Posterior samples of the free parameters (16, 50, 84 % quantiles "
@@ -364,7 +351,7 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
 
 def build_report(view, closure_check=None, posterior=None, chain=None, compare=None,
                  data_name=None):
-    """The report as HTML text. ``view`` is a :class:`uvfit.show.inputs.FitView`."""
+    """The report as HTML text. ``view`` is a :class:`uvfit.show.readback.FitView`."""
     fit = view.fit
     summary = view.vset.summary()
     source = summary.get("source", "unknown")
@@ -418,7 +405,7 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
                               "<ul>" + "".join(f"<li>{_esc(fmt(n))}</li>" for n in notices)
                               + "</ul>", "notices"))
     parts.append(_section("Cautions", "\n".join(
-        f'<div class="caution"><b>{_esc(t)}.</b> {_esc(x)}</div>' for t, x in CAUTIONS), "cautions"))
+        f'<div class="caution"><b>{_esc(t)}.</b> {_esc(x)}</div>' for t, x in REPORT_CAUTIONS), "cautions"))
     body = "\n".join(parts)
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             f"<title>uvfit report: {_esc(source)}</title>\n<style>{_CSS}</style>\n</head>\n"
@@ -427,10 +414,8 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
 
 def run_closure_check(view):
     """The closure check of the fitted model on the data (a dict), or a sentence saying why not."""
-    try:
-        from ..stats.closures import check_closures
-    except ImportError:
-        return "The closure check is not available in this installation."
+    from ..stats.closures import check_closures
+
     try:
         return check_closures(view.vset, view.model, view.systematic)
     except UvfitError as exc:

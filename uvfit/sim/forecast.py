@@ -28,17 +28,11 @@ import numpy as np
 
 from .. import __version__
 from ..errors import FitError, UvfitError
+from ..labels import FORECAST_CAUTIONS
 from .observe import observe, plan
 
 STRUCTURE_SUFFIXES = (".separation", ".position_angle", ".flux_ratio", ".size")
 LR_LEVEL = 0.99
-CAUTIONS = [
-    "The forecast assumes the array file's SEFDs, the stated gain errors and nothing else: "
-    "real calibration and weather are worse.",
-    "Recovery is judged for the true model's family only; other structures could fit as well.",
-    "The likelihood-ratio threshold is nominal: its chi-square reference fails when a component's "
-    "flux can go to zero (a boundary case).",
-]
 
 
 def _fit(vset, model, mode, systematic, starts, seed, frequency):
@@ -78,10 +72,11 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
 
     trials = int(trials)
     if trials < 1:
-        raise UvfitError(f"--trials must be at least 1 (got {trials})")
+        raise UvfitError(f"trials must be at least 1 (got {trials})")
     alternatives = list(alternatives)
     if not alternatives:
-        raise UvfitError("forecast needs at least one alternative model", "give MODEL_TRUE MODEL_ALT ...")
+        raise UvfitError("forecast needs at least one alternative model (alternatives is empty)",
+                         "pass one or more alternative models")
     alt_names = list(alt_names) if alt_names else [f"alt{i + 1}" for i in range(len(alternatives))]
     fit_systematic = systematic if fit_systematic is None else fit_systematic
     layout = plan(array, observation)
@@ -193,6 +188,6 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
         "structure": {key: {"true": true_struct[key], **_spread(vals)}
                       for key, vals in struct_values.items()},
         "notice": summary["notice"],
-        "cautions": list(CAUTIONS),
+        "cautions": list(FORECAST_CAUTIONS),
         "per_trial": per_trial,
     }

@@ -105,18 +105,6 @@ def extrapolation_notice(mjd):
             "error of a fraction of a second, ~1e-5 rad in (u, v): negligible for planning)")
 
 
-def parse_time(text):
-    """An astropy Time (UTC) from an ISO string such as 2027-03-01T02:00, or a UvfitError."""
-    from astropy.time import Time
-    try:
-        with _Quiet():
-            t = Time(str(text), scale="utc")
-    except (ValueError, TypeError):
-        raise UvfitError(f"cannot read the time {text!r}",
-                         "give an ISO UTC time such as 2027-03-01T02:00") from None
-    return t
-
-
 def time_grid(start, duration_s, integration_s):
     """Integration midpoints start + (k + 1/2) * integration, k = 0 .. floor(duration/integration) - 1."""
     from astropy import units as u

@@ -6,13 +6,8 @@ components and of the members of a double) are those of :mod:`uvfit.infer.poster
 import numpy as np
 
 from ...errors import UvfitError
+from ...labels import unit_text as _unit_text
 from .convergence import BURN_FACTOR, CHECK_EVERY, TAU_CHANGE, TAU_FACTOR
-
-
-def _unit_text(param):
-    unit = getattr(param, "unit", None)
-    text = "" if unit is None else str(unit)
-    return "" if text in ("", "dimensionless") else text
 
 
 def _parameter_period(model, name):

@@ -7,15 +7,9 @@ each closure's own (diagonal) error.
 """
 import numpy as np
 
+from ...labels import CLOSURE_CAUTION
 from .build import DEFAULT_SNR_CUT, build_closures, no_closure_error
 from .covariance import COVARIANCE_NOTE, check_covariance, whitening
-
-#: the caution every closure result carries
-CLOSURE_CAUTION = ("Closure quantities are immune to station-based gain errors but not to "
-                   "baseline-based errors (e.g. bandpass or polarisation leakage that differ per "
-                   "baseline), and they cannot fix the absolute position or the total flux of the "
-                   "model. A good closure fit supports the model family fitted; it does not exclude "
-                   "other structure the model cannot represent.")
 
 
 def _model_vis_at_rows(model, vset, rows):

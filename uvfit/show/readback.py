@@ -1,4 +1,4 @@
-"""Reading what the plots and the report are made of: fit, posterior and comparison JSON, chains.
+"""Readers of uvfit's own output files: fit, posterior and comparison JSON, chains, models.
 
 Each reader checks that the file is what it claims to be and raises :class:`UvfitError` naming the
 file and the fix otherwise. The model is rebuilt from the fit's own ``model_toml`` text, so that a
@@ -10,13 +10,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import UvfitError
+from ..data.select import SELECTION_OPTIONS, read_selected
+from ..errors import ModelError, UvfitError
 
 #: keys every fit output (``uvfit fit --json``) has
 FIT_KEYS = ("parameters", "statistics", "model_toml")
 #: selection options a fit records and a command may override
-SELECTION_KEYS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels",
-                  "average")
+SELECTION_KEYS = SELECTION_OPTIONS
 
 
 def read_json(path, what):
@@ -88,29 +88,56 @@ def read_chain(path, discard=0, thin=1):
 # --------------------------------------------------------------------------- the model
 
 
-def model_from_text(text):
+def model_from_text(text, path=None):
     """A SkyModel from TOML text (the fit's ``model_toml``)."""
-    from ..sky import modelfile
+    from ..sky.modelfile import loads
 
-    for name in ("loads_model", "load_model_text", "model_from_toml", "loads"):
-        loader = getattr(modelfile, name, None)
-        if callable(loader):
-            return loader(text)
-    raise UvfitError("this installation cannot read a model from text")  # pragma: no cover
+    return loads(text, path=path)
 
 
-def model_from_fit(fit):
-    """The fitted model: the fit's ``model_toml`` with the fitted values of its free parameters."""
+def model_from_fit(fit, path=None):
+    """The fitted model: the fit's ``model_toml`` with the fitted values of its free parameters.
+
+    The one reader of a fit result's model (the figures, the report, the closure check).
+    """
     try:
-        model = model_from_text(fit["model_toml"])
+        model = model_from_text(fit["model_toml"], path=path)
     except UvfitError as exc:
         raise UvfitError(f"the model recorded in the fit cannot be rebuilt: {exc.message}",
                          exc.hint) from None
     params = fit.get("parameters", {})
-    names = list(getattr(model, "free_names", []))
+    names = list(model.free_names)
     if names and all(n in params for n in names):
         model.set_free(np.array([float(params[n]["value"]) for n in names]))
     return model
+
+
+def load_model_or_fit(path):
+    """(model, info) from a model file (.toml) or a fit result (.json with ``model_toml``).
+
+    ``info`` records where the model came from: ``{"model_from": "model file"}``, or for a fit
+    result ``{"model_from": "fit result", "fit_mode", "fit_systematic"}``.
+    """
+    path = os.fspath(path)
+    if not os.path.exists(path):
+        raise UvfitError(f"model file {path} does not exist", "give a model file (.toml) or a fit "
+                         "result (.json written by uvfit fit --json)")
+    if path.lower().endswith(".json"):
+        try:
+            with open(path, encoding="utf-8") as handle:
+                doc = json.load(handle)
+        except (OSError, ValueError) as exc:
+            raise ModelError(f"{path} is not a readable JSON file ({exc})",
+                             "give the JSON written by uvfit fit --json, or a model file (.toml)")
+        text = doc.get("model_toml") if isinstance(doc, dict) else None
+        if not text:
+            raise ModelError(f"{path} holds no best-fit model (no 'model_toml' key)",
+                             "give the JSON written by uvfit fit --json, or a model file (.toml)")
+        return model_from_fit(doc, path=path), {"model_from": "fit result",
+                                                 "fit_mode": doc.get("mode"),
+                                                 "fit_systematic": doc.get("systematic")}
+    from ..sky.modelfile import load_model
+    return load_model(path), {"model_from": "model file"}
 
 
 def merged_selection(fit, options):
@@ -172,16 +199,9 @@ def open_fit_view(data_path, fit_path, options=None):
 
     Returns (FitView, notes), notes being the selection's messages for the user.
     """
-    from .. import read
-
     fit = load_fit(fit_path)
     selection = merged_selection(fit, options)
-    vset = read(data_path)
-    notes = []
-    if selection:
-        from ..data.select import apply_selection
-        vset, notes = apply_selection(vset, **selection)
-        notes = list(notes)
+    vset, notes = read_selected(data_path, selection, good=False)
     fitted = fit.get("data")
     if fitted and os.path.basename(str(fitted)) != os.path.basename(os.fspath(data_path)):
         notes.append(f"note: the fit was made on {os.path.basename(str(fitted))}, the figures show "

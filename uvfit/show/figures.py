@@ -1,0 +1,33 @@
+"""The figures of a fit, in one list: what ``uvfit plot --kind`` offers, the demo draws and the
+report embeds.
+
+``make_figure(kind, view, ...)`` -> ``(Figure, numbers)``; the caller saves and closes it.
+"""
+from . import plots
+from .sky import sky_figure
+
+#: the figures of a fit: kind -> one-line description
+KINDS = {
+    "radial": "amplitude and phase against uv distance with residuals",
+    "uv": "the (u, v) coverage",
+    "closure": "closure phases against time",
+    "sky": "the model on the sky",
+}
+
+
+def make_figure(kind, view, colour_by="baseline", panels=6):
+    """The figure ``kind`` (a key of :data:`KINDS`) of a :class:`uvfit.show.readback.FitView`.
+
+    ``colour_by`` ("baseline" or "time") colours the (u, v) coverage; ``panels`` is the number of
+    closure-phase triangles shown (the most informative first).
+    """
+    if kind == "radial":
+        return plots.radial_plot(view.vset, view.model_vis, note=view.phase_note)
+    if kind == "uv":
+        return plots.uv_coverage_plot(view.vset, colour_by=colour_by)
+    if kind == "closure":
+        series = plots.closure_phase_series(view.vset, view.model_vis, systematic=view.systematic)
+        return plots.closure_phase_plot(series, max_panels=panels)
+    if kind == "sky":
+        return sky_figure(view)
+    raise ValueError(f"unknown figure kind {kind!r}; known: {', '.join(KINDS)}")

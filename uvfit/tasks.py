@@ -1,0 +1,800 @@
+"""The task layer: one function per job of uvfit, the same for the commands, the demo and batch.
+
+Each task takes a visibility set (or a path), a model (or a path) and options as keyword
+arguments with the defaults of the command of the same name, and returns a result record whose
+``to_dict()`` is exactly the JSON that command writes with ``--json``; ``text()`` is the table it
+prints (from :mod:`uvfit.show.text`). A task writes nothing, prints nothing and never exits: the
+commands parse options, call a task, print and write. Errors are :class:`uvfit.UvfitError` naming
+the task's parameters (``max_evaluations``, ``walkers``...), not command-line options.
+
+Tasks: :func:`fit`, :func:`sample`, :func:`compare`, :func:`closures`, :func:`info`,
+:func:`simulate`, :func:`forecast`; helpers :func:`load_data` (read plus selection),
+:func:`load_model_or_path`, :func:`observation` (an Observation from text such as ``"86GHz"``).
+"""
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+from typing import Any, Callable, Iterable, Optional, Sequence, Union
+
+from .data.select import parse_time, read_selected
+from .data.visset import VisibilitySet
+from .errors import UvfitError
+from .sky.model import SkyModel
+
+#: a visibility set, or the path of a visibility file
+Data = Union[VisibilitySet, str, "os.PathLike[str]"]
+#: a sky model, or the path of a model file (TOML)
+Model = Union[SkyModel, str, "os.PathLike[str]"]
+Progress = Optional[Callable[[int], Any]]
+
+
+def _is_path(x: Any) -> bool:
+    return isinstance(x, str) or hasattr(x, "__fspath__")
+
+
+def _stem(path: Any) -> str:
+    return os.path.splitext(os.path.basename(os.fspath(path)))[0]
+
+
+def load_data(data: Data, selection: Optional[dict] = None,
+              good: bool = True) -> tuple[VisibilitySet, list[str]]:
+    """(VisibilitySet, notes): ``data`` read if it is a path, then selected (see
+    :func:`uvfit.data.select.read_selected`); with ``good`` only the unflagged rows."""
+    return read_selected(data, selection, good=good)
+
+
+def load_model_or_path(model: Model) -> SkyModel:
+    """``model`` itself, or the model file it names (:func:`uvfit.load_model`)."""
+    if isinstance(model, SkyModel):
+        return model
+    if _is_path(model):
+        from .sky.modelfile import load_model
+        return load_model(model)
+    raise UvfitError(f"model must be a SkyModel or the path of a model file, not "
+                     f"{type(model).__name__}")
+
+
+def _check_at_least(name: str, value: Optional[int], least: int) -> None:
+    if value is not None and value < least:
+        raise UvfitError(f"{name} must be at least {least} (got {value})")
+
+
+def _given(selection: Optional[dict]) -> dict:
+    return {k: v for k, v in (selection or {}).items() if v not in (None, ())}
+
+
+# --------------------------------------------------------------------------- fit
+
+
+@dataclass
+class FitReport:
+    """The result of :func:`fit`: the fit's JSON (``record``) and the objects behind it.
+
+    ``parameters``, ``derived`` and ``statistics`` are the sections of the JSON; ``model`` the
+    best-fit SkyModel; ``result`` the least-squares :class:`uvfit.infer.lsq.FitResult`;
+    ``notes`` the selection's messages.
+    """
+
+    record: dict
+    model: SkyModel
+    result: Any
+    notes: list = field(default_factory=list)
+
+    @property
+    def parameters(self) -> dict:
+        return self.record["parameters"]
+
+    @property
+    def derived(self) -> dict:
+        return self.record["derived"]
+
+    @property
+    def statistics(self) -> dict:
+        return self.record["statistics"]
+
+    @property
+    def chi2(self) -> float:
+        return float(self.record["statistics"]["chi2"])
+
+    def to_dict(self) -> dict:
+        """What ``uvfit fit --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The table ``uvfit fit`` prints."""
+        from .show.text import fit_text
+        return fit_text(self.record)
+
+
+def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0,
+        rescale_errors: bool = False, starts: int = 1, seed: int = 0, global_search: bool = False,
+        redshift: float = 0.0, max_evaluations: Optional[int] = None, resolved_test: bool = True,
+        selection: Optional[dict] = None, progress: Progress = None,
+        data_path: Optional[str] = None) -> FitReport:
+    """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
+
+    Parameters
+    ----------
+    data : VisibilitySet or path
+        The visibilities (a file is read; only unflagged rows are used).
+    model : SkyModel or path
+        The model (not changed: a copy is fitted), or its TOML file.
+    mode : str
+        What is fitted: one of ``uvfit.stats.modes.MODES`` (complex, amplitude, closure_phase,
+        closure_amplitude, closure, hybrid).
+    systematic : float
+        Fraction of ``|V|`` added in quadrature to every sigma.
+    rescale_errors : bool
+        Scale the errors by ``sqrt(chi2 / dof)``.
+    starts : int
+        Number of starts (the model's values, then random ones inside the bounds, seeded).
+    seed : int
+        Seed of every random step; recorded.
+    global_search : bool
+        Search chi2 globally inside the bounds first.
+    redshift : float
+        Source redshift for rest-frame brightness temperatures.
+    max_evaluations : int, optional
+        Most model evaluations per start (default 200 x (free parameters + 1)).
+    resolved_test : bool
+        Refit to test whether each component is resolved.
+    selection : dict, optional
+        Data selection (keys of :func:`uvfit.data.select.apply_selection`); recorded as given.
+    progress : callable, optional
+        Called with 1 after each start.
+    data_path : str, optional
+        The data file recorded in the result (default: ``data`` when it is a path).
+
+    Returns
+    -------
+    FitReport
+        ``to_dict()`` is the JSON of ``uvfit fit --json``.
+
+    Raises
+    ------
+    UvfitError
+        Bad input (unreadable file, selection leaving nothing, an option out of range), or a fit
+        that cannot be made.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> report = uvfit.fit(demo_file("uvd0917.uvfits"), demo_file("two.toml"), seed=0)
+    >>> sorted(report.parameters)[:2]
+    ['pair.east', 'pair.flux']
+    >>> report.to_dict()["mode"]
+    'complex'
+    """
+    from .infer.run import run_fit
+
+    _check_at_least("max_evaluations", max_evaluations, 1)
+    sky = load_model_or_path(model)
+    vset, notes = load_data(data, selection)
+    if data_path is None and _is_path(data):
+        data_path = os.fspath(data)
+    out, result = run_fit(vset, sky, mode=mode, systematic=systematic,
+                          rescale_errors=rescale_errors, starts=starts, seed=seed,
+                          global_search=global_search, redshift=redshift, data_path=data_path,
+                          selection=selection if selection is not None else {},
+                          resolved_test=resolved_test, max_evaluations=max_evaluations,
+                          progress=progress, return_result=True)
+    if _is_path(model):
+        out["model_file"] = str(model)
+    return FitReport(record=out, model=result.model, result=result, notes=notes)
+
+
+# --------------------------------------------------------------------------- sample
+
+
+@dataclass
+class SampleReport:
+    """The result of :func:`sample`: the posterior JSON and the :class:`Posterior` behind it."""
+
+    record: dict
+    posterior: Any
+    notes: list = field(default_factory=list)
+
+    @property
+    def parameters(self) -> dict:
+        return self.record["parameters"]
+
+    @property
+    def converged(self) -> bool:
+        return bool(self.record["converged"])
+
+    def to_dict(self) -> dict:
+        """What ``uvfit sample --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The table ``uvfit sample`` prints."""
+        from .show.text import sample_text
+        return sample_text(self.posterior.table())
+
+
+def check_sample_options(procs: int = 1, walkers: Optional[int] = None, max_steps: int = 5000,
+                         order_by: str = "flux") -> None:
+    """UvfitError naming the first option of :func:`sample` out of range (checked before any
+    work)."""
+    _check_at_least("procs", procs, 1)
+    _check_at_least("walkers", walkers, 2)
+    _check_at_least("max_steps", max_steps, 1)
+    if order_by not in ("flux", "distance"):
+        raise UvfitError(f"unknown order_by '{order_by}'", "use 'flux' or 'distance'")
+
+
+def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0,
+           walkers: Optional[int] = None, max_steps: int = 5000, seed: int = 0, procs: int = 1,
+           chain: Optional[str] = None, resume: bool = False, force: bool = False,
+           order_by: str = "flux", starts: int = 1, redshift: float = 0.0,
+           selection: Optional[dict] = None, progress: Progress = None,
+           data_path: Optional[str] = None) -> SampleReport:
+    """Posterior of the model's free parameters by ensemble MCMC (emcee), from the best fit.
+
+    Parameters
+    ----------
+    data : VisibilitySet or path
+        The visibilities.
+    model : SkyModel or path
+        The model (not changed), or its TOML file; priors are the model's.
+    mode, systematic, starts, redshift, seed
+        As for :func:`fit`.
+    walkers : int, optional
+        Number of walkers (default max(32, 4 x free parameters)).
+    max_steps : int
+        Longest chain (steps per walker, counting steps already in a resumed chain).
+    procs : int
+        Processes evaluating the walkers.
+    chain : str, optional
+        HDF5 file keeping the chain (needed to resume).
+    resume : bool
+        Continue the chain in ``chain`` where it stopped.
+    force : bool
+        Overwrite an existing chain file.
+    order_by : {"flux", "distance"}
+        How components of the same shape are labelled in every sample.
+    selection : dict, optional
+        Data selection; the given entries are recorded.
+    progress : callable, optional
+        Called with the number of steps done so far.
+    data_path : str, optional
+        The data file recorded (default: ``data`` when it is a path).
+
+    Returns
+    -------
+    SampleReport
+        ``to_dict()`` is the JSON of ``uvfit sample --json``.
+
+    Raises
+    ------
+    UvfitError
+        Bad input or options out of range (named by parameter), a chain file that cannot be used.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> report = uvfit.sample(demo_file("uvd0917.uvfits"), demo_file("two.toml"), max_steps=20)
+    >>> report.to_dict()["n_steps"]
+    20
+    """
+    from .infer.sampling import sample as run_sample
+
+    check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
+    vset, notes = load_data(data, selection)
+    sky = load_model_or_path(model)
+    if data_path is None and _is_path(data):
+        data_path = os.fspath(data)
+    post = run_sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
+                      max_steps=max_steps, seed=seed, procs=procs, chain_path=chain,
+                      resume=resume, force=force, order_by=order_by, progress=progress,
+                      starts=starts, redshift=redshift, data_path=data_path)
+    out = post.to_dict()
+    out["selection"] = _given(selection)
+    return SampleReport(record=out, posterior=post, notes=notes)
+
+
+# --------------------------------------------------------------------------- compare
+
+
+@dataclass
+class CompareReport:
+    """The result of :func:`compare`: the comparison JSON."""
+
+    record: dict
+    notes: list = field(default_factory=list)
+
+    @property
+    def preferred(self) -> Optional[str]:
+        return self.record.get("preferred")
+
+    @property
+    def verdict(self) -> str:
+        return self.record["verdict"]
+
+    def to_dict(self) -> dict:
+        """What ``uvfit compare --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The table ``uvfit compare`` prints."""
+        from .show.text import compare_text
+        return compare_text(self.record)
+
+
+def compare(data: Data, models: Sequence[Model], mode: str = "complex", systematic: float = 0.0,
+            starts: int = 1, bootstrap: int = 0, seed: int = 0,
+            names: Optional[Sequence[str]] = None, selection: Optional[dict] = None,
+            progress: Progress = None, data_path: Optional[str] = None) -> CompareReport:
+    """Fit two or more models to the same data and say whether the richer ones are required.
+
+    Parameters
+    ----------
+    data : VisibilitySet or path
+        The visibilities.
+    models : sequence of SkyModel or path
+        Two or more models.
+    mode, systematic, starts, seed
+        As for :func:`fit`.
+    bootstrap : int
+        Simulated data sets for the false-alarm probability of each richer model (0: none).
+    names : sequence of str, optional
+        Labels of the models (default: the files' stems, or model1, model2, ...).
+    selection : dict, optional
+        Data selection; recorded as given.
+    progress : callable, optional
+        Called with 1 after each bootstrap simulation.
+    data_path : str, optional
+        The data file recorded (default: ``data`` when it is a path).
+
+    Returns
+    -------
+    CompareReport
+        ``to_dict()`` is the JSON of ``uvfit compare --json``.
+
+    Raises
+    ------
+    UvfitError
+        Fewer than two models, ``bootstrap`` negative, a fit that cannot be made.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> report = uvfit.compare(demo_file("uvd0917.uvfits"),
+    ...                        [demo_file("one.toml"), demo_file("two.toml")])
+    >>> [row["name"] for row in report.to_dict()["models"]]
+    ['one', 'two']
+    """
+    from .infer.compare import compare as run_compare
+
+    models = list(models)
+    if len(models) < 2:
+        raise UvfitError(f"compare needs at least two models (got {len(models)})",
+                         "pass two or more models")
+    if names is None and all(_is_path(m) for m in models):
+        names = [_stem(m) for m in models]
+    skies = [load_model_or_path(m) for m in models]
+    vset, notes = load_data(data, selection)
+    if data_path is None and _is_path(data):
+        data_path = os.fspath(data)
+    out = run_compare(vset, skies, mode=mode, systematic=systematic, bootstrap=bootstrap,
+                      seed=seed, progress=progress, starts=starts, names=names)
+    out["data"] = None if data_path is None else str(data_path)
+    out["selection"] = selection if selection is not None else {}
+    out["model_files"] = [str(m) if _is_path(m) else None for m in models]
+    return CompareReport(record=out, notes=notes)
+
+
+# --------------------------------------------------------------------------- closures
+
+
+@dataclass
+class ClosureReport:
+    """The result of :func:`closures`: the closure check (``result``, with arrays) and its JSON."""
+
+    record: dict
+    result: dict
+    notes: list = field(default_factory=list)
+
+    @property
+    def supported(self) -> Optional[bool]:
+        return self.result.get("supported")
+
+    def to_dict(self) -> dict:
+        """What ``uvfit closures --json`` writes."""
+        return self.record
+
+    def table(self):
+        """Every closure quantity as an astropy Table (what ``--table`` writes)."""
+        from .stats.closures import closure_table
+        return closure_table(self.result)
+
+    def text(self) -> str:
+        """The table ``uvfit closures`` prints."""
+        from .show.text import closures_text
+        return closures_text(self.result)
+
+
+def closures(data: Data, model: Union[Model, dict, None] = None,
+             systematic: Optional[float] = None, snr_cut: float = 3.0, full: bool = False,
+             covariance: Optional[str] = None, selection: Optional[dict] = None,
+             data_path: Optional[str] = None, model_path: Optional[str] = None) -> ClosureReport:
+    """Closure phases and log closure amplitudes of the data; with a model, how well it fits them.
+
+    Parameters
+    ----------
+    data : VisibilitySet or path
+        The visibilities.
+    model : SkyModel, path, fit dict or None
+        A model, a model file (.toml), a fit result (.json written by ``fit``, or its dict: the
+        fitted model is used), or None for the counts only.
+    systematic : float, optional
+        Fraction of ``|V|`` added in quadrature to each sigma (default 0, or the fit's value when
+        ``model`` is a fit result).
+    snr_cut : float
+        Use only visibilities with ``|V|/sigma`` of at least this.
+    full : bool
+        Every triangle and quadrangle instead of a non-redundant set per snapshot.
+    covariance : {"snapshot", "diagonal"}, optional
+        Errors of the chi2 totals (default: snapshot for the non-redundant set).
+    selection : dict, optional
+        Data selection; the given entries are recorded.
+    data_path, model_path : str, optional
+        What is recorded as the data and the model (default: the paths given).
+
+    Returns
+    -------
+    ClosureReport
+        ``to_dict()`` is the JSON of ``uvfit closures --json``; ``table()`` the ECSV table.
+
+    Raises
+    ------
+    UvfitError
+        No closure can be formed, or bad input.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> report = uvfit.closures(demo_file("uvd0917.uvfits"), demo_file("two.toml"))
+    >>> report.to_dict()["n_closure_phases"] > 0
+    True
+    """
+    from .show.readback import load_model_or_fit, model_from_fit
+    from .stats.closures import check_closures, json_summary
+
+    vset, notes = load_data(data, selection)
+    sky, info = None, {}
+    if isinstance(model, dict):
+        sky = model_from_fit(model)
+        info = {"model_from": "fit result", "fit_mode": model.get("mode"),
+                "fit_systematic": model.get("systematic")}
+    elif isinstance(model, SkyModel):
+        sky, info = model, {"model_from": "model"}
+    elif model is not None:
+        sky, info = load_model_or_fit(model)
+        if model_path is None:
+            model_path = os.fspath(model)
+    if systematic is None:
+        systematic = float(info.get("fit_systematic") or 0.0)
+    res = check_closures(vset, sky, systematic=systematic, snr_cut=snr_cut, full=full,
+                         covariance=covariance)
+    if data_path is None and _is_path(data):
+        data_path = os.fspath(data)
+    summary = json_summary(res)
+    summary.update({"data": None if data_path is None else str(data_path), "model": model_path,
+                    **info, "selection": {k: v for k, v in (selection or {}).items()
+                                          if v not in (None, (), "")}})
+    return ClosureReport(record=summary, result=res, notes=notes)
+
+
+# --------------------------------------------------------------------------- info
+
+
+@dataclass
+class InfoReport:
+    """The result of :func:`info`: the data summary (JSON) and the selected set."""
+
+    record: dict
+    vset: VisibilitySet
+    notes: list = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        """What ``uvfit info --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The table ``uvfit info`` prints."""
+        from .show.text import info_text
+        return info_text(self.record)
+
+
+def summarise(vset: VisibilitySet) -> dict:
+    """The summary dictionary of ``info`` (VisibilitySet.summary plus a few file facts)."""
+    s = vset.summary()
+    s["stokes"] = vset.meta.get("stokes_i_from", "I")
+    s["file_format"] = vset.meta.get("format")
+    for key in ("note_single_hand", "note_weights", "note_stations", "selection_notes", "orientation",
+                "n_autocorrelation_rows_flagged"):
+        if key in vset.meta:
+            s[key] = vset.meta[key]
+    return s
+
+
+def info(data: Data, selection: Optional[dict] = None,
+         data_path: Optional[str] = None) -> InfoReport:
+    """What a visibility file holds: source, frequencies, stations, times, uv coverage, resolution.
+
+    Parameters
+    ----------
+    data : VisibilitySet or path
+        The visibilities (flagged rows are counted, not dropped).
+    selection : dict, optional
+        Data selection applied first.
+    data_path : str, optional
+        The path recorded (default: ``data`` when it is a path).
+
+    Returns
+    -------
+    InfoReport
+        ``to_dict()`` is the JSON of ``uvfit info --json``.
+
+    Raises
+    ------
+    UvfitError
+        Unreadable file, or a selection that leaves no usable row.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> uvfit.tasks.info(demo_file("uvd0917.uvfits")).to_dict()["source"]
+    'UVD 0917+224'
+    """
+    vset, notes = load_data(data, selection, good=False)
+    s = summarise(vset)
+    if data_path is None and _is_path(data):
+        data_path = os.fspath(data)
+    s["path"] = None if data_path is None else str(data_path)
+    return InfoReport(record=s, vset=vset, notes=notes)
+
+
+# --------------------------------------------------------------------------- simulate, forecast
+
+
+def observation(ra: Union[str, float], dec: Union[str, float], start: Any, duration: Any,
+                frequency: Any, integration: Any = "30s", bandwidth: Any = "1GHz",
+                channels: int = 1, scan_length: Any = "5min", source: str = "SIM"):
+    """An :class:`uvfit.sim.observe.Observation` from values as users type them.
+
+    Angles as astropy forms (``"12h30m49.4s"``, ``"+12d23m28s"``; a bare number is degrees),
+    ``start`` an ISO UTC time or MJD, durations such as ``"12h"`` or ``"30s"``, frequencies such as
+    ``"86GHz"``. Raises UvfitError naming the parameter that cannot be read.
+
+    Examples
+    --------
+    >>> from uvfit.tasks import observation
+    >>> observation("12h", "+20d", "2027-03-01T02:00", "2h", "22GHz").frequency_hz
+    22000000000.0
+    """
+    from .sim.observe import Observation
+    from .sim.options import parse_angle, parse_duration, parse_frequency
+
+    ra_deg = parse_angle(str(ra), "right ascension", colon_unit="hourangle")
+    dec_deg = parse_angle(str(dec), "declination", colon_unit="deg")
+    if not -90 <= dec_deg <= 90:
+        raise UvfitError(f"the declination {dec} is outside -90..+90 degrees")
+    obs = Observation(
+        ra_deg=ra_deg % 360.0, dec_deg=dec_deg,
+        start=start if hasattr(start, "mjd") else parse_time(start),
+        duration_s=parse_duration(str(duration), "duration"),
+        integration_s=parse_duration(str(integration), "integration time"),
+        frequency_hz=parse_frequency(str(frequency), "frequency"),
+        bandwidth_hz=parse_frequency(str(bandwidth), "bandwidth"),
+        channels=channels, scan_length_s=parse_duration(str(scan_length), "scan length"),
+        source=source)
+    obs.check()
+    return obs
+
+
+def _array(array: Any):
+    from .sim.array import Array, load_array
+    return array if isinstance(array, Array) else load_array(array)
+
+
+@dataclass
+class SimulationReport:
+    """The result of :func:`simulate`: the simulated set, the layout and the summary (JSON)."""
+
+    record: dict
+    vset: VisibilitySet
+    layout: Any
+    observation: Any
+
+    @property
+    def notice(self) -> Optional[str]:
+        return self.record.get("notice")
+
+    def to_dict(self) -> dict:
+        """What ``uvfit simulate --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The summary ``uvfit simulate`` prints."""
+        from .show.text import simulation_text
+        return simulation_text(self.record, self.observation)
+
+
+def simulate(array: Any, model: Model, observation: Any, seed: int = 0, noise: bool = True,
+             gain_error: float = 0.0, phase_error: float = 0.0, systematic: float = 0.0,
+             output: Optional[str] = None, model_path: Optional[str] = None) -> SimulationReport:
+    """A sky model observed by an array: Earth-rotation (u, v), thermal noise, gain errors.
+
+    Parameters
+    ----------
+    array : Array or path
+        The array (an array file, TOML).
+    model : SkyModel or path
+        The sky model.
+    observation : Observation
+        What is observed and when (see :func:`observation`).
+    seed : int
+        Seed of the noise and gains; recorded.
+    noise : bool
+        Add thermal noise (the sigmas are set either way).
+    gain_error : float
+        Station gain amplitude scatter per scan (fraction, rms).
+    phase_error : float
+        Station phase error per scan (degrees, rms).
+    systematic : float
+        Extra error per visibility, a fraction of its amplitude.
+    output : str, optional
+        The file the caller will write the set to (recorded only; write with
+        :func:`uvfit.sim.observe.write_simulation`).
+    model_path : str, optional
+        The model recorded (default: ``model`` when it is a path).
+
+    Returns
+    -------
+    SimulationReport
+        ``vset`` the simulated VisibilitySet; ``to_dict()`` the JSON of ``uvfit simulate --json``.
+
+    Raises
+    ------
+    UvfitError
+        Unreadable array or model, an impossible observation or corruption.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> from uvfit.tasks import observation
+    >>> obs = observation("9h17m12s", "+22d24m", "2027-03-01T02:00", "1h", "22.2GHz",
+    ...                   integration="600s")
+    >>> rep = uvfit.simulate("examples/demo/array.toml", demo_file("two.toml"), obs, seed=1)
+    >>> rep.vset.n == rep.to_dict()["rows"]
+    True
+    """
+    from .sim.noise import check_corruption
+    from .sim.observe import simulate as run_simulate
+
+    corruption = {"gain_error": gain_error, "phase_error_deg": phase_error, "systematic": systematic}
+    check_corruption(**corruption)
+    arr = _array(array)
+    sky = load_model_or_path(model)
+    vset, layout = run_simulate(arr, sky, observation, seed=seed, thermal=noise, **corruption)
+    if model_path is None and _is_path(model):
+        model_path = os.fspath(model)
+    summary = layout.summary()
+    summary.update({"seed": seed, "output": output, "model": model_path, **corruption})
+    summary["observation"] = observation.describe()
+    return SimulationReport(record=summary, vset=vset, layout=layout, observation=observation)
+
+
+@dataclass
+class ForecastReport:
+    """The result of :func:`forecast`: the forecast's JSON."""
+
+    record: dict
+
+    @property
+    def recovered_fraction(self) -> float:
+        return float(self.record["recovered_fraction"])
+
+    @property
+    def notice(self) -> Optional[str]:
+        return self.record.get("notice")
+
+    def to_dict(self) -> dict:
+        """What ``uvfit forecast --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The summary ``uvfit forecast`` prints."""
+        from .show.text import forecast_text
+        return forecast_text(self.record)
+
+
+def check_forecast_options(trials: int = 20) -> None:
+    """UvfitError when ``trials`` is below 1 (checked before any work)."""
+    _check_at_least("trials", int(trials), 1)
+
+
+def forecast(array: Any, true_model: Model, alternatives: Iterable[Model], observation: Any,
+             trials: int = 20, mode: str = "complex", starts: int = 1, seed: int = 0,
+             gain_error: float = 0.0, phase_error: float = 0.0, systematic: float = 0.0,
+             true_name: Optional[str] = None, alt_names: Optional[Sequence[str]] = None,
+             progress: Progress = None) -> ForecastReport:
+    """Repeated simulations and fits: can the array tell the true model from the alternatives?
+
+    Parameters
+    ----------
+    array : Array or path
+        The array.
+    true_model : SkyModel or path
+        The model simulated (and fitted).
+    alternatives : sequence of SkyModel or path
+        Models fitted to each simulation besides the true one.
+    observation : Observation
+        See :func:`observation`.
+    trials : int
+        Number of simulated data sets (trial k uses seed ``seed + k``).
+    mode : str
+        Statistic of the fits.
+    starts : int
+        Fit starts per model and trial.
+    seed, gain_error, phase_error, systematic
+        As for :func:`simulate`.
+    true_name, alt_names : optional
+        Labels (default: the files' stems, or true, alt1, ...).
+    progress : callable, optional
+        Called with 1 after each trial.
+
+    Returns
+    -------
+    ForecastReport
+        ``to_dict()`` is the JSON of ``uvfit forecast --json``.
+
+    Raises
+    ------
+    UvfitError
+        ``trials`` below 1, no alternative, bad input.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> from uvfit.tasks import observation
+    >>> obs = observation("9h17m12s", "+22d24m", "2027-03-01T02:00", "1h", "22.2GHz",
+    ...                   integration="900s")
+    >>> rep = uvfit.forecast("examples/demo/array.toml", demo_file("two.toml"),
+    ...                      [demo_file("one.toml")], obs, trials=1)
+    >>> rep.to_dict()["trials"]
+    1
+    """
+    from .sim.forecast import forecast as run_forecast
+    from .sim.noise import check_corruption
+
+    check_forecast_options(trials=trials)
+    alternatives = list(alternatives)
+    corruption = {"gain_error": gain_error, "phase_error_deg": phase_error, "systematic": systematic}
+    check_corruption(**corruption)
+    arr = _array(array)
+    true_sky = load_model_or_path(true_model)
+    alts = [load_model_or_path(m) for m in alternatives]
+    if true_name is None:
+        true_name = _stem(true_model) if _is_path(true_model) else "true"
+    if alt_names is None and alternatives and all(_is_path(m) for m in alternatives):
+        alt_names = [_stem(m) for m in alternatives]
+    out = run_forecast(arr, true_sky, alts, observation, trials, mode=mode, seed=seed,
+                       starts=starts, true_name=true_name, alt_names=alt_names,
+                       progress=progress, **corruption)
+    return ForecastReport(record=out)
+
+
+__all__ = ["fit", "sample", "compare", "closures", "info", "simulate", "forecast", "observation",
+           "load_data", "load_model_or_path", "summarise", "FitReport", "SampleReport",
+           "CompareReport", "ClosureReport", "InfoReport", "SimulationReport", "ForecastReport"]

@@ -97,7 +97,8 @@ def _reduce(vset, inv, n_groups, weight, wsum, new_channel):
         u=mean(vset.u), v=mean(vset.v), w=mean(vset.w), time=mean(vset.time),
         frequency=frequency, station1=vset.station1[first], station2=vset.station2[first],
         vis=vis, sigma=1.0 / np.sqrt(wsum), flag=np.zeros(n_groups, bool), channel=new_channel[first],
-        integration=np.where(n_known == count, integ_sum, np.nan), stations=vset.stations,
+        integration=np.where(n_known == count, integ_sum, np.nan), scan=vset.scan[first],
+        stations=vset.stations,
         source=vset.source, ra_deg=vset.ra_deg, dec_deg=vset.dec_deg, meta=dict(vset.meta))
     return out, count
 
@@ -126,7 +127,10 @@ def average_time(vset, seconds, field_radius=None):
         raise DataError("nothing to average: every row is flagged")
     t_s = (good.time - good.time.min()) * _SECONDS_PER_DAY
     bins = np.floor((t_s + 1e-5) / seconds).astype(np.int64)   # 10 us: MJD rounding
-    keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel])
+    # the scan number last: bins never mix scans (a constant -1 where the file has no scans
+    # leaves the grouping as it was)
+    keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel,
+                            good.scan])
     inv, n_groups, weight, wsum = _weighted_groups(good, keys)
     out, count = _reduce(good, inv, n_groups, weight, wsum, good.channel)
     # Every row of one bin gets the bin's common time stamp (the mean time of all rows in it), so

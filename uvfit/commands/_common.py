@@ -32,12 +32,48 @@ def pop_selection(kwargs):
     return {k: kwargs.pop(k, None) for k in _SELECTION_KEYS}
 
 
-def load_data(path, selection=None, echo=True):
-    """Read a data file and apply the selection options; returns the VisibilitySet of good rows."""
+# Reader options (Measurement Sets): passed to the reader, not to the row selection.
+_READ_KEYS = ("column", "field", "spw")
+
+
+def read_options(func):
+    """The options that choose what a reader reads from a Measurement Set."""
+    options = [
+        click.option("--column", default=None, metavar="NAME",
+                     help="Measurement Set data column: DATA, CORRECTED_DATA or MODEL_DATA "
+                          "(default CORRECTED_DATA when present, else DATA)."),
+        click.option("--field", default=None, metavar="NAME|ID",
+                     help="Measurement Set field to read (needed when it holds several)."),
+        click.option("--spw", default=None, metavar="LIST",
+                     help="Measurement Set spectral windows to read, names or ids, e.g. '0,2' (default all)."),
+    ]
+    for opt in reversed(options):
+        func = opt(func)
+    return func
+
+
+def pop_read_options(kwargs):
+    """Remove the reader options from a command's kwargs; returns those that were given."""
+    return {k: v for k, v in ((k, kwargs.pop(k, None)) for k in _READ_KEYS) if v not in (None, "")}
+
+
+def read_data(path, options=None, echo=True):
+    """Read a data file with the reader options; says which Measurement Set column was read."""
     from .. import read
+
+    vset = read(path, **(options or {}))
+    if echo and vset.meta.get("format") == "ms":
+        click.echo(f"Measurement Set: column {vset.meta['ms_column_note']}, field "
+                   f"{vset.meta['ms_field']} ({vset.source}), spectral windows "
+                   + ", ".join(str(s) for s in vset.meta["ms_spws_read"]), err=True)
+    return vset
+
+
+def load_data(path, selection=None, echo=True, read_options=None):
+    """Read a data file and apply the selection options; returns the VisibilitySet of good rows."""
     from ..data.select import apply_selection
 
-    vset = read(path)
+    vset = read_data(path, read_options, echo=echo)
     selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "")}
     if selection:
         vset, notes = apply_selection(vset, **selection)

@@ -6,7 +6,8 @@ import os
 import click
 
 from ..errors import ModelError, UvfitError
-from ._common import force_option, load_data, pop_selection, selection_options
+from ._common import (
+    force_option, load_data, pop_read_options, pop_selection, read_options, selection_options)
 
 
 def load_any_model(path):
@@ -73,7 +74,7 @@ def render(res):
 
 
 @click.command("closures")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.option("--model", "model_path", default=None, metavar="FIT.json|MODEL.toml",
               help="Compare the closures of this model (a fit result or a model file) with the data.")
 @click.option("--systematic", type=float, default=None, metavar="F",
@@ -90,6 +91,7 @@ def render(res):
 @click.option("--table", "table_out", default=None, metavar="OUT.ecsv",
               help="Write every closure quantity (time, stations, value, sigma, model) as ECSV.")
 @selection_options
+@read_options
 @force_option
 def command(data, model_path, systematic, snr_cut, full, covariance, json_out, table_out, force, **kwargs):
     """Closure phases and log closure amplitudes of DATA; with --model, whether they support it.
@@ -107,10 +109,11 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
     if json_out and table_out and os.path.abspath(json_out) == os.path.abspath(table_out):
         raise UvfitError("--json and --table name the same file", "give two different file names")
     selection = pop_selection(kwargs)
+    reading = pop_read_options(kwargs)
     if selection.get("average"):
         click.echo("note: averaging gives every row of a time bin the bin's common time; closures "
                    "are formed among rows with exactly the same time", err=True)
-    vset = load_data(data, selection)
+    vset = load_data(data, selection, read_options=reading)
     model, info = (None, {})
     if model_path:
         model, info = load_any_model(model_path)

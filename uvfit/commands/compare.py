@@ -4,7 +4,9 @@ import os
 import click
 
 from ..stats.modes import MODES
-from ._common import force_option, load_data, pop_selection, seed_option, selection_options
+from ._common import (
+    force_option, load_data, pop_read_options, pop_selection, read_options, seed_option,
+    selection_options)
 
 
 def print_compare(out, echo=click.echo):
@@ -29,7 +31,7 @@ def print_compare(out, echo=click.echo):
 
 
 @click.command("compare")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("models", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
               help="What is fitted (as for uvfit fit).")
@@ -43,6 +45,7 @@ def print_compare(out, echo=click.echo):
 @seed_option
 @force_option
 @selection_options
+@read_options
 def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, force, **kwargs):
     """Fit two or more MODELS to DATA and say whether the richer ones are required.
 
@@ -58,11 +61,12 @@ def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, f
     if len(models) < 2:
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
     selection = pop_selection(kwargs)
+    reading = pop_read_options(kwargs)
     if json_out:
         check_writable(json_out, force)
     skies = [load_model(m) for m in models]
     names = [os.path.splitext(os.path.basename(m))[0] for m in models]
-    vset = load_data(data, selection)
+    vset = load_data(data, selection, read_options=reading)
     if bootstrap > 0:
         with click.progressbar(length=bootstrap, label="bootstrap",
                                file=click.get_text_stream("stderr")) as bar:

@@ -2,7 +2,8 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import force_option, load_data, pop_selection, seed_option, selection_options
+from ._common import (force_option, load_data, pop_read_options, pop_selection, read_options,
+                      seed_option, selection_options)
 
 
 def _fmt(value, error=None):
@@ -61,7 +62,7 @@ def print_fit(out, echo=click.echo):
 
 
 @click.command("fit")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
               help="What is fitted: " + "; ".join(f"{k}: {v[2]}" for k, v in MODES.items()) + ".")
@@ -82,11 +83,16 @@ def print_fit(out, echo=click.echo):
               help="Write the full result as JSON here.")
 @click.option("--save-model", type=click.Path(dir_okay=False), default=None,
               help="Write the best-fit model (TOML) here.")
+@click.option("--write-model-column", is_flag=True,
+              help="Write the best-fit model visibilities into the Measurement Set's MODEL_DATA column "
+                   "(created if absent; DATA is never touched).")
 @seed_option
 @force_option
 @selection_options
+@read_options
 def command(data, model, mode, systematic, rescale_errors, starts, global_search, redshift,
-            max_evaluations, no_resolved_test, json_out, save_model, seed, force, **kwargs):
+            max_evaluations, no_resolved_test, json_out, save_model, seed, force,
+            write_model_column=False, **kwargs):
     """Fit MODEL (a TOML model file) to the visibilities in DATA by least squares.
 
     Prints every parameter with its error, the derived quantities (separations, position angles,
@@ -98,11 +104,15 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     from ..outputs import check_writable, write_json
 
     selection = pop_selection(kwargs)
+    reading = pop_read_options(kwargs)
     for path in (json_out, save_model):
         if path:
             check_writable(path, force)
+    if write_model_column:
+        from ..data.ms import check_model_column_writable
+        check_model_column_writable(data)
     sky = load_model(model)
-    vset = load_data(data, selection)
+    vset = load_data(data, selection, read_options=reading)
     if max_evaluations is not None and max_evaluations < 1:
         from ..errors import UvfitError
         raise UvfitError(f"--max-evaluations must be at least 1 (got {max_evaluations})")
@@ -125,3 +135,10 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
         from ..outputs import atomic_write
         atomic_write(save_model, out["model_toml"], force=force)
         click.echo(f"wrote {save_model}", err=True)
+    if write_model_column:
+        from ..data.ms import write_model_column as write_column
+        from ..sky.modelfile import loads
+        done = write_column(data, loads(out["model_toml"]), field=reading.get("field"),
+                            spw=reading.get("spw"))
+        click.echo(f"wrote the best-fit model into {done['column']} of {data} ({done['rows_written']} of "
+                   f"{done['rows_total']} rows{'; column created' if done['created'] else ''})", err=True)

@@ -2,7 +2,7 @@
 import click
 import numpy as np
 
-from ._common import force_option, pop_selection, selection_options
+from ._common import force_option, pop_read_options, pop_selection, read_data, read_options, selection_options
 
 _RAD_TO_MAS = 180.0 / np.pi * 3.6e6
 
@@ -45,7 +45,54 @@ def summarise(vset):
                 "n_autocorrelation_rows_flagged"):
         if key in vset.meta:
             s[key] = vset.meta[key]
+    if vset.meta.get("format") == "ms":
+        _ms_extras(vset, s)
     return s
+
+
+def _ms_extras(vset, s):
+    """Measurement Set facts for ``uvfit info``: data column, fields, spectral windows, antennas,
+    scans (from the rows' scan numbers, unflagged rows)."""
+    for key in ("ms_column", "ms_column_note", "ms_weights", "ms_fields", "ms_field", "ms_spws",
+                "ms_spws_read", "ms_antennas", "ms_rows_total"):
+        if key in vset.meta:
+            s[key] = vset.meta[key]
+    good = vset.subset(~vset.flag)
+    scans = []
+    if good.n:
+        numbers, inverse = np.unique(good.scan, return_inverse=True)
+        inverse = inverse.reshape(-1)
+        start = np.full(numbers.size, np.inf)
+        end = np.full(numbers.size, -np.inf)
+        np.minimum.at(start, inverse, good.time)
+        np.maximum.at(end, inverse, good.time)
+        count = np.bincount(inverse, minlength=numbers.size)
+        scans = [{"scan": int(n), "start_mjd": float(a), "end_mjd": float(b), "duration_s": float((b - a) * 86400.0),
+                  "n_visibilities": int(c)} for n, a, b, c in zip(numbers, start, end, count)]
+    s["scans"] = scans
+
+
+def _ms_lines(s):
+    """The extra lines of the human table for a Measurement Set."""
+    fields = s.get("ms_fields", [])
+    used = [f for f in fields if f.get("n_rows")]
+    spws = s.get("ms_spws", [])
+    read = set(s.get("ms_spws_read", []))
+    scans = s.get("scans", [])
+    rows = [
+        ("data column", s.get("ms_column_note", "-") + f"; weights from {s.get('ms_weights', '-')}"),
+        ("fields", f"{len(fields)}: " + ", ".join(
+            f"{f['id']} {f['name']}" + (" (read)" if f["id"] == s.get("ms_field") else "")
+            + ("" if f.get("n_rows") else " (no rows)") for f in fields) + (f"; {len(used)} with data" if len(used) != len(fields) else "")),
+        ("spectral windows", f"{len(spws)}: " + ", ".join(
+            f"{w['id']} {w['name'] or '-'} ({w['n_channels']} channels, "
+            f"{(w['frequency_min_hz'] or 0) / 1e9:.6g}-{(w['frequency_max_hz'] or 0) / 1e9:.6g} GHz)"
+            + (" (read)" if w["id"] in read else "") for w in spws)),
+        ("antennas", f"{len(s.get('ms_antennas', []))} in the ANTENNA table, {s['n_stations']} with data"),
+        ("scans", f"{len(scans)}: " + ", ".join(f"{c['scan']} ({c['duration_s']:.4g} s, {c['n_visibilities']} vis)"
+                                                for c in scans[:20]) + (" ..." if len(scans) > 20 else "")),
+    ]
+    return rows
 
 
 def render(s):
@@ -75,6 +122,8 @@ def render(s):
         ("median SNR", f"{s['median_snr']:.3g}  (median sigma {s['median_sigma_jy']:.3g} Jy)"
          if s.get("median_snr") is not None else "-"),
     ]
+    if s.get("file_format") == "ms":
+        rows += _ms_lines(s)
     width = max(len(k) for k, _ in rows)
     lines = [f"{k:<{width}}  {v}" for k, v in rows]
     for key in ("note_single_hand", "note_weights", "note_stations"):
@@ -84,10 +133,11 @@ def render(s):
 
 
 @click.command("info")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.option("--json", "json_out", default=None, metavar="OUT",
               help="Also write the summary as JSON to OUT ('-' writes the JSON to stdout instead of the table).")
 @selection_options
+@read_options
 @force_option
 def command(data, json_out, force, **kwargs):
     """Describe a visibility file: source, frequencies, stations, times, uv coverage, resolution.
@@ -95,12 +145,11 @@ def command(data, json_out, force, **kwargs):
     The resolution and largest scale are nominal (lambda over the longest and shortest projected
     baseline); what a fit can resolve also depends on the signal-to-noise ratio.
     """
-    from .. import read
     from ..data.select import apply_selection
     from ..outputs import to_json, write_json
 
     selection = {k: v for k, v in pop_selection(kwargs).items() if v not in (None, (), "")}
-    vset = read(data)
+    vset = read_data(data, pop_read_options(kwargs), echo=json_out != "-")
     if selection:
         vset, notes = apply_selection(vset, **selection)
         for note in notes:

@@ -7,7 +7,7 @@ KINDS = ("radial", "uv", "closure", "sky")
 
 
 @click.command("plot")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.option("--fit", "fit_path", required=True, type=click.Path(dir_okay=False),
               help="Fit output written by 'uvfit fit --json'; its model is drawn.")
 @click.option("--kind", required=True, type=click.Choice(KINDS),

@@ -5,7 +5,9 @@ import click
 
 from ..errors import UvfitError
 from ..stats.modes import MODES
-from ._common import force_option, load_data, pop_selection, seed_option, selection_options
+from ._common import (
+    force_option, load_data, pop_read_options, pop_selection, read_options, seed_option,
+    selection_options)
 
 
 @click.command("sample")
@@ -39,6 +41,7 @@ from ._common import force_option, load_data, pop_selection, seed_option, select
               help="Redshift for the rest-frame brightness temperatures.")
 @force_option
 @selection_options
+@read_options
 def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chain_path, resume,
             corner_path, json_path, order_by, starts, redshift, force, **kwargs):
     """Sample the posterior of MODEL's free parameters given the visibilities in DATA.
@@ -53,6 +56,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     from ..outputs import check_writable, write_json
 
     selection = pop_selection(kwargs)
+    reading = pop_read_options(kwargs)
     if procs < 1:
         raise UvfitError(f"--procs must be at least 1 (got {procs})")
     if walkers is not None and walkers < 2:
@@ -65,7 +69,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
             check_writable(path, force)
     previous = check_chain_file(chain_path, resume, force)
 
-    vset = load_data(data, selection)
+    vset = load_data(data, selection, read_options=reading)
     sky = load_model(model)
 
     todo = max(max_steps - previous, 0)

@@ -588,8 +588,10 @@ def check_model_column_writable(path):
         raise UvfitError(f"{path}: writing a model column needs a Measurement Set (a casacore table "
                          "folder)", "drop --write-model-column, or give the Measurement Set")
     casacore_tables()
-    targets = [path, os.path.join(path, "table.dat"), os.path.join(path, "table.lock")]
-    if not all(os.access(p, os.W_OK) for p in targets if os.path.exists(p)):
+    targets = [p for p in (path, os.path.join(path, "table.dat"), os.path.join(path, "table.lock"))
+               if os.path.exists(p)]
+    # not writable for this user, or marked read-only for everyone (which even root should respect)
+    if any(not os.access(p, os.W_OK) or not os.stat(p).st_mode & 0o222 for p in targets):
         raise UvfitError(f"{path}: the Measurement Set is read-only, so {MODEL_COLUMN} cannot be written",
                          "copy it somewhere writable (or make it writable) and run again")
 

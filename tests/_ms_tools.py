@@ -9,7 +9,7 @@ Geometry and visibilities are computed here, outside the reader, from their defi
   from astropy.time;
 - the visibility follows the textbook kernel V = sum_k F_k exp[-2 pi i (u l_k + v m_k)] with
   (u, v) the projection of x(b) - x(a) (TMS 2017, ch. 3) and l east, m north;
-- the stored UVW follow the Measurement Set definition (Kemball & Wieringa 2000, AIPS++ Note 229,
+- the stored UVW follow the Measurement Set definition (Kemball & Wieringa 2000, Measurement Set definition v2.0,
   wording from memory): "the uvw coordinates for the baseline from ANTENNA2 to ANTENNA1", i.e. the
   projection of x(a) - x(b).
 """

@@ -8,7 +8,7 @@ Sources of the expected values, named beside each check:
   28 antennas, one field, 64 channels, one scan;
 - TMS 2017 eq. 4.1 (from memory) with astropy's sidereal time for the geometry;
 - invented Measurement Sets written here with python-casacore (tests/_ms_tools.py: textbook
-  kernel, UVW as the Measurement Set definition states, Kemball & Wieringa 2000, AIPS++ Note 229).
+  kernel, UVW as the Measurement Set definition states, Kemball & Wieringa 2000, Measurement Set definition v2.0).
 """
 import os
 import shutil
@@ -142,7 +142,7 @@ def test_vla_point_fit_at_phase_centre():
 @pytest.mark.parametrize("feeds", ["circular", "linear"])
 def test_invented_double_fits_back_east_to_the_east(tmp_path, feeds):
     """Truth: tests/_ms_tools.py TRUTH (invented), visibilities from the textbook kernel, UVW as
-    the Measurement Set definition states (Note 229); within 3 errors, companion to the east."""
+    the Measurement Set definition states (Kemball & Wieringa 2000); within 3 errors, companion to the east."""
     from uvfit.infer.run import run_fit
     from uvfit.sky.model import SkyModel
     path = tmp_path / f"{feeds}.ms"

@@ -1,7 +1,6 @@
 """Measurement Sets (casacore tables): reader, chunked reading, and the model-column writer.
 
-The format is the Measurement Set definition version 2.0 (Kemball & Wieringa 2000, AIPS++ Note
-229): a directory holding the main table (one row per time and baseline) and sub-tables. The
+The format is the Measurement Set definition version 2.0 (Kemball & Wieringa 2000): a directory holding the main table (one row per time and baseline) and sub-tables. The
 reader uses, from the main table, ``UVW`` (m), ``TIME`` (s, MJD seconds, UTC), ``ANTENNA1/2``,
 ``FLAG`` (per channel and correlation), ``FLAG_ROW``, ``WEIGHT``/``SIGMA`` (per correlation) and
 ``WEIGHT_SPECTRUM``/``SIGMA_SPECTRUM`` (per channel and correlation) where present,
@@ -41,7 +40,7 @@ from .uvfits import MS_ORIENTATION_NOTE, _ms_to_sky_convention, _stokes_i
 from .visset import StationTable, VisibilitySet
 
 C_LIGHT = 299792458.0            # m/s (exact, SI)
-SECONDS_PER_DAY = 86400.0        # TIME is MJD in seconds (Note 229; common practice)
+SECONDS_PER_DAY = 86400.0        # TIME is MJD in seconds (MS definition v2.0; common practice)
 SUBTABLES = ("ANTENNA", "FIELD", "SPECTRAL_WINDOW", "POLARIZATION", "DATA_DESCRIPTION")
 DATA_COLUMNS = ("CORRECTED_DATA", "DATA", "MODEL_DATA")
 MODEL_COLUMN = "MODEL_DATA"

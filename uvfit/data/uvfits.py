@@ -90,7 +90,7 @@ def _ms_to_sky_convention(u, v, w, vis):
     Measurement Set reader (uvfit.data.ms) and its model-column writer call only this function.
 
     What the Measurement Set definition says (Kemball & Wieringa 2000, MeasurementSet definition
-    version 2.0, AIPS++ Note 229; wording from memory): a row's ``UVW`` (m) are "the uvw
+    version 2.0; wording from memory): a row's ``UVW`` (m) are "the uvw
     coordinates for the baseline from ANTENNA2 to ANTENNA1", i.e. the vector that starts at
     ANTENNA2 and ends at ANTENNA1, x(ANTENNA1) - x(ANTENNA2), in the frame of the field's
     PHASE_DIR; the correlation in ``DATA`` is ANTENNA1 times the conjugate of ANTENNA2. (The same

@@ -233,9 +233,13 @@ def test_fit_write_model_column_cli_and_read_only(invented, tmp_path):
     model.write_text('angular_unit = "arcsec"\n[[component]]\nname = "a"\nshape = "point"\nflux = 1.0\n'
                      'east = 0.0\nnorth = 0.0\n[[component]]\nname = "b"\nshape = "point"\nflux = 0.25\n'
                      'east = 0.55\nnorth = -0.2\n')
-    out = cli("fit", path, model, "--write-model-column", "--no-resolved-test")
+    out = cli("fit", path, model, "--write-model-column", "--no-resolved-test", "--spw", "BAND0",
+              "--json", tmp_path / "fit.json")
     assert out.returncode == 0, out.stderr
     assert "MODEL_DATA" in out.stderr and "column created" in out.stderr
+    import json
+    read = json.loads((tmp_path / "fit.json").read_text())["read_options"]
+    assert read == {"spw": [0], "column": "CORRECTED_DATA", "field": 0}
     ro = tmp_path / "ro.ms"
     shutil.copytree(src, ro)
     for root, dirs, files in os.walk(ro):

@@ -127,6 +127,9 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     else:
         out = run_fit(vset, sky, **common)
     out["model_file"] = str(model)
+    if vset.meta.get("format") == "ms":      # what was read from a Measurement Set (only then)
+        out["read_options"] = dict(reading, column=vset.meta["ms_column"], field=vset.meta["ms_field"],
+                                   spw=list(vset.meta["ms_spws_read"]))
     print_fit(out)
     if json_out:
         write_json(json_out, out, force=force)

@@ -9,8 +9,8 @@ parameter's column).
 import math
 from dataclasses import dataclass
 
-import numpy as np
 import astropy.units as un
+import numpy as np
 
 #: kind of each component-level parameter
 COMPONENT_KINDS = {"flux": "flux", "east": "length", "north": "length", "spectral_index": "ratio"}

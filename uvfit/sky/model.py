@@ -377,7 +377,7 @@ class SkyModel:
                 and list(self.parameters) == list(other.parameters)
                 and all(a.same_as(b) for a, b in zip(self.parameters.values(), other.parameters.values())))
 
-    __hash__ = None
+    __hash__ = None  # type: ignore[assignment]  # equal models are mutable: not hashable
 
     def __repr__(self):
         comps = ", ".join(f"{c.name}:{c.key}" for c in self.components)

@@ -447,7 +447,7 @@ def _build(cls, components, angular_unit="mas", description=None):
 
 
 # the model's conveniences for files, provided here so that uvfit.sky.model needs no file code
-SkyModel.build = classmethod(_build)
-SkyModel.from_components = SkyModel.build
-SkyModel.to_toml = model_to_toml
-SkyModel.save = save_model
+SkyModel.build = classmethod(_build)  # type: ignore[attr-defined]  # attached here: sky.model has no file code
+SkyModel.from_components = SkyModel.build  # type: ignore[attr-defined]  # same
+SkyModel.to_toml = model_to_toml  # type: ignore[attr-defined]  # same
+SkyModel.save = save_model  # type: ignore[attr-defined]  # same

@@ -149,11 +149,11 @@ class Parameter:
     min: float = -math.inf
     max: float = math.inf
     fixed: bool = False
-    tie: str = None
-    prior: Prior = None
+    tie: str | None = None
+    prior: Prior | None = None
     unit: object = None
     kind: str = "ratio"
-    note: str = None
+    note: str | None = None
 
     @property
     def component(self):

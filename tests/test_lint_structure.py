@@ -60,7 +60,7 @@ def _cycle(graph, skip_parents=True):
             if skip_parents and node.startswith(nxt + "."):
                 continue
             if state.get(nxt) == 1:
-                return stack[stack.index(nxt):] + [nxt]
+                return stack[stack.index(nxt) :] + [nxt]
             if nxt not in state:
                 found = visit(nxt)
                 if found:

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from typing import Any, Callable, Iterable, Optional, Sequence, Union
+from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union
 
 from .data.select import parse_time, read_selected
 from .data.visset import VisibilitySet
@@ -29,7 +29,7 @@ Model = Union[SkyModel, str, "os.PathLike[str]"]
 Progress = Optional[Callable[[int], Any]]
 
 
-def _is_path(x: Any) -> bool:
+def _is_path(x: Any) -> TypeGuard[str | os.PathLike[str]]:
     return isinstance(x, str) or hasattr(x, "__fspath__")
 
 

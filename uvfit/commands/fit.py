@@ -2,8 +2,7 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
 
 
 @click.command("fit")
@@ -58,7 +57,8 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
                    selection=selection, resolved_test=not no_resolved_test,
                    max_evaluations=max_evaluations)
     total = starts + (1 if global_search else 0)
-    with as_options(max_evaluations="--max-evaluations"):
+    with as_options(max_evaluations="--max-evaluations", starts="--starts", global_search="--global-search",
+                    rescale_errors="--rescale-errors"):
         if total > 1:
             with progressbar(total, "fitting") as bar:
                 report = tasks.fit(data, model, progress=bar.update, **options)

@@ -3,6 +3,7 @@ import click
 
 from ._common import echo_notes, force_option, pop_selection, selection_options
 
+
 @click.command("info")
 @click.argument("data", type=click.Path())
 @click.option("--json", "json_out", default=None, metavar="OUT",

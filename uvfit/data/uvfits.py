@@ -390,7 +390,7 @@ def _jd_to_mjd(parts, header):
         try:
             start = Time(str(header.get("DATE-OBS", "")).strip()[:10], scale="utc").mjd
         except Exception:
-            raise DataError("the DATE parameters hold no Julian date and DATE-OBS is missing or unreadable")
+            raise DataError("the DATE parameters hold no Julian date and DATE-OBS is missing or unreadable") from None
         return (start + big) + rest
     return (big - MJD_ZERO_JD) + rest
 
@@ -412,7 +412,7 @@ def read_uvfits(path, source=None):
         raise
     except MemoryError:
         raise DataError(f"{path}: the header describes more data than fits in memory",
-                        "the file is probably corrupted")
+                        "the file is probably corrupted") from None
     except Exception as exc:  # astropy raises many kinds for damaged files
         raise DataError(f"{path}: not a readable UVFITS file ({type(exc).__name__}: {exc})",
                         "check that the file is complete and is FITS random groups") from None
@@ -683,8 +683,9 @@ def write_uvfits(vset, path, force=False):
     table (ANNAME, STABXYZ, NOSTA = position + 1); the frequency table the IF offsets and widths
     (widths from ``meta['channel_width_hz']`` where known, else NaN).
     """
-    from ..outputs import atomic_write_with
     from astropy.io import fits
+
+    from ..outputs import atomic_write_with
 
     if vset.n == 0:
         raise DataError("nothing to write: the visibility set is empty")

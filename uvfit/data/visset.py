@@ -29,7 +29,7 @@ class StationTable:
     """Names of the stations, and their geocentric positions (m, NaN where unknown)."""
 
     names: list
-    xyz: np.ndarray = None
+    xyz: np.ndarray | None = None
 
     def __post_init__(self):
         self.names = [str(n) for n in self.names]
@@ -64,11 +64,11 @@ class VisibilitySet:
     station2: np.ndarray
     vis: np.ndarray
     sigma: np.ndarray
-    flag: np.ndarray = None
-    channel: np.ndarray = None
-    integration: np.ndarray = None
-    scan: np.ndarray = None
-    stations: StationTable = None
+    flag: np.ndarray | None = None
+    channel: np.ndarray | None = None
+    integration: np.ndarray | None = None
+    scan: np.ndarray | None = None
+    stations: StationTable | None = None
     source: str = "unknown"
     ra_deg: float = float("nan")
     dec_deg: float = float("nan")

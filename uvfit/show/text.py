@@ -150,8 +150,8 @@ def closures_text(res):
 def _sexagesimal(ra_deg, dec_deg):
     if not (np.isfinite(ra_deg) and np.isfinite(dec_deg)):
         return "unknown"
-    from astropy.coordinates import Angle
     import astropy.units as u
+    from astropy.coordinates import Angle
     ra = Angle(ra_deg, u.deg).to_string(unit=u.hourangle, sep="hms", precision=4, pad=True)
     dec = Angle(dec_deg, u.deg).to_string(unit=u.deg, sep="dms", precision=3, alwayssign=True, pad=True)
     return f"RA {ra}  Dec {dec}  (J2000; {ra_deg:.6f} deg, {dec_deg:+.6f} deg)"

@@ -26,7 +26,7 @@ from uvfit.data import ms as msmod  # noqa: E402
 from uvfit.errors import UvfitError  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from _ms_tools import TRUTH, tms_projection, textbook_double, write_invented_ms  # noqa: E402
+from _ms_tools import TRUTH, textbook_double, tms_projection, write_invented_ms  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 DATA = ROOT / "tests" / "data"
@@ -242,7 +242,7 @@ def test_fit_write_model_column_cli_and_read_only(invented, tmp_path):
     assert read == {"spw": [0], "column": "CORRECTED_DATA", "field": 0}
     ro = tmp_path / "ro.ms"
     shutil.copytree(src, ro)
-    for root, dirs, files in os.walk(ro):
+    for root, _dirs, files in os.walk(ro):
         for f in files:
             os.chmod(os.path.join(root, f), 0o444)
     os.chmod(ro, 0o555)

@@ -33,9 +33,9 @@ def sniff(path):
 
 
 def _readers():
+    from .ms import read_ms
     from .table import read_table
     from .uvfits import read_uvfits
-    from .ms import read_ms
     return {"uvfits": read_uvfits, "ecsv": read_table, "ms": read_ms}
 
 

@@ -561,7 +561,7 @@ def iter_ms(path, chunk_rows=DEFAULT_CHUNK_ROWS, column=None, field=None, spw=No
     try:
         for a in range(start, stop, chunk_rows):
             b = min(a + chunk_rows, stop)
-            vset = _guarded(path, lambda: _read_range(layout, main, a, b))
+            vset = _guarded(path, lambda a=a, b=b: _read_range(layout, main, a, b))
             if vset is not None:
                 yield vset
     finally:

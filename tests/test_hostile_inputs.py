@@ -176,3 +176,42 @@ def test_unphysical_models_refused(body, key):
 def test_non_finite_chi2_is_no_verdict(chi2):
     ok, words = _judge("closure phases", chi2, 10, False)
     assert ok is False and "no verdict" in words
+
+
+def _uvfits(tmp_path, edit=None, name="s.uvfits"):
+    """A UVFITS file from uvfit's writer, its antenna table changed by ``edit(data)``."""
+    from astropy.io import fits
+    from uvfit.data.io import write
+    path = tmp_path / name
+    write(_rows(), path)
+    if edit is not None:
+        with fits.open(path, mode="update") as hdul:
+            for hdu in hdul[1:]:
+                if hdu.header.get("EXTNAME", "").strip() == "AIPS AN":
+                    edit(hdu.data)
+    return path
+
+
+ANTENNA_EDITS = [
+    ("twice", lambda d: d["NOSTA"].__setitem__(1, d["NOSTA"][0])),
+    ("twice", lambda d: d["NOSTA"].__setitem__(3, d["NOSTA"][2])),
+    ("name", lambda d: d["ANNAME"].__setitem__(1, d["ANNAME"][0])),
+    ("name", lambda d: d["ANNAME"].__setitem__(3, d["ANNAME"][0])),
+]
+
+
+@pytest.mark.parametrize("what,edit", ANTENNA_EDITS)
+def test_ambiguous_antenna_table_refused(tmp_path, what, edit):
+    res = _info(_uvfits(tmp_path, edit))
+    assert res.exit_code == 2 and what in res.output and "row" in res.output
+
+
+@pytest.mark.parametrize("cut", [10, 100, 1000, 2000, 2880, 4000, 6000, 9000])
+def test_truncated_uvfits_refused(tmp_path, cut):
+    path = _uvfits(tmp_path)
+    data = path.read_bytes()
+    cut_at = len(data) - cut
+    path.write_bytes(data[:cut_at])
+    res = _info(path)
+    # FITS files are whole 2880-byte blocks (FITS standard): a file cut anywhere is refused
+    assert res.exit_code == 2 and "truncated" in res.output, res.output

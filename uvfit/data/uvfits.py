@@ -137,6 +137,12 @@ def _scan_structure(path):
     that the file really holds. Returns ``[(cards, data_offset, data_bytes), ...]``.
     """
     size = os.path.getsize(path)
+    if size % _BLOCK:
+        # FITS files are whole 2880-byte blocks: a shorter last block means a lost tail, which may
+        # hold a whole table (the frequency table: every IF would read at the reference frequency)
+        _fail(path, f"is truncated: {size} bytes is not a whole number of 2880-byte FITS blocks "
+                    f"({size % _BLOCK} bytes of a last block; trailing tables may be missing)",
+              "copy or download the file again")
     units = []
     with open(path, "rb") as handle:
         offset = 0

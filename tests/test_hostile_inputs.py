@@ -1,28 +1,38 @@
 """Hostile and broken input files, built here: each is refused with one clear line (exit code 2)
 or its bad rows are flagged with a count and a reason. Expected outcomes: uvfit's own rules
 (README "Cautions"); the YAML alias expansion and FITS block layout are common practice."""
+
 import numpy as np
 import pytest
-
 from helpers.arrays import observe
+
 from uvfit.cli import main
 from uvfit.data.table import write_table
-from uvfit.sky.modelfile import loads
 from uvfit.errors import ModelError
+from uvfit.sky.modelfile import loads
 from uvfit.stats.closures.check import _judge
 
 
 def _rows(n=12, **change):
     rng = np.random.default_rng(1)
     names = ["AA", "BB", "CC", "DD"]
-    pairs = [(a, b) for i, a in enumerate(names) for b in names[i + 1:]]
+    pairs = [(a, b) for i, a in enumerate(names) for b in names[i + 1 :]]
     s1 = [pairs[i % 6][0] for i in range(n)]
     s2 = [pairs[i % 6][1] for i in range(n)]
     t = 60000.0 + np.arange(n) // 6 * 0.01
     kw = dict(u=rng.normal(0, 1e9, n), v=rng.normal(0, 1e9, n), station1=s1, station2=s2, time=t)
     kw.update(change)
-    return observe(kw.pop("u"), kw.pop("v"), kw.pop("station1"), kw.pop("station2"), kw.pop("time"),
-                   frequency=kw.pop("frequency", 2.3e11), sigma=0.01, vis=np.ones(n) + 0j, **kw)
+    return observe(
+        kw.pop("u"),
+        kw.pop("v"),
+        kw.pop("station1"),
+        kw.pop("station2"),
+        kw.pop("time"),
+        frequency=kw.pop("frequency", 2.3e11),
+        sigma=0.01,
+        vis=np.ones(n) + 0j,
+        **kw,
+    )
 
 
 class _Result:
@@ -34,6 +44,7 @@ def _info(path):
     """Run `uvfit info PATH` through the entry point (which turns errors into exit code 2)."""
     import contextlib
     import io
+
     out = io.StringIO()
     code = 0
     with contextlib.redirect_stdout(out), contextlib.redirect_stderr(out):
@@ -69,9 +80,15 @@ def test_bad_frequency_refused(tmp_path, f):
 
 
 FLAGGED = [
-    ("u", np.nan, "non-finite u"), ("u", np.inf, "non-finite u"), ("v", np.nan, "non-finite u"),
-    ("v", -np.inf, "non-finite u"), ("u", 1e30, "above"), ("v", -1e30, "above"), ("u", 2e15, "above"),
-    ("time", np.nan, "non-finite time"), ("time", np.inf, "non-finite time"),
+    ("u", np.nan, "non-finite u"),
+    ("u", np.inf, "non-finite u"),
+    ("v", np.nan, "non-finite u"),
+    ("v", -np.inf, "non-finite u"),
+    ("u", 1e30, "above"),
+    ("v", -1e30, "above"),
+    ("u", 2e15, "above"),
+    ("time", np.nan, "non-finite time"),
+    ("time", np.inf, "non-finite time"),
 ]
 
 
@@ -81,6 +98,7 @@ def test_bad_values_flagged_with_reason(tmp_path, column, value, reason):
     getattr(vs, column)[[2, 5]] = value
     path = _ecsv(tmp_path, "x.ecsv", vs)
     from uvfit.data.io import read
+
     got = read(path)
     reasons = got.meta["flagged_reasons"]
     assert sum(n for k, n in reasons.items() if reason in k) == 2
@@ -94,6 +112,7 @@ def test_autocorrelations_flagged(tmp_path, n_auto):
     vs = _rows()
     vs.station2[:n_auto] = vs.station1[:n_auto]
     from uvfit.data.io import read
+
     got = read(_ecsv(tmp_path, "a.ecsv", vs))
     assert got.meta["flagged_reasons"]["autocorrelation (station1 = station2)"] == n_auto
 
@@ -105,8 +124,9 @@ def test_repeated_rows_flagged(tmp_path, n_rep):
     write_table(vs, path)
     lines = path.read_text().splitlines()
     body = [l for l in lines if not l.startswith("#")]
-    path.write_text("\n".join(lines + body[1:1 + n_rep]) + "\n")
+    path.write_text("\n".join(lines + body[1 : 1 + n_rep]) + "\n")
     from uvfit.data.io import read
+
     got = read(path)
     assert sum(v for k, v in got.meta["flagged_reasons"].items() if "repeat" in k) == n_rep
 
@@ -181,7 +201,9 @@ def test_non_finite_chi2_is_no_verdict(chi2):
 def _uvfits(tmp_path, edit=None, name="s.uvfits"):
     """A UVFITS file from uvfit's writer, its antenna table changed by ``edit(data)``."""
     from astropy.io import fits
+
     from uvfit.data.io import write
+
     path = tmp_path / name
     write(_rows(), path)
     if edit is not None:

@@ -85,3 +85,12 @@ def unit_text(param):
     unit = getattr(param, "unit", param)
     text = "" if unit is None else str(unit)
     return "" if text in ("", "dimensionless") else text
+
+
+def printable(text):
+    """``text`` with control characters (terminal escape sequences among them) shown escaped,
+    e.g. ESC as \\x1b, so that a name read from a file cannot drive the terminal."""
+    text = str(text)
+    if text.isprintable():
+        return text
+    return "".join(c if c.isprintable() else c.encode("unicode_escape").decode("ascii") for c in text)

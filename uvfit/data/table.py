@@ -10,13 +10,14 @@ Floating-point columns are written with full double precision, so a round trip i
 
 import json
 import os
+import re
 import warnings
 
 import numpy as np
 
 from ..errors import DataError, UvfitError
 from ..outputs import _to_builtin, atomic_write_with
-from .visset import StationTable, VisibilitySet
+from .visset import StationTable, VisibilitySet, screen_rows
 
 FORMAT_NAME = "uvfit visibility table"
 FORMAT_VERSION = 1
@@ -86,11 +87,42 @@ def _num(x):
     return float(x)
 
 
+MAX_HEADER_BYTES = 4 * 1024 * 1024
+_YAML_NODE_REFERENCE = re.compile(r"(^|[\s\[{,:-])[&*][A-Za-z0-9_.-]")
+
+
+def _check_header(path):
+    """Refuse a YAML header that could expand without bound before the parser sees it.
+
+    The header (the leading '#' lines) is capped at MAX_HEADER_BYTES, and YAML anchors and aliases
+    ('&name', '*name') are refused: a small header of nested aliases expands to gigabytes.
+    The project's writer never makes either.
+    """
+    size = 0
+    with open(path, "rb") as handle:
+        for number, line in enumerate(handle, start=1):
+            if not line.startswith(b"#"):
+                break
+            size += len(line)
+            if size > MAX_HEADER_BYTES:
+                raise DataError(
+                    f"{path}: the ECSV header is larger than {MAX_HEADER_BYTES} bytes",
+                    "a visibility table's header holds a few columns and station names",
+                )
+            text = line[1:].decode("utf-8", errors="replace")
+            if "'" not in text and '"' not in text and _YAML_NODE_REFERENCE.search(text):
+                raise DataError(
+                    f"{path}: the ECSV header uses a YAML anchor or alias (line {number})",
+                    "uvfit refuses them (they can expand without bound); write the values out",
+                )
+
+
 def read_table(path):
     """Read an ECSV visibility table written by :func:`write_table` (or by hand, same columns)."""
     from astropy.table import Table
 
     path = os.fspath(path)
+    _check_header(path)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -157,4 +189,4 @@ def read_table(path):
             list(vset.stations.names) + unknown, np.vstack([vset.stations.xyz, np.full((len(unknown), 3), np.nan)])
         )
     vset.meta.setdefault("format", "ecsv")
-    return vset
+    return screen_rows(vset, path)

@@ -25,7 +25,8 @@ import warnings
 import numpy as np
 
 from ..errors import DataError, UvfitError
-from .visset import StationTable, VisibilitySet
+from ..labels import printable
+from .visset import StationTable, VisibilitySet, screen_rows
 
 # Extension names of the standard tables, matched as strings.
 ANTENNA_EXTNAME = "AIPS AN"
@@ -173,6 +174,8 @@ def _axes(header, path):
     return axes, unnamed
 
 
+MAX_STATION_NAME = 64  # characters; names of real stations are short (common practice)
+
 _BLOCK = 2880
 _MAX_HEADER_BLOCKS = 4000
 
@@ -194,6 +197,15 @@ def _scan_structure(path):
     that the file really holds. Returns ``[(cards, data_offset, data_bytes), ...]``.
     """
     size = os.path.getsize(path)
+    if size % _BLOCK:
+        # FITS files are whole 2880-byte blocks: a shorter last block means a lost tail, which may
+        # hold a whole table (the frequency table: every IF would read at the reference frequency)
+        _fail(
+            path,
+            f"is truncated: {size} bytes is not a whole number of 2880-byte FITS blocks "
+            f"({size % _BLOCK} bytes of a last block; trailing tables may be missing)",
+            "copy or download the file again",
+        )
     units = []
     with open(path, "rb") as handle:
         offset = 0
@@ -205,8 +217,15 @@ def _scan_structure(path):
                 if block == 0 and units and not chunk.startswith(b"XTENSION="):
                     return units  # padding or stray bytes after the last unit
                 if len(chunk) < _BLOCK:
+                    if units and not chunk.strip(b"\0 "):
+                        return units  # blank padding after the last unit
                     if units:
-                        return units  # an incomplete trailing unit: astropy skips it too
+                        _fail(
+                            path,
+                            f"is truncated inside the header of extension {len(units)} "
+                            "(after the visibilities; e.g. the antenna or frequency table)",
+                            "copy or download the file again",
+                        )
                     _fail(
                         path,
                         "is truncated or damaged inside a FITS header (the header ends early)",
@@ -285,9 +304,32 @@ def _read_stations(hdul, path):
             _fail(path, f"the antenna table (subarray {sub}) has no ANNAME or NOSTA column")
         pos = _table_column(hdu, "STABXYZ")
         centre = np.array([float(hdu.header.get(k, 0.0) or 0.0) for k in ("ARRAYX", "ARRAYY", "ARRAYZ")])
+        seen = {}
         for i, (nm, no) in enumerate(zip(anname, nosta)):
-            nm = nm.decode() if isinstance(nm, bytes) else str(nm)
+            nm = nm.decode(errors="replace") if isinstance(nm, bytes) else str(nm)
             nm = nm.strip() or f"{int(no)}"
+            if len(nm) > MAX_STATION_NAME:
+                _fail(
+                    path,
+                    f"the antenna table (subarray {sub}) row {i + 1} has a station name of "
+                    f"{len(nm)} characters (at most {MAX_STATION_NAME} accepted)",
+                    "the antenna table is damaged",
+                )
+            if (sub, int(no)) in lookup:
+                _fail(
+                    path,
+                    f"the antenna table (subarray {sub}) gives station number {int(no)} twice "
+                    f"(rows {seen[int(no)] + 1} and {i + 1})",
+                    "each station needs its own number; the data cannot be labelled",
+                )
+            if nm in [v for (s_, _), v in lookup.items() if s_ == sub]:
+                _fail(
+                    path,
+                    f"the antenna table (subarray {sub}) gives the name '{printable(nm)}' to two "
+                    f"stations (row {i + 1} and an earlier one)",
+                    "each station needs its own name, else its baselines look like autocorrelations",
+                )
+            seen[int(no)] = i
             lookup[(sub, int(no))] = nm
             if nm not in names:
                 names.append(nm)
@@ -702,8 +744,11 @@ def _read(path, source):
         if fq_hint:
             meta["note_axes"] = fq_hint
         stations = StationTable(names, np.array(xyz, float).reshape(len(names), 3) if names else None)
-        return VisibilitySet(
-            flag=flag, stations=stations, source=src_name, ra_deg=float(ra), dec_deg=float(dec), meta=meta, **rows
+        return screen_rows(
+            VisibilitySet(
+                flag=flag, stations=stations, source=src_name, ra_deg=float(ra), dec_deg=float(dec), meta=meta, **rows
+            ),
+            path,
         )
 
 

@@ -246,4 +246,57 @@ class VisibilitySet:
         out["median_sigma_jy"] = float(np.median(good.sigma)) if good.n else None
         integ = good.integration[np.isfinite(good.integration)] if good.n else good.integration
         out["median_integration_s"] = float(np.median(integ)) if integ.size else None
+        if self.meta.get("flagged_reasons"):
+            out["flagged_reasons"] = dict(self.meta["flagged_reasons"])
         return out
+
+
+# Largest |u|, |v| a row may have, in wavelengths: 1e15 is far beyond any baseline (Earth-space
+# baselines at the highest radio frequencies are ~1e11 wavelengths; common practice).
+MAX_UV_LAMBDA = 1.0e15
+
+
+def screen_rows(vset, path):
+    """Flag the rows a reader must not use, counting each reason in ``meta["flagged_reasons"]``.
+
+    Flagged (with a count): non-finite u, v, w or time, |u| or |v| above MAX_UV_LAMBDA,
+    autocorrelations (station1 == station2), and every repeat of a row with the same time,
+    stations, channel and frequency (the first is kept). Refused (DataError naming the file):
+    a non-finite, zero or negative frequency, which would make every (u, v) of the row wrong.
+    Rows flagged in the file stay flagged and are not counted here.
+    """
+    freq = vset.frequency
+    bad_f = ~np.isfinite(freq) | (freq <= 0)
+    if bad_f.any():
+        raise DataError(
+            f"{path}: {int(bad_f.sum())} row(s) have a zero, negative or non-finite "
+            f"frequency (first at row {int(np.argmax(bad_f))})",
+            "frequencies must be positive, in Hz",
+        )
+    reasons = {}
+    with np.errstate(invalid="ignore"):
+        checks = [
+            ("non-finite u, v or w", ~(np.isfinite(vset.u) & np.isfinite(vset.v) & np.isfinite(vset.w))),
+            ("non-finite time", ~np.isfinite(vset.time)),
+            (
+                f"|u| or |v| above {MAX_UV_LAMBDA:g} wavelengths",
+                (np.abs(vset.u) > MAX_UV_LAMBDA) | (np.abs(vset.v) > MAX_UV_LAMBDA),
+            ),
+            ("autocorrelation (station1 = station2)", vset.station1 == vset.station2),
+        ]
+    if vset.n:
+        keys = np.rec.fromarrays([vset.time, vset.station1, vset.station2, vset.channel, vset.frequency])
+        _, first = np.unique(keys, return_index=True)
+        dup = np.ones(vset.n, bool)
+        dup[first] = False
+        checks.append(("repeat of an earlier row (same time, stations, channel, frequency)", dup))
+    flag = vset.flag.copy()
+    for reason, mask in checks:
+        new = mask & ~flag
+        if new.any():
+            reasons[reason] = int(new.sum())
+            flag |= new
+    vset.flag = flag
+    if reasons:
+        vset.meta["flagged_reasons"] = reasons
+    return vset

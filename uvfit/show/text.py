@@ -7,7 +7,7 @@ be printed again from a file written by ``--json``.
 
 import numpy as np
 
-from ..labels import SAMPLE_CAUTION
+from ..labels import SAMPLE_CAUTION, printable
 
 _RAD_TO_MAS = 180.0 / np.pi * 3.6e6
 
@@ -244,13 +244,17 @@ def info_text(s):
     end = (s.get("time_end_utc") or "-").replace("T", " ")[:19]
     span = s.get("time_span_hours")
     rows = [
-        ("source", s["source"]),
+        ("source", printable(s["source"])),
         ("phase centre", _sexagesimal(s["ra_deg"], s["dec_deg"])),
         ("frequency", ftext),
         ("polarization", f"Stokes I from {s['stokes']}"),
-        ("stations", f"{s['n_stations']}: {' '.join(s['stations'])}"),
+        ("stations", f"{s['n_stations']}: {' '.join(printable(n) for n in s['stations'])}"),
         ("baselines", f"{s['n_baselines']}"),
-        ("visibilities", f"{s['n_visibilities']} usable, {s['n_flagged']} flagged"),
+        (
+            "visibilities",
+            f"{s['n_visibilities']} usable, {s['n_flagged']} flagged"
+            + "".join(f"; {k}: {n}" for k, n in (s.get("flagged_reasons") or {}).items()),
+        ),
         ("time (UTC)", f"{start} to {end} ({span:.2f} h)" if span is not None else "-"),
         ("integration", f"{s['median_integration_s']:.3g} s (median)" if s.get("median_integration_s") else "-"),
         ("uv distance", f"{_uv(s['uv_min_lambda'])} to {_uv(s['uv_max_lambda'])}"),

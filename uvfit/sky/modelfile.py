@@ -241,6 +241,9 @@ def _component(table, i, loc, unit, names):
         params[f"{name}.{local}"] = _parameter(
             table.get(local), name, local, kind, unit, err, comp.default_bounds(local), comp.default_value(local)
         )
+    values = {local: params[f"{name}.{local}"].value for local in comp.parameter_names()}
+    for local, reason in comp.shape.invalid_values(values):
+        raise err(f"{reason}: not a physical brightness", "correct the start values", key=local)
     return comp, params
 
 

@@ -144,6 +144,11 @@ class Shape:
         Default: none."""
         return ()
 
+    def invalid_values(self, p):
+        """[(parameter, reason)] for values that describe no physical brightness (checked when a
+        model is loaded, beyond the per-parameter bounds). ``p`` in model units. Default: none."""
+        return []
+
     def default_value(self, name):
         """(value, fixed) for a parameter that a model file may leave out, or None when required.
         Default: every parameter is required."""

@@ -46,6 +46,17 @@ class Shell(Shape):
     real_when_centred = True
     bounds = {"inner_radius": (0.0, np.inf), "outer_radius": (0.0, np.inf)}
 
+    def invalid_values(self, p):
+        """An inner radius above the outer one describes no shell."""
+        if p["inner_radius"] > p["outer_radius"]:
+            return [
+                (
+                    "inner_radius",
+                    f"the inner radius {p['inner_radius']!r} is larger than the outer radius {p['outer_radius']!r}",
+                )
+            ]
+        return []
+
     def size_parameter(self):
         """The outer radius is the shell's size."""
         return "outer_radius"

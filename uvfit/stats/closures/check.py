@@ -59,6 +59,13 @@ def _judge(what, chi2, n, full):
     """(ok: bool or None, words) for a chi2 over n closures."""
     if n == 0:
         return None, f"no {what}"
+    if chi2 is None or not np.isfinite(chi2):
+        # a non-finite statistic is never a verdict: the model or the data cannot be evaluated
+        return False, (
+            f"{what}: chi2 is {chi2} over {n} -> no verdict: the model's visibilities "
+            "vanish or are not finite on some baselines, or the data hold non-finite "
+            "values"
+        )
     red = chi2 / n
     spread = np.sqrt(2.0 / n)
     text = f"{what}: reduced chi2 {red:.3g} over {n} (expected 1 +/- {spread:.2g})"
@@ -165,7 +172,7 @@ def check_closures(
     out["worst_quadrangles"] = out["per_quadrangle"][:worst]
     out["worst_stations"] = out["per_station"][:worst]
     ok_p, t_p = _judge("closure phases", tot["phase"], cp.n, full)
-    ok_a, t_a = _judge("log closure amplitudes", tot["amplitude"] or 0.0, ca.n, full)
+    ok_a, t_a = _judge("log closure amplitudes", 0.0 if tot["amplitude"] is None else tot["amplitude"], ca.n, full)
     supported = bool(ok_p and ok_a is not False)
     if supported:
         head = "The closure quantities support the fitted structure."

@@ -1,0 +1,239 @@
+"""Hostile and broken input files, built here: each is refused with one clear line (exit code 2)
+or its bad rows are flagged with a count and a reason. Expected outcomes: uvfit's own rules
+(README "Cautions"); the YAML alias expansion and FITS block layout are common practice."""
+
+import numpy as np
+import pytest
+from helpers.arrays import observe
+
+from uvfit.cli import main
+from uvfit.data.table import write_table
+from uvfit.errors import ModelError
+from uvfit.sky.modelfile import loads
+from uvfit.stats.closures.check import _judge
+
+
+def _rows(n=12, **change):
+    rng = np.random.default_rng(1)
+    names = ["AA", "BB", "CC", "DD"]
+    pairs = [(a, b) for i, a in enumerate(names) for b in names[i + 1 :]]
+    s1 = [pairs[i % 6][0] for i in range(n)]
+    s2 = [pairs[i % 6][1] for i in range(n)]
+    t = 60000.0 + np.arange(n) // 6 * 0.01
+    kw = dict(u=rng.normal(0, 1e9, n), v=rng.normal(0, 1e9, n), station1=s1, station2=s2, time=t)
+    kw.update(change)
+    return observe(
+        kw.pop("u"),
+        kw.pop("v"),
+        kw.pop("station1"),
+        kw.pop("station2"),
+        kw.pop("time"),
+        frequency=kw.pop("frequency", 2.3e11),
+        sigma=0.01,
+        vis=np.ones(n) + 0j,
+        **kw,
+    )
+
+
+class _Result:
+    def __init__(self, exit_code, output):
+        self.exit_code, self.output = exit_code, output
+
+
+def _info(path):
+    """Run `uvfit info PATH` through the entry point (which turns errors into exit code 2)."""
+    import contextlib
+    import io
+
+    out = io.StringIO()
+    code = 0
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(out):
+        try:
+            main(["info", str(path)])
+        except SystemExit as exc:
+            code = exc.code
+    text = out.getvalue()
+    if code == 2:
+        assert len(text.strip().splitlines()) == 1, text
+    return _Result(code, text)
+
+
+def _ecsv(tmp_path, name, vset):
+    path = tmp_path / name
+    write_table(vset, path)
+    return path
+
+
+BAD_FREQUENCY = [0.0, -1.0, np.nan, np.inf, -np.inf, -2.3e11]
+
+
+@pytest.mark.parametrize("f", BAD_FREQUENCY)
+def test_bad_frequency_refused(tmp_path, f):
+    freq = np.full(12, 2.3e11)
+    freq[3] = f
+    vs = _rows(frequency=freq)
+    vs.frequency = freq
+    path = _ecsv(tmp_path, "f.ecsv", vs)
+    res = _info(path)
+    assert res.exit_code == 2, res.output
+    assert "frequency" in res.output and "f.ecsv" in res.output and "Traceback" not in res.output
+
+
+FLAGGED = [
+    ("u", np.nan, "non-finite u"),
+    ("u", np.inf, "non-finite u"),
+    ("v", np.nan, "non-finite u"),
+    ("v", -np.inf, "non-finite u"),
+    ("u", 1e30, "above"),
+    ("v", -1e30, "above"),
+    ("u", 2e15, "above"),
+    ("time", np.nan, "non-finite time"),
+    ("time", np.inf, "non-finite time"),
+]
+
+
+@pytest.mark.parametrize("column,value,reason", FLAGGED)
+def test_bad_values_flagged_with_reason(tmp_path, column, value, reason):
+    vs = _rows()
+    getattr(vs, column)[[2, 5]] = value
+    path = _ecsv(tmp_path, "x.ecsv", vs)
+    from uvfit.data.io import read
+
+    got = read(path)
+    reasons = got.meta["flagged_reasons"]
+    assert sum(n for k, n in reasons.items() if reason in k) == 2
+    assert got.flag.sum() == 2
+    res = _info(path)
+    assert res.exit_code == 0 and reason in res.output
+
+
+@pytest.mark.parametrize("n_auto", [1, 2, 5])
+def test_autocorrelations_flagged(tmp_path, n_auto):
+    vs = _rows()
+    vs.station2[:n_auto] = vs.station1[:n_auto]
+    from uvfit.data.io import read
+
+    got = read(_ecsv(tmp_path, "a.ecsv", vs))
+    assert got.meta["flagged_reasons"]["autocorrelation (station1 = station2)"] == n_auto
+
+
+@pytest.mark.parametrize("n_rep", [1, 3, 6])
+def test_repeated_rows_flagged(tmp_path, n_rep):
+    vs = _rows()
+    path = tmp_path / "d.ecsv"
+    write_table(vs, path)
+    lines = path.read_text().splitlines()
+    body = [l for l in lines if not l.startswith("#")]
+    path.write_text("\n".join(lines + body[1 : 1 + n_rep]) + "\n")
+    from uvfit.data.io import read
+
+    got = read(path)
+    assert sum(v for k, v in got.meta["flagged_reasons"].items() if "repeat" in k) == n_rep
+
+
+ALIASES = [
+    "# a: &x [1, 2]\n# b: [*x, *x]\n",
+    "# a: &anchor 1\n",
+    "# - *ref\n",
+    "# {k: *v}\n",
+    "# b: [*x,*x,*x,*x]\n",
+]
+
+
+@pytest.mark.parametrize("extra", ALIASES)
+def test_yaml_aliases_refused(tmp_path, extra):
+    vs = _rows()
+    path = tmp_path / "y.ecsv"
+    write_table(vs, path)
+    text = path.read_text().splitlines(keepends=True)
+    text.insert(2, extra)
+    path.write_text("".join(text))
+    res = _info(path)
+    assert res.exit_code == 2 and "anchor or alias" in res.output and "y.ecsv" in res.output
+
+
+def test_huge_header_refused(tmp_path):
+    vs = _rows()
+    path = tmp_path / "h.ecsv"
+    write_table(vs, path)
+    text = path.read_text().splitlines(keepends=True)
+    text.insert(2, "# pad: x\n" * 500000)
+    path.write_text("".join(text))
+    res = _info(path)
+    assert res.exit_code == 2 and "header is larger" in res.output
+
+
+CONTROL = ["\x1b[31mAA", "A\x07A", "A\x00B", "A\rB", "\x9bC"]
+
+
+@pytest.mark.parametrize("name", CONTROL)
+def test_control_characters_escaped(tmp_path, name):
+    vs = _rows(station1=[name] * 12)
+    res = _info(_ecsv(tmp_path, "c.ecsv", vs))
+    assert res.exit_code == 0, res.output
+    bad = [c for c in res.output if not c.isprintable() and c != "\n"]
+    assert not bad
+
+
+MODELS = [
+    ('shape="shell"\ninner_radius=2\nouter_radius=1', "inner_radius"),
+    ('shape="shell"\ninner_radius=1.0001\nouter_radius=1', "inner_radius"),
+    ('shape="gaussian"\nfwhm=-1', "fwhm"),
+    ('shape="disk"\ndiameter=-0.1', "diameter"),
+    ('shape="elliptical_gaussian"\nfwhm=1\naxis_ratio=1.5\nposition_angle=0', "axis_ratio"),
+    ('shape="elliptical_gaussian"\nfwhm=1\naxis_ratio=-0.5\nposition_angle=0', "axis_ratio"),
+]
+
+
+@pytest.mark.parametrize("body,key", MODELS)
+def test_unphysical_models_refused(body, key):
+    with pytest.raises(ModelError) as exc:
+        loads('angular_unit="mas"\n[[component]]\nname="a"\nflux=1\n' + body + "\n")
+    assert key in str(exc.value) and "'a'" in str(exc.value)
+
+
+@pytest.mark.parametrize("chi2", [np.nan, np.inf, -np.inf, None])
+def test_non_finite_chi2_is_no_verdict(chi2):
+    ok, words = _judge("closure phases", chi2, 10, False)
+    assert ok is False and "no verdict" in words
+
+
+def _uvfits(tmp_path, edit=None, name="s.uvfits"):
+    """A UVFITS file from uvfit's writer, its antenna table changed by ``edit(data)``."""
+    from astropy.io import fits
+
+    from uvfit.data.io import write
+
+    path = tmp_path / name
+    write(_rows(), path)
+    if edit is not None:
+        with fits.open(path, mode="update") as hdul:
+            for hdu in hdul[1:]:
+                if hdu.header.get("EXTNAME", "").strip() == "AIPS AN":
+                    edit(hdu.data)
+    return path
+
+
+ANTENNA_EDITS = [
+    ("twice", lambda d: d["NOSTA"].__setitem__(1, d["NOSTA"][0])),
+    ("twice", lambda d: d["NOSTA"].__setitem__(3, d["NOSTA"][2])),
+    ("name", lambda d: d["ANNAME"].__setitem__(1, d["ANNAME"][0])),
+    ("name", lambda d: d["ANNAME"].__setitem__(3, d["ANNAME"][0])),
+]
+
+
+@pytest.mark.parametrize("what,edit", ANTENNA_EDITS)
+def test_ambiguous_antenna_table_refused(tmp_path, what, edit):
+    res = _info(_uvfits(tmp_path, edit))
+    assert res.exit_code == 2 and what in res.output and "row" in res.output
+
+
+@pytest.mark.parametrize("cut", [10, 100, 1000, 2000, 2880, 4000, 6000, 9000])
+def test_truncated_uvfits_refused(tmp_path, cut):
+    path = _uvfits(tmp_path)
+    data = path.read_bytes()
+    cut_at = len(data) - cut
+    path.write_bytes(data[:cut_at])
+    res = _info(path)
+    # FITS files are whole 2880-byte blocks (FITS standard): a file cut anywhere is refused
+    assert res.exit_code == 2 and "truncated" in res.output, res.output

@@ -1,5 +1,6 @@
 """Options shared by the commands that simulate observations (simulate, forecast)."""
 import click
+from ._common import at_least_zero
 
 _KEYS = ("ra", "dec", "start", "duration", "integration", "frequency", "bandwidth", "channels",
          "scan_length", "gain_error", "phase_error", "systematic", "source")
@@ -22,7 +23,7 @@ def observation_options(func):
                      help="Station gain amplitude scatter per scan (fraction, rms)."),
         click.option("--phase-error", type=float, default=0.0, show_default=True,
                      help="Station phase error per scan (degrees, rms)."),
-        click.option("--systematic", type=float, default=0.0, show_default=True,
+        click.option("--systematic", type=float, callback=at_least_zero, default=0.0, show_default=True,
                      help="Extra error per visibility as a fraction of its amplitude (added in quadrature)."),
         click.option("--source", default="SIM", show_default=True, help="Source name written to the file."),
     ]

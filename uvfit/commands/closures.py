@@ -1,18 +1,16 @@
 """`uvfit closures DATA [--model FIT.json | MODEL.toml]`: closure phases and closure amplitudes of
 the data, and how well a model reproduces them (per triangle, quadrangle and station)."""
-import os
 
 import click
 
-from ..errors import UvfitError
-from ._common import echo_notes, force_option, pop_selection, selection_options
+from ._common import at_least_zero, check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("closures")
 @click.argument("data", type=click.Path(dir_okay=False))
 @click.option("--model", "model_path", default=None, metavar="FIT.json|MODEL.toml",
               help="Compare the closures of this model (a fit result or a model file) with the data.")
-@click.option("--systematic", type=float, default=None, metavar="F",
+@click.option("--systematic", type=float, callback=at_least_zero, default=None, metavar="F",
               help="Systematic floor: fraction of |V| added in quadrature to each visibility's sigma "
                    "(default 0, or the fit's value when --model is a fit result).")
 @click.option("--snr-cut", type=float, default=3.0, show_default=True, metavar="X",
@@ -35,13 +33,10 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
     baseline-based errors, and cannot fix the absolute position or the total flux.
     """
     from .. import tasks
-    from ..outputs import atomic_write_with, check_writable, write_json
+    from ..outputs import atomic_write_with, write_json
 
-    for out in (json_out, table_out):
-        if out:
-            check_writable(out, force)
-    if json_out and table_out and os.path.abspath(json_out) == os.path.abspath(table_out):
-        raise UvfitError("--json and --table name the same file", "give two different file names")
+    check_outputs({"--json": json_out, "--table": table_out},
+                  {"the data": data, "the model": model_path}, force)
     selection = pop_selection(kwargs)
     if selection.get("average"):
         click.echo("note: averaging gives every row of a time bin the bin's common time; closures "

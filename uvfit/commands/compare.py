@@ -2,7 +2,7 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
+from ._common import (at_least_zero, as_options, check_outputs, echo_notes, force_option, pop_selection, progressbar, seed_option,
                       selection_options)
 
 
@@ -11,10 +11,10 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
 @click.argument("models", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
               help="What is fitted (as for uvfit fit).")
-@click.option("--systematic", type=float, default=0.0, show_default=True,
+@click.option("--systematic", type=float, callback=at_least_zero, default=0.0, show_default=True,
               help="Fraction of |V| added in quadrature to every sigma.")
 @click.option("--starts", type=int, default=1, show_default=True, help="Starts of each model's fit to the data.")
-@click.option("--bootstrap", type=int, default=0, show_default=True,
+@click.option("--bootstrap", type=int, callback=at_least_zero, default=0, show_default=True,
               help="Simulated data sets for the false-alarm probability of each richer model.")
 @click.option("--json", "json_out", type=click.Path(dir_okay=False), default=None,
               help="Write the comparison as JSON here.")
@@ -30,13 +30,13 @@ def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, f
     """
     from .. import tasks
     from ..errors import UvfitError
-    from ..outputs import check_writable, write_json
+    from ..outputs import write_json
 
     if len(models) < 2:
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
     selection = pop_selection(kwargs)
-    if json_out:
-        check_writable(json_out, force)
+    check_outputs({"--json": json_out},
+                  {"the data": data, **{f"model {m}": m for m in models}}, force)
     options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed,
                    selection=selection)
     with as_options(bootstrap="--bootstrap"):

@@ -2,7 +2,7 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
+from ._common import (at_least_zero, as_options, check_outputs, echo_notes, force_option, pop_selection, progressbar, seed_option,
                       selection_options)
 
 
@@ -11,7 +11,7 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
               help="What is fitted: " + "; ".join(f"{k}: {v[2]}" for k, v in MODES.items()) + ".")
-@click.option("--systematic", type=float, default=0.0, show_default=True,
+@click.option("--systematic", type=float, callback=at_least_zero, default=0.0, show_default=True,
               help="Fraction of |V| added in quadrature to every sigma (e.g. 0.02).")
 @click.option("--rescale-errors", is_flag=True,
               help="Scale the errors by sqrt(chi2/dof), as if the sigmas gave a reduced chi2 of 1.")
@@ -19,7 +19,7 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
               help="Number of starts: the model's values, then random ones inside the bounds.")
 @click.option("--global-search", is_flag=True,
               help="Search chi2 globally inside the bounds first (needs a finite min and max everywhere).")
-@click.option("--redshift", type=float, default=0.0, show_default=True,
+@click.option("--redshift", type=float, callback=at_least_zero, default=0.0, show_default=True,
               help="Source redshift, for rest-frame brightness temperatures.")
 @click.option("--max-evaluations", type=int, default=None,
               help="Most model evaluations per start (default 200 x (free parameters + 1)).")
@@ -40,12 +40,11 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     goodness of fit and the stations and baselines that fit worst.
     """
     from .. import tasks
-    from ..outputs import atomic_write, check_writable, write_json
+    from ..outputs import atomic_write, write_json
 
     selection = pop_selection(kwargs)
-    for path in (json_out, save_model):
-        if path:
-            check_writable(path, force)
+    check_outputs({"--json": json_out, "--save-model": save_model},
+                  {"the data": data, "the model": model}, force)
     options = dict(mode=mode, systematic=systematic, rescale_errors=rescale_errors, starts=starts,
                    seed=seed, global_search=global_search, redshift=redshift,
                    selection=selection, resolved_test=not no_resolved_test,

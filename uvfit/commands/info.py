@@ -1,7 +1,7 @@
 """`uvfit info DATA`: what a visibility file holds, at a glance (and as JSON with --json)."""
 import click
 
-from ._common import echo_notes, force_option, pop_selection, selection_options
+from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 @click.command("info")
 @click.argument("data", type=click.Path(dir_okay=False))
@@ -18,6 +18,7 @@ def command(data, json_out, force, **kwargs):
     from .. import tasks
     from ..outputs import to_json, write_json
 
+    check_outputs({"--json": json_out}, {"the data": data}, force, stdout_ok=("--json",))
     report = tasks.info(data, pop_selection(kwargs))
     echo_notes(report.notes)
     s = report.to_dict()

@@ -2,7 +2,7 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
+from ._common import (at_least_zero, as_options, check_outputs, echo_notes, force_option, pop_selection, progressbar, seed_option,
                       selection_options)
 
 
@@ -11,7 +11,7 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
 @click.argument("model")
 @click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
               help="Which quantities the likelihood compares.")
-@click.option("--systematic", type=float, default=0.0, show_default=True, metavar="F",
+@click.option("--systematic", type=float, callback=at_least_zero, default=0.0, show_default=True, metavar="F",
               help="Fraction of |V| added in quadrature to every sigma.")
 @click.option("--walkers", type=int, default=None, metavar="N",
               help="Number of walkers (default max(32, 4 x free parameters); taken from the chain on --resume).")
@@ -33,7 +33,7 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
 @click.option("--starts", type=int, default=1, show_default=True, metavar="N",
               help="Least-squares starts for the point the walkers start from (the first at the "
                    "model file's values, the others random, seeded).")
-@click.option("--redshift", type=float, default=0.0, show_default=True,
+@click.option("--redshift", type=float, callback=at_least_zero, default=0.0, show_default=True,
               help="Redshift for the rest-frame brightness temperatures.")
 @force_option
 @selection_options
@@ -48,7 +48,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     """
     from .. import tasks
     from ..infer.sampling import check_chain_file
-    from ..outputs import check_writable, write_json
+    from ..outputs import write_json
     from ..show.corner import write_corner_plot
 
     selection = pop_selection(kwargs)
@@ -57,9 +57,9 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
         tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps,
                                    order_by=order_by)
     # refuse early, before any long work, whatever would be refused at the end
-    for path in (json_path, corner_path):
-        if path is not None:
-            check_writable(path, force)
+    check_outputs({"--chain": chain_path, "--json": json_path, "--corner": corner_path},
+                  {"the data": data, "the model": model}, force=True)
+    check_outputs({"--json": json_path, "--corner": corner_path}, {}, force)
     previous = check_chain_file(chain_path, resume, force)
 
     todo = max(max_steps - previous, 0)

@@ -29,11 +29,22 @@ def read_chain_attrs(path):
     except OSError as exc:
         raise UvfitError(f"cannot read the chain file {path} ({exc})",
                          "give an HDF5 chain file written by 'uvfit sample --chain', or start a new one with --force")
-    names = json.loads(attrs.get("uvfit_names", "[]"))
-    return {"names": names, "seed": int(attrs.get("uvfit_seed", 0)),
-            "iteration": int(attrs.get("iteration", 0)),
-            "n_walkers": int(attrs.get("nwalkers", 0)),
-            "meta": json.loads(attrs.get("uvfit_meta", "{}"))}
+    try:
+        names = json.loads(attrs.get("uvfit_names", "[]"))
+        info = {"names": names, "seed": int(attrs.get("uvfit_seed", 0)),
+                "iteration": int(attrs.get("iteration", 0)),
+                "n_walkers": int(attrs.get("nwalkers", 0)),
+                "meta": json.loads(attrs.get("uvfit_meta", "{}"))}
+        ok = (isinstance(names, list) and all(isinstance(n, str) for n in names)
+              and isinstance(info["meta"], dict) and info["iteration"] >= 0
+              and info["n_walkers"] >= 0 and info["seed"] >= 0)
+    except (TypeError, ValueError, OverflowError, RecursionError):
+        ok = False
+    if not ok:
+        raise UvfitError(f"the attributes of the chain file {path} are damaged (uvfit_names, "
+                         "uvfit_seed, uvfit_meta, iteration or nwalkers)",
+                         "start a new chain with --force")
+    return info
 
 
 def write_chain_attrs(path, names, seed, meta):

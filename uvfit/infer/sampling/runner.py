@@ -203,6 +203,42 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
                  path=chain_path, notes=notes, resumed_from=previous)
 
 
+def digests(vset, model):
+    """SHA-256 digests of what a chain depends on: ``data`` (the rows after selection: u, v,
+    time, frequency, visibilities, sigmas, flags, stations) and ``model`` (every parameter's
+    name, bounds, fixed or free, tie, prior and unit, fixed values, the shapes and unit)."""
+    import hashlib
+    import json
+
+    h = hashlib.sha256()
+    for key in ("u", "v", "time", "frequency", "vis", "sigma", "flag"):
+        h.update(np.ascontiguousarray(np.asarray(getattr(vset, key))).tobytes())
+    for key in ("station1", "station2"):
+        h.update("\x1f".join(map(str, np.asarray(getattr(vset, key)).tolist())).encode())
+    m = hashlib.sha256()
+    rows = []
+    for name, p in model.parameters.items():
+        rows.append([name, p.min, p.max, bool(p.fixed), p.tie, repr(p.prior), str(p.unit),
+                     p.value if p.fixed else None])
+    m.update(json.dumps(rows, default=repr).encode())
+    m.update(repr(model.structure_key()).encode())
+    return {"data": h.hexdigest(), "model": m.hexdigest()}
+
+
+def check_digests(chain_path, stored, now):
+    """Refuse to resume a chain run on other data, another selection, or another model."""
+    old = stored.get("digest") if isinstance(stored, dict) else None
+    if not isinstance(old, dict):
+        return  # a chain written before digests were kept: nothing to compare
+    what = {"data": "other data (another file or another selection of rows)",
+            "model": "another model (other bounds, priors, fixed or tied parameters, or shapes)"}
+    differ = [what[k] for k in ("data", "model") if old.get(k) != now[k]]
+    if differ:
+        raise UvfitError(f"the chain in {chain_path} was run on " + " and ".join(differ),
+                         "resume with the same data, selection and model file, or start a new "
+                         "chain with --force")
+
+
 def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_steps=5000, seed=0,
            procs=1, chain_path=None, resume=False, force=False, order_by="flux", progress=None,
            starts=1, frequency=None, redshift=0.0, data_path=None, derived=True,
@@ -233,6 +269,7 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
                     raise UvfitError(f"the chain in {chain_path} was run with {key} {stored[key]}, "
                                      f"not {now}",
                                      f"resume with the same --{key}, or start a new chain with --force")
+            check_digests(chain_path, stored, digests(vset, model))
         stat, fixed, notices = fix_degeneracies(stat)
     else:
         result = fit(stat, starts=starts, seed=seed, progress=fit_progress, strict=False)
@@ -253,7 +290,8 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
     extra["redshift"] = float(redshift or 0.0)
     log_prob = LogPosterior(stat, work)
     bounds = (log_prob.lower, log_prob.upper)
-    meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
+    meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path),
+            "digest": digests(vset, model)}
     chain = run_chain(log_prob, start, cov, bounds, work.free_names, n_walkers=n_walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
                       resume=resume, force=force, progress=progress, meta=meta,

@@ -44,7 +44,7 @@ def command(manifest, scheduler, workers, output, force):
         from ..errors import UvfitError
         raise UvfitError(f"results table {output} exists and was not written by this manifest",
                          "choose another -o, or pass --force to overwrite it")
-    with progressbar(len(jobs), "jobs") as bar, as_options(workers="--workers", scheduler="--scheduler"):
+    with progressbar(len(jobs), "jobs") as bar:
         rows, n_run = run_batch(jobs, scheduler=scheduler, workers=workers, progress=bar.update)
     table = results_table(rows)
     table.meta["uvfit_batch_manifest"] = os.path.abspath(manifest)

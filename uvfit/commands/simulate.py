@@ -33,9 +33,11 @@ def command(array_file, model_file, output, json_path, seed, force, no_noise, **
                   {"the array": array_file, "the model": model_file}, force)
     report = tasks.simulate(array_file, model_file, observation, seed=seed, noise=not no_noise,
                             output=output, **corruption)
+    # everything that could fail is done before the first file is written
+    text, record, notice = report.text(), report.to_dict(), report.notice
     write_simulation(report.vset, output, force=force)
-    if report.notice:
-        click.echo(report.notice, err=True)
-    click.echo(report.text())
+    if notice:
+        click.echo(notice, err=True)
+    click.echo(text)
     if json_path:
-        write_json(json_path, report.to_dict(), force=force)
+        write_json(json_path, record, force=force)

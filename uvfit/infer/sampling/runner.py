@@ -269,8 +269,11 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
                     raise UvfitError(f"the chain in {chain_path} was run with {key} {stored[key]}, "
                                      f"not {now}",
                                      f"resume with the same --{key}, or start a new chain with --force")
-            check_digests(chain_path, stored, digests(vset, model))
         stat, fixed, notices = fix_degeneracies(stat)
+        if chain_path is not None and os.path.exists(chain_path) \
+                and chain_info(chain_path)["names"] == list(stat.model.free_names):
+            # (other free parameters: resume_backend names them)
+            check_digests(chain_path, stored, digests(vset, model))
     else:
         result = fit(stat, starts=starts, seed=seed, progress=fit_progress, strict=False)
         stat = result.statistic

@@ -417,3 +417,70 @@ def test_resume_mismatched_chain_refused(demo, capsys):
     message = probe(["sample", "uvd0917.uvfits", "narrow.toml", "--chain", "c.h5", "--resume",
                      "--max-steps", "8"], work, capsys)
     assert "another model" in message and "other data" not in message
+
+
+# ---- item 9: faults ---------------------------------------------------------------------------
+
+def test_full_disk_keeps_the_complete_steps(demo, capsys, monkeypatch):
+    """The fourth step's write fails with ENOSPC (simulated); exit 2, and the chain file still
+    reads with its three complete steps (x 8 walkers)."""
+    h5py = pytest.importorskip("h5py")
+    from uvfit.infer.sampling.chainfile import read_chain
+
+    work, _ = demo
+    real = h5py.Dataset.__setitem__
+    calls = {"chain": 0}
+
+    def setitem(self, key, value):
+        if self.name.endswith("/chain") and self.shape[0] > 0:
+            calls["chain"] += 1
+            if calls["chain"] > 3:
+                raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+        return real(self, key, value)
+
+    monkeypatch.setattr(h5py.Dataset, "__setitem__", setitem)
+    message = probe(["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--max-steps", "6",
+                     "--walkers", "8"], work, capsys, allowed=("c.h5",))
+    assert "3 complete steps" in message and "--resume" in message
+    monkeypatch.setattr(h5py.Dataset, "__setitem__", real)
+    assert read_chain(str(work / "c.h5")).shape == (3 * 8, 4)  # 4 free parameters
+
+
+def test_sigterm_removes_the_temporary_file(demo, capsys, monkeypatch):
+    """SIGTERM arrives in the middle of a write: no hidden temporary file stays, no output."""
+    import signal
+
+    import uvfit.outputs as outputs
+
+    work, _ = demo
+    real = outputs.os.chmod
+
+    def chmod(path, mode):
+        os.kill(os.getpid(), signal.SIGTERM)
+        time.sleep(0.5)
+        return real(path, mode)
+
+    old_handler = signal.getsignal(signal.SIGTERM)
+    monkeypatch.setattr(outputs.os, "chmod", chmod)
+    old = os.getcwd()
+    os.chdir(work)
+    try:
+        with pytest.raises(SystemExit) as exc:
+            main(["info", "uvd0917.uvfits", "--json", "i.json"])
+    finally:
+        os.chdir(old)
+        signal.signal(signal.SIGTERM, old_handler)
+    assert exc.value.code == 143
+    assert "terminated" in capsys.readouterr().err
+    assert sorted(os.listdir(work)) == ["one.toml", "two.toml", "uvd0917.uvfits"]
+
+
+def test_simulate_colocated_stations_writes_nothing(demo, capsys):
+    work, _ = demo
+    station = 'name = "{}"\nlat = 51.8\nlon = 4.2\nheight = 320.0\nsefd = 650.0\n'
+    (work / "arr.toml").write_text('name = "invented"\n' + "".join(
+        "[[station]]\n" + station.format(n) for n in ("AAA", "BBB")) +
+        '[[station]]\nname = "CCC"\nlat = 45.3\nlon = 1.9\nheight = 880.0\nsefd = 650.0\n')
+    message = probe(["simulate", "arr.toml", "one.toml", *OBS, "-o", "s.uvfits", "--json", "s.json"],
+                    work, capsys)
+    assert "'AAA' and 'BBB'" in message

@@ -91,7 +91,6 @@ def resume_backend(chain_path, names, n_walkers, seed):
     Refuses a chain run on other free parameters, with another number of walkers, or empty; the
     chain's own seed is kept (a note says so when ``seed`` differs).
     """
-    import emcee
 
     notes = []
     info = read_chain_attrs(chain_path)
@@ -109,8 +108,36 @@ def resume_backend(chain_path, names, n_walkers, seed):
         notes.append(f"the chain continues its own random sequence (seed {info['seed']}); "
                      f"--seed {seed} is not used")
     seed = info["seed"]
-    backend = emcee.backends.HDFBackend(chain_path, name=CHAIN_GROUP)
+    backend = _backend_class()(chain_path, name=CHAIN_GROUP)
     return backend, n_walkers, seed, notes
+
+
+_BACKEND = []
+
+
+def _backend_class():
+    """emcee's HDF5 backend, whose failed step (a full disk, a lost file system) becomes a clear
+    error: emcee raises the step counter last, so the steps before it stay complete and readable."""
+    if _BACKEND:
+        return _BACKEND[0]
+    import emcee
+
+    class ChainBackend(emcee.backends.HDFBackend):
+        def save_step(self, state, accepted):
+            try:
+                super().save_step(state, accepted)
+            except OSError as exc:
+                try:
+                    done = int(self.iteration)
+                except Exception:  # the file itself is gone or unreadable
+                    done = None
+                kept = f"it keeps its {done} complete steps" if done is not None else "it may be damaged"
+                raise UvfitError(f"cannot write the next step to the chain file {self.filename} "
+                                 f"({exc.strerror or exc}); {kept}",
+                                 "free disk space, then continue with --resume") from None
+
+    _BACKEND.append(ChainBackend)
+    return ChainBackend
 
 
 def new_backend(chain_path, n_walkers, n_dim, names, seed, meta):
@@ -118,11 +145,10 @@ def new_backend(chain_path, n_walkers, n_dim, names, seed, meta):
     attributes written; None without a path."""
     if chain_path is None:
         return None
-    import emcee
 
     if os.path.exists(chain_path):
         os.unlink(chain_path)
-    backend = emcee.backends.HDFBackend(chain_path, name=CHAIN_GROUP)
+    backend = _backend_class()(chain_path, name=CHAIN_GROUP)
     backend.reset(n_walkers, n_dim)
     write_chain_attrs(chain_path, names, seed, meta)
     return backend

@@ -484,3 +484,23 @@ def test_simulate_colocated_stations_writes_nothing(demo, capsys):
     message = probe(["simulate", "arr.toml", "one.toml", *OBS, "-o", "s.uvfits", "--json", "s.json"],
                     work, capsys)
     assert "'AAA' and 'BBB'" in message
+
+
+# ---- item 12: a tampered fit JSON -------------------------------------------------------------
+
+@pytest.mark.parametrize("value", ["abc", None, [1], True], ids=repr)
+@pytest.mark.parametrize("command", ["plot", "report"])
+def test_tampered_fit_value(demo, capsys, value, command):
+    """A fit JSON whose fitted value is not a number (the file is made here, not by a fit)."""
+    work, _ = demo
+    import uvfit
+
+    model = uvfit.load_model(str(work / "one.toml"))
+    params = {n: {"value": value if n == model.free_names[0] else 0.1, "free": True}
+              for n in model.free_names}
+    (work / "f.json").write_text(json.dumps({"parameters": params, "statistics": {},
+                                             "model_toml": model.to_toml(), "mode": "complex"}))
+    args = {"plot": ["plot", "uvd0917.uvfits", "--fit", "f.json", "--kind", "radial", "-o", "p.png"],
+            "report": ["report", "uvd0917.uvfits", "--fit", "f.json", "-o", "r.html"]}[command]
+    message = probe(args, work, capsys)
+    assert model.free_names[0] in message

@@ -14,7 +14,6 @@ import socket
 import threading
 import time
 
-import numpy as np
 import pytest
 
 from uvfit.cli import main

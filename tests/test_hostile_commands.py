@@ -6,6 +6,7 @@ The expected behaviour is the project's own rule (DEVELOPERS.md, "Errors and out
 check compares against the files as they were before the command ran (byte for byte) and the
 exit code the command line promises for the user's mistakes (2).
 """
+
 import errno
 import json
 import os
@@ -89,13 +90,16 @@ def _manifest(work, body, defaults='output_dir = "out"\n'):
 
 def _job(name=None, data="uvd0917.uvfits", model="one.toml"):
     line = "" if name is None else f"name = {json.dumps(name)}\n"
-    return f"[[job]]\n{line}data = {json.dumps(data) if isinstance(data, str) else data}\nmodel = \"{model}\"\n"
+    return f'[[job]]\n{line}data = {json.dumps(data) if isinstance(data, str) else data}\nmodel = "{model}"\n'
 
 
 # ---- item 1: batch job names never leave the output folder -----------------------------------
 
-@pytest.mark.parametrize("name", ["../../x/victim", "../x/victim", "sub/a", "./a", "..", ".",
-                                  ".hidden", "a\\b", "a\x1b[2Jb", "a\nb", " a", ""])
+
+@pytest.mark.parametrize(
+    "name",
+    ["../../x/victim", "../x/victim", "sub/a", "./a", "..", ".", ".hidden", "a\\b", "a\x1b[2Jb", "a\nb", " a", ""],
+)
 def test_batch_job_name_must_be_plain(demo, capsys, name):
     work, victim = demo
     name = name.replace("/x/", f"/{victim.name}/")
@@ -144,6 +148,7 @@ def test_batch_table_may_not_be_an_input(demo, capsys):
 
 # ---- item 8: no hangs -------------------------------------------------------------------------
 
+
 @pytest.mark.parametrize("workers", ["0", "-1", "-100"])
 def test_batch_workers_must_be_positive(demo, capsys, workers):
     work, _ = demo
@@ -154,8 +159,7 @@ def test_batch_workers_must_be_positive(demo, capsys, workers):
     assert time.monotonic() - start < 10
 
 
-@pytest.mark.parametrize("address", ["bogus://x", "tcp://", "tcp://host", "tcp://h:99999", "x y:1",
-                                     "inproc://a:1"])
+@pytest.mark.parametrize("address", ["bogus://x", "tcp://", "tcp://host", "tcp://h:99999", "x y:1", "inproc://a:1"])
 def test_batch_scheduler_address_checked(demo, capsys, address):
     work, _ = demo
     _manifest(work, _job("a"))
@@ -203,6 +207,7 @@ def test_batch_silent_scheduler_times_out(demo, capsys, monkeypatch):
 
 # ---- item 12 (manifests) ----------------------------------------------------------------------
 
+
 def test_manifest_data_not_a_string(demo, capsys):
     work, _ = demo
     _manifest(work, _job("a", data=5))
@@ -216,8 +221,9 @@ def test_manifest_deeply_nested(demo, capsys):
     probe(["batch", "m.toml"], work, capsys)
 
 
-@pytest.mark.parametrize("text", ["defaults = 3\n[[job]]\ndata='a'\nmodel='b'\n", "job = [1, 2]\n",
-                                  "job = 'x'\n", "[[job]]\ndata = 'a'\n"])
+@pytest.mark.parametrize(
+    "text", ["defaults = 3\n[[job]]\ndata='a'\nmodel='b'\n", "job = [1, 2]\n", "job = 'x'\n", "[[job]]\ndata = 'a'\n"]
+)
 def test_manifest_odd_shapes(demo, capsys, text):
     work, _ = demo
     (work / "m.toml").write_text(text)
@@ -225,6 +231,7 @@ def test_manifest_odd_shapes(demo, capsys, text):
 
 
 # ---- item 9: a dying worker is a failed job, the table is still written ---------------------
+
 
 def test_dead_worker_recorded_as_failed(demo, monkeypatch):
     pytest.importorskip("dask.distributed")
@@ -274,8 +281,18 @@ def test_dead_worker_recorded_as_failed(demo, monkeypatch):
 
 # ---- item 13: outputs checked against each other and the inputs, before any work -------------
 
-OBS = ["--ra", "12h30m49s", "--dec", "12d23m28s", "--start", "2027-03-01T02:00", "--duration", "2h",
-       "--frequency", "86GHz"]
+OBS = [
+    "--ra",
+    "12h30m49s",
+    "--dec",
+    "12d23m28s",
+    "--start",
+    "2027-03-01T02:00",
+    "--duration",
+    "2h",
+    "--frequency",
+    "86GHz",
+]
 COLLISIONS = [
     ["fit", "uvd0917.uvfits", "one.toml", "--json", "X", "--save-model", "X"],
     ["fit", "uvd0917.uvfits", "one.toml", "--json", "X", "--save-model", "./X", "--force"],
@@ -307,14 +324,18 @@ def test_output_collisions_refused_before_work(demo, capsys, args):
     assert time.monotonic() - start < 10
 
 
-@pytest.mark.parametrize("args", [
-    ["fit", "uvd0917.uvfits", "one.toml", "--json", "-"],
-    ["plot", "uvd0917.uvfits", "--fit", "f.json", "--kind", "radial", "-o", "-"],
-    ["closures", "uvd0917.uvfits", "--table", "-"],
-    ["sample", "uvd0917.uvfits", "one.toml", "--json", "-"],
-    ["compare", "uvd0917.uvfits", "one.toml", "two.toml", "--json", "-"],
-    ["report", "uvd0917.uvfits", "--fit", "f.json", "-o", "-"],
-], ids=lambda a: a[0])
+@pytest.mark.parametrize(
+    "args",
+    [
+        ["fit", "uvd0917.uvfits", "one.toml", "--json", "-"],
+        ["plot", "uvd0917.uvfits", "--fit", "f.json", "--kind", "radial", "-o", "-"],
+        ["closures", "uvd0917.uvfits", "--table", "-"],
+        ["sample", "uvd0917.uvfits", "one.toml", "--json", "-"],
+        ["compare", "uvd0917.uvfits", "one.toml", "two.toml", "--json", "-"],
+        ["report", "uvd0917.uvfits", "--fit", "f.json", "-o", "-"],
+    ],
+    ids=lambda a: a[0],
+)
 def test_dash_is_stdout_only_for_info(demo, capsys, args):
     """One meaning of '-' everywhere: the standard output where a command says so (info --json),
     refused elsewhere, never a file named '-'."""
@@ -368,6 +389,7 @@ def test_bad_option_values(demo, capsys, args):
 
 # ---- item 7 and 12: chain files ---------------------------------------------------------------
 
+
 def _tampered_chain(path, **attrs):
     h5py = pytest.importorskip("h5py")
     with h5py.File(path, "w") as f:
@@ -381,15 +403,22 @@ def _tampered_chain(path, **attrs):
             g.attrs[key] = value
 
 
-@pytest.mark.parametrize("attrs", [{"uvfit_names": "{not json"}, {"uvfit_meta": "[[["},
-                                   {"uvfit_seed": "abc"}, {"iteration": -4},
-                                   {"uvfit_names": json.dumps([1, 2])}, {"nwalkers": "x"}],
-                         ids=lambda a: next(iter(a)))
+@pytest.mark.parametrize(
+    "attrs",
+    [
+        {"uvfit_names": "{not json"},
+        {"uvfit_meta": "[[["},
+        {"uvfit_seed": "abc"},
+        {"iteration": -4},
+        {"uvfit_names": json.dumps([1, 2])},
+        {"nwalkers": "x"},
+    ],
+    ids=lambda a: next(iter(a)),
+)
 def test_tampered_chain_attributes(demo, capsys, attrs):
     work, _ = demo
     _tampered_chain(work / "c.h5", **attrs)
-    message = probe(["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--resume"],
-                    work, capsys)
+    message = probe(["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--resume"], work, capsys)
     assert "c.h5" in message
 
 
@@ -401,24 +430,32 @@ def test_resume_mismatched_chain_refused(demo, capsys):
     os.chdir(work)
     try:
         with pytest.raises(SystemExit) as exc:
-            main(["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--max-steps", "6",
-                  "--walkers", "8"])
+            main(["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--max-steps", "6", "--walkers", "8"])
     finally:
         os.chdir(old)
     assert exc.value.code == 0, capsys.readouterr().err
     capsys.readouterr()
-    message = probe(["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--resume",
-                     "--max-steps", "8", "--min-uv", "1e8"], work, capsys)
+    message = probe(
+        ["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--resume", "--max-steps", "8", "--min-uv", "1e8"],
+        work,
+        capsys,
+    )
     assert "other data" in message
-    narrow = (work / "one.toml").read_text().replace("max = 5.0 }\n\n", "max = 5.0 }\n").replace(
-        "fwhm = { value = 0.3, min = 0.0, max = 5.0 }", "fwhm = { value = 0.3, min = 0.0, max = 0.4 }")
+    narrow = (
+        (work / "one.toml")
+        .read_text()
+        .replace("max = 5.0 }\n\n", "max = 5.0 }\n")
+        .replace("fwhm = { value = 0.3, min = 0.0, max = 5.0 }", "fwhm = { value = 0.3, min = 0.0, max = 0.4 }")
+    )
     (work / "narrow.toml").write_text(narrow)
-    message = probe(["sample", "uvd0917.uvfits", "narrow.toml", "--chain", "c.h5", "--resume",
-                     "--max-steps", "8"], work, capsys)
+    message = probe(
+        ["sample", "uvd0917.uvfits", "narrow.toml", "--chain", "c.h5", "--resume", "--max-steps", "8"], work, capsys
+    )
     assert "another model" in message and "other data" not in message
 
 
 # ---- item 9: faults ---------------------------------------------------------------------------
+
 
 def test_full_disk_keeps_the_complete_steps(demo, capsys, monkeypatch):
     """The fourth step's write fails with ENOSPC (simulated); exit 2, and the chain file still
@@ -438,8 +475,12 @@ def test_full_disk_keeps_the_complete_steps(demo, capsys, monkeypatch):
         return real(self, key, value)
 
     monkeypatch.setattr(h5py.Dataset, "__setitem__", setitem)
-    message = probe(["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--max-steps", "6",
-                     "--walkers", "8"], work, capsys, allowed=("c.h5",))
+    message = probe(
+        ["sample", "uvd0917.uvfits", "one.toml", "--chain", "c.h5", "--max-steps", "6", "--walkers", "8"],
+        work,
+        capsys,
+        allowed=("c.h5",),
+    )
     assert "3 complete steps" in message and "--resume" in message
     monkeypatch.setattr(h5py.Dataset, "__setitem__", real)
     assert read_chain(str(work / "c.h5")).shape == (3 * 8, 4)  # 4 free parameters
@@ -477,15 +518,17 @@ def test_sigterm_removes_the_temporary_file(demo, capsys, monkeypatch):
 def test_simulate_colocated_stations_writes_nothing(demo, capsys):
     work, _ = demo
     station = 'name = "{}"\nlat = 51.8\nlon = 4.2\nheight = 320.0\nsefd = 650.0\n'
-    (work / "arr.toml").write_text('name = "invented"\n' + "".join(
-        "[[station]]\n" + station.format(n) for n in ("AAA", "BBB")) +
-        '[[station]]\nname = "CCC"\nlat = 45.3\nlon = 1.9\nheight = 880.0\nsefd = 650.0\n')
-    message = probe(["simulate", "arr.toml", "one.toml", *OBS, "-o", "s.uvfits", "--json", "s.json"],
-                    work, capsys)
+    (work / "arr.toml").write_text(
+        'name = "invented"\n'
+        + "".join("[[station]]\n" + station.format(n) for n in ("AAA", "BBB"))
+        + '[[station]]\nname = "CCC"\nlat = 45.3\nlon = 1.9\nheight = 880.0\nsefd = 650.0\n'
+    )
+    message = probe(["simulate", "arr.toml", "one.toml", *OBS, "-o", "s.uvfits", "--json", "s.json"], work, capsys)
     assert "'AAA' and 'BBB'" in message
 
 
 # ---- item 12: a tampered fit JSON -------------------------------------------------------------
+
 
 @pytest.mark.parametrize("value", ["abc", None, [1], True], ids=repr)
 @pytest.mark.parametrize("command", ["plot", "report"])
@@ -495,11 +538,13 @@ def test_tampered_fit_value(demo, capsys, value, command):
     import uvfit
 
     model = uvfit.load_model(str(work / "one.toml"))
-    params = {n: {"value": value if n == model.free_names[0] else 0.1, "free": True}
-              for n in model.free_names}
-    (work / "f.json").write_text(json.dumps({"parameters": params, "statistics": {},
-                                             "model_toml": model.to_toml(), "mode": "complex"}))
-    args = {"plot": ["plot", "uvd0917.uvfits", "--fit", "f.json", "--kind", "radial", "-o", "p.png"],
-            "report": ["report", "uvd0917.uvfits", "--fit", "f.json", "-o", "r.html"]}[command]
+    params = {n: {"value": value if n == model.free_names[0] else 0.1, "free": True} for n in model.free_names}
+    (work / "f.json").write_text(
+        json.dumps({"parameters": params, "statistics": {}, "model_toml": model.to_toml(), "mode": "complex"})
+    )
+    args = {
+        "plot": ["plot", "uvd0917.uvfits", "--fit", "f.json", "--kind", "radial", "-o", "p.png"],
+        "report": ["report", "uvd0917.uvfits", "--fit", "f.json", "-o", "r.html"],
+    }[command]
     message = probe(args, work, capsys)
     assert model.free_names[0] in message

@@ -1,10 +1,11 @@
 """Options and helpers shared by the commands: data selection, output files, library errors."""
+
 import contextlib
 import re
 
 import click
 
-from ..data.select import SELECTION_OPTIONS
+from ..data.select import READ_OPTIONS, SELECTION_OPTIONS
 from ..errors import UvfitError
 
 
@@ -13,13 +14,46 @@ def selection_options(func):
     options = [
         click.option("--min-uv", type=float, default=None, help="Drop baselines shorter than this (wavelengths)."),
         click.option("--max-uv", type=float, default=None, help="Drop baselines longer than this (wavelengths)."),
-        click.option("--stations", default=None, help="Keep only baselines between these stations (comma-separated names)."),
-        click.option("--exclude-stations", default=None, help="Drop every baseline to these stations (comma-separated names)."),
-        click.option("--time-range", nargs=2, default=None, metavar="START END",
-                     help="Keep rows between two times (ISO UTC, e.g. 2017-04-05T03:00, or MJD)."),
+        click.option(
+            "--stations", default=None, help="Keep only baselines between these stations (comma-separated names)."
+        ),
+        click.option(
+            "--exclude-stations", default=None, help="Drop every baseline to these stations (comma-separated names)."
+        ),
+        click.option(
+            "--time-range",
+            nargs=2,
+            default=None,
+            metavar="START END",
+            help="Keep rows between two times (ISO UTC, e.g. 2017-04-05T03:00, or MJD).",
+        ),
         click.option("--channels", default=None, help="Keep these flattened channel indices, e.g. '0,2-5'."),
-        click.option("--average", type=float, default=None, metavar="SECONDS",
-                     help="Average coherently in time bins of this length (s)."),
+        click.option(
+            "--average",
+            type=float,
+            default=None,
+            metavar="SECONDS",
+            help="Average coherently in time bins of this length (s).",
+        ),
+        click.option(
+            "--column",
+            default=None,
+            metavar="NAME",
+            help="Measurement Set data column: DATA, CORRECTED_DATA or MODEL_DATA "
+            "(default CORRECTED_DATA when present, else DATA).",
+        ),
+        click.option(
+            "--field",
+            default=None,
+            metavar="NAME|ID",
+            help="Measurement Set field to read (needed when it holds several).",
+        ),
+        click.option(
+            "--spw",
+            default=None,
+            metavar="LIST",
+            help="Measurement Set spectral windows to read, names or ids, e.g. '0,2' (default all).",
+        ),
     ]
     for opt in reversed(options):
         func = opt(func)
@@ -28,7 +62,13 @@ def selection_options(func):
 
 def pop_selection(kwargs):
     """Remove the selection options from a command's kwargs and return them as a dict."""
-    return {k: kwargs.pop(k, None) for k in SELECTION_OPTIONS}
+    selection = {k: kwargs.pop(k, None) for k in SELECTION_OPTIONS}
+    # reader options (Measurement Sets) are recorded only when given
+    for k in READ_OPTIONS:
+        value = kwargs.pop(k, None)
+        if value not in (None, ""):
+            selection[k] = value
+    return selection
 
 
 def echo_notes(notes, prefix=""):
@@ -80,20 +120,27 @@ def _seed(ctx, param, value):
     if value is None:
         return value
     if not 0 <= value <= MAX_SEED:
-        raise UvfitError(f"--seed must be a whole number from 0 to {MAX_SEED}, not {value}",
-                         "give a non-negative seed, e.g. --seed 1")
+        raise UvfitError(
+            f"--seed must be a whole number from 0 to {MAX_SEED}, not {value}",
+            "give a non-negative seed, e.g. --seed 1",
+        )
     return value
 
 
 def seed_option(func):
-    return click.option("--seed", type=int, default=0, show_default=True, callback=_seed,
-                        help="Seed of every random step; recorded in the outputs.")(func)
+    return click.option(
+        "--seed",
+        type=int,
+        default=0,
+        show_default=True,
+        callback=_seed,
+        help="Seed of every random step; recorded in the outputs.",
+    )(func)
 
 
 def progressbar(length, label, **options):
     """A click progress bar on stderr."""
-    return click.progressbar(length=length, label=label, file=click.get_text_stream("stderr"),
-                             **options)
+    return click.progressbar(length=length, label=label, file=click.get_text_stream("stderr"), **options)
 
 
 #: what '-' means as an output path: the standard output where a command says so (as
@@ -124,18 +171,21 @@ def check_outputs(outputs, inputs=None, force=False, stdout_ok=()):
         path = os.fspath(path)
         if path == STDOUT:
             if option not in stdout_ok:
-                raise UvfitError(f"{option} -: this output is written to a file only",
-                                 "give a file name ('-' means the standard output only for "
-                                 "uvfit info --json)")
+                raise UvfitError(
+                    f"{option} -: this output is written to a file only",
+                    "give a file name ('-' means the standard output only for uvfit info --json)",
+                )
             continue
         if not path or os.path.isdir(path):
             raise UvfitError(f"{option} {path!r} is not a file name", "give the output file's name")
         key = os.path.normcase(os.path.realpath(path))
         if key in seen:
-            raise UvfitError(f"{seen[key]} and {option} name the same file {path}",
-                             "give each output its own file name")
+            raise UvfitError(
+                f"{seen[key]} and {option} name the same file {path}", "give each output its own file name"
+            )
         if key in real_inputs:
-            raise UvfitError(f"{option} {path} is {real_inputs[key]}, an input of this command",
-                             "write the output to another file")
+            raise UvfitError(
+                f"{option} {path} is {real_inputs[key]}, an input of this command", "write the output to another file"
+            )
         seen[key] = option
         check_writable(path, force)

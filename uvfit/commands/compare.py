@@ -1,23 +1,51 @@
 """uvfit compare DATA MODEL_A MODEL_B [...]: which model do the data require?"""
+
 import click
 
 from ..stats.modes import MODES
-from ._common import (at_least_zero, as_options, check_outputs, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import (
+    as_options,
+    at_least_zero,
+    check_outputs,
+    echo_notes,
+    force_option,
+    pop_selection,
+    progressbar,
+    seed_option,
+    selection_options,
+)
 
 
 @click.command("compare")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("models", nargs=-1, required=True, type=click.Path(dir_okay=False))
-@click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
-              help="What is fitted (as for uvfit fit).")
-@click.option("--systematic", type=float, callback=at_least_zero, default=0.0, show_default=True,
-              help="Fraction of |V| added in quadrature to every sigma.")
+@click.option(
+    "--mode",
+    type=click.Choice(list(MODES)),
+    default="complex",
+    show_default=True,
+    help="What is fitted (as for uvfit fit).",
+)
+@click.option(
+    "--systematic",
+    type=float,
+    callback=at_least_zero,
+    default=0.0,
+    show_default=True,
+    help="Fraction of |V| added in quadrature to every sigma.",
+)
 @click.option("--starts", type=int, default=1, show_default=True, help="Starts of each model's fit to the data.")
-@click.option("--bootstrap", type=int, callback=at_least_zero, default=0, show_default=True,
-              help="Simulated data sets for the false-alarm probability of each richer model.")
-@click.option("--json", "json_out", type=click.Path(dir_okay=False), default=None,
-              help="Write the comparison as JSON here.")
+@click.option(
+    "--bootstrap",
+    type=int,
+    callback=at_least_zero,
+    default=0,
+    show_default=True,
+    help="Simulated data sets for the false-alarm probability of each richer model.",
+)
+@click.option(
+    "--json", "json_out", type=click.Path(dir_okay=False), default=None, help="Write the comparison as JSON here."
+)
 @seed_option
 @force_option
 @selection_options
@@ -35,10 +63,8 @@ def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, f
     if len(models) < 2:
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
     selection = pop_selection(kwargs)
-    check_outputs({"--json": json_out},
-                  {"the data": data, **{f"model {m}": m for m in models}}, force)
-    options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed,
-                   selection=selection)
+    check_outputs({"--json": json_out}, {"the data": data, **{f"model {m}": m for m in models}}, force)
+    options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed, selection=selection)
     with as_options(bootstrap="--bootstrap"):
         if bootstrap > 0:
             with progressbar(bootstrap, "bootstrap") as bar:

@@ -1,4 +1,5 @@
 """uvfit simulate: a sky model observed by an array, with thermal noise and optional gain errors."""
+
 import click
 
 from ._common import check_outputs, force_option, seed_option
@@ -10,10 +11,12 @@ from ._observation import observation_options, pop_observation
 @click.argument("model_file", metavar="MODEL", type=click.Path(dir_okay=False))
 @observation_options
 @click.option("--no-noise", is_flag=True, help="Leave out the thermal noise (sigmas are still set).")
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
-              help="Output visibility file; .uvfits or .ecsv.")
-@click.option("--json", "json_path", default=None, type=click.Path(dir_okay=False),
-              help="Also write the summary as JSON here.")
+@click.option(
+    "-o", "--output", required=True, type=click.Path(dir_okay=False), help="Output visibility file; .uvfits or .ecsv."
+)
+@click.option(
+    "--json", "json_path", default=None, type=click.Path(dir_okay=False), help="Also write the summary as JSON here."
+)
 @seed_option
 @force_option
 def command(array_file, model_file, output, json_path, seed, force, no_noise, **kwargs):
@@ -29,10 +32,10 @@ def command(array_file, model_file, output, json_path, seed, force, no_noise, **
     from ..sim.observe import write_simulation
 
     observation, corruption = pop_observation(kwargs)
-    check_outputs({"-o": output, "--json": json_path},
-                  {"the array": array_file, "the model": model_file}, force)
-    report = tasks.simulate(array_file, model_file, observation, seed=seed, noise=not no_noise,
-                            output=output, **corruption)
+    check_outputs({"-o": output, "--json": json_path}, {"the array": array_file, "the model": model_file}, force)
+    report = tasks.simulate(
+        array_file, model_file, observation, seed=seed, noise=not no_noise, output=output, **corruption
+    )
     # everything that could fail is done before the first file is written
     text, record, notice = report.text(), report.to_dict(), report.notice
     write_simulation(report.vset, output, force=force)

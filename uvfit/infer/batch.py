@@ -19,9 +19,11 @@ makes, so a job's JSON equals the one the command writes for the same inputs and
 fails records its error and the others go on. A job whose JSON exists and records the same input
 digest (data bytes, model bytes, options, uvfit version) is skipped on a rerun.
 """
+
 import hashlib
 import json
 import os
+
 import tomllib
 
 from .. import __version__
@@ -50,16 +52,18 @@ def _read_manifest_text(path):
         with open(path, "rb") as handle:
             raw = handle.read()
     except OSError as exc:
-        raise UvfitError(f"cannot read the batch manifest {path}: {exc.strerror}",
-                         "check the path") from None
+        raise UvfitError(f"cannot read the batch manifest {path}: {exc.strerror}", "check the path") from None
     try:
         return tomllib.loads(raw.decode("utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise UvfitError(f"the batch manifest {path} is not valid TOML: {exc}",
-                         "fix the syntax at the line named") from None
+        raise UvfitError(
+            f"the batch manifest {path} is not valid TOML: {exc}", "fix the syntax at the line named"
+        ) from None
     except RecursionError:
-        raise UvfitError(f"the batch manifest {path} is nested too deeply to read",
-                         "a manifest has a [defaults] table and [[job]] entries only") from None
+        raise UvfitError(
+            f"the batch manifest {path} is nested too deeply to read",
+            "a manifest has a [defaults] table and [[job]] entries only",
+        ) from None
 
 
 def load_manifest(path):
@@ -68,12 +72,13 @@ def load_manifest(path):
     folder = os.path.dirname(os.path.abspath(path))
     unknown_top = set(doc) - {"defaults", "job"}
     if unknown_top:
-        raise UvfitError(f"unknown key(s) {sorted(unknown_top)} at the top of {path}",
-                         "a manifest has a [defaults] table and [[job]] entries only")
+        raise UvfitError(
+            f"unknown key(s) {sorted(unknown_top)} at the top of {path}",
+            "a manifest has a [defaults] table and [[job]] entries only",
+        )
     defaults = doc.get("defaults", {})
     if not isinstance(defaults, dict):
-        raise UvfitError(f"'defaults' in the batch manifest {path} is not a table",
-                         "write it as a [defaults] table")
+        raise UvfitError(f"'defaults' in the batch manifest {path} is not a table", "write it as a [defaults] table")
     jobs = doc.get("job", [])
     if not isinstance(jobs, list) or not jobs:
         raise UvfitError(f"the batch manifest {path} lists no jobs", "add [[job]] entries with data and model")
@@ -84,20 +89,23 @@ def load_manifest(path):
         spec = {**defaults, **entry}
         unknown = set(spec) - _JOB_KEYS
         if unknown:
-            raise UvfitError(f"job {number} of {path}: unknown key(s) {sorted(unknown)}",
-                             "known keys: " + ", ".join(sorted(_JOB_KEYS)))
+            raise UvfitError(
+                f"job {number} of {path}: unknown key(s) {sorted(unknown)}",
+                "known keys: " + ", ".join(sorted(_JOB_KEYS)),
+            )
         for key in ("data", "model"):
             if key not in spec:
                 raise UvfitError(f"job {number} of {path} has no '{key}'", f"give the {key} file's path")
         job = {k: spec.get(k, v) for k, v in JOB_OPTIONS.items()}
         if job["command"] not in COMMANDS:
-            raise UvfitError(f"job {number} of {path}: unknown command '{job['command']}'",
-                             "use 'fit' or 'sample'")
+            raise UvfitError(f"job {number} of {path}: unknown command '{job['command']}'", "use 'fit' or 'sample'")
         for key in ("data", "model", "output_dir"):
             if key in spec and not isinstance(spec[key], str):
-                raise UvfitError(f"job {number} of {path}: '{key}' must be a path (a string), "
-                                 f"not {type(spec[key]).__name__} {spec[key]!r}",
-                                 f'write it in quotes, e.g. {key} = "file"')
+                raise UvfitError(
+                    f"job {number} of {path}: '{key}' must be a path (a string), "
+                    f"not {type(spec[key]).__name__} {spec[key]!r}",
+                    f'write it in quotes, e.g. {key} = "file"',
+                )
         job["data"] = os.path.normpath(os.path.join(folder, spec["data"]))
         job["model"] = os.path.normpath(os.path.join(folder, spec["model"]))
         name = spec.get("name")
@@ -105,8 +113,9 @@ def load_manifest(path):
             name = os.path.splitext(os.path.basename(spec["data"]))[0]
         job["name"] = check_job_name(name, number, path)
         if job["name"] in names:
-            raise UvfitError(f"job {number} of {path}: the name '{job['name']}' is used twice",
-                             "give each job its own name")
+            raise UvfitError(
+                f"job {number} of {path}: the name '{job['name']}' is used twice", "give each job its own name"
+            )
         names.add(job["name"])
         job["output_dir"] = os.path.normpath(os.path.join(folder, spec.get("output_dir", "batch-results")))
         out.append(job)
@@ -117,15 +126,18 @@ def check_job_name(name, number, path):
     """A job name is a plain file name: it becomes NAME.json inside the output folder, so it may
     hold no folder separator, no control character, and be neither '.', '..' nor hidden."""
     if not isinstance(name, str) or not name.strip():
-        raise UvfitError(f"job {number} of {path}: the name {name!r} is not a plain name",
-                         "give each job a name of letters, digits, '-', '_' or '.'")
+        raise UvfitError(
+            f"job {number} of {path}: the name {name!r} is not a plain name",
+            "give each job a name of letters, digits, '-', '_' or '.'",
+        )
     bad = [c for c in name if c in "/\\" or ord(c) < 32 or ord(c) == 127]
-    if bad or name in (".", "..") or name.startswith(".") or os.path.isabs(name) \
-            or name != name.strip():
+    if bad or name in (".", "..") or name.startswith(".") or os.path.isabs(name) or name != name.strip():
         shown = name.encode("unicode_escape").decode("ascii")
-        raise UvfitError(f"job {number} of {path}: the name '{shown}' is not a plain file name "
-                         "(it would place its result outside the output folder or hide it)",
-                         "use letters, digits, '-', '_' and '.' only, not starting with '.'")
+        raise UvfitError(
+            f"job {number} of {path}: the name '{shown}' is not a plain file name "
+            "(it would place its result outside the output folder or hide it)",
+            "use letters, digits, '-', '_' and '.' only, not starting with '.'",
+        )
     return name
 
 
@@ -139,21 +151,28 @@ def check_outputs(jobs, force=False):
         folder = os.path.realpath(job["output_dir"])
         real = os.path.realpath(out)
         if os.path.dirname(real) != folder:
-            raise UvfitError(f"job '{job['name']}': its result {out} would be written outside "
-                             f"the output folder {job['output_dir']}",
-                             "give the job a plain name and no links in the output folder")
+            raise UvfitError(
+                f"job '{job['name']}': its result {out} would be written outside the output folder {job['output_dir']}",
+                "give the job a plain name and no links in the output folder",
+            )
         key = os.path.normcase(real)
         if key in seen:
-            raise UvfitError(f"jobs '{seen[key]}' and '{job['name']}' would write the same "
-                             f"result file {out}", "give each job its own name")
+            raise UvfitError(
+                f"jobs '{seen[key]}' and '{job['name']}' would write the same result file {out}",
+                "give each job its own name",
+            )
         seen[key] = job["name"]
         for other in ("data", "model"):
             if os.path.exists(job[other]) and os.path.realpath(job[other]) == real:
-                raise UvfitError(f"job '{job['name']}': its result {out} is its own {other} file",
-                                 "choose another output_dir or name")
+                raise UvfitError(
+                    f"job '{job['name']}': its result {out} is its own {other} file",
+                    "choose another output_dir or name",
+                )
         if os.path.lexists(out) and not force and not _own_result(out, job):
-            raise UvfitError(f"job '{job['name']}': {out} exists and is not a batch result of "
-                             "this job", "move it away, choose another output_dir, or pass --force")
+            raise UvfitError(
+                f"job '{job['name']}': {out} exists and is not a batch result of this job",
+                "move it away, choose another output_dir, or pass --force",
+            )
 
 
 def _own_result(path, job):
@@ -165,8 +184,7 @@ def _own_result(path, job):
             done = json.load(handle)
     except (OSError, ValueError, UnicodeDecodeError, RecursionError):
         return False
-    return isinstance(done, dict) and isinstance(done.get("batch"), dict) \
-        and done["batch"].get("name") == job["name"]
+    return isinstance(done, dict) and isinstance(done.get("batch"), dict) and done["batch"].get("name") == job["name"]
 
 
 def job_digest(job):
@@ -206,16 +224,26 @@ def run_job(job):
     """Run one job (a Dask task); return a row dictionary. Never raises: errors become the row."""
     from ..outputs import write_json
 
-    row = {"name": job["name"], "command": job["command"], "data": job["data"],
-           "model": job["model"], "status": "failed", "error": "", "output": job_output(job)}
+    row = {
+        "name": job["name"],
+        "command": job["command"],
+        "data": job["data"],
+        "model": job["model"],
+        "status": "failed",
+        "error": "",
+        "output": job_output(job),
+    }
     from .._blas import single_threaded
 
     try:
         digest = job_digest(job)
         with single_threaded():
             result = _run(job)
-        result["batch"] = {"name": job["name"], "input_digest": digest, "options": {
-            k: job[k] for k in sorted(JOB_OPTIONS)}}
+        result["batch"] = {
+            "name": job["name"],
+            "input_digest": digest,
+            "options": {k: job[k] for k in sorted(JOB_OPTIONS)},
+        }
         os.makedirs(job["output_dir"], exist_ok=True)
         write_json(job_output(job), result, force=True)
         row.update(status="done", result=result)
@@ -232,28 +260,58 @@ def _run(job):
 
     selection = job["selection"] or {}
     if job["command"] == "fit":
-        return tasks.fit(job["data"], job["model"], mode=job["mode"], systematic=job["systematic"],
-                         rescale_errors=job["rescale_errors"], starts=job["starts"],
-                         global_search=job["global_search"], seed=job["seed"],
-                         redshift=job["redshift"], selection=selection).to_dict()
-    return tasks.sample(job["data"], job["model"], mode=job["mode"], systematic=job["systematic"],
-                        walkers=job["walkers"], max_steps=job["max_steps"], seed=job["seed"],
-                        starts=job["starts"], redshift=job["redshift"],
-                        selection=selection).to_dict()
+        return tasks.fit(
+            job["data"],
+            job["model"],
+            mode=job["mode"],
+            systematic=job["systematic"],
+            rescale_errors=job["rescale_errors"],
+            starts=job["starts"],
+            global_search=job["global_search"],
+            seed=job["seed"],
+            redshift=job["redshift"],
+            selection=selection,
+        ).to_dict()
+    return tasks.sample(
+        job["data"],
+        job["model"],
+        mode=job["mode"],
+        systematic=job["systematic"],
+        walkers=job["walkers"],
+        max_steps=job["max_steps"],
+        seed=job["seed"],
+        starts=job["starts"],
+        redshift=job["redshift"],
+        selection=selection,
+    ).to_dict()
 
 
 def failed_row(job, error):
     """The row of a job that could not run to its end."""
-    return {"name": job["name"], "command": job["command"], "data": job["data"],
-            "model": job["model"], "status": "failed", "error": error, "output": job_output(job)}
+    return {
+        "name": job["name"],
+        "command": job["command"],
+        "data": job["data"],
+        "model": job["model"],
+        "status": "failed",
+        "error": error,
+        "output": job_output(job),
+    }
 
 
 def cached_row(job):
     with open(job_output(job)) as handle:
         result = json.load(handle)
-    return {"name": job["name"], "command": job["command"], "data": job["data"],
-            "model": job["model"], "status": "cached", "error": "", "output": job_output(job),
-            "result": result}
+    return {
+        "name": job["name"],
+        "command": job["command"],
+        "data": job["data"],
+        "model": job["model"],
+        "status": "cached",
+        "error": "",
+        "output": job_output(job),
+        "result": result,
+    }
 
 
 def run_batch(jobs, scheduler=None, workers=2, progress=None):
@@ -265,8 +323,10 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
     try:
         from dask.distributed import Client, LocalCluster, as_completed
     except ImportError:
-        raise UvfitError("uvfit batch needs Dask's distributed scheduler, which is not installed",
-                         "pip install 'uvfit[batch]' (or: pip install 'dask[distributed]')") from None
+        raise UvfitError(
+            "uvfit batch needs Dask's distributed scheduler, which is not installed",
+            "pip install 'uvfit[batch]' (or: pip install 'dask[distributed]')",
+        ) from None
     check_cluster(scheduler, workers)
     rows = {}
     todo = []
@@ -283,15 +343,24 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
             if scheduler:
                 client = _connect(scheduler, SCHEDULER_TIMEOUT)
             else:
-                cluster = LocalCluster(n_workers=int(workers), threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=None)
+                cluster = LocalCluster(
+                    n_workers=int(workers),
+                    threads_per_worker=1,
+                    processes=True,
+                    host="127.0.0.1",
+                    dashboard_address=None,
+                )
                 client = Client(cluster)
         except (OSError, TimeoutError) as exc:
-            raise UvfitError(f"cannot reach the Dask scheduler {scheduler or '(local)'}: {exc}",
-                             "check the address (tcp://HOST:PORT) and that the scheduler runs") from None
+            raise UvfitError(
+                f"cannot reach the Dask scheduler {scheduler or '(local)'}: {exc}",
+                "check the address (tcp://HOST:PORT) and that the scheduler runs",
+            ) from None
         try:
-            futures = {client.submit(run_job, job, key=f"uvfit-{job['name']}-{job_digest(job)[:12]}",
-                                     pure=False): job for job in todo}
+            futures = {
+                client.submit(run_job, job, key=f"uvfit-{job['name']}-{job_digest(job)[:12]}", pure=False): job
+                for job in todo
+            }
             for future in as_completed(list(futures)):
                 try:
                     row = future.result()
@@ -316,21 +385,28 @@ def check_cluster(scheduler, workers):
     """Refuse a local cluster of no workers and a scheduler address Dask cannot dial."""
     if scheduler is None:
         if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
-            raise UvfitError(f"workers must be a whole number of at least 1, not {workers!r}",
-                             "a local cluster needs at least one worker process")
+            raise UvfitError(
+                f"workers must be a whole number of at least 1, not {workers!r}",
+                "a local cluster needs at least one worker process",
+            )
         return
     import re
-    m = re.fullmatch(r"(?:(?P<scheme>[A-Za-z][\w+.-]*)://)?(?P<host>\[[0-9A-Fa-f:.]+\]|[\w.-]+):(?P<port>\d{1,5})",
-                     scheduler or "")
+
+    m = re.fullmatch(
+        r"(?:(?P<scheme>[A-Za-z][\w+.-]*)://)?(?P<host>\[[0-9A-Fa-f:.]+\]|[\w.-]+):(?P<port>\d{1,5})", scheduler or ""
+    )
     if not m or (m["scheme"] or "tcp").lower() not in _SCHEMES or not 0 < int(m["port"]) < 65536:
-        raise UvfitError(f"scheduler address '{scheduler}' is not tcp://HOST:PORT",
-                         "give the address the Dask scheduler prints, e.g. tcp://10.0.0.5:8786")
+        raise UvfitError(
+            f"scheduler address '{scheduler}' is not tcp://HOST:PORT",
+            "give the address the Dask scheduler prints, e.g. tcp://10.0.0.5:8786",
+        )
 
 
 def _connect(scheduler, timeout):
     """A Dask client of ``scheduler``, or a clear error within about ``timeout`` seconds: the
     connection, the handshake and the first answer are all bounded."""
     import concurrent.futures
+
     import dask
     from dask.distributed import Client
 
@@ -345,21 +421,24 @@ def _connect(scheduler, timeout):
         client = future.result(timeout + 5.0)
     except concurrent.futures.TimeoutError:
         pool.shutdown(wait=False, cancel_futures=True)
-        raise UvfitError(f"the Dask scheduler {scheduler} did not answer within {timeout:g} s",
-                         "check the address and that a Dask scheduler (not another program) "
-                         "listens there") from None
+        raise UvfitError(
+            f"the Dask scheduler {scheduler} did not answer within {timeout:g} s",
+            "check the address and that a Dask scheduler (not another program) listens there",
+        ) from None
     except (OSError, TimeoutError, ValueError) as exc:
         pool.shutdown(wait=False)
-        raise UvfitError(f"cannot reach the Dask scheduler {scheduler}: {exc}",
-                         "check the address (tcp://HOST:PORT) and that the scheduler runs") from None
+        raise UvfitError(
+            f"cannot reach the Dask scheduler {scheduler}: {exc}",
+            "check the address (tcp://HOST:PORT) and that the scheduler runs",
+        ) from None
     pool.shutdown(wait=False)
     return client
 
 
 def results_table(rows):
     """One astropy Table row per job: status, error, chi-square, every parameter and derived value."""
-    from astropy.table import Table
     import numpy as np
+    from astropy.table import Table
 
     value_keys = []
     for row in rows:

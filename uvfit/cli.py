@@ -49,10 +49,28 @@ def cli():
     """
 
 
+def _exit_on_term():
+    """SIGTERM ends uvfit as Ctrl-C does: an exception unwinds the writes in progress, so their
+    temporary files are removed (uvfit.outputs) before the exit (code 143)."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return
+
+    def terminated(signum, frame):
+        click.echo("terminated", err=True)
+        raise SystemExit(128 + signum)
+
+    signal.signal(signal.SIGTERM, terminated)
+
+
 def main(argv=None):
     """Entry point: run the group, turning known problems into one line and an exit code."""
     debug = bool(os.environ.get("UVFIT_DEBUG"))
     from ._blas import single_threaded
+
+    _exit_on_term()
 
     try:
         # many small least-squares steps: one BLAS thread is faster and gives the same numbers

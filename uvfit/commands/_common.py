@@ -98,12 +98,94 @@ def force_option(func):
     return click.option("--force", is_flag=True, help="Overwrite output files that exist already.")(func)
 
 
+def at_least_zero(ctx, param, value):
+    """Click callback: a finite number not below zero (None passes), else a one-line UvfitError."""
+    if value is None:
+        return value
+    import math
+
+    option = max(param.opts, key=len)
+    if isinstance(value, float) and not math.isfinite(value):
+        raise UvfitError(f"{option} must be a finite number, not {value}", f"give {option} 0 or more")
+    if value < 0:
+        raise UvfitError(f"{option} must be 0 or more, not {value}", f"give {option} 0 or more")
+    return value
+
+
+#: largest seed numpy's generators take from one integer here (a 64-bit unsigned)
+MAX_SEED = 2**64 - 1
+
+
+def _seed(ctx, param, value):
+    if value is None:
+        return value
+    if not 0 <= value <= MAX_SEED:
+        raise UvfitError(
+            f"--seed must be a whole number from 0 to {MAX_SEED}, not {value}",
+            "give a non-negative seed, e.g. --seed 1",
+        )
+    return value
+
+
 def seed_option(func):
     return click.option(
-        "--seed", type=int, default=0, show_default=True, help="Seed of every random step; recorded in the outputs."
+        "--seed",
+        type=int,
+        default=0,
+        show_default=True,
+        callback=_seed,
+        help="Seed of every random step; recorded in the outputs.",
     )(func)
 
 
 def progressbar(length, label, **options):
     """A click progress bar on stderr."""
     return click.progressbar(length=length, label=label, file=click.get_text_stream("stderr"), **options)
+
+
+#: what '-' means as an output path: the standard output where a command says so (as
+#: ``info --json -``), refused everywhere else (never a file named '-')
+STDOUT = "-"
+
+
+def check_outputs(outputs, inputs=None, force=False, stdout_ok=()):
+    """Check every output of a command before any work, against each other and the inputs.
+
+    ``outputs`` maps an option (e.g. ``"--json"``) to its path (None: not asked for); ``inputs``
+    maps a description (e.g. ``"the data"``) to an input path. Refused: '-' for an option not in
+    ``stdout_ok``; two options naming one file; an output that is an input; an existing output
+    without ``force`` (``outputs.check_writable``). Returns nothing; raises UvfitError.
+    """
+    import os
+
+    from ..outputs import check_writable
+
+    seen = {}
+    real_inputs = {}
+    for what, path in (inputs or {}).items():
+        if path and path != STDOUT:
+            real_inputs[os.path.normcase(os.path.realpath(os.fspath(path)))] = what
+    for option, path in outputs.items():
+        if path is None:
+            continue
+        path = os.fspath(path)
+        if path == STDOUT:
+            if option not in stdout_ok:
+                raise UvfitError(
+                    f"{option} -: this output is written to a file only",
+                    "give a file name ('-' means the standard output only for uvfit info --json)",
+                )
+            continue
+        if not path or os.path.isdir(path):
+            raise UvfitError(f"{option} {path!r} is not a file name", "give the output file's name")
+        key = os.path.normcase(os.path.realpath(path))
+        if key in seen:
+            raise UvfitError(
+                f"{seen[key]} and {option} name the same file {path}", "give each output its own file name"
+            )
+        if key in real_inputs:
+            raise UvfitError(
+                f"{option} {path} is {real_inputs[key]}, an input of this command", "write the output to another file"
+            )
+        seen[key] = option
+        check_writable(path, force)

@@ -2,6 +2,8 @@
 
 import click
 
+from ._common import at_least_zero
+
 _KEYS = (
     "ra",
     "dec",
@@ -57,6 +59,7 @@ def observation_options(func):
         click.option(
             "--systematic",
             type=float,
+            callback=at_least_zero,
             default=0.0,
             show_default=True,
             help="Extra error per visibility as a fraction of its amplitude (added in quadrature).",

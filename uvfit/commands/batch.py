@@ -5,7 +5,7 @@ import os
 import click
 
 from ..outputs import atomic_write_with
-from ._common import force_option, progressbar
+from ._common import as_options, check_outputs, force_option, progressbar
 
 
 @click.command("batch")
@@ -37,12 +37,22 @@ def command(manifest, scheduler, workers, output, force):
 
     Jobs whose JSON output exists and matches their inputs are not run again.
     """
-    from ..infer.batch import load_manifest, results_table, run_batch
+    from ..infer.batch import check_cluster, job_output, load_manifest, results_table, run_batch
+    from ..infer.batch import check_outputs as check_job_outputs
     from ..show.text import batch_text
 
+    with as_options(workers="--workers", scheduler="--scheduler"):
+        check_cluster(scheduler, workers)
     jobs = load_manifest(manifest)
     if output is None:
         output = os.path.join(os.path.dirname(os.path.abspath(manifest)), "batch-results.ecsv")
+    inputs = {"the manifest": manifest}
+    for job in jobs:
+        inputs[f"job {job['name']}'s data"] = job["data"]
+        inputs[f"job {job['name']}'s model"] = job["model"]
+        inputs[f"job {job['name']}'s result"] = job_output(job)
+    check_outputs({"-o": output}, inputs, force=True, stdout_ok=())
+    check_job_outputs(jobs, force=force)
     # Rule: the results table is derived from the jobs' own JSON files, so a table written by an
     # earlier batch run of the same manifest is rewritten; any other existing file needs --force.
     rewrite = force or _is_own_table(output, manifest)

@@ -1,12 +1,9 @@
 """`uvfit closures DATA [--model FIT.json | MODEL.toml]`: closure phases and closure amplitudes of
 the data, and how well a model reproduces them (per triangle, quadrangle and station)."""
 
-import os
-
 import click
 
-from ..errors import UvfitError
-from ._common import echo_notes, force_option, pop_selection, selection_options
+from ._common import at_least_zero, check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("closures")
@@ -21,6 +18,7 @@ from ._common import echo_notes, force_option, pop_selection, selection_options
 @click.option(
     "--systematic",
     type=float,
+    callback=at_least_zero,
     default=None,
     metavar="F",
     help="Systematic floor: fraction of |V| added in quadrature to each visibility's sigma "
@@ -64,13 +62,9 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
     baseline-based errors, and cannot fix the absolute position or the total flux.
     """
     from .. import tasks
-    from ..outputs import atomic_write_with, check_writable, write_json
+    from ..outputs import atomic_write_with, write_json
 
-    for out in (json_out, table_out):
-        if out:
-            check_writable(out, force)
-    if json_out and table_out and os.path.abspath(json_out) == os.path.abspath(table_out):
-        raise UvfitError("--json and --table name the same file", "give two different file names")
+    check_outputs({"--json": json_out, "--table": table_out}, {"the data": data, "the model": model_path}, force)
     selection = pop_selection(kwargs)
     if selection.get("average"):
         click.echo(

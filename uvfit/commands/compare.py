@@ -3,7 +3,17 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
+from ._common import (
+    as_options,
+    at_least_zero,
+    check_outputs,
+    echo_notes,
+    force_option,
+    pop_selection,
+    progressbar,
+    seed_option,
+    selection_options,
+)
 
 
 @click.command("compare")
@@ -19,6 +29,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, progre
 @click.option(
     "--systematic",
     type=float,
+    callback=at_least_zero,
     default=0.0,
     show_default=True,
     help="Fraction of |V| added in quadrature to every sigma.",
@@ -27,6 +38,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, progre
 @click.option(
     "--bootstrap",
     type=int,
+    callback=at_least_zero,
     default=0,
     show_default=True,
     help="Simulated data sets for the false-alarm probability of each richer model.",
@@ -46,13 +58,12 @@ def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, f
     """
     from .. import tasks
     from ..errors import UvfitError
-    from ..outputs import check_writable, write_json
+    from ..outputs import write_json
 
     if len(models) < 2:
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
     selection = pop_selection(kwargs)
-    if json_out:
-        check_writable(json_out, force)
+    check_outputs({"--json": json_out}, {"the data": data, **{f"model {m}": m for m in models}}, force)
     options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed, selection=selection)
     with as_options(bootstrap="--bootstrap"):
         if bootstrap > 0:

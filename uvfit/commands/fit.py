@@ -3,7 +3,17 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
+from ._common import (
+    as_options,
+    at_least_zero,
+    check_outputs,
+    echo_notes,
+    force_option,
+    pop_selection,
+    progressbar,
+    seed_option,
+    selection_options,
+)
 
 
 @click.command("fit")
@@ -19,6 +29,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, progre
 @click.option(
     "--systematic",
     type=float,
+    callback=at_least_zero,
     default=0.0,
     show_default=True,
     help="Fraction of |V| added in quadrature to every sigma (e.g. 0.02).",
@@ -43,6 +54,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, progre
 @click.option(
     "--redshift",
     type=float,
+    callback=at_least_zero,
     default=0.0,
     show_default=True,
     help="Source redshift, for rest-frame brightness temperatures.",
@@ -94,16 +106,14 @@ def command(
     goodness of fit and the stations and baselines that fit worst.
     """
     from .. import tasks
-    from ..outputs import atomic_write, check_writable, write_json
+    from ..outputs import atomic_write, write_json
 
     selection = pop_selection(kwargs)
     if write_model_column:
         from ..data.ms import check_model_column_writable
 
         check_model_column_writable(data)
-    for path in (json_out, save_model):
-        if path:
-            check_writable(path, force)
+    check_outputs({"--json": json_out, "--save-model": save_model}, {"the data": data, "the model": model}, force)
     options = dict(
         mode=mode,
         systematic=systematic,

@@ -3,7 +3,7 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, force_option, progressbar, seed_option
+from ._common import as_options, check_outputs, force_option, progressbar, seed_option
 from ._observation import observation_options, pop_observation
 
 
@@ -38,11 +38,14 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     families only; real data carry calibration errors the simulation may not.
     """
     from .. import tasks
-    from ..outputs import check_writable, write_json
+    from ..outputs import write_json
 
     observation, corruption = pop_observation(kwargs)
-    if json_path:
-        check_writable(json_path, force)
+    check_outputs(
+        {"--json": json_path},
+        {"the array": array_file, "the true model": true_file, **{f"model {m}": m for m in alt_files}},
+        force,
+    )
     with as_options(trials="--trials"):
         tasks.check_forecast_options(trials=trials)
     with progressbar(trials, "forecast trials") as bar:

@@ -2,7 +2,7 @@
 
 import click
 
-from ._common import echo_notes, force_option, pop_selection, selection_options
+from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("info")
@@ -25,6 +25,7 @@ def command(data, json_out, force, **kwargs):
     from .. import tasks
     from ..outputs import to_json, write_json
 
+    check_outputs({"--json": json_out}, {"the data": data}, force, stdout_ok=("--json",))
     report = tasks.info(data, pop_selection(kwargs))
     echo_notes(report.notes)
     s = report.to_dict()

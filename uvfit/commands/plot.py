@@ -3,7 +3,7 @@
 import click
 
 from ..show.figures import KINDS
-from ._common import echo_notes, force_option, pop_selection, selection_options
+from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("plot")
@@ -49,15 +49,13 @@ def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, *
     recorded; selection options given here override the recorded ones. Figures show east to the
     left, as on the sky.
     """
-    from ..outputs import check_writable, write_json
+    from ..outputs import write_json
     from ..show import style
     from ..show.figures import make_figure
     from ..show.readback import open_fit_view
 
     selection = pop_selection(kwargs)
-    check_writable(out, force)
-    if numbers_path:
-        check_writable(numbers_path, force)
+    check_outputs({"-o": out, "--numbers": numbers_path}, {"the data": data, "the fit": fit_path}, force)
     view, notes = open_fit_view(data, fit_path, selection)
     echo_notes(notes)
     fig, numbers = make_figure(kind, view, colour_by=colour_by, panels=panels)

@@ -2,7 +2,7 @@
 
 import click
 
-from ._common import echo_notes, force_option, pop_selection, selection_options
+from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("report")
@@ -48,12 +48,22 @@ def command(data, fit_path, posterior_path, chain_path, compare_path, out, force
     """
     import os
 
-    from ..outputs import atomic_write, check_writable
+    from ..outputs import atomic_write
     from ..show import readback
     from ..show.report import build_report, run_closure_check
 
     selection = pop_selection(kwargs)
-    check_writable(out, force)
+    check_outputs(
+        {"-o": out},
+        {
+            "the data": data,
+            "the fit": fit_path,
+            "the posterior": posterior_path,
+            "the chain": chain_path,
+            "the comparison": compare_path,
+        },
+        force,
+    )
     posterior = readback.load_posterior(posterior_path) if posterior_path else None
     compare = readback.load_compare(compare_path) if compare_path else None
     chain = None

@@ -3,7 +3,17 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
+from ._common import (
+    as_options,
+    at_least_zero,
+    check_outputs,
+    echo_notes,
+    force_option,
+    pop_selection,
+    progressbar,
+    seed_option,
+    selection_options,
+)
 
 
 @click.command("sample")
@@ -19,6 +29,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, progre
 @click.option(
     "--systematic",
     type=float,
+    callback=at_least_zero,
     default=0.0,
     show_default=True,
     metavar="F",
@@ -75,6 +86,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, progre
 @click.option(
     "--redshift",
     type=float,
+    callback=at_least_zero,
     default=0.0,
     show_default=True,
     help="Redshift for the rest-frame brightness temperatures.",
@@ -109,7 +121,7 @@ def command(
     """
     from .. import tasks
     from ..infer.sampling import check_chain_file
-    from ..outputs import check_writable, write_json
+    from ..outputs import write_json
     from ..show.corner import write_corner_plot
 
     selection = pop_selection(kwargs)
@@ -117,9 +129,12 @@ def command(
     with as_options(**names):
         tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
     # refuse early, before any long work, whatever would be refused at the end
-    for path in (json_path, corner_path):
-        if path is not None:
-            check_writable(path, force)
+    check_outputs(
+        {"--chain": chain_path, "--json": json_path, "--corner": corner_path},
+        {"the data": data, "the model": model},
+        force=True,
+    )
+    check_outputs({"--json": json_path, "--corner": corner_path}, {}, force)
     previous = check_chain_file(chain_path, resume, force)
 
     todo = max(max_steps - previous, 0)

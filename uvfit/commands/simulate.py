@@ -2,7 +2,7 @@
 
 import click
 
-from ._common import force_option, seed_option
+from ._common import check_outputs, force_option, seed_option
 from ._observation import observation_options, pop_observation
 
 
@@ -28,19 +28,19 @@ def command(array_file, model_file, output, json_path, seed, force, no_noise, **
     atmosphere, no calibration errors beyond the gain errors asked for.
     """
     from .. import tasks
-    from ..outputs import check_writable, write_json
+    from ..outputs import write_json
     from ..sim.observe import write_simulation
 
     observation, corruption = pop_observation(kwargs)
-    check_writable(output, force)
-    if json_path:
-        check_writable(json_path, force)
+    check_outputs({"-o": output, "--json": json_path}, {"the array": array_file, "the model": model_file}, force)
     report = tasks.simulate(
         array_file, model_file, observation, seed=seed, noise=not no_noise, output=output, **corruption
     )
+    # everything that could fail is done before the first file is written
+    text, record, notice = report.text(), report.to_dict(), report.notice
     write_simulation(report.vset, output, force=force)
-    if report.notice:
-        click.echo(report.notice, err=True)
-    click.echo(report.text())
+    if notice:
+        click.echo(notice, err=True)
+    click.echo(text)
     if json_path:
-        write_json(json_path, report.to_dict(), force=force)
+        write_json(json_path, record, force=force)

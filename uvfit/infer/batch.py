@@ -59,6 +59,11 @@ def _read_manifest_text(path):
         raise UvfitError(
             f"the batch manifest {path} is not valid TOML: {exc}", "fix the syntax at the line named"
         ) from None
+    except RecursionError:
+        raise UvfitError(
+            f"the batch manifest {path} is nested too deeply to read",
+            "a manifest has a [defaults] table and [[job]] entries only",
+        ) from None
 
 
 def load_manifest(path):
@@ -72,11 +77,15 @@ def load_manifest(path):
             "a manifest has a [defaults] table and [[job]] entries only",
         )
     defaults = doc.get("defaults", {})
+    if not isinstance(defaults, dict):
+        raise UvfitError(f"'defaults' in the batch manifest {path} is not a table", "write it as a [defaults] table")
     jobs = doc.get("job", [])
     if not isinstance(jobs, list) or not jobs:
         raise UvfitError(f"the batch manifest {path} lists no jobs", "add [[job]] entries with data and model")
     out, names = [], set()
     for number, entry in enumerate(jobs, 1):
+        if not isinstance(entry, dict):
+            raise UvfitError(f"job {number} of {path} is not a table", "write each job as [[job]]")
         spec = {**defaults, **entry}
         unknown = set(spec) - _JOB_KEYS
         if unknown:
@@ -90,9 +99,19 @@ def load_manifest(path):
         job = {k: spec.get(k, v) for k, v in JOB_OPTIONS.items()}
         if job["command"] not in COMMANDS:
             raise UvfitError(f"job {number} of {path}: unknown command '{job['command']}'", "use 'fit' or 'sample'")
+        for key in ("data", "model", "output_dir"):
+            if key in spec and not isinstance(spec[key], str):
+                raise UvfitError(
+                    f"job {number} of {path}: '{key}' must be a path (a string), "
+                    f"not {type(spec[key]).__name__} {spec[key]!r}",
+                    f'write it in quotes, e.g. {key} = "file"',
+                )
         job["data"] = os.path.normpath(os.path.join(folder, spec["data"]))
         job["model"] = os.path.normpath(os.path.join(folder, spec["model"]))
-        job["name"] = str(spec.get("name") or os.path.splitext(os.path.basename(spec["data"]))[0])
+        name = spec.get("name")
+        if name is None:
+            name = os.path.splitext(os.path.basename(spec["data"]))[0]
+        job["name"] = check_job_name(name, number, path)
         if job["name"] in names:
             raise UvfitError(
                 f"job {number} of {path}: the name '{job['name']}' is used twice", "give each job its own name"
@@ -101,6 +120,71 @@ def load_manifest(path):
         job["output_dir"] = os.path.normpath(os.path.join(folder, spec.get("output_dir", "batch-results")))
         out.append(job)
     return out
+
+
+def check_job_name(name, number, path):
+    """A job name is a plain file name: it becomes NAME.json inside the output folder, so it may
+    hold no folder separator, no control character, and be neither '.', '..' nor hidden."""
+    if not isinstance(name, str) or not name.strip():
+        raise UvfitError(
+            f"job {number} of {path}: the name {name!r} is not a plain name",
+            "give each job a name of letters, digits, '-', '_' or '.'",
+        )
+    bad = [c for c in name if c in "/\\" or ord(c) < 32 or ord(c) == 127]
+    if bad or name in (".", "..") or name.startswith(".") or os.path.isabs(name) or name != name.strip():
+        shown = name.encode("unicode_escape").decode("ascii")
+        raise UvfitError(
+            f"job {number} of {path}: the name '{shown}' is not a plain file name "
+            "(it would place its result outside the output folder or hide it)",
+            "use letters, digits, '-', '_' and '.' only, not starting with '.'",
+        )
+    return name
+
+
+def check_outputs(jobs, force=False):
+    """Before any work: every job's result stays inside its output folder, no two jobs share a
+    result file, and an existing file that is not this job's own earlier batch result is never
+    overwritten (unless ``force``)."""
+    seen = {}
+    for job in jobs:
+        out = job_output(job)
+        folder = os.path.realpath(job["output_dir"])
+        real = os.path.realpath(out)
+        if os.path.dirname(real) != folder:
+            raise UvfitError(
+                f"job '{job['name']}': its result {out} would be written outside the output folder {job['output_dir']}",
+                "give the job a plain name and no links in the output folder",
+            )
+        key = os.path.normcase(real)
+        if key in seen:
+            raise UvfitError(
+                f"jobs '{seen[key]}' and '{job['name']}' would write the same result file {out}",
+                "give each job its own name",
+            )
+        seen[key] = job["name"]
+        for other in ("data", "model"):
+            if os.path.exists(job[other]) and os.path.realpath(job[other]) == real:
+                raise UvfitError(
+                    f"job '{job['name']}': its result {out} is its own {other} file",
+                    "choose another output_dir or name",
+                )
+        if os.path.lexists(out) and not force and not _own_result(out, job):
+            raise UvfitError(
+                f"job '{job['name']}': {out} exists and is not a batch result of this job",
+                "move it away, choose another output_dir, or pass --force",
+            )
+
+
+def _own_result(path, job):
+    """True when ``path`` is a regular file holding an earlier batch result of this job's name."""
+    if os.path.islink(path) or not os.path.isfile(path):
+        return False
+    try:
+        with open(path) as handle:
+            done = json.load(handle)
+    except (OSError, ValueError, UnicodeDecodeError, RecursionError):
+        return False
+    return isinstance(done, dict) and isinstance(done.get("batch"), dict) and done["batch"].get("name") == job["name"]
 
 
 def job_digest(job):
@@ -129,9 +213,11 @@ def is_current(job):
     try:
         with open(path) as handle:
             done = json.load(handle)
-    except (OSError, ValueError):
+    except (OSError, ValueError, UnicodeDecodeError, RecursionError):
         return False
-    return done.get("batch", {}).get("input_digest") == job_digest(job)
+    if not _own_result(path, job):
+        return False
+    return done["batch"].get("input_digest") == job_digest(job)
 
 
 def run_job(job):
@@ -200,6 +286,19 @@ def _run(job):
     ).to_dict()
 
 
+def failed_row(job, error):
+    """The row of a job that could not run to its end."""
+    return {
+        "name": job["name"],
+        "command": job["command"],
+        "data": job["data"],
+        "model": job["model"],
+        "status": "failed",
+        "error": error,
+        "output": job_output(job),
+    }
+
+
 def cached_row(job):
     with open(job_output(job)) as handle:
         result = json.load(handle)
@@ -228,6 +327,7 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
             "uvfit batch needs Dask's distributed scheduler, which is not installed",
             "pip install 'uvfit[batch]' (or: pip install 'dask[distributed]')",
         ) from None
+    check_cluster(scheduler, workers)
     rows = {}
     todo = []
     for job in jobs:
@@ -241,7 +341,7 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
         cluster = None
         try:
             if scheduler:
-                client = Client(scheduler, timeout="20s")
+                client = _connect(scheduler, SCHEDULER_TIMEOUT)
             else:
                 cluster = LocalCluster(
                     n_workers=int(workers),
@@ -257,12 +357,15 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
                 "check the address (tcp://HOST:PORT) and that the scheduler runs",
             ) from None
         try:
-            futures = [
-                client.submit(run_job, job, key=f"uvfit-{job['name']}-{job_digest(job)[:12]}", pure=False)
+            futures = {
+                client.submit(run_job, job, key=f"uvfit-{job['name']}-{job_digest(job)[:12]}", pure=False): job
                 for job in todo
-            ]
-            for future in as_completed(futures):
-                row = future.result()
+            }
+            for future in as_completed(list(futures)):
+                try:
+                    row = future.result()
+                except Exception as exc:  # the worker died (or the task was lost): that job failed
+                    row = failed_row(futures[future], f"the worker running it died ({type(exc).__name__}: {exc})")
                 rows[row["name"]] = row
                 if progress:
                     progress(1)
@@ -271,6 +374,65 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
             if cluster is not None:
                 cluster.close()
     return [rows[job["name"]] for job in jobs], len(todo)
+
+
+#: seconds to wait for a scheduler to answer (connection and handshake) before giving up
+SCHEDULER_TIMEOUT = 20.0
+_SCHEMES = ("tcp", "tls")
+
+
+def check_cluster(scheduler, workers):
+    """Refuse a local cluster of no workers and a scheduler address Dask cannot dial."""
+    if scheduler is None:
+        if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
+            raise UvfitError(
+                f"workers must be a whole number of at least 1, not {workers!r}",
+                "a local cluster needs at least one worker process",
+            )
+        return
+    import re
+
+    m = re.fullmatch(
+        r"(?:(?P<scheme>[A-Za-z][\w+.-]*)://)?(?P<host>\[[0-9A-Fa-f:.]+\]|[\w.-]+):(?P<port>\d{1,5})", scheduler or ""
+    )
+    if not m or (m["scheme"] or "tcp").lower() not in _SCHEMES or not 0 < int(m["port"]) < 65536:
+        raise UvfitError(
+            f"scheduler address '{scheduler}' is not tcp://HOST:PORT",
+            "give the address the Dask scheduler prints, e.g. tcp://10.0.0.5:8786",
+        )
+
+
+def _connect(scheduler, timeout):
+    """A Dask client of ``scheduler``, or a clear error within about ``timeout`` seconds: the
+    connection, the handshake and the first answer are all bounded."""
+    import concurrent.futures
+
+    import dask
+    from dask.distributed import Client
+
+    def dial():
+        with dask.config.set({"distributed.comm.timeouts.connect": f"{timeout}s"}):
+            client = Client(scheduler, timeout=f"{timeout}s")
+        return client
+
+    pool = concurrent.futures.ThreadPoolExecutor(1)
+    future = pool.submit(dial)
+    try:
+        client = future.result(timeout + 5.0)
+    except concurrent.futures.TimeoutError:
+        pool.shutdown(wait=False, cancel_futures=True)
+        raise UvfitError(
+            f"the Dask scheduler {scheduler} did not answer within {timeout:g} s",
+            "check the address and that a Dask scheduler (not another program) listens there",
+        ) from None
+    except (OSError, TimeoutError, ValueError) as exc:
+        pool.shutdown(wait=False)
+        raise UvfitError(
+            f"cannot reach the Dask scheduler {scheduler}: {exc}",
+            "check the address (tcp://HOST:PORT) and that the scheduler runs",
+        ) from None
+    pool.shutdown(wait=False)
+    return client
 
 
 def results_table(rows):

@@ -119,8 +119,19 @@ def model_from_fit(fit, path=None):
         raise UvfitError(f"the model recorded in the fit cannot be rebuilt: {exc.message}", exc.hint) from None
     params = fit.get("parameters", {})
     names = list(model.free_names)
-    if names and all(n in params for n in names):
-        model.set_free(np.array([float(params[n]["value"]) for n in names]))
+    if names and isinstance(params, dict) and all(n in params for n in names):
+        values = []
+        for n in names:
+            entry = params[n]
+            value = entry.get("value") if isinstance(entry, dict) else None
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(value):
+                where = f"{path}: " if path else ""
+                raise UvfitError(
+                    f"{where}the fitted value of {n} is {value!r}, not a finite number",
+                    "give the unchanged JSON written by 'uvfit fit --json'",
+                )
+            values.append(float(value))
+        model.set_free(np.array(values))
     return model
 
 

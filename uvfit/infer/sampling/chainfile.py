@@ -34,14 +34,32 @@ def read_chain_attrs(path):
             f"cannot read the chain file {path} ({exc})",
             "give an HDF5 chain file written by 'uvfit sample --chain', or start a new one with --force",
         ) from None
-    names = json.loads(attrs.get("uvfit_names", "[]"))
-    return {
-        "names": names,
-        "seed": int(attrs.get("uvfit_seed", 0)),
-        "iteration": int(attrs.get("iteration", 0)),
-        "n_walkers": int(attrs.get("nwalkers", 0)),
-        "meta": json.loads(attrs.get("uvfit_meta", "{}")),
-    }
+    try:
+        names = json.loads(attrs.get("uvfit_names", "[]"))
+        info = {
+            "names": names,
+            "seed": int(attrs.get("uvfit_seed", 0)),
+            "iteration": int(attrs.get("iteration", 0)),
+            "n_walkers": int(attrs.get("nwalkers", 0)),
+            "meta": json.loads(attrs.get("uvfit_meta", "{}")),
+        }
+        ok = (
+            isinstance(names, list)
+            and all(isinstance(n, str) for n in names)
+            and isinstance(info["meta"], dict)
+            and info["iteration"] >= 0
+            and info["n_walkers"] >= 0
+            and info["seed"] >= 0
+        )
+    except (TypeError, ValueError, OverflowError, RecursionError):
+        ok = False
+    if not ok:
+        raise UvfitError(
+            f"the attributes of the chain file {path} are damaged (uvfit_names, "
+            "uvfit_seed, uvfit_meta, iteration or nwalkers)",
+            "start a new chain with --force",
+        )
+    return info
 
 
 def write_chain_attrs(path, names, seed, meta):
@@ -90,7 +108,6 @@ def resume_backend(chain_path, names, n_walkers, seed):
     Refuses a chain run on other free parameters, with another number of walkers, or empty; the
     chain's own seed is kept (a note says so when ``seed`` differs).
     """
-    import emcee
 
     notes = []
     info = read_chain_attrs(chain_path)
@@ -110,8 +127,37 @@ def resume_backend(chain_path, names, n_walkers, seed):
     if int(seed) != info["seed"]:
         notes.append(f"the chain continues its own random sequence (seed {info['seed']}); --seed {seed} is not used")
     seed = info["seed"]
-    backend = emcee.backends.HDFBackend(chain_path, name=CHAIN_GROUP)
+    backend = _backend_class()(chain_path, name=CHAIN_GROUP)
     return backend, n_walkers, seed, notes
+
+
+_BACKEND = []
+
+
+def _backend_class():
+    """emcee's HDF5 backend, whose failed step (a full disk, a lost file system) becomes a clear
+    error: emcee raises the step counter last, so the steps before it stay complete and readable."""
+    if _BACKEND:
+        return _BACKEND[0]
+    import emcee
+
+    class ChainBackend(emcee.backends.HDFBackend):
+        def save_step(self, state, accepted):
+            try:
+                super().save_step(state, accepted)
+            except OSError as exc:
+                try:
+                    done = int(self.iteration)
+                except Exception:  # the file itself is gone or unreadable
+                    done = None
+                kept = f"it keeps its {done} complete steps" if done is not None else "it may be damaged"
+                raise UvfitError(
+                    f"cannot write the next step to the chain file {self.filename} ({exc.strerror or exc}); {kept}",
+                    "free disk space, then continue with --resume",
+                ) from None
+
+    _BACKEND.append(ChainBackend)
+    return ChainBackend
 
 
 def new_backend(chain_path, n_walkers, n_dim, names, seed, meta):
@@ -119,11 +165,10 @@ def new_backend(chain_path, n_walkers, n_dim, names, seed, meta):
     attributes written; None without a path."""
     if chain_path is None:
         return None
-    import emcee
 
     if os.path.exists(chain_path):
         os.unlink(chain_path)
-    backend = emcee.backends.HDFBackend(chain_path, name=CHAIN_GROUP)
+    backend = _backend_class()(chain_path, name=CHAIN_GROUP)
     backend.reset(n_walkers, n_dim)
     write_chain_attrs(chain_path, names, seed, meta)
     return backend

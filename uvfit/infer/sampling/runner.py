@@ -242,6 +242,46 @@ def run_chain(
     )
 
 
+def digests(vset, model):
+    """SHA-256 digests of what a chain depends on: ``data`` (the rows after selection: u, v,
+    time, frequency, visibilities, sigmas, flags, stations) and ``model`` (every parameter's
+    name, bounds, fixed or free, tie, prior and unit, fixed values, the shapes and unit)."""
+    import hashlib
+    import json
+
+    h = hashlib.sha256()
+    for key in ("u", "v", "time", "frequency", "vis", "sigma", "flag"):
+        h.update(np.ascontiguousarray(np.asarray(getattr(vset, key))).tobytes())
+    for key in ("station1", "station2"):
+        h.update("\x1f".join(map(str, np.asarray(getattr(vset, key)).tolist())).encode())
+    m = hashlib.sha256()
+    rows = []
+    for name, p in model.parameters.items():
+        rows.append(
+            [name, p.min, p.max, bool(p.fixed), p.tie, repr(p.prior), str(p.unit), p.value if p.fixed else None]
+        )
+    m.update(json.dumps(rows, default=repr).encode())
+    m.update(repr(model.structure_key()).encode())
+    return {"data": h.hexdigest(), "model": m.hexdigest()}
+
+
+def check_digests(chain_path, stored, now):
+    """Refuse to resume a chain run on other data, another selection, or another model."""
+    old = stored.get("digest") if isinstance(stored, dict) else None
+    if not isinstance(old, dict):
+        return  # a chain written before digests were kept: nothing to compare
+    what = {
+        "data": "other data (another file or another selection of rows)",
+        "model": "another model (other bounds, priors, fixed or tied parameters, or shapes)",
+    }
+    differ = [what[k] for k in ("data", "model") if old.get(k) != now[k]]
+    if differ:
+        raise UvfitError(
+            f"the chain in {chain_path} was run on " + " and ".join(differ),
+            "resume with the same data, selection and model file, or start a new chain with --force",
+        )
+
+
 def sample(
     vset,
     model,
@@ -295,6 +335,13 @@ def sample(
                         f"resume with the same --{key}, or start a new chain with --force",
                     )
         stat, fixed, notices = fix_degeneracies(stat)
+        if (
+            chain_path is not None
+            and os.path.exists(chain_path)
+            and chain_info(chain_path)["names"] == list(stat.model.free_names)
+        ):
+            # (other free parameters: resume_backend names them)
+            check_digests(chain_path, stored, digests(vset, model))
     else:
         result = fit(stat, starts=starts, seed=seed, progress=fit_progress, strict=False)
         stat = result.statistic
@@ -319,7 +366,12 @@ def sample(
     extra["redshift"] = float(redshift or 0.0)
     log_prob = LogPosterior(stat, work)
     bounds = (log_prob.lower, log_prob.upper)
-    meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
+    meta = {
+        "mode": mode,
+        "systematic": float(systematic),
+        "data": None if data_path is None else str(data_path),
+        "digest": digests(vset, model),
+    }
     chain = run_chain(
         log_prob,
         start,

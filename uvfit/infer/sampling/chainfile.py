@@ -6,6 +6,7 @@ and ``uvfit_meta`` (JSON: mode, systematic, data), next to emcee's own (``iterat
 continues the same random sequence. Everything that writes, resumes or reads a chain file is here.
 """
 
+import functools
 import json
 import os
 
@@ -131,14 +132,10 @@ def resume_backend(chain_path, names, n_walkers, seed):
     return backend, n_walkers, seed, notes
 
 
-_BACKEND = []
-
-
+@functools.cache
 def _backend_class():
     """emcee's HDF5 backend, whose failed step (a full disk, a lost file system) becomes a clear
     error: emcee raises the step counter last, so the steps before it stay complete and readable."""
-    if _BACKEND:
-        return _BACKEND[0]
     import emcee
 
     class ChainBackend(emcee.backends.HDFBackend):
@@ -156,7 +153,6 @@ def _backend_class():
                     "free disk space, then continue with --resume",
                 ) from None
 
-    _BACKEND.append(ChainBackend)
     return ChainBackend
 
 

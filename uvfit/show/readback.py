@@ -135,7 +135,8 @@ def load_model_or_fit(path):
                              "give the JSON written by uvfit fit --json, or a model file (.toml)")
         return model_from_fit(doc, path=path), {"model_from": "fit result",
                                                  "fit_mode": doc.get("mode"),
-                                                 "fit_systematic": doc.get("systematic")}
+                                                 "fit_systematic": doc.get("systematic"),
+                                                 "fit": doc}
     from ..sky.modelfile import load_model
     return load_model(path), {"model_from": "model file"}
 

@@ -229,3 +229,39 @@ def test_readme_info_example_is_the_output_of_its_command():
     assert res.exit_code == 0, res.output
     assert res.stdout.strip() == m.group(3).strip()
     assert "../shared" not in README
+
+
+# ------------------------------------------------------------------ item 5: forecast counts
+def test_forecast_counts_free_parameters_as_the_closure_fits_have_them(tmp_path):
+    # Invented 86 GHz plan (examples/planning/array.toml), the core's position fixed in both
+    # models. Reference: closures cannot see the flux scale (common practice), so the double's 6
+    # free parameters are fitted as 5 and the single's 2 as 1, and the likelihood-ratio threshold
+    # is the 99% point of chi-square with 5 - 1 = 4 degrees of freedom (scipy.stats.chi2), not
+    # with 6 - 2. The axis ratio of an elliptical true model is reported.
+    from scipy.stats import chi2 as chi2_dist
+
+    from tests.helpers.invented import component, model_toml
+    from uvfit.data.select import parse_time
+    from uvfit.sim.array import load_array
+    from uvfit.sim.forecast import forecast
+    from uvfit.sim.observe import Observation
+    (tmp_path / "d.toml").write_text(model_toml(
+        component("core", 1.0, fwhm=40.0),
+        component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0)))
+    (tmp_path / "s.toml").write_text(model_toml(component("core", 1.0, fwhm=40.0)))
+    double, single = load_model(tmp_path / "d.toml"), load_model(tmp_path / "s.toml")
+    assert len(double.free_names) == 6 and len(single.free_names) == 2
+    arr = load_array(str(ROOT / "examples" / "planning" / "array.toml"))
+    obs = Observation(ra_deg=210.547, dec_deg=38.753, start=parse_time("2027-04-10T03:00"),
+                      duration_s=3600.0, integration_s=600.0, frequency_hz=86e9)
+    out = forecast(arr, double, [single], obs, trials=1, seed=3, mode="closure",
+                   alt_names=["single"])
+    assert out["true_free_parameters"] == 5
+    alt = out["alternatives"][0]
+    assert alt["free_parameters"] == 1
+    assert np.isclose(alt["lr_threshold_delta_chi2"], chi2_dist.ppf(0.99, 4))
+    ellipse = SkyModel.build([{"name": "core", "shape": "elliptical_gaussian", "flux": 1.0,
+                               "east": 0.0, "north": 0.0, "fwhm": 60.0, "axis_ratio": 0.5,
+                               "position_angle": 30.0}], angular_unit="uas")
+    out = forecast(arr, ellipse, [single], obs, trials=1, seed=3, alt_names=["single"])
+    assert out["structure"]["core.axis_ratio"]["true"] == pytest.approx(0.5)

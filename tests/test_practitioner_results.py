@@ -265,3 +265,40 @@ def test_forecast_counts_free_parameters_as_the_closure_fits_have_them(tmp_path)
                                "position_angle": 30.0}], angular_unit="uas")
     out = forecast(arr, ellipse, [single], obs, trials=1, seed=3, alt_names=["single"])
     assert out["structure"]["core.axis_ratio"]["true"] == pytest.approx(0.5)
+
+
+# ------------------------------------------------------------------ item 14: the demo transcript
+_NUMBER = re.compile(r"[-+]?\d+(?:\.\d+)?(?:e[-+]?\d+)?")
+
+
+def _same_but_last_digit(a, b):
+    """Lines equal, except that numbers may differ by one unit of their last printed digit (the
+    compiled and numpy engines round differently there)."""
+    if _NUMBER.sub("#", a) != _NUMBER.sub("#", b):
+        return False
+    for x, y in zip(_NUMBER.findall(a), _NUMBER.findall(b)):
+        if x == y:
+            continue
+        digits = len(x.split("e")[0].split(".")[1]) if "." in x.split("e")[0] else 0
+        exp = int(x.split("e")[1]) if "e" in x else 0
+        if abs(float(x) - float(y)) > 1.01 * 10.0 ** (exp - digits):
+            return False
+    return True
+
+
+def test_readme_demo_transcript_is_the_current_output():
+    # The README's transcript against a fresh run of its command (tests/helpers/demo_run.py, the
+    # engine these tests use); regenerate with examples/demo/make_transcript.py.
+    import importlib.util
+    from tests.helpers.demo_run import demo_run
+    spec = importlib.util.spec_from_file_location(
+        "make_transcript", ROOT / "examples" / "demo" / "make_transcript.py")
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    proc, out_dir, _ = demo_run()
+    assert proc.returncode == 0, proc.stderr
+    run = mod.transcript(proc.stdout, out_dir).splitlines()
+    shown = mod.readme_transcript().splitlines()
+    assert len(run) == len(shown)
+    bad = [(a, b) for a, b in zip(shown, run) if not _same_but_last_digit(a, b)]
+    assert not bad, bad[:3]

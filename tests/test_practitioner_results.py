@@ -3,6 +3,7 @@ only amplitude-only statistics have the 180-degree ambiguity, a closure chi2 far
 overestimated errors, `compare` judges pairs and warns when the best model does not fit, the
 corner plot and the posterior share one 68% interval, and the README's numbers come from the
 commands printed beside them (real 3C 279 data in tests/data/3c279, see its ABOUT.md)."""
+
 import re
 from pathlib import Path
 
@@ -27,8 +28,9 @@ TWO = ROOT / "examples" / "3c279" / "two_gaussians.toml"
 @pytest.fixture(scope="module")
 def cut_fit():
     """The closure fit of the README on the 3C 279 lo band, baselines >= 10 Mlambda, 2% floor."""
-    return tasks.fit(str(real_file("lo")), str(TWO), mode="closure", systematic=0.02,
-                     resolved_test=False, selection={"min_uv": 1e7})
+    return tasks.fit(
+        str(real_file("lo")), str(TWO), mode="closure", systematic=0.02, resolved_test=False, selection={"min_uv": 1e7}
+    )
 
 
 # ------------------------------------------------------------------ item 1: the fit's selection
@@ -114,14 +116,20 @@ def test_compare_pairs_reference_and_caution_on_3c279(tmp_path):
     # flagged as not to be trusted as stated.
     one = tmp_path / "one.toml"
     one.write_text(ONE_TOML)
-    report = tasks.compare(str(real_file("lo")), [str(one), str(TWO)], mode="closure",
-                           systematic=0.02, selection={"min_uv": 1e7}, reference="two_gaussians",
-                           rescale_errors=True)
+    report = tasks.compare(
+        str(real_file("lo")),
+        [str(one), str(TWO)],
+        mode="closure",
+        systematic=0.02,
+        selection={"min_uv": 1e7},
+        reference="two_gaussians",
+        rescale_errors=True,
+    )
     out = report.to_dict()
     assert out["reference"] == "two_gaussians" and out["rescale_errors"] is True
     assert [(p["simpler"], p["richer"]) for p in out["pairs"]] == [("one", "two_gaussians")]
     best = {r["name"]: r for r in out["models"]}["two_gaussians"]
-    assert best["reduced_chi2"] == pytest.approx(11.97, abs=0.01)   # as in the README
+    assert best["reduced_chi2"] == pytest.approx(11.97, abs=0.01)  # as in the README
     assert "not to be trusted" in out["fit_caution"]
     text = report.text()
     assert "pair: 'two_gaussians' against 'one'" in text and "caution:" in text
@@ -132,9 +140,11 @@ def test_compare_three_models_gives_each_nested_pair():
     # judged against the next simpler one. Reference: the likelihood-ratio statistic is the
     # difference of the two chi2 values (Wilks 1938; common practice).
     from uvfit.demo import demo_file
+
     one, two = load_model(demo_file("one.toml")), load_model(demo_file("two.toml"))
-    out = tasks.compare(demo_file("uvd0917.uvfits"), [two, one, one.copy()],
-                        names=["two", "one", "one_again"]).to_dict()
+    out = tasks.compare(
+        demo_file("uvd0917.uvfits"), [two, one, one.copy()], names=["two", "one", "one_again"]
+    ).to_dict()
     chi2 = {r["name"]: r["chi2"] for r in out["models"]}
     pairs = out["pairs"]
     assert len(pairs) == 2
@@ -145,8 +155,18 @@ def test_compare_three_models_gives_each_nested_pair():
 
 def test_compare_command_takes_the_fit_options(tmp_path):
     from uvfit.demo import demo_file
-    res = CliRunner().invoke(cli, ["compare", demo_file("uvd0917.uvfits"), demo_file("one.toml"),
-                                   demo_file("two.toml"), "--reference", "nothing"])
+
+    res = CliRunner().invoke(
+        cli,
+        [
+            "compare",
+            demo_file("uvd0917.uvfits"),
+            demo_file("one.toml"),
+            demo_file("two.toml"),
+            "--reference",
+            "nothing",
+        ],
+    )
     assert res.exit_code != 0 and "--reference 'nothing'" in str(res.exception)
     res = CliRunner().invoke(cli, ["compare", "--help"])
     for option in ("--rescale-errors", "--global-search", "--reference", "--systematic"):
@@ -160,6 +180,7 @@ def test_corner_plot_marks_the_posterior_interval():
     from uvfit.infer.posterior import summarize
     from uvfit.show import style
     from uvfit.show.corner import corner_plot
+
     rng = np.random.default_rng(19)
     samples = np.column_stack([rng.normal(1.0, 0.04, 3000), rng.gamma(3.0, 0.2, 3000)])
     fig, numbers = corner_plot(samples, ["a.flux", "a.fwhm"], ["Jy", "mas"])
@@ -179,8 +200,7 @@ def test_corner_plot_marks_the_posterior_interval():
 
 # ------------------------------------------------------------------ items 13 and 15: the README
 def _readme_fit_command():
-    m = re.search(r"^(uvfit fit tests/data/3c279/\S+ examples/3c279/two_gaussians.toml [^\n]*)$",
-                  README, re.M)
+    m = re.search(r"^(uvfit fit tests/data/3c279/\S+ examples/3c279/two_gaussians.toml [^\n]*)$", README, re.M)
     assert m, "the README's 3C 279 closure command"
     return m.group(1).split()[1:]
 
@@ -189,9 +209,10 @@ def test_readme_3c279_closure_numbers_come_from_its_command(tmp_path):
     # Real 3C 279 data; the README's sentence gives separation, position angle and reduced chi2
     # with and without the cut; each number is compared to the run to its last printed digit.
     import json
+
     args = _readme_fit_command()
-    sentence = README[README.index(" ".join(args[-7:])):]
-    sentence = sentence[:sentence.index("Time averaging")]
+    sentence = README[README.index(" ".join(args[-7:])) :]
+    sentence = sentence[: sentence.index("Time averaging")]
     nums = [float(x) for x in re.findall(r"(\d+\.\d+)\s+(?:microarcseconds|degrees)", sentence)]
     reds = [float(x) for x in re.findall(r"reduced chi2 (\d+\.\d+)", sentence)]
     assert len(nums) == 4 and len(reds) == 2, sentence
@@ -200,14 +221,13 @@ def test_readme_3c279_closure_numbers_come_from_its_command(tmp_path):
         argv = list(args)
         if not cut:
             i = argv.index("--min-uv")
-            del argv[i:i + 2]
+            del argv[i : i + 2]
         out = tmp_path / f"fit{len(runs)}.json"
         res = CliRunner().invoke(cli, ROOT_ARGS(argv) + ["--json", str(out)])
         assert res.exit_code == 0, res.output
         doc = json.loads(out.read_text())
         d = doc["derived"]
-        runs.append((d["a-b.separation"]["value"], d["a-b.position_angle"]["value"],
-                     doc["statistics"]["reduced_chi2"]))
+        runs.append((d["a-b.separation"]["value"], d["a-b.position_angle"]["value"], doc["statistics"]["reduced_chi2"]))
     assert runs[0][0] == pytest.approx(nums[0], abs=0.051)
     assert runs[0][1] == pytest.approx(nums[1], abs=0.051)
     assert runs[1][0] == pytest.approx(nums[2], abs=0.051)
@@ -245,24 +265,42 @@ def test_forecast_counts_free_parameters_as_the_closure_fits_have_them(tmp_path)
     from uvfit.sim.array import load_array
     from uvfit.sim.forecast import forecast
     from uvfit.sim.observe import Observation
-    (tmp_path / "d.toml").write_text(model_toml(
-        component("core", 1.0, fwhm=40.0),
-        component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0)))
+
+    (tmp_path / "d.toml").write_text(
+        model_toml(component("core", 1.0, fwhm=40.0), component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0))
+    )
     (tmp_path / "s.toml").write_text(model_toml(component("core", 1.0, fwhm=40.0)))
     double, single = load_model(tmp_path / "d.toml"), load_model(tmp_path / "s.toml")
     assert len(double.free_names) == 6 and len(single.free_names) == 2
     arr = load_array(str(ROOT / "examples" / "planning" / "array.toml"))
-    obs = Observation(ra_deg=210.547, dec_deg=38.753, start=parse_time("2027-04-10T03:00"),
-                      duration_s=3600.0, integration_s=600.0, frequency_hz=86e9)
-    out = forecast(arr, double, [single], obs, trials=1, seed=3, mode="closure",
-                   alt_names=["single"])
+    obs = Observation(
+        ra_deg=210.547,
+        dec_deg=38.753,
+        start=parse_time("2027-04-10T03:00"),
+        duration_s=3600.0,
+        integration_s=600.0,
+        frequency_hz=86e9,
+    )
+    out = forecast(arr, double, [single], obs, trials=1, seed=3, mode="closure", alt_names=["single"])
     assert out["true_free_parameters"] == 5
     alt = out["alternatives"][0]
     assert alt["free_parameters"] == 1
     assert np.isclose(alt["lr_threshold_delta_chi2"], chi2_dist.ppf(0.99, 4))
-    ellipse = SkyModel.build([{"name": "core", "shape": "elliptical_gaussian", "flux": 1.0,
-                               "east": 0.0, "north": 0.0, "fwhm": 60.0, "axis_ratio": 0.5,
-                               "position_angle": 30.0}], angular_unit="uas")
+    ellipse = SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "elliptical_gaussian",
+                "flux": 1.0,
+                "east": 0.0,
+                "north": 0.0,
+                "fwhm": 60.0,
+                "axis_ratio": 0.5,
+                "position_angle": 30.0,
+            }
+        ],
+        angular_unit="uas",
+    )
     out = forecast(arr, ellipse, [single], obs, trials=1, seed=3, alt_names=["single"])
     assert out["structure"]["core.axis_ratio"]["true"] == pytest.approx(0.5)
 
@@ -290,9 +328,10 @@ def test_readme_demo_transcript_is_the_current_output():
     # The README's transcript against a fresh run of its command (tests/helpers/demo_run.py, the
     # engine these tests use); regenerate with examples/demo/make_transcript.py.
     import importlib.util
+
     from tests.helpers.demo_run import demo_run
-    spec = importlib.util.spec_from_file_location(
-        "make_transcript", ROOT / "examples" / "demo" / "make_transcript.py")
+
+    spec = importlib.util.spec_from_file_location("make_transcript", ROOT / "examples" / "demo" / "make_transcript.py")
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
     proc, out_dir, _ = demo_run()

@@ -9,6 +9,7 @@ starts with the line `$ uvfit demo --out uvfit-demo`. Numbers can depend on the 
 (compiled or numpy) in their last digit; tests/test_practitioner_results.py compares on the engine
 the tests use.
 """
+
 import argparse
 import os
 import re
@@ -42,8 +43,14 @@ def run_demo():
     """The transcript of a fresh run, in a temporary folder."""
     with tempfile.TemporaryDirectory(prefix="uvfit-transcript-") as tmp:
         env = dict(os.environ, MPLBACKEND="Agg", PYTHONPATH=ROOT)
-        proc = subprocess.run([sys.executable, "-m", "uvfit"] + COMMAND.split()[1:], cwd=tmp,
-                              capture_output=True, text=True, env=env, check=True)
+        proc = subprocess.run(
+            [sys.executable, "-m", "uvfit"] + COMMAND.split()[1:],
+            cwd=tmp,
+            capture_output=True,
+            text=True,
+            env=env,
+            check=True,
+        )
     return transcript(proc.stdout)
 
 

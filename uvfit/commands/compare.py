@@ -1,35 +1,68 @@
 """uvfit compare DATA MODEL_A MODEL_B [...]: which model do the data require?"""
+
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
 
 
 @click.command("compare")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("models", nargs=-1, required=True, type=click.Path(dir_okay=False))
-@click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
-              help="What is fitted (as for uvfit fit).")
-@click.option("--systematic", type=float, default=0.0, show_default=True,
-              help="Fraction of |V| added in quadrature to every sigma.")
-@click.option("--rescale-errors", is_flag=True,
-              help="Multiply each fit's errors by sqrt(chi2/dof) (as for uvfit fit).")
+@click.option(
+    "--mode",
+    type=click.Choice(list(MODES)),
+    default="complex",
+    show_default=True,
+    help="What is fitted (as for uvfit fit).",
+)
+@click.option(
+    "--systematic",
+    type=float,
+    default=0.0,
+    show_default=True,
+    help="Fraction of |V| added in quadrature to every sigma.",
+)
+@click.option("--rescale-errors", is_flag=True, help="Multiply each fit's errors by sqrt(chi2/dof) (as for uvfit fit).")
 @click.option("--starts", type=int, default=1, show_default=True, help="Starts of each model's fit to the data.")
-@click.option("--global-search", is_flag=True,
-              help="Search chi2 globally inside the bounds before each fit (as for uvfit fit).")
-@click.option("--reference", default=None, metavar="NAME",
-              help="Judge every model against this one (a model file's stem); default: each "
-                   "model against the next simpler one, and all against the simplest.")
-@click.option("--bootstrap", type=int, default=0, show_default=True,
-              help="Simulated data sets for the false-alarm probability of each richer model.")
-@click.option("--json", "json_out", type=click.Path(dir_okay=False), default=None,
-              help="Write the comparison as JSON here.")
+@click.option(
+    "--global-search", is_flag=True, help="Search chi2 globally inside the bounds before each fit (as for uvfit fit)."
+)
+@click.option(
+    "--reference",
+    default=None,
+    metavar="NAME",
+    help="Judge every model against this one (a model file's stem); default: each "
+    "model against the next simpler one, and all against the simplest.",
+)
+@click.option(
+    "--bootstrap",
+    type=int,
+    default=0,
+    show_default=True,
+    help="Simulated data sets for the false-alarm probability of each richer model.",
+)
+@click.option(
+    "--json", "json_out", type=click.Path(dir_okay=False), default=None, help="Write the comparison as JSON here."
+)
 @seed_option
 @force_option
 @selection_options
-def command(data, models, mode, systematic, rescale_errors, starts, global_search, reference,
-            bootstrap, json_out, seed, force, **kwargs):
+def command(
+    data,
+    models,
+    mode,
+    systematic,
+    rescale_errors,
+    starts,
+    global_search,
+    reference,
+    bootstrap,
+    json_out,
+    seed,
+    force,
+    **kwargs,
+):
     """Fit two or more MODELS to DATA and say whether the richer ones are required.
 
     Reports chi2, AIC and BIC of each model and, against the model with the fewest free
@@ -45,9 +78,17 @@ def command(data, models, mode, systematic, rescale_errors, starts, global_searc
     selection = pop_selection(kwargs)
     if json_out:
         check_writable(json_out, force)
-    options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed,
-                   selection=selection, rescale_errors=rescale_errors,
-                   global_search=global_search, reference=reference)
+    options = dict(
+        mode=mode,
+        systematic=systematic,
+        starts=starts,
+        bootstrap=bootstrap,
+        seed=seed,
+        selection=selection,
+        rescale_errors=rescale_errors,
+        global_search=global_search,
+        reference=reference,
+    )
     with as_options(bootstrap="--bootstrap", reference="--reference"):
         if bootstrap > 0:
             with progressbar(bootstrap, "bootstrap") as bar:

@@ -11,21 +11,20 @@ scatter matches the weights), seeded per trial from ``seed``; both models are re
 best fits and FAP = (1 + #{delta chi2_sim >= delta chi2_obs}) / (1 + N) (Davison & Hinkley 1997,
 "Bootstrap Methods and their Application", ch. 4).
 """
+
 import numpy as np
 
 from .. import __version__
 from ..errors import FitError, UvfitError
-from ..stats.base import effective_sigma
 from ..labels import COMPARE_CAUTION
+from ..stats.base import effective_sigma
 from ..stats.modes import make_statistic
 from .lsq import fit
 
 
-def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False,
-               global_search=False):
+def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False):
     stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
-    return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors,
-               global_search=global_search)
+    return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search)
 
 
 def _refit_on(result, vset_sim, seed, starts):
@@ -72,8 +71,11 @@ def _pairs(n_free, names, reference):
     """(simpler, richer) index pairs: each model against ``reference`` (an index) when given,
     else each model against the next simpler one (models sorted by free parameters)."""
     if reference is not None:
-        return [(reference, i) if n_free[i] >= n_free[reference] else (i, reference)
-                for i in range(len(n_free)) if i != reference]
+        return [
+            (reference, i) if n_free[i] >= n_free[reference] else (i, reference)
+            for i in range(len(n_free))
+            if i != reference
+        ]
     order = sorted(range(len(n_free)), key=lambda i: (n_free[i], i))
     return [(a, b) for a, b in zip(order, order[1:])]
 
@@ -82,10 +84,16 @@ def _pair_verdict(rows, a, b, alpha):
     ra, rb = rows[a], rows[b]
     lr = float(ra["chi2"] - rb["chi2"])
     extra = rb["n_free"] - ra["n_free"]
-    out = {"simpler": ra["name"], "richer": rb["name"], "likelihood_ratio": lr,
-           "extra_free_parameters": int(extra), "false_alarm_probability": None}
-    text = (f"'{rb['name']}' against '{ra['name']}': 2 ln LR {lr:.4g} for {extra} more free "
-            "parameter" + ("" if extra == 1 else "s"))
+    out = {
+        "simpler": ra["name"],
+        "richer": rb["name"],
+        "likelihood_ratio": lr,
+        "extra_free_parameters": int(extra),
+        "false_alarm_probability": None,
+    }
+    text = f"'{rb['name']}' against '{ra['name']}': 2 ln LR {lr:.4g} for {extra} more free parameter" + (
+        "" if extra == 1 else "s"
+    )
     fap = rb.get("_pair_fap", {}).get(a)
     if fap is not None:
         p, n_sim, n_exc = fap
@@ -93,8 +101,7 @@ def _pair_verdict(rows, a, b, alpha):
         if p < alpha or (n_exc == 0 and p <= 0.05):
             text += f", false-alarm probability {_fmt_p(p)} (N = {n_sim}): '{rb['name']}' required"
         else:
-            text += (f", false-alarm probability {_fmt_p(p)} (N = {n_sim}): '{rb['name']}' "
-                     "not required")
+            text += f", false-alarm probability {_fmt_p(p)} (N = {n_sim}): '{rb['name']}' not required"
     else:
         pick = rb if rb["bic"] < ra["bic"] else ra
         text += f"; BIC prefers '{pick['name']}'"
@@ -111,16 +118,31 @@ def fit_caution(rows, preferred):
         return None
     red = best["reduced_chi2"]
     if red > 1.0 + 3.0 * np.sqrt(2.0 / best["dof"]):
-        return (f"the preferred model '{preferred}' has reduced chi2 {red:.3g}, far above 1: AIC, "
-                "BIC and the false-alarm probability assume a model that fits the data, so they "
-                "are not to be trusted as stated (look for missing structure, or a systematic "
-                "floor, before choosing between these models)")
+        return (
+            f"the preferred model '{preferred}' has reduced chi2 {red:.3g}, far above 1: AIC, "
+            "BIC and the false-alarm probability assume a model that fits the data, so they "
+            "are not to be trusted as stated (look for missing structure, or a systematic "
+            "floor, before choosing between these models)"
+        )
     return None
 
 
-def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, progress=None,
-            starts=1, names=None, bootstrap_starts=1, alpha=0.01, rescale_errors=False,
-            global_search=False, reference=None):
+def compare(
+    vset,
+    models,
+    mode="complex",
+    systematic=0.0,
+    bootstrap=0,
+    seed=0,
+    progress=None,
+    starts=1,
+    names=None,
+    bootstrap_starts=1,
+    alpha=0.01,
+    rescale_errors=False,
+    global_search=False,
+    reference=None,
+):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
 
     ``models``: SkyModel objects; ``names``: labels for them (default model1, model2...).
@@ -138,8 +160,9 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     if len(set(names)) != len(names):
         names = [f"{n} ({i + 1})" for i, n in enumerate(names)]
     if reference is not None and reference not in names:
-        raise UvfitError(f"reference '{reference}' is none of the models ({', '.join(names)})",
-                         "give the name of one of the models")
+        raise UvfitError(
+            f"reference '{reference}' is none of the models ({', '.join(names)})", "give the name of one of the models"
+        )
     bootstrap = int(bootstrap or 0)
     if bootstrap < 0:
         raise UvfitError(f"bootstrap must be >= 0 (got {bootstrap})")
@@ -147,19 +170,40 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     results = []
     for name, model in zip(names, models):
         try:
-            results.append(_fit_model(vset, model, mode, systematic, starts, seed,
-                                      rescale_errors=rescale_errors, global_search=global_search))
+            results.append(
+                _fit_model(
+                    vset,
+                    model,
+                    mode,
+                    systematic,
+                    starts,
+                    seed,
+                    rescale_errors=rescale_errors,
+                    global_search=global_search,
+                )
+            )
         except FitError as exc:
-            raise FitError(f"model '{name}': {exc.message}", exc.hint)
+            raise FitError(f"model '{name}': {exc.message}", exc.hint) from None
     n_free = [r.n_free for r in results]
     simple = int(np.argmin(n_free)) if reference is None else names.index(reference)
     s_res = results[simple]
     rows = []
     for name, r in zip(names, results):
-        rows.append({"name": name, "chi2": r.chi2, "dof": r.dof, "n_free": r.n_free, "n_data": r.n_data,
-                     "reduced_chi2": r.reduced_chi2, "aic": r.aic, "bic": r.bic,
-                     "likelihood_ratio": float(s_res.chi2 - r.chi2), "false_alarm_probability": None,
-                     "notices": list(r.notices)})
+        rows.append(
+            {
+                "name": name,
+                "chi2": r.chi2,
+                "dof": r.dof,
+                "n_free": r.n_free,
+                "n_data": r.n_data,
+                "reduced_chi2": r.reduced_chi2,
+                "aic": r.aic,
+                "bic": r.bic,
+                "likelihood_ratio": float(s_res.chi2 - r.chi2),
+                "false_alarm_probability": None,
+                "notices": list(r.notices),
+            }
+        )
     richer = [i for i in range(len(results)) if i != simple and n_free[i] > n_free[simple]]
     pairs = _pairs(n_free, names, None if reference is None else simple)
     n_failed = 0
@@ -174,9 +218,16 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
         for a in sorted(by_simpler, key=lambda i: (i != simple, i)):
             rich = {i: results[i] for i in sorted(by_simpler[a])}
             obs = {i: float(results[a].chi2 - results[i].chi2) for i in rich}
-            exceed, valid, failed = _bootstrap(results[a], rich, obs, systematic, bootstrap, seed,
-                                               bootstrap_starts, progress if a == simple or not richer
-                                               else None)
+            exceed, valid, failed = _bootstrap(
+                results[a],
+                rich,
+                obs,
+                systematic,
+                bootstrap,
+                seed,
+                bootstrap_starts,
+                progress if a == simple or not richer else None,
+            )
             n_failed += failed if a == simple else 0
             for i in rich:
                 pair_fap[(a, i)] = ((1.0 + exceed[i]) / (1.0 + valid[i]), valid[i], exceed[i])
@@ -191,12 +242,24 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     pair_rows = [_pair_verdict(rows, a, b, alpha) for a, b in pairs]
     for r in rows:
         r.pop("_pair_fap", None)
-    out = {"version": __version__, "mode": mode, "systematic": float(systematic), "seed": int(seed),
-           "n_bootstrap": bootstrap, "n_failed_refits": n_failed, "alpha": alpha,
-           "simplest": names[simple], "models": rows, "preferred": preferred, "verdict": verdict,
-           "caution": COMPARE_CAUTION, "pairs": pair_rows,
-           "rescale_errors": bool(rescale_errors), "global_search": bool(global_search),
-           "reference": reference}
+    out = {
+        "version": __version__,
+        "mode": mode,
+        "systematic": float(systematic),
+        "seed": int(seed),
+        "n_bootstrap": bootstrap,
+        "n_failed_refits": n_failed,
+        "alpha": alpha,
+        "simplest": names[simple],
+        "models": rows,
+        "preferred": preferred,
+        "verdict": verdict,
+        "caution": COMPARE_CAUTION,
+        "pairs": pair_rows,
+        "rescale_errors": bool(rescale_errors),
+        "global_search": bool(global_search),
+        "reference": reference,
+    }
     caution = fit_caution(rows, preferred)
     if caution:
         out["fit_caution"] = caution
@@ -211,13 +274,18 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
     s = rows[simple]
     if not richer:
         best = min(range(len(rows)), key=lambda i: rows[i]["bic"])
-        text = (f"every model has the same number of free parameters; the lowest BIC is "
-                f"'{rows[best]['name']}'")
+        text = f"every model has the same number of free parameters; the lowest BIC is '{rows[best]['name']}'"
         return text + ". " + COMPARE_CAUTION, rows[best]["name"]
     if bootstrap > 0:
-        required = [i for i in richer if rows[i]["false_alarm_probability"] is not None
-                    and (rows[i]["false_alarm_probability"] < alpha
-                         or (rows[i].get("n_exceeding") == 0 and rows[i]["false_alarm_probability"] <= 0.05))]
+        required = [
+            i
+            for i in richer
+            if rows[i]["false_alarm_probability"] is not None
+            and (
+                rows[i]["false_alarm_probability"] < alpha
+                or (rows[i].get("n_exceeding") == 0 and rows[i]["false_alarm_probability"] <= 0.05)
+            )
+        ]
         too_few = [i for i in richer if rows[i].get("n_exceeding") == 0 and i not in required]
         if required:
             best = min(required, key=lambda i: rows[i]["bic"])
@@ -232,21 +300,30 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
             text = f"'{r['name']}' preferred over '{s['name']}'; false-alarm probability {fap_text}"
         elif too_few:
             best = simple
-            text = ("undecided: no simulation reached the improvement of "
-                    + ", ".join(f"'{rows[i]['name']}'" for i in too_few)
-                    + f" over '{s['name']}', but N = {bootstrap} simulations cannot show a false-alarm "
-                    "probability below 5%; run again with --bootstrap 100 or more")
+            text = (
+                "undecided: no simulation reached the improvement of "
+                + ", ".join(f"'{rows[i]['name']}'" for i in too_few)
+                + f" over '{s['name']}', but N = {bootstrap} simulations cannot show a false-alarm "
+                "probability below 5%; run again with --bootstrap 100 or more"
+            )
         else:
-            faps = ", ".join(f"of '{rows[i]['name']}': {_fmt_p(rows[i]['false_alarm_probability'])}"
-                             for i in richer if rows[i]["false_alarm_probability"] is not None)
+            faps = ", ".join(
+                f"of '{rows[i]['name']}': {_fmt_p(rows[i]['false_alarm_probability'])}"
+                for i in richer
+                if rows[i]["false_alarm_probability"] is not None
+            )
             best = simple
-            text = (f"the data do not require a richer model than '{s['name']}' (false-alarm "
-                    f"probability {faps}, N = {bootstrap} simulations)")
+            text = (
+                f"the data do not require a richer model than '{s['name']}' (false-alarm "
+                f"probability {faps}, N = {bootstrap} simulations)"
+            )
         return text + ". " + COMPARE_CAUTION, rows[best]["name"]
     best = min(range(len(rows)), key=lambda i: rows[i]["bic"])
     best_aic = min(range(len(rows)), key=lambda i: rows[i]["aic"])
     text = f"BIC prefers '{rows[best]['name']}'"
-    text += (", and so does AIC" if best_aic == best else f", AIC prefers '{rows[best_aic]['name']}'")
-    text += ("; no false-alarm probability was computed (use --bootstrap N to calibrate the "
-             "likelihood ratio on simulated data)")
+    text += ", and so does AIC" if best_aic == best else f", AIC prefers '{rows[best_aic]['name']}'"
+    text += (
+        "; no false-alarm probability was computed (use --bootstrap N to calibrate the "
+        "likelihood ratio on simulated data)"
+    )
     return text + ". " + COMPARE_CAUTION, rows[best]["name"]

@@ -3,6 +3,7 @@
 Drawn with the corner package (Foreman-Mackey 2016, JOSS 1, 24) under the house style; the 16,
 50 and 84 % quantiles are marked.
 """
+
 import matplotlib
 import numpy as np
 
@@ -28,8 +29,7 @@ def corner_plot(samples, names, units=None, truths=None, title=None, summaries=N
 
     samples = np.asarray(samples, float)
     if samples.ndim != 2 or samples.shape[0] < 2:
-        raise UvfitError("the chain has too few samples for a corner plot",
-                         "sample longer, or discard fewer steps")
+        raise UvfitError("the chain has too few samples for a corner plot", "sample longer, or discard fewer steps")
     if samples.shape[1] != len(names):
         raise UvfitError(f"the chain has {samples.shape[1]} parameters but {len(names)} names")
     units = [style.angle_label(u) if u else "" for u in (units or [""] * len(names))]
@@ -42,10 +42,19 @@ def corner_plot(samples, names, units=None, truths=None, title=None, summaries=N
     size = max(6.0, 1.9 * len(names))
     fig, _ = style.new_figure(len(names), len(names), figsize=(size, size), grid=False)
     with style.style(), matplotlib.rc_context({"axes.grid": False}):
-        corner.corner(samples, labels=labels, fig=fig, show_titles=False, range=ranges,
-                      color=DATA_COLOUR, hist_kwargs={"color": DATA_COLOUR}, truths=truths,
-                      truth_color=MODEL_COLOUR, label_kwargs={"fontsize": 9},
-                      title_kwargs={"fontsize": 9})
+        corner.corner(
+            samples,
+            labels=labels,
+            fig=fig,
+            show_titles=False,
+            range=ranges,
+            color=DATA_COLOUR,
+            hist_kwargs={"color": DATA_COLOUR},
+            truths=truths,
+            truth_color=MODEL_COLOUR,
+            label_kwargs={"fontsize": 9},
+            title_kwargs={"fontsize": 9},
+        )
         if summaries is None:
             summaries = [summarize(samples[:, j]) for j in range(samples.shape[1])]
         q = np.array([[float(sm[k]) for sm in summaries] for k in ("lower", "median", "upper")])
@@ -57,21 +66,18 @@ def corner_plot(samples, names, units=None, truths=None, title=None, summaries=N
                 if np.isfinite(x):
                     ax.axvline(x, color=DATA_COLOUR, linestyle="dashed", linewidth=1.0)
             lo, med, hi = q[0, j], q[1, j], q[2, j]
-            ax.set_title(f"{name} = ${med:.3g}_{{-{med - lo:.3g}}}^{{+{hi - med:.3g}}}$",
-                         fontsize=9)
+            ax.set_title(f"{name} = ${med:.3g}_{{-{med - lo:.3g}}}^{{+{hi - med:.3g}}}$", fontsize=9)
         if title:
             fig.subplots_adjust(top=0.92)
             fig.suptitle(title)
-    return fig, {"names": list(names), "n_samples": int(samples.shape[0]),
-                 "lower": q[0], "median": q[1], "upper": q[2]}
+    return fig, {"names": list(names), "n_samples": int(samples.shape[0]), "lower": q[0], "median": q[1], "upper": q[2]}
 
 
 def write_corner_plot(post, path, force=False):
     """Write the corner plot of a posterior summary (:class:`uvfit.infer.sampling.Posterior`:
     its ordered samples, parameter names and units) as a PNG, atomically; returns the path."""
     units = [post.parameters[n]["unit"] for n in post.names]
-    fig, _ = corner_plot(post.samples, post.names, units,
-                         summaries=[post.parameters[n] for n in post.names])
+    fig, _ = corner_plot(post.samples, post.names, units, summaries=[post.parameters[n] for n in post.names])
     try:
         return style.save_png(fig, path, force=force)
     finally:

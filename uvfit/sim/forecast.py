@@ -135,7 +135,7 @@ def forecast(
         }
         for n, m in zip(alt_names, alternatives)
     ]
-    for a, m in zip(alt_stats, alternatives):
+    for a in alt_stats:
         dk = abs(k_true - a["free_parameters"])
         a["lr_threshold"] = float(chi2_dist.ppf(LR_LEVEL, dk)) if dk else 0.0
     n_recovered = n_fail_true = 0

@@ -395,6 +395,9 @@ def compare(
     selection: Optional[dict] = None,
     progress: Progress = None,
     data_path: Optional[str] = None,
+    rescale_errors: bool = False,
+    global_search: bool = False,
+    reference: Optional[str] = None,
 ) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
@@ -416,6 +419,11 @@ def compare(
         Called with 1 after each bootstrap simulation.
     data_path : str, optional
         The data file recorded (default: ``data`` when it is a path).
+    rescale_errors, global_search : bool
+        As for :func:`fit`, in every model's fit.
+    reference : str, optional
+        The name of the model every other is judged against (default: the simplest); the
+        ``pairs`` of the JSON then pair each model with it (else each with the next simpler one).
 
     Returns
     -------
@@ -457,6 +465,9 @@ def compare(
         progress=progress,
         starts=starts,
         names=names,
+        rescale_errors=rescale_errors,
+        global_search=global_search,
+        reference=reference,
     )
     out["data"] = None if data_path is None else str(data_path)
     out["selection"] = selection if selection is not None else {}
@@ -548,20 +559,38 @@ def closures(
     >>> report.to_dict()["n_closure_phases"] > 0
     True
     """
-    from .show.readback import load_model_or_fit, model_from_fit
+    from .show.readback import load_model_or_fit, merged_selection, model_from_fit
     from .stats.closures import check_closures, json_summary
 
-    vset, notes = load_data(data, selection)
-    sky, info = None, {}
+    sky, info, fit_doc = None, {}, None
     if isinstance(model, dict):
+        fit_doc = model
         sky = model_from_fit(model)
         info = {"model_from": "fit result", "fit_mode": model.get("mode"), "fit_systematic": model.get("systematic")}
     elif isinstance(model, SkyModel):
         sky, info = model, {"model_from": "model"}
     elif model is not None:
         sky, info = load_model_or_fit(model)
+        fit_doc = info.pop("fit", None)
         if model_path is None:
             model_path = os.fspath(model)
+    used_note = None
+    if fit_doc is not None:
+        # the fit's recorded selection and floor, each overridden by what the caller gave
+        given = _given(selection)
+        selection = merged_selection(fit_doc, given)
+        from_fit = sorted(k for k in selection if k not in given)
+        floor_from = "the fit" if systematic is None else "given"
+        if systematic is None:
+            systematic = float(info.get("fit_systematic") or 0.0)
+        info["selection_from_fit"] = from_fit
+        info["systematic_from"] = floor_from
+        shown = ", ".join(f"{k}={selection[k]}" for k in sorted(selection)) or "none"
+        origin = ("from the fit: " + ", ".join(from_fit)) if from_fit else "none from the fit"
+        used_note = f"note: selection used: {shown} ({origin}); systematic floor {systematic:g} ({floor_from})"
+    vset, notes = load_data(data, selection)
+    if used_note:
+        notes = [used_note] + list(notes)
     if systematic is None:
         systematic = float(info.get("fit_systematic") or 0.0)
     res = check_closures(vset, sky, systematic=systematic, snr_cut=snr_cut, full=full, covariance=covariance)

@@ -34,7 +34,18 @@ from ._common import (
     show_default=True,
     help="Fraction of |V| added in quadrature to every sigma.",
 )
+@click.option("--rescale-errors", is_flag=True, help="Multiply each fit's errors by sqrt(chi2/dof) (as for uvfit fit).")
 @click.option("--starts", type=int, default=1, show_default=True, help="Starts of each model's fit to the data.")
+@click.option(
+    "--global-search", is_flag=True, help="Search chi2 globally inside the bounds before each fit (as for uvfit fit)."
+)
+@click.option(
+    "--reference",
+    default=None,
+    metavar="NAME",
+    help="Judge every model against this one (a model file's stem); default: each "
+    "model against the next simpler one, and all against the simplest.",
+)
 @click.option(
     "--bootstrap",
     type=int,
@@ -49,7 +60,21 @@ from ._common import (
 @seed_option
 @force_option
 @selection_options
-def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, force, **kwargs):
+def command(
+    data,
+    models,
+    mode,
+    systematic,
+    rescale_errors,
+    starts,
+    global_search,
+    reference,
+    bootstrap,
+    json_out,
+    seed,
+    force,
+    **kwargs,
+):
     """Fit two or more MODELS to DATA and say whether the richer ones are required.
 
     Reports chi2, AIC and BIC of each model and, against the model with the fewest free
@@ -64,8 +89,18 @@ def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, f
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
     selection = pop_selection(kwargs)
     check_outputs({"--json": json_out}, {"the data": data, **{f"model {m}": m for m in models}}, force)
-    options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed, selection=selection)
-    with as_options(bootstrap="--bootstrap"):
+    options = dict(
+        mode=mode,
+        systematic=systematic,
+        starts=starts,
+        bootstrap=bootstrap,
+        seed=seed,
+        selection=selection,
+        rescale_errors=rescale_errors,
+        global_search=global_search,
+        reference=reference,
+    )
+    with as_options(bootstrap="--bootstrap", reference="--reference"):
         if bootstrap > 0:
             with progressbar(bootstrap, "bootstrap") as bar:
                 report = tasks.compare(data, list(models), progress=bar.update, **options)

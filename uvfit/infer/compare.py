@@ -22,9 +22,9 @@ from ..stats.modes import make_statistic
 from .lsq import fit
 
 
-def _fit_model(vset, model, mode, systematic, starts, seed):
+def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False):
     stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
-    return fit(stat, starts=starts, seed=seed)
+    return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search)
 
 
 def _refit_on(result, vset_sim, seed, starts):
@@ -36,6 +36,95 @@ def _refit_on(result, vset_sim, seed, starts):
     except FitError:
         return float("nan")
     return res.chi2
+
+
+def _bootstrap(s_res, rich, obs, systematic, bootstrap, seed, bootstrap_starts, progress):
+    """Parametric bootstrap from the fit ``s_res``: for each richer fit ``rich[i]``, how many of
+    ``bootstrap`` simulations reach the observed improvement ``obs[i]``; (exceed, valid, failed)."""
+    vs = s_res.statistic.vset
+    sigma = effective_sigma(vs.sigma, np.abs(vs.vis), systematic)
+    truth = np.asarray(s_res.model.visibilities(vs.u, vs.v, frequency=vs.frequency), complex)
+    exceed = {i: 0 for i in rich}
+    valid = {i: 0 for i in rich}
+    n_failed = 0
+    for trial in range(bootstrap):
+        rng = np.random.default_rng([int(seed), trial])
+        noise = rng.normal(0.0, sigma) + 1j * rng.normal(0.0, sigma)
+        sim = vs.with_vis(truth + noise, sigma=sigma)
+        c_simple = _refit_on(s_res, sim, seed, bootstrap_starts)
+        for i, res in rich.items():
+            c_rich = _refit_on(res, sim, seed, bootstrap_starts)
+            d = c_simple - c_rich
+            if not np.isfinite(d):
+                n_failed += 1
+                continue
+            valid[i] += 1
+            # a tiny tolerance so that equal fits (richer model collapsed onto the simpler) tie
+            if d >= obs[i] - 1e-9 * max(1.0, abs(obs[i])):
+                exceed[i] += 1
+        if progress:
+            progress(1)
+    return exceed, valid, n_failed
+
+
+def _pairs(n_free, names, reference):
+    """(simpler, richer) index pairs: each model against ``reference`` (an index) when given,
+    else each model against the next simpler one (models sorted by free parameters)."""
+    if reference is not None:
+        return [
+            (reference, i) if n_free[i] >= n_free[reference] else (i, reference)
+            for i in range(len(n_free))
+            if i != reference
+        ]
+    order = sorted(range(len(n_free)), key=lambda i: (n_free[i], i))
+    return [(a, b) for a, b in zip(order, order[1:])]
+
+
+def _pair_verdict(rows, a, b, alpha):
+    ra, rb = rows[a], rows[b]
+    lr = float(ra["chi2"] - rb["chi2"])
+    extra = rb["n_free"] - ra["n_free"]
+    out = {
+        "simpler": ra["name"],
+        "richer": rb["name"],
+        "likelihood_ratio": lr,
+        "extra_free_parameters": int(extra),
+        "false_alarm_probability": None,
+    }
+    text = f"'{rb['name']}' against '{ra['name']}': 2 ln LR {lr:.4g} for {extra} more free parameter" + (
+        "" if extra == 1 else "s"
+    )
+    fap = rb.get("_pair_fap", {}).get(a)
+    if fap is not None:
+        p, n_sim, n_exc = fap
+        out.update(false_alarm_probability=p, n_simulations=n_sim, n_exceeding=n_exc)
+        if p < alpha or (n_exc == 0 and p <= 0.05):
+            text += f", false-alarm probability {_fmt_p(p)} (N = {n_sim}): '{rb['name']}' required"
+        else:
+            text += f", false-alarm probability {_fmt_p(p)} (N = {n_sim}): '{rb['name']}' not required"
+    else:
+        pick = rb if rb["bic"] < ra["bic"] else ra
+        text += f"; BIC prefers '{pick['name']}'"
+    out["verdict"] = text
+    return out
+
+
+def fit_caution(rows, preferred):
+    """A caution when the preferred model's reduced chi2 lies more than 3 spreads sqrt(2/dof)
+    above 1 (common practice): AIC, BIC and the false-alarm probability assume a model that
+    fits, so they are not to be trusted as stated. None when it fits."""
+    best = next((r for r in rows if r["name"] == preferred), None)
+    if best is None or not best["dof"] or best["dof"] <= 0:
+        return None
+    red = best["reduced_chi2"]
+    if red > 1.0 + 3.0 * np.sqrt(2.0 / best["dof"]):
+        return (
+            f"the preferred model '{preferred}' has reduced chi2 {red:.3g}, far above 1: AIC, "
+            "BIC and the false-alarm probability assume a model that fits the data, so they "
+            "are not to be trusted as stated (look for missing structure, or a systematic "
+            "floor, before choosing between these models)"
+        )
+    return None
 
 
 def compare(
@@ -50,13 +139,19 @@ def compare(
     names=None,
     bootstrap_starts=1,
     alpha=0.01,
+    rescale_errors=False,
+    global_search=False,
+    reference=None,
 ):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
 
     ``models``: SkyModel objects; ``names``: labels for them (default model1, model2...).
     ``bootstrap``: number of simulated data sets for the false-alarm probabilities (0: none).
     ``progress``: called with 1 after each bootstrap trial. ``alpha``: the FAP below which a richer
-    model counts as required.
+    model counts as required. ``rescale_errors``, ``global_search``: as for the fit.
+    ``reference``: the name of the model every other is judged against (default: the simplest);
+    ``pairs`` of the output gives a verdict for each pair (against ``reference``, or each model
+    against the next simpler one).
     """
     models = list(models)
     if len(models) < 2:
@@ -64,6 +159,10 @@ def compare(
     names = list(names) if names else [f"model{i + 1}" for i in range(len(models))]
     if len(set(names)) != len(names):
         names = [f"{n} ({i + 1})" for i, n in enumerate(names)]
+    if reference is not None and reference not in names:
+        raise UvfitError(
+            f"reference '{reference}' is none of the models ({', '.join(names)})", "give the name of one of the models"
+        )
     bootstrap = int(bootstrap or 0)
     if bootstrap < 0:
         raise UvfitError(f"bootstrap must be >= 0 (got {bootstrap})")
@@ -71,11 +170,22 @@ def compare(
     results = []
     for name, model in zip(names, models):
         try:
-            results.append(_fit_model(vset, model, mode, systematic, starts, seed))
+            results.append(
+                _fit_model(
+                    vset,
+                    model,
+                    mode,
+                    systematic,
+                    starts,
+                    seed,
+                    rescale_errors=rescale_errors,
+                    global_search=global_search,
+                )
+            )
         except FitError as exc:
             raise FitError(f"model '{name}': {exc.message}", exc.hint) from None
     n_free = [r.n_free for r in results]
-    simple = int(np.argmin(n_free))
+    simple = int(np.argmin(n_free)) if reference is None else names.index(reference)
     s_res = results[simple]
     rows = []
     for name, r in zip(names, results):
@@ -95,38 +205,44 @@ def compare(
             }
         )
     richer = [i for i in range(len(results)) if i != simple and n_free[i] > n_free[simple]]
+    pairs = _pairs(n_free, names, None if reference is None else simple)
     n_failed = 0
-    if bootstrap > 0 and richer:
-        sim_stat = s_res.statistic
-        vs = sim_stat.vset
-        sigma = effective_sigma(vs.sigma, np.abs(vs.vis), systematic)
-        truth = np.asarray(s_res.model.visibilities(vs.u, vs.v, frequency=vs.frequency), complex)
-        obs = {i: rows[i]["likelihood_ratio"] for i in richer}
-        exceed = {i: 0 for i in richer}
-        valid = {i: 0 for i in richer}
-        for trial in range(bootstrap):
-            rng = np.random.default_rng([int(seed), trial])
-            noise = rng.normal(0.0, sigma) + 1j * rng.normal(0.0, sigma)
-            sim = vs.with_vis(truth + noise, sigma=sigma)
-            c_simple = _refit_on(s_res, sim, seed, bootstrap_starts)
-            for i in richer:
-                c_rich = _refit_on(results[i], sim, seed, bootstrap_starts)
-                d = c_simple - c_rich
-                if not np.isfinite(d):
-                    n_failed += 1
-                    continue
-                valid[i] += 1
-                # a tiny tolerance so that equal fits (richer model collapsed onto the simpler) tie
-                if d >= obs[i] - 1e-9 * max(1.0, abs(obs[i])):
-                    exceed[i] += 1
-            if progress:
-                progress(1)
+    pair_fap = {}
+    if bootstrap > 0:
+        by_simpler = {}
+        for a, b in pairs:
+            if n_free[b] > n_free[a]:
+                by_simpler.setdefault(a, set()).add(b)
+        if richer:
+            by_simpler.setdefault(simple, set()).update(richer)
+        for a in sorted(by_simpler, key=lambda i: (i != simple, i)):
+            rich = {i: results[i] for i in sorted(by_simpler[a])}
+            obs = {i: float(results[a].chi2 - results[i].chi2) for i in rich}
+            exceed, valid, failed = _bootstrap(
+                results[a],
+                rich,
+                obs,
+                systematic,
+                bootstrap,
+                seed,
+                bootstrap_starts,
+                progress if a == simple or not richer else None,
+            )
+            n_failed += failed if a == simple else 0
+            for i in rich:
+                pair_fap[(a, i)] = ((1.0 + exceed[i]) / (1.0 + valid[i]), valid[i], exceed[i])
         for i in richer:
-            rows[i]["false_alarm_probability"] = (1.0 + exceed[i]) / (1.0 + valid[i])
-            rows[i]["n_simulations"] = valid[i]
-            rows[i]["n_exceeding"] = exceed[i]
+            p, n_sim, n_exc = pair_fap[(simple, i)]
+            rows[i]["false_alarm_probability"] = p
+            rows[i]["n_simulations"] = n_sim
+            rows[i]["n_exceeding"] = n_exc
     verdict, preferred = _verdict(rows, simple, richer, bootstrap, alpha)
-    return {
+    for (a, b), fap in pair_fap.items():
+        rows[b].setdefault("_pair_fap", {})[a] = fap
+    pair_rows = [_pair_verdict(rows, a, b, alpha) for a, b in pairs]
+    for r in rows:
+        r.pop("_pair_fap", None)
+    out = {
         "version": __version__,
         "mode": mode,
         "systematic": float(systematic),
@@ -139,7 +255,15 @@ def compare(
         "preferred": preferred,
         "verdict": verdict,
         "caution": COMPARE_CAUTION,
+        "pairs": pair_rows,
+        "rescale_errors": bool(rescale_errors),
+        "global_search": bool(global_search),
+        "reference": reference,
     }
+    caution = fit_caution(rows, preferred)
+    if caution:
+        out["fit_caution"] = caution
+    return out
 
 
 def _fmt_p(p):

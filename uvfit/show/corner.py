@@ -12,13 +12,20 @@ from . import style
 from .style import DATA_COLOUR, MODEL_COLOUR
 
 
-def corner_plot(samples, names, units=None, truths=None, title=None):
+def corner_plot(samples, names, units=None, truths=None, title=None, summaries=None):
     """Corner plot of posterior samples (n_samples, n_parameters), with 16/50/84 % quantiles.
+
+    The marked quantiles and the titles are those of ``summaries`` (one dict per parameter with
+    ``median``, ``lower``, ``upper``, as the posterior JSON records them), or, when not given, of
+    :func:`uvfit.infer.posterior.summarize` of each column: one computation of the 68 % interval,
+    the same as the posterior's.
 
     Returns (fig, numbers): ``names``, ``n_samples``, ``median``, ``lower``, ``upper`` (16th and
     84th percentiles) per parameter.
     """
     import corner
+
+    from ..infer.posterior import summarize
 
     samples = np.asarray(samples, float)
     if samples.ndim != 2 or samples.shape[0] < 2:
@@ -38,11 +45,8 @@ def corner_plot(samples, names, units=None, truths=None, title=None):
         corner.corner(
             samples,
             labels=labels,
-            titles=list(names),
             fig=fig,
-            quantiles=[0.16, 0.5, 0.84],
-            show_titles=True,
-            title_fmt=".3g",
+            show_titles=False,
             range=ranges,
             color=DATA_COLOUR,
             hist_kwargs={"color": DATA_COLOUR},
@@ -51,10 +55,21 @@ def corner_plot(samples, names, units=None, truths=None, title=None):
             label_kwargs={"fontsize": 9},
             title_kwargs={"fontsize": 9},
         )
+        if summaries is None:
+            summaries = [summarize(samples[:, j]) for j in range(samples.shape[1])]
+        q = np.array([[float(sm[k]) for sm in summaries] for k in ("lower", "median", "upper")])
+        n = len(names)
+        axes = np.asarray(fig.axes).reshape(n, n)
+        for j, name in enumerate(names):
+            ax = axes[j, j]
+            for x in q[:, j]:
+                if np.isfinite(x):
+                    ax.axvline(x, color=DATA_COLOUR, linestyle="dashed", linewidth=1.0)
+            lo, med, hi = q[0, j], q[1, j], q[2, j]
+            ax.set_title(f"{name} = ${med:.3g}_{{-{med - lo:.3g}}}^{{+{hi - med:.3g}}}$", fontsize=9)
         if title:
             fig.subplots_adjust(top=0.92)
             fig.suptitle(title)
-    q = np.percentile(samples, [16, 50, 84], axis=0)
     return fig, {"names": list(names), "n_samples": int(samples.shape[0]), "lower": q[0], "median": q[1], "upper": q[2]}
 
 
@@ -62,7 +77,7 @@ def write_corner_plot(post, path, force=False):
     """Write the corner plot of a posterior summary (:class:`uvfit.infer.sampling.Posterior`:
     its ordered samples, parameter names and units) as a PNG, atomically; returns the path."""
     units = [post.parameters[n]["unit"] for n in post.names]
-    fig, _ = corner_plot(post.samples, post.names, units)
+    fig, _ = corner_plot(post.samples, post.names, units, summaries=[post.parameters[n] for n in post.names])
     try:
         return style.save_png(fig, path, force=force)
     finally:

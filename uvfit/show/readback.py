@@ -166,6 +166,7 @@ def load_model_or_fit(path):
             "model_from": "fit result",
             "fit_mode": doc.get("mode"),
             "fit_systematic": doc.get("systematic"),
+            "fit": doc,
         }
     from ..sky.modelfile import load_model
 

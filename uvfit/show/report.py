@@ -408,7 +408,7 @@ _CAPTIONS = {
 }
 
 
-def figures(view, chain=None, chain_names=None, chain_units=None):
+def figures(view, chain=None, chain_names=None, chain_units=None, chain_summaries=None):
     """[(anchor, caption, Figure)] for the report; a figure that cannot be made becomes a note."""
     out = []
     for kind in KINDS:
@@ -422,7 +422,7 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
             continue
         out.append((anchor, caption, fig))
     if chain is not None:
-        fig, _ = corner_plot(chain, chain_names, chain_units)
+        fig, _ = corner_plot(chain, chain_names, chain_units, summaries=chain_summaries)
         out.append(("corner", "Posterior samples of the free parameters (16, 50, 84 % quantiles marked).", fig))
     return out
 
@@ -484,7 +484,15 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
     if chain is not None and chain.shape[1] != len(chain_names):
         chain_names = [n for n, p in params.items() if p.get("free", True)]
         chain_units = [params[n].get("unit", "") for n in chain_names]
-    made = figures(view, chain, chain_names, chain_units)
+    # the corner plot marks the posterior's own 68 % intervals (one computation for both)
+    recorded = (posterior or {}).get("parameters", {})
+    chain_summaries = None
+    if chain is not None and all(
+        isinstance(recorded.get(n), dict) and all(k in recorded[n] for k in ("median", "lower", "upper"))
+        for n in chain_names
+    ):
+        chain_summaries = [recorded[n] for n in chain_names]
+    made = figures(view, chain, chain_names, chain_units, chain_summaries)
     html_figs = {
         anchor: (f'<p class="note">{_esc(caption)}</p>' if fig is None else _figure(fig, caption, anchor))
         for anchor, caption, fig in made

@@ -108,7 +108,11 @@ def compare_text(out):
             echo(f"notice ({r['name']}): {note}")
     if out.get("n_failed_refits"):
         echo(f"notice: {out['n_failed_refits']} bootstrap refits failed and were left out")
+    for pair in out.get("pairs") or []:
+        echo(f"pair: {pair['verdict']}")
     echo(f"verdict: {out['verdict']}")
+    if out.get("fit_caution"):
+        echo(f"caution: {out['fit_caution']}")
     return "\n".join(lines)
 
 

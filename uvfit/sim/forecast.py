@@ -32,7 +32,7 @@ from ..errors import FitError, UvfitError
 from ..labels import FORECAST_CAUTIONS
 from .observe import observe, plan
 
-STRUCTURE_SUFFIXES = (".separation", ".position_angle", ".flux_ratio", ".size")
+STRUCTURE_SUFFIXES = (".separation", ".position_angle", ".flux_ratio", ".size", ".axis_ratio")
 LR_LEVEL = 0.99
 
 
@@ -45,6 +45,18 @@ def _fit(vset, model, mode, systematic, starts, seed, frequency):
     res = fit(stat, starts=starts, seed=seed)
     derived = derived_quantities(res, frequency=frequency, resolved_test=False, limits=False)
     return res, derived
+
+
+def fitted_free_count(vset, model, mode, systematic):
+    """Free parameters a fit of ``model`` in ``mode`` really has: the model's free parameters less
+    those the mode cannot constrain, which the fitter fixes (a closure mode's absolute position
+    and flux scale)."""
+    from ..infer.lsq import fix_degeneracies
+    from ..stats.modes import make_statistic
+
+    stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
+    _, fixed, _ = fix_degeneracies(stat)
+    return len(model.free_names) - len(fixed)
 
 
 def true_structure(model, frequency):
@@ -104,12 +116,17 @@ def forecast(
     frequency = float(np.mean(t.frequency))
     truth = {name: float(true_model.parameters[name].value) for name in true_model.free_names}
     true_struct = true_structure(true_model, frequency)
-    k_true = len(true_model.free_names)
+    # free parameters as the fits have them (after the mode fixes what it cannot constrain),
+    # counted on the first trial's data (the same simulation as that trial)
+    first = observe(
+        layout, model_vis, seed=int(seed), gain_error=gain_error, phase_error_deg=phase_error_deg, systematic=systematic
+    )
+    k_true = fitted_free_count(first, true_model, mode, fit_systematic)
     per_trial, struct_values = [], {k: [] for k in true_struct}
     alt_stats = [
         {
             "name": n,
-            "free_parameters": len(m.free_names),
+            "free_parameters": fitted_free_count(first, m, mode, fit_systematic),
             "bic_preferred": 0,
             "lr_preferred": 0,
             "delta_chi2": [],
@@ -118,8 +135,8 @@ def forecast(
         }
         for n, m in zip(alt_names, alternatives)
     ]
-    for a, m in zip(alt_stats, alternatives):
-        dk = abs(k_true - len(m.free_names))
+    for a in alt_stats:
+        dk = abs(k_true - a["free_parameters"])
         a["lr_threshold"] = float(chi2_dist.ppf(LR_LEVEL, dk)) if dk else 0.0
     n_recovered = n_fail_true = 0
     trial_seeds = [int(seed) + k for k in range(trials)]

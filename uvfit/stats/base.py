@@ -58,6 +58,14 @@ def common_shift(model, quantity):
     return first
 
 
+#: the notice of a statistic with ``amplitude_only`` (a 180-degree point-reflection ambiguity)
+REFLECTION_NOTICE = (
+    "amplitudes cannot fix the absolute position, and a model and its point "
+    "reflection through the origin (every position angle + 180 deg) fit equally "
+    "well: position angles are ambiguous by 180 degrees in this mode"
+)
+
+
 class Statistic:
     """Base class; subclasses fill ``data``, ``sigma`` and implement the two predict methods.
 
@@ -69,6 +77,10 @@ class Statistic:
     mode = ""
     #: True when the residual is an angle and must be wrapped into (-pi, pi]
     wrapped: bool | np.ndarray | None = None  # or a boolean array over the data vector
+    #: True when the statistic sees only amplitudes (of visibilities or closures): a model and its
+    #: point reflection through the origin (every position angle + 180 deg) then fit equally well.
+    #: Any phase information (visibility or closure phases) breaks that symmetry.
+    amplitude_only = False
 
     def __init__(self, vset, model, systematic=0.0, **options):
         self.vset = vset
@@ -156,6 +168,7 @@ class JoinedStatistic(Statistic):
 
     def _join(self, members):
         self.members = list(members)
+        self.amplitude_only = all(p.amplitude_only for p in self.members)
         self.data = np.concatenate([p.data for p in self.members])
         self.sigma = np.concatenate([p.sigma for p in self.members])
         self.wrapped = np.concatenate(

@@ -33,6 +33,7 @@ import numpy as np
 from scipy.special import i0e, i1e
 
 from .base import (
+    REFLECTION_NOTICE,
     Statistic,
     common_shift,
     effective_sigma,
@@ -164,6 +165,7 @@ class AmplitudeStatistic(Statistic):
     """Visibility amplitudes, debiased at high SNR, Rice mean at low SNR; Rice likelihood."""
 
     mode = "amplitude"
+    amplitude_only = True
 
     def __init__(self, vset, model, systematic=0.0, debias_snr=3.0, **options):
         super().__init__(vset, model, systematic, debias_snr=debias_snr, **options)
@@ -196,11 +198,7 @@ class AmplitudeStatistic(Statistic):
         else:
             self.rice_sigma = self.sigma[low]
         self.row_index = rows.index
-        self.notices = [
-            "amplitudes cannot fix the absolute position, and a model and its point "
-            "reflection through the origin (every position angle + 180 deg) fit equally "
-            "well: position angles are ambiguous by 180 degrees in this mode"
-        ]
+        self.notices = [REFLECTION_NOTICE] if self.amplitude_only else []
 
     # Rice mean E[A] = sigma sqrt(pi/2) [(1 + 2y) i0e(y) + 2y i1e(y)], y = nu^2 / (4 sigma^2);
     # d/dy of the bracket = i0e(y) + i1e(y).

@@ -55,13 +55,19 @@ def _station_chi2(names, parts):
     return out
 
 
+#: how many expected spreads sqrt(2/n) from 1 a reduced chi2 may lie and still be consistent
+SPREADS = 3.0
+
+
 def _judge(what, chi2, n, full):
-    """(ok: bool or None, words) for a chi2 over n closures."""
+    """(state, words) for a chi2 over n closures; state is None (no closures), "consistent",
+    "not finite" (no verdict), "high" (more than SPREADS spreads above 1) or "low" (more than SPREADS spreads below 1: the
+    errors are overestimated, so the closures can neither support nor reject the model)."""
     if n == 0:
         return None, f"no {what}"
     if chi2 is None or not np.isfinite(chi2):
         # a non-finite statistic is never a verdict: the model or the data cannot be evaluated
-        return False, (
+        return "not finite", (
             f"{what}: chi2 is {chi2} over {n} -> no verdict: the model's visibilities "
             "vanish or are not finite on some baselines, or the data hold non-finite "
             "values"
@@ -71,11 +77,15 @@ def _judge(what, chi2, n, full):
     text = f"{what}: reduced chi2 {red:.3g} over {n} (expected 1 +/- {spread:.2g})"
     if full:
         text += "; the full set is redundant, so this spread is too small"
-    if red > 1 + 3 * spread:
-        return False, text + " -> the model does not reproduce them"
-    if red < 1 - 3 * spread:
-        return True, text + " -> smaller than expected: errors probably overestimated"
-    return True, text + " -> consistent"
+    if red > 1 + SPREADS * spread:
+        return "high", text + " -> the model does not reproduce them"
+    if red < 1 - SPREADS * spread:
+        below = (1 - red) / spread
+        return "low", text + (
+            f" -> {below:.3g} spreads below 1: the errors are overestimated "
+            "(too large a systematic floor or thermal sigma)"
+        )
+    return "consistent", text + " -> consistent"
 
 
 def check_closures(
@@ -171,11 +181,25 @@ def check_closures(
     out["worst_triangles"] = out["per_triangle"][:worst]
     out["worst_quadrangles"] = out["per_quadrangle"][:worst]
     out["worst_stations"] = out["per_station"][:worst]
-    ok_p, t_p = _judge("closure phases", tot["phase"], cp.n, full)
-    ok_a, t_a = _judge("log closure amplitudes", 0.0 if tot["amplitude"] is None else tot["amplitude"], ca.n, full)
-    supported = bool(ok_p and ok_a is not False)
+    st_p, t_p = _judge("closure phases", tot["phase"], cp.n, full)
+    st_a, t_a = _judge("log closure amplitudes", tot["amplitude"], ca.n, full)
+    states = [st for st in (st_p, st_a) if st is not None]
+    supported = bool(states) and all(st == "consistent" for st in states)
+    out["errors_overestimated"] = "low" in states
     if supported:
         head = "The closure quantities support the fitted structure."
+    elif "not finite" in states:
+        head = (
+            "No verdict: a closure chi2 is not finite, so the model or the data cannot be "
+            "evaluated (see the lines below)."
+        )
+    elif "high" not in states:
+        head = (
+            "The closure quantities neither support nor reject the fitted structure: their "
+            "chi2 is far below what the errors predict, so the errors are overestimated "
+            "(lower the systematic floor, or check the thermal sigma, and run the check "
+            "again)."
+        )
     else:
         head = "The closure quantities do NOT support the fitted structure."
         if out["worst_stations"]:

@@ -23,6 +23,7 @@ the Jacobian uses d arg V = Im(dV / V) and d log|V| = Re(dV / V).
 import numpy as np
 
 from ..base import (
+    REFLECTION_NOTICE,
     JoinedStatistic,
     Statistic,
     common_shift,
@@ -209,6 +210,7 @@ class LogClosureAmplitudeStatistic(_ClosurePart):
 
     mode = "closure_amplitude"
     kind = "amplitude"
+    amplitude_only = True
     why = "log closure amplitudes"
     wrapped = None
 
@@ -359,7 +361,9 @@ class HybridStatistic(JoinedStatistic):
             vset, model, systematic, snr_cut, full, covariance, amplitude_reference=amplitude_reference
         )
         self._join([amp, cp])
-        self.notices = list(getattr(amp, "notices", []) or [])
+        # the closure phases break the point-reflection symmetry of the amplitudes: keep the
+        # amplitudes' notices except the 180-degree one, unless the join is amplitude-only
+        self.notices = [n for n in (getattr(amp, "notices", []) or []) if self.amplitude_only or n != REFLECTION_NOTICE]
         self.snr_cut = snr_cut
         self.full = bool(full)
         self.covariance = covariance

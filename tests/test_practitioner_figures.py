@@ -2,11 +2,12 @@
 
 Checks are on the numbers and on matplotlib's own renderer geometry (bounding boxes), not pixels.
 """
+
 import io
 
 import numpy as np
-
 from helpers.arrays import every_baseline, observe
+
 from uvfit.commands import _common
 from uvfit.show import plots, report, style
 
@@ -21,8 +22,17 @@ def _nine_station_set():
     u = np.cos(angle) * d[:, 0] - np.sin(angle) * d[:, 1]
     v = np.sin(angle) * d[:, 0] + np.cos(angle) * d[:, 1]
     names = np.array([f"ST{k}" for k in range(9)])
-    return observe(u, v, names[i], names[j], 60000.0 + t / 24.0, frequency=86e9, sigma=0.1,
-                   vis=np.ones(u.size, complex), source="INVENTED")
+    return observe(
+        u,
+        v,
+        names[i],
+        names[j],
+        60000.0 + t / 24.0,
+        frequency=86e9,
+        sigma=0.1,
+        vis=np.ones(u.size, complex),
+        source="INVENTED",
+    )
 
 
 def test_uv_legend_of_36_baselines_inside_the_figure():
@@ -50,10 +60,10 @@ def test_report_data_table_has_readable_labels():
 
 
 def test_resolved_row_states_a_bound_not_zero():
-    derived = {"core.resolved": {"value": 0.0, "delta_chi2": 900.0, "resolved": True,
-                                 "alpha": 0.01, "unit": ""},
-               "knot.resolved": {"value": 0.2, "delta_chi2": 0.7, "resolved": False,
-                                 "alpha": 0.01, "unit": ""}}
+    derived = {
+        "core.resolved": {"value": 0.0, "delta_chi2": 900.0, "resolved": True, "alpha": 0.01, "unit": ""},
+        "knot.resolved": {"value": 0.2, "delta_chi2": 0.7, "resolved": False, "alpha": 0.01, "unit": ""},
+    }
     text = report._derived_table(derived)
     assert "p &lt; 1e-15" in text and "p = 0.2" in text
     assert '<td class="num">0</td>' not in text
@@ -94,4 +104,4 @@ def test_progress_hides_the_time_estimate_at_the_start():
         assert bar._bar.show_eta is False  # three updates but only 0.2 s
         now["t"] = 5.0
         bar.update(1)
-        assert bar._bar.show_eta is True   # four updates, 5 s: the estimate is shown
+        assert bar._bar.show_eta is True  # four updates, 5 s: the estimate is shown

@@ -1,4 +1,5 @@
 """Options and helpers shared by the commands: data selection, output files, library errors."""
+
 import contextlib
 import re
 
@@ -13,20 +14,46 @@ def selection_options(func):
     options = [
         click.option("--min-uv", type=float, default=None, help="Drop baselines shorter than this (wavelengths)."),
         click.option("--max-uv", type=float, default=None, help="Drop baselines longer than this (wavelengths)."),
-        click.option("--stations", default=None, help="Keep only baselines between these stations (comma-separated names)."),
-        click.option("--exclude-stations", default=None, help="Drop every baseline to these stations (comma-separated names)."),
-        click.option("--time-range", nargs=2, default=None, metavar="START END",
-                     help="Keep rows between two times (ISO UTC, e.g. 2017-04-05T03:00, or MJD)."),
+        click.option(
+            "--stations", default=None, help="Keep only baselines between these stations (comma-separated names)."
+        ),
+        click.option(
+            "--exclude-stations", default=None, help="Drop every baseline to these stations (comma-separated names)."
+        ),
+        click.option(
+            "--time-range",
+            nargs=2,
+            default=None,
+            metavar="START END",
+            help="Keep rows between two times (ISO UTC, e.g. 2017-04-05T03:00, or MJD).",
+        ),
         click.option("--channels", default=None, help="Keep these flattened channel indices, e.g. '0,2-5'."),
-        click.option("--average", type=float, default=None, metavar="SECONDS",
-                     help="Average coherently in time bins of this length (s)."),
-        click.option("--column", default=None, metavar="NAME",
-                     help="Measurement Set data column: DATA, CORRECTED_DATA or MODEL_DATA "
-                          "(default CORRECTED_DATA when present, else DATA)."),
-        click.option("--field", default=None, metavar="NAME|ID",
-                     help="Measurement Set field to read (needed when it holds several)."),
-        click.option("--spw", default=None, metavar="LIST",
-                     help="Measurement Set spectral windows to read, names or ids, e.g. '0,2' (default all)."),
+        click.option(
+            "--average",
+            type=float,
+            default=None,
+            metavar="SECONDS",
+            help="Average coherently in time bins of this length (s).",
+        ),
+        click.option(
+            "--column",
+            default=None,
+            metavar="NAME",
+            help="Measurement Set data column: DATA, CORRECTED_DATA or MODEL_DATA "
+            "(default CORRECTED_DATA when present, else DATA).",
+        ),
+        click.option(
+            "--field",
+            default=None,
+            metavar="NAME|ID",
+            help="Measurement Set field to read (needed when it holds several).",
+        ),
+        click.option(
+            "--spw",
+            default=None,
+            metavar="LIST",
+            help="Measurement Set spectral windows to read, names or ids, e.g. '0,2' (default all).",
+        ),
     ]
     for opt in reversed(options):
         func = opt(func)
@@ -72,8 +99,9 @@ def force_option(func):
 
 
 def seed_option(func):
-    return click.option("--seed", type=int, default=0, show_default=True,
-                        help="Seed of every random step; recorded in the outputs.")(func)
+    return click.option(
+        "--seed", type=int, default=0, show_default=True, help="Seed of every random step; recorded in the outputs."
+    )(func)
 
 
 #: updates (and seconds) before the time estimate is shown: early steps include start-up costs
@@ -105,8 +133,7 @@ class _Progress:
     def __enter__(self):
         self._start = self._clock()
         if self.terminal:
-            self._bar = click.progressbar(length=self.length, label=self.label, file=self.stream,
-                                          **self._options)
+            self._bar = click.progressbar(length=self.length, label=self.label, file=self.stream, **self._options)
             self._bar.__enter__()
             self._bar.show_eta = False
         else:
@@ -117,8 +144,11 @@ class _Progress:
         self.done += int(n)
         self.updates += 1
         if self._bar is not None:
-            if (not self._bar.show_eta and self.updates >= ETA_AFTER_UPDATES
-                    and self._clock() - self._start >= ETA_AFTER_SECONDS):
+            if (
+                not self._bar.show_eta
+                and self.updates >= ETA_AFTER_UPDATES
+                and self._clock() - self._start >= ETA_AFTER_SECONDS
+            ):
                 self._bar.show_eta = self._options.get("show_eta", True)
             self._bar.update(n)
 
@@ -127,8 +157,10 @@ class _Progress:
             return self._bar.__exit__(*exc)
         seconds = self._clock() - self._start
         state = "stopped" if exc and exc[0] is not None else "done"
-        click.echo(f"{self.label}: {state}, {min(self.done, self.length)} of {self.length} steps "
-                   f"in {seconds:.1f} s", file=self.stream)
+        click.echo(
+            f"{self.label}: {state}, {min(self.done, self.length)} of {self.length} steps in {seconds:.1f} s",
+            file=self.stream,
+        )
         return False
 
 

@@ -138,9 +138,69 @@ def seed_option(func):
     )(func)
 
 
+#: updates (and seconds) before the time estimate is shown: early steps include start-up costs
+ETA_AFTER_UPDATES = 3
+ETA_AFTER_SECONDS = 2.0
+
+
+class _Progress:
+    """A progress display for one stage, used as a context manager with ``update(n)``.
+
+    On a terminal: click's bar, its time estimate hidden until ``ETA_AFTER_UPDATES`` updates and
+    ``ETA_AFTER_SECONDS`` have passed (the first steps carry start-up costs and made the estimate
+    wildly long). Elsewhere (a log file, a pipe): one short line when the stage starts and one
+    when it ends, with its count and duration.
+    """
+
+    def __init__(self, length, label, stream=None, **options):
+        import time
+
+        self._clock = time.monotonic
+        self.length, self.label = int(length), label
+        self.stream = stream if stream is not None else click.get_text_stream("stderr")
+        isatty = getattr(self.stream, "isatty", None)
+        self.terminal = bool(isatty and isatty())
+        self.done = self.updates = 0
+        self._options = options
+        self._bar = None
+
+    def __enter__(self):
+        self._start = self._clock()
+        if self.terminal:
+            self._bar = click.progressbar(length=self.length, label=self.label, file=self.stream, **self._options)
+            self._bar.__enter__()
+            self._bar.show_eta = False
+        else:
+            click.echo(f"{self.label}: started ({self.length} steps)", file=self.stream)
+        return self
+
+    def update(self, n=1):
+        self.done += int(n)
+        self.updates += 1
+        if self._bar is not None:
+            if (
+                not self._bar.show_eta
+                and self.updates >= ETA_AFTER_UPDATES
+                and self._clock() - self._start >= ETA_AFTER_SECONDS
+            ):
+                self._bar.show_eta = self._options.get("show_eta", True)
+            self._bar.update(n)
+
+    def __exit__(self, *exc):
+        if self._bar is not None:
+            return self._bar.__exit__(*exc)
+        seconds = self._clock() - self._start
+        state = "stopped" if exc and exc[0] is not None else "done"
+        click.echo(
+            f"{self.label}: {state}, {min(self.done, self.length)} of {self.length} steps in {seconds:.1f} s",
+            file=self.stream,
+        )
+        return False
+
+
 def progressbar(length, label, **options):
-    """A click progress bar on stderr."""
-    return click.progressbar(length=length, label=label, file=click.get_text_stream("stderr"), **options)
+    """A progress display on stderr for one stage (see :class:`_Progress`)."""
+    return _Progress(length, label, **options)
 
 
 #: what '-' means as an output path: the standard output where a command says so (as

@@ -182,16 +182,19 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
                     color=style.CYCLE[i % len(style.CYCLE)],
                     label=name,
                 )
-            ncol = 1 if len(baselines) <= 20 else 2
-            ax.legend(
-                loc="upper left",
-                bbox_to_anchor=(1.02, 1.0),
+            # outside the axes, in as many columns as the height needs (about 22 rows fit)
+            ncol = max(1, int(np.ceil(len(baselines) / LEGEND_ROWS)))
+            fig.legend(
+                loc="upper right",
+                bbox_to_anchor=(0.995, 0.98),
                 ncol=ncol,
                 fontsize=7,
                 markerscale=2.0,
                 title="baseline",
                 title_fontsize=8,
                 frameon=False,
+                columnspacing=0.8,
+                handletextpad=0.3,
             )
         else:
             key = np.concatenate([hours, hours])
@@ -205,7 +208,10 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
         ax.set_xlabel(f"u ({unit}), increasing to the left (east)")
         ax.set_ylabel(f"v ({unit}), north up")
         ax.set_title(title or f"{vset.source}: (u, v) coverage with conjugates")
-        fig.tight_layout()
+        if colour_by == "baseline":
+            _fit_legend(fig)
+        else:
+            fig.tight_layout()
     numbers = {
         "u": u,
         "v": v,
@@ -216,6 +222,23 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
         "colour_by": colour_by,
     }
     return fig, numbers
+
+
+#: rows of the baseline legend per column in the (u, v) figure
+LEGEND_ROWS = 22
+
+
+def _fit_legend(fig):
+    """Make room for the figure's legend (anchored to the figure's right edge, so never cut off):
+    the figure is widened by the legend's width and the axes laid out to its left."""
+    legend = fig.legends[0]
+    renderer = fig.canvas.get_renderer()
+    box = legend.get_window_extent(renderer)
+    legend_w = box.width / fig.dpi + 0.15
+    width, height = fig.get_size_inches()
+    fig.set_size_inches(width + legend_w - 1.6, max(height, box.height / fig.dpi + 0.4))
+    width = fig.get_size_inches()[0]
+    fig.tight_layout(rect=(0.0, 0.0, 1.0 - legend_w / width, 1.0))
 
 
 # --------------------------------------------------------------------------- closure phases

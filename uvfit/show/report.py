@@ -150,13 +150,13 @@ def data_summary_table(summary, vset, model=None):
         if key == "frequency_hz":
             rows.append(("frequencies", [round(f / 1e9, 6) for f in value], "GHz"))
             continue
-        rows.append((key, value, _SUMMARY_UNITS.get(key, "")))
+        rows.append((summary_label(key), value, _SUMMARY_UNITS.get(key, "")))
         if (
             key in ("time_start_mjd", "time_end_mjd")
             and value is not None
             and key.replace("_mjd", "_utc") not in summary
         ):
-            rows.append((key.replace("_mjd", ""), _iso(value), "UTC"))
+            rows.append((summary_label(key.replace("_mjd", "")), _iso(value), "UTC"))
     res = plots.nominal_resolution(vset)
     if np.isfinite(res):
         if model is not None:
@@ -185,9 +185,66 @@ def parameter_rows(parameters):
     return rows
 
 
+#: readable labels of the data summary's keys (the JSON keys stay in the outputs)
+SUMMARY_LABELS = {
+    "source": "source",
+    "ra_deg": "right ascension",
+    "dec_deg": "declination",
+    "n_visibilities": "visibilities (unflagged)",
+    "n_flagged": "flagged rows",
+    "stations": "stations",
+    "n_stations": "number of stations",
+    "n_baselines": "baselines",
+    "frequencies": "frequencies",
+    "time_start_mjd": "start (MJD)",
+    "time_end_mjd": "end (MJD)",
+    "time_start": "start",
+    "time_end": "end",
+    "uv_min_lambda": "shortest uv distance",
+    "uv_max_lambda": "longest uv distance",
+    "median_snr": "median signal-to-noise ratio",
+    "n_rows": "rows (flagged included)",
+    "channels": "channels",
+    "time_span_hours": "time span",
+    "time_start_utc": "start (UTC)",
+    "time_end_utc": "end (UTC)",
+    "resolution_mas": "resolution (longest baseline)",
+    "largest_scale_mas": "largest scale (shortest baseline)",
+    "median_sigma_jy": "median error per part",
+    "median_integration_s": "median integration",
+}
+
+
+def summary_label(key):
+    """The readable label of a data-summary key (unknown keys with underscores as spaces)."""
+    return SUMMARY_LABELS.get(key, str(key).replace("_", " "))
+
+
+def probability_text(p):
+    """A probability as text: a value that underflowed to 0 is stated as a bound, not as 0."""
+    if p is None or not np.isfinite(p):
+        return "—"
+    if p <= 1e-15:
+        return "p < 1e-15"
+    return f"p = {float(p):.3g}"
+
+
+def _readable_derived(derived):
+    """Derived records for the page: a resolved test's value is its false-alarm probability,
+    shown as ``p = ...`` (or ``p < 1e-15``), never as a bare 0."""
+    out = {}
+    for name, rec in derived.items():
+        if isinstance(rec, dict) and "resolved" in rec and "delta_chi2" in rec:
+            rec = dict(rec)
+            rec["value"] = probability_text(rec.get("value"))
+        out[name] = rec
+    return out
+
+
 def _derived_table(derived):
     if not derived:
         return '<p class="note">No derived quantities were recorded.</p>'
+    derived = _readable_derived(derived)
     if all(isinstance(v, dict) for v in derived.values()):
         return records_table(derived, first="quantity")
     return mapping_table(derived)

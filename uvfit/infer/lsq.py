@@ -54,6 +54,8 @@ class FitResult:
     fixed_by_fitter: list = field(default_factory=list)
     start_chi2: list = field(default_factory=list)
     unconstrained: list = field(default_factory=list)
+    solutions: list = field(default_factory=list)
+    errors_reliable: bool = True
 
     @property
     def n_free(self):
@@ -437,7 +439,7 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
     if max_nfev is None:
         max_nfev = 200 * (k + 1)
 
-    best, best_any, start_chi2 = None, None, []
+    best, best_any, start_chi2, ends, end_chi2 = None, None, [], [], []
     for x0 in start_list:
         try:
             res = _run_start(statistic, x0, lo, hi, max_nfev)
@@ -448,6 +450,8 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
             continue
         c = float(2.0 * res.cost)
         start_chi2.append(c)
+        ends.append(np.asarray(res.x, float))
+        end_chi2.append(c if res.status > 0 else float("nan"))
         if np.isfinite(c):
             if best_any is None or c < 2.0 * best_any.cost:
                 best_any = res
@@ -499,6 +503,14 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         errors = np.sqrt(np.diag(cov))
     corr = correlation_from_covariance(cov)
     per_station, per_baseline = residual_breakdown(statistic, r)
+    from .solutions import ambiguity_text, catalogue
+    from .solutions import errors_reliable as _reliable
+    end_chi2 = [chi2 if e is best.x else c for e, c in zip(ends, end_chi2)]
+    solutions = catalogue(model, names, ends or [theta], end_chi2 or [chi2], theta, errors,
+                          movable=fixed)
+    reliable = _reliable(solutions, k)
+    if not reliable:
+        notices.insert(0, ambiguity_text(solutions, k))
     result = FitResult(
         names=names, values=theta, errors=errors, covariance=cov, correlation=corr, chi2=chi2,
         dof=dof, n_data=n, log_likelihood=float(statistic.log_likelihood(theta)),
@@ -507,5 +519,5 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         global_search=bool(global_search), rescale_errors=bool(rescale_errors), error_scale=scale,
         systematic=float(getattr(statistic, "systematic", 0.0)), per_station=per_station,
         per_baseline=per_baseline, notices=notices, fixed_by_fitter=fixed, start_chi2=start_chi2,
-        unconstrained=unconstrained)
+        unconstrained=unconstrained, solutions=solutions, errors_reliable=bool(reliable))
     return result

@@ -19,7 +19,7 @@ def _pair(east2=0.09, north2=0.12, fixed_first=False):
 
 def _data():
     # invented double, flux ratio 0.9, separation 0.15 mas below the resolution 1/q_max = 0.21 mas
-    return simulate(_pair(), n=200, sigma=0.02, seed=3, qmax=1e9)
+    return simulate(_pair(), n=80, sigma=0.02, seed=3, qmax=1e9)
 
 
 def test_limit_is_chi2_99_percent_point():

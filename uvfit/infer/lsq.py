@@ -377,6 +377,20 @@ def _global_start(statistic, lo, hi, seed, maxiter=150):
     return np.asarray(res.x, float)
 
 
+def _canonical_best(statistic, model, theta, movable):
+    """The best fit relabelled to canonical order (uvfit.infer.solutions), kept only when the
+    relabelled point has the same chi2 (an exact label swap)."""
+    from .solutions import canonical
+    other = canonical(model, theta[None, :], movable)[0]
+    if np.allclose(other, theta, rtol=0, atol=0):
+        return theta
+    with np.errstate(all="ignore"):
+        c0, c1 = statistic.chi2(theta), statistic.chi2(other)
+    if np.isfinite(c1) and abs(c1 - c0) <= 1e-9 * max(1.0, abs(c0)):
+        return other
+    return theta
+
+
 def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=None,
         rescale_errors=False, max_nfev=None, strict=True):
     """Least-squares fit of the statistic's model; returns a :class:`FitResult`.
@@ -471,6 +485,7 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         notices.append(f"the fit did not converge after {best.nfev} evaluations")
 
     theta = np.asarray(best.x, float)
+    theta = _canonical_best(statistic, model, theta, fixed)
     model.set_free(theta)
     r = statistic.residuals(theta)
     chi2 = float(r @ r)

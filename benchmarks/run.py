@@ -146,6 +146,7 @@ def trig_bound(quick):
 # ------------------------------------------------------------------------------------------ 2
 def jacobian_fit(quick):
     from scipy.optimize import least_squares
+
     from uvfit.stats.modes import make_statistic
 
     truth = three_components()

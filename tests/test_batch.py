@@ -14,10 +14,9 @@ import pytest
 pytest.importorskip("dask.distributed")
 
 import uvfit
+from tests.helpers.invented import component, model_toml
 from uvfit.data.visset import VisibilitySet
 from uvfit.sky.model import SkyModel
-
-from tests.helpers.invented import component, model_toml
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 

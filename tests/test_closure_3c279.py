@@ -2,8 +2,8 @@
 import numpy as np
 import pytest
 
-from tests.helpers.real_data import REAL_DATA
 import uvfit
+from tests.helpers.real_data import REAL_DATA
 from uvfit.data.select import apply_selection
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel

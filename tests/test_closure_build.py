@@ -4,11 +4,12 @@ from math import comb
 
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from uvfit.data.visset import VisibilitySet
 from uvfit.errors import DataError
-from uvfit.stats.closures import check_closures, ClosurePhaseStatistic, ClosureStatistic
+from uvfit.stats.closures import ClosurePhaseStatistic, ClosureStatistic, check_closures
 from uvfit.stats.closures.build import build_closures
 
 

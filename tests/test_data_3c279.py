@@ -118,6 +118,7 @@ def test_orientation_guard_closure_phases_put_the_jet_south_west(real_data):
     180 and 270 deg, 25-35 microarcsec away (Kim et al. 2020, A&A 640, A69; REFERENCES.md).
     """
     import itertools
+
     from scipy.optimize import least_squares
 
     vs = uvfit.read(_paths(real_data, "hi")[0]).good()

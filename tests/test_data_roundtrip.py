@@ -4,8 +4,8 @@ import pytest
 from astropy.io import fits
 from astropy.table import Table
 
-from tests.helpers.real_data import real_file
 import uvfit
+from tests.helpers.real_data import real_file
 from uvfit.data.uvfits import _to_sky_convention
 from uvfit.data.visset import StationTable, VisibilitySet
 from uvfit.errors import DataError, UvfitError

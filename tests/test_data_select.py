@@ -3,15 +3,21 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from uvfit.data.select import (OMEGA_EARTH, apply_selection, average_channels, average_time,
-                               bandwidth_smearing_loss, parse_channels, time_smearing_loss)
+from uvfit.data.select import (
+    OMEGA_EARTH,
+    apply_selection,
+    average_channels,
+    average_time,
+    bandwidth_smearing_loss,
+    parse_channels,
+    time_smearing_loss,
+)
 from uvfit.data.visset import VisibilitySet
 from uvfit.errors import DataError
 
 
 def grid_set(n_times=60, step_s=2.0, channels=(0, 1, 2, 3), vis=None, sigma=0.5, seed=0):
     """Invented 3-station array, rows (time, baseline, channel)."""
-    names = ["ROOK", "HERON", "TERN"]
     pairs = [("ROOK", "HERON"), ("ROOK", "TERN"), ("HERON", "TERN")]
     rows = [(i, p, c) for i in range(n_times) for p in range(3) for c in channels]
     i = np.array([r[0] for r in rows])

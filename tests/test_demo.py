@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from tests.helpers import demo_run as _demo_run
 import uvfit
+from tests.helpers import demo_run as _demo_run
 
 ROOT = _demo_run.ROOT
 EXAMPLE = os.path.join(ROOT, "examples", "demo")

@@ -4,7 +4,6 @@ Outside references: numpy's own sin, cos and exp (the C library's) for the kerne
 functions; the numpy path (each shape's numpy code and the shift theorem, TMS 2017 ch. 3, from
 memory) for whole models, values and Jacobians, for every registered shape. No timing here.
 """
-import math
 import os
 import subprocess
 import sys

@@ -13,8 +13,8 @@ from uvfit.sky.model import SkyModel
 ROOT = Path(__file__).resolve().parents[1]
 
 try:  # the data layer's writer and selection
-    from uvfit.data import select as _select  # noqa: F401
     from uvfit.data import io as _io  # noqa: F401
+    from uvfit.data import select as _select  # noqa: F401
     HAVE_DATA = True
 except ImportError:  # pragma: no cover - only before the data layer is merged
     HAVE_DATA = False
@@ -123,6 +123,7 @@ def test_non_converging_fit_is_reported(files):
 
 def test_poor_fit_is_told_plainly():
     # a chi2 beyond the 99.9% point of chi2(dof) (scipy.stats) earns a notice that errors are too small
-    from uvfit.infer.lsq import _poor_fit_chi2
     from scipy.stats import chi2
+
+    from uvfit.infer.lsq import _poor_fit_chi2
     assert _poor_fit_chi2(100) == pytest.approx(chi2.ppf(0.999, 100))

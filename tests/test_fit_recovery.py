@@ -7,8 +7,7 @@ from scipy import stats
 
 from tests.helpers.fit_sim import double, simulate
 from uvfit.errors import FitError
-from uvfit.infer.derived import (brightness_temperature_disk, brightness_temperature_gaussian,
-                                 derived_quantities)
+from uvfit.infer.derived import brightness_temperature_disk, brightness_temperature_gaussian, derived_quantities
 from uvfit.infer.lsq import aic, bic, fit
 from uvfit.infer.run import run_fit
 from uvfit.sky.model import SkyModel

@@ -1,6 +1,6 @@
 """The sampler on real data: 3C 279 at 230 GHz, 2017 April 5 (see tests/data/3c279/ABOUT.md)."""
-from tests.helpers.real_data import REAL_DATA
 import uvfit
+from tests.helpers.real_data import REAL_DATA
 from uvfit.data.select import apply_selection
 from uvfit.infer.sampling import sample
 from uvfit.sky.model import SkyModel

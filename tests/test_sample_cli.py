@@ -8,9 +8,8 @@ import pytest
 from click.testing import CliRunner
 
 import uvfit
-from uvfit.cli import cli
-
 from tests.helpers.sample_data import simulate, two_points
+from uvfit.cli import cli
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 

@@ -5,9 +5,8 @@ import multiprocessing
 import numpy as np
 import pytest
 
-from uvfit.infer.sampling import sample
-
 from tests.helpers.sample_data import simulate, two_points
+from uvfit.infer.sampling import sample
 
 N_SIM = 250
 TRUE = {"flux_a": 1.0, "flux_b": 0.3, "east": 0.3, "north": 0.2}

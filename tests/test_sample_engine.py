@@ -5,13 +5,12 @@ import numpy as np
 import pytest
 from scipy import stats as st
 
+from tests.helpers.sample_data import simulate, two_points
 from uvfit.infer.posterior import circular_unwrap, summarize
 from uvfit.infer.sampling import LogPosterior, initial_ball, run_chain, sample
 from uvfit.sky.model import SkyModel
 from uvfit.stats.base import Statistic
 from uvfit.stats.modes import make_statistic
-
-from tests.helpers.sample_data import simulate, two_points
 
 MAS = math.pi / 180 / 3600e3
 

@@ -6,11 +6,10 @@ import numpy as np
 import pytest
 from scipy import integrate, interpolate
 
+from tests.helpers.sample_data import simulate, two_points
 from uvfit.infer.posterior import order_samples, swap_groups
 from uvfit.infer.sampling import sample
 from uvfit.sky.model import SkyModel
-
-from tests.helpers.sample_data import simulate, two_points
 
 MAS = math.pi / 180 / 3600e3
 FIXED0 = {"value": 0.0, "fixed": True}

@@ -8,9 +8,9 @@ import sys
 import numpy as np
 import pytest
 
+import uvfit
 from tests.helpers import show_sim
 from tests.helpers.real_data import REAL_DATA
-import uvfit
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 KINDS = ("radial", "uv", "closure", "sky")

@@ -12,11 +12,11 @@ import subprocess
 
 import numpy as np
 import pytest
-
-from tests.helpers import show_sim
-import uvfit
-from uvfit.outputs import write_json
 from test_show_cli import run
+
+import uvfit
+from tests.helpers import show_sim
+from uvfit.outputs import write_json
 
 CHROMIUM = shutil.which("chromium") or ("/usr/bin/chromium" if os.path.exists("/usr/bin/chromium")
                                         else None)

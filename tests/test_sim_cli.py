@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from tests.helpers.invented import component, model_toml
 import uvfit
+from tests.helpers.invented import component, model_toml
 from uvfit.cli import cli
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))

@@ -4,12 +4,12 @@ import os
 import numpy as np
 from scipy.stats import chi2
 
-from tests.helpers.invented import component, model_toml
 import uvfit
+from tests.helpers.invented import component, model_toml
+from uvfit.data.select import parse_time
 from uvfit.sim.array import load_array
 from uvfit.sim.forecast import forecast
 from uvfit.sim.observe import Observation
-from uvfit.data.select import parse_time
 
 HERE = os.path.join(os.path.dirname(__file__), "..", "examples", "planning")
 

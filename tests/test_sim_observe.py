@@ -3,11 +3,11 @@ import numpy as np
 import pytest
 from astropy.io import fits
 
-from tests.helpers.invented import component, model_toml
 import uvfit
+from tests.helpers.invented import component, model_toml
+from uvfit.data.select import parse_time
 from uvfit.sim.array import parse_array
 from uvfit.sim.observe import Observation, simulate, write_simulation
-from uvfit.data.select import parse_time
 
 C = 299792458.0
 
@@ -162,6 +162,7 @@ def test_written_file_reads_back_same_sky(tmp_path, suffix):
 def test_planning_example_files_load_and_simulate():
     # the worked example's invented array and models are valid and simulate (kept small here)
     import os
+
     from uvfit.sim.array import load_array
     here = os.path.join(os.path.dirname(__file__), "..", "examples", "planning")
     arr = load_array(os.path.join(here, "array.toml"))

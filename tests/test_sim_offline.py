@@ -32,7 +32,8 @@ after_import = {k: getattr(iers.conf, k) for k in KEYS}
 
 import numpy as np
 from uvfit.sim.array import parse_array
-from uvfit.sim.tracks import compute_tracks, parse_time, time_grid
+from uvfit.data.select import parse_time
+from uvfit.sim.tracks import compute_tracks, time_grid
 arr = parse_array({"name": "offline", "station": [
     {"name": "P1", "lat": 40.0, "lon": -105.0, "height": 1600.0, "sefd": 1000.0},
     {"name": "P2", "lat": 32.0, "lon": -110.0, "height": 700.0, "sefd": 1000.0},

@@ -7,7 +7,7 @@ import warnings
 import numpy as np
 import pytest
 from astropy import units as u
-from astropy.coordinates import AltAz, EarthLocation, SkyCoord, TETE
+from astropy.coordinates import TETE, AltAz, EarthLocation, SkyCoord
 from astropy.time import Time
 
 from tests.helpers.real_data import REAL_DATA

@@ -3,13 +3,12 @@ import subprocess
 import sys
 
 import numpy as np
+import pytest
 
 import uvfit
 from uvfit.data.visset import VisibilitySet
-from uvfit.outputs import atomic_write
 from uvfit.errors import UvfitError
-
-import pytest
+from uvfit.outputs import atomic_write
 
 
 def test_version_command():

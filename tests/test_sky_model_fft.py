@@ -93,6 +93,7 @@ SHAPE_CASES = [
 def test_brightness_integrates_to_one(key, settings, p):
     # scipy.integrate.dblquad of the brightness per steradian (outside reference)
     from scipy import integrate
+
     from uvfit.sky.shapes import shape_class
     shape = shape_class(key)(**settings)
     assert not shape.singular(p)

@@ -5,10 +5,10 @@ Outside references: tomllib (Python standard library) re-parses what we write; s
 the prior densities; astropy.units the unit conversions.
 """
 import math
-import tomllib
 
 import numpy as np
 import pytest
+import tomllib
 
 import uvfit
 from uvfit.errors import ModelError, UvfitError
@@ -174,6 +174,7 @@ def test_defaults():
 def test_priors_against_scipy():
     # outside reference: scipy.stats densities
     from scipy import stats
+
     from uvfit.sky.parameters import LogUniform, Normal, Uniform
     x = np.array([0.2, 0.5, 3.0])
     np.testing.assert_allclose(Uniform(0.1, 2.0).log_prob(x), stats.uniform(0.1, 1.9).logpdf(x))
@@ -274,6 +275,7 @@ def test_double_of_modulated_rings_takes_the_member_settings():
 
 def test_to_dict_is_json():
     import json
+
     from uvfit.outputs import to_json
     m = loads(EXAMPLE)
     d = json.loads(to_json(m.to_dict()))  # standard-library JSON parser

@@ -256,7 +256,8 @@ def test_free_parameters_bounds_and_prior():
     assert c.n_free == 3 and m.n_free == 4
 
 
-from hypothesis import given, settings, strategies as st  # noqa: E402
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402 (the property tests below start here)
 
 
 @settings(max_examples=25, deadline=None)

@@ -28,15 +28,14 @@ from astropy import units as un
 from click.testing import CliRunner
 
 import uvfit
+from tests import test_sky_shapes as generic_shapes
+from tests import test_sky_transforms as generic_transforms
 from uvfit.cli import cli
 from uvfit.sky import modelfile
 from uvfit.sky import shapes as registry
 from uvfit.sky.model import SkyModel
 from uvfit.sky.shape import Shape
 from uvfit.sky.shapes import _radial
-
-from tests import test_sky_shapes as generic_shapes
-from tests import test_sky_transforms as generic_transforms
 
 JY = 1e-26
 

@@ -8,10 +8,9 @@ import numpy as np
 import pytest
 from scipy import integrate, optimize, special
 
+from tests.helpers.sky_cases import case_params, scaled
 from uvfit.errors import ModelError
 from uvfit.sky.shapes import SHAPES, shape_class
-
-from tests.helpers.sky_cases import case_params, scaled
 
 MAS = np.pi / (180.0 * 3600.0 * 1000.0)
 SCALE = 0.25 * MAS   # the cases' length unit, radians

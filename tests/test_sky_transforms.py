@@ -23,9 +23,8 @@ import numpy as np
 import pytest
 from scipy import integrate, special
 
-from uvfit.sky.shapes import shape_class
-
 from tests.helpers.sky_cases import case_params, importable, scaled
+from uvfit.sky.shapes import shape_class
 
 MAS = np.pi / (180.0 * 3600.0 * 1000.0)
 N = 512                 # grid size (pixels per side)

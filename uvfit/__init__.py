@@ -11,12 +11,24 @@ __version__ = "0.1.0"
 import os as _os
 from typing import Any as _Any
 
+from .data.visset import StationTable, VisibilitySet  # noqa: E402
 from .errors import UvfitError  # noqa: E402
-from .data.visset import VisibilitySet, StationTable  # noqa: E402
 from .sky.model import SkyModel  # noqa: E402
-from .tasks import (ClosureReport, CompareReport, FitReport, ForecastReport,  # noqa: E402
-                    InfoReport, SampleReport, SimulationReport, closures, compare, fit, forecast,
-                    sample, simulate)
+from .tasks import (  # noqa: E402
+    ClosureReport,
+    CompareReport,
+    FitReport,
+    ForecastReport,
+    InfoReport,
+    SampleReport,
+    SimulationReport,
+    closures,
+    compare,
+    fit,
+    forecast,
+    sample,
+    simulate,
+)
 
 
 def read(path: "str | _os.PathLike[str]", **options: _Any) -> VisibilitySet:

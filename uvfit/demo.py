@@ -199,9 +199,9 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     from . import tasks
     from .outputs import atomic_write, atomic_write_with, write_json
     from .show import readback, style
+    from .show.corner import write_corner_plot
     from .show.figures import KINDS, make_figure
     from .show.report import build_report
-    from .show.corner import write_corner_plot
 
     def path(key):
         return os.path.join(out_dir, OUTPUTS[key])

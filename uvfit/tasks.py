@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from typing import Any, Callable, Iterable, Optional, Sequence, Union
+from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union
 
 from .data.select import parse_time, read_selected
 from .data.visset import VisibilitySet
@@ -29,7 +29,7 @@ Model = Union[SkyModel, str, "os.PathLike[str]"]
 Progress = Optional[Callable[[int], Any]]
 
 
-def _is_path(x: Any) -> bool:
+def _is_path(x: Any) -> TypeGuard[str | os.PathLike[str]]:
     return isinstance(x, str) or hasattr(x, "__fspath__")
 
 
@@ -182,6 +182,9 @@ def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0
                           progress=progress, return_result=True)
     if _is_path(model):
         out["model_file"] = str(model)
+    if vset.meta.get("format") == "ms":      # what was read from a Measurement Set (only then)
+        out["read_options"] = {"column": vset.meta["ms_column"], "field": vset.meta["ms_field"],
+                               "spw": list(vset.meta["ms_spws_read"])}
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -521,6 +524,9 @@ def summarise(vset: VisibilitySet) -> dict:
                 "n_autocorrelation_rows_flagged"):
         if key in vset.meta:
             s[key] = vset.meta[key]
+    if vset.meta.get("format") == "ms":
+        from .data.ms import add_ms_summary
+        add_ms_summary(vset, s)
     return s
 
 

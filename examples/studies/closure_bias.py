@@ -35,6 +35,7 @@ def main(argv=None):
     a = ap.parse_args(argv)
 
     import make_demo_data
+
     from uvfit import load_model
     from uvfit._blas import single_threaded
     from uvfit.infer.lsq import fit

@@ -4,7 +4,7 @@ import re
 
 import click
 
-from ..data.select import SELECTION_OPTIONS
+from ..data.select import READ_OPTIONS, SELECTION_OPTIONS
 from ..errors import UvfitError
 
 
@@ -20,6 +20,13 @@ def selection_options(func):
         click.option("--channels", default=None, help="Keep these flattened channel indices, e.g. '0,2-5'."),
         click.option("--average", type=float, default=None, metavar="SECONDS",
                      help="Average coherently in time bins of this length (s)."),
+        click.option("--column", default=None, metavar="NAME",
+                     help="Measurement Set data column: DATA, CORRECTED_DATA or MODEL_DATA "
+                          "(default CORRECTED_DATA when present, else DATA)."),
+        click.option("--field", default=None, metavar="NAME|ID",
+                     help="Measurement Set field to read (needed when it holds several)."),
+        click.option("--spw", default=None, metavar="LIST",
+                     help="Measurement Set spectral windows to read, names or ids, e.g. '0,2' (default all)."),
     ]
     for opt in reversed(options):
         func = opt(func)
@@ -28,7 +35,13 @@ def selection_options(func):
 
 def pop_selection(kwargs):
     """Remove the selection options from a command's kwargs and return them as a dict."""
-    return {k: kwargs.pop(k, None) for k in SELECTION_OPTIONS}
+    selection = {k: kwargs.pop(k, None) for k in SELECTION_OPTIONS}
+    # reader options (Measurement Sets) are recorded only when given
+    for k in READ_OPTIONS:
+        value = kwargs.pop(k, None)
+        if value not in (None, ""):
+            selection[k] = value
+    return selection
 
 
 def echo_notes(notes, prefix=""):

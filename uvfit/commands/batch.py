@@ -3,8 +3,8 @@ import os
 
 import click
 
-from ._common import force_option, progressbar
 from ..outputs import atomic_write_with
+from ._common import force_option, progressbar
 
 
 @click.command("batch")

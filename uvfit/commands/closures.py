@@ -9,7 +9,7 @@ from ._common import echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("closures")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.option("--model", "model_path", default=None, metavar="FIT.json|MODEL.toml",
               help="Compare the closures of this model (a fit result or a model file) with the data.")
 @click.option("--systematic", type=float, default=None, metavar="F",

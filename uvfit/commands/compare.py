@@ -2,12 +2,11 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
 
 
 @click.command("compare")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("models", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
               help="What is fitted (as for uvfit fit).")

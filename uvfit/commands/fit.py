@@ -2,12 +2,11 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
 
 
 @click.command("fit")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
               help="What is fitted: " + "; ".join(f"{k}: {v[2]}" for k, v in MODES.items()) + ".")
@@ -28,11 +27,15 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
               help="Write the full result as JSON here.")
 @click.option("--save-model", type=click.Path(dir_okay=False), default=None,
               help="Write the best-fit model (TOML) here.")
+@click.option("--write-model-column", is_flag=True,
+              help="Write the best-fit model visibilities into the Measurement Set's MODEL_DATA column "
+                   "(created if absent; DATA is never touched).")
 @seed_option
 @force_option
 @selection_options
 def command(data, model, mode, systematic, rescale_errors, starts, global_search, redshift,
-            max_evaluations, no_resolved_test, json_out, save_model, seed, force, **kwargs):
+            max_evaluations, no_resolved_test, json_out, save_model, seed, force,
+            write_model_column=False, **kwargs):
     """Fit MODEL (a TOML model file) to the visibilities in DATA by least squares.
 
     Prints every parameter with its error, the derived quantities (separations, position angles,
@@ -43,6 +46,9 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     from ..outputs import atomic_write, check_writable, write_json
 
     selection = pop_selection(kwargs)
+    if write_model_column:
+        from ..data.ms import check_model_column_writable
+        check_model_column_writable(data)
     for path in (json_out, save_model):
         if path:
             check_writable(path, force)
@@ -51,7 +57,8 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
                    selection=selection, resolved_test=not no_resolved_test,
                    max_evaluations=max_evaluations)
     total = starts + (1 if global_search else 0)
-    with as_options(max_evaluations="--max-evaluations"):
+    with as_options(max_evaluations="--max-evaluations", starts="--starts", global_search="--global-search",
+                    rescale_errors="--rescale-errors"):
         if total > 1:
             with progressbar(total, "fitting") as bar:
                 report = tasks.fit(data, model, progress=bar.update, **options)
@@ -66,3 +73,10 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     if save_model:
         atomic_write(save_model, out["model_toml"], force=force)
         click.echo(f"wrote {save_model}", err=True)
+    if write_model_column:
+        from ..data.ms import write_model_column as write_column
+        from ..sky.modelfile import loads
+        done = write_column(data, loads(out["model_toml"]), field=selection.get("field"),
+                            spw=selection.get("spw"))
+        click.echo(f"wrote the best-fit model into {done['column']} of {data} ({done['rows_written']} of "
+                   f"{done['rows_total']} rows{'; column created' if done['created'] else ''})", err=True)

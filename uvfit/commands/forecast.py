@@ -5,6 +5,7 @@ from ..stats.modes import MODES
 from ._common import as_options, force_option, progressbar, seed_option
 from ._observation import observation_options, pop_observation
 
+
 @click.command("forecast")
 @click.argument("array_file", metavar="ARRAY", type=click.Path(dir_okay=False))
 @click.argument("true_file", metavar="MODEL_TRUE", type=click.Path(dir_okay=False))

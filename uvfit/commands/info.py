@@ -3,8 +3,9 @@ import click
 
 from ._common import echo_notes, force_option, pop_selection, selection_options
 
+
 @click.command("info")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.option("--json", "json_out", default=None, metavar="OUT",
               help="Also write the summary as JSON to OUT ('-' writes the JSON to stdout instead of the table).")
 @selection_options

@@ -6,7 +6,7 @@ from ._common import echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("plot")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.option("--fit", "fit_path", required=True, type=click.Path(dir_okay=False),
               help="Fit output written by 'uvfit fit --json'; its model is drawn.")
 @click.option("--kind", required=True, type=click.Choice(list(KINDS)),

@@ -97,7 +97,8 @@ def _reduce(vset, inv, n_groups, weight, wsum, new_channel):
         u=mean(vset.u), v=mean(vset.v), w=mean(vset.w), time=mean(vset.time),
         frequency=frequency, station1=vset.station1[first], station2=vset.station2[first],
         vis=vis, sigma=1.0 / np.sqrt(wsum), flag=np.zeros(n_groups, bool), channel=new_channel[first],
-        integration=np.where(n_known == count, integ_sum, np.nan), stations=vset.stations,
+        integration=np.where(n_known == count, integ_sum, np.nan), scan=vset.scan[first],
+        stations=vset.stations,
         source=vset.source, ra_deg=vset.ra_deg, dec_deg=vset.dec_deg, meta=dict(vset.meta))
     return out, count
 
@@ -126,7 +127,10 @@ def average_time(vset, seconds, field_radius=None):
         raise DataError("nothing to average: every row is flagged")
     t_s = (good.time - good.time.min()) * _SECONDS_PER_DAY
     bins = np.floor((t_s + 1e-5) / seconds).astype(np.int64)   # 10 us: MJD rounding
-    keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel])
+    # the scan number last: bins never mix scans (a constant -1 where the file has no scans
+    # leaves the grouping as it was)
+    keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel,
+                            good.scan])
     inv, n_groups, weight, wsum = _weighted_groups(good, keys)
     out, count = _reduce(good, inv, n_groups, weight, wsum, good.channel)
     # Every row of one bin gets the bin's common time stamp (the mean time of all rows in it), so
@@ -265,6 +269,10 @@ def parse_channels(value):
 
 
 #: the selection every command that reads data takes (keyword arguments of apply_selection)
+#: options of the reader (Measurement Sets: data column, field, spectral windows), carried in the
+#: same selection dictionary as the row selection and recorded in the outputs when given
+READ_OPTIONS = ("column", "field", "spw")
+
 SELECTION_OPTIONS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels",
                      "average")
 
@@ -315,16 +323,25 @@ def read_selected(data, selection=None, good=True):
     the flagged rows are kept). ``notes``: the selection's messages for the user (a list of str).
     Every command, task, batch job and the demo read data through this function.
     """
+    selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "", [])}
+    reading = {k: selection.pop(k) for k in READ_OPTIONS if k in selection}
+    notes = []
     if isinstance(data, (str, bytes)) or hasattr(data, "__fspath__"):
         from .io import read
-        vset = read(data)
+        vset = read(data, **reading)
+        if vset.meta.get("format") == "ms":
+            notes.append(f"Measurement Set: column {vset.meta['ms_column_note']}, field "
+                         f"{vset.meta['ms_field']} ({vset.source}), spectral windows "
+                         + ", ".join(str(s) for s in vset.meta["ms_spws_read"]))
     else:
+        if reading:
+            raise DataError("reader options (" + ", ".join(sorted(reading)) + ") apply to a file "
+                            "being read, not to visibilities in memory",
+                            "read the file with these options, or leave them out")
         vset = data
-    selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "", [])}
-    notes = []
     if selection:
-        vset, notes = apply_selection(vset, **selection)
-        notes = list(notes)
+        vset, more = apply_selection(vset, **selection)
+        notes += list(more)
     good_rows = vset.good()
     return (good_rows if good else vset), notes
 

@@ -11,6 +11,8 @@ Conventions (see README, "Conventions"):
 - vis and sigma in Jy; sigma is the 1-sigma error of the real and of the imaginary part each.
 - time is MJD (UTC) as a float; frequency in Hz, per row.
 - flag is True for a row that must not be used.
+- scan is the scan number of a row as its file gives it (Measurement Sets: SCAN_NUMBER), -1 where
+  the file has none (UVFITS, ECSV, simulations); carried through subsets and averaging.
 """
 from dataclasses import dataclass, field, replace
 
@@ -19,7 +21,7 @@ import numpy as np
 from ..errors import DataError
 
 _ROW_FIELDS = ("u", "v", "w", "time", "frequency", "station1", "station2", "vis", "sigma",
-               "flag", "channel", "integration")
+               "flag", "channel", "integration", "scan")
 
 
 @dataclass
@@ -27,7 +29,7 @@ class StationTable:
     """Names of the stations, and their geocentric positions (m, NaN where unknown)."""
 
     names: list
-    xyz: np.ndarray = None
+    xyz: np.ndarray | None = None
 
     def __post_init__(self):
         self.names = [str(n) for n in self.names]
@@ -49,7 +51,8 @@ class VisibilitySet:
     Attributes that are 1-D arrays of one length (the rows): ``u``, ``v``, ``w`` (wavelengths),
     ``time`` (MJD), ``frequency`` (Hz), ``station1``, ``station2`` (station names, str),
     ``vis`` (complex, Jy), ``sigma`` (Jy), ``flag`` (bool), ``channel`` (int: flattened index
-    IF * n_channels + channel of the row in its file), ``integration`` (s, NaN where unknown).
+    IF * n_channels + channel of the row in its file), ``integration`` (s, NaN where unknown),
+    ``scan`` (int, the file's scan number; -1 where the file has none).
     """
 
     u: np.ndarray
@@ -61,10 +64,11 @@ class VisibilitySet:
     station2: np.ndarray
     vis: np.ndarray
     sigma: np.ndarray
-    flag: np.ndarray = None
-    channel: np.ndarray = None
-    integration: np.ndarray = None
-    stations: StationTable = None
+    flag: np.ndarray | None = None
+    channel: np.ndarray | None = None
+    integration: np.ndarray | None = None
+    scan: np.ndarray | None = None
+    stations: StationTable | None = None
     source: str = "unknown"
     ra_deg: float = float("nan")
     dec_deg: float = float("nan")
@@ -87,6 +91,8 @@ class VisibilitySet:
                         else np.asarray(self.channel, dtype=int).ravel())
         self.integration = (np.full(n, np.nan) if self.integration is None
                             else np.broadcast_to(np.asarray(self.integration, float), (n,)).copy())
+        self.scan = (np.full(n, -1, int) if self.scan is None
+                     else np.broadcast_to(np.asarray(self.scan, int), (n,)).copy())
         for name in _ROW_FIELDS:
             if len(getattr(self, name)) != n:
                 raise DataError(f"visibility column '{name}' has {len(getattr(self, name))} rows, "

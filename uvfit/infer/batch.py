@@ -22,6 +22,7 @@ digest (data bytes, model bytes, options, uvfit version) is skipped on a rerun.
 import hashlib
 import json
 import os
+
 import tomllib
 
 from .. import __version__
@@ -225,8 +226,8 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
 
 def results_table(rows):
     """One astropy Table row per job: status, error, chi-square, every parameter and derived value."""
-    from astropy.table import Table
     import numpy as np
+    from astropy.table import Table
 
     value_keys = []
     for row in rows:

@@ -15,8 +15,8 @@ import numpy as np
 
 from .. import __version__
 from ..errors import FitError, UvfitError
-from ..stats.base import effective_sigma
 from ..labels import COMPARE_CAUTION
+from ..stats.base import effective_sigma
 from ..stats.modes import make_statistic
 from .lsq import fit
 
@@ -61,7 +61,7 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
         try:
             results.append(_fit_model(vset, model, mode, systematic, starts, seed))
         except FitError as exc:
-            raise FitError(f"model '{name}': {exc.message}", exc.hint)
+            raise FitError(f"model '{name}': {exc.message}", exc.hint) from None
     n_free = [r.n_free for r in results]
     simple = int(np.argmin(n_free))
     s_res = results[simple]

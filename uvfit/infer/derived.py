@@ -41,8 +41,7 @@ import numpy as np
 from scipy import stats as _st
 
 from ..errors import UvfitError
-from ..sky.temperature import (C_LIGHT, JY, K_BOLTZMANN,  # noqa: F401 (public here too)
-                               brightness_temperature_disk, brightness_temperature_gaussian)
+from ..sky.temperature import C_LIGHT, JY, K_BOLTZMANN, brightness_temperature_disk, brightness_temperature_gaussian  # noqa: F401 (public here too)
 
 #: delta chi2 of a one-sided 95% limit (the 90% point of chi2 with 1 d.o.f.)
 LIMIT_DCHI2 = float(_st.chi2.ppf(0.90, 1))
@@ -215,8 +214,8 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
 
 def _refit_chi2(result, fix):
     """chi2 of a refit from the best fit with the parameters in ``fix`` ({name: value}) fixed."""
-    from .lsq import fit
     from ..errors import FitError
+    from .lsq import fit
 
     model = result.model.copy()
     for name, value in fix.items():

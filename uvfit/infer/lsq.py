@@ -362,7 +362,7 @@ def _global_start(statistic, lo, hi, seed, maxiter=150):
     if open_:
         raise FitError("the global search needs a finite min and max for every free parameter; "
                        "these have none: " + ", ".join(open_),
-                       "set min and max for them in the model file, or drop --global-search")
+                       "set min and max for them in the model file, or set global_search to False")
 
     def objective(x):
         with np.errstate(all="ignore"):
@@ -408,14 +408,14 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         statistic = statistic.rebuilt(model)
     model = statistic.model
     if int(starts) < 1:
-        raise UvfitError(f"--starts must be at least 1 (got {starts})")
+        raise UvfitError(f"starts must be at least 1 (got {starts})")
     statistic, fixed, notices = fix_degeneracies(statistic)
     names = list(model.free_names)
     k = len(names)
     if k == 0:
         raise FitError("the model has no free parameter left to fit" +
                        (f" (fixed because the mode cannot constrain them: {', '.join(fixed)})" if fixed else ""),
-                       "free at least one parameter in the model file, or use another --mode")
+                       "free at least one parameter in the model file, or use another fitting mode")
     n = statistic.n_data
     if n <= k:
         raise FitError(f"only {n} data for {k} free parameters: the fit is not determined",
@@ -437,7 +437,7 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
     if not np.any(j0 != 0):
         raise FitError("the data cannot constrain any free parameter at the start values (the "
                        f"{statistic.mode} data do not change when {', '.join(names)} change)",
-                       "fix these parameters, choose start values where they matter, or use another --mode")
+                       "fix these parameters, choose start values where they matter, or use another fitting mode")
     groups, _ = null_directions(j0, names)
     for grp in groups:
         if len(grp) == 1:
@@ -480,7 +480,7 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         if strict:
             raise FitError(f"the fit did not converge after {best_any.nfev} evaluations "
                            f"({len(start_list)} start(s))",
-                           "try --starts 20, tighter bounds, or better start values")
+                           "try starts 20, tighter bounds, or better start values")
         best = best_any
         notices.append(f"the fit did not converge after {best.nfev} evaluations")
 

@@ -12,7 +12,6 @@ from .derived import derived_quantities
 from .lsq import fit
 
 
-
 def parameter_table(result):
     """{name: {"value", "error", "unit", "free", "fixed", "tie"}} for every model parameter."""
     model = result.model

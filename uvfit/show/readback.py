@@ -128,7 +128,7 @@ def load_model_or_fit(path):
                 doc = json.load(handle)
         except (OSError, ValueError) as exc:
             raise ModelError(f"{path} is not a readable JSON file ({exc})",
-                             "give the JSON written by uvfit fit --json, or a model file (.toml)")
+                             "give the JSON written by uvfit fit --json, or a model file (.toml)") from None
         text = doc.get("model_toml") if isinstance(doc, dict) else None
         if not text:
             raise ModelError(f"{path} holds no best-fit model (no 'model_toml' key)",

@@ -17,7 +17,6 @@ from . import plots, style
 from .corner import corner_plot
 from .figures import KINDS, make_figure
 
-
 _CSS = """
 body{font-family:Georgia,'DejaVu Serif',serif;max-width:1100px;margin:1.5em auto;padding:0 1em;
 color:#111;background:#fff;line-height:1.4}

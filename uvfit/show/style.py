@@ -9,6 +9,7 @@ import io
 
 import matplotlib
 import numpy as np
+from cycler import cycler
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
@@ -49,7 +50,7 @@ RC = {
     "axes.grid": True,
     "grid.alpha": 0.3,
     "grid.linewidth": 0.6,
-    "axes.prop_cycle": matplotlib.cycler(color=CYCLE),
+    "axes.prop_cycle": cycler(color=CYCLE),
     "savefig.facecolor": "white",
     "figure.facecolor": "white",
     "svg.hashsalt": "uvfit",

@@ -158,8 +158,8 @@ def closures_text(res):
 def _sexagesimal(ra_deg, dec_deg):
     if not (np.isfinite(ra_deg) and np.isfinite(dec_deg)):
         return "unknown"
-    from astropy.coordinates import Angle
     import astropy.units as u
+    from astropy.coordinates import Angle
     ra = Angle(ra_deg, u.deg).to_string(unit=u.hourangle, sep="hms", precision=4, pad=True)
     dec = Angle(dec_deg, u.deg).to_string(unit=u.deg, sep="dms", precision=3, alwayssign=True, pad=True)
     return f"RA {ra}  Dec {dec}  (J2000; {ra_deg:.6f} deg, {dec_deg:+.6f} deg)"
@@ -182,6 +182,29 @@ def _angle(mas):
     if mas < 1e3:
         return f"{mas:.3g} mas"
     return f"{mas / 1e3:.3g} arcsec"
+
+
+def _ms_lines(s):
+    """The extra lines of the human table for a Measurement Set."""
+    fields = s.get("ms_fields", [])
+    used = [f for f in fields if f.get("n_rows")]
+    spws = s.get("ms_spws", [])
+    read = set(s.get("ms_spws_read", []))
+    scans = s.get("scans", [])
+    rows = [
+        ("data column", s.get("ms_column_note", "-") + f"; weights from {s.get('ms_weights', '-')}"),
+        ("fields", f"{len(fields)}: " + ", ".join(
+            f"{f['id']} {f['name']}" + (" (read)" if f["id"] == s.get("ms_field") else "")
+            + ("" if f.get("n_rows") else " (no rows)") for f in fields) + (f"; {len(used)} with data" if len(used) != len(fields) else "")),
+        ("spectral windows", f"{len(spws)}: " + ", ".join(
+            f"{w['id']} {w['name'] or '-'} ({w['n_channels']} channels, "
+            f"{(w['frequency_min_hz'] or 0) / 1e9:.6g}-{(w['frequency_max_hz'] or 0) / 1e9:.6g} GHz)"
+            + (" (read)" if w["id"] in read else "") for w in spws)),
+        ("antennas", f"{len(s.get('ms_antennas', []))} in the ANTENNA table, {s['n_stations']} with data"),
+        ("scans", f"{len(scans)}: " + ", ".join(f"{c['scan']} ({c['duration_s']:.4g} s, {c['n_visibilities']} vis)"
+                                                for c in scans[:20]) + (" ..." if len(scans) > 20 else "")),
+    ]
+    return rows
 
 
 def info_text(s):
@@ -211,6 +234,8 @@ def info_text(s):
         ("median SNR", f"{s['median_snr']:.3g}  (median sigma {s['median_sigma_jy']:.3g} Jy)"
          if s.get("median_snr") is not None else "-"),
     ]
+    if s.get("file_format") == "ms":
+        rows += _ms_lines(s)
     width = max(len(k) for k, _ in rows)
     lines = [f"{k:<{width}}  {v}" for k, v in rows]
     for key in ("note_single_hand", "note_weights", "note_stations"):

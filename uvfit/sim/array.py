@@ -26,6 +26,7 @@ The default elevation limit of 10 degrees is a common-practice value for plannin
 its limit takes no data (its baselines drop out of the track).
 """
 import os
+
 try:
     import tomllib
 except ModuleNotFoundError:  # Python 3.10

@@ -179,7 +179,7 @@ class Tracks:
     valid: np.ndarray      # (T, B)
     ra_deg: float
     dec_deg: float
-    notice: str = None
+    notice: str | None = None
 
     def uvw_lambda(self, frequency_hz):
         """(T, B, C, 3) (u, v, w) in wavelengths for channel frequencies (C,) in Hz."""

@@ -37,6 +37,8 @@ from llvmlite import ir
 from numba import njit, types
 from numba.extending import intrinsic
 
+from .shapes import gaussian as _gaussian
+
 #: rows per chunk: the scratch arrays of one chunk stay in the first-level caches
 CHUNK = 1024
 #: rows of the scratch array ``evaluate`` needs
@@ -44,7 +46,6 @@ SCRATCH_ROWS = 10
 
 _HALF_PI = math.pi / 2.0
 _TWO_PI = 2.0 * math.pi
-from .shapes import gaussian as _gaussian
 
 #: the Gaussians' visibility formulas, shared with the shapes (uvfit.sky.shapes.gaussian)
 C_VIS = _gaussian.C_VIS

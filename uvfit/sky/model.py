@@ -8,8 +8,8 @@ shapes see radians. See DEVELOPERS.md, "SkyModel", for the contract.
 import copy as _copy
 import math
 
-import numpy as np
 import astropy.units as un
+import numpy as np
 
 from ..errors import ModelError
 from . import engine as _engine
@@ -26,7 +26,7 @@ def angular_unit_of(text):
             unit = un.Unit(str(text))
         except ValueError:
             raise ModelError(f"angular_unit '{text}' is not a unit astropy knows",
-                             "use e.g. \"uas\", \"mas\", \"arcsec\", \"deg\"")
+                             "use e.g. \"uas\", \"mas\", \"arcsec\", \"deg\"") from None
     if not unit.is_equivalent(un.rad):
         raise ModelError(f"angular_unit '{text}' is not an angle", "use e.g. \"uas\", \"mas\", \"arcsec\"")
     return unit, str(text)
@@ -331,7 +331,7 @@ class SkyModel:
             try:
                 img += c.brightness(l, m, local, self.rad_per_unit, frequency)
             except NotImplementedError:
-                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet")
+                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet") from None
         return img
 
     def render(self, npix, fov, frequency=None, theta=None, centre=(0.0, 0.0)):
@@ -377,7 +377,7 @@ class SkyModel:
                 and list(self.parameters) == list(other.parameters)
                 and all(a.same_as(b) for a, b in zip(self.parameters.values(), other.parameters.values())))
 
-    __hash__ = None
+    __hash__ = None  # type: ignore[assignment]  # equal models are mutable: not hashable
 
     def __repr__(self):
         comps = ", ".join(f"{c.name}:{c.key}" for c in self.components)

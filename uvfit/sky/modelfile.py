@@ -16,16 +16,15 @@ import json
 import math
 import os
 import re
-import tomllib
 
 import astropy.units as un
+import tomllib
 
 from ..errors import ModelError, UvfitError
 from ..outputs import atomic_write
 from .component import Component
 from .model import SkyModel, angular_unit_of
-from .parameters import PRIORS, LogUniform, Parameter, Uniform, _toml_float, kind_unit
-from .parameters import ParameterSet
+from .parameters import PRIORS, LogUniform, Parameter, ParameterSet, Uniform, _toml_float, kind_unit
 from .shapes import SHAPES, shape_class
 
 _TOP_KEYS = ("angular_unit", "description", "component")
@@ -93,13 +92,13 @@ def load_model(path):
         with open(path, "rb") as handle:
             raw = handle.read()
     except FileNotFoundError:
-        raise ModelError(f"model file {path} does not exist", "check the path")
+        raise ModelError(f"model file {path} does not exist", "check the path") from None
     except OSError as exc:
-        raise ModelError(f"cannot read model file {path}: {exc.strerror}")
+        raise ModelError(f"cannot read model file {path}: {exc.strerror}") from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
-        raise ModelError(f"model file {path} is not UTF-8 text", "save it as a plain UTF-8 TOML file")
+        raise ModelError(f"model file {path} is not UTF-8 text", "save it as a plain UTF-8 TOML file") from None
     return loads(text, path=path)
 
 
@@ -110,7 +109,7 @@ def loads(text, path=None):
     except tomllib.TOMLDecodeError as exc:
         where = f"{path}: " if path else ""
         raise ModelError(f"{where}TOML syntax error: {exc}",
-                         "see the README, 'Model files', for the format")
+                         "see the README, 'Model files', for the format") from None
     return model_from_dict(data, source=text, path=path)
 
 
@@ -142,7 +141,7 @@ def model_from_dict(data, source=None, path=None):
     try:
         unit, unit_text = angular_unit_of(data["angular_unit"])
     except ModelError as exc:
-        raise loc.error(exc.message, exc.hint, key="angular_unit")
+        raise loc.error(exc.message, exc.hint, key="angular_unit") from None
     description = data.get("description")
     if description is not None and not isinstance(description, str):
         raise loc.error("description must be a string", key="description")
@@ -185,7 +184,7 @@ def _component(table, i, loc, unit, names):
     try:
         cls = shape_class(key)
     except (ImportError, AttributeError):
-        raise err(f"shape '{key}' is not available in this installation", key="shape")
+        raise err(f"shape '{key}' is not available in this installation", key="shape") from None
 
     setting_names = cls.accepted_settings(table)
     settings = {}
@@ -198,7 +197,7 @@ def _component(table, i, loc, unit, names):
         text = exc.message if isinstance(exc, UvfitError) else str(exc)
         hint = exc.hint if isinstance(exc, UvfitError) else None
         bad = next((s for s in settings if s in text), None)
-        raise err(text, hint, key=bad or (setting_names[0] if setting_names else "shape"))
+        raise err(text, hint, key=bad or (setting_names[0] if setting_names else "shape")) from None
 
     ref = None
     if "spectral_index" in table:
@@ -258,7 +257,7 @@ def _frequency(value, err):
             q = un.Quantity(value)
         except (ValueError, TypeError):
             raise err(f"reference_frequency {value!r} is not a frequency astropy understands",
-                      'write e.g. "230 GHz" or a number in Hz', key=key)
+                      'write e.g. "230 GHz" or a number in Hz', key=key) from None
         if not q.unit.is_equivalent(un.Hz):
             raise err(f"reference_frequency {value!r} is not a frequency", 'write e.g. "230 GHz"', key=key)
         hz = float(q.to_value(un.Hz))
@@ -347,7 +346,7 @@ def _prior(spec, p, local, err):
                 raise err(f"prior '{kind}' of '{local}' needs two numbers, e.g. {{ {kind} = [a, b] }}", key=local)
             return PRIORS[kind](*args)
     except ValueError as exc:
-        raise err(f"bad prior for '{local}': {exc}", key=local)
+        raise err(f"bad prior for '{local}': {exc}", key=local) from None
     raise err(f"bad prior for '{local}'",
               "use \"uniform\", \"log_uniform\", or a one-key table like { normal = [mean, sd] }", key=local)
 
@@ -360,7 +359,7 @@ def _resolve_ties(params, names, loc):
         i = names.get(cname)
 
         def err(message, hint=None):
-            return loc.error(message, hint, component=i, key=local, name=cname)
+            return loc.error(message, hint, component=i, key=local, name=cname)  # noqa: B023 (called in this iteration only)
 
         if p.tie == full:
             raise err(f"'{local}' is tied to itself", "remove the tie")
@@ -448,7 +447,7 @@ def _build(cls, components, angular_unit="mas", description=None):
 
 
 # the model's conveniences for files, provided here so that uvfit.sky.model needs no file code
-SkyModel.build = classmethod(_build)
-SkyModel.from_components = SkyModel.build
-SkyModel.to_toml = model_to_toml
-SkyModel.save = save_model
+SkyModel.build = classmethod(_build)  # type: ignore[attr-defined]  # attached here: sky.model has no file code
+SkyModel.from_components = SkyModel.build  # type: ignore[attr-defined]  # same
+SkyModel.to_toml = model_to_toml  # type: ignore[attr-defined]  # same
+SkyModel.save = save_model  # type: ignore[attr-defined]  # same

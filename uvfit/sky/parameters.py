@@ -9,8 +9,8 @@ parameter's column).
 import math
 from dataclasses import dataclass
 
-import numpy as np
 import astropy.units as un
+import numpy as np
 
 #: kind of each component-level parameter
 COMPONENT_KINDS = {"flux": "flux", "east": "length", "north": "length", "spectral_index": "ratio"}
@@ -149,11 +149,11 @@ class Parameter:
     min: float = -math.inf
     max: float = math.inf
     fixed: bool = False
-    tie: str = None
-    prior: Prior = None
+    tie: str | None = None
+    prior: Prior | None = None
     unit: object = None
     kind: str = "ratio"
-    note: str = None
+    note: str | None = None
 
     @property
     def component(self):

@@ -74,7 +74,7 @@ class Shape:
     #: True when the shape is made of several members with parameters of their own (a double)
     compound: ClassVar[bool] = False
     #: built-in kernel of the compiled engine ("point", "gaussian", "elliptical_gaussian"), or None
-    kernel: ClassVar = None
+    kernel: ClassVar[str | None] = None
 
     def __init__(self, **settings):
         unknown = set(settings) - set(self.settings)

@@ -67,7 +67,7 @@ class Statistic:
     #: mode name, e.g. "complex"
     mode = ""
     #: True when the residual is an angle and must be wrapped into (-pi, pi]
-    wrapped = None  # or a boolean array over the data vector
+    wrapped: bool | np.ndarray | None = None  # or a boolean array over the data vector
 
     def __init__(self, vset, model, systematic=0.0, **options):
         self.vset = vset

@@ -28,7 +28,7 @@ def read_chain_attrs(path):
             attrs = {k: g.attrs[k] for k in g.attrs}
     except OSError as exc:
         raise UvfitError(f"cannot read the chain file {path} ({exc})",
-                         "give an HDF5 chain file written by 'uvfit sample --chain', or start a new one with --force")
+                         "give an HDF5 chain file written by 'uvfit sample --chain', or start a new one with --force") from None
     names = json.loads(attrs.get("uvfit_names", "[]"))
     return {"names": names, "seed": int(attrs.get("uvfit_seed", 0)),
             "iteration": int(attrs.get("iteration", 0)),

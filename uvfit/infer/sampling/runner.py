@@ -45,7 +45,7 @@ class Chain:
     seed: int
     burn_in: int
     thin: int
-    path: str = None
+    path: str | None = None
     notes: list = field(default_factory=list)
     resumed_from: int = 0
 

@@ -11,8 +11,8 @@ x = 3.8317 (the first zero of J1), i.e. q = 1.2197 / theta.
 import numpy as np
 
 from uvfit.sky.shapes import _pixels, _radial
-from uvfit.sky.temperature import brightness_temperature_disk
 from uvfit.sky.shapes._quadrature import disk_points
+from uvfit.sky.temperature import brightness_temperature_disk
 
 
 class UniformDisk(_radial.OneSizeRadial):

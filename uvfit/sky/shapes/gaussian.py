@@ -7,9 +7,9 @@ FWHM a, minor-axis FWHM b = rho a and major axis at position angle phi (north th
 V = exp[-pi^2/(4 ln 2) (a^2 q_par^2 + b^2 q_perp^2)], with q_par = u sin phi + v cos phi (along
 the major axis) and q_perp = u cos phi - v sin phi.
 """
-import numpy as np
-
 import math
+
+import numpy as np
 
 from ..shape import Shape, grid_steps, nearest_pixel
 from ..temperature import brightness_temperature_gaussian

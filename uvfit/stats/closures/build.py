@@ -107,12 +107,12 @@ class ClosureSet:
     n_snapshots: int = 0
     #: per row of the VisibilitySet: the amplitude (Jy) behind the SNR cut, the choice of the set and
     #: the errors (see ``reference_amplitudes``); None for sets made without it
-    reference_amplitude: np.ndarray = None
+    reference_amplitude: np.ndarray | None = None
     #: the reference actually used: "neighbours" or "measured" (see ``build_closures``)
     amplitude_reference: str = "neighbours"
     #: per row of the VisibilitySet: the error of its arg V (phase sets, radians) or of its
     #: log|V| (amplitude sets); ``sigma`` is the root sum of squares over each closure's rows
-    row_sigma: np.ndarray = None
+    row_sigma: np.ndarray | None = None
     #: robust reduced chi2 of the amplitudes against their neighbours (``amplitude_smoothness``;
     #: NaN when not computed); above SMOOTHNESS_LIMIT the measured amplitudes are used
     smoothness: float = float("nan")

@@ -3,7 +3,7 @@
 Closure phases and log closure amplitudes are unchanged by station-based complex gains
 (Thompson, Moran & Swenson 2017, ch. 10), so a model fitted to them alone does not depend on the
 phase or amplitude calibration of the stations. Construction, errors and the choice of a
-non-redundant set: :mod:`uvfit.stats.closures.build`; the covariance: 
+non-redundant set: :mod:`uvfit.stats.closures.build`; the covariance:
 :mod:`uvfit.stats.closures.covariance` ("snapshot" by default for the non-redundant set,
 "diagonal" for the full set).
 

@@ -13,6 +13,7 @@ Geometry and visibilities are computed here, outside the reader, from their defi
   wording from memory): "the uvw coordinates for the baseline from ANTENNA2 to ANTENNA1", i.e. the
   projection of x(a) - x(b).
 """
+
 import os
 
 import numpy as np
@@ -21,8 +22,7 @@ C = 299792458.0
 ARCSEC = np.pi / 180.0 / 3600.0
 RA_DEG, DEC_DEG = 150.0, 20.0
 # the invented double: a bright primary at the phase centre, a fainter companion to the east
-TRUTH = {"a.flux": 1.0, "a.east": 0.0, "a.north": 0.0,
-         "b.flux": 0.3, "b.east": 0.6, "b.north": -0.25}
+TRUTH = {"a.flux": 1.0, "a.east": 0.0, "a.north": 0.0, "b.flux": 0.3, "b.east": 0.6, "b.north": -0.25}
 CORR = {"circular": [5, 8], "linear": [9, 12], "full_circular": [5, 6, 7, 8]}
 
 
@@ -30,6 +30,7 @@ def stations(n=10, seed=4):
     """ITRF positions (m) of ``n`` invented stations within 4 km of the site."""
     from astropy import units as u
     from astropy.coordinates import EarthLocation
+
     rng = np.random.default_rng(seed)
     lat, lon = np.radians(40.0), np.radians(10.0)
     centre = EarthLocation.from_geodetic(10.0 * u.deg, 40.0 * u.deg, 200.0 * u.m)
@@ -43,6 +44,7 @@ def stations(n=10, seed=4):
 def tms_projection(baseline_m, mjd, ra_deg, dec_deg):
     """(n, 3) u, v, w (m) of ITRF baselines (n, 3) at times (n,): TMS 2017 eq. 4.1 (from memory)."""
     from astropy.time import Time
+
     gst = Time(mjd, format="mjd", scale="utc").sidereal_time("apparent", "greenwich").radian
     H = gst - np.radians(ra_deg)
     d = np.radians(dec_deg)
@@ -62,8 +64,18 @@ def textbook_double(u_lambda, v_lambda, truth=TRUTH):
     return out
 
 
-def write_invented_ms(path, feeds="circular", corrected=True, sigma=0.05, seed=11, n_times=40,
-                      n_chan=4, flag_all=False, second_spw_feeds=None, field_names=("DBL",)):
+def write_invented_ms(
+    path,
+    feeds="circular",
+    corrected=True,
+    sigma=0.05,
+    seed=11,
+    n_times=40,
+    n_chan=4,
+    flag_all=False,
+    second_spw_feeds=None,
+    field_names=("DBL",),
+):
     """Write an invented Measurement Set; returns a dict of what was written.
 
     ``corrected``: the double goes into CORRECTED_DATA and DATA holds something else (the
@@ -77,7 +89,7 @@ def write_invented_ms(path, feeds="circular", corrected=True, sigma=0.05, seed=1
     xyz = stations()
     n_ant = len(xyz)
     a1, a2 = np.triu_indices(n_ant, 1)
-    times = 60700.0 + 0.35 + np.arange(n_times) * (3.0 / 24.0 / n_times)   # MJD, three hours
+    times = 60700.0 + 0.35 + np.arange(n_times) * (3.0 / 24.0 / n_times)  # MJD, three hours
     freqs = 30.0e9 + (np.arange(n_chan) - (n_chan - 1) / 2.0) * 50e6
     spw_setups = [feeds] + ([second_spw_feeds] if second_spw_feeds else [])
     corr_ncorr = len(CORR[feeds])
@@ -88,11 +100,11 @@ def write_invented_ms(path, feeds="circular", corrected=True, sigma=0.05, seed=1
             rows.append((np.full(T.size, f_id), np.full(T.size, s_id), T.ravel(), a1[B.ravel()], a2[B.ravel()]))
     field_id, dd_id, t, ant1, ant2 = (np.concatenate(x) for x in zip(*rows))
     n = t.size
-    uvw_true = tms_projection(xyz[ant2] - xyz[ant1], t, RA_DEG, DEC_DEG)      # x(b) - x(a), m
-    stored_uvw = -uvw_true                                                     # from ANTENNA2 to ANTENNA1
+    uvw_true = tms_projection(xyz[ant2] - xyz[ant1], t, RA_DEG, DEC_DEG)  # x(b) - x(a), m
+    stored_uvw = -uvw_true  # from ANTENNA2 to ANTENNA1
     lam_u = uvw_true[:, 0:1] * freqs[None, :] / C
     lam_v = uvw_true[:, 1:2] * freqs[None, :] / C
-    model = textbook_double(lam_u, lam_v)                                      # (n, n_chan)
+    model = textbook_double(lam_u, lam_v)  # (n, n_chan)
     if len(field_names) > 1:
         model = np.where((field_id > 0)[:, None], 0.1 * model, model)
     noise = sigma * (rng.standard_normal((n, n_chan, corr_ncorr)) + 1j * rng.standard_normal((n, n_chan, corr_ncorr)))
@@ -103,8 +115,7 @@ def write_invented_ms(path, feeds="circular", corrected=True, sigma=0.05, seed=1
 
     desc = [ct.makearrcoldesc("DATA", 0j, valuetype="complex", ndim=2, shape=[n_chan, corr_ncorr])]
     if corrected:
-        desc.append(ct.makearrcoldesc("CORRECTED_DATA", 0j, valuetype="complex", ndim=2,
-                                      shape=[n_chan, corr_ncorr]))
+        desc.append(ct.makearrcoldesc("CORRECTED_DATA", 0j, valuetype="complex", ndim=2, shape=[n_chan, corr_ncorr]))
     if os.path.exists(path):
         raise FileExistsError(path)
     ms = ct.default_ms(str(path), ct.maketabdesc(desc))
@@ -116,14 +127,14 @@ def write_invented_ms(path, feeds="circular", corrected=True, sigma=0.05, seed=1
     ms.putcol("ANTENNA2", ant2.astype(np.int32))
     ms.putcol("FIELD_ID", field_id.astype(np.int32))
     ms.putcol("DATA_DESC_ID", dd_id.astype(np.int32))
-    scan = 1 + (t > times[n_times // 2 - 1]).astype(np.int32)                  # two scans
+    scan = 1 + (t > times[n_times // 2 - 1]).astype(np.int32)  # two scans
     ms.putcol("SCAN_NUMBER", scan)
     ms.putcol("EXPOSURE", np.full(n, 270.0))
     ms.putcol("INTERVAL", np.full(n, 270.0))
-    ms.putcol("WEIGHT", np.full((n, corr_ncorr), 1.0 / sigma ** 2, np.float32))
+    ms.putcol("WEIGHT", np.full((n, corr_ncorr), 1.0 / sigma**2, np.float32))
     ms.putcol("SIGMA", np.full((n, corr_ncorr), sigma, np.float32))
     flags = np.zeros((n, n_chan, corr_ncorr), bool)
-    flags[:, -1, :] = True            # the last channel flagged everywhere
+    flags[:, -1, :] = True  # the last channel flagged everywhere
     if flag_all:
         flags[:] = True
     ms.putcol("FLAG", flags)
@@ -175,5 +186,14 @@ def write_invented_ms(path, feeds="circular", corrected=True, sigma=0.05, seed=1
     dd.putcol("SPECTRAL_WINDOW_ID", np.arange(len(spw_setups), dtype=np.int32))
     dd.putcol("POLARIZATION_ID", np.arange(len(spw_setups), dtype=np.int32))
     dd.close()
-    return {"n_rows": n, "n_chan": n_chan, "freqs": freqs, "xyz": xyz, "uvw_true": uvw_true,
-            "stored_uvw": stored_uvw, "model": model, "sigma": sigma, "names": [f"S{k:02d}" for k in range(n_ant)]}
+    return {
+        "n_rows": n,
+        "n_chan": n_chan,
+        "freqs": freqs,
+        "xyz": xyz,
+        "uvw_true": uvw_true,
+        "stored_uvw": stored_uvw,
+        "model": model,
+        "sigma": sigma,
+        "names": [f"S{k:02d}" for k in range(n_ant)],
+    }

@@ -10,6 +10,7 @@ Sources of the expected values, named beside each check:
 - invented Measurement Sets written here with python-casacore (tests/_ms_tools.py: textbook
   kernel, UVW as the Measurement Set definition states, Kemball & Wieringa 2000, Measurement Set definition v2.0).
 """
+
 import os
 import shutil
 import subprocess
@@ -36,8 +37,7 @@ VLA = DATA / "ms" / "day2_TDEM0003_10s_norx_1src_1spw.ms"
 
 
 def cli(*args):
-    out = subprocess.run([sys.executable, "-m", "uvfit", *map(str, args)], capture_output=True,
-                         text=True, cwd=ROOT)
+    out = subprocess.run([sys.executable, "-m", "uvfit", *map(str, args)], capture_output=True, text=True, cwd=ROOT)
     assert "Traceback" not in out.stderr, out.stderr
     return out
 
@@ -65,7 +65,7 @@ def test_3c279_rows_equal_the_uvfits_original():
         x, y = getattr(a, name), getattr(b, name)
         assert np.allclose(x, y, rtol=1e-12, atol=1e-6 * np.abs(x).max())
     assert np.array_equal(a.time, b.time) or np.max(np.abs(a.time - b.time)) * 86400 < 1e-3
-    assert np.allclose(a.vis, b.vis, rtol=1e-6, atol=0)              # float32 in both files
+    assert np.allclose(a.vis, b.vis, rtol=1e-6, atol=0)  # float32 in both files
     assert np.allclose(a.sigma, b.sigma, rtol=1e-6)
     assert np.array_equal(a.station1, b.station1) and np.array_equal(a.station2, b.station2)
     assert np.array_equal(a.flag, b.flag)
@@ -83,6 +83,7 @@ def test_stored_uvw_point_from_antenna2_to_antenna1(path):
     agreement is to ~10% on the VLA's short baselines (its own geometry model differs from this
     textbook one); the other sign would be off by 200%."""
     import casacore.tables as ct
+
     t = ct.table(str(path), ack=False)
     pos = ct.table(str(path / "ANTENNA"), ack=False).getcol("POSITION")
     ra, dec = ct.table(str(path / "FIELD"), ack=False).getcol("PHASE_DIR")[0, 0]
@@ -103,35 +104,42 @@ def test_vla_info_lists_antennas_field_channels_scan():
     out = cli("info", VLA, "--json", "-")
     assert out.returncode == 0, out.stderr
     import json
+
     s = json.loads(out.stdout)
     assert len(s["ms_antennas"]) == 28
     assert len(s["ms_fields"]) == 1 and s["ms_fields"][0]["name"] == "J1008+0730"
     assert len(s["ms_spws"]) == 1 and s["ms_spws"][0]["n_channels"] == 64
     assert len(s["channels"]) == 64
-    assert len(s["scans"]) == 1 and 70 < s["scans"][0]["duration_s"] < 90      # "about 80 s"
+    assert len(s["scans"]) == 1 and 70 < s["scans"][0]["duration_s"] < 90  # "about 80 s"
     assert s["stokes"] == "(RR+LL)/2"
     text = cli("info", VLA)
     assert "28 in the ANTENNA table" in text.stdout and "data column" in text.stdout
     assert "DATA (the default" in text.stderr
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "finding: the file's phases are not calibrated. Averaged over the scan and the band, each "
-    "baseline keeps its own steady phase (e.g. about -150 deg on one, +20 deg on another) and "
-    "closure phases scatter widely, so a complex-mode point fit does not land on the phase centre "
-    "(it finds a faint point about 1.7 arcsec away); the ABOUT.md's 'phases scatter around 0' does "
-    "not hold per baseline"))
+@pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "finding: the file's phases are not calibrated. Averaged over the scan and the band, each "
+        "baseline keeps its own steady phase (e.g. about -150 deg on one, +20 deg on another) and "
+        "closure phases scatter widely, so a complex-mode point fit does not land on the phase centre "
+        "(it finds a faint point about 1.7 arcsec away); the ABOUT.md's 'phases scatter around 0' does "
+        "not hold per baseline"
+    ),
+)
 def test_vla_point_fit_at_phase_centre():
     """A complex-mode point-source fit should place the calibrator at the phase centre within its
     errors (expectation from the data's description, ABOUT.md)."""
     from uvfit.data.select import average_channels, average_time
     from uvfit.infer.run import run_fit
     from uvfit.sky.model import SkyModel
+
     vs = uvfit.read(VLA).good()
     vs, _ = average_time(vs, 80.0)
     vs, _ = average_channels(vs, 64)
-    m = SkyModel.build([{"name": "cal", "shape": "point", "flux": 0.002, "east": 0.0, "north": 0.0}],
-                       angular_unit="arcsec")
+    m = SkyModel.build(
+        [{"name": "cal", "shape": "point", "flux": 0.002, "east": 0.0, "north": 0.0}], angular_unit="arcsec"
+    )
     out = run_fit(vs, m, rescale_errors=True, resolved_test=False, starts=3, seed=1)
     for k in ("cal.east", "cal.north"):
         p = out["parameters"][k]
@@ -145,27 +153,32 @@ def test_invented_double_fits_back_east_to_the_east(tmp_path, feeds):
     the Measurement Set definition states (Kemball & Wieringa 2000); within 3 errors, companion to the east."""
     from uvfit.infer.run import run_fit
     from uvfit.sky.model import SkyModel
+
     path = tmp_path / f"{feeds}.ms"
     write_invented_ms(path, feeds=feeds)
     vs = uvfit.read(path)
     assert vs.meta["ms_column"] == "CORRECTED_DATA" and "default" in vs.meta["ms_column_note"]
     assert vs.meta["stokes_i_from"] == {"circular": "(RR+LL)/2", "linear": "(XX+YY)/2"}[feeds]
-    start = SkyModel.build([{"name": "a", "shape": "point", "flux": 0.9, "east": 0.05, "north": 0.02},
-                            {"name": "b", "shape": "point", "flux": 0.2, "east": 0.5, "north": -0.2}],
-                           angular_unit="arcsec")
+    start = SkyModel.build(
+        [
+            {"name": "a", "shape": "point", "flux": 0.9, "east": 0.05, "north": 0.02},
+            {"name": "b", "shape": "point", "flux": 0.2, "east": 0.5, "north": -0.2},
+        ],
+        angular_unit="arcsec",
+    )
     out = run_fit(vs.good(), start, resolved_test=False)
     for key, true in TRUTH.items():
         p = out["parameters"][key]
         assert abs(p["value"] - true) < 3 * p["error"], (key, p, true)
     assert out["parameters"]["b.east"]["value"] > 0.5
-    assert 0.9 < out["statistics"]["reduced_chi2"] < 1.1       # sigma propagation of the hands
+    assert 0.9 < out["statistics"]["reduced_chi2"] < 1.1  # sigma propagation of the hands
 
 
 def test_rows_and_scans_of_the_invented_set(invented):
     path, info = invented
     vs = uvfit.read(path)
     assert vs.n == info["n_rows"] * info["n_chan"]
-    assert np.all(vs.flag[vs.channel == info["n_chan"] - 1])          # the flagged channel
+    assert np.all(vs.flag[vs.channel == info["n_chan"] - 1])  # the flagged channel
     assert not vs.flag[vs.channel < info["n_chan"] - 1].any()
     assert set(np.unique(vs.scan)) == {1, 2}
     # u in wavelengths: the projection of x2 - x1 (TMS eq. 4.1) times f / c
@@ -177,6 +190,7 @@ def test_rows_and_scans_of_the_invented_set(invented):
     assert not np.allclose(other.vis, vs.vis)
     # scans survive a subset and averaging (VisibilitySet.scan)
     from uvfit.data.select import average_time
+
     avg, _ = average_time(vs.good(), 600.0)
     assert set(np.unique(avg.scan)) == {1, 2}
     assert np.array_equal(vs.subset(vs.channel == 0).scan, vs.scan[vs.channel == 0])
@@ -195,13 +209,14 @@ def test_chunked_reading_gives_the_same_rows(invented):
     lay = msmod.ms_layout(path)
     mine = msmod.read_ms(path, rows=parts[1], layout=lay)
     lo, hi = parts[1]
-    assert np.array_equal(mine.vis, whole.vis[lo * info["n_chan"]:hi * info["n_chan"]])
+    assert np.array_equal(mine.vis, whole.vis[lo * info["n_chan"] : hi * info["n_chan"]])
 
 
 def test_write_model_column(invented, tmp_path):
     """MODEL_DATA gets the model at each row's (u, v) (checked against the textbook kernel of
     the written geometry); DATA and CORRECTED_DATA stay as they were."""
     import casacore.tables as ct
+
     src, info = invented
     path = tmp_path / "copy.ms"
     shutil.copytree(src, path)
@@ -209,16 +224,29 @@ def test_write_model_column(invented, tmp_path):
     data0, corr0 = before.getcol("DATA"), before.getcol("CORRECTED_DATA")
     before.close()
     from uvfit.sky.model import SkyModel
-    model = SkyModel.build([{"name": "a", "shape": "point", "flux": TRUTH["a.flux"], "east": 0.0, "north": 0.0},
-                            {"name": "b", "shape": "point", "flux": TRUTH["b.flux"], "east": TRUTH["b.east"],
-                             "north": TRUTH["b.north"]}], angular_unit="arcsec")
+
+    model = SkyModel.build(
+        [
+            {"name": "a", "shape": "point", "flux": TRUTH["a.flux"], "east": 0.0, "north": 0.0},
+            {
+                "name": "b",
+                "shape": "point",
+                "flux": TRUTH["b.flux"],
+                "east": TRUTH["b.east"],
+                "north": TRUTH["b.north"],
+            },
+        ],
+        angular_unit="arcsec",
+    )
     done = msmod.write_model_column(path, model, chunk_rows=500)
     assert done["created"] and done["rows_written"] == info["n_rows"]
     after = ct.table(str(path), ack=False)
     assert np.array_equal(after.getcol("DATA"), data0) and np.array_equal(after.getcol("CORRECTED_DATA"), corr0)
     written = after.getcol("MODEL_DATA")
     after.close()
-    assert np.allclose(written[:, :, 0], info["model"], atol=1e-6) and np.allclose(written[:, :, 1], info["model"], atol=1e-6)
+    assert np.allclose(written[:, :, 0], info["model"], atol=1e-6) and np.allclose(
+        written[:, :, 1], info["model"], atol=1e-6
+    )
     back = uvfit.read(path, column="MODEL_DATA")
     u_l = info["uvw_true"][:, 0:1] * info["freqs"][None, :] / 299792458.0
     v_l = info["uvw_true"][:, 1:2] * info["freqs"][None, :] / 299792458.0
@@ -230,14 +258,26 @@ def test_fit_write_model_column_cli_and_read_only(invented, tmp_path):
     path = tmp_path / "cli.ms"
     shutil.copytree(src, path)
     model = tmp_path / "m.toml"
-    model.write_text('angular_unit = "arcsec"\n[[component]]\nname = "a"\nshape = "point"\nflux = 1.0\n'
-                     'east = 0.0\nnorth = 0.0\n[[component]]\nname = "b"\nshape = "point"\nflux = 0.25\n'
-                     'east = 0.55\nnorth = -0.2\n')
-    out = cli("fit", path, model, "--write-model-column", "--no-resolved-test", "--spw", "BAND0",
-              "--json", tmp_path / "fit.json")
+    model.write_text(
+        'angular_unit = "arcsec"\n[[component]]\nname = "a"\nshape = "point"\nflux = 1.0\n'
+        'east = 0.0\nnorth = 0.0\n[[component]]\nname = "b"\nshape = "point"\nflux = 0.25\n'
+        "east = 0.55\nnorth = -0.2\n"
+    )
+    out = cli(
+        "fit",
+        path,
+        model,
+        "--write-model-column",
+        "--no-resolved-test",
+        "--spw",
+        "BAND0",
+        "--json",
+        tmp_path / "fit.json",
+    )
     assert out.returncode == 0, out.stderr
     assert "MODEL_DATA" in out.stderr and "column created" in out.stderr
     import json
+
     read = json.loads((tmp_path / "fit.json").read_text())["read_options"]
     assert read == {"spw": [0], "column": "CORRECTED_DATA", "field": 0}
     ro = tmp_path / "ro.ms"

@@ -1,11 +1,10 @@
 """Issue 15: the catalogue of distinct least-squares solutions from several starts."""
-import numpy as np
+
+from helpers.fit_sim import simulate
 
 from uvfit.infer.run import run_fit
 from uvfit.infer.solutions import delta_chi2_limit
 from uvfit.sky.model import SkyModel
-
-from helpers.fit_sim import simulate
 
 
 def _pair(east2=0.09, north2=0.12, fixed_first=False):
@@ -13,8 +12,9 @@ def _pair(east2=0.09, north2=0.12, fixed_first=False):
     if fixed_first:
         first["east"] = {"value": 0.0, "fixed": True}
         first["north"] = {"value": 0.0, "fixed": True}
-    return SkyModel.build([first, {"name": "b", "shape": "point", "flux": 0.9,
-                                   "east": east2, "north": north2}], angular_unit="mas")
+    return SkyModel.build(
+        [first, {"name": "b", "shape": "point", "flux": 0.9, "east": east2, "north": north2}], angular_unit="mas"
+    )
 
 
 def _data():

@@ -1,4 +1,5 @@
 """Coverage of the credible intervals over many seeded simulations (short chains, tiny data)."""
+
 import math
 import multiprocessing
 
@@ -20,8 +21,7 @@ def _one(k):
     post = sample(vs, two_points(**TRUE), n_walkers=12, max_steps=400, seed=k)
     sep = post.derived["a-b.separation"]
     ratio = post.derived["a-b.flux_ratio"]
-    return (sep["lower"] <= TRUE_SEPARATION <= sep["upper"],
-            ratio["lower"] <= TRUE_RATIO <= ratio["upper"])
+    return (sep["lower"] <= TRUE_SEPARATION <= sep["upper"], ratio["lower"] <= TRUE_RATIO <= ratio["upper"])
 
 
 @pytest.mark.slow

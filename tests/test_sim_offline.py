@@ -1,5 +1,6 @@
 """The simulation needs Earth-orientation data but never downloads it, and importing it changes
 no astropy setting for the rest of the process."""
+
 import json
 import os
 import subprocess
@@ -51,8 +52,13 @@ print(json.dumps({"before": before, "after_import": after_import, "after_tracks"
 def test_importing_sim_leaves_iers_settings_and_tracks_compute_offline():
     # Outside reference: astropy's own documented IERS settings (astropy.utils.iers.conf) and
     # its downloader astropy.utils.iers.iers.download_file, which a refresh would call.
-    proc = subprocess.run([sys.executable, "-c", SCRIPT], cwd=ROOT, capture_output=True,
-                          text=True, env={**os.environ, "PYTHONPATH": str(ROOT)})
+    proc = subprocess.run(
+        [sys.executable, "-c", SCRIPT],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        env={**os.environ, "PYTHONPATH": str(ROOT)},
+    )
     assert proc.returncode == 0, proc.stderr
     res = json.loads(proc.stdout.strip().splitlines()[-1])
     assert res["after_import"] == res["before"]

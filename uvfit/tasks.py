@@ -11,6 +11,7 @@ Tasks: :func:`fit`, :func:`sample`, :func:`compare`, :func:`closures`, :func:`in
 :func:`simulate`, :func:`forecast`; helpers :func:`load_data` (read plus selection),
 :func:`load_model_or_path`, :func:`observation` (an Observation from text such as ``"86GHz"``).
 """
+
 from __future__ import annotations
 
 import os
@@ -37,8 +38,7 @@ def _stem(path: Any) -> str:
     return os.path.splitext(os.path.basename(os.fspath(path)))[0]
 
 
-def load_data(data: Data, selection: Optional[dict] = None,
-              good: bool = True) -> tuple[VisibilitySet, list[str]]:
+def load_data(data: Data, selection: Optional[dict] = None, good: bool = True) -> tuple[VisibilitySet, list[str]]:
     """(VisibilitySet, notes): ``data`` read if it is a path, then selected (see
     :func:`uvfit.data.select.read_selected`); with ``good`` only the unflagged rows."""
     return read_selected(data, selection, good=good)
@@ -50,9 +50,9 @@ def load_model_or_path(model: Model) -> SkyModel:
         return model
     if _is_path(model):
         from .sky.modelfile import load_model
+
         return load_model(model)
-    raise UvfitError(f"model must be a SkyModel or the path of a model file, not "
-                     f"{type(model).__name__}")
+    raise UvfitError(f"model must be a SkyModel or the path of a model file, not {type(model).__name__}")
 
 
 def _check_at_least(name: str, value: Optional[int], least: int) -> None:
@@ -104,14 +104,26 @@ class FitReport:
     def text(self) -> str:
         """The table ``uvfit fit`` prints."""
         from .show.text import fit_text
+
         return fit_text(self.record)
 
 
-def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0,
-        rescale_errors: bool = False, starts: int = 1, seed: int = 0, global_search: bool = False,
-        redshift: float = 0.0, max_evaluations: Optional[int] = None, resolved_test: bool = True,
-        selection: Optional[dict] = None, progress: Progress = None,
-        data_path: Optional[str] = None) -> FitReport:
+def fit(
+    data: Data,
+    model: Model,
+    mode: str = "complex",
+    systematic: float = 0.0,
+    rescale_errors: bool = False,
+    starts: int = 1,
+    seed: int = 0,
+    global_search: bool = False,
+    redshift: float = 0.0,
+    max_evaluations: Optional[int] = None,
+    resolved_test: bool = True,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+) -> FitReport:
     """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
 
     Parameters
@@ -174,17 +186,31 @@ def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0
     vset, notes = load_data(data, selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    out, result = run_fit(vset, sky, mode=mode, systematic=systematic,
-                          rescale_errors=rescale_errors, starts=starts, seed=seed,
-                          global_search=global_search, redshift=redshift, data_path=data_path,
-                          selection=selection if selection is not None else {},
-                          resolved_test=resolved_test, max_evaluations=max_evaluations,
-                          progress=progress, return_result=True)
+    out, result = run_fit(
+        vset,
+        sky,
+        mode=mode,
+        systematic=systematic,
+        rescale_errors=rescale_errors,
+        starts=starts,
+        seed=seed,
+        global_search=global_search,
+        redshift=redshift,
+        data_path=data_path,
+        selection=selection if selection is not None else {},
+        resolved_test=resolved_test,
+        max_evaluations=max_evaluations,
+        progress=progress,
+        return_result=True,
+    )
     if _is_path(model):
         out["model_file"] = str(model)
-    if vset.meta.get("format") == "ms":      # what was read from a Measurement Set (only then)
-        out["read_options"] = {"column": vset.meta["ms_column"], "field": vset.meta["ms_field"],
-                               "spw": list(vset.meta["ms_spws_read"])}
+    if vset.meta.get("format") == "ms":  # what was read from a Measurement Set (only then)
+        out["read_options"] = {
+            "column": vset.meta["ms_column"],
+            "field": vset.meta["ms_field"],
+            "spw": list(vset.meta["ms_spws_read"]),
+        }
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -214,11 +240,13 @@ class SampleReport:
     def text(self) -> str:
         """The table ``uvfit sample`` prints."""
         from .show.text import sample_text
+
         return sample_text(self.posterior.table())
 
 
-def check_sample_options(procs: int = 1, walkers: Optional[int] = None, max_steps: int = 5000,
-                         order_by: str = "flux") -> None:
+def check_sample_options(
+    procs: int = 1, walkers: Optional[int] = None, max_steps: int = 5000, order_by: str = "flux"
+) -> None:
     """UvfitError naming the first option of :func:`sample` out of range (checked before any
     work)."""
     _check_at_least("procs", procs, 1)
@@ -228,12 +256,25 @@ def check_sample_options(procs: int = 1, walkers: Optional[int] = None, max_step
         raise UvfitError(f"unknown order_by '{order_by}'", "use 'flux' or 'distance'")
 
 
-def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0,
-           walkers: Optional[int] = None, max_steps: int = 5000, seed: int = 0, procs: int = 1,
-           chain: Optional[str] = None, resume: bool = False, force: bool = False,
-           order_by: str = "flux", starts: int = 1, redshift: float = 0.0,
-           selection: Optional[dict] = None, progress: Progress = None,
-           data_path: Optional[str] = None) -> SampleReport:
+def sample(
+    data: Data,
+    model: Model,
+    mode: str = "complex",
+    systematic: float = 0.0,
+    walkers: Optional[int] = None,
+    max_steps: int = 5000,
+    seed: int = 0,
+    procs: int = 1,
+    chain: Optional[str] = None,
+    resume: bool = False,
+    force: bool = False,
+    order_by: str = "flux",
+    starts: int = 1,
+    redshift: float = 0.0,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+) -> SampleReport:
     """Posterior of the model's free parameters by ensemble MCMC (emcee), from the best fit.
 
     Parameters
@@ -290,10 +331,24 @@ def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 
     sky = load_model_or_path(model)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    post = run_sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
-                      max_steps=max_steps, seed=seed, procs=procs, chain_path=chain,
-                      resume=resume, force=force, order_by=order_by, progress=progress,
-                      starts=starts, redshift=redshift, data_path=data_path)
+    post = run_sample(
+        vset,
+        sky,
+        mode=mode,
+        systematic=systematic,
+        n_walkers=walkers,
+        max_steps=max_steps,
+        seed=seed,
+        procs=procs,
+        chain_path=chain,
+        resume=resume,
+        force=force,
+        order_by=order_by,
+        progress=progress,
+        starts=starts,
+        redshift=redshift,
+        data_path=data_path,
+    )
     out = post.to_dict()
     out["selection"] = _given(selection)
     return SampleReport(record=out, posterior=post, notes=notes)
@@ -324,13 +379,23 @@ class CompareReport:
     def text(self) -> str:
         """The table ``uvfit compare`` prints."""
         from .show.text import compare_text
+
         return compare_text(self.record)
 
 
-def compare(data: Data, models: Sequence[Model], mode: str = "complex", systematic: float = 0.0,
-            starts: int = 1, bootstrap: int = 0, seed: int = 0,
-            names: Optional[Sequence[str]] = None, selection: Optional[dict] = None,
-            progress: Progress = None, data_path: Optional[str] = None) -> CompareReport:
+def compare(
+    data: Data,
+    models: Sequence[Model],
+    mode: str = "complex",
+    systematic: float = 0.0,
+    starts: int = 1,
+    bootstrap: int = 0,
+    seed: int = 0,
+    names: Optional[Sequence[str]] = None,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
     Parameters
@@ -375,16 +440,24 @@ def compare(data: Data, models: Sequence[Model], mode: str = "complex", systemat
 
     models = list(models)
     if len(models) < 2:
-        raise UvfitError(f"compare needs at least two models (got {len(models)})",
-                         "pass two or more models")
+        raise UvfitError(f"compare needs at least two models (got {len(models)})", "pass two or more models")
     if names is None and all(_is_path(m) for m in models):
         names = [_stem(m) for m in models]
     skies = [load_model_or_path(m) for m in models]
     vset, notes = load_data(data, selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    out = run_compare(vset, skies, mode=mode, systematic=systematic, bootstrap=bootstrap,
-                      seed=seed, progress=progress, starts=starts, names=names)
+    out = run_compare(
+        vset,
+        skies,
+        mode=mode,
+        systematic=systematic,
+        bootstrap=bootstrap,
+        seed=seed,
+        progress=progress,
+        starts=starts,
+        names=names,
+    )
     out["data"] = None if data_path is None else str(data_path)
     out["selection"] = selection if selection is not None else {}
     out["model_files"] = [str(m) if _is_path(m) else None for m in models]
@@ -413,18 +486,27 @@ class ClosureReport:
     def table(self):
         """Every closure quantity as an astropy Table (what ``--table`` writes)."""
         from .stats.closures import closure_table
+
         return closure_table(self.result)
 
     def text(self) -> str:
         """The table ``uvfit closures`` prints."""
         from .show.text import closures_text
+
         return closures_text(self.result)
 
 
-def closures(data: Data, model: Union[Model, dict, None] = None,
-             systematic: Optional[float] = None, snr_cut: float = 3.0, full: bool = False,
-             covariance: Optional[str] = None, selection: Optional[dict] = None,
-             data_path: Optional[str] = None, model_path: Optional[str] = None) -> ClosureReport:
+def closures(
+    data: Data,
+    model: Union[Model, dict, None] = None,
+    systematic: Optional[float] = None,
+    snr_cut: float = 3.0,
+    full: bool = False,
+    covariance: Optional[str] = None,
+    selection: Optional[dict] = None,
+    data_path: Optional[str] = None,
+    model_path: Optional[str] = None,
+) -> ClosureReport:
     """Closure phases and log closure amplitudes of the data; with a model, how well it fits them.
 
     Parameters
@@ -473,8 +555,7 @@ def closures(data: Data, model: Union[Model, dict, None] = None,
     sky, info = None, {}
     if isinstance(model, dict):
         sky = model_from_fit(model)
-        info = {"model_from": "fit result", "fit_mode": model.get("mode"),
-                "fit_systematic": model.get("systematic")}
+        info = {"model_from": "fit result", "fit_mode": model.get("mode"), "fit_systematic": model.get("systematic")}
     elif isinstance(model, SkyModel):
         sky, info = model, {"model_from": "model"}
     elif model is not None:
@@ -483,14 +564,18 @@ def closures(data: Data, model: Union[Model, dict, None] = None,
             model_path = os.fspath(model)
     if systematic is None:
         systematic = float(info.get("fit_systematic") or 0.0)
-    res = check_closures(vset, sky, systematic=systematic, snr_cut=snr_cut, full=full,
-                         covariance=covariance)
+    res = check_closures(vset, sky, systematic=systematic, snr_cut=snr_cut, full=full, covariance=covariance)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
     summary = json_summary(res)
-    summary.update({"data": None if data_path is None else str(data_path), "model": model_path,
-                    **info, "selection": {k: v for k, v in (selection or {}).items()
-                                          if v not in (None, (), "")}})
+    summary.update(
+        {
+            "data": None if data_path is None else str(data_path),
+            "model": model_path,
+            **info,
+            "selection": {k: v for k, v in (selection or {}).items() if v not in (None, (), "")},
+        }
+    )
     return ClosureReport(record=summary, result=res, notes=notes)
 
 
@@ -512,6 +597,7 @@ class InfoReport:
     def text(self) -> str:
         """The table ``uvfit info`` prints."""
         from .show.text import info_text
+
         return info_text(self.record)
 
 
@@ -520,18 +606,24 @@ def summarise(vset: VisibilitySet) -> dict:
     s = vset.summary()
     s["stokes"] = vset.meta.get("stokes_i_from", "I")
     s["file_format"] = vset.meta.get("format")
-    for key in ("note_single_hand", "note_weights", "note_stations", "selection_notes", "orientation",
-                "n_autocorrelation_rows_flagged"):
+    for key in (
+        "note_single_hand",
+        "note_weights",
+        "note_stations",
+        "selection_notes",
+        "orientation",
+        "n_autocorrelation_rows_flagged",
+    ):
         if key in vset.meta:
             s[key] = vset.meta[key]
     if vset.meta.get("format") == "ms":
         from .data.ms import add_ms_summary
+
         add_ms_summary(vset, s)
     return s
 
 
-def info(data: Data, selection: Optional[dict] = None,
-         data_path: Optional[str] = None) -> InfoReport:
+def info(data: Data, selection: Optional[dict] = None, data_path: Optional[str] = None) -> InfoReport:
     """What a visibility file holds: source, frequencies, stations, times, uv coverage, resolution.
 
     Parameters
@@ -571,9 +663,18 @@ def info(data: Data, selection: Optional[dict] = None,
 # --------------------------------------------------------------------------- simulate, forecast
 
 
-def observation(ra: Union[str, float], dec: Union[str, float], start: Any, duration: Any,
-                frequency: Any, integration: Any = "30s", bandwidth: Any = "1GHz",
-                channels: int = 1, scan_length: Any = "5min", source: str = "SIM"):
+def observation(
+    ra: Union[str, float],
+    dec: Union[str, float],
+    start: Any,
+    duration: Any,
+    frequency: Any,
+    integration: Any = "30s",
+    bandwidth: Any = "1GHz",
+    channels: int = 1,
+    scan_length: Any = "5min",
+    source: str = "SIM",
+):
     """An :class:`uvfit.sim.observe.Observation` from values as users type them.
 
     Angles as astropy forms (``"12h30m49.4s"``, ``"+12d23m28s"``; a bare number is degrees),
@@ -594,20 +695,24 @@ def observation(ra: Union[str, float], dec: Union[str, float], start: Any, durat
     if not -90 <= dec_deg <= 90:
         raise UvfitError(f"the declination {dec} is outside -90..+90 degrees")
     obs = Observation(
-        ra_deg=ra_deg % 360.0, dec_deg=dec_deg,
+        ra_deg=ra_deg % 360.0,
+        dec_deg=dec_deg,
         start=start if hasattr(start, "mjd") else parse_time(start),
         duration_s=parse_duration(str(duration), "duration"),
         integration_s=parse_duration(str(integration), "integration time"),
         frequency_hz=parse_frequency(str(frequency), "frequency"),
         bandwidth_hz=parse_frequency(str(bandwidth), "bandwidth"),
-        channels=channels, scan_length_s=parse_duration(str(scan_length), "scan length"),
-        source=source)
+        channels=channels,
+        scan_length_s=parse_duration(str(scan_length), "scan length"),
+        source=source,
+    )
     obs.check()
     return obs
 
 
 def _array(array: Any):
     from .sim.array import Array, load_array
+
     return array if isinstance(array, Array) else load_array(array)
 
 
@@ -631,12 +736,22 @@ class SimulationReport:
     def text(self) -> str:
         """The summary ``uvfit simulate`` prints."""
         from .show.text import simulation_text
+
         return simulation_text(self.record, self.observation)
 
 
-def simulate(array: Any, model: Model, observation: Any, seed: int = 0, noise: bool = True,
-             gain_error: float = 0.0, phase_error: float = 0.0, systematic: float = 0.0,
-             output: Optional[str] = None, model_path: Optional[str] = None) -> SimulationReport:
+def simulate(
+    array: Any,
+    model: Model,
+    observation: Any,
+    seed: int = 0,
+    noise: bool = True,
+    gain_error: float = 0.0,
+    phase_error: float = 0.0,
+    systematic: float = 0.0,
+    output: Optional[str] = None,
+    model_path: Optional[str] = None,
+) -> SimulationReport:
     """A sky model observed by an array: Earth-rotation (u, v), thermal noise, gain errors.
 
     Parameters
@@ -721,6 +836,7 @@ class ForecastReport:
     def text(self) -> str:
         """The summary ``uvfit forecast`` prints."""
         from .show.text import forecast_text
+
         return forecast_text(self.record)
 
 
@@ -729,11 +845,22 @@ def check_forecast_options(trials: int = 20) -> None:
     _check_at_least("trials", int(trials), 1)
 
 
-def forecast(array: Any, true_model: Model, alternatives: Iterable[Model], observation: Any,
-             trials: int = 20, mode: str = "complex", starts: int = 1, seed: int = 0,
-             gain_error: float = 0.0, phase_error: float = 0.0, systematic: float = 0.0,
-             true_name: Optional[str] = None, alt_names: Optional[Sequence[str]] = None,
-             progress: Progress = None) -> ForecastReport:
+def forecast(
+    array: Any,
+    true_model: Model,
+    alternatives: Iterable[Model],
+    observation: Any,
+    trials: int = 20,
+    mode: str = "complex",
+    starts: int = 1,
+    seed: int = 0,
+    gain_error: float = 0.0,
+    phase_error: float = 0.0,
+    systematic: float = 0.0,
+    true_name: Optional[str] = None,
+    alt_names: Optional[Sequence[str]] = None,
+    progress: Progress = None,
+) -> ForecastReport:
     """Repeated simulations and fits: can the array tell the true model from the alternatives?
 
     Parameters
@@ -795,12 +922,40 @@ def forecast(array: Any, true_model: Model, alternatives: Iterable[Model], obser
         true_name = _stem(true_model) if _is_path(true_model) else "true"
     if alt_names is None and alternatives and all(_is_path(m) for m in alternatives):
         alt_names = [_stem(m) for m in alternatives]
-    out = run_forecast(arr, true_sky, alts, observation, trials, mode=mode, seed=seed,
-                       starts=starts, true_name=true_name, alt_names=alt_names,
-                       progress=progress, **corruption)
+    out = run_forecast(
+        arr,
+        true_sky,
+        alts,
+        observation,
+        trials,
+        mode=mode,
+        seed=seed,
+        starts=starts,
+        true_name=true_name,
+        alt_names=alt_names,
+        progress=progress,
+        **corruption,
+    )
     return ForecastReport(record=out)
 
 
-__all__ = ["fit", "sample", "compare", "closures", "info", "simulate", "forecast", "observation",
-           "load_data", "load_model_or_path", "summarise", "FitReport", "SampleReport",
-           "CompareReport", "ClosureReport", "InfoReport", "SimulationReport", "ForecastReport"]
+__all__ = [
+    "fit",
+    "sample",
+    "compare",
+    "closures",
+    "info",
+    "simulate",
+    "forecast",
+    "observation",
+    "load_data",
+    "load_model_or_path",
+    "summarise",
+    "FitReport",
+    "SampleReport",
+    "CompareReport",
+    "ClosureReport",
+    "InfoReport",
+    "SimulationReport",
+    "ForecastReport",
+]

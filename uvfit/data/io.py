@@ -9,16 +9,21 @@ content or by the ``.ms`` suffix, and read by :mod:`uvfit.data.ms` (python-casac
 extra ``ms``); uvfit does not write Measurement Sets (only their MODEL_DATA column, see
 :func:`uvfit.data.ms.write_model_column`).
 """
+
 import os
 
 from ..errors import DataError
 
 _SUFFIXES = {
-    ".uvfits": "uvfits", ".uvf": "uvfits", ".fits": "uvfits", ".fit": "uvfits", ".fts": "uvfits",
-    ".ecsv": "ecsv", ".ms": "ms",
+    ".uvfits": "uvfits",
+    ".uvf": "uvfits",
+    ".fits": "uvfits",
+    ".fit": "uvfits",
+    ".fts": "uvfits",
+    ".ecsv": "ecsv",
+    ".ms": "ms",
 }
-_NAMES = {"uvfits": "UVFITS (FITS random groups)", "ecsv": "ECSV visibility table",
-          "ms": "Measurement Set"}
+_NAMES = {"uvfits": "UVFITS (FITS random groups)", "ecsv": "ECSV visibility table", "ms": "Measurement Set"}
 
 
 def sniff(path):
@@ -36,12 +41,14 @@ def _readers():
     from .ms import read_ms
     from .table import read_table
     from .uvfits import read_uvfits
+
     return {"uvfits": read_uvfits, "ecsv": read_table, "ms": read_ms}
 
 
 def _writers():
     from .table import write_table
     from .uvfits import write_uvfits
+
     return {"uvfits": write_uvfits, "ecsv": write_table}
 
 
@@ -59,22 +66,30 @@ def read(path, format=None, **options):
         raise DataError(f"{path}: no such file", "check the path")
     if format is not None and format not in _NAMES:
         raise DataError(f"unknown format '{format}'", "use 'uvfits', 'ecsv' or 'ms'")
-    named_ms = format == "ms" or (format is None and _SUFFIXES.get(
-        os.path.splitext(path.rstrip("/" + os.sep))[1].lower()) == "ms")
+    named_ms = format == "ms" or (
+        format is None and _SUFFIXES.get(os.path.splitext(path.rstrip("/" + os.sep))[1].lower()) == "ms"
+    )
     if os.path.isdir(path):
         from .ms import is_ms, read_ms
+
         if is_ms(path):
             if format not in (None, "ms"):
                 raise DataError(f"{path}: is a Measurement Set (a table folder), not {_NAMES[format]}")
             return read_ms(path, **options)
         if named_ms:
-            raise DataError(f"{path}: is named as a Measurement Set but is not a casacore table "
-                            "(no table.dat inside)", "give the Measurement Set's own folder")
-        raise DataError(f"{path}: is a folder, not a visibility file or a Measurement Set "
-                        "(no table.dat inside)", "give a .uvfits or .ecsv file, or a Measurement Set")
+            raise DataError(
+                f"{path}: is named as a Measurement Set but is not a casacore table (no table.dat inside)",
+                "give the Measurement Set's own folder",
+            )
+        raise DataError(
+            f"{path}: is a folder, not a visibility file or a Measurement Set (no table.dat inside)",
+            "give a .uvfits or .ecsv file, or a Measurement Set",
+        )
     if named_ms:
-        raise DataError(f"{path}: is a file, but a Measurement Set is a folder (a casacore table)",
-                        "give the Measurement Set's folder")
+        raise DataError(
+            f"{path}: is a file, but a Measurement Set is a folder (a casacore table)",
+            "give the Measurement Set's folder",
+        )
     if not os.access(path, os.R_OK):
         raise DataError(f"{path}: cannot be read (permission denied)", "check the file's permissions")
     try:
@@ -84,16 +99,22 @@ def read(path, format=None, **options):
     expected = format or _SUFFIXES.get(os.path.splitext(path)[1].lower())
     if expected is None:
         if content is None:
-            raise DataError(f"{path}: unknown file type (neither FITS nor ECSV by content or suffix)",
-                            "give a .uvfits or .ecsv visibility file")
+            raise DataError(
+                f"{path}: unknown file type (neither FITS nor ECSV by content or suffix)",
+                "give a .uvfits or .ecsv visibility file",
+            )
         expected = content
     if content != expected:
         what = {"uvfits": "a FITS file", "ecsv": "an ECSV table"}.get(content, "neither FITS nor ECSV")
         if expected == "uvfits":
-            raise DataError(f"{path}: is not a FITS file (by content it is {what})",
-                            "give a UVFITS visibility file, or an .ecsv visibility table")
-        raise DataError(f"{path}: is named as an {_NAMES[expected]} but by content it is {what}",
-                        "rename the file to match its content")
+            raise DataError(
+                f"{path}: is not a FITS file (by content it is {what})",
+                "give a UVFITS visibility file, or an .ecsv visibility table",
+            )
+        raise DataError(
+            f"{path}: is named as an {_NAMES[expected]} but by content it is {what}",
+            "rename the file to match its content",
+        )
     return _readers()[expected](path, **options)
 
 
@@ -102,9 +123,10 @@ def write(vset, path, force=False, format=None, **options):
     path = os.fspath(path)
     kind = format or _SUFFIXES.get(os.path.splitext(path)[1].lower())
     if kind == "ms":
-        raise DataError(f"{path}: uvfit does not write Measurement Sets",
-                        "write .uvfits or .ecsv (fit --write-model-column fills a set's MODEL_DATA)")
+        raise DataError(
+            f"{path}: uvfit does not write Measurement Sets",
+            "write .uvfits or .ecsv (fit --write-model-column fills a set's MODEL_DATA)",
+        )
     if kind not in _NAMES:
-        raise DataError(f"{path}: cannot tell which format to write from the name",
-                        "end the name in .uvfits or .ecsv")
+        raise DataError(f"{path}: cannot tell which format to write from the name", "end the name in .uvfits or .ecsv")
     return _writers()[kind](vset, path, force=force, **options)

@@ -31,6 +31,7 @@ with ``rows=(start, stop)`` reads one range of main-table rows (python-casacore'
 ``getcol(name, startrow, nrow)``), :func:`iter_ms` yields one VisibilitySet per chunk of rows and
 :func:`row_ranges` splits a table for workers, each of which reads its own rows.
 """
+
 import os
 
 import numpy as np
@@ -39,8 +40,8 @@ from ..errors import DataError, UvfitError
 from .uvfits import MS_ORIENTATION_NOTE, _ms_to_sky_convention, _stokes_i
 from .visset import StationTable, VisibilitySet
 
-C_LIGHT = 299792458.0            # m/s (exact, SI)
-SECONDS_PER_DAY = 86400.0        # TIME is MJD in seconds (MS definition v2.0; common practice)
+C_LIGHT = 299792458.0  # m/s (exact, SI)
+SECONDS_PER_DAY = 86400.0  # TIME is MJD in seconds (MS definition v2.0; common practice)
 SUBTABLES = ("ANTENNA", "FIELD", "SPECTRAL_WINDOW", "POLARIZATION", "DATA_DESCRIPTION")
 DATA_COLUMNS = ("CORRECTED_DATA", "DATA", "MODEL_DATA")
 MODEL_COLUMN = "MODEL_DATA"
@@ -50,10 +51,9 @@ EXTRA_HINT = "install it with: pip install 'uvfit[ms]' (python-casacore)"
 # CORR_TYPE codes of the Measurement Set (the Stokes enumeration of the definition, from memory):
 # I Q U V = 1..4, RR RL LR LL = 5..8, XX XY YX YY = 9..12; mapped onto the FITS codes that
 # uvfit.data.uvfits._stokes_i understands (I = 1, RR LL RL LR = -1..-4, XX YY XY YX = -5..-8).
-CORR_NAMES = {1: "I", 2: "Q", 3: "U", 4: "V", 5: "RR", 6: "RL", 7: "LR", 8: "LL",
-              9: "XX", 10: "XY", 11: "YX", 12: "YY"}
+CORR_NAMES = {1: "I", 2: "Q", 3: "U", 4: "V", 5: "RR", 6: "RL", 7: "LR", 8: "LL", 9: "XX", 10: "XY", 11: "YX", 12: "YY"}
 _CORR_TO_FITS = {1: 1, 2: 2, 3: 3, 4: 4, 5: -1, 6: -3, 7: -4, 8: -2, 9: -5, 10: -7, 11: -8, 12: -6}
-_TOTAL_INTENSITY = (1, 5, 8, 9, 12)      # correlations that carry I for an unpolarised model
+_TOTAL_INTENSITY = (1, 5, 8, 9, 12)  # correlations that carry I for an unpolarised model
 
 
 # --------------------------------------------------------------------------- helpers
@@ -62,8 +62,9 @@ def casacore_tables():
     try:
         import casacore.tables as tables
     except ImportError:
-        raise UvfitError("reading or writing a Measurement Set needs python-casacore, which is not "
-                         "installed", EXTRA_HINT) from None
+        raise UvfitError(
+            "reading or writing a Measurement Set needs python-casacore, which is not installed", EXTRA_HINT
+        ) from None
     return tables
 
 
@@ -87,8 +88,11 @@ def _open(path, readonly=True):
     try:
         return tables.table(os.fspath(path), readonly=readonly, ack=False)
     except Exception as exc:
-        _fail(path, f"cannot be opened as a casacore table ({_one_line(exc)})",
-              "check that the Measurement Set is complete")
+        _fail(
+            path,
+            f"cannot be opened as a casacore table ({_one_line(exc)})",
+            "check that the Measurement Set is complete",
+        )
 
 
 def _strings(values):
@@ -116,8 +120,11 @@ def _match(choices, items, what, path, option):
         if not hit and c.lstrip("-").isdigit():
             hit = [it["id"] for it in items if it["id"] == int(c)]
         if not hit:
-            _fail(path, f"has no {what} '{c}'; it holds {listing}",
-                  f"choose with {option} NAME or ID (one of those listed)")
+            _fail(
+                path,
+                f"has no {what} '{c}'; it holds {listing}",
+                f"choose with {option} NAME or ID (one of those listed)",
+            )
         out.extend(h for h in hit if h not in out)
     return out
 
@@ -138,8 +145,11 @@ class MsLayout:
         self.path = path = os.fspath(path)
         for sub in SUBTABLES:
             if not os.path.isfile(os.path.join(path, sub, "table.dat")):
-                _fail(path, f"has no {sub} sub-table (the folder {sub}/ with a table.dat is missing)",
-                      "the Measurement Set is incomplete; copy it again with all its sub-tables")
+                _fail(
+                    path,
+                    f"has no {sub} sub-table (the folder {sub}/ with a table.dat is missing)",
+                    "the Measurement Set is incomplete; copy it again with all its sub-tables",
+                )
         main = _open(path)
         try:
             self.n_rows = int(main.nrows())
@@ -147,10 +157,14 @@ class MsLayout:
             needed = ("UVW", "TIME", "ANTENNA1", "ANTENNA2", "FLAG", "DATA_DESC_ID")
             missing = [c for c in needed if c not in self.columns]
             if missing:
-                _fail(path, "the main table has no column " + ", ".join(missing),
-                      "this is not a Measurement Set uvfit can read")
-            field_of_row = (np.asarray(main.getcol("FIELD_ID"), int) if "FIELD_ID" in self.columns
-                            else np.zeros(self.n_rows, int))
+                _fail(
+                    path,
+                    "the main table has no column " + ", ".join(missing),
+                    "this is not a Measurement Set uvfit can read",
+                )
+            field_of_row = (
+                np.asarray(main.getcol("FIELD_ID"), int) if "FIELD_ID" in self.columns else np.zeros(self.n_rows, int)
+            )
             dd_of_row = np.asarray(main.getcol("DATA_DESC_ID"), int)
             self._choose_column(column)
             self._choose_weights(main)
@@ -168,16 +182,25 @@ class MsLayout:
             elif "DATA" in self.columns:
                 self.column, self.column_note = "DATA", "DATA (the default: no CORRECTED_DATA column)"
             else:
-                _fail(self.path, "has no data column (neither CORRECTED_DATA nor DATA)",
-                      "present: " + (", ".join(present) or "none") + "; choose one with --column")
+                _fail(
+                    self.path,
+                    "has no data column (neither CORRECTED_DATA nor DATA)",
+                    "present: " + (", ".join(present) or "none") + "; choose one with --column",
+                )
             return
         name = str(column).strip().upper()
         if name not in DATA_COLUMNS:
-            _fail(self.path, f"'{column}' is not a data column uvfit reads",
-                  "use --column DATA, CORRECTED_DATA or MODEL_DATA")
+            _fail(
+                self.path,
+                f"'{column}' is not a data column uvfit reads",
+                "use --column DATA, CORRECTED_DATA or MODEL_DATA",
+            )
         if name not in self.columns:
-            _fail(self.path, f"has no {name} column; its data columns are " + (", ".join(present) or "none"),
-                  "choose one of those with --column")
+            _fail(
+                self.path,
+                f"has no {name} column; its data columns are " + (", ".join(present) or "none"),
+                "choose one of those with --column",
+            )
         self.column, self.column_note = name, f"{name} (chosen)"
 
     def _choose_weights(self, main):
@@ -201,10 +224,12 @@ class MsLayout:
         with _open(os.path.join(path, "ANTENNA")) as ant:
             n_ant = int(ant.nrows())
             names = _strings(ant.getcol("NAME")) if n_ant and "NAME" in ant.colnames() else [""] * n_ant
-            stations = (_strings(ant.getcol("STATION")) if n_ant and "STATION" in ant.colnames()
-                        else [""] * n_ant)
-            xyz = (np.asarray(ant.getcol("POSITION"), float).reshape(n_ant, 3)
-                   if n_ant and "POSITION" in ant.colnames() else np.full((n_ant, 3), np.nan))
+            stations = _strings(ant.getcol("STATION")) if n_ant and "STATION" in ant.colnames() else [""] * n_ant
+            xyz = (
+                np.asarray(ant.getcol("POSITION"), float).reshape(n_ant, 3)
+                if n_ant and "POSITION" in ant.colnames()
+                else np.full((n_ant, 3), np.nan)
+            )
         # An antenna without a name takes its station's name, else its row number (#k); a name
         # used twice gets the row number added, so every row of the table has its own name.
         out = []
@@ -218,36 +243,65 @@ class MsLayout:
         with _open(os.path.join(path, "FIELD")) as fld:
             n = int(fld.nrows())
             fnames = _strings(fld.getcol("NAME")) if n else []
-            direction = (np.asarray(fld.getcol("PHASE_DIR"), float).reshape(n, -1, 2)[:, 0, :]
-                         if n and "PHASE_DIR" in fld.colnames() else np.full((n, 2), np.nan))
-        self.fields = [{"id": i, "name": fnames[i], "ra_deg": float(np.degrees(direction[i, 0]) % 360.0),
-                        "dec_deg": float(np.degrees(direction[i, 1]))} for i in range(n)]
+            direction = (
+                np.asarray(fld.getcol("PHASE_DIR"), float).reshape(n, -1, 2)[:, 0, :]
+                if n and "PHASE_DIR" in fld.colnames()
+                else np.full((n, 2), np.nan)
+            )
+        self.fields = [
+            {
+                "id": i,
+                "name": fnames[i],
+                "ra_deg": float(np.degrees(direction[i, 0]) % 360.0),
+                "dec_deg": float(np.degrees(direction[i, 1])),
+            }
+            for i in range(n)
+        ]
 
         with _open(os.path.join(path, "SPECTRAL_WINDOW")) as sw:
             n = int(sw.nrows())
             snames = _strings(sw.getcol("NAME")) if n and "NAME" in sw.colnames() else [""] * n
             freqs, widths = [], []
-            for i in range(n):        # one small row per spectral window (shapes may differ)
+            for i in range(n):  # one small row per spectral window (shapes may differ)
                 f = np.asarray(sw.getcell("CHAN_FREQ", i), float).ravel()
-                wd = (np.abs(np.asarray(sw.getcell("CHAN_WIDTH", i), float).ravel())
-                      if "CHAN_WIDTH" in sw.colnames() else np.full(f.size, np.nan))
+                wd = (
+                    np.abs(np.asarray(sw.getcell("CHAN_WIDTH", i), float).ravel())
+                    if "CHAN_WIDTH" in sw.colnames()
+                    else np.full(f.size, np.nan)
+                )
                 freqs.append(f)
                 widths.append(wd)
-        self.spws = [{"id": i, "name": snames[i], "n_channels": int(freqs[i].size),
-                      "frequency_hz": freqs[i], "width_hz": widths[i]} for i in range(n)]
+        self.spws = [
+            {
+                "id": i,
+                "name": snames[i],
+                "n_channels": int(freqs[i].size),
+                "frequency_hz": freqs[i],
+                "width_hz": widths[i],
+            }
+            for i in range(n)
+        ]
 
         with _open(os.path.join(path, "POLARIZATION")) as pol:
-            self.pol_corr = [[int(c) for c in np.asarray(pol.getcell("CORR_TYPE", i)).ravel()]
-                             for i in range(int(pol.nrows()))]
+            self.pol_corr = [
+                [int(c) for c in np.asarray(pol.getcell("CORR_TYPE", i)).ravel()] for i in range(int(pol.nrows()))
+            ]
         with _open(os.path.join(path, "DATA_DESCRIPTION")) as dd:
             n = int(dd.nrows())
             self.dd_spw = np.asarray(dd.getcol("SPECTRAL_WINDOW_ID"), int).reshape(n) if n else np.zeros(0, int)
             self.dd_pol = np.asarray(dd.getcol("POLARIZATION_ID"), int).reshape(n) if n else np.zeros(0, int)
-        bad = [(i, s, p) for i, (s, p) in enumerate(zip(self.dd_spw, self.dd_pol))
-               if not (0 <= s < len(self.spws) and 0 <= p < len(self.pol_corr))]
+        bad = [
+            (i, s, p)
+            for i, (s, p) in enumerate(zip(self.dd_spw, self.dd_pol))
+            if not (0 <= s < len(self.spws) and 0 <= p < len(self.pol_corr))
+        ]
         if bad:
-            _fail(path, f"data description {bad[0][0]} names a spectral window or polarisation setup "
-                        "that its sub-table does not hold", "the Measurement Set is damaged")
+            _fail(
+                path,
+                f"data description {bad[0][0]} names a spectral window or polarisation setup "
+                "that its sub-table does not hold",
+                "the Measurement Set is damaged",
+            )
         self.telescope = ""
         obs = os.path.join(path, "OBSERVATION")
         if os.path.isfile(os.path.join(obs, "table.dat")):
@@ -275,18 +329,28 @@ class MsLayout:
         choice = _parse_choice(field)
         if choice is None:
             if len(listed) > 1:
-                _fail(path, "holds several fields: " + ", ".join(f"{f['id']} ({f['name']})" for f in listed),
-                      "choose one with --field NAME or ID")
+                _fail(
+                    path,
+                    "holds several fields: " + ", ".join(f"{f['id']} ({f['name']})" for f in listed),
+                    "choose one with --field NAME or ID",
+                )
             self.field_id = int(listed[0]["id"])
         else:
             ids = _match(choice, self.fields, "field", path, "--field")
             if len(ids) > 1:
-                _fail(path, "--field names several fields (" + ", ".join(str(i) for i in ids) + "); "
-                      "uvfit fits one field at a time", "give one field NAME or ID")
+                _fail(
+                    path,
+                    "--field names several fields (" + ", ".join(str(i) for i in ids) + "); "
+                    "uvfit fits one field at a time",
+                    "give one field NAME or ID",
+                )
             self.field_id = int(ids[0])
             if counts[self.field_id] == 0:
-                _fail(path, f"field {self.field_id} ({self.fields[self.field_id]['name']}) has no rows",
-                      "choose a field that has data: " + ", ".join(f"{f['id']} ({f['name']})" for f in listed))
+                _fail(
+                    path,
+                    f"field {self.field_id} ({self.fields[self.field_id]['name']}) has no rows",
+                    "choose a field that has data: " + ", ".join(f"{f['id']} ({f['name']})" for f in listed),
+                )
         in_field = field_of_row == self.field_id
         dds_present = np.unique(dd_of_row[in_field])
         spw_present = sorted(set(int(self.dd_spw[d]) for d in dds_present))
@@ -299,9 +363,12 @@ class MsLayout:
             spw_ids = _match(choice, self.spws, "spectral window", path, "--spw")
             empty = [s for s in spw_ids if s not in spw_present]
             if empty:
-                _fail(path, f"spectral window {empty[0]} has no rows in field {self.field_id}",
-                      "spectral windows with data: " + ", ".join(
-                          f"{s} ({self.spws[s]['name'] or 'no name'})" for s in spw_present))
+                _fail(
+                    path,
+                    f"spectral window {empty[0]} has no rows in field {self.field_id}",
+                    "spectral windows with data: "
+                    + ", ".join(f"{s} ({self.spws[s]['name'] or 'no name'})" for s in spw_present),
+                )
         dd_ids = [int(d) for d in dds_present if int(self.dd_spw[d]) in spw_ids]
 
         def describe(d):
@@ -311,15 +378,24 @@ class MsLayout:
 
         setups = {tuple(self.pol_corr[int(self.dd_pol[d])]) for d in dd_ids}
         if len(setups) > 1:
-            _fail(path, "mixes polarisation setups: " + "; ".join(describe(d) for d in dd_ids),
-                  "choose spectral windows of one setup with --spw")
+            _fail(
+                path,
+                "mixes polarisation setups: " + "; ".join(describe(d) for d in dd_ids),
+                "choose spectral windows of one setup with --spw",
+            )
         n_chan = {self.spws[int(self.dd_spw[d])]["n_channels"] for d in dd_ids}
         if len(n_chan) > 1:
-            _fail(path, "has spectral windows of different channel counts: "
-                  + "; ".join(describe(d) for d in dd_ids), "choose spectral windows with --spw")
+            _fail(
+                path,
+                "has spectral windows of different channel counts: " + "; ".join(describe(d) for d in dd_ids),
+                "choose spectral windows with --spw",
+            )
         if len(dd_ids) != len(spw_ids):
-            _fail(path, "a spectral window appears under several data descriptions: "
-                  + "; ".join(describe(d) for d in dd_ids), "choose one with --spw")
+            _fail(
+                path,
+                "a spectral window appears under several data descriptions: " + "; ".join(describe(d) for d in dd_ids),
+                "choose one with --spw",
+            )
         self.spw_ids = [int(s) for s in spw_ids]
         self.dd_ids = dd_ids
         self.n_channels = int(n_chan.pop())
@@ -341,10 +417,17 @@ class MsLayout:
             "ms_weights": self.weights or "none (sigma 1 for every row)",
             "ms_fields": [{k: f[k] for k in ("id", "name", "ra_deg", "dec_deg", "n_rows")} for f in self.fields],
             "ms_field": int(self.field_id),
-            "ms_spws": [{"id": s["id"], "name": s["name"], "n_channels": s["n_channels"],
-                         "frequency_min_hz": float(np.min(s["frequency_hz"])) if s["n_channels"] else None,
-                         "frequency_max_hz": float(np.max(s["frequency_hz"])) if s["n_channels"] else None,
-                         "in_field": bool(s.get("in_field"))} for s in self.spws],
+            "ms_spws": [
+                {
+                    "id": s["id"],
+                    "name": s["name"],
+                    "n_channels": s["n_channels"],
+                    "frequency_min_hz": float(np.min(s["frequency_hz"])) if s["n_channels"] else None,
+                    "frequency_max_hz": float(np.max(s["frequency_hz"])) if s["n_channels"] else None,
+                    "in_field": bool(s.get("in_field")),
+                }
+                for s in self.spws
+            ],
             "ms_spws_read": list(self.spw_ids),
             "ms_antennas": list(self.antenna_names),
             "ms_rows_total": int(self.n_rows),
@@ -364,14 +447,18 @@ def _guarded(path, work):
         raise
     except MemoryError:
         _fail(path, "the rows asked for do not fit in memory", "read it in chunks (uvfit.data.ms.iter_ms)")
-    except Exception as exc:          # casacore raises RuntimeError for damaged tables
-        _fail(path, f"not a readable Measurement Set ({type(exc).__name__}: {_one_line(exc)})",
-              "check that the Measurement Set is complete")
+    except Exception as exc:  # casacore raises RuntimeError for damaged tables
+        _fail(
+            path,
+            f"not a readable Measurement Set ({type(exc).__name__}: {_one_line(exc)})",
+            "check that the Measurement Set is complete",
+        )
 
 
 # --------------------------------------------------------------------------- rows
 def _main_columns(main, layout, start, nrow):
     """The main-table columns of rows start .. start + nrow - 1, restricted to the selection."""
+
     def col(name):
         return main.getcol(name, startrow=start, nrow=nrow)
 
@@ -395,19 +482,24 @@ def _main_columns(main, layout, start, nrow):
     out["data"] = np.asarray(col(layout.column))[sel].astype(np.complex128)
     shape = out["data"].shape
     if out["flag"].shape != shape:
-        raise DataError(f"{layout.path}: FLAG has shape {out['flag'].shape[1:]} per row but "
-                        f"{layout.column} has {shape[1:]}", "the Measurement Set is damaged")
+        raise DataError(
+            f"{layout.path}: FLAG has shape {out['flag'].shape[1:]} per row but {layout.column} has {shape[1:]}",
+            "the Measurement Set is damaged",
+        )
     if layout.weights is None:
         weight = np.ones(shape)
     else:
         raw = np.asarray(col(layout.weights), float)[sel]
-        if raw.ndim == 2:                            # per correlation: the same for every channel
+        if raw.ndim == 2:  # per correlation: the same for every channel
             raw = np.broadcast_to(raw[:, None, :], shape)
         with np.errstate(divide="ignore", invalid="ignore"):
-            weight = 1.0 / raw ** 2 if layout.weights.startswith("SIGMA") else np.array(raw, float)
+            weight = 1.0 / raw**2 if layout.weights.startswith("SIGMA") else np.array(raw, float)
         if weight.shape != shape:
-            raise DataError(f"{layout.path}: {layout.weights} has shape {weight.shape[1:]} per row "
-                            f"but {layout.column} has {shape[1:]}", "the Measurement Set is damaged")
+            raise DataError(
+                f"{layout.path}: {layout.weights} has shape {weight.shape[1:]} per row "
+                f"but {layout.column} has {shape[1:]}",
+                "the Measurement Set is damaged",
+            )
     out["weight"] = weight
     return out
 
@@ -427,9 +519,9 @@ def _rows_to_vset(layout, cols, start, stop):
     dd_list = np.asarray(layout.dd_ids, int)
     order = np.argsort(dd_list)
     position = order[np.searchsorted(dd_list[order], dd)]
-    freq_table = np.stack([layout.dd_frequency[d] for d in dd_list])          # (n_dd, n_chan)
+    freq_table = np.stack([layout.dd_frequency[d] for d in dd_list])  # (n_dd, n_chan)
     offset = np.array([layout.dd_channel_offset[d] for d in dd_list], int)
-    row_freq = freq_table[position]                                           # (n, n_chan)
+    row_freq = freq_table[position]  # (n, n_chan)
     channel = offset[position][:, None] + np.arange(n_chan)[None, :]
 
     uvw = cols["uvw"]
@@ -444,12 +536,17 @@ def _rows_to_vset(layout, cols, start, stop):
     auto = np.broadcast_to((cols["a1"] == cols["a2"])[:, None], shape).ravel()
     flag = ~good.ravel() | auto
     rows = dict(
-        u=(u_m[:, None] * scale).ravel(), v=(v_m[:, None] * scale).ravel(), w=(w_m[:, None] * scale).ravel(),
+        u=(u_m[:, None] * scale).ravel(),
+        v=(v_m[:, None] * scale).ravel(),
+        w=(w_m[:, None] * scale).ravel(),
         time=np.broadcast_to((cols["time"] / SECONDS_PER_DAY)[:, None], shape).ravel(),
         frequency=row_freq.ravel(),
         station1=np.broadcast_to(s1[:, None], shape).ravel(),
         station2=np.broadcast_to(s2[:, None], shape).ravel(),
-        vis=vis.ravel(), sigma=sigma.ravel(), flag=flag, channel=channel.ravel(),
+        vis=vis.ravel(),
+        sigma=sigma.ravel(),
+        flag=flag,
+        channel=channel.ravel(),
         integration=np.broadcast_to(cols["integration"][:, None], shape).ravel(),
         scan=np.broadcast_to(cols["scan"][:, None], shape).ravel(),
     )
@@ -459,7 +556,8 @@ def _rows_to_vset(layout, cols, start, stop):
         "path": os.path.abspath(path),
         "stokes_axis": [CORR_NAMES.get(c, str(c)) for c in layout.corr_types],
         "stokes_i_from": stokes_name,
-        "n_if": len(layout.spw_ids), "n_channels_per_if": int(n_chan),
+        "n_if": len(layout.spw_ids),
+        "n_channels_per_if": int(n_chan),
         "channel_width_hz": [float(x) for x in layout.channel_width_hz],
         "n_autocorrelation_rows_flagged": int(auto.sum()),
         "orientation": MS_ORIENTATION_NOTE,
@@ -469,16 +567,26 @@ def _rows_to_vset(layout, cols, start, stop):
     meta.update(layout.describe())
     if n_single > 0:
         meta["n_single_hand_rows"] = n_single
-        meta["note_single_hand"] = (f"{n_single} rows had only one good parallel hand; that hand stands "
-                                    "for Stokes I with its own sigma (exact only for an unpolarised source)")
+        meta["note_single_hand"] = (
+            f"{n_single} rows had only one good parallel hand; that hand stands "
+            "for Stokes I with its own sigma (exact only for an unpolarised source)"
+        )
     if n_single < 0:
-        meta["note_single_hand"] = ("the set holds one parallel hand only; it stands for Stokes I with its "
-                                    "own sigma (exact only for an unpolarised source)")
+        meta["note_single_hand"] = (
+            "the set holds one parallel hand only; it stands for Stokes I with its "
+            "own sigma (exact only for an unpolarised source)"
+        )
     if layout.weights is None:
         meta["note_weights"] = "the set has no WEIGHT or SIGMA column; sigma set to 1 for every row"
     stations = StationTable(layout.antenna_names, layout.antenna_xyz)
-    return VisibilitySet(stations=stations, source=fld["name"] or "unknown", ra_deg=fld["ra_deg"],
-                         dec_deg=fld["dec_deg"], meta=meta, **rows)
+    return VisibilitySet(
+        stations=stations,
+        source=fld["name"] or "unknown",
+        ra_deg=fld["ra_deg"],
+        dec_deg=fld["dec_deg"],
+        meta=meta,
+        **rows,
+    )
 
 
 def _read_range(layout, main, start, stop):
@@ -496,8 +604,10 @@ def _check_range(layout, rows):
     except (TypeError, ValueError):
         raise UvfitError(f"rows must be a (start, stop) pair of row numbers, not {rows!r}") from None
     if not 0 <= start < stop <= layout.n_rows:
-        raise UvfitError(f"rows ({start}, {stop}) are outside the main table's {layout.n_rows} rows",
-                         "give 0 <= start < stop <= the number of rows")
+        raise UvfitError(
+            f"rows ({start}, {stop}) are outside the main table's {layout.n_rows} rows",
+            "give 0 <= start < stop <= the number of rows",
+        )
     return start, stop
 
 
@@ -525,12 +635,19 @@ def read_ms(path, column=None, field=None, spw=None, rows=None, layout=None):
             main.close()
         fld = lay.fields[lay.field_id]
         if vset is None:
-            _fail(path, f"rows {start} to {stop} hold no data of field {lay.field_id} ({fld['name']}) "
-                        f"in spectral windows {', '.join(str(s) for s in lay.spw_ids)}")
+            _fail(
+                path,
+                f"rows {start} to {stop} hold no data of field {lay.field_id} ({fld['name']}) "
+                f"in spectral windows {', '.join(str(s) for s in lay.spw_ids)}",
+            )
         if rows is None and np.all(vset.flag):
-            _fail(path, f"every visibility is flagged: all {vset.n} rows (main-table rows x channels) "
-                        f"of {lay.column} have FLAG or FLAG_ROW set, a zero weight, or are "
-                        "autocorrelations", "check the set's flags; uvfit has nothing to fit")
+            _fail(
+                path,
+                f"every visibility is flagged: all {vset.n} rows (main-table rows x channels) "
+                f"of {lay.column} have FLAG or FLAG_ROW set, a zero weight, or are "
+                "autocorrelations",
+                "check the set's flags; uvfit has nothing to fit",
+            )
         return vset
 
     return _guarded(path, work)
@@ -570,12 +687,14 @@ def iter_ms(path, chunk_rows=DEFAULT_CHUNK_ROWS, column=None, field=None, spw=No
 
 def count_rows(path):
     """Number of rows of a Measurement Set's main table."""
+
     def work():
         main = _open(path)
         try:
             return int(main.nrows())
         finally:
             main.close()
+
     return _guarded(os.fspath(path), work)
 
 
@@ -584,15 +703,20 @@ def check_model_column_writable(path):
     """Raise UvfitError unless ``path`` is a Measurement Set whose MODEL_DATA may be written."""
     path = os.fspath(path)
     if not is_ms(path):
-        raise UvfitError(f"{path}: writing a model column needs a Measurement Set (a casacore table "
-                         "folder)", "drop --write-model-column, or give the Measurement Set")
+        raise UvfitError(
+            f"{path}: writing a model column needs a Measurement Set (a casacore table folder)",
+            "drop --write-model-column, or give the Measurement Set",
+        )
     casacore_tables()
-    targets = [p for p in (path, os.path.join(path, "table.dat"), os.path.join(path, "table.lock"))
-               if os.path.exists(p)]
+    targets = [
+        p for p in (path, os.path.join(path, "table.dat"), os.path.join(path, "table.lock")) if os.path.exists(p)
+    ]
     # not writable for this user, or marked read-only for everyone (which even root should respect)
     if any(not os.access(p, os.W_OK) or not os.stat(p).st_mode & 0o222 for p in targets):
-        raise UvfitError(f"{path}: the Measurement Set is read-only, so {MODEL_COLUMN} cannot be written",
-                         "copy it somewhere writable (or make it writable) and run again")
+        raise UvfitError(
+            f"{path}: the Measurement Set is read-only, so {MODEL_COLUMN} cannot be written",
+            "copy it somewhere writable (or make it writable) and run again",
+        )
 
 
 def write_model_column(path, model, field=None, spw=None, chunk_rows=DEFAULT_CHUNK_ROWS):
@@ -614,8 +738,10 @@ def write_model_column(path, model, field=None, spw=None, chunk_rows=DEFAULT_CHU
     try:
         main = tables.table(path, readonly=False, ack=False)
     except Exception as exc:
-        raise UvfitError(f"{path}: cannot be opened for writing ({_one_line(exc)})",
-                         "check that no other program holds it and that it is writable") from None
+        raise UvfitError(
+            f"{path}: cannot be opened for writing ({_one_line(exc)})",
+            "check that no other program holds it and that it is writable",
+        ) from None
 
     def work():
         created = MODEL_COLUMN not in main.colnames()
@@ -628,8 +754,11 @@ def write_model_column(path, model, field=None, spw=None, chunk_rows=DEFAULT_CHU
         written = 0
         for a in range(0, layout.n_rows, int(chunk_rows)):
             nrow = min(int(chunk_rows), layout.n_rows - a)
-            field_of = (np.asarray(main.getcol("FIELD_ID", a, nrow), int) if "FIELD_ID" in layout.columns
-                        else np.zeros(nrow, int))
+            field_of = (
+                np.asarray(main.getcol("FIELD_ID", a, nrow), int)
+                if "FIELD_ID" in layout.columns
+                else np.zeros(nrow, int)
+            )
             dd = np.asarray(main.getcol("DATA_DESC_ID", a, nrow), int)
             keep = (field_of == layout.field_id) & np.isin(dd, layout.dd_ids)
             if created:
@@ -641,22 +770,31 @@ def write_model_column(path, model, field=None, spw=None, chunk_rows=DEFAULT_CHU
             dd_list = np.asarray(layout.dd_ids, int)
             order = np.argsort(dd_list)
             position = order[np.searchsorted(dd_list[order], dd[sel])]
-            freq = np.stack([layout.dd_frequency[d] for d in dd_list])[position]     # (n, n_chan)
+            freq = np.stack([layout.dd_frequency[d] for d in dd_list])[position]  # (n, n_chan)
             u_m, v_m, w_m, _ = _ms_to_sky_convention(uvw[:, 0], uvw[:, 1], uvw[:, 2], None)
             scale = freq / C_LIGHT
-            vis = np.asarray(model.visibilities((u_m[:, None] * scale).ravel(), (v_m[:, None] * scale).ravel(),
-                                                frequency=freq.ravel()), complex).reshape(freq.shape)
+            vis = np.asarray(
+                model.visibilities(
+                    (u_m[:, None] * scale).ravel(), (v_m[:, None] * scale).ravel(), frequency=freq.ravel()
+                ),
+                complex,
+            ).reshape(freq.shape)
             _, _, _, vis = _ms_to_sky_convention(u_m, v_m, w_m, vis)
             cells = np.where(parallel[None, None, :], vis[:, :, None], 0.0).astype(np.complex64)
             # write runs of consecutive selected rows (one putcol per run, not per row)
             breaks = np.flatnonzero(np.diff(sel) != 1) + 1
             for lo, hi in zip(np.r_[0, breaks], np.r_[breaks, sel.size]):
-                main.putcol(MODEL_COLUMN, np.ascontiguousarray(cells[lo:hi]), startrow=a + int(sel[lo]),
-                            nrow=int(hi - lo))
+                main.putcol(
+                    MODEL_COLUMN, np.ascontiguousarray(cells[lo:hi]), startrow=a + int(sel[lo]), nrow=int(hi - lo)
+                )
             written += sel.size
         main.flush()
-        return {"column": MODEL_COLUMN, "created": bool(created), "rows_written": int(written),
-                "rows_total": int(layout.n_rows)}
+        return {
+            "column": MODEL_COLUMN,
+            "created": bool(created),
+            "rows_written": int(written),
+            "rows_total": int(layout.n_rows),
+        }
 
     try:
         return _guarded(path, work)
@@ -691,8 +829,17 @@ def _fill_zeros(main, layout, start, nrow, dd, keep):
 def add_ms_summary(vset, s):
     """Measurement Set facts for ``uvfit info``: data column, fields, spectral windows, antennas,
     scans (from the rows' scan numbers, unflagged rows)."""
-    for key in ("ms_column", "ms_column_note", "ms_weights", "ms_fields", "ms_field", "ms_spws",
-                "ms_spws_read", "ms_antennas", "ms_rows_total"):
+    for key in (
+        "ms_column",
+        "ms_column_note",
+        "ms_weights",
+        "ms_fields",
+        "ms_field",
+        "ms_spws",
+        "ms_spws_read",
+        "ms_antennas",
+        "ms_rows_total",
+    ):
         if key in vset.meta:
             s[key] = vset.meta[key]
     good = vset.subset(~vset.flag)
@@ -705,6 +852,14 @@ def add_ms_summary(vset, s):
         np.minimum.at(start, inverse, good.time)
         np.maximum.at(end, inverse, good.time)
         count = np.bincount(inverse, minlength=numbers.size)
-        scans = [{"scan": int(n), "start_mjd": float(a), "end_mjd": float(b), "duration_s": float((b - a) * 86400.0),
-                  "n_visibilities": int(c)} for n, a, b, c in zip(numbers, start, end, count)]
+        scans = [
+            {
+                "scan": int(n),
+                "start_mjd": float(a),
+                "end_mjd": float(b),
+                "duration_s": float((b - a) * 86400.0),
+                "n_visibilities": int(c),
+            }
+            for n, a, b, c in zip(numbers, start, end, count)
+        ]
     s["scans"] = scans

@@ -14,14 +14,28 @@ Conventions (see README, "Conventions"):
 - scan is the scan number of a row as its file gives it (Measurement Sets: SCAN_NUMBER), -1 where
   the file has none (UVFITS, ECSV, simulations); carried through subsets and averaging.
 """
+
 from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from ..errors import DataError
 
-_ROW_FIELDS = ("u", "v", "w", "time", "frequency", "station1", "station2", "vis", "sigma",
-               "flag", "channel", "integration", "scan")
+_ROW_FIELDS = (
+    "u",
+    "v",
+    "w",
+    "time",
+    "frequency",
+    "station1",
+    "station2",
+    "vis",
+    "sigma",
+    "flag",
+    "channel",
+    "integration",
+    "scan",
+)
 
 
 @dataclass
@@ -85,18 +99,19 @@ class VisibilitySet:
         self.station2 = np.asarray(self.station2).astype(str).ravel()
         self.vis = np.asarray(self.vis, dtype=np.complex128).ravel()
         self.sigma = np.asarray(self.sigma, dtype=np.float64).ravel()
-        self.flag = (np.zeros(n, bool) if self.flag is None
-                     else np.asarray(self.flag, dtype=bool).ravel())
-        self.channel = (np.zeros(n, int) if self.channel is None
-                        else np.asarray(self.channel, dtype=int).ravel())
-        self.integration = (np.full(n, np.nan) if self.integration is None
-                            else np.broadcast_to(np.asarray(self.integration, float), (n,)).copy())
-        self.scan = (np.full(n, -1, int) if self.scan is None
-                     else np.broadcast_to(np.asarray(self.scan, int), (n,)).copy())
+        self.flag = np.zeros(n, bool) if self.flag is None else np.asarray(self.flag, dtype=bool).ravel()
+        self.channel = np.zeros(n, int) if self.channel is None else np.asarray(self.channel, dtype=int).ravel()
+        self.integration = (
+            np.full(n, np.nan)
+            if self.integration is None
+            else np.broadcast_to(np.asarray(self.integration, float), (n,)).copy()
+        )
+        self.scan = (
+            np.full(n, -1, int) if self.scan is None else np.broadcast_to(np.asarray(self.scan, int), (n,)).copy()
+        )
         for name in _ROW_FIELDS:
             if len(getattr(self, name)) != n:
-                raise DataError(f"visibility column '{name}' has {len(getattr(self, name))} rows, "
-                                f"expected {n}")
+                raise DataError(f"visibility column '{name}' has {len(getattr(self, name))} rows, expected {n}")
         # Rows whose weight or value is not usable are flagged, never silently used.
         bad = ~np.isfinite(self.sigma) | (self.sigma <= 0) | ~np.isfinite(self.vis)
         self.flag = self.flag | bad
@@ -175,9 +190,10 @@ class VisibilitySet:
         """The unflagged rows; raises DataError if there are none."""
         out = self.subset(~self.flag)
         if out.n == 0:
-            raise DataError("no unflagged visibilities are left (every row is flagged or has a "
-                            "zero, negative or NaN weight)",
-                            "check the file's weights, or widen the selection options")
+            raise DataError(
+                "no unflagged visibilities are left (every row is flagged or has a zero, negative or NaN weight)",
+                "check the file's weights, or widen the selection options",
+            )
         return out
 
     def with_vis(self, vis, sigma=None):
@@ -214,10 +230,10 @@ class VisibilitySet:
         # Added for `uvfit info`: derived numbers a reader of the data wants at a glance.
         out["n_rows"] = int(self.n)
         out["channels"] = sorted(int(c) for c in np.unique(good.channel))
-        out["time_span_hours"] = ((out["time_end_mjd"] - out["time_start_mjd"]) * 24.0
-                                  if good.n else None)
+        out["time_span_hours"] = (out["time_end_mjd"] - out["time_start_mjd"]) * 24.0 if good.n else None
         if good.n:
             from astropy.time import Time
+
             out["time_start_utc"] = Time(out["time_start_mjd"], format="mjd", scale="utc").isot
             out["time_end_utc"] = Time(out["time_end_mjd"], format="mjd", scale="utc").isot
         cross = q[good.station1 != good.station2] if good.n else q

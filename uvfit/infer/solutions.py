@@ -12,6 +12,7 @@ parameters; scipy.stats.chi2.ppf), the chi2 surface is not one quadratic bowl at
 99% joint confidence region sees (Press et al., Numerical Recipes, 3rd ed. 2007, sec. 15.6), and
 the quoted errors do not describe the uncertainty (``errors_reliable`` False).
 """
+
 import numpy as np
 from scipy.stats import chi2 as chi2_dist
 
@@ -29,6 +30,7 @@ def delta_chi2_limit(k):
 def canonical(model, points, movable=()):
     """Start end points (n, k) relabelled to canonical order (brighter component / member first)."""
     from .posterior import order_samples
+
     points = np.atleast_2d(np.asarray(points, float))
     if points.size == 0:
         return points
@@ -63,7 +65,7 @@ def catalogue(model, names, ends, chi2s, best_values, best_errors, movable=()):
     periods = model.periods()
     period = np.array([periods.get(n, 0.0) for n in names], float)
     order = np.argsort(chi2s, kind="stable")
-    groups = []   # [representative vector, chi2, count]
+    groups = []  # [representative vector, chi2, count]
     for i in order:
         x = ends[i]
         for g in groups:
@@ -76,9 +78,10 @@ def catalogue(model, names, ends, chi2s, best_values, best_errors, movable=()):
         else:
             groups.append([x.copy(), float(chi2s[i]), 1])
     c0 = groups[0][1]
-    return [{"chi2": c, "delta_chi2": c - c0,
-             "parameters": {n: float(v) for n, v in zip(names, x)}, "n_starts": int(m)}
-            for x, c, m in groups]
+    return [
+        {"chi2": c, "delta_chi2": c - c0, "parameters": {n: float(v) for n, v in zip(names, x)}, "n_starts": int(m)}
+        for x, c, m in groups
+    ]
 
 
 def errors_reliable(solutions, k):
@@ -93,8 +96,10 @@ def ambiguity_text(solutions, k):
     close = [s for s in solutions[1:] if s["delta_chi2"] < limit]
     if not close:
         return ""
-    return (f"{len(close)} other distinct solution(s) lie within delta chi2 < {limit:.3g} (99% point "
-            f"of chi2 with {k} degrees of freedom) of the best (delta chi2 "
-            + ", ".join(f"{s['delta_chi2']:.3g}" for s in close)
-            + "): the curvature errors do not describe the uncertainty; see 'solutions' "
-              "(or run uvfit sample / profile)")
+    return (
+        f"{len(close)} other distinct solution(s) lie within delta chi2 < {limit:.3g} (99% point "
+        f"of chi2 with {k} degrees of freedom) of the best (delta chi2 "
+        + ", ".join(f"{s['delta_chi2']:.3g}" for s in close)
+        + "): the curvature errors do not describe the uncertainty; see 'solutions' "
+        "(or run uvfit sample / profile)"
+    )

@@ -5,6 +5,7 @@ blindness (Okabe & Ito 2008, "Color Universal Design"; the hex values are common
 are drawn on the Agg canvas without pyplot, so nothing needs a display and no global figure state
 is touched (importing this module changes no one's backend).
 """
+
 import io
 
 import matplotlib
@@ -27,8 +28,10 @@ OKABE_ITO = {
     "reddish_purple": "#CC79A7",
 }
 #: colours for categories (baselines, components), yellow last because it prints faintly
-CYCLE = [OKABE_ITO[k] for k in ("blue", "vermillion", "bluish_green", "orange", "reddish_purple",
-                                 "sky_blue", "black", "yellow")]
+CYCLE = [
+    OKABE_ITO[k]
+    for k in ("blue", "vermillion", "bluish_green", "orange", "reddish_purple", "sky_blue", "black", "yellow")
+]
 #: markers cycled together with the colours so that more than eight categories stay distinct
 MARKERS = ["o", "s", "^", "D", "v", "P", "X", "*"]
 DATA_COLOUR = OKABE_ITO["blue"]

@@ -12,6 +12,7 @@ A parameter is a number or a table with keys ``value``, ``min``, ``max``, ``fixe
 ``prior``. See the README, "Model files", for every shape, the defaults and the priors. Every
 problem in a file is reported as one ModelError naming the line, the component and the key.
 """
+
 import json
 import math
 import os
@@ -34,6 +35,7 @@ _NAME_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_\-]*")
 
 # -- where things are in the source text ----------------------------------------------------------
 
+
 class _Locator:
     """Finds the line of a key in the TOML text (a plain scan; good enough for messages)."""
 
@@ -42,8 +44,7 @@ class _Locator:
         self.lines = source.splitlines() if source is not None else None
         self.headers = []
         if self.lines is not None:
-            self.headers = [i for i, s in enumerate(self.lines)
-                            if re.match(r"\s*\[\[\s*component\s*\]\]", s)]
+            self.headers = [i for i, s in enumerate(self.lines) if re.match(r"\s*\[\[\s*component\s*\]\]", s)]
 
     def line(self, component=None, key=None):
         if self.lines is None:
@@ -85,6 +86,7 @@ def _is_number(x):
 
 # -- reading ------------------------------------------------------------------------------------
 
+
 def load_model(path):
     """Read a model file into a SkyModel (ModelError naming the line and key on any problem)."""
     path = os.fspath(path)
@@ -108,8 +110,7 @@ def loads(text, path=None):
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         where = f"{path}: " if path else ""
-        raise ModelError(f"{where}TOML syntax error: {exc}",
-                         "see the README, 'Model files', for the format") from None
+        raise ModelError(f"{where}TOML syntax error: {exc}", "see the README, 'Model files', for the format") from None
     return model_from_dict(data, source=text, path=path)
 
 
@@ -119,8 +120,10 @@ def build_model(components, angular_unit="mas", description=None):
     Each value is a number (a free parameter started there) or a table
     ``{"value": .., "min": .., "max": .., "fixed": .., "tie": .., "prior": ..}``. Also
     ``SkyModel.build`` (alias ``SkyModel.from_components``)."""
-    data = {"angular_unit": angular_unit if isinstance(angular_unit, str) else angular_unit.to_string(),
-            "component": list(components)}
+    data = {
+        "angular_unit": angular_unit if isinstance(angular_unit, str) else angular_unit.to_string(),
+        "component": list(components),
+    }
     if description:
         data["description"] = description
     return model_from_dict(data)
@@ -149,8 +152,7 @@ def model_from_dict(data, source=None, path=None):
     if not comps:
         raise loc.error("the model has no components", "add at least one [[component]] table")
     if not isinstance(comps, list) or not all(isinstance(c, dict) for c in comps):
-        raise loc.error("'component' must be an array of tables, one [[component]] per component",
-                        key="component")
+        raise loc.error("'component' must be an array of tables, one [[component]] per component", key="component")
 
     components, params, names = [], ParameterSet(), {}
     for i, table in enumerate(comps):
@@ -167,18 +169,27 @@ def _component(table, i, loc, unit, names):
     if name is None:
         raise loc.error("the component has no name", 'add name = "..."', component=i)
     if not isinstance(name, str) or not _NAME_RE.fullmatch(name):
-        raise loc.error(f"component name {name!r} is not a plain name",
-                        "use letters, digits, '_' or '-', starting with a letter (no dots)", component=i, key="name")
+        raise loc.error(
+            f"component name {name!r} is not a plain name",
+            "use letters, digits, '_' or '-', starting with a letter (no dots)",
+            component=i,
+            key="name",
+        )
     if name in names:
-        raise loc.error(f"duplicate component name '{name}' (also component #{names[name] + 1})",
-                        "give every component its own name", component=i, key="name", name=name)
+        raise loc.error(
+            f"duplicate component name '{name}' (also component #{names[name] + 1})",
+            "give every component its own name",
+            component=i,
+            key="name",
+            name=name,
+        )
 
     def err(message, hint=None, key=None):
         return loc.error(message, hint, component=i, key=key, name=name)
 
     key = table.get("shape")
     if key is None:
-        raise err("the component has no shape", "add shape = \"...\"; known: " + ", ".join(SHAPES))
+        raise err("the component has no shape", 'add shape = "..."; known: ' + ", ".join(SHAPES))
     if not isinstance(key, str) or key not in SHAPES:
         raise err(f"unknown shape {key!r}", "known shapes: " + ", ".join(SHAPES), key="shape")
     try:
@@ -202,12 +213,18 @@ def _component(table, i, loc, unit, names):
     ref = None
     if "spectral_index" in table:
         if "reference_frequency" not in table:
-            raise err("a spectral_index needs a reference_frequency", 'add e.g. reference_frequency = "230 GHz"',
-                      key="spectral_index")
+            raise err(
+                "a spectral_index needs a reference_frequency",
+                'add e.g. reference_frequency = "230 GHz"',
+                key="spectral_index",
+            )
         ref = _frequency(table["reference_frequency"], err)
     elif "reference_frequency" in table:
-        raise err("reference_frequency is given but no spectral_index",
-                  "add spectral_index = ..., or remove reference_frequency", key="reference_frequency")
+        raise err(
+            "reference_frequency is given but no spectral_index",
+            "add spectral_index = ..., or remove reference_frequency",
+            key="reference_frequency",
+        )
     comp = Component(name, shape, reference_frequency=ref)
 
     allowed = ["name", "shape"] + setting_names + comp.parameter_names()
@@ -221,8 +238,9 @@ def _component(table, i, loc, unit, names):
     params = {}
     for local in comp.parameter_names():
         kind = comp.parameter_kind(local)
-        params[f"{name}.{local}"] = _parameter(table.get(local), name, local, kind, unit, err,
-                                               comp.default_bounds(local), comp.default_value(local))
+        params[f"{name}.{local}"] = _parameter(
+            table.get(local), name, local, kind, unit, err, comp.default_bounds(local), comp.default_value(local)
+        )
     return comp, params
 
 
@@ -230,8 +248,9 @@ def _setting(value, s, cls, err):
     default = cls.settings.get(s)
     if s == "member":
         if not isinstance(value, str) or value not in SHAPES or value == "double":
-            raise err(f"unknown member shape {value!r}",
-                      "known: " + ", ".join(k for k in SHAPES if k != "double"), key=s)
+            raise err(
+                f"unknown member shape {value!r}", "known: " + ", ".join(k for k in SHAPES if k != "double"), key=s
+            )
         return value
     if isinstance(default, bool):
         ok = isinstance(value, bool)
@@ -256,8 +275,11 @@ def _frequency(value, err):
         try:
             q = un.Quantity(value)
         except (ValueError, TypeError):
-            raise err(f"reference_frequency {value!r} is not a frequency astropy understands",
-                      'write e.g. "230 GHz" or a number in Hz', key=key) from None
+            raise err(
+                f"reference_frequency {value!r} is not a frequency astropy understands",
+                'write e.g. "230 GHz" or a number in Hz',
+                key=key,
+            ) from None
         if not q.unit.is_equivalent(un.Hz):
             raise err(f"reference_frequency {value!r} is not a frequency", 'write e.g. "230 GHz"', key=key)
         hz = float(q.to_value(un.Hz))
@@ -284,8 +306,9 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
     elif isinstance(spec, dict):
         for k in spec:
             if k not in _PARAM_KEYS:
-                raise err(f"unknown key '{k}' in the table of '{local}'", "allowed: " + ", ".join(_PARAM_KEYS),
-                          key=local)
+                raise err(
+                    f"unknown key '{k}' in the table of '{local}'", "allowed: " + ", ".join(_PARAM_KEYS), key=local
+                )
         for b in ("min", "max"):
             if b in spec:
                 if not _is_number(spec[b]):
@@ -310,21 +333,29 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
             raise err(f"'{local}' has no value", f"write {local} = {{ value = ..., ... }}", key=local)
         if "prior" in spec:
             if p.tie is not None:
-                raise err(f"'{local}' is tied, so it takes the prior of the parameter it is tied to",
-                          "remove 'prior' here, or give it to the parameter it is tied to", key=local)
+                raise err(
+                    f"'{local}' is tied, so it takes the prior of the parameter it is tied to",
+                    "remove 'prior' here, or give it to the parameter it is tied to",
+                    key=local,
+                )
             p.prior = _prior(spec["prior"], p, local, err)
     else:
-        raise err(f"'{local}' must be a number or a table like {{ value = 1.0, min = 0.0 }}, got {spec!r}",
-                  key=local)
+        raise err(f"'{local}' must be a number or a table like {{ value = 1.0, min = 0.0 }}, got {spec!r}", key=local)
     if math.isnan(p.min) or math.isnan(p.max) or p.min > p.max:
-        raise err(f"the minimum of '{local}' ({p.min!r}) is above its maximum ({p.max!r})",
-                  "swap them or correct one", key=local)
+        raise err(
+            f"the minimum of '{local}' ({p.min!r}) is above its maximum ({p.max!r})",
+            "swap them or correct one",
+            key=local,
+        )
     if p.tie is None:
         if not math.isfinite(p.value):
             raise err(f"the start value of '{local}' must be finite, got {p.value!r}", key=local)
         if not p.min <= p.value <= p.max:
-            raise err(f"the start value {p.value!r} of '{local}' is outside its bounds [{p.min!r}, {p.max!r}]",
-                      "move the start value inside, or widen min/max", key=local)
+            raise err(
+                f"the start value {p.value!r} of '{local}' is outside its bounds [{p.min!r}, {p.max!r}]",
+                "move the start value inside, or widen min/max",
+                key=local,
+            )
     return p
 
 
@@ -335,11 +366,13 @@ def _prior(spec, p, local, err):
                 return Uniform(p.min, p.max)
             if spec == "log_uniform":
                 return LogUniform(p.min, p.max)
-            raise err(f"unknown prior {spec!r} for '{local}'",
-                      "use \"uniform\", \"log_uniform\" (on min..max) or a table like { normal = [mean, sd] }",
-                      key=local)
+            raise err(
+                f"unknown prior {spec!r} for '{local}'",
+                'use "uniform", "log_uniform" (on min..max) or a table like { normal = [mean, sd] }',
+                key=local,
+            )
         if isinstance(spec, dict) and len(spec) == 1:
-            (kind, args), = spec.items()
+            ((kind, args),) = spec.items()
             if kind not in PRIORS:
                 raise err(f"unknown prior '{kind}' for '{local}'", "known: " + ", ".join(PRIORS), key=local)
             if not (isinstance(args, list) and len(args) == 2 and all(_is_number(a) for a in args)):
@@ -347,8 +380,11 @@ def _prior(spec, p, local, err):
             return PRIORS[kind](*args)
     except ValueError as exc:
         raise err(f"bad prior for '{local}': {exc}", key=local) from None
-    raise err(f"bad prior for '{local}'",
-              "use \"uniform\", \"log_uniform\", or a one-key table like { normal = [mean, sd] }", key=local)
+    raise err(
+        f"bad prior for '{local}'",
+        'use "uniform", "log_uniform", or a one-key table like { normal = [mean, sd] }',
+        key=local,
+    )
 
 
 def _resolve_ties(params, names, loc):
@@ -364,26 +400,35 @@ def _resolve_ties(params, names, loc):
         if p.tie == full:
             raise err(f"'{local}' is tied to itself", "remove the tie")
         if p.tie not in params:
-            raise err(f"'{local}' is tied to '{p.tie}', which does not exist",
-                      "tie to an existing 'component.parameter', e.g. " + ", ".join(list(params)[:4]))
+            raise err(
+                f"'{local}' is tied to '{p.tie}', which does not exist",
+                "tie to an existing 'component.parameter', e.g. " + ", ".join(list(params)[:4]),
+            )
         seen, target = [full], p.tie
         while target is not None:
             if target in seen:
-                raise err("the ties form a loop: " + " -> ".join(seen + [target]),
-                          "tie every parameter to one that is not tied back")
+                raise err(
+                    "the ties form a loop: " + " -> ".join(seen + [target]),
+                    "tie every parameter to one that is not tied back",
+                )
             seen.append(target)
             target = params[target].tie
         root = params[seen[-1]]
         if root.kind != p.kind:
-            raise err(f"'{local}' ({p.kind}) is tied to '{root.name}' ({root.kind})",
-                      "tie only parameters of the same kind (a size to a size, ...)")
+            raise err(
+                f"'{local}' ({p.kind}) is tied to '{root.name}' ({root.kind})",
+                "tie only parameters of the same kind (a size to a size, ...)",
+            )
         p.value = root.value
         if not p.min <= p.value <= p.max:
-            raise err(f"'{local}' is tied to '{root.name}' = {root.value!r}, outside its own bounds "
-                      f"[{p.min!r}, {p.max!r}]", "widen its bounds or change the start value")
+            raise err(
+                f"'{local}' is tied to '{root.name}' = {root.value!r}, outside its own bounds [{p.min!r}, {p.max!r}]",
+                "widen its bounds or change the start value",
+            )
 
 
 # -- writing ------------------------------------------------------------------------------------
+
 
 def _toml_value(x):
     if isinstance(x, bool):
@@ -420,8 +465,10 @@ def _parameter_text(p, bounds):
 
 def model_to_toml(model):
     """The model as model-file text; loading it gives back an equal model."""
-    out = ["# uvfit sky model", "# positions and sizes in the angular unit below; angles in degrees,"
-           " north through east; fluxes in Jy"]
+    out = [
+        "# uvfit sky model",
+        "# positions and sizes in the angular unit below; angles in degrees, north through east; fluxes in Jy",
+    ]
     if model.description:
         out.append(f"description = {json.dumps(model.description)}")
     out.append(f"angular_unit = {json.dumps(model.angular_unit_text)}")

@@ -9,6 +9,7 @@ Units inside a shape: u, v in wavelengths; every length (size, separation) in ra
 angle (position angle, modulation angle) in radians, position angles measured north through east.
 The component converts from the model file's units (mas, deg) and chains the derivatives.
 """
+
 from typing import ClassVar, NamedTuple
 
 import numpy as np

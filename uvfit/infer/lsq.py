@@ -55,6 +55,8 @@ class FitResult:
     fixed_by_fitter: list = field(default_factory=list)
     start_chi2: list = field(default_factory=list)
     unconstrained: list = field(default_factory=list)
+    solutions: list = field(default_factory=list)
+    errors_reliable: bool = True
 
     @property
     def n_free(self):
@@ -403,6 +405,21 @@ def _global_start(statistic, lo, hi, seed, maxiter=150):
     return np.asarray(res.x, float)
 
 
+def _canonical_best(statistic, model, theta, movable):
+    """The best fit relabelled to canonical order (uvfit.infer.solutions), kept only when the
+    relabelled point has the same chi2 (an exact label swap)."""
+    from .solutions import canonical
+
+    other = canonical(model, theta[None, :], movable)[0]
+    if np.allclose(other, theta, rtol=0, atol=0):
+        return theta
+    with np.errstate(all="ignore"):
+        c0, c1 = statistic.chi2(theta), statistic.chi2(other)
+    if np.isfinite(c1) and abs(c1 - c0) <= 1e-9 * max(1.0, abs(c0)):
+        return other
+    return theta
+
+
 def fit(
     statistic,
     model=None,
@@ -484,7 +501,7 @@ def fit(
     if max_nfev is None:
         max_nfev = 200 * (k + 1)
 
-    best, best_any, start_chi2 = None, None, []
+    best, best_any, start_chi2, ends, end_chi2 = None, None, [], [], []
     for x0 in start_list:
         try:
             res = _run_start(statistic, x0, lo, hi, max_nfev)
@@ -495,6 +512,8 @@ def fit(
             continue
         c = float(2.0 * res.cost)
         start_chi2.append(c)
+        ends.append(np.asarray(res.x, float))
+        end_chi2.append(c if res.status > 0 else float("nan"))
         if np.isfinite(c):
             if best_any is None or c < 2.0 * best_any.cost:
                 best_any = res
@@ -517,6 +536,7 @@ def fit(
         notices.append(f"the fit did not converge after {best.nfev} evaluations")
 
     theta = np.asarray(best.x, float)
+    theta = _canonical_best(statistic, model, theta, fixed)
     model.set_free(theta)
     r = statistic.residuals(theta)
     chi2 = float(r @ r)
@@ -555,6 +575,14 @@ def fit(
         errors = np.sqrt(np.diag(cov))
     corr = correlation_from_covariance(cov)
     per_station, per_baseline = residual_breakdown(statistic, r)
+    from .solutions import ambiguity_text, catalogue
+    from .solutions import errors_reliable as _reliable
+
+    end_chi2 = [chi2 if e is best.x else c for e, c in zip(ends, end_chi2)]
+    solutions = catalogue(model, names, ends or [theta], end_chi2 or [chi2], theta, errors, movable=fixed)
+    reliable = _reliable(solutions, k)
+    if not reliable:
+        notices.insert(0, ambiguity_text(solutions, k))
     result = FitResult(
         names=names,
         values=theta,
@@ -582,5 +610,7 @@ def fit(
         fixed_by_fitter=fixed,
         start_chi2=start_chi2,
         unconstrained=unconstrained,
+        solutions=solutions,
+        errors_reliable=bool(reliable),
     )
     return result

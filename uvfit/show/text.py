@@ -30,6 +30,17 @@ def fit_text(out):
     lines = []
     echo = lines.append
     st = out["statistics"]
+    if out.get("errors_reliable") is False:
+        echo(
+            "WARNING: several distinct solutions fit about equally well; the errors below are "
+            "curvature errors of the best one and do NOT describe the uncertainty"
+        )
+        for i, sol in enumerate(out.get("solutions", [])[:5]):
+            echo(
+                f"  solution {i + 1}: chi2 {sol['chi2']:.6g} (delta {sol['delta_chi2']:.3g}, "
+                f"{sol['n_starts']} start(s)): " + ", ".join(f"{k} {v:.4g}" for k, v in sol["parameters"].items())
+            )
+        echo("")
     echo(
         f"mode {out['mode']}, {st['n_data']} data, {st['n_free']} free parameters, "
         f"systematic floor {out['systematic']:g}, seed {out['seed']}"

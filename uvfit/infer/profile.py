@@ -169,7 +169,8 @@ def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best
     chi2_min = float(min(best.chi2, chi2[i_min]))
     best_value = float(value if best.chi2 <= chi2[i_min] else grid[i_min])
     delta = chi2 - chi2_min
-    out = {"parameter": name, "unit": getattr(model.parameters[name], "unit", None),
+    from ..labels import unit_text
+    out = {"parameter": name, "unit": unit_text(model.parameters[name]),
            "grid": [float(x) for x in grid], "chi2": [float(c) for c in chi2],
            "best": best_value, "chi2_min": chi2_min, "formal_error": float(error)}
     reaches = False

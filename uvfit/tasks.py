@@ -111,7 +111,8 @@ def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0
         rescale_errors: bool = False, starts: int = 1, seed: int = 0, global_search: bool = False,
         redshift: float = 0.0, max_evaluations: Optional[int] = None, resolved_test: bool = True,
         selection: Optional[dict] = None, progress: Progress = None,
-        data_path: Optional[str] = None) -> FitReport:
+        data_path: Optional[str] = None, profile: Optional[str] = None,
+        jackknife: Optional[str] = None) -> FitReport:
     """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
 
     Parameters
@@ -145,6 +146,10 @@ def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0
         Called with 1 after each start.
     data_path : str, optional
         The data file recorded in the result (default: ``data`` when it is a path).
+    profile : str, optional
+        A free parameter whose profile likelihood is added (key ``profile``; see :func:`profile`).
+    jackknife : {"station", "scan", "channel"}, optional
+        Add leave-one-group-out refits (key ``jackknife``; see :func:`jackknife`).
 
     Returns
     -------
@@ -182,6 +187,7 @@ def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0
                           progress=progress, return_result=True)
     if _is_path(model):
         out["model_file"] = str(model)
+    _fit_extras(out, result, profile, jackknife, seed, redshift)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -796,6 +802,24 @@ def forecast(array: Any, true_model: Model, alternatives: Iterable[Model], obser
 
 
 # --------------------------------------------------------------------------- profile, jackknife
+
+
+def _fit_extras(out: dict, result: Any, profile: Optional[str], jackknife: Optional[str],
+                seed: int, redshift: float) -> None:
+    """Add ``profile`` ({name: profile dict}) and ``jackknife`` to a fit's record, with one
+    notice each."""
+    if profile:
+        from .infer.profile import profile as run_profile, profile_note
+        prof = run_profile(result.statistic, profile, seed=seed, best=result, starts=3)
+        out["profile"] = {profile: prof}
+        out["notices"].append(profile_note(prof))
+    if jackknife:
+        from .infer.jackknife import GROUPINGS, jackknife as run_jackknife
+        if jackknife not in GROUPINGS:
+            raise UvfitError(f"jackknife must be one of {', '.join(GROUPINGS)} (got {jackknife!r})")
+        jk = run_jackknife(result.statistic, result, by=jackknife, seed=seed, redshift=redshift)
+        out["jackknife"] = jk
+        out["notices"].extend(f"jackknife by {jackknife}: {line}" for line in jk["summary"])
 
 
 def _fit_for(data, model, mode, systematic, starts, seed, selection, options):

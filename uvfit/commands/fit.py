@@ -28,11 +28,16 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
               help="Write the full result as JSON here.")
 @click.option("--save-model", type=click.Path(dir_okay=False), default=None,
               help="Write the best-fit model (TOML) here.")
+@click.option("--profile", "profile_name", default=None, metavar="NAME",
+              help="Add the profile-likelihood interval of this free parameter (component.parameter).")
+@click.option("--jackknife", type=click.Choice(["station", "scan", "channel"]), default=None,
+              help="Add refits with each station, scan or channel left out, and their jackknife errors.")
 @seed_option
 @force_option
 @selection_options
 def command(data, model, mode, systematic, rescale_errors, starts, global_search, redshift,
-            max_evaluations, no_resolved_test, json_out, save_model, seed, force, **kwargs):
+            max_evaluations, no_resolved_test, json_out, save_model, profile_name, jackknife, seed,
+            force, **kwargs):
     """Fit MODEL (a TOML model file) to the visibilities in DATA by least squares.
 
     Prints every parameter with its error, the derived quantities (separations, position angles,
@@ -49,9 +54,9 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     options = dict(mode=mode, systematic=systematic, rescale_errors=rescale_errors, starts=starts,
                    seed=seed, global_search=global_search, redshift=redshift,
                    selection=selection, resolved_test=not no_resolved_test,
-                   max_evaluations=max_evaluations)
+                   max_evaluations=max_evaluations, profile=profile_name, jackknife=jackknife)
     total = starts + (1 if global_search else 0)
-    with as_options(max_evaluations="--max-evaluations"):
+    with as_options(max_evaluations="--max-evaluations", jackknife="--jackknife"):
         if total > 1:
             with progressbar(total, "fitting") as bar:
                 report = tasks.fit(data, model, progress=bar.update, **options)

@@ -187,6 +187,8 @@ def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0
                           progress=progress, return_result=True)
     if _is_path(model):
         out["model_file"] = str(model)
+    from .infer.fluxscale import annotate as annotate_flux_scale
+    annotate_flux_scale(out, result)
     _fit_extras(out, result, profile, jackknife, seed, redshift)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 

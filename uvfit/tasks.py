@@ -238,7 +238,7 @@ def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 
            chain: Optional[str] = None, resume: bool = False, force: bool = False,
            order_by: str = "flux", starts: int = 1, redshift: float = 0.0,
            selection: Optional[dict] = None, progress: Progress = None,
-           data_path: Optional[str] = None) -> SampleReport:
+           data_path: Optional[str] = None, rescale_errors: bool = False) -> SampleReport:
     """Posterior of the model's free parameters by ensemble MCMC (emcee), from the best fit.
 
     Parameters
@@ -269,6 +269,9 @@ def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 
         Called with the number of steps done so far.
     data_path : str, optional
         The data file recorded (default: ``data`` when it is a path).
+    rescale_errors : bool
+        Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first (recorded as
+        ``error_scale``).
 
     Returns
     -------
@@ -298,7 +301,8 @@ def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 
     post = run_sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain,
                       resume=resume, force=force, order_by=order_by, progress=progress,
-                      starts=starts, redshift=redshift, data_path=data_path)
+                      starts=starts, redshift=redshift, data_path=data_path,
+                      **({"rescale_errors": True} if rescale_errors else {}))
     out = post.to_dict()
     out["selection"] = _given(selection)
     return SampleReport(record=out, posterior=post, notes=notes)
@@ -335,7 +339,8 @@ class CompareReport:
 def compare(data: Data, models: Sequence[Model], mode: str = "complex", systematic: float = 0.0,
             starts: int = 1, bootstrap: int = 0, seed: int = 0,
             names: Optional[Sequence[str]] = None, selection: Optional[dict] = None,
-            progress: Progress = None, data_path: Optional[str] = None) -> CompareReport:
+            progress: Progress = None, data_path: Optional[str] = None,
+            rescale_errors: bool = False) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
     Parameters
@@ -356,6 +361,9 @@ def compare(data: Data, models: Sequence[Model], mode: str = "complex", systemat
         Called with 1 after each bootstrap simulation.
     data_path : str, optional
         The data file recorded (default: ``data`` when it is a path).
+    rescale_errors : bool
+        Multiply every sigma by sqrt(chi2/dof) of the model with the most free parameters, for
+        every model and the bootstrap (recorded as ``error_scale``).
 
     Returns
     -------
@@ -389,7 +397,8 @@ def compare(data: Data, models: Sequence[Model], mode: str = "complex", systemat
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
     out = run_compare(vset, skies, mode=mode, systematic=systematic, bootstrap=bootstrap,
-                      seed=seed, progress=progress, starts=starts, names=names)
+                      seed=seed, progress=progress, starts=starts, names=names,
+                      **({"rescale_errors": True} if rescale_errors else {}))
     out["data"] = None if data_path is None else str(data_path)
     out["selection"] = selection if selection is not None else {}
     out["model_files"] = [str(m) if _is_path(m) else None for m in models]

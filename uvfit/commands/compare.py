@@ -18,10 +18,13 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
               help="Simulated data sets for the false-alarm probability of each richer model.")
 @click.option("--json", "json_out", type=click.Path(dir_okay=False), default=None,
               help="Write the comparison as JSON here.")
+@click.option("--rescale-errors", is_flag=True,
+              help="Multiply every sigma by sqrt(chi2/dof) of the richest model's fit first.")
 @seed_option
 @force_option
 @selection_options
-def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, force, **kwargs):
+def command(data, models, mode, systematic, starts, bootstrap, json_out, rescale_errors, seed, force,
+            **kwargs):
     """Fit two or more MODELS to DATA and say whether the richer ones are required.
 
     Reports chi2, AIC and BIC of each model and, against the model with the fewest free
@@ -38,7 +41,7 @@ def command(data, models, mode, systematic, starts, bootstrap, json_out, seed, f
     if json_out:
         check_writable(json_out, force)
     options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed,
-                   selection=selection)
+                   selection=selection, rescale_errors=rescale_errors)
     with as_options(bootstrap="--bootstrap"):
         if bootstrap > 0:
             with progressbar(bootstrap, "bootstrap") as bar:

@@ -35,10 +35,12 @@ from ._common import (as_options, echo_notes, force_option, pop_selection, progr
                    "model file's values, the others random, seeded).")
 @click.option("--redshift", type=float, default=0.0, show_default=True,
               help="Redshift for the rest-frame brightness temperatures.")
+@click.option("--rescale-errors", is_flag=True,
+              help="Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first.")
 @force_option
 @selection_options
 def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chain_path, resume,
-            corner_path, json_path, order_by, starts, redshift, force, **kwargs):
+            corner_path, json_path, order_by, starts, redshift, rescale_errors, force, **kwargs):
     """Sample the posterior of MODEL's free parameters given the visibilities in DATA.
 
     The chain starts at the least-squares best fit and stops when the autocorrelation time has
@@ -73,7 +75,8 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
         report = tasks.sample(data, model, mode=mode, systematic=systematic, walkers=walkers,
                               max_steps=max_steps, seed=seed, procs=procs, chain=chain_path,
                               resume=resume, force=force, order_by=order_by, progress=progress,
-                              starts=starts, redshift=redshift, selection=selection)
+                              starts=starts, redshift=redshift, selection=selection,
+                              rescale_errors=rescale_errors)
     echo_notes(report.notes)
     echo_notes(report.posterior.notes, prefix="note: ")
     click.echo(report.text())

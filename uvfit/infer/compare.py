@@ -18,7 +18,7 @@ from ..errors import FitError, UvfitError
 from ..stats.base import effective_sigma
 from ..labels import COMPARE_CAUTION
 from ..stats.modes import make_statistic
-from .lsq import fit
+from .lsq import aic, bic, fit
 
 
 def _fit_model(vset, model, mode, systematic, starts, seed):
@@ -38,13 +38,15 @@ def _refit_on(result, vset_sim, seed, starts):
 
 
 def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, progress=None,
-            starts=1, names=None, bootstrap_starts=1, alpha=0.01):
+            starts=1, names=None, bootstrap_starts=1, alpha=0.01, rescale_errors=False):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
 
     ``models``: SkyModel objects; ``names``: labels for them (default model1, model2...).
     ``bootstrap``: number of simulated data sets for the false-alarm probabilities (0: none).
     ``progress``: called with 1 after each bootstrap trial. ``alpha``: the FAP below which a richer
-    model counts as required.
+    model counts as required. ``rescale_errors``: every sigma times f = sqrt(chi2/dof) of the
+    model with the most free parameters (chi2, AIC, BIC and likelihood ratios divided by f^2; the
+    bootstrap noise times f); f is recorded as ``error_scale``.
     """
     models = list(models)
     if len(models) < 2:
@@ -65,18 +67,25 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     n_free = [r.n_free for r in results]
     simple = int(np.argmin(n_free))
     s_res = results[simple]
+    f2 = 1.0
+    if rescale_errors:
+        rich = results[int(np.argmax(n_free))]
+        if rich.dof > 0 and rich.chi2 > 0:
+            f2 = float(rich.chi2 / rich.dof)
     rows = []
     for name, r in zip(names, results):
-        rows.append({"name": name, "chi2": r.chi2, "dof": r.dof, "n_free": r.n_free, "n_data": r.n_data,
-                     "reduced_chi2": r.reduced_chi2, "aic": r.aic, "bic": r.bic,
-                     "likelihood_ratio": float(s_res.chi2 - r.chi2), "false_alarm_probability": None,
-                     "notices": list(r.notices)})
+        c = r.chi2 / f2
+        rows.append({"name": name, "chi2": c, "dof": r.dof, "n_free": r.n_free, "n_data": r.n_data,
+                     "reduced_chi2": c / r.dof if r.dof > 0 else float("nan"),
+                     "aic": aic(c, r.n_free), "bic": bic(c, r.n_free, r.n_data),
+                     "likelihood_ratio": float((s_res.chi2 - r.chi2) / f2),
+                     "false_alarm_probability": None, "notices": list(r.notices)})
     richer = [i for i in range(len(results)) if i != simple and n_free[i] > n_free[simple]]
     n_failed = 0
     if bootstrap > 0 and richer:
         sim_stat = s_res.statistic
         vs = sim_stat.vset
-        sigma = effective_sigma(vs.sigma, np.abs(vs.vis), systematic)
+        sigma = effective_sigma(vs.sigma, np.abs(vs.vis), systematic) * np.sqrt(f2)
         truth = np.asarray(s_res.model.visibilities(vs.u, vs.v, frequency=vs.frequency), complex)
         obs = {i: rows[i]["likelihood_ratio"] for i in richer}
         exceed = {i: 0 for i in richer}
@@ -106,7 +115,8 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     return {"version": __version__, "mode": mode, "systematic": float(systematic), "seed": int(seed),
             "n_bootstrap": bootstrap, "n_failed_refits": n_failed, "alpha": alpha,
             "simplest": names[simple], "models": rows, "preferred": preferred, "verdict": verdict,
-            "caution": COMPARE_CAUTION}
+            "caution": COMPARE_CAUTION,
+            **({"error_scale": float(np.sqrt(f2))} if rescale_errors else {})}
 
 
 def _fmt_p(p):

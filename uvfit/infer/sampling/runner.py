@@ -206,14 +206,15 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
 def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_steps=5000, seed=0,
            procs=1, chain_path=None, resume=False, force=False, order_by="flux", progress=None,
            starts=1, frequency=None, redshift=0.0, data_path=None, derived=True,
-           fit_progress=None, ball_scale=0.3, **options):
+           fit_progress=None, ball_scale=0.3, rescale_errors=False, **options):
     """Sample the posterior of ``model`` (not changed) given ``vset`` in ``mode``; a :class:`Posterior`.
 
     A new chain starts from the least-squares best fit (``starts`` starts, seeded), in a ball scaled
     by its covariance; parameters the mode cannot constrain are fixed as the fitter fixes them. A
     resumed chain (``resume`` with ``chain_path``) skips the fit and continues where it stopped.
     Other arguments: see :func:`run_chain` and :func:`summarize_chain`. ``options`` go to the
-    statistic.
+    statistic. ``rescale_errors``: every sigma times sqrt(chi2/dof) of the least-squares fit (a
+    reduced chi2 of 1), recorded as ``error_scale`` (a resumed chain reuses the stored factor).
     """
     from ...stats.modes import make_statistic
     from ..lsq import fit, fix_degeneracies
@@ -234,6 +235,7 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
                                      f"not {now}",
                                      f"resume with the same --{key}, or start a new chain with --force")
         stat, fixed, notices = fix_degeneracies(stat)
+        error_scale = float(stored.get("error_scale", 1.0)) if chain_path and os.path.exists(chain_path) else 1.0
     else:
         result = fit(stat, starts=starts, seed=seed, progress=fit_progress, strict=False)
         stat = result.statistic
@@ -242,6 +244,16 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
         extra["least_squares"] = {"values": dict(zip(result.names, map(float, result.values))),
                                   "errors": dict(zip(result.names, map(float, result.errors))),
                                   "chi2": float(result.chi2), "dof": int(result.dof)}
+        error_scale = 1.0
+        if rescale_errors and result.dof > 0 and result.chi2 > 0:
+            error_scale = float(np.sqrt(result.chi2 / result.dof))
+            cov = cov * error_scale ** 2
+    if rescale_errors and error_scale != 1.0:
+        stat = stat.scaled(error_scale)
+        notices = list(notices) + [f"every sigma multiplied by sqrt(chi2/dof) = {error_scale:.4g} "
+                                   "(rescale_errors)"]
+    if rescale_errors:
+        extra["error_scale"] = float(error_scale)
     work = stat.model
     if stat.n_data <= len(work.free_names):
         raise FitError(f"only {stat.n_data} data for {len(work.free_names)} free parameters",
@@ -254,6 +266,8 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
     log_prob = LogPosterior(stat, work)
     bounds = (log_prob.lower, log_prob.upper)
     meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
+    if rescale_errors:
+        meta["error_scale"] = float(error_scale)
     chain = run_chain(log_prob, start, cov, bounds, work.free_names, n_walkers=n_walkers,
                       max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
                       resume=resume, force=force, progress=progress, meta=meta,

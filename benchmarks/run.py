@@ -30,6 +30,7 @@ Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcsec
    model evaluation on the same rows), at 1e4 and 1e5 visibilities (--quick: 1e4); medians of
    step-by-step times (the machine may be shared), the ratio of minima beside it.
 """
+
 import argparse
 import contextlib
 import datetime
@@ -51,24 +52,43 @@ from uvfit.outputs import check_writable, write_json  # noqa: E402
 from uvfit.sky import engine  # noqa: E402
 from uvfit.sky.model import SkyModel  # noqa: E402
 
-GOALS = {"trig_bound": ("<=", 1.3), "jacobian_fit": (">=", 5.0), "scaling_flatness": ("<=", 1.3),
-         "scaling_memory": ("<=", 4.0), "sampler_overhead": ("<=", 1.2)}
+GOALS = {
+    "trig_bound": ("<=", 1.3),
+    "jacobian_fit": (">=", 5.0),
+    "scaling_flatness": ("<=", 1.3),
+    "scaling_memory": ("<=", 4.0),
+    "sampler_overhead": ("<=", 1.2),
+}
 
 
 def two_gaussians():
-    return SkyModel.build([
-        {"name": "core", "shape": "gaussian", "flux": 1.0, "east": 0.12, "north": -0.25, "fwhm": 0.3},
-        {"name": "jet", "shape": "gaussian", "flux": 0.5, "east": -0.4, "north": 0.33, "fwhm": 0.5}],
-        angular_unit="mas")
+    return SkyModel.build(
+        [
+            {"name": "core", "shape": "gaussian", "flux": 1.0, "east": 0.12, "north": -0.25, "fwhm": 0.3},
+            {"name": "jet", "shape": "gaussian", "flux": 0.5, "east": -0.4, "north": 0.33, "fwhm": 0.5},
+        ],
+        angular_unit="mas",
+    )
 
 
 def three_components():
-    return SkyModel.build([
-        {"name": "core", "shape": "elliptical_gaussian", "flux": 1.0, "east": {"value": 0.0, "fixed": True},
-         "north": {"value": 0.0, "fixed": True}, "fwhm": 0.25, "axis_ratio": 0.6, "position_angle": 30.0},
-        {"name": "knot", "shape": "gaussian", "flux": 0.4, "east": 0.6, "north": 0.45, "fwhm": 0.35},
-        {"name": "hotspot", "shape": "gaussian", "flux": 0.2, "east": -0.9, "north": -0.3, "fwhm": 0.2}],
-        angular_unit="mas")
+    return SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "elliptical_gaussian",
+                "flux": 1.0,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+                "fwhm": 0.25,
+                "axis_ratio": 0.6,
+                "position_angle": 30.0,
+            },
+            {"name": "knot", "shape": "gaussian", "flux": 0.4, "east": 0.6, "north": 0.45, "fwhm": 0.35},
+            {"name": "hotspot", "shape": "gaussian", "flux": 0.2, "east": -0.9, "north": -0.3, "fwhm": 0.2},
+        ],
+        angular_unit="mas",
+    )
 
 
 def uv_rows(n, seed):
@@ -82,8 +102,17 @@ def simulate(model, n, sigma, seed):
     u, v = uv_rows(n, seed)
     rng = np.random.default_rng(seed + 1)
     vis = model.visibilities(u, v) + sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
-    return VisibilitySet(u=u, v=v, w=None, time=np.zeros(n), frequency=230e9, station1=["AA"] * n,
-                         station2=["BB"] * n, vis=vis, sigma=np.full(n, sigma))
+    return VisibilitySet(
+        u=u,
+        v=v,
+        w=None,
+        time=np.zeros(n),
+        frequency=230e9,
+        station1=["AA"] * n,
+        station2=["BB"] * n,
+        vis=vis,
+        sigma=np.full(n, sigma),
+    )
 
 
 def best_of(funcs, repeat, number=1):
@@ -107,7 +136,7 @@ def trig_bound(quick):
     theta = model.get_free()
     rpu = model.rad_per_unit
     out = {}
-    for n in ([10 ** 5] if quick else [10 ** 5, 10 ** 6]):
+    for n in [10**5] if quick else [10**5, 10**6]:
         u, v = uv_rows(n, 1)
         turns = [u * (c["east"] * rpu) + v * (c["north"] * rpu) for c in model.members()]
         phases = [2.0 * np.pi * t for t in turns]
@@ -127,35 +156,45 @@ def trig_bound(quick):
             def own_trig():
                 for t in turns:
                     k.sincos_array(t, s, c)
+
             funcs.append(own_trig)
         for f in funcs:
             f()
         times = best_of(funcs, repeats_for(n, quick) * 2)
-        row = {"rows": n, "model_ns_per_row": times[0] / n * 1e9,
-               "numpy_sin_cos_ns_per_row": times[1] / n * 1e9, "ratio": times[0] / times[1]}
+        row = {
+            "rows": n,
+            "model_ns_per_row": times[0] / n * 1e9,
+            "numpy_sin_cos_ns_per_row": times[1] / n * 1e9,
+            "ratio": times[0] / times[1],
+        }
         if len(times) > 2:
             row["engine_sincos_ns_per_row"] = times[2] / n * 1e9
             row["ratio_to_engine_sincos"] = times[0] / times[2]
         out[str(n)] = row
     worst = max(r["ratio"] for r in out.values())
-    return {"by_rows": out, "ratio": worst,
-            "definition": "t(model.visibilities, 2 offset Gaussians) / t(numpy sin + cos of each "
-                          "component's precomputed phase into preallocated arrays); worst size"}
+    return {
+        "by_rows": out,
+        "ratio": worst,
+        "definition": "t(model.visibilities, 2 offset Gaussians) / t(numpy sin + cos of each "
+        "component's precomputed phase into preallocated arrays); worst size",
+    }
 
 
 # ------------------------------------------------------------------------------------------ 2
 def jacobian_fit(quick):
     from scipy.optimize import least_squares
+
     from uvfit.stats.modes import make_statistic
 
     truth = three_components()
-    n = 10 ** 5
+    n = 10**5
     vs = simulate(truth, n, 0.05, 3)
     start = truth.copy()
     x_true = truth.get_free()
     rng = np.random.default_rng(5)
-    x0 = x_true + np.where([nm.endswith(("flux", "fwhm")) for nm in start.free_names],
-                           0.1 * np.abs(x_true), 0.03) * rng.standard_normal(x_true.size)
+    x0 = x_true + np.where(
+        [nm.endswith(("flux", "fwhm")) for nm in start.free_names], 0.1 * np.abs(x_true), 0.03
+    ) * rng.standard_normal(x_true.size)
     start.set_free(x0)
     stat = make_statistic("complex", vs, start)
     lo, hi = start.free_bounds()
@@ -163,8 +202,16 @@ def jacobian_fit(quick):
     def run(jac, solver="exact"):
         t0 = time.perf_counter()
         with np.errstate(all="ignore"):
-            res = least_squares(stat.residuals, x0, jac=jac, bounds=(lo, hi), method="trf",
-                                x_scale="jac", max_nfev=200 * (x0.size + 1), tr_solver=solver)
+            res = least_squares(
+                stat.residuals,
+                x0,
+                jac=jac,
+                bounds=(lo, hi),
+                method="trf",
+                x_scale="jac",
+                max_nfev=200 * (x0.size + 1),
+                tr_solver=solver,
+            )
         return time.perf_counter() - t0, res
 
     run(stat.jacobian)  # warm-up
@@ -185,8 +232,10 @@ def jacobian_fit(quick):
         t, rlf = run("2-point", "lsmr")
         tlf = min(tlf, t)
     jac = stat.jacobian(ra.x)
-    t_res, t_jac, t_svd = best_of([lambda: stat.residuals(ra.x), lambda: stat.jacobian(ra.x),
-                                   lambda: np.linalg.svd(jac, full_matrices=False)], 3 if quick else 7)
+    t_res, t_jac, t_svd = best_of(
+        [lambda: stat.residuals(ra.x), lambda: stat.jacobian(ra.x), lambda: np.linalg.svd(jac, full_matrices=False)],
+        3 if quick else 7,
+    )
     cov = np.linalg.inv(jac.T @ jac)
     err = np.sqrt(np.diag(cov))
     shift = float(np.max(np.abs(ra.x - rf.x) / err))
@@ -194,30 +243,46 @@ def jacobian_fit(quick):
     chi2a, chi2f = 2 * ra.cost, 2 * rf.cost
     # the project's fitter, for the record (analytic Jacobian, one start)
     from uvfit.infer.lsq import fit
+
     m2 = start.copy()
     t0 = time.perf_counter()
     fit(make_statistic("complex", vs, m2), seed=0)
     t_fit = time.perf_counter() - t0
-    return {"rows": n, "free_parameters": int(x0.size), "analytic_s": ta, "finite_difference_s": tf,
-            "ratio": tf / ta, "analytic_evaluations": {"residuals": int(ra.nfev), "jacobian": int(ra.njev)},
-            "finite_difference_evaluations": {"residuals": int(rf.nfev), "jacobian": int(rf.njev)},
-            "chi2_analytic": chi2a, "chi2_finite_difference": chi2f,
-            "max_shift_in_errors": shift, "uvfit_fit_s": t_fit,
-            "iteration_costs_ms": {"residuals": t_res * 1e3, "analytic_jacobian": t_jac * 1e3,
-                                   "finite_difference_jacobian": x0.size * t_res * 1e3,
-                                   "svd_of_jacobian": t_svd * 1e3},
-            "jacobian_stage_ratio": x0.size * t_res / t_jac,
-            "iterative_solver": {"analytic_s": tla, "finite_difference_s": tlf, "ratio": tlf / tla,
-                                 "max_shift_in_errors_from_exact": shift_lsmr},
-            "definition": "t(least_squares, 2-point FD Jacobian) / t(same, analytic Jacobian); "
-                          "min of rounds; same start, bounds and options"}
+    return {
+        "rows": n,
+        "free_parameters": int(x0.size),
+        "analytic_s": ta,
+        "finite_difference_s": tf,
+        "ratio": tf / ta,
+        "analytic_evaluations": {"residuals": int(ra.nfev), "jacobian": int(ra.njev)},
+        "finite_difference_evaluations": {"residuals": int(rf.nfev), "jacobian": int(rf.njev)},
+        "chi2_analytic": chi2a,
+        "chi2_finite_difference": chi2f,
+        "max_shift_in_errors": shift,
+        "uvfit_fit_s": t_fit,
+        "iteration_costs_ms": {
+            "residuals": t_res * 1e3,
+            "analytic_jacobian": t_jac * 1e3,
+            "finite_difference_jacobian": x0.size * t_res * 1e3,
+            "svd_of_jacobian": t_svd * 1e3,
+        },
+        "jacobian_stage_ratio": x0.size * t_res / t_jac,
+        "iterative_solver": {
+            "analytic_s": tla,
+            "finite_difference_s": tlf,
+            "ratio": tlf / tla,
+            "max_shift_in_errors_from_exact": shift_lsmr,
+        },
+        "definition": "t(least_squares, 2-point FD Jacobian) / t(same, analytic Jacobian); "
+        "min of rounds; same start, bounds and options",
+    }
 
 
 # ------------------------------------------------------------------------------------------ 3
 def scaling(quick):
     model = two_gaussians()
     theta = model.get_free()
-    sizes = [10 ** k for k in range(3, 7 if quick else 8)]
+    sizes = [10**k for k in range(3, 7 if quick else 8)]
     rows = {}
     for n in sizes:
         u, v = uv_rows(n, 2)
@@ -233,21 +298,29 @@ def scaling(quick):
         finally:
             tracemalloc.stop()
         data_bytes = u.nbytes + v.nbytes + vis.nbytes
-        rows[str(n)] = {"ns_per_row": t / n * 1e9, "call_us": t * 1e6, "peak_bytes": int(peak),
-                        "data_bytes": int(data_bytes), "memory_ratio": peak / data_bytes}
+        rows[str(n)] = {
+            "ns_per_row": t / n * 1e9,
+            "call_us": t * 1e6,
+            "peak_bytes": int(peak),
+            "data_bytes": int(data_bytes),
+            "memory_ratio": peak / data_bytes,
+        }
         del vis
     per = [r["ns_per_row"] for r in rows.values()]
-    big = [r["ns_per_row"] for k, r in rows.items() if int(k) >= 10 ** 4]
+    big = [r["ns_per_row"] for k, r in rows.items() if int(k) >= 10**4]
     # fixed cost per call: intercept of t = a + b n through the two smallest sizes
     t1, t2 = rows[str(sizes[0])]["call_us"], rows[str(sizes[1])]["call_us"]
     fixed = (t1 * sizes[1] - t2 * sizes[0]) / (sizes[1] - sizes[0])
-    return {"by_rows": rows, "flatness": max(per) / min(per),
-            "flatness_from_1e4": max(big) / min(big),
-            "fixed_cost_per_call_us": fixed,
-            "memory_ratio": max(r["memory_ratio"] for r in rows.values()),
-            "data_arrays": "u and v (8 bytes per row each) + output visibilities (16 bytes per row)",
-            "definition": "flatness = max / min of the time per row over the sizes; memory ratio = "
-                          "tracemalloc peak during the call / data bytes"}
+    return {
+        "by_rows": rows,
+        "flatness": max(per) / min(per),
+        "flatness_from_1e4": max(big) / min(big),
+        "fixed_cost_per_call_us": fixed,
+        "memory_ratio": max(r["memory_ratio"] for r in rows.values()),
+        "data_arrays": "u and v (8 bytes per row each) + output visibilities (16 bytes per row)",
+        "definition": "flatness = max / min of the time per row over the sizes; memory ratio = "
+        "tracemalloc peak during the call / data bytes",
+    }
 
 
 # ------------------------------------------------------------------------------------------ 4
@@ -256,7 +329,7 @@ def sampler_overhead(quick):
     from uvfit.stats.modes import make_statistic
 
     out = {}
-    for n in ([10 ** 4] if quick else [10 ** 4, 10 ** 5]):
+    for n in [10**4] if quick else [10**4, 10**5]:
         model = two_gaussians()
         vs = simulate(model, n, 0.05, 4)
         stat = make_statistic("complex", vs, model)
@@ -265,7 +338,7 @@ def sampler_overhead(quick):
         names = model.free_names
         lo, hi = model.free_bounds()
         walkers = max(32, 4 * len(names))
-        steps = 20 if quick else (60 if n > 10 ** 4 else 150)
+        steps = 20 if quick else (60 if n > 10**4 else 150)
         cov = np.diag((1e-3 * np.maximum(np.abs(theta), 0.01)) ** 2)
         rows = stat.rows
         one = lambda: model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)  # noqa: E731
@@ -275,22 +348,41 @@ def sampler_overhead(quick):
         for _ in range(1 if quick else 2):
             evals += [timeit.timeit(one, number=1) for _ in range(30)]
             marks = [time.perf_counter()]
-            chain = run_chain(lp, theta, cov, (lo, hi), names, n_walkers=walkers, max_steps=steps,
-                              seed=2, progress=lambda k: marks.append(time.perf_counter()))
-            stamps += list(np.diff(marks[1:]))   # step k -> k+1 (the first interval holds setup)
+            chain = run_chain(
+                lp,
+                theta,
+                cov,
+                (lo, hi),
+                names,
+                n_walkers=walkers,
+                max_steps=steps,
+                seed=2,
+                progress=lambda k: marks.append(time.perf_counter()),
+            )
+            stamps += list(np.diff(marks[1:]))  # step k -> k+1 (the first interval holds setup)
             evals += [timeit.timeit(one, number=1) for _ in range(30)]
         step_med, step_min = float(np.median(stamps)), float(np.min(stamps))
         eval_med, eval_min = float(np.median(evals)), float(np.min(evals))
-        out[str(n)] = {"rows": n, "walkers": walkers, "steps": len(stamps), "step_s_median": step_med,
-                       "step_s_min": step_min, "step_s_mean": float(np.mean(stamps)),
-                       "model_evaluation_s_median": eval_med, "model_evaluation_s_min": eval_min,
-                       "ratio": step_med / (walkers * eval_med),
-                       "ratio_of_minima": step_min / (walkers * eval_min),
-                       "acceptance": float(np.mean(chain.acceptance_fraction))}
-    return {"by_rows": out, "ratio": out[max(out, key=int)]["ratio"],
-            "definition": "median wall time per ensemble step (timed step by step) / (walkers x "
-                          "median of one model.visibilities on the statistic's rows, timed before "
-                          "and after the chain); reported at the largest size"}
+        out[str(n)] = {
+            "rows": n,
+            "walkers": walkers,
+            "steps": len(stamps),
+            "step_s_median": step_med,
+            "step_s_min": step_min,
+            "step_s_mean": float(np.mean(stamps)),
+            "model_evaluation_s_median": eval_med,
+            "model_evaluation_s_min": eval_min,
+            "ratio": step_med / (walkers * eval_med),
+            "ratio_of_minima": step_min / (walkers * eval_min),
+            "acceptance": float(np.mean(chain.acceptance_fraction)),
+        }
+    return {
+        "by_rows": out,
+        "ratio": out[max(out, key=int)]["ratio"],
+        "definition": "median wall time per ensemble step (timed step by step) / (walkers x "
+        "median of one model.visibilities on the statistic's rows, timed before "
+        "and after the chain); reported at the largest size",
+    }
 
 
 def machine():
@@ -303,12 +395,18 @@ def machine():
                     break
     except OSError:
         pass
-    info = {"cpu": cpu, "cores": os.cpu_count(), "python": platform.python_version(),
-            "numpy": np.__version__, "platform": platform.platform(),
-            "load_average": list(os.getloadavg()) if hasattr(os, "getloadavg") else None,
-            "OPENBLAS_CORETYPE": os.environ.get("OPENBLAS_CORETYPE")}
+    info = {
+        "cpu": cpu,
+        "cores": os.cpu_count(),
+        "python": platform.python_version(),
+        "numpy": np.__version__,
+        "platform": platform.platform(),
+        "load_average": list(os.getloadavg()) if hasattr(os, "getloadavg") else None,
+        "OPENBLAS_CORETYPE": os.environ.get("OPENBLAS_CORETYPE"),
+    }
     try:
         import numba
+
         info["numba"] = numba.__version__
     except Exception:
         info["numba"] = None
@@ -326,11 +424,18 @@ def main(argv=None):
     ap.add_argument("--quick", action="store_true", help="smaller sizes and fewer repeats")
     ap.add_argument("-o", "--output", default=None, help="JSON file for the results")
     ap.add_argument("--force", action="store_true", help="overwrite the JSON file")
-    ap.add_argument("--engine", choices=engine.ENGINES, default=None,
-                    help="visibility engine (default: UVFIT_ENGINE, else numba when available)")
+    ap.add_argument(
+        "--engine",
+        choices=engine.ENGINES,
+        default=None,
+        help="visibility engine (default: UVFIT_ENGINE, else numba when available)",
+    )
     ap.add_argument("--only", default=None, help="comma-separated subset: trig,fit,scaling,sampler")
-    ap.add_argument("--threaded-blas", action="store_true",
-                    help="leave OpenBLAS its threads (default: one thread, as the commands run)")
+    ap.add_argument(
+        "--threaded-blas",
+        action="store_true",
+        help="leave OpenBLAS its threads (default: one thread, as the commands run)",
+    )
     args = ap.parse_args(argv)
     if args.engine:
         engine.set_engine(args.engine)
@@ -343,59 +448,86 @@ def main(argv=None):
             return 2
     only = set((args.only or "trig,fit,scaling,sampler").split(","))
     from uvfit._blas import single_threaded
-    with (contextlib.nullcontext() if args.threaded_blas else single_threaded()):
+
+    with contextlib.nullcontext() if args.threaded_blas else single_threaded():
         return measure(args, only)
 
 
 def measure(args, only):
     started = datetime.datetime.now(datetime.timezone.utc)
-    res = {"date_utc": started.isoformat(timespec="seconds"), "quick": bool(args.quick),
-           "blas_threads": "default" if args.threaded_blas else 1,
-           "engine": engine.current(), "machine": machine(), "goals": GOALS}
+    res = {
+        "date_utc": started.isoformat(timespec="seconds"),
+        "quick": bool(args.quick),
+        "blas_threads": "default" if args.threaded_blas else 1,
+        "engine": engine.current(),
+        "machine": machine(),
+        "goals": GOALS,
+    }
     t0 = time.perf_counter()
     two_gaussians().visibilities(*uv_rows(10, 0))  # compile / load the kernels
     res["first_use_s"] = time.perf_counter() - t0
-    print(f"engine {res['engine']}, first use (import, compile or cache load) {res['first_use_s']:.2f} s",
-          file=sys.stderr)
+    print(
+        f"engine {res['engine']}, first use (import, compile or cache load) {res['first_use_s']:.2f} s", file=sys.stderr
+    )
     if "trig" in only:
         res["trig_bound"] = trig_bound(args.quick)
         print("1. model / numpy trig       " + verdict("trig_bound", res["trig_bound"]["ratio"]))
         for n, r in res["trig_bound"]["by_rows"].items():
-            extra = (f", engine sincos {r['engine_sincos_ns_per_row']:.2f} ns/row "
-                     f"(model / it {r['ratio_to_engine_sincos']:.2f})") if "engine_sincos_ns_per_row" in r else ""
-            print(f"     {n:>9} rows: model {r['model_ns_per_row']:.2f} ns/row, numpy sin+cos "
-                  f"{r['numpy_sin_cos_ns_per_row']:.2f} ns/row{extra}")
+            extra = (
+                (
+                    f", engine sincos {r['engine_sincos_ns_per_row']:.2f} ns/row "
+                    f"(model / it {r['ratio_to_engine_sincos']:.2f})"
+                )
+                if "engine_sincos_ns_per_row" in r
+                else ""
+            )
+            print(
+                f"     {n:>9} rows: model {r['model_ns_per_row']:.2f} ns/row, numpy sin+cos "
+                f"{r['numpy_sin_cos_ns_per_row']:.2f} ns/row{extra}"
+            )
     if "fit" in only:
         res["jacobian_fit"] = jacobian_fit(args.quick)
         r = res["jacobian_fit"]
         print("2. fit FD / analytic        " + verdict("jacobian_fit", r["ratio"]))
         c = r["iteration_costs_ms"]
-        print(f"     per iteration: analytic Jacobian {c['analytic_jacobian']:.1f} ms, finite-difference "
-              f"Jacobian {c['finite_difference_jacobian']:.1f} ms (ratio {r['jacobian_stage_ratio']:.2f}), "
-              f"SVD of the Jacobian in the solver {c['svd_of_jacobian']:.1f} ms")
+        print(
+            f"     per iteration: analytic Jacobian {c['analytic_jacobian']:.1f} ms, finite-difference "
+            f"Jacobian {c['finite_difference_jacobian']:.1f} ms (ratio {r['jacobian_stage_ratio']:.2f}), "
+            f"SVD of the Jacobian in the solver {c['svd_of_jacobian']:.1f} ms"
+        )
         it = r["iterative_solver"]
-        print(f"     with tr_solver='lsmr': analytic {it['analytic_s']:.2f} s, finite differences "
-              f"{it['finite_difference_s']:.2f} s, ratio {it['ratio']:.2f}")
-        print(f"     {r['rows']} rows, {r['free_parameters']} free: analytic {r['analytic_s']:.2f} s, "
-              f"finite differences {r['finite_difference_s']:.2f} s; optima differ by "
-              f"{r['max_shift_in_errors']:.2g} errors, chi2 {r['chi2_analytic']:.2f} / "
-              f"{r['chi2_finite_difference']:.2f}; uvfit fit() {r['uvfit_fit_s']:.2f} s")
+        print(
+            f"     with tr_solver='lsmr': analytic {it['analytic_s']:.2f} s, finite differences "
+            f"{it['finite_difference_s']:.2f} s, ratio {it['ratio']:.2f}"
+        )
+        print(
+            f"     {r['rows']} rows, {r['free_parameters']} free: analytic {r['analytic_s']:.2f} s, "
+            f"finite differences {r['finite_difference_s']:.2f} s; optima differ by "
+            f"{r['max_shift_in_errors']:.2g} errors, chi2 {r['chi2_analytic']:.2f} / "
+            f"{r['chi2_finite_difference']:.2f}; uvfit fit() {r['uvfit_fit_s']:.2f} s"
+        )
     if "scaling" in only:
         res["scaling"] = r = scaling(args.quick)
         print("3. scaling: time per row    " + verdict("scaling_flatness", r["flatness"]))
         print("            peak memory     " + verdict("scaling_memory", r["memory_ratio"]))
-        print(f"     from 1e4 rows on: max/min {r['flatness_from_1e4']:.3f}; fixed cost per call "
-              f"{r['fixed_cost_per_call_us']:.1f} us")
+        print(
+            f"     from 1e4 rows on: max/min {r['flatness_from_1e4']:.3f}; fixed cost per call "
+            f"{r['fixed_cost_per_call_us']:.1f} us"
+        )
         for n, x in r["by_rows"].items():
-            print(f"     {n:>9} rows: {x['ns_per_row']:.2f} ns/row, peak {x['peak_bytes'] / 1e6:.3f} MB "
-                  f"= {x['memory_ratio']:.3f} x data")
+            print(
+                f"     {n:>9} rows: {x['ns_per_row']:.2f} ns/row, peak {x['peak_bytes'] / 1e6:.3f} MB "
+                f"= {x['memory_ratio']:.3f} x data"
+            )
     if "sampler" in only:
         res["sampler_overhead"] = r = sampler_overhead(args.quick)
         print("4. sampler step / evals     " + verdict("sampler_overhead", r["ratio"]))
         for n, x in r["by_rows"].items():
-            print(f"     {n:>9} rows: {x['walkers']} walkers, step {x['step_s_median'] * 1e3:.2f} ms "
-                  f"(median), model {x['model_evaluation_s_median'] * 1e6:.1f} us (median), ratio "
-                  f"{x['ratio']:.3f}; of the minima {x['ratio_of_minima']:.3f}")
+            print(
+                f"     {n:>9} rows: {x['walkers']} walkers, step {x['step_s_median'] * 1e3:.2f} ms "
+                f"(median), model {x['model_evaluation_s_median'] * 1e6:.1f} us (median), ratio "
+                f"{x['ratio']:.3f}; of the minima {x['ratio_of_minima']:.3f}"
+            )
     res["elapsed_s"] = time.perf_counter() - t0
     res["machine"]["load_average_end"] = list(os.getloadavg()) if hasattr(os, "getloadavg") else None
     if args.output:

@@ -14,6 +14,7 @@ the acceptance fraction and the wall time per step, and how tau evolves along on
 
 Output: a table on stdout and (with --json) the same numbers as JSON.
 """
+
 import argparse
 import math
 import os
@@ -39,36 +40,50 @@ def simulate(model, n, sigma, seed):
     phi = rng.uniform(0, 2 * np.pi, n)
     u, v = r * np.sin(phi), r * np.cos(phi)
     vis = model.visibilities(u, v) + sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
-    return VisibilitySet(u=u, v=v, w=None, time=np.zeros(n), frequency=86e9, station1=["A"] * n,
-                         station2=["B"] * n, vis=vis, sigma=np.full(n, sigma))
+    return VisibilitySet(
+        u=u,
+        v=v,
+        w=None,
+        time=np.zeros(n),
+        frequency=86e9,
+        station1=["A"] * n,
+        station2=["B"] * n,
+        vis=vis,
+        sigma=np.full(n, sigma),
+    )
 
 
 def linear_problem():
     comps = [(0.0, 0.0, 0.15, 1.0), (0.4, -0.3, 0.25, 0.4), (-0.5, 0.2, 0.0, 0.1)]
     spec = []
     for k, (e, n, w, f) in enumerate(comps):
-        c = {"name": f"c{k}", "shape": "gaussian" if w else "point", "flux": f, "east": FIXED(e),
-             "north": FIXED(n)}
+        c = {"name": f"c{k}", "shape": "gaussian" if w else "point", "flux": f, "east": FIXED(e), "north": FIXED(n)}
         if w:
             c["fwhm"] = FIXED(w)
         spec.append(c)
     model = SkyModel.build(spec, angular_unit="mas")
     vs = simulate(model, 200, 0.03, 1)
     q = np.hypot(vs.u, vs.v)
-    cols = [np.exp(-(np.pi * w * MAS * q) ** 2 / (4 * np.log(2)))
-            * np.exp(-2j * np.pi * (vs.u * e + vs.v * n) * MAS) for e, n, w, _ in comps]
+    cols = [
+        np.exp(-((np.pi * w * MAS * q) ** 2) / (4 * np.log(2))) * np.exp(-2j * np.pi * (vs.u * e + vs.v * n) * MAS)
+        for e, n, w, _ in comps
+    ]
     c = np.array(cols).T
     a = np.vstack([c.real, c.imag])
     y = np.concatenate([vs.vis.real, vs.vis.imag])
-    w = np.full(a.shape[0], 0.03 ** -2)
+    w = np.full(a.shape[0], 0.03**-2)
     cov = np.linalg.inv(a.T @ (w[:, None] * a))
     return model, vs, cov @ a.T @ (w * y), np.sqrt(np.diag(cov))
 
 
 def double_problem():
-    model = SkyModel.build([
-        {"name": "a", "shape": "point", "flux": 1.0, "east": FIXED(0.0), "north": FIXED(0.0)},
-        {"name": "b", "shape": "point", "flux": 0.3, "east": 0.3, "north": 0.2}], angular_unit="mas")
+    model = SkyModel.build(
+        [
+            {"name": "a", "shape": "point", "flux": 1.0, "east": FIXED(0.0), "north": FIXED(0.0)},
+            {"name": "b", "shape": "point", "flux": 0.3, "east": 0.3, "north": 0.2},
+        ],
+        angular_unit="mas",
+    )
     return model, simulate(model, 150, 0.05, 2)
 
 
@@ -77,10 +92,18 @@ def run(model, vs, seed, max_steps):
     post = sample(vs, model, max_steps=max_steps, seed=seed, derived=False)
     dt = time.perf_counter() - t0
     ch = post.chain
-    return post, {"seed": seed, "n_steps": ch.n_steps, "converged": ch.converged,
-                  "tau_max": float(np.max(ch.tau)), "steps_per_tau": ch.n_steps / float(np.max(ch.tau)),
-                  "acceptance": ch.acceptance_fraction, "burn_in": ch.burn_in, "thin": ch.thin,
-                  "seconds": dt, "ms_per_step": 1e3 * dt / ch.n_steps}
+    return post, {
+        "seed": seed,
+        "n_steps": ch.n_steps,
+        "converged": ch.converged,
+        "tau_max": float(np.max(ch.tau)),
+        "steps_per_tau": ch.n_steps / float(np.max(ch.tau)),
+        "acceptance": ch.acceptance_fraction,
+        "burn_in": ch.burn_in,
+        "thin": ch.thin,
+        "seconds": dt,
+        "ms_per_step": 1e3 * dt / ch.n_steps,
+    }
 
 
 def main():
@@ -93,8 +116,10 @@ def main():
 
     model, vs, mean, sd = linear_problem()
     print("linear problem: sampled vs analytic Gaussian posterior")
-    print(f"{'seed':>4s} {'steps':>6s} {'conv':>5s} {'tau':>6s} {'N/tau':>6s} {'acc':>5s} "
-          f"{'max |z| mean':>13s} {'max |sd ratio-1|/err':>21s} {'ms/step':>8s}")
+    print(
+        f"{'seed':>4s} {'steps':>6s} {'conv':>5s} {'tau':>6s} {'N/tau':>6s} {'acc':>5s} "
+        f"{'max |z| mean':>13s} {'max |sd ratio-1|/err':>21s} {'ms/step':>8s}"
+    )
     for seed in range(args.seeds):
         post, row = run(model, vs, seed, args.max_steps)
         ch = post.chain
@@ -103,17 +128,21 @@ def main():
         zs = (post.samples.std(axis=0, ddof=1) / sd - 1) * np.sqrt(2 * n_eff)
         row.update(z_mean=z.tolist(), z_sd=zs.tolist())
         out["linear"].append(row)
-        print(f"{seed:4d} {row['n_steps']:6d} {str(row['converged']):>5s} {row['tau_max']:6.1f} "
-              f"{row['steps_per_tau']:6.0f} {row['acceptance']:5.2f} {np.max(np.abs(z)):13.2f} "
-              f"{np.max(np.abs(zs)):21.2f} {row['ms_per_step']:8.2f}")
+        print(
+            f"{seed:4d} {row['n_steps']:6d} {str(row['converged']):>5s} {row['tau_max']:6.1f} "
+            f"{row['steps_per_tau']:6.0f} {row['acceptance']:5.2f} {np.max(np.abs(z)):13.2f} "
+            f"{np.max(np.abs(zs)):21.2f} {row['ms_per_step']:8.2f}"
+        )
 
     model, vs = double_problem()
     print("\ndouble problem (4 free parameters)")
     for seed in range(args.seeds):
         post, row = run(model, vs, seed, args.max_steps)
         out["double"].append(row)
-        print(f"{seed:4d} {row['n_steps']:6d} {str(row['converged']):>5s} {row['tau_max']:6.1f} "
-              f"{row['steps_per_tau']:6.0f} {row['acceptance']:5.2f} {row['ms_per_step']:8.2f} ms/step")
+        print(
+            f"{seed:4d} {row['n_steps']:6d} {str(row['converged']):>5s} {row['tau_max']:6.1f} "
+            f"{row['steps_per_tau']:6.0f} {row['acceptance']:5.2f} {row['ms_per_step']:8.2f} ms/step"
+        )
         if seed == 0:
             chain = post.chain.chain
     print("\ntau along the first double chain (steps, max tau, largest relative change since 200 steps before)")

@@ -1,4 +1,5 @@
 """Test-session settings shared by every test file."""
+
 import os
 
 import matplotlib

@@ -3,6 +3,7 @@
 The reference for every batch result is the same job run directly with `uvfit fit` and the same
 seed: the batch must be a way of running the fit, not a different fit.
 """
+
 import json
 import os
 import subprocess
@@ -14,16 +15,14 @@ import pytest
 pytest.importorskip("dask.distributed")
 
 import uvfit
+from tests.helpers.invented import component, model_toml
 from uvfit.data.visset import VisibilitySet
 from uvfit.sky.model import SkyModel
-
-from tests.helpers.invented import component, model_toml
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 _FWHM = "{ value = 0.3, min = 0.0, max = 3.0 }"
-DOUBLE = model_toml(component("a", 1.0, fwhm=_FWHM), component("b", 0.5, east=0.6, north=-0.4, fwhm=_FWHM),
-                    unit="mas")
+DOUBLE = model_toml(component("a", 1.0, fwhm=_FWHM), component("b", 0.5, east=0.6, north=-0.4, fwhm=_FWHM), unit="mas")
 
 
 def _simulated(seed, sep_east):
@@ -32,10 +31,13 @@ def _simulated(seed, sep_east):
     q = rng.uniform(2e7, 4e8, n)
     ang = rng.uniform(0, np.pi, n)
     u, v = q * np.sin(ang), q * np.cos(ang)
-    truth = SkyModel.build([
-        {"name": "a", "shape": "gaussian", "flux": 1.0, "fwhm": 0.3},
-        {"name": "b", "shape": "gaussian", "flux": 0.4, "east": sep_east, "north": -0.3, "fwhm": 0.2},
-    ], angular_unit="mas")
+    truth = SkyModel.build(
+        [
+            {"name": "a", "shape": "gaussian", "flux": 1.0, "fwhm": 0.3},
+            {"name": "b", "shape": "gaussian", "flux": 0.4, "east": sep_east, "north": -0.3, "fwhm": 0.2},
+        ],
+        angular_unit="mas",
+    )
     vis = truth.visibilities(u, v)
     sigma = np.full(n, 0.02)
     vis = vis + sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
@@ -43,14 +45,28 @@ def _simulated(seed, sep_east):
     i = rng.integers(0, 4, n)
     j = (i + rng.integers(1, 4, n)) % 4
     lo, hi = np.minimum(i, j), np.maximum(i, j)
-    return VisibilitySet(u=u, v=v, w=None, time=57000 + np.arange(n) / 86400.0, frequency=86e9,
-                         station1=stations[lo], station2=stations[hi], vis=vis, sigma=sigma,
-                         source="invented")
+    return VisibilitySet(
+        u=u,
+        v=v,
+        w=None,
+        time=57000 + np.arange(n) / 86400.0,
+        frequency=86e9,
+        station1=stations[lo],
+        station2=stations[hi],
+        vis=vis,
+        sigma=sigma,
+        source="invented",
+    )
 
 
 def _run(args, cwd):
-    return subprocess.run([sys.executable, "-m", "uvfit", *args], cwd=cwd, capture_output=True,
-                          text=True, env={**os.environ, "PYTHONPATH": ROOT})
+    return subprocess.run(
+        [sys.executable, "-m", "uvfit", *args],
+        cwd=cwd,
+        capture_output=True,
+        text=True,
+        env={**os.environ, "PYTHONPATH": ROOT},
+    )
 
 
 @pytest.fixture(scope="module")
@@ -62,8 +78,9 @@ def batch_dir(tmp_path_factory):
         uvfit.write(_simulated(k, east), str(d / f"epoch{k}.uvfits"))
         jobs.append(f'[[job]]\ndata = "epoch{k}.uvfits"\nmodel = "double.toml"\n')
     jobs.append('[[job]]\nname = "broken"\ndata = "no-such-file.uvfits"\nmodel = "double.toml"\n')
-    (d / "manifest.toml").write_text('[defaults]\ncommand = "fit"\nstarts = 2\nseed = 7\n'
-                                     'output_dir = "out"\n\n' + "\n".join(jobs))
+    (d / "manifest.toml").write_text(
+        '[defaults]\ncommand = "fit"\nstarts = 2\nseed = 7\noutput_dir = "out"\n\n' + "\n".join(jobs)
+    )
     return d
 
 
@@ -73,14 +90,17 @@ def test_batch_equals_direct_fits_and_isolates_failure(batch_dir):
     assert first.returncode == 1, first.stderr  # one job failed, the batch says so
     assert "4 jobs: 4 run" in first.stdout
     from astropy.table import Table
+
     table = Table.read(batch_dir / "results.ecsv", format="ascii.ecsv")
     status = dict(zip(table["name"], table["status"]))
     assert status == {"epoch0": "done", "epoch1": "done", "epoch2": "done", "broken": "failed"}
     broken = table[table["name"] == "broken"][0]
     assert "no-such-file" in broken["error"]
     for k in range(3):
-        direct = _run(["fit", f"epoch{k}.uvfits", "double.toml", "--starts", "2", "--seed", "7",
-                       "--json", f"direct{k}.json"], batch_dir)
+        direct = _run(
+            ["fit", f"epoch{k}.uvfits", "double.toml", "--starts", "2", "--seed", "7", "--json", f"direct{k}.json"],
+            batch_dir,
+        )
         assert direct.returncode == 0, direct.stderr
         want = json.loads((batch_dir / f"direct{k}.json").read_text())
         got = json.loads((batch_dir / "out" / f"epoch{k}.json").read_text())

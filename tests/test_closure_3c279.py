@@ -1,9 +1,10 @@
 """Closure quantities on real data: 3C 279 at 230 GHz, 2017 April 5 (see tests/data/3c279/ABOUT.md)."""
+
 import numpy as np
 import pytest
 
-from tests.helpers.real_data import REAL_DATA
 import uvfit
+from tests.helpers.real_data import REAL_DATA
 from uvfit.data.select import apply_selection
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel
@@ -22,8 +23,7 @@ def test_lo_and_hi_band_closure_phases_agree():
     # mean of (difference / combined error)^2 of the lo- and hi-band closure phases was measured at
     # about 1.1. Physical consistency of two independent bands, no fitting. Full set (every
     # triangle, so both bands have the same triangles), SNR cut 3, no systematic floor.
-    sets = {b: build_closures(band(b), snr_cut=3, full=True, kinds=("phase",))["phase"]
-            for b in ("lo", "hi")}
+    sets = {b: build_closures(band(b), snr_cut=3, full=True, kinds=("phase",))["phase"] for b in ("lo", "hi")}
     table = {}
     for b, cs in sets.items():
         keys = zip(np.round(cs.time * 86400.0, 1), cs.labels)
@@ -33,8 +33,8 @@ def test_lo_and_hi_band_closure_phases_agree():
     lo = np.array([table["lo"][k] for k in common])
     hi = np.array([table["hi"][k] for k in common])
     z = np.angle(np.exp(1j * (lo[:, 0] - hi[:, 0]))) / np.hypot(lo[:, 1], hi[:, 1])
-    stat = float(np.mean(z ** 2))
-    assert 0.7 < stat < 1.6, stat   # measured here: 1.10
+    stat = float(np.mean(z**2))
+    assert 0.7 < stat < 1.6, stat  # measured here: 1.10
 
 
 def _pa_sep(model):
@@ -57,17 +57,31 @@ def test_closure_fit_puts_the_jet_south_west(name):
     vs, _ = apply_selection(band(name), min_uv=1e7)
     vs = vs.good()
     best = None
-    for east, north in ((20.0, 20.0), (-20.0, -20.0)):   # one start in each half-plane
-        model = SkyModel.build([
-            {"name": "a", "shape": "gaussian", "flux": 8.0, "east": 0.0, "north": 0.0,
-             "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0}},
-            {"name": "b", "shape": "gaussian", "flux": {"value": 3.0, "min": 0.0},
-             "east": east, "north": north, "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0}},
-        ], angular_unit="uas")
-        res = fit(make_statistic("closure", vs, model, systematic=0.02), starts=1, seed=0,
-                  strict=False)
+    for east, north in ((20.0, 20.0), (-20.0, -20.0)):  # one start in each half-plane
+        model = SkyModel.build(
+            [
+                {
+                    "name": "a",
+                    "shape": "gaussian",
+                    "flux": 8.0,
+                    "east": 0.0,
+                    "north": 0.0,
+                    "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
+                },
+                {
+                    "name": "b",
+                    "shape": "gaussian",
+                    "flux": {"value": 3.0, "min": 0.0},
+                    "east": east,
+                    "north": north,
+                    "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
+                },
+            ],
+            angular_unit="uas",
+        )
+        res = fit(make_statistic("closure", vs, model, systematic=0.02), starts=1, seed=0, strict=False)
         if best is None or res.chi2 < best.chi2:
             best = res
     pa, sep = _pa_sep(best.model)
     assert 180.0 < pa < 270.0, f"fainter component at PA {pa:.1f} deg: sky point-reflected?"
-    assert 25.0 < sep < 30.0, sep   # measured here: lo 237 deg, 28.9 uas; hi 238 deg, 28.6 uas
+    assert 25.0 < sep < 30.0, sep  # measured here: lo 237 deg, 28.9 uas; hi 238 deg, 28.6 uas

@@ -3,6 +3,7 @@
 The reference of every check is the truth of the simulation (an injected double of points on an
 invented array, tests/closure_tools.py), or scipy's Rice distribution for the per-row errors.
 """
+
 import numpy as np
 import pytest
 from scipy import stats
@@ -14,16 +15,27 @@ from uvfit.stats.closures.build import build_closures, reference_amplitudes, ric
 from uvfit.stats.modes import make_statistic
 
 RATIO, SEP = 0.3, 15.0  # flux ratio, separation (uas) of the injected double
-SIGMA = 0.2             # Jy per part on a 1 Jy double: median SNR about 4.3
+SIGMA = 0.2  # Jy per part on a 1 Jy double: median SNR about 4.3
 TRIALS = 50
 
 
 def double(ratio=RATIO, sep=SEP):
-    return SkyModel.build([{
-        "name": "pair", "shape": "double", "member": "point", "flux": 1.0, "east": 0.0,
-        "north": 0.0, "flux_ratio": {"value": ratio, "min": 0.0, "max": 1.0},
-        "separation": {"value": sep, "min": 0.0, "max": 200.0}, "position_angle": 115.0}],
-        angular_unit="uas")
+    return SkyModel.build(
+        [
+            {
+                "name": "pair",
+                "shape": "double",
+                "member": "point",
+                "flux": 1.0,
+                "east": 0.0,
+                "north": 0.0,
+                "flux_ratio": {"value": ratio, "min": 0.0, "max": 1.0},
+                "separation": {"value": sep, "min": 0.0, "max": 200.0},
+                "position_angle": 115.0,
+            }
+        ],
+        angular_unit="uas",
+    )
 
 
 def pulls(amplitude_reference, trials=TRIALS):
@@ -107,8 +119,7 @@ def test_closure_errors_from_reference_amplitudes():
     e_log, e_arg = rice_errors(ref / vs.sigma)
     assert found.all()
     assert np.allclose(cs["phase"].sigma, np.sqrt(np.sum(e_arg[cs["phase"].rows] ** 2, axis=1)))
-    assert np.allclose(cs["amplitude"].sigma,
-                       np.sqrt(np.sum(e_log[cs["amplitude"].rows] ** 2, axis=1)))
+    assert np.allclose(cs["amplitude"].sigma, np.sqrt(np.sum(e_log[cs["amplitude"].rows] ** 2, axis=1)))
     # every row used passes the SNR cut on its reference amplitude, not on its own |V|
     used = np.unique(np.concatenate([cs["phase"].rows.ravel(), cs["amplitude"].rows.ravel()]))
     assert np.all(ref[used] / vs.sigma[used] >= 3.0)

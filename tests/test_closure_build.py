@@ -1,14 +1,16 @@
 """Construction of closure phases and log closure amplitudes: invariance, counts, rank, errors."""
+
 from itertools import combinations
 from math import comb
 
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from uvfit.data.visset import VisibilitySet
 from uvfit.errors import DataError
-from uvfit.stats.closures import check_closures, ClosurePhaseStatistic, ClosureStatistic
+from uvfit.stats.closures import ClosurePhaseStatistic, ClosureStatistic, check_closures
 from uvfit.stats.closures.build import build_closures
 
 
@@ -26,10 +28,17 @@ def snapshot_set(n_stations, n_times=1, seed=0, swap=0.5, sigma=0.05):
     n = len(rows)
     vis = (1.0 + rng.uniform(0, 2, n)) * np.exp(1j * rng.uniform(-np.pi, np.pi, n))
     names = np.array(names)
-    return VisibilitySet(u=rng.normal(size=n), v=rng.normal(size=n), w=None,
-                         time=59000.0 + rows[:, 0] / 8640.0, frequency=1e11,
-                         station1=names[rows[:, 1]], station2=names[rows[:, 2]], vis=vis,
-                         sigma=np.full(n, sigma))
+    return VisibilitySet(
+        u=rng.normal(size=n),
+        v=rng.normal(size=n),
+        w=None,
+        time=59000.0 + rows[:, 0] / 8640.0,
+        frequency=1e11,
+        station1=names[rows[:, 1]],
+        station2=names[rows[:, 2]],
+        vis=vis,
+        sigma=np.full(n, sigma),
+    )
 
 
 def corrupt(vset, gains_by_time):
@@ -81,9 +90,9 @@ def test_counts_and_independence(n):
         m, _ = nr[kind].design_matrix()
         mf, _ = fu[kind].design_matrix()
         if count:
-            assert np.linalg.matrix_rank(m) == count        # independent
-            assert np.linalg.matrix_rank(mf) == count       # and spanning everything there is
-            assert np.linalg.matrix_rank(np.vstack([m, mf[:, :m.shape[1]]])) == count
+            assert np.linalg.matrix_rank(m) == count  # independent
+            assert np.linalg.matrix_rank(mf) == count  # and spanning everything there is
+            assert np.linalg.matrix_rank(np.vstack([m, mf[:, : m.shape[1]]])) == count
 
 
 def test_reference_station_is_the_highest_snr_one():
@@ -153,16 +162,24 @@ def test_systematic_floor_enters_in_quadrature():
     vs = snapshot_set(4, seed=4)
     a = build_closures(vs, snr_cut=0)["phase"]
     b = build_closures(vs, snr_cut=0, systematic=0.1)["phase"]
-    rel = np.sqrt((vs.sigma / np.abs(vs.vis)) ** 2 + 0.1 ** 2)
+    rel = np.sqrt((vs.sigma / np.abs(vs.vis)) ** 2 + 0.1**2)
     assert np.allclose(b.sigma, np.sqrt(np.sum(rel[b.rows] ** 2, axis=1)))
     assert np.all(b.sigma > a.sigma)
 
 
 def two_station_set():
     names = np.array(["Q0", "Q1"])
-    return VisibilitySet(u=[1.0, 2.0], v=[0.0, 0.0], w=None, time=[1.0, 2.0], frequency=1e9,
-                         station1=names[[0, 0]], station2=names[[1, 1]], vis=[1.0, 1.0],
-                         sigma=[0.1, 0.1])
+    return VisibilitySet(
+        u=[1.0, 2.0],
+        v=[0.0, 0.0],
+        w=None,
+        time=[1.0, 2.0],
+        frequency=1e9,
+        station1=names[[0, 0]],
+        station2=names[[1, 1]],
+        vis=[1.0, 1.0],
+        sigma=[0.1, 0.1],
+    )
 
 
 def test_fewer_than_three_stations_is_a_clear_error():
@@ -178,9 +195,17 @@ def test_fewer_than_three_stations_is_a_clear_error():
 def test_non_simultaneous_rows_form_no_closure():
     # three baselines of a triangle, but each at its own time: no closure phase
     names = np.array(["Q0", "Q1", "Q2"])
-    vs = VisibilitySet(u=[1.0, 2.0, 3.0], v=[0.0, 0.0, 0.0], w=None, time=[1.0, 2.0, 3.0],
-                       frequency=1e9, station1=names[[0, 1, 0]], station2=names[[1, 2, 2]],
-                       vis=[1.0, 1.0, 1.0], sigma=[0.1, 0.1, 0.1])
+    vs = VisibilitySet(
+        u=[1.0, 2.0, 3.0],
+        v=[0.0, 0.0, 0.0],
+        w=None,
+        time=[1.0, 2.0, 3.0],
+        frequency=1e9,
+        station1=names[[0, 1, 0]],
+        station2=names[[1, 2, 2]],
+        vis=[1.0, 1.0, 1.0],
+        sigma=[0.1, 0.1, 0.1],
+    )
     with pytest.raises(DataError, match="at most 2 station"):
         check_closures(vs)
 
@@ -192,7 +217,7 @@ def test_missing_baseline_keeps_every_independent_closure(n):
     # E - N = N(N-3)/2 - 1 (graph theory: the gain-free subspace of the baseline space).
     vs = snapshot_set(n, seed=n + 20)
     boost = (vs.station1 == "Q0") | (vs.station2 == "Q0")
-    vs = vs.with_vis(vs.vis * np.where(boost, 10.0, 1.0))       # Q0 becomes the reference
+    vs = vs.with_vis(vs.vis * np.where(boost, 10.0, 1.0))  # Q0 becomes the reference
     drop = ((vs.station1 == "Q0") & (vs.station2 == "Q1")) | ((vs.station1 == "Q1") & (vs.station2 == "Q0"))
     vs = vs.subset(~drop)
     cs = build_closures(vs, snr_cut=0)
@@ -204,6 +229,7 @@ def test_missing_baseline_keeps_every_independent_closure(n):
 
 def test_three_stations_give_phases_but_no_amplitudes():
     from uvfit.stats.closures import LogClosureAmplitudeStatistic
+
     vs = snapshot_set(3, n_times=4, seed=1)
     with pytest.raises(DataError, match="four"):
         LogClosureAmplitudeStatistic(vs, None)

@@ -1,4 +1,5 @@
 """`uvfit closures` on the command line: counts, model comparison, JSON and ECSV outputs, errors."""
+
 import json
 import subprocess
 import sys
@@ -38,10 +39,13 @@ fwhm = 15.0
 @pytest.fixture(scope="module")
 def files(tmp_path_factory):
     d = tmp_path_factory.mktemp("closures")
-    model = SkyModel.build([
-        {"name": "a", "shape": "gaussian", "flux": 1.0, "east": 0.0, "north": 0.0, "fwhm": 20.0},
-        {"name": "b", "shape": "gaussian", "flux": 0.4, "east": -15.0, "north": -20.0, "fwhm": 15.0},
-    ], angular_unit="uas")
+    model = SkyModel.build(
+        [
+            {"name": "a", "shape": "gaussian", "flux": 1.0, "east": 0.0, "north": 0.0, "fwhm": 20.0},
+            {"name": "b", "shape": "gaussian", "flux": 0.4, "east": -15.0, "north": -20.0, "fwhm": 15.0},
+        ],
+        angular_unit="uas",
+    )
     vs = make_vset(model, n_stations=5, n_times=6, sigma=0.01, seed=2, gain_amp=0.3, gain_phase=True)
     data = d / "invented.uvfits"
     uvfit.write(vs, data)
@@ -50,9 +54,17 @@ def files(tmp_path_factory):
     fitjson = d / "fit.json"
     fitjson.write_text(json.dumps({"mode": "closure", "systematic": 0.01, "model_toml": MODEL_TOML}))
     names = np.array(["X1", "X2"])
-    two = VisibilitySet(u=[1e8, 2e8], v=[0.0, 1e8], w=None, time=[60000.0, 60000.01],
-                        frequency=230e9, station1=names[[0, 0]], station2=names[[1, 1]],
-                        vis=[1.0, 0.9], sigma=[0.01, 0.01])
+    two = VisibilitySet(
+        u=[1e8, 2e8],
+        v=[0.0, 1e8],
+        w=None,
+        time=[60000.0, 60000.01],
+        frequency=230e9,
+        station1=names[[0, 0]],
+        station2=names[[1, 1]],
+        vis=[1.0, 0.9],
+        sigma=[0.01, 0.01],
+    )
     bad = d / "two.uvfits"
     uvfit.write(two, bad)
     return d, data, toml, fitjson, bad
@@ -76,16 +88,26 @@ def test_model_comparison_outputs(files, which):
     d, data, toml, fitjson, _ = files
     model = toml if which == "toml" else fitjson
     out, table = d / f"cmp-{which}.json", d / f"cmp-{which}.ecsv"
-    res = CliRunner().invoke(cli, ["closures", str(data), "--model", str(model), "--json", str(out),
-                                   "--table", str(table)])
+    res = CliRunner().invoke(
+        cli, ["closures", str(data), "--model", str(model), "--json", str(out), "--table", str(table)]
+    )
     assert res.exit_code == 0, res.output
     assert "support the fitted structure" in res.output and "Caution" in res.output
     doc = json.loads(out.read_text())
-    for key in ("n_closure_phases", "n_closure_amplitudes", "closure_phase_chi2",
-                "closure_amplitude_chi2", "n_stations", "per_triangle", "per_quadrangle",
-                "per_station", "verdict", "supported"):
+    for key in (
+        "n_closure_phases",
+        "n_closure_amplitudes",
+        "closure_phase_chi2",
+        "closure_amplitude_chi2",
+        "n_stations",
+        "per_triangle",
+        "per_quadrangle",
+        "per_station",
+        "verdict",
+        "supported",
+    ):
         assert key in doc
-    assert doc["supported"] is True           # the model that made the data
+    assert doc["supported"] is True  # the model that made the data
     assert doc["systematic"] == (0.01 if which == "json" else 0.0)  # the fit's floor by default
     tab = Table.read(table, format="ascii.ecsv")
     assert len(tab) == doc["n_closure_phases"] + doc["n_closure_amplitudes"]
@@ -101,8 +123,9 @@ def test_model_comparison_outputs(files, which):
 
 def test_two_stations_is_a_clear_error_without_traceback(files):
     *_, bad = files
-    out = subprocess.run([sys.executable, "-m", "uvfit", "closures", str(bad)], cwd=ROOT,
-                         capture_output=True, text=True)
+    out = subprocess.run(
+        [sys.executable, "-m", "uvfit", "closures", str(bad)], cwd=ROOT, capture_output=True, text=True
+    )
     assert out.returncode == 2
     assert "no closure phases can be formed" in out.stderr and "three" in out.stderr
     assert "Traceback" not in out.stderr
@@ -110,6 +133,10 @@ def test_two_stations_is_a_clear_error_without_traceback(files):
 
 def test_missing_model_file_is_a_clear_error(files):
     d, data, *_ = files
-    out = subprocess.run([sys.executable, "-m", "uvfit", "closures", str(data), "--model",
-                          str(d / "nothing.json")], cwd=ROOT, capture_output=True, text=True)
+    out = subprocess.run(
+        [sys.executable, "-m", "uvfit", "closures", str(data), "--model", str(d / "nothing.json")],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+    )
     assert out.returncode == 2 and "does not exist" in out.stderr and "Traceback" not in out.stderr

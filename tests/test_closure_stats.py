@@ -1,4 +1,5 @@
 """Closure statistics on the project's sky model: derivatives, symmetry, degeneracies, recovery."""
+
 import numpy as np
 import pytest
 
@@ -12,12 +13,28 @@ from uvfit.stats.modes import make_statistic
 def double(f1=1.0, e1=0.0, n1=0.0, w1=20.0, f2=0.4, e2=-15.0, n2=-20.0, w2=15.0, fixed=()):
     def p(name, value):
         return {"value": value, "fixed": True} if name in fixed else value
-    return SkyModel.build([
-        {"name": "a", "shape": "gaussian", "flux": p("a.flux", f1), "east": p("a.east", e1),
-         "north": p("a.north", n1), "fwhm": {"value": w1, "min": 0.0, "max": 200.0}},
-        {"name": "b", "shape": "gaussian", "flux": p("b.flux", f2), "east": p("b.east", e2),
-         "north": p("b.north", n2), "fwhm": {"value": w2, "min": 0.0, "max": 200.0}},
-    ], angular_unit="uas")
+
+    return SkyModel.build(
+        [
+            {
+                "name": "a",
+                "shape": "gaussian",
+                "flux": p("a.flux", f1),
+                "east": p("a.east", e1),
+                "north": p("a.north", n1),
+                "fwhm": {"value": w1, "min": 0.0, "max": 200.0},
+            },
+            {
+                "name": "b",
+                "shape": "gaussian",
+                "flux": p("b.flux", f2),
+                "east": p("b.east", e2),
+                "north": p("b.north", n2),
+                "fwhm": {"value": w2, "min": 0.0, "max": 200.0},
+            },
+        ],
+        angular_unit="uas",
+    )
 
 
 TRUTH = dict(f1=1.0, e1=0.0, n1=0.0, w1=20.0, f2=0.4, e2=-15.0, n2=-20.0, w2=15.0)
@@ -26,8 +43,7 @@ TRUTH = dict(f1=1.0, e1=0.0, n1=0.0, w1=20.0, f2=0.4, e2=-15.0, n2=-20.0, w2=15.
 @pytest.fixture(scope="module")
 def corrupted():
     # station gains up to 30% in amplitude and any phase, per station and time (invented array)
-    return make_vset(double(**TRUTH), n_stations=7, n_times=20, sigma=0.01, seed=0,
-                     gain_amp=0.3, gain_phase=True)
+    return make_vset(double(**TRUTH), n_stations=7, n_times=20, sigma=0.01, seed=0, gain_amp=0.3, gain_phase=True)
 
 
 @pytest.mark.parametrize("mode", ["closure_phase", "closure_amplitude", "closure", "hybrid"])
@@ -49,11 +65,14 @@ def test_jacobian_matches_finite_differences(corrupted, mode, covariance):
 def test_point_symmetric_model_has_closure_phases_0_or_180(corrupted):
     # Outside source: a real, point-symmetric image has a real visibility (Hermitian symmetry,
     # REFERENCES.md), so every closure phase is 0 or 180 degrees; an offset double is not symmetric.
-    sym = SkyModel.build([
-        {"name": "c", "shape": "gaussian", "flux": 1.0, "east": 0.0, "north": 0.0, "fwhm": 20.0},
-        {"name": "p", "shape": "point", "flux": 0.3, "east": 12.0, "north": 7.0},
-        {"name": "q", "shape": "point", "flux": 0.3, "east": -12.0, "north": -7.0},
-    ], angular_unit="uas")
+    sym = SkyModel.build(
+        [
+            {"name": "c", "shape": "gaussian", "flux": 1.0, "east": 0.0, "north": 0.0, "fwhm": 20.0},
+            {"name": "p", "shape": "point", "flux": 0.3, "east": 12.0, "north": 7.0},
+            {"name": "q", "shape": "point", "flux": 0.3, "east": -12.0, "north": -7.0},
+        ],
+        angular_unit="uas",
+    )
     vs = corrupted.with_vis(sym.visibilities(corrupted.u, corrupted.v, corrupted.frequency))
     stat = make_statistic("closure_phase", vs, sym, snr_cut=0)
     psi = np.degrees(stat.data)
@@ -98,8 +117,9 @@ def test_check_closures_verdicts(corrupted):
     assert good["supported"], good["verdict"]
     assert good["n_closure_phases"] == 20 * 15 and good["n_closure_amplitudes"] == 20 * 14
     assert good["n_stations"] == 7 and len(good["per_station"]) == 7
-    single = SkyModel.build([{"name": "a", "shape": "gaussian", "flux": 1.4, "east": 0.0,
-                              "north": 0.0, "fwhm": 25.0}], angular_unit="uas")
+    single = SkyModel.build(
+        [{"name": "a", "shape": "gaussian", "flux": 1.4, "east": 0.0, "north": 0.0, "fwhm": 25.0}], angular_unit="uas"
+    )
     bad = check_closures(corrupted, single)
     assert not bad["supported"]
     assert "do NOT support" in bad["verdict"]
@@ -118,6 +138,7 @@ def test_scaled_statistic_keeps_its_class(corrupted):
 
 def test_full_set_is_flagged_redundant_and_diagonal(corrupted):
     from uvfit.errors import UvfitError
+
     res = check_closures(corrupted, double(**TRUTH), full=True)
     assert res["set"].startswith("full") and res["covariance_mode"] == "diagonal"
     assert "redundant" in res["verdict"]
@@ -128,6 +149,7 @@ def test_full_set_is_flagged_redundant_and_diagonal(corrupted):
 def test_closure_mode_through_the_fit_orchestration(corrupted):
     # the fitter's result dictionary carries the per-station breakdown from row_index
     from uvfit.infer.run import run_fit
+
     start = double(**dict(TRUTH, w1=25.0, f2=0.3, e2=-10.0, n2=-12.0, w2=10.0))
     out = run_fit(corrupted, start, mode="closure", systematic=0.0, starts=2, seed=3)
     assert out["mode"] == "closure" and out["seed"] == 3

@@ -6,6 +6,7 @@ visibility in the file's group order. The CSV lists the stored (u, v) of the fil
 phase; the project's convention negates (u, v) (the one mapping, in
 uvfit.data.uvfits._to_sky_convention), so the comparison goes through that function.
 """
+
 import numpy as np
 import pytest
 
@@ -23,8 +24,14 @@ def _paths(real_data, band):
 def _read_csv(path):
     with open(path) as handle:
         first = handle.readline()
-    cols = np.genfromtxt(path, delimiter=",", comments="#", dtype=None, encoding="ascii",
-                         names=["t", "s1", "s2", "u", "v", "amp", "phase", "sigma"])
+    cols = np.genfromtxt(
+        path,
+        delimiter=",",
+        comments="#",
+        dtype=None,
+        encoding="ascii",
+        names=["t", "s1", "s2", "u", "v", "amp", "phase", "sigma"],
+    )
     return first, cols
 
 
@@ -72,6 +79,7 @@ def test_header_facts(real_data, band):
     vs = uvfit.read(uvf)
     # values from the FITS header and antenna table of the file itself, read with astropy
     from astropy.io import fits
+
     with fits.open(uvf) as hdul:
         h = hdul[0].header
         names = [n.strip() for n in hdul["AIPS AN"].data["ANNAME"]]
@@ -89,10 +97,11 @@ def test_uv_geometry_is_station2_minus_station1(real_data):
     TMS 2017 eq. 4.1 (from memory; REFERENCES.md), the Greenwich sidereal time from astropy.time.
     """
     from astropy.time import Time
+
     uvf, _ = _paths(real_data, "hi")
     vs = uvfit.read(uvf)
     pick = np.linspace(0, vs.n - 1, 40).astype(int)
-    pick = pick[vs.uv_distance[pick] > 1e8]            # long baselines: geometry dominates rounding
+    pick = pick[vs.uv_distance[pick] > 1e8]  # long baselines: geometry dominates rounding
     xyz = {n: x for n, x in zip(vs.stations.names, vs.stations.xyz)}
     t = Time(vs.time[pick], format="mjd", scale="utc")
     gst = t.sidereal_time("apparent", "greenwich").radian
@@ -118,6 +127,7 @@ def test_orientation_guard_closure_phases_put_the_jet_south_west(real_data):
     180 and 270 deg, 25-35 microarcsec away (Kim et al. 2020, A&A 640, A69; REFERENCES.md).
     """
     import itertools
+
     from scipy.optimize import least_squares
 
     vs = uvfit.read(_paths(real_data, "hi")[0]).good()
@@ -129,12 +139,12 @@ def test_orientation_guard_closure_phases_put_the_jet_south_west(real_data):
     times = np.unique(vs.time)
     for t in times[::3]:
         here = sorted(set(vs.station1[vs.time == t]) | set(vs.station2[vs.time == t]) - {"AP", "SM"})
-        for a, b, c in itertools.combinations(here, 3):     # AP and SM: co-sited twins of AA, JC
+        for a, b, c in itertools.combinations(here, 3):  # AP and SM: co-sited twins of AA, JC
             if (t, a, b) in key and (t, b, c) in key and (t, c, a) in key:
                 tri.append([key[(t, a, b)], key[(t, b, c)], key[(t, c, a)]])
     tri = np.array(tri)
     idx, sgn = tri[..., 0], tri[..., 1]
-    u, v = vs.u[idx] * sgn, vs.v[idx] * sgn                  # V(-u,-v) = conj V(u,v)
+    u, v = vs.u[idx] * sgn, vs.v[idx] * sgn  # V(-u,-v) = conj V(u,v)
     vis = np.where(sgn > 0, vs.vis[idx], np.conj(vs.vis[idx]))
     cphase = np.angle(vis.prod(axis=1))
     err = np.hypot(np.sqrt(((vs.sigma[idx] / np.abs(vis)) ** 2).sum(axis=1)), 0.02)
@@ -143,15 +153,17 @@ def test_orientation_guard_closure_phases_put_the_jet_south_west(real_data):
 
     def model(p):
         f2, x, y, s1, s2 = p
-        g1 = np.exp(-(np.pi * s1 * uas * q) ** 2 / (4 * np.log(2)))
-        g2 = np.exp(-(np.pi * s2 * uas * q) ** 2 / (4 * np.log(2)))
+        g1 = np.exp(-((np.pi * s1 * uas * q) ** 2) / (4 * np.log(2)))
+        g2 = np.exp(-((np.pi * s2 * uas * q) ** 2) / (4 * np.log(2)))
         return g1 + f2 * g2 * np.exp(-2j * np.pi * (u * x + v * y) * uas)
 
     def resid(p):
         return np.angle(np.exp(1j * (cphase - np.angle(model(p).prod(axis=1))))) / err
 
-    fits_ = [least_squares(resid, [0.5, x0, y0, 20.0, 20.0], bounds=([0, -80, -80, 0, 0], [1, 80, 80, 80, 80]))
-             for x0, y0 in ((20.0, 15.0), (-20.0, -15.0), (20.0, -15.0), (-20.0, 15.0))]
+    fits_ = [
+        least_squares(resid, [0.5, x0, y0, 20.0, 20.0], bounds=([0, -80, -80, 0, 0], [1, 80, 80, 80, 80]))
+        for x0, y0 in ((20.0, 15.0), (-20.0, -15.0), (20.0, -15.0), (-20.0, 15.0))
+    ]
     best = min(fits_, key=lambda r: r.cost)
     f2, x, y = best.x[:3]
     pa = np.degrees(np.arctan2(x, y)) % 360.0

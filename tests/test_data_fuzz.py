@@ -1,4 +1,5 @@
 """A damaged UVFITS file never makes the reader raise anything but a UvfitError (or read fine)."""
+
 import os
 import tempfile
 
@@ -17,26 +18,44 @@ def _valid_bytes():
     data = np.zeros((n, 1, 1, 2, 2, 2, 3))
     data[..., 0] = 1.0
     data[..., 2] = 1.0
-    g = fits.GroupData(data, parnames=["UU---SIN", "VV---SIN", "WW---SIN", "BASELINE", "DATE", "DATE", "INTTIM"],
-                       pardata=[np.full(n, 1e-6), np.full(n, 2e-6), np.zeros(n), np.full(n, 258.0),
-                                np.full(n, 2458000.5), np.linspace(0.1, 0.2, n), np.full(n, 4.0)], bitpix=-32)
+    g = fits.GroupData(
+        data,
+        parnames=["UU---SIN", "VV---SIN", "WW---SIN", "BASELINE", "DATE", "DATE", "INTTIM"],
+        pardata=[
+            np.full(n, 1e-6),
+            np.full(n, 2e-6),
+            np.zeros(n),
+            np.full(n, 258.0),
+            np.full(n, 2458000.5),
+            np.linspace(0.1, 0.2, n),
+            np.full(n, 4.0),
+        ],
+        bitpix=-32,
+    )
     hdu = fits.GroupsHDU(g)
-    for k, (ct, cv) in enumerate([("COMPLEX", 1.0), ("STOKES", -1.0), ("FREQ", 5e9), ("IF", 1.0),
-                                  ("RA", 10.0), ("DEC", 20.0)], start=2):
+    for k, (ct, cv) in enumerate(
+        [("COMPLEX", 1.0), ("STOKES", -1.0), ("FREQ", 5e9), ("IF", 1.0), ("RA", 10.0), ("DEC", 20.0)], start=2
+    ):
         hdu.header[f"CTYPE{k}"] = ct
         hdu.header[f"CRVAL{k}"] = cv
         hdu.header[f"CDELT{k}"] = -1.0 if ct == "STOKES" else 1.0
         hdu.header[f"CRPIX{k}"] = 1.0
-    an = fits.BinTableHDU.from_columns([
-        fits.Column(name="ANNAME", format="8A", array=np.array(["OWL", "ELK"])),
-        fits.Column(name="STABXYZ", format="3D", array=np.zeros((2, 3))),
-        fits.Column(name="NOSTA", format="1J", array=np.array([1, 2]))])
+    an = fits.BinTableHDU.from_columns(
+        [
+            fits.Column(name="ANNAME", format="8A", array=np.array(["OWL", "ELK"])),
+            fits.Column(name="STABXYZ", format="3D", array=np.zeros((2, 3))),
+            fits.Column(name="NOSTA", format="1J", array=np.array([1, 2])),
+        ]
+    )
     an.header["EXTNAME"] = "AIPS AN"
-    fq = fits.BinTableHDU.from_columns([
-        fits.Column(name="FRQSEL", format="1J", array=np.array([1])),
-        fits.Column(name="IF FREQ", format="2D", array=np.array([[0.0, 1e8]])),
-        fits.Column(name="CH WIDTH", format="2E", array=np.array([[1e6, 1e6]])),
-        fits.Column(name="SIDEBAND", format="2J", array=np.array([[1, 1]]))])
+    fq = fits.BinTableHDU.from_columns(
+        [
+            fits.Column(name="FRQSEL", format="1J", array=np.array([1])),
+            fits.Column(name="IF FREQ", format="2D", array=np.array([[0.0, 1e8]])),
+            fits.Column(name="CH WIDTH", format="2E", array=np.array([[1e6, 1e6]])),
+            fits.Column(name="SIDEBAND", format="2J", array=np.array([[1, 1]])),
+        ]
+    )
     fq.header["EXTNAME"] = "AIPS FQ"
     with tempfile.TemporaryDirectory() as d:
         p = os.path.join(d, "ok.uvfits")
@@ -46,7 +65,7 @@ def _valid_bytes():
 
 
 VALID = _valid_bytes()
-N_CARDS = len(VALID) // 80          # every 80-byte card of every header (and of the data)
+N_CARDS = len(VALID) // 80  # every 80-byte card of every header (and of the data)
 
 
 def _read_bytes(raw):
@@ -69,7 +88,7 @@ def test_the_valid_file_reads():
 
 card_values = st.one_of(
     st.text(alphabet=st.characters(min_codepoint=32, max_codepoint=126), max_size=20),
-    st.integers(-10**12, 10**12).map(str),
+    st.integers(-(10**12), 10**12).map(str),
     st.sampled_from(["T", "F", "'UU'", "'DATE'", "0", "-1", "1E300", "NAN", "'STOKES'", "'IF'", "''"]),
 )
 SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -80,7 +99,7 @@ SETTINGS = settings(max_examples=60, deadline=None, suppress_health_check=[Healt
 def test_mutated_header_card_values(card, value):
     raw = bytearray(VALID)
     start = card * 80 + 10
-    raw[start:start + 20] = value.rjust(20)[:20].encode("ascii")
+    raw[start : start + 20] = value.rjust(20)[:20].encode("ascii")
     _read_bytes(bytes(raw))
 
 

@@ -1,17 +1,17 @@
 """Write then read: UVFITS and the ECSV table give back the same set; astropy reads the UVFITS."""
+
 import numpy as np
 import pytest
 from astropy.io import fits
 from astropy.table import Table
 
-from tests.helpers.real_data import real_file
 import uvfit
+from tests.helpers.real_data import real_file
 from uvfit.data.uvfits import _to_sky_convention
 from uvfit.data.visset import StationTable, VisibilitySet
 from uvfit.errors import DataError, UvfitError
 
-FIELDS = ("u", "v", "w", "time", "frequency", "station1", "station2", "vis", "sigma", "flag",
-          "channel", "integration")
+FIELDS = ("u", "v", "w", "time", "frequency", "station1", "station2", "vis", "sigma", "flag", "channel", "integration")
 
 
 def invented_set(n_times=5, channels=(0, 1), seed=3):
@@ -19,7 +19,7 @@ def invented_set(n_times=5, channels=(0, 1), seed=3):
     rng = np.random.default_rng(seed)
     names = ["ORCA", "WREN", "LYNX", "IBIS"]
     xyz = rng.normal(size=(4, 3)) * 3e6
-    pairs = [(a, b) for i, a in enumerate(names) for b in names[i + 1:]]
+    pairs = [(a, b) for i, a in enumerate(names) for b in names[i + 1 :]]
     rows = []
     for t in range(n_times):
         for a, b in pairs:
@@ -33,12 +33,25 @@ def invented_set(n_times=5, channels=(0, 1), seed=3):
     useconds = rng.normal(size=len(rows) // len(channels)).repeat(len(channels)) * 1e-5
     vseconds = rng.normal(size=len(rows) // len(channels)).repeat(len(channels)) * 1e-5
     n = len(rows)
-    vs = VisibilitySet(u=useconds * freq, v=vseconds * freq, w=rng.normal(size=n) * 0 + useconds * freq * 0.1,
-                       time=time, frequency=freq, station1=s1, station2=s2,
-                       vis=rng.normal(size=n) + 1j * rng.normal(size=n), sigma=rng.uniform(0.1, 0.3, n),
-                       flag=rng.uniform(size=n) < 0.1, channel=chan, integration=np.full(n, 30.0),
-                       stations=StationTable(names, xyz), source="J0000-0000 (invented)",
-                       ra_deg=12.5, dec_deg=41.25, meta={"channel_width_hz": [16e6, 16e6]})
+    vs = VisibilitySet(
+        u=useconds * freq,
+        v=vseconds * freq,
+        w=rng.normal(size=n) * 0 + useconds * freq * 0.1,
+        time=time,
+        frequency=freq,
+        station1=s1,
+        station2=s2,
+        vis=rng.normal(size=n) + 1j * rng.normal(size=n),
+        sigma=rng.uniform(0.1, 0.3, n),
+        flag=rng.uniform(size=n) < 0.1,
+        channel=chan,
+        integration=np.full(n, 30.0),
+        stations=StationTable(names, xyz),
+        source="J0000-0000 (invented)",
+        ra_deg=12.5,
+        dec_deg=41.25,
+        meta={"channel_width_hz": [16e6, 16e6]},
+    )
     return vs
 
 
@@ -75,7 +88,7 @@ def test_uvfits_round_trip(tmp_path):
     back = uvfit.read(path)
     # u, v, w pass through seconds (u / f * f): the same to rounding (common practice: ~1e-16)
     assert_same(vs, back, rtol=1e-14)
-    assert np.array_equal(vs.time, back.time)          # the split DATE keeps the MJD exactly
+    assert np.array_equal(vs.time, back.time)  # the split DATE keeps the MJD exactly
     assert np.array_equal(vs.vis, back.vis) and np.array_equal(vs.flag, back.flag)
 
 
@@ -83,7 +96,7 @@ def test_astropy_reads_the_written_uvfits(tmp_path):
     vs = invented_set(channels=(0,))
     path = tmp_path / "one.uvfits"
     uvfit.write(vs, path)
-    with fits.open(path) as hdul:              # astropy.io.fits as the outside reader
+    with fits.open(path) as hdul:  # astropy.io.fits as the outside reader
         g = hdul[0]
         assert isinstance(g, fits.GroupsHDU) and g.header["GCOUNT"] == vs.n
         freq = g.header["CRVAL4"]
@@ -91,12 +104,12 @@ def test_astropy_reads_the_written_uvfits(tmp_path):
         # the file holds the UVFITS convention; the one mapping turns it into the project's u, v
         u, v, _, _ = _to_sky_convention(uu, g.data.par("VV---SIN") * freq, uu * 0, None)
         assert np.allclose(u, vs.u, rtol=1e-14) and np.allclose(v, vs.v, rtol=1e-14)
-        jd = g.data.par("DATE")                # astropy sums the two DATE parameters
+        jd = g.data.par("DATE")  # astropy sums the two DATE parameters
         assert np.allclose(jd - 2400000.5, vs.time, rtol=0, atol=1e-8)
         d = g.data.data
         assert np.allclose(d[:, 0, 0, 0, 0, 0, 0] + 1j * d[:, 0, 0, 0, 0, 0, 1], vs.vis)
         w = d[:, 0, 0, 0, 0, 0, 2]
-        assert np.allclose(np.abs(w), 1 / vs.sigma ** 2) and np.array_equal(w < 0, vs.flag)
+        assert np.allclose(np.abs(w), 1 / vs.sigma**2) and np.array_equal(w < 0, vs.flag)
         assert [n.strip() for n in hdul["AIPS AN"].data["ANNAME"]] == vs.stations.names
 
 
@@ -115,7 +128,7 @@ def test_writers_refuse_to_overwrite(tmp_path):
         with pytest.raises(UvfitError, match="exists"):
             uvfit.write(vs, tmp_path / name)
         uvfit.write(vs, tmp_path / name, force=True)
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["a.ecsv", "a.uvfits"]   # no temp left
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a.ecsv", "a.uvfits"]  # no temp left
 
 
 def test_uvfits_writer_refuses_mixed_frequencies(tmp_path):

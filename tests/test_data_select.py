@@ -1,17 +1,24 @@
 """Selection and averaging: weighted means, sigma of the mean, and the smearing numbers."""
+
 import numpy as np
 import pytest
 from scipy import integrate
 
-from uvfit.data.select import (OMEGA_EARTH, apply_selection, average_channels, average_time,
-                               bandwidth_smearing_loss, parse_channels, time_smearing_loss)
+from uvfit.data.select import (
+    OMEGA_EARTH,
+    apply_selection,
+    average_channels,
+    average_time,
+    bandwidth_smearing_loss,
+    parse_channels,
+    time_smearing_loss,
+)
 from uvfit.data.visset import VisibilitySet
 from uvfit.errors import DataError
 
 
 def grid_set(n_times=60, step_s=2.0, channels=(0, 1, 2, 3), vis=None, sigma=0.5, seed=0):
     """Invented 3-station array, rows (time, baseline, channel)."""
-    names = ["ROOK", "HERON", "TERN"]
     pairs = [("ROOK", "HERON"), ("ROOK", "TERN"), ("HERON", "TERN")]
     rows = [(i, p, c) for i in range(n_times) for p in range(3) for c in channels]
     i = np.array([r[0] for r in rows])
@@ -22,12 +29,20 @@ def grid_set(n_times=60, step_s=2.0, channels=(0, 1, 2, 3), vis=None, sigma=0.5,
     freq = 5.0e9 + 1.0e6 * c
     u = (1 + p) * 1e5 * freq / 5e9 + i * 1.0
     v = (2 - p) * 1e5 * freq / 5e9 - i * 0.5
-    return VisibilitySet(u=u, v=v, w=np.zeros(n), time=58000.0 + i * step_s / 86400.0, frequency=freq,
-                         station1=np.array([pairs[k][0] for k in p]), station2=np.array([pairs[k][1] for k in p]),
-                         vis=(np.full(n, 2.0 - 1.0j) if vis is None else vis(rng, n)),
-                         sigma=np.full(n, sigma) if np.isscalar(sigma) else sigma, channel=c,
-                         integration=np.full(n, step_s), meta={"channel_width_hz": [1.0e6] * 4,
-                                                               "n_channels_per_if": 4})
+    return VisibilitySet(
+        u=u,
+        v=v,
+        w=np.zeros(n),
+        time=58000.0 + i * step_s / 86400.0,
+        frequency=freq,
+        station1=np.array([pairs[k][0] for k in p]),
+        station2=np.array([pairs[k][1] for k in p]),
+        vis=(np.full(n, 2.0 - 1.0j) if vis is None else vis(rng, n)),
+        sigma=np.full(n, sigma) if np.isscalar(sigma) else sigma,
+        channel=c,
+        integration=np.full(n, step_s),
+        meta={"channel_width_hz": [1.0e6] * 4, "n_channels_per_if": 4},
+    )
 
 
 def test_constant_visibilities_average_to_the_same_value_and_sigma_over_sqrt_n():
@@ -44,12 +59,18 @@ def test_constant_visibilities_average_to_the_same_value_and_sigma_over_sqrt_n()
 
 
 def test_weighted_means_match_numpy_average():
-    vs = grid_set(vis=lambda rng, n: rng.normal(size=n) + 1j * rng.normal(size=n),
-                  sigma=np.random.default_rng(5).uniform(0.2, 2.0, 60 * 3 * 4))
+    vs = grid_set(
+        vis=lambda rng, n: rng.normal(size=n) + 1j * rng.normal(size=n),
+        sigma=np.random.default_rng(5).uniform(0.2, 2.0, 60 * 3 * 4),
+    )
     out, _ = average_time(vs, 30.0)
     # one output row checked against numpy.average with weights 1/sigma^2
-    sel = (vs.station1 == "ROOK") & (vs.station2 == "TERN") & (vs.channel == 2) & \
-          ((vs.time - vs.time.min()) * 86400 < 30 - 1e-6)
+    sel = (
+        (vs.station1 == "ROOK")
+        & (vs.station2 == "TERN")
+        & (vs.channel == 2)
+        & ((vs.time - vs.time.min()) * 86400 < 30 - 1e-6)
+    )
     w = 1 / vs.sigma[sel] ** 2
     k = np.flatnonzero((out.station1 == "ROOK") & (out.station2 == "TERN") & (out.channel == 2))[0]
     assert out.vis[k] == pytest.approx(np.average(vs.vis[sel], weights=w))
@@ -58,13 +79,13 @@ def test_weighted_means_match_numpy_average():
     # baselines and channels, so that rows averaged together stay simultaneous (for closures)
     in_bin = (vs.time - vs.time.min()) * 86400 < 30 - 1e-6
     assert out.time[k] == pytest.approx(np.mean(vs.time[in_bin]), abs=1e-10)  # 9 us: MJD rounding
-    assert np.unique(out.time).size == 4   # 120 s of data in 30 s bins: four common time stamps
+    assert np.unique(out.time).size == 4  # 120 s of data in 30 s bins: four common time stamps
     assert out.sigma[k] == pytest.approx(1 / np.sqrt(w.sum()))
 
 
 def test_time_smearing_number_against_the_formula_and_a_numerical_average():
     vs = grid_set()
-    radius = 1e-6                             # rad
+    radius = 1e-6  # rad
     out, report = average_time(vs, 60.0, field_radius=radius)
     qmax = vs.uv_distance.max()
     # formula (TMS 2017 ch. 6, from memory): 1 - sin(pi x)/(pi x), x = omega_e dt theta q
@@ -75,8 +96,9 @@ def test_time_smearing_number_against_the_formula_and_a_numerical_average():
     # where its phase runs fastest; the amplitude kept is the predicted sinc to first order
     q, dt, theta = 5e8, 600.0, 1e-8
 
-    def phase(t):   # -2 pi (u l + v m) with l = 0, m = theta
+    def phase(t):  # -2 pi (u l + v m) with l = 0, m = theta
         return -2 * np.pi * q * np.sin(OMEGA_EARTH * t) * theta
+
     re = integrate.quad(lambda t: np.cos(phase(t)), -dt / 2, dt / 2, limit=200)[0] / dt
     im = integrate.quad(lambda t: np.sin(phase(t)), -dt / 2, dt / 2, limit=200)[0] / dt
     kept = np.hypot(re, im)
@@ -97,8 +119,13 @@ def test_bandwidth_smearing_number_and_channel_averaging():
     # numerical check: a flat band averaged over frequency with scipy.integrate
     q0, f0 = 1e8, 5e9
     # (phase measured from the band centre; the amplitude does not depend on that constant)
-    kept = np.hypot(integrate.quad(lambda f: np.cos(2 * np.pi * q0 * (f - f0) / f0 * 2e-6), f0 - 2e6, f0 + 2e6)[0],
-                    integrate.quad(lambda f: np.sin(2 * np.pi * q0 * (f - f0) / f0 * 2e-6), f0 - 2e6, f0 + 2e6)[0]) / 4e6
+    kept = (
+        np.hypot(
+            integrate.quad(lambda f: np.cos(2 * np.pi * q0 * (f - f0) / f0 * 2e-6), f0 - 2e6, f0 + 2e6)[0],
+            integrate.quad(lambda f: np.sin(2 * np.pi * q0 * (f - f0) / f0 * 2e-6), f0 - 2e6, f0 + 2e6)[0],
+        )
+        / 4e6
+    )
     assert 1 - kept == pytest.approx(float(bandwidth_smearing_loss(4e6, f0, 2e-6, q0)), rel=1e-6)
     with pytest.raises(DataError, match="divisor"):
         average_channels(vs, 3)
@@ -116,7 +143,7 @@ def test_selection_options():
     out, _ = apply_selection(vs, time_range=(str(t0), str(t1)))
     assert out.time.max() <= t1 and out.n == 6 * 3 * 4
     out, _ = apply_selection(vs, time_range=("2017-09-04T00:00:00", "2017-09-04T00:00:10"))
-    assert out.n == 6 * 3 * 4          # MJD 58000 is 2017-09-04 (astropy.time)
+    assert out.n == 6 * 3 * 4  # MJD 58000 is 2017-09-04 (astropy.time)
     q = vs.uv_distance
     out, _ = apply_selection(vs, min_uv=np.median(q))
     assert out.uv_distance.min() >= np.median(q)
@@ -125,15 +152,18 @@ def test_selection_options():
     assert parse_channels("0,2-5") == [0, 2, 3, 4, 5]
 
 
-@pytest.mark.parametrize("kwargs, words", [
-    (dict(stations="ROOK,EMU"), "the data hold HERON, ROOK, TERN"),
-    (dict(exclude_stations="EMU"), "EMU"),
-    (dict(channels="7"), "not in the data"),
-    (dict(channels="a-b"), "cannot read the channel list"),
-    (dict(time_range=("yesterday", "today")), "cannot read the time"),
-    (dict(max_uv=1.0), "leaves no visibilities"),
-    (dict(average=-5), "positive"),
-])
+@pytest.mark.parametrize(
+    "kwargs, words",
+    [
+        (dict(stations="ROOK,EMU"), "the data hold HERON, ROOK, TERN"),
+        (dict(exclude_stations="EMU"), "EMU"),
+        (dict(channels="7"), "not in the data"),
+        (dict(channels="a-b"), "cannot read the channel list"),
+        (dict(time_range=("yesterday", "today")), "cannot read the time"),
+        (dict(max_uv=1.0), "leaves no visibilities"),
+        (dict(average=-5), "positive"),
+    ],
+)
 def test_selection_errors(kwargs, words):
     with pytest.raises(DataError, match=words):
         apply_selection(grid_set(), **kwargs)

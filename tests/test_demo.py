@@ -1,5 +1,6 @@
 """The demo: its invented data are what the simulation code makes (value for value, byte for
 byte), and the demo recovers the invented truth within its errors and detects the double."""
+
 import json
 import math
 import os
@@ -15,8 +16,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from tests.helpers import demo_run as _demo_run
 import uvfit
+from tests.helpers import demo_run as _demo_run
 
 ROOT = _demo_run.ROOT
 EXAMPLE = os.path.join(ROOT, "examples", "demo")
@@ -26,8 +27,8 @@ C_LIGHT = 299792458.0  # m/s, exact (SI)
 
 def _make_module():
     import importlib.util
-    spec = importlib.util.spec_from_file_location("make_demo_data",
-                                                  os.path.join(EXAMPLE, "make_demo_data.py"))
+
+    spec = importlib.util.spec_from_file_location("make_demo_data", os.path.join(EXAMPLE, "make_demo_data.py"))
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
     return mod
@@ -46,10 +47,12 @@ def demo():
     def load(name):
         with open(os.path.join(out_dir, name), encoding="utf-8") as handle:
             return json.load(handle)
+
     return proc, out_dir, load
 
 
 # --------------------------------------------------------------------------- the shipped data
+
 
 def test_shipped_data_are_small_and_reproduced_by_the_script(tmp_path):
     assert os.path.getsize(DATA) < 1_000_000
@@ -79,7 +82,8 @@ def test_shipped_sigma_is_the_radiometer_equation():
     mod = _make_module()
     vs = uvfit.read(DATA)
     expect = np.sqrt([sefd[a] * sefd[b] for a, b in zip(vs.station1, vs.station2)]) / (
-        eta * math.sqrt(2 * mod.BANDWIDTH_HZ * mod.INTEGRATION_S))
+        eta * math.sqrt(2 * mod.BANDWIDTH_HZ * mod.INTEGRATION_S)
+    )
     np.testing.assert_allclose(vs.sigma, expect, rtol=1e-6)
 
 
@@ -101,6 +105,7 @@ def test_demo_models_start_away_from_the_truth():
 
 
 # --------------------------------------------------------------------------- the demo's answers
+
 
 def test_recovers_the_truth_within_three_sigma(demo):
     _, _, load = demo
@@ -125,8 +130,11 @@ def test_posterior_contains_the_truth(demo):
     truth = _truth()
     for key in ("separation", "flux_ratio"):
         s = post["parameters"][f"pair.{key}"]
-        assert s["lower_95"] - 0.5 * (s["upper_95"] - s["lower_95"]) < truth[key] \
-            < s["upper_95"] + 0.5 * (s["upper_95"] - s["lower_95"]), (key, s)
+        assert (
+            s["lower_95"] - 0.5 * (s["upper_95"] - s["lower_95"])
+            < truth[key]
+            < s["upper_95"] + 0.5 * (s["upper_95"] - s["lower_95"])
+        ), (key, s)
     assert post["seed"] == 0
 
 
@@ -153,6 +161,7 @@ def test_fits_are_statistically_acceptable(demo):
 
 def test_every_output_written_and_headline_consistent(demo):
     from uvfit.demo import OUTPUTS
+
     proc, out_dir, load = demo
     for name in OUTPUTS.values():
         assert os.path.getsize(os.path.join(out_dir, name)) > 0, name
@@ -170,8 +179,9 @@ def test_every_output_written_and_headline_consistent(demo):
 
 def test_refuses_a_non_empty_folder(tmp_path):
     (tmp_path / "keep.txt").write_text("mine")
-    proc = subprocess.run([sys.executable, "-m", "uvfit", "demo", "--out", str(tmp_path)],
-                          cwd=ROOT, capture_output=True, text=True)
+    proc = subprocess.run(
+        [sys.executable, "-m", "uvfit", "demo", "--out", str(tmp_path)], cwd=ROOT, capture_output=True, text=True
+    )
     assert proc.returncode == 2
     assert "not empty" in proc.stderr and "--force" in proc.stderr
     assert "Traceback" not in proc.stderr
@@ -182,6 +192,7 @@ def test_refuses_a_non_empty_folder(tmp_path):
 def test_out_dir_checks(tmp_path):
     from uvfit.demo import check_out_dir
     from uvfit.errors import UvfitError
+
     new = tmp_path / "new"
     assert check_out_dir(new) == str(new) and new.is_dir()
     (new / "x").write_text("1")
@@ -198,6 +209,7 @@ def test_out_dir_checks(tmp_path):
 def test_blas_helper_leaves_results_unchanged():
     # the same SVD with one thread and with the default (numpy.linalg as the reference)
     from uvfit._blas import single_threaded
+
     a = np.random.default_rng(1).normal(size=(500, 6))
     ref = np.linalg.svd(a, compute_uv=False)
     with single_threaded():

@@ -4,7 +4,7 @@ Outside references: numpy's own sin, cos and exp (the C library's) for the kerne
 functions; the numpy path (each shape's numpy code and the shift theorem, TMS 2017 ch. 3, from
 memory) for whole models, values and Jacobians, for every registered shape. No timing here.
 """
-import math
+
 import os
 import subprocess
 import sys
@@ -29,9 +29,20 @@ V = RNG.normal(0, 3e9, N)
 F = RNG.uniform(200e9, 260e9, N)
 
 #: a value (model units: mas, deg, 1) for every size parameter, by its name without member suffix
-SIZE = {"fwhm": 0.05, "axis_ratio": 0.55, "position_angle": 35.0, "diameter": 0.06, "blur": 0.012,
-        "amplitude": 0.3, "angle": 40.0, "inner_radius": 0.02, "outer_radius": 0.045,
-        "radius": 0.03, "flux_ratio": 0.45, "separation": 0.11}
+SIZE = {
+    "fwhm": 0.05,
+    "axis_ratio": 0.55,
+    "position_angle": 35.0,
+    "diameter": 0.06,
+    "blur": 0.012,
+    "amplitude": 0.3,
+    "angle": 40.0,
+    "inner_radius": 0.02,
+    "outer_radius": 0.045,
+    "radius": 0.03,
+    "flux_ratio": 0.45,
+    "separation": 0.11,
+}
 
 
 def size_value(name):
@@ -101,12 +112,13 @@ def test_fast_path_with_spectral_index_and_frequencies(case):
 
 @needs_numba
 def test_fast_path_several_components_ties_fixed_and_theta():
-    specs = [spec_for("gaussian", "core", 0.0, 0.0),
-             spec_for("elliptical_gaussian", "jet", 0.2, 0.1) | {"axis_ratio": {"value": 0.4, "fixed": True}},
-             spec_for("point", "knot", -0.15, 0.3) | {"north": {"tie": "jet.north"}},
-             spec_for("ring", "shell") | {"diameter": {"tie": "core.fwhm"}},
-             spec_for("gaussian", "halo", 0.01, 0.02) | {"spectral_index": 0.5,
-                                                          "reference_frequency": "220 GHz"}]
+    specs = [
+        spec_for("gaussian", "core", 0.0, 0.0),
+        spec_for("elliptical_gaussian", "jet", 0.2, 0.1) | {"axis_ratio": {"value": 0.4, "fixed": True}},
+        spec_for("point", "knot", -0.15, 0.3) | {"north": {"tie": "jet.north"}},
+        spec_for("ring", "shell") | {"diameter": {"tie": "core.fwhm"}},
+        spec_for("gaussian", "halo", 0.01, 0.02) | {"spectral_index": 0.5, "reference_frequency": "220 GHz"},
+    ]
     model = SkyModel.build(specs)
     theta = model.get_free() * (1.0 + 0.05 * RNG.standard_normal(model.n_free))
     assert_same(*both(model, theta=theta))
@@ -152,10 +164,12 @@ def test_fast_path_any_input_shape_and_many_rows():
 @needs_numba
 def test_kernel_trigonometry_and_exponential_against_numpy():
     from uvfit.sky import _kernels as k
+
     rng = np.random.default_rng(11)
     # phases in turns: small, large (1e6 turns) and exact quarter turns
-    t = np.concatenate([rng.uniform(-2, 2, 4000), rng.uniform(-1e6, 1e6, 4000),
-                        np.arange(-8, 9) * 0.25, [0.0, 0.5, -0.5, 0.125]])
+    t = np.concatenate(
+        [rng.uniform(-2, 2, 4000), rng.uniform(-1e6, 1e6, 4000), np.arange(-8, 9) * 0.25, [0.0, 0.5, -0.5, 0.125]]
+    )
     s, c = np.empty_like(t), np.empty_like(t)
     k.sincos_array(t, s, c)
     # reference: numpy (C library) sin/cos of 2 pi (t - round(t)), exact reduction in turns
@@ -163,8 +177,7 @@ def test_kernel_trigonometry_and_exponential_against_numpy():
     assert np.max(np.abs(s - np.sin(r))) < 4e-16
     assert np.max(np.abs(c - np.cos(r))) < 4e-16
     assert np.max(np.abs(s * s + c * c - 1)) < 5e-16
-    x = np.concatenate([-rng.uniform(0, 700, 4000), rng.uniform(-1, 1, 1000),
-                        [0.0, -1e-300, -708.0, -740.0]])
+    x = np.concatenate([-rng.uniform(0, 700, 4000), rng.uniform(-1, 1, 1000), [0.0, -1e-300, -708.0, -740.0]])
     e = np.empty_like(x)
     k.exp_array(x, e)
     ref = np.exp(x)
@@ -216,23 +229,24 @@ def test_engine_choice_and_messages(monkeypatch):
 
 
 def test_import_does_not_load_numba():
-    code = ("import sys, uvfit, uvfit.sky.model, uvfit.sky.engine; "
-            "print('numba' in sys.modules)")
-    out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True,
-                         timeout=120)
+    code = "import sys, uvfit, uvfit.sky.model, uvfit.sky.engine; print('numba' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "False"
 
 
 @needs_numba
 def test_environment_variable_selects_the_path():
-    code = ("import numpy as np; from uvfit.sky import engine; from uvfit.sky.model import SkyModel; "
-            "m = SkyModel.build([{'name': 'a', 'shape': 'gaussian', 'flux': 1.0, 'east': 0.1, 'fwhm': 0.05}]); "
-            "m.visibilities(np.ones(3), np.ones(3)); print(engine.current())")
+    code = (
+        "import numpy as np; from uvfit.sky import engine; from uvfit.sky.model import SkyModel; "
+        "m = SkyModel.build([{'name': 'a', 'shape': 'gaussian', 'flux': 1.0, 'east': 0.1, 'fwhm': 0.05}]); "
+        "m.visibilities(np.ones(3), np.ones(3)); print(engine.current())"
+    )
     for name in ("numpy", "numba"):
         env = dict(os.environ, **{engine.ENGINE_VARIABLE: name})
-        out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True,
-                             env=env, timeout=300)
+        out = subprocess.run(
+            [sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True, env=env, timeout=300
+        )
         assert out.returncode == 0, out.stderr
         assert out.stdout.strip() == name
 
@@ -247,7 +261,7 @@ def test_misfit_equals_the_sum_over_model_visibilities(case):
     data = vis + 0.01 * (rng.standard_normal(N) + 1j * rng.standard_normal(N))
     weight = rng.uniform(0.5, 2.0, N)
     d = data - vis
-    expected = float(np.sum(weight * (d.real ** 2 + d.imag ** 2)))
+    expected = float(np.sum(weight * (d.real**2 + d.imag**2)))
     theta = model.get_free()
     for name in PATHS:
         with engine.using(name):
@@ -262,11 +276,21 @@ def test_complex_statistic_fast_likelihood_and_jacobian_equal_the_generic_ones()
     from uvfit.data.visset import VisibilitySet
     from uvfit.stats.base import Statistic
     from uvfit.stats.modes import make_statistic
+
     model = SkyModel.build([spec_for("gaussian", "g"), spec_for("point", "p", -0.1, 0.2)])
     rng = np.random.default_rng(9)
     vis = model.visibilities(U, V) + 0.02 * (rng.standard_normal(N) + 1j * rng.standard_normal(N))
-    vs = VisibilitySet(u=U, v=V, w=None, time=np.zeros(N), frequency=230e9, station1=["AA"] * N,
-                       station2=["BB"] * N, vis=vis, sigma=rng.uniform(0.01, 0.03, N))
+    vs = VisibilitySet(
+        u=U,
+        v=V,
+        w=None,
+        time=np.zeros(N),
+        frequency=230e9,
+        station1=["AA"] * N,
+        station2=["BB"] * N,
+        vis=vis,
+        sigma=rng.uniform(0.01, 0.03, N),
+    )
     stat = make_statistic("complex", vs, model, systematic=0.01)
     theta = model.get_free() * 1.01
     for s in (stat, stat.scaled(1.7)):

@@ -3,6 +3,7 @@
 Reference: the normal distribution (68.27% of draws within 1 sigma) and scipy.stats.chi2 for the
 best-fit chi2 of a correct model with correct errors.
 """
+
 import math
 
 import numpy as np
@@ -28,16 +29,27 @@ def test_error_bars_cover_68_percent_and_chi2_follows_dof():
     clean = truth.visibilities(u, v)
     st = np.array(["KA", "LO", "MU"])
     s1 = np.arange(n) % 2
-    true = {"core-knot.separation": math.hypot(-0.5, -0.8),
-            "core-knot.position_angle": math.degrees(math.atan2(-0.5, -0.8)) % 360,
-            "core-knot.flux_ratio": 0.4}
+    true = {
+        "core-knot.separation": math.hypot(-0.5, -0.8),
+        "core-knot.position_angle": math.degrees(math.atan2(-0.5, -0.8)) % 360,
+        "core-knot.flux_ratio": 0.4,
+    }
     inside = {k: 0 for k in KEYS}
     chi2, dof = [], None
     for seed in range(N_REAL):
         rng = np.random.default_rng(1000 + seed)
         vis = clean + rng.normal(0, sigma, n) + 1j * rng.normal(0, sigma, n)
-        vs = VisibilitySet(u=u, v=v, w=None, time=np.zeros(n), frequency=86e9, station1=st[s1],
-                           station2=st[s1 + 1], vis=vis, sigma=np.full(n, sigma))
+        vs = VisibilitySet(
+            u=u,
+            v=v,
+            w=None,
+            time=np.zeros(n),
+            frequency=86e9,
+            station1=st[s1],
+            station2=st[s1 + 1],
+            vis=vis,
+            sigma=np.full(n, sigma),
+        )
         res = fit(make_statistic("complex", vs, truth.copy()), starts=1, seed=seed)
         d = derived_quantities(res, resolved_test=False, limits=False)
         for k in KEYS:

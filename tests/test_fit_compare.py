@@ -1,4 +1,5 @@
 """Model comparison: bootstrap false-alarm probabilities are calibrated; verdicts are worded."""
+
 import numpy as np
 import pytest
 from scipy import stats

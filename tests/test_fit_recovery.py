@@ -1,4 +1,5 @@
 """Least-squares fits recover injected models; errors, AIC/BIC, Tb and degeneracies are right."""
+
 import math
 
 import numpy as np
@@ -7,8 +8,7 @@ from scipy import stats
 
 from tests.helpers.fit_sim import double, simulate
 from uvfit.errors import FitError
-from uvfit.infer.derived import (brightness_temperature_disk, brightness_temperature_gaussian,
-                                 derived_quantities)
+from uvfit.infer.derived import brightness_temperature_disk, brightness_temperature_gaussian, derived_quantities
 from uvfit.infer.lsq import aic, bic, fit
 from uvfit.infer.run import run_fit
 from uvfit.sky.model import SkyModel
@@ -33,12 +33,31 @@ def test_double_recovered_within_three_sigma(sigma):
 
 def test_linear_fluxes_equal_weighted_linear_least_squares():
     # reference: numpy.linalg.lstsq on the weighted design matrix of a problem linear in the fluxes
-    comps = [{"name": "a", "shape": "gaussian", "flux": 0.7, "east": {"value": 0.0, "fixed": True},
-              "north": {"value": 0.0, "fixed": True}, "fwhm": {"value": 0.3, "fixed": True}},
-             {"name": "b", "shape": "point", "flux": 0.2, "east": {"value": 0.4, "fixed": True},
-              "north": {"value": -0.3, "fixed": True}},
-             {"name": "c", "shape": "gaussian", "flux": 0.1, "east": {"value": -1.0, "fixed": True},
-              "north": {"value": 0.5, "fixed": True}, "fwhm": {"value": 0.8, "fixed": True}}]
+    comps = [
+        {
+            "name": "a",
+            "shape": "gaussian",
+            "flux": 0.7,
+            "east": {"value": 0.0, "fixed": True},
+            "north": {"value": 0.0, "fixed": True},
+            "fwhm": {"value": 0.3, "fixed": True},
+        },
+        {
+            "name": "b",
+            "shape": "point",
+            "flux": 0.2,
+            "east": {"value": 0.4, "fixed": True},
+            "north": {"value": -0.3, "fixed": True},
+        },
+        {
+            "name": "c",
+            "shape": "gaussian",
+            "flux": 0.1,
+            "east": {"value": -1.0, "fixed": True},
+            "north": {"value": 0.5, "fixed": True},
+            "fwhm": {"value": 0.8, "fixed": True},
+        },
+    ]
     truth = SkyModel.build(comps, angular_unit="mas")
     vs = simulate(truth, n=500, sigma=0.05, seed=3)
     vs.sigma = vs.sigma * np.linspace(0.5, 2.0, vs.n)  # unequal weights
@@ -69,10 +88,16 @@ def test_brightness_temperature_constant_against_astropy():
     # recomputed here from astropy.constants
     import astropy.constants as const
     import astropy.units as u
+
     mas = (1 * u.mas).to_value(u.rad)
     tb = brightness_temperature_gaussian(1.0, 1e9, mas, mas, redshift=0.0)
-    ref = (2 * math.log(2) * const.c ** 2 * (1 * u.Jy) / (math.pi * const.k_B * (1 * u.GHz) ** 2
-                                                          * (1 * u.mas).to(u.rad, u.dimensionless_angles()) ** 2))
+    ref = (
+        2
+        * math.log(2)
+        * const.c**2
+        * (1 * u.Jy)
+        / (math.pi * const.k_B * (1 * u.GHz) ** 2 * (1 * u.mas).to(u.rad, u.dimensionless_angles()) ** 2)
+    )
     ref = ref.to_value(u.K, u.dimensionless_angles())
     assert tb == pytest.approx(ref, rel=1e-10)
     assert tb == pytest.approx(1.22e12, rel=0.01)
@@ -81,8 +106,7 @@ def test_brightness_temperature_constant_against_astropy():
     # evaluated with astropy units and constants
     d = 2 * mas
     intensity = (1 * u.Jy) / (math.pi * (d * u.rad) ** 2 / 4)
-    rj = (const.c ** 2 * intensity / (2 * const.k_B * (1 * u.GHz) ** 2)).to_value(
-        u.K, u.dimensionless_angles())
+    rj = (const.c**2 * intensity / (2 * const.k_B * (1 * u.GHz) ** 2)).to_value(u.K, u.dimensionless_angles())
     assert brightness_temperature_disk(1.0, 1e9, d) == pytest.approx(rj, rel=1e-10)
 
 
@@ -93,8 +117,7 @@ def test_brightness_temperature_in_derived_quantities():
     d = derived_quantities(res, redshift=0.5, resolved_test=False)
     s, th = res.value("core.flux"), res.value("core.fwhm")
     # 1.22e12 constant (REFERENCES.md, from memory) to the 1% it is quoted to
-    assert d["core.brightness_temperature"]["value"] == pytest.approx(
-        1.22e12 * 1.5 * s / (43 ** 2 * th * th), rel=0.01)
+    assert d["core.brightness_temperature"]["value"] == pytest.approx(1.22e12 * 1.5 * s / (43**2 * th * th), rel=0.01)
 
 
 def test_amplitude_mode_fixes_position_and_recovers_relative_geometry():
@@ -125,8 +148,7 @@ def test_amplitude_statistic_rice_likelihood_and_jacobian():
     low = ~st.high
     assert low.any() and st.high.any()
     pred = st.predict(theta)
-    np.testing.assert_allclose(pred[low], stats.rice.mean(nu[low] / vs.sigma[low], scale=vs.sigma[low]),
-                               rtol=1e-9)
+    np.testing.assert_allclose(pred[low], stats.rice.mean(nu[low] / vs.sigma[low], scale=vs.sigma[low]), rtol=1e-9)
     # Jacobian against central finite differences
     jac = st.jacobian(theta)
     for i in range(len(theta)):
@@ -142,7 +164,7 @@ def test_systematic_floor_adds_in_quadrature():
     truth = double()
     vs = simulate(truth, n=50, sigma=0.01, seed=1)
     st = make_statistic("complex", vs, truth.copy(), systematic=0.05)
-    expect = np.sqrt(vs.sigma ** 2 + (0.05 * np.abs(vs.vis)) ** 2)  # common practice
+    expect = np.sqrt(vs.sigma**2 + (0.05 * np.abs(vs.vis)) ** 2)  # common practice
     np.testing.assert_allclose(st.sigma, np.concatenate([expect, expect]))
 
 
@@ -159,8 +181,10 @@ def test_per_station_and_baseline_chi2_add_up():
 
 def test_unconstrained_and_non_converging_fits_raise_clear_errors():
     # a component of zero flux: its position changes nothing
-    m = SkyModel.build([{"name": "ghost", "shape": "point", "flux": {"value": 0.0, "fixed": True},
-                         "east": 0.1, "north": 0.2}], angular_unit="mas")
+    m = SkyModel.build(
+        [{"name": "ghost", "shape": "point", "flux": {"value": 0.0, "fixed": True}, "east": 0.1, "north": 0.2}],
+        angular_unit="mas",
+    )
     vs = simulate(double(), n=100, sigma=0.01)
     with pytest.raises(FitError, match="cannot constrain any free parameter"):
         fit(make_statistic("complex", vs, m))
@@ -172,12 +196,32 @@ def test_unconstrained_and_non_converging_fits_raise_clear_errors():
 
 def test_partial_degeneracy_is_a_notice():
     # two identical point sources at the same place: only the sum of their fluxes is measurable
-    m = SkyModel.build([{"name": "a", "shape": "point", "flux": 0.5, "east": {"value": 0.0, "fixed": True},
-                         "north": {"value": 0.0, "fixed": True}},
-                        {"name": "b", "shape": "point", "flux": 0.5, "east": {"value": 0.0, "fixed": True},
-                         "north": {"value": 0.0, "fixed": True}},
-                        {"name": "c", "shape": "point", "flux": 0.2, "east": {"value": 1.0, "fixed": True},
-                         "north": {"value": 0.0, "fixed": True}}], angular_unit="mas")
+    m = SkyModel.build(
+        [
+            {
+                "name": "a",
+                "shape": "point",
+                "flux": 0.5,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            },
+            {
+                "name": "b",
+                "shape": "point",
+                "flux": 0.5,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            },
+            {
+                "name": "c",
+                "shape": "point",
+                "flux": 0.2,
+                "east": {"value": 1.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            },
+        ],
+        angular_unit="mas",
+    )
     vs = simulate(m, n=200, sigma=0.01)
     res = fit(make_statistic("complex", vs, m.copy()))
     assert set(res.unconstrained) == {"a.flux", "b.flux"}
@@ -186,11 +230,25 @@ def test_partial_degeneracy_is_a_notice():
 
 
 def test_global_search_needs_finite_bounds_and_finds_the_minimum():
-    truth = SkyModel.build([{"name": "core", "shape": "point", "flux": 1.0, "east": {"value": 0.0, "fixed": True},
-                             "north": {"value": 0.0, "fixed": True}},
-                            {"name": "knot", "shape": "point", "flux": {"value": 0.5, "min": 0, "max": 2},
-                             "east": {"value": 0.6, "min": -2, "max": 2},
-                             "north": {"value": -0.4, "min": -2, "max": 2}}], angular_unit="mas")
+    truth = SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "point",
+                "flux": 1.0,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            },
+            {
+                "name": "knot",
+                "shape": "point",
+                "flux": {"value": 0.5, "min": 0, "max": 2},
+                "east": {"value": 0.6, "min": -2, "max": 2},
+                "north": {"value": -0.4, "min": -2, "max": 2},
+            },
+        ],
+        angular_unit="mas",
+    )
     truth.parameters["core.flux"].min = 0.0
     truth.parameters["core.flux"].max = 3.0
     vs = simulate(truth, n=400, sigma=0.01, seed=9, qmax=3e8)
@@ -204,12 +262,32 @@ def test_global_search_needs_finite_bounds_and_finds_the_minimum():
 
 
 def test_unresolved_component_gets_upper_limit_and_tb_lower_limit():
-    truth = SkyModel.build([{"name": "core", "shape": "point", "flux": 1.0, "east": {"value": 0.0, "fixed": True},
-                             "north": {"value": 0.0, "fixed": True}}], angular_unit="mas")
+    truth = SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "point",
+                "flux": 1.0,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            }
+        ],
+        angular_unit="mas",
+    )
     vs = simulate(truth, n=500, sigma=0.05, seed=12, qmax=3e8)
-    model = SkyModel.build([{"name": "core", "shape": "gaussian", "flux": 1.0,
-                             "east": {"value": 0.0, "fixed": True}, "north": {"value": 0.0, "fixed": True},
-                             "fwhm": 0.05}], angular_unit="mas")
+    model = SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "gaussian",
+                "flux": 1.0,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+                "fwhm": 0.05,
+            }
+        ],
+        angular_unit="mas",
+    )
     out = run_fit(vs, model)
     d = out["derived"]
     assert d["core.resolved"]["resolved"] is False
@@ -225,10 +303,19 @@ def test_position_angle_error_near_the_wrap():
     # a knot due north (PA ~ 0/360): its PA error must be that of a knot due south, not huge
     errs = []
     for north in (1.0, -1.0):
-        m = SkyModel.build([{"name": "a", "shape": "point", "flux": 1.0, "east": {"value": 0.0, "fixed": True},
-                             "north": {"value": 0.0, "fixed": True}},
-                            {"name": "b", "shape": "point", "flux": 0.5, "east": 0.0, "north": north}],
-                           angular_unit="mas")
+        m = SkyModel.build(
+            [
+                {
+                    "name": "a",
+                    "shape": "point",
+                    "flux": 1.0,
+                    "east": {"value": 0.0, "fixed": True},
+                    "north": {"value": 0.0, "fixed": True},
+                },
+                {"name": "b", "shape": "point", "flux": 0.5, "east": 0.0, "north": north},
+            ],
+            angular_unit="mas",
+        )
         vs = simulate(m, n=400, sigma=0.02, seed=1)
         res = fit(make_statistic("complex", vs, m.copy()))
         d = derived_quantities(res, resolved_test=False)
@@ -240,13 +327,13 @@ def test_position_angle_error_near_the_wrap():
     assert errs[0] == pytest.approx(errs[1], rel=0.1)
 
 
-@pytest.mark.parametrize("mode", ["complex", "amplitude", "closure_phase", "closure_amplitude",
-                                  "closure", "hybrid"])
+@pytest.mark.parametrize("mode", ["complex", "amplitude", "closure_phase", "closure_amplitude", "closure", "hybrid"])
 def test_every_registered_mode_fits_and_recovers_the_geometry(mode):
     import importlib
 
     from tests.helpers.fit_sim import snapshots
     from uvfit.stats.modes import MODES
+
     try:
         importlib.import_module(MODES[mode][0])
     except ImportError:
@@ -268,9 +355,24 @@ def test_every_registered_mode_fits_and_recovers_the_geometry(mode):
 
 def test_double_component_members_and_rescaled_errors():
     # a double's members count as pair.1 / pair.2: their separation is the double's own parameter
-    m = SkyModel.build([{"name": "pair", "shape": "double", "member": "gaussian", "flux": 1.4,
-                         "east": 0.0, "north": 0.0, "flux_ratio": 0.4, "separation": 0.9,
-                         "position_angle": 212.0, "fwhm_1": 0.3, "fwhm_2": 0.5}], angular_unit="mas")
+    m = SkyModel.build(
+        [
+            {
+                "name": "pair",
+                "shape": "double",
+                "member": "gaussian",
+                "flux": 1.4,
+                "east": 0.0,
+                "north": 0.0,
+                "flux_ratio": 0.4,
+                "separation": 0.9,
+                "position_angle": 212.0,
+                "fwhm_1": 0.3,
+                "fwhm_2": 0.5,
+            }
+        ],
+        angular_unit="mas",
+    )
     vs = simulate(m, n=800, sigma=0.02, seed=14)
     res = fit(make_statistic("complex", vs, m.copy()))
     d = derived_quantities(res, resolved_test=False)
@@ -302,4 +404,4 @@ def test_amplitude_residuals_unbiased_at_every_snr():
     for r in (np.concatenate(r_high), np.concatenate(r_low)):
         assert r.size > 5000
         assert abs(r.mean()) < 5 / np.sqrt(r.size) + 0.01
-        assert abs(np.mean(r ** 2) - 1) < 0.05
+        assert abs(np.mean(r**2) - 1) < 0.05

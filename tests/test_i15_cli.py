@@ -1,4 +1,5 @@
 """uvfit profile, uvfit jackknife, fit --profile/--jackknife on the shipped demo files (issue 15)."""
+
 import json
 
 from click.testing import CliRunner
@@ -16,13 +17,26 @@ def _run(*args):
 
 def test_profile_command_json_and_plot(tmp_path):
     out, png = tmp_path / "p.json", tmp_path / "p.png"
-    res = _run("profile", DATA, MODEL, "--parameter", "pair.separation", "--points", "7",
-               "--starts", "1", "--json", out, "--plot", png)
+    res = _run(
+        "profile",
+        DATA,
+        MODEL,
+        "--parameter",
+        "pair.separation",
+        "--points",
+        "7",
+        "--starts",
+        "1",
+        "--json",
+        out,
+        "--plot",
+        png,
+    )
     assert res.exit_code == 0, res.output
     d = json.loads(out.read_text())
     for key in ("parameter", "grid", "chi2", "best", "interval_68", "interval_95", "unconstrained"):
         assert key in d
-    (lo, hi), = d["interval_68"]
+    ((lo, hi),) = d["interval_68"]
     # a well-measured separation: the profile interval agrees with the curvature error
     # (the two coincide for a quadratic chi2; Venzon & Moolgavkar 1988)
     assert abs((hi - lo) / 2 - d["formal_error"]) < 0.2 * d["formal_error"]
@@ -30,8 +44,10 @@ def test_profile_command_json_and_plot(tmp_path):
 
 
 def test_profile_unknown_parameter_is_one_line():
-    from uvfit.cli import main
     import pytest
+
+    from uvfit.cli import main
+
     with pytest.raises(SystemExit) as exc:
         main(["profile", DATA, MODEL, "--parameter", "pair.nothing"])
     assert exc.value.code == 2
@@ -44,8 +60,9 @@ def test_jackknife_command_and_fit_options(tmp_path):
     d = json.loads(out.read_text())
     assert d["n_fits"] == len(d["groups"]) and "pair.separation" in d["parameters"]
     f = tmp_path / "f.json"
-    res = _run("fit", DATA, MODEL, "--profile", "pair.flux_ratio", "--jackknife", "station",
-               "--no-resolved-test", "--json", f)
+    res = _run(
+        "fit", DATA, MODEL, "--profile", "pair.flux_ratio", "--jackknife", "station", "--no-resolved-test", "--json", f
+    )
     assert res.exit_code == 0, res.output
     d = json.loads(f.read_text())
     assert "pair.flux_ratio" in d["profile"] and d["jackknife"]["by"] == "station"

@@ -1,22 +1,37 @@
 """Absolute quantities in closure modes (issue 15, item 5): marked not measured, and a stated
 flux-scale estimate from the short-baseline amplitudes."""
+
 import numpy as np
 import pytest
+from helpers.closure_tools import make_vset
 
 import uvfit
-from uvfit.sky.model import SkyModel
 from uvfit.show.readback import fit_view
-
-from helpers.closure_tools import make_vset
+from uvfit.sky.model import SkyModel
 
 
 def _model(flux):
-    return SkyModel.build([
-        {"name": "core", "shape": "gaussian", "flux": {"value": flux, "min": 0.0},
-         "fwhm": {"value": 20.0, "min": 0.5, "max": 200.0}, "east": 0.0, "north": 0.0},
-        {"name": "knot", "shape": "gaussian", "flux": {"value": 0.4 * flux, "min": 0.0},
-         "fwhm": {"value": 30.0, "min": 0.5, "max": 200.0}, "east": -40.0, "north": -30.0},
-    ], angular_unit="uas")
+    return SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "gaussian",
+                "flux": {"value": flux, "min": 0.0},
+                "fwhm": {"value": 20.0, "min": 0.5, "max": 200.0},
+                "east": 0.0,
+                "north": 0.0,
+            },
+            {
+                "name": "knot",
+                "shape": "gaussian",
+                "flux": {"value": 0.4 * flux, "min": 0.0},
+                "fwhm": {"value": 30.0, "min": 0.5, "max": 200.0},
+                "east": -40.0,
+                "north": -30.0,
+            },
+        ],
+        angular_unit="uas",
+    )
 
 
 @pytest.fixture(scope="module")

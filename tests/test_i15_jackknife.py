@@ -1,21 +1,29 @@
 """Delete-one-group jackknife (issue 15, item 4; Efron & Tibshirani 1993, ch. 11; the delete-d
 factor for stations, whose groups share baselines: Shao & Wu 1989)."""
+
 import numpy as np
+from helpers.closure_tools import make_vset
 
 from uvfit.infer.jackknife import groups, jackknife
 from uvfit.infer.lsq import fit
 from uvfit.sky.model import SkyModel
 from uvfit.stats.modes import make_statistic
 
-from helpers.closure_tools import make_vset
-
 
 def _model():
-    return SkyModel.build([
-        {"name": "a", "shape": "gaussian", "flux": {"value": 1.0, "min": 0.0},
-         "fwhm": {"value": 30.0, "min": 0.1, "max": 200.0},
-         "east": {"value": 0.0, "fixed": True}, "north": {"value": 0.0, "fixed": True}},
-    ], angular_unit="uas")
+    return SkyModel.build(
+        [
+            {
+                "name": "a",
+                "shape": "gaussian",
+                "flux": {"value": 1.0, "min": 0.0},
+                "fwhm": {"value": 30.0, "min": 0.1, "max": 200.0},
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            },
+        ],
+        angular_unit="uas",
+    )
 
 
 def _data(bad_station_gain):
@@ -51,7 +59,7 @@ def test_clean_data_within_factor_1_5():
 def test_scan_groups_from_time_gaps():
     vs = make_vset(_model(), n_stations=3, n_times=4, sigma=0.01, seed=1)
     t = np.unique(vs.time)
-    shift = np.where(vs.time >= t[2], 1.0, 0.0)           # a one-day gap: two scans
+    shift = np.where(vs.time >= t[2], 1.0, 0.0)  # a one-day gap: two scans
     vs = vs.with_vis(vs.vis)
     vs.time = vs.time + shift
     found, how = groups(vs, "scan")

@@ -1,7 +1,9 @@
 """Profile likelihood (issue 15, item 2): intervals from delta chi2 = 1 and 3.84 (Wilks 1938;
 Venzon & Moolgavkar 1988)."""
+
 import numpy as np
 import pytest
+from helpers.sample_data import simulate
 
 from uvfit.errors import UvfitError
 from uvfit.infer.lsq import fit
@@ -9,13 +11,20 @@ from uvfit.infer.profile import intervals, profile
 from uvfit.sky.model import SkyModel
 from uvfit.stats.modes import make_statistic
 
-from helpers.sample_data import simulate
-
 
 def _point(flux=1.0):
-    return SkyModel.build([{"name": "p", "shape": "point", "flux": flux,
-                            "east": {"value": 0.0, "fixed": True},
-                            "north": {"value": 0.0, "fixed": True}}], angular_unit="mas")
+    return SkyModel.build(
+        [
+            {
+                "name": "p",
+                "shape": "point",
+                "flux": flux,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            }
+        ],
+        angular_unit="mas",
+    )
 
 
 def test_linear_one_parameter_matches_analytic():
@@ -27,14 +36,14 @@ def test_linear_one_parameter_matches_analytic():
     vs = vs.with_vis(vs.vis, sigma=rng.uniform(0.03, 0.08, vs.n))
     stat = make_statistic("complex", vs, _point(1.0))
     prof = profile(stat, "p.flux", points=9, starts=1)
-    w = 1.0 / vs.sigma ** 2
+    w = 1.0 / vs.sigma**2
     mean = float(np.sum(w * vs.vis.real) / np.sum(w))
     err = float(1.0 / np.sqrt(np.sum(w)))
     assert prof["best"] == pytest.approx(mean, abs=1e-6)
-    (lo, hi), = prof["interval_68"]
+    ((lo, hi),) = prof["interval_68"]
     assert lo == pytest.approx(mean - err, abs=1e-6)
     assert hi == pytest.approx(mean + err, abs=1e-6)
-    (lo, hi), = prof["interval_95"]
+    ((lo, hi),) = prof["interval_95"]
     assert hi - lo == pytest.approx(2 * np.sqrt(3.841458820694124) * err, abs=1e-6)
     assert prof["unconstrained"] is False
 
@@ -59,10 +68,19 @@ def test_parameter_not_free_is_named():
 
 
 def _gauss(flux, fwhm):
-    return SkyModel.build([{"name": "g", "shape": "gaussian", "flux": {"value": flux, "min": 0.0},
-                            "fwhm": {"value": fwhm, "min": 0.001, "max": 2.0},
-                            "east": {"value": 0.0, "fixed": True},
-                            "north": {"value": 0.0, "fixed": True}}], angular_unit="mas")
+    return SkyModel.build(
+        [
+            {
+                "name": "g",
+                "shape": "gaussian",
+                "flux": {"value": flux, "min": 0.0},
+                "fwhm": {"value": fwhm, "min": 0.001, "max": 2.0},
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            }
+        ],
+        angular_unit="mas",
+    )
 
 
 def test_profile_coverage_nonlinear_gaussian():
@@ -75,9 +93,17 @@ def test_profile_coverage_nonlinear_gaussian():
         vs = simulate(truth, n=12, q_max=4e8, sigma=0.1, seed=k)
         stat = make_statistic("complex", vs, _gauss(1.0, 0.25))
         best = fit(stat, seed=k)
-        prof = profile(stat, "g.fwhm", points=7, starts=1, best=best,
-                       value_range=(max(0.001, best.value("g.fwhm") - 4 * best.error("g.fwhm")),
-                                    min(2.0, best.value("g.fwhm") + 4 * best.error("g.fwhm"))))
+        prof = profile(
+            stat,
+            "g.fwhm",
+            points=7,
+            starts=1,
+            best=best,
+            value_range=(
+                max(0.001, best.value("g.fwhm") - 4 * best.error("g.fwhm")),
+                min(2.0, best.value("g.fwhm") + 4 * best.error("g.fwhm")),
+            ),
+        )
         hits += any(lo <= 0.25 <= hi for lo, hi in prof["interval_68"])
     assert abs(hits / n - 0.683) <= 0.05, hits
 
@@ -89,13 +115,22 @@ def test_thin_ring_one_triangle_profile_is_wide_and_holds_truth():
     from helpers.closure_tools import make_vset
 
     def ring(d, a, t):
-        return SkyModel.build([{"name": "ring", "shape": "ring_modulated",
-                                "flux": {"value": 1.0, "min": 0.0},
-                                "diameter": {"value": d, "min": 10.0, "max": 90.0},
-                                "blur": {"value": 5.0, "fixed": True},
-                                "amplitude_1": {"value": a, "min": 0.0, "max": 0.5},
-                                "angle_1": {"value": t}, "east": 0.0, "north": 0.0}],
-                              angular_unit="uas")
+        return SkyModel.build(
+            [
+                {
+                    "name": "ring",
+                    "shape": "ring_modulated",
+                    "flux": {"value": 1.0, "min": 0.0},
+                    "diameter": {"value": d, "min": 10.0, "max": 90.0},
+                    "blur": {"value": 5.0, "fixed": True},
+                    "amplitude_1": {"value": a, "min": 0.0, "max": 0.5},
+                    "angle_1": {"value": t},
+                    "east": 0.0,
+                    "north": 0.0,
+                }
+            ],
+            angular_unit="uas",
+        )
 
     vs = make_vset(ring(45.0, 0.3, 150.0), n_stations=3, n_times=8, sigma=0.1, seed=3)
     stat = make_statistic("closure_phase", vs, ring(40.0, 0.2, 100.0), snr_cut=1.0)

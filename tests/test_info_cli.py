@@ -1,4 +1,5 @@
 """`uvfit info` on real data, and bad input through the command line: one clear line, exit 2."""
+
 import json
 import subprocess
 import sys
@@ -17,8 +18,7 @@ HI = "SR1_3C279_2017_095_hi_hops_netcal_StokesI.uvfits"
 
 
 def run_cli(*args):
-    return subprocess.run([sys.executable, "-m", "uvfit", *map(str, args)], cwd=ROOT,
-                          capture_output=True, text=True)
+    return subprocess.run([sys.executable, "-m", "uvfit", *map(str, args)], cwd=ROOT, capture_output=True, text=True)
 
 
 def test_info_table_and_json(tmp_path):
@@ -26,8 +26,17 @@ def test_info_table_and_json(tmp_path):
     out = tmp_path / "info.json"
     res = CliRunner().invoke(cli, ["info", str(path), "--json", str(out)])
     assert res.exit_code == 0, res.output
-    for word in ("3C279", "12h56m11.1666s", "-05d47m21.525s", "229.0707 GHz", "5790 usable",
-                 "AA AP AZ JC LM PV SM", "Glambda", "resolution", "median SNR"):
+    for word in (
+        "3C279",
+        "12h56m11.1666s",
+        "-05d47m21.525s",
+        "229.0707 GHz",
+        "5790 usable",
+        "AA AP AZ JC LM PV SM",
+        "Glambda",
+        "resolution",
+        "median SNR",
+    ):
         assert word in res.output
     s = json.loads(out.read_text())
     for key in ("source", "n_visibilities", "stations", "frequency_hz", "uv_max_lambda", "resolution_mas"):
@@ -36,6 +45,7 @@ def test_info_table_and_json(tmp_path):
     assert s["n_visibilities"] == 5790 and len(s["stations"]) == 7
     # resolution lambda/B_max from the maximum uv distance, converted with astropy.units
     import astropy.units as u
+
     assert s["resolution_mas"] == pytest.approx((1 / s["uv_max_lambda"] * u.rad).to_value(u.mas))
     # the same again refuses to overwrite the JSON without --force
     res = CliRunner().invoke(cli, ["info", str(path), "--json", str(out)])
@@ -63,15 +73,22 @@ def _bad_files(tmp):
     files["image"] = (p, "no random groups")
     data = np.zeros((3, 1, 1, 1, 1, 1, 3))
     data[..., 2] = 1.0
-    g = fits.GroupData(data, parnames=["AA", "BB", "BASELINE", "DATE"],
-                       pardata=[np.zeros(3), np.zeros(3), np.full(3, 258.0), np.full(3, 2458000.5)], bitpix=-32)
+    g = fits.GroupData(
+        data,
+        parnames=["AA", "BB", "BASELINE", "DATE"],
+        pardata=[np.zeros(3), np.zeros(3), np.full(3, 258.0), np.full(3, 2458000.5)],
+        bitpix=-32,
+    )
     p = tmp / "nouu.uvfits"
     fits.HDUList([fits.GroupsHDU(g)]).writeto(p)
     files["no UU"] = (p, "no UU")
     # a complete file, then cut short
-    g = fits.GroupData(data, parnames=["UU", "VV", "WW", "BASELINE", "DATE"],
-                       pardata=[np.ones(3) * 1e-6, np.ones(3) * 1e-6, np.zeros(3), np.full(3, 258.0),
-                                np.full(3, 2458000.5)], bitpix=-32)
+    g = fits.GroupData(
+        data,
+        parnames=["UU", "VV", "WW", "BASELINE", "DATE"],
+        pardata=[np.ones(3) * 1e-6, np.ones(3) * 1e-6, np.zeros(3), np.full(3, 258.0), np.full(3, 2458000.5)],
+        bitpix=-32,
+    )
     hdu = fits.GroupsHDU(g)
     for k, ct in enumerate(["COMPLEX", "STOKES", "FREQ", "IF", "RA", "DEC"], start=2):
         hdu.header[f"CTYPE{k}"] = ct
@@ -79,7 +96,7 @@ def _bad_files(tmp):
     full = tmp / "full.uvfits"
     fits.HDUList([hdu]).writeto(full)
     p = tmp / "short.uvfits"
-    p.write_bytes(full.read_bytes()[:2880 + 40])
+    p.write_bytes(full.read_bytes()[: 2880 + 40])
     files["truncated"] = (p, "truncated")
     hdu.data.data[..., 2] = 0.0
     p = tmp / "zero.uvfits"
@@ -92,8 +109,7 @@ def _bad_files(tmp):
     return files, full
 
 
-@pytest.mark.parametrize("kind", ["text", "image", "no UU", "truncated", "zero weights", "missing",
-                                  "ecsv columns"])
+@pytest.mark.parametrize("kind", ["text", "image", "no UU", "truncated", "zero weights", "missing", "ecsv columns"])
 def test_bad_input_gives_one_clear_line(tmp_path, kind):
     files, _ = _bad_files(tmp_path)
     path, words = files[kind]
@@ -101,7 +117,7 @@ def test_bad_input_gives_one_clear_line(tmp_path, kind):
     assert res.returncode == 2, (res.stdout, res.stderr)
     assert "Traceback" not in res.stderr and "internal error" not in res.stderr
     assert words in res.stderr
-    assert res.stderr.strip().count("\n") == 0           # one line
+    assert res.stderr.strip().count("\n") == 0  # one line
     assert res.stderr.startswith("uvfit: error:")
 
 

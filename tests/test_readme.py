@@ -1,5 +1,6 @@
 """The README's two set-up commands are the ones that work: the first runs the demo as written
 and prints the answer, the second is the test command CI runs (so the README cannot drift)."""
+
 import os
 import re
 
@@ -29,9 +30,12 @@ def test_first_command_runs_the_demo_and_prints_the_answer(run):
     last = proc.stdout.strip().splitlines()[-1]
     # the headline: the decision, the separation with its error and unit, the PA, the flux ratio
     # and the false-alarm probability
-    assert re.match(r"answer: two components, separation [0-9.]+ \+/- [0-9.]+ mas at PA [0-9.]+ "
-                    r"\+/- [0-9.]+ deg, flux ratio [0-9.]+ \+/- [0-9.]+ \(false-alarm probability "
-                    r"of the single component", last), last
+    assert re.match(
+        r"answer: two components, separation [0-9.]+ \+/- [0-9.]+ mas at PA [0-9.]+ "
+        r"\+/- [0-9.]+ deg, flux ratio [0-9.]+ \+/- [0-9.]+ \(false-alarm probability "
+        r"of the single component",
+        last,
+    ), last
     assert os.path.isdir(out_dir) and os.path.isfile(os.path.join(out_dir, "report.html"))
     assert out_dir in proc.stdout  # it says where the outputs are
 

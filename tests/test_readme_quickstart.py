@@ -1,5 +1,6 @@
 """The README's "Fit your own file" quick start works as written, on the real 3C 279 file it
 names (tests/data/3c279, see its ABOUT.md): every command exits 0 and writes what it says."""
+
 import json
 import os
 import re
@@ -15,7 +16,7 @@ from tests.helpers.real_data import real_file
 def _section():
     text = open(README, encoding="utf-8").read()
     start = text.index("## Fit your own file")
-    return text[start:text.index("\n## ", start + 3)]
+    return text[start : text.index("\n## ", start + 3)]
 
 
 def test_quick_start_commands_run_on_the_real_file(tmp_path):
@@ -30,8 +31,7 @@ def test_quick_start_commands_run_on_the_real_file(tmp_path):
     env = dict(os.environ, MPLBACKEND="Agg", PYTHONPATH=ROOT)
     for command in commands:
         argv = [sys.executable, "-m", "uvfit"] + shlex.split(command)[1:]
-        proc = subprocess.run(argv, cwd=tmp_path, capture_output=True, text=True, env=env,
-                              timeout=600)
+        proc = subprocess.run(argv, cwd=tmp_path, capture_output=True, text=True, env=env, timeout=600)
         assert proc.returncode == 0, (command, proc.stderr[-2000:])
         assert "Traceback" not in proc.stderr
     fit = json.loads((tmp_path / "fit.json").read_text())

@@ -1,4 +1,5 @@
 """uvfit sample on the command line: outputs, resume, and clear refusals of bad input."""
+
 import json
 import os
 import subprocess
@@ -8,9 +9,8 @@ import pytest
 from click.testing import CliRunner
 
 import uvfit
-from uvfit.cli import cli
-
 from tests.helpers.sample_data import simulate, two_points
+from uvfit.cli import cli
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
@@ -29,23 +29,37 @@ def files(tmp_path_factory):
 
 
 def _run(args, cwd):
-    return subprocess.run([sys.executable, "-m", "uvfit", "sample", *args], cwd=ROOT,
-                          capture_output=True, text=True)
+    return subprocess.run([sys.executable, "-m", "uvfit", "sample", *args], cwd=ROOT, capture_output=True, text=True)
 
 
 def test_run_resume_and_outputs(files):
     d = files
-    base = [str(d / "obs.ecsv"), str(d / "model.toml"), "--walkers", "10", "--seed", "4",
-            "--chain", str(d / "c.h5")]
+    base = [str(d / "obs.ecsv"), str(d / "model.toml"), "--walkers", "10", "--seed", "4", "--chain", str(d / "c.h5")]
     runner = CliRunner()
-    r = runner.invoke(cli, ["sample", *base, "--max-steps", "150", "--json", str(d / "a.json"),
-                            "--corner", str(d / "a.png")])
+    r = runner.invoke(
+        cli, ["sample", *base, "--max-steps", "150", "--json", str(d / "a.json"), "--corner", str(d / "a.png")]
+    )
     assert r.exit_code == 0, r.output
     assert "a-b.separation" in r.output and "95% interval" in r.output
     out = json.loads((d / "a.json").read_text())
-    for key in ("parameters", "derived", "autocorrelation_time", "acceptance_fraction", "n_samples",
-                "n_walkers", "n_steps", "burn_in", "thin", "converged", "seed", "mode", "ordering",
-                "version", "model_toml", "data"):
+    for key in (
+        "parameters",
+        "derived",
+        "autocorrelation_time",
+        "acceptance_fraction",
+        "n_samples",
+        "n_walkers",
+        "n_steps",
+        "burn_in",
+        "thin",
+        "converged",
+        "seed",
+        "mode",
+        "ordering",
+        "version",
+        "model_toml",
+        "data",
+    ):
         assert key in out, key
     flux = out["parameters"]["a.flux"]
     for key in ("median", "lower", "upper", "lower_95", "upper_95", "max_posterior", "unit"):
@@ -57,6 +71,7 @@ def test_run_resume_and_outputs(files):
     assert (d / "a.png").stat().st_size > 1000
     # the max-posterior model file is a valid model
     from uvfit.sky.modelfile import loads
+
     assert loads(out["model_toml"]).free_names == list(out["parameters"])
 
     r = runner.invoke(cli, ["sample", *base, "--max-steps", "200", "--resume", "--json", str(d / "b.json")])
@@ -92,8 +107,20 @@ def test_all_flagged_data(files):
 def test_resume_refuses_another_model(files, tmp_path):
     d = files
     chain = str(tmp_path / "c.h5")
-    r = CliRunner().invoke(cli, ["sample", str(d / "obs.ecsv"), str(d / "model.toml"), "--walkers", "10",
-                                 "--max-steps", "20", "--chain", chain])
+    r = CliRunner().invoke(
+        cli,
+        [
+            "sample",
+            str(d / "obs.ecsv"),
+            str(d / "model.toml"),
+            "--walkers",
+            "10",
+            "--max-steps",
+            "20",
+            "--chain",
+            chain,
+        ],
+    )
     assert r.exit_code == 0, r.output
     other = two_points(free_position=False)
     other.save(str(tmp_path / "other.toml"))

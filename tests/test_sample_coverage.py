@@ -1,13 +1,13 @@
 """Coverage of the credible intervals over many seeded simulations (short chains, tiny data)."""
+
 import math
 import multiprocessing
 
 import numpy as np
 import pytest
 
-from uvfit.infer.sampling import sample
-
 from tests.helpers.sample_data import simulate, two_points
+from uvfit.infer.sampling import sample
 
 N_SIM = 250
 TRUE = {"flux_a": 1.0, "flux_b": 0.3, "east": 0.3, "north": 0.2}
@@ -21,8 +21,7 @@ def _one(k):
     post = sample(vs, two_points(**TRUE), n_walkers=12, max_steps=400, seed=k)
     sep = post.derived["a-b.separation"]
     ratio = post.derived["a-b.flux_ratio"]
-    return (sep["lower"] <= TRUE_SEPARATION <= sep["upper"],
-            ratio["lower"] <= TRUE_RATIO <= ratio["upper"])
+    return (sep["lower"] <= TRUE_SEPARATION <= sep["upper"], ratio["lower"] <= TRUE_RATIO <= ratio["upper"])
 
 
 @pytest.mark.slow

@@ -1,17 +1,17 @@
 """The sampler engine: analytic posterior, seeds, resume, pools, start ball, log-posterior."""
+
 import math
 
 import numpy as np
 import pytest
 from scipy import stats as st
 
+from tests.helpers.sample_data import simulate, two_points
 from uvfit.infer.posterior import circular_unwrap, summarize
 from uvfit.infer.sampling import LogPosterior, initial_ball, run_chain, sample
 from uvfit.sky.model import SkyModel
 from uvfit.stats.base import Statistic
 from uvfit.stats.modes import make_statistic
-
-from tests.helpers.sample_data import simulate, two_points
 
 MAS = math.pi / 180 / 3600e3
 
@@ -47,13 +47,12 @@ def _linear_problem(seed=1, n=60):
     a = rng.normal(size=(2 * n, 3))
     sigma = np.full(2 * n, 0.1)
     y = a @ np.array([1.0, 0.5, 0.2]) + sigma * rng.normal(size=2 * n)
-    return LinearStatistic(a, y, sigma), FlatModel(["x.flux", "y.flux", "z.flux"],
-                                                   [-np.inf] * 3, [np.inf] * 3)
+    return LinearStatistic(a, y, sigma), FlatModel(["x.flux", "y.flux", "z.flux"], [-np.inf] * 3, [np.inf] * 3)
 
 
 def _run(stat, model, **kw):
     lp = LogPosterior(stat, model)
-    w = np.diag(1 / stat.sigma ** 2)
+    w = np.diag(1 / stat.sigma**2)
     cov = np.linalg.inv(stat.a.T @ w @ stat.a)
     mean = cov @ stat.a.T @ w @ stat.data
     kw.setdefault("n_walkers", 12)
@@ -64,21 +63,36 @@ def test_analytic_flux_posterior():
     """Fluxes of components at fixed positions and sizes, flat priors: the posterior is the
     Gaussian of weighted linear least squares, mean (A^T W A)^-1 A^T W y, covariance (A^T W A)^-1."""
     fixed = lambda x: {"value": x, "fixed": True}  # noqa: E731
-    model = SkyModel.build([
-        {"name": "core", "shape": "gaussian", "flux": 1.0, "east": fixed(0.0), "north": fixed(0.0),
-         "fwhm": fixed(0.15)},
-        {"name": "knot", "shape": "gaussian", "flux": 0.4, "east": fixed(0.4), "north": fixed(-0.3),
-         "fwhm": fixed(0.25)},
-        {"name": "spot", "shape": "point", "flux": 0.1, "east": fixed(-0.5), "north": fixed(0.2)},
-    ], angular_unit="mas")
+    model = SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "gaussian",
+                "flux": 1.0,
+                "east": fixed(0.0),
+                "north": fixed(0.0),
+                "fwhm": fixed(0.15),
+            },
+            {
+                "name": "knot",
+                "shape": "gaussian",
+                "flux": 0.4,
+                "east": fixed(0.4),
+                "north": fixed(-0.3),
+                "fwhm": fixed(0.25),
+            },
+            {"name": "spot", "shape": "point", "flux": 0.1, "east": fixed(-0.5), "north": fixed(0.2)},
+        ],
+        angular_unit="mas",
+    )
     vs = simulate(model, n=120, sigma=0.03, seed=4)
     # the design matrix from the published closed form (circular Gaussian S exp[-(pi theta q)^2 /
     # (4 ln 2)], Pearson 1995) and the shift theorem exp[-2 pi i (u l0 + v m0)] (TMS 2017 ch. 3),
     # written here independently of the model code
     q = np.hypot(vs.u, vs.v)
     cols = []
-    for (l0, m0, fwhm) in ((0.0, 0.0, 0.15), (0.4, -0.3, 0.25), (-0.5, 0.2, 0.0)):
-        env = np.exp(-(np.pi * fwhm * MAS * q) ** 2 / (4 * np.log(2)))
+    for l0, m0, fwhm in ((0.0, 0.0, 0.15), (0.4, -0.3, 0.25), (-0.5, 0.2, 0.0)):
+        env = np.exp(-((np.pi * fwhm * MAS * q) ** 2) / (4 * np.log(2)))
         cols.append(env * np.exp(-2j * np.pi * (vs.u * l0 + vs.v * m0) * MAS))
     c = np.array(cols).T
     a = np.vstack([c.real, c.imag])
@@ -126,13 +140,10 @@ def test_same_seed_same_samples_and_pool():
 def test_resume_continues_the_same_chain(tmp_path):
     vs = simulate(two_points(), n=100, seed=3)
     model = two_points()
-    one = sample(vs, model, n_walkers=10, max_steps=220, seed=9, chain_path=str(tmp_path / "one.h5"),
-                 derived=False)
-    part = sample(vs, model, n_walkers=10, max_steps=130, seed=9, chain_path=str(tmp_path / "two.h5"),
-                  derived=False)
+    one = sample(vs, model, n_walkers=10, max_steps=220, seed=9, chain_path=str(tmp_path / "one.h5"), derived=False)
+    part = sample(vs, model, n_walkers=10, max_steps=130, seed=9, chain_path=str(tmp_path / "two.h5"), derived=False)
     assert part.chain.n_steps == 130
-    rest = sample(vs, model, max_steps=220, seed=9, chain_path=str(tmp_path / "two.h5"), resume=True,
-                  derived=False)
+    rest = sample(vs, model, max_steps=220, seed=9, chain_path=str(tmp_path / "two.h5"), resume=True, derived=False)
     assert rest.chain.resumed_from == 130 and rest.chain.n_steps == 220
     assert np.array_equal(one.chain.chain, rest.chain.chain)
     assert np.array_equal(one.chain.log_prob, rest.chain.log_prob)
@@ -153,19 +164,36 @@ def test_initial_ball_inside_bounds_and_singular_covariance():
 
 
 def test_log_posterior_uses_the_model_priors():
-    model = SkyModel.build([{"name": "c", "shape": "point",
-                             "flux": {"value": 1.0, "prior": {"normal": [1.0, 0.2]}},
-                             "east": {"value": 0.0, "fixed": True}, "north": {"value": 0.0, "fixed": True}}],
-                           angular_unit="mas")
+    model = SkyModel.build(
+        [
+            {
+                "name": "c",
+                "shape": "point",
+                "flux": {"value": 1.0, "prior": {"normal": [1.0, 0.2]}},
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            }
+        ],
+        angular_unit="mas",
+    )
     vs = simulate(model, n=30, seed=1)
     stat = make_statistic("complex", vs, model)
     lp = LogPosterior(stat, model)
     for x in (0.7, 1.0, 1.3):
         # log prior of a normal prior (scipy.stats.norm) plus the statistic's log-likelihood
         assert lp([x]) == pytest.approx(st.norm.logpdf(x, 1.0, 0.2) + stat.log_likelihood([x]))
-    bounded = SkyModel.build([{"name": "c", "shape": "point", "flux": {"value": 1.0, "min": 0.5, "max": 2.0},
-                               "east": {"value": 0.0, "fixed": True}, "north": {"value": 0.0, "fixed": True}}],
-                             angular_unit="mas")
+    bounded = SkyModel.build(
+        [
+            {
+                "name": "c",
+                "shape": "point",
+                "flux": {"value": 1.0, "min": 0.5, "max": 2.0},
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+            }
+        ],
+        angular_unit="mas",
+    )
     lp = LogPosterior(make_statistic("complex", vs, bounded), bounded)
     assert lp([0.4]) == -np.inf and np.isfinite(lp([0.6]))
 

@@ -1,5 +1,6 @@
 """uvfit plot and uvfit report on the command line: every kind on simulated and real data, and bad
 input answered with one clear line, a non-zero exit and no traceback."""
+
 import json
 import os
 import subprocess
@@ -8,9 +9,9 @@ import sys
 import numpy as np
 import pytest
 
+import uvfit
 from tests.helpers import show_sim
 from tests.helpers.real_data import REAL_DATA
-import uvfit
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 KINDS = ("radial", "uv", "closure", "sky")
@@ -30,6 +31,7 @@ def run(*args):
     res = CliRunner().invoke(cli, [str(a) for a in args], catch_exceptions=True)
     if res.exception is not None and not isinstance(res.exception, SystemExit):
         from uvfit.errors import UvfitError
+
         if isinstance(res.exception, UvfitError):
             return Result(2, res.stdout, f"uvfit: error: {res.exception}")
         raise res.exception
@@ -37,8 +39,13 @@ def run(*args):
 
 
 def run_process(*args):
-    return subprocess.run([sys.executable, "-m", "uvfit", *map(str, args)], cwd=ROOT,
-                          capture_output=True, text=True, env={**os.environ, "MPLBACKEND": "Agg"})
+    return subprocess.run(
+        [sys.executable, "-m", "uvfit", *map(str, args)],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        env={**os.environ, "MPLBACKEND": "Agg"},
+    )
 
 
 def check_png(path):
@@ -94,8 +101,7 @@ def test_every_kind_on_simulated_data(sim_files, kind):
 def test_every_kind_on_real_data(real_files, kind):
     d, data, fit = real_files
     out = d / f"{kind}.png"
-    res = run("plot", data, "--fit", fit, "--kind", kind, "-o", out, "--numbers",
-              d / f"{kind}.json", "--force")
+    res = run("plot", data, "--fit", fit, "--kind", kind, "-o", out, "--numbers", d / f"{kind}.json", "--force")
     assert res.returncode == 0, res.stderr
     check_png(out)
     numbers = json.loads((d / f"{kind}.json").read_text())
@@ -110,8 +116,21 @@ def test_selection_options_override_the_fit(sim_files):
     d, data, fit = sim_files
     out = d / "sel.png"
     numbers = d / "sel.json"
-    res = run("plot", data, "--fit", fit, "--kind", "radial", "-o", out, "--numbers", numbers,
-              "--exclude-stations", "OSPREY", "--force")
+    res = run(
+        "plot",
+        data,
+        "--fit",
+        fit,
+        "--kind",
+        "radial",
+        "-o",
+        out,
+        "--numbers",
+        numbers,
+        "--exclude-stations",
+        "OSPREY",
+        "--force",
+    )
     assert res.returncode == 0, res.stderr
     got = json.loads(numbers.read_text())
     # 4 stations left: 6 baselines of the 10, at every time
@@ -144,15 +163,11 @@ def test_bad_inputs_are_clear(sim_files, tmp_path):
     _fails(run("plot", data, "--fit", not_fit, "--kind", "radial", "-o", out), "not a fit output")
     _fails(run("report", data, "--fit", not_fit, "-o", tmp_path / "r.html"), "not a fit output")
     _fails(run("plot", data, "--fit", broken, "--kind", "radial", "-o", out), "not valid JSON")
-    _fails(run("plot", data, "--fit", tmp_path / "absent.json", "--kind", "sky", "-o", out),
-           "does not exist")
+    _fails(run("plot", data, "--fit", tmp_path / "absent.json", "--kind", "sky", "-o", out), "does not exist")
     _fails(run("plot", tmp_path / "absent.uvfits", "--fit", fit, "--kind", "sky", "-o", out))
-    _fails(run("report", data, "--fit", fit, "--posterior", fit, "-o", tmp_path / "r.html"),
-           "not a posterior")
-    _fails(run("report", data, "--fit", fit, "--compare", fit, "-o", tmp_path / "r.html"),
-           "not a model comparison")
-    _fails(run("report", data, "--fit", fit, "--chain", fit, "-o", tmp_path / "r.html"),
-           "chain")
+    _fails(run("report", data, "--fit", fit, "--posterior", fit, "-o", tmp_path / "r.html"), "not a posterior")
+    _fails(run("report", data, "--fit", fit, "--compare", fit, "-o", tmp_path / "r.html"), "not a model comparison")
+    _fails(run("report", data, "--fit", fit, "--chain", fit, "-o", tmp_path / "r.html"), "chain")
     _fails(run("plot", data, "--fit", fit, "--kind", "pie", "-o", out))
     assert not out.exists()
     # an output that exists is never overwritten without --force

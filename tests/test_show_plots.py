@@ -29,14 +29,14 @@ def test_radial_model_passes_through_noiseless_data(noiseless):
     # the data are the closed-form Gaussians (Pearson 1995) computed in show_sim, the model is
     # rebuilt from the fit's model text: on noiseless data the model points lie on the data
     np.testing.assert_allclose(d["model_amplitude"], d["amplitude"], rtol=1e-9, atol=1e-12)
-    np.testing.assert_allclose((d["model_phase_deg"] - d["phase_deg"] + 180) % 360 - 180, 0.0,
-                               atol=1e-7)
+    np.testing.assert_allclose((d["model_phase_deg"] - d["phase_deg"] + 180) % 360 - 180, 0.0, atol=1e-7)
     np.testing.assert_allclose(d["residual_amplitude"], 0.0, atol=1e-7)
     # plotted in uv-distance order, at the data's own uv distances
     q = np.hypot(noiseless.vset.u, noiseless.vset.v)
     np.testing.assert_allclose(d["uv"], np.sort(q))
-    np.testing.assert_allclose(d["amplitude"], np.abs(show_sim.truth_vis(
-        noiseless.vset.u, noiseless.vset.v))[d["order"]], rtol=1e-12)
+    np.testing.assert_allclose(
+        d["amplitude"], np.abs(show_sim.truth_vis(noiseless.vset.u, noiseless.vset.v))[d["order"]], rtol=1e-12
+    )
     # axis unit: Glambda once the longest baseline passes 1e9 wavelengths (common practice)
     assert q.max() > 1e9 and d["uv_unit"] == "Gλ" and d["uv_scale"] == 1e9
 
@@ -81,10 +81,11 @@ def test_closure_phases_match_closed_form_and_ignore_station_phases(noiseless):
         a, b, c = tri.split("-")
         sel = series["triangle"] == tri
         for t, cp in zip(series["time"][sel][:5], series["phase"][sel][:5]):
+
             def vis(p, q):
-                row = np.nonzero((vset.station1 == p) & (vset.station2 == q)
-                                 & (np.abs(vset.time - t) < 1e-9))[0][0]
+                row = np.nonzero((vset.station1 == p) & (vset.station2 == q) & (np.abs(vset.time - t) < 1e-9))[0][0]
                 return show_sim.truth_vis(vset.u[row], vset.v[row])
+
             expect = np.angle(vis(a, b) * vis(b, c) * np.conj(vis(a, c)))
             assert abs(np.angle(np.exp(1j * (cp - expect)))) < 1e-9
     # station-based phase errors leave every closure phase unchanged (REFERENCES.md)
@@ -95,10 +96,8 @@ def test_closure_phases_match_closed_form_and_ignore_station_phases(noiseless):
     g2 = np.array([gains[s][k] for s, k in zip(vset.station2, tindex)])
     corrupted = vset.with_vis(vset.vis * g1 * np.conj(g2))
     again = plots.closure_phase_series(corrupted, noiseless.model_vis)
-    np.testing.assert_allclose(np.angle(np.exp(1j * (again["phase"] - series["phase"]))), 0.0,
-                               atol=1e-9)
-    np.testing.assert_allclose(np.angle(np.exp(1j * (series["model"] - series["phase"]))), 0.0,
-                               atol=1e-9)
+    np.testing.assert_allclose(np.angle(np.exp(1j * (again["phase"] - series["phase"]))), 0.0, atol=1e-9)
+    np.testing.assert_allclose(np.angle(np.exp(1j * (series["model"] - series["phase"]))), 0.0, atol=1e-9)
     # error at high SNR: sqrt(sum (sigma/|V|)^2) (Chael et al. 2018)
     assert np.all(series["sigma"] > 0)
 
@@ -110,8 +109,7 @@ def test_closure_plot_chooses_most_informative_triangles():
     fig, d = plots.closure_phase_plot(series, max_panels=4)
     style.close(fig)
     assert len(d["triangles"]) == 4
-    info = {t: np.sum(1 / series["sigma"][series["triangle"] == t] ** 2)
-            for t in np.unique(series["triangle"])}
+    info = {t: np.sum(1 / series["sigma"][series["triangle"] == t] ** 2) for t in np.unique(series["triangle"])}
     best = sorted(info, key=lambda t: -info[t])[:4]
     assert d["triangles"] == best
     for t in d["triangles"]:
@@ -141,12 +139,14 @@ def test_sky_plot_orientation_outlines_and_flux(noiseless):
     assert abs(d["image"].sum() * pixel - 1.4) < 0.02
     # the brightest pixel is the core at the origin
     assert np.hypot(*d["peak_xy"]) < 3.0
+
     # the knot at east -15, north -20 uas (west and south of the core) is bright there and not
     # at the point-reflected position: the sky is not mirrored (README, "Conventions")
     def at(x, y):
         i = int((x - x0) / (x1 - x0) * nx)
         j = int((y - y0) / (y1 - y0) * ny)
         return d["image"][j, i]
+
     assert at(-15.0 - 8, -20.0 - 8) > 3 * at(15.0 + 8, 20.0 + 8)
     names = [o["label"].split()[0] for o in d["outlines"]]
     assert names == ["core", "knot"]
@@ -160,10 +160,13 @@ def test_sky_plot_orientation_outlines_and_flux(noiseless):
 def test_sky_plot_ellipse_and_point_outlines():
     image = np.zeros((50, 50))
     image[25, 25] = 1.0
-    outlines = [{"label": "a", "kind": "ellipse", "x": 1.0, "y": 2.0, "major": 4.0, "minor": 2.0,
-                 "pa_deg": 30.0}, {"label": "b", "kind": "point", "x": -3.0, "y": 0.0}]
+    outlines = [
+        {"label": "a", "kind": "ellipse", "x": 1.0, "y": 2.0, "major": 4.0, "minor": 2.0, "pa_deg": 30.0},
+        {"label": "b", "kind": "point", "x": -3.0, "y": 0.0},
+    ]
     fig, d = plots.sky_plot(image, (-10, 10, -10, 10), outlines, resolution=3.0, unit="mas")
     from matplotlib.patches import Ellipse
+
     ell = [p for p in fig.axes[0].patches if isinstance(p, Ellipse)]
     # position angle north through east: the major axis points to (sin pa, cos pa) in (east,
     # north), at 90 - pa degrees from the east axis (common practice)
@@ -203,30 +206,56 @@ def test_png_is_reproducible_and_valid(noiseless, tmp_path):
 def test_sky_outlines_of_every_shape_family():
     from uvfit.sky.model import SkyModel
 
-    model = SkyModel.build([
-        {"name": "blob", "shape": "elliptical_gaussian", "flux": 1.0, "east": 0.0, "north": 0.0,
-         "fwhm": 10.0, "axis_ratio": 0.5, "position_angle": 40.0},
-        {"name": "plate", "shape": "disk", "flux": 0.5, "east": 20.0, "north": 5.0, "diameter": 8.0},
-        {"name": "loop", "shape": "ring", "flux": 0.3, "east": -20.0, "north": 10.0, "diameter": 12.0},
-        {"name": "pair", "shape": "double", "member": "point", "flux": 0.4, "east": 5.0,
-         "north": -25.0, "flux_ratio": 1.0, "separation": 10.0, "position_angle": 90.0},
-    ], angular_unit="mas")
+    model = SkyModel.build(
+        [
+            {
+                "name": "blob",
+                "shape": "elliptical_gaussian",
+                "flux": 1.0,
+                "east": 0.0,
+                "north": 0.0,
+                "fwhm": 10.0,
+                "axis_ratio": 0.5,
+                "position_angle": 40.0,
+            },
+            {"name": "plate", "shape": "disk", "flux": 0.5, "east": 20.0, "north": 5.0, "diameter": 8.0},
+            {"name": "loop", "shape": "ring", "flux": 0.3, "east": -20.0, "north": 10.0, "diameter": 12.0},
+            {
+                "name": "pair",
+                "shape": "double",
+                "member": "point",
+                "flux": 0.4,
+                "east": 5.0,
+                "north": -25.0,
+                "flux_ratio": 1.0,
+                "separation": 10.0,
+                "position_angle": 90.0,
+            },
+        ],
+        angular_unit="mas",
+    )
     vset = show_sim.simulated_set()
-    view = fit_view(vset, {**show_sim.truth_fit_json(), "model_toml": model.to_toml(),
-                           "parameters": {}, "angular_unit": "mas"})
+    view = fit_view(
+        vset, {**show_sim.truth_fit_json(), "model_toml": model.to_toml(), "parameters": {}, "angular_unit": "mas"}
+    )
     fig, d = sky_figure(view, npix=128)
     style.close(fig)
     got = {o["label"].split()[0]: o for o in d["outlines"]}
     assert set(got) == {"blob", "plate", "loop", "pair.1", "pair.2"}
     # FWHM ellipse: minor = axis ratio x major, at the model's position angle (the model file)
-    assert (got["blob"]["kind"], got["blob"]["major"], got["blob"]["minor"],
-            got["blob"]["pa_deg"]) == ("ellipse", 10.0, 5.0, 40.0)
+    assert (got["blob"]["kind"], got["blob"]["major"], got["blob"]["minor"], got["blob"]["pa_deg"]) == (
+        "ellipse",
+        10.0,
+        5.0,
+        40.0,
+    )
     assert (got["plate"]["kind"], got["plate"]["major"]) == ("circle", 8.0)
     assert (got["loop"]["kind"], got["loop"]["major"]) == ("ring", 12.0)
     # the second member of the double at separation 10 and PA 90 deg: 10 to the east (position
     # angles north through east, REFERENCES.md "Conventions")
-    assert (got["pair.2"]["x"] - got["pair.1"]["x"], got["pair.2"]["y"] - got["pair.1"]["y"]) == \
-        pytest.approx((10.0, 0.0), abs=1e-9)
+    assert (got["pair.2"]["x"] - got["pair.1"]["x"], got["pair.2"]["y"] - got["pair.1"]["y"]) == pytest.approx(
+        (10.0, 0.0), abs=1e-9
+    )
     assert got["pair.1"]["kind"] == "point"
     # the field holds every component, and the image every jansky of the model (the thin ring's
     # flux put into the pixels under it): 1.0 + 0.5 + 0.3 + 0.4 Jy

@@ -4,6 +4,7 @@ The browser check uses Debian's Chromium with the network disabled: every embedd
 decode (naturalWidth > 0, the HTML standard's definition of a decoded image) and the screenshot of
 the page must not be blank.
 """
+
 import json
 import os
 import re
@@ -12,14 +13,13 @@ import subprocess
 
 import numpy as np
 import pytest
-
-from tests.helpers import show_sim
-import uvfit
-from uvfit.outputs import write_json
 from test_show_cli import run
 
-CHROMIUM = shutil.which("chromium") or ("/usr/bin/chromium" if os.path.exists("/usr/bin/chromium")
-                                        else None)
+import uvfit
+from tests.helpers import show_sim
+from uvfit.outputs import write_json
+
+CHROMIUM = shutil.which("chromium") or ("/usr/bin/chromium" if os.path.exists("/usr/bin/chromium") else None)
 
 
 @pytest.fixture(scope="module")
@@ -35,13 +35,15 @@ def inputs(tmp_path_factory):
     model = loads(show_sim.MODEL_TOML)
     fit = run_fit(vset, model, mode="complex", seed=7, data_path=str(data))
     write_json(d / "fit.json", fit)
-    one = loads(show_sim.MODEL_TOML.split("[[component]]\nname = \"knot\"")[0])
+    one = loads(show_sim.MODEL_TOML.split('[[component]]\nname = "knot"')[0])
     comp = compare(vset, [one, model], names=["core only", "core and knot"], seed=7)
     write_json(d / "compare.json", comp)
     # a short chain by the sampler (its HDF5 file is emcee's own backend)
     from uvfit.infer.sampling import sample
-    post = sample(vset, model, max_steps=300, seed=3, chain_path=str(d / "chain.h5"),
-                  derived=False, data_path=str(data)).to_dict()
+
+    post = sample(
+        vset, model, max_steps=300, seed=3, chain_path=str(d / "chain.h5"), derived=False, data_path=str(data)
+    ).to_dict()
     write_json(d / "posterior.json", post)
     return d, data, fit
 
@@ -49,8 +51,21 @@ def inputs(tmp_path_factory):
 def _report(inputs, name, *extra):
     d, data, _ = inputs
     out = d / name
-    res = run("report", data, "--fit", d / "fit.json", "--posterior", d / "posterior.json",
-              "--chain", d / "chain.h5", "--compare", d / "compare.json", "-o", out, *extra)
+    res = run(
+        "report",
+        data,
+        "--fit",
+        d / "fit.json",
+        "--posterior",
+        d / "posterior.json",
+        "--chain",
+        d / "chain.h5",
+        "--compare",
+        d / "compare.json",
+        "-o",
+        out,
+        *extra,
+    )
     assert res.returncode == 0, res.stderr
     return out
 
@@ -69,16 +84,30 @@ def test_report_is_complete_and_self_contained(report, inputs):
     images = re.findall(r'<img[^>]+src="data:image/png;base64,([A-Za-z0-9+/=]+)"', text)
     assert len(images) == 5  # radial, coverage, closure phases, sky, corner
     import base64
+
     for b64 in images:
         assert base64.b64decode(b64)[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (PNG spec)
     for name in fit["parameters"]:
         assert name in text
-    for words in ("reduced_chi2", "aic", "bic", "Closure check", "Model comparison", "Posterior",
-                  "core and knot", "Cautions", "trusts the phase calibration", "baseline-based",
-                  "station-based", "no substitute for an image", "OSPREY",
-                  "closure_phase_chi2", "Closure phases by triangle"):
+    for words in (
+        "reduced_chi2",
+        "aic",
+        "bic",
+        "Closure check",
+        "Model comparison",
+        "Posterior",
+        "core and knot",
+        "Cautions",
+        "trusts the phase calibration",
+        "baseline-based",
+        "station-based",
+        "no substitute for an image",
+        "OSPREY",
+        "closure_phase_chi2",
+        "Closure phases by triangle",
+    ):
         assert words in text, words
-    assert f'{fit["statistics"]["chi2"]:.6g}' in text
+    assert f"{fit['statistics']['chi2']:.6g}" in text
     assert text.count("<table>") >= 8
 
 
@@ -88,22 +117,37 @@ def test_report_written_twice_is_the_same_file(report, inputs):
 
 
 def _chromium(args, tmp):
-    cmd = [CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
-           "--no-first-run", "--disable-background-networking", "--disable-component-update",
-           "--disable-sync", "--disable-extensions", f"--user-data-dir={tmp / 'profile'}",
-           "--proxy-server=127.0.0.1:9", "--host-resolver-rules=MAP * ~NOTFOUND",
-           "--virtual-time-budget=5000", *args]
+    cmd = [
+        CHROMIUM,
+        "--headless",
+        "--no-sandbox",
+        "--disable-gpu",
+        "--disable-quic",
+        "--no-first-run",
+        "--disable-background-networking",
+        "--disable-component-update",
+        "--disable-sync",
+        "--disable-extensions",
+        f"--user-data-dir={tmp / 'profile'}",
+        "--proxy-server=127.0.0.1:9",
+        "--host-resolver-rules=MAP * ~NOTFOUND",
+        "--virtual-time-budget=5000",
+        *args,
+    ]
     return subprocess.run(cmd, capture_output=True, text=True, timeout=120)
 
 
-@pytest.mark.skipif(CHROMIUM is None, reason="headless Chromium (Debian's 'chromium') is not "
-                                              "installed; .ci/run installs it")
+@pytest.mark.skipif(
+    CHROMIUM is None, reason="headless Chromium (Debian's 'chromium') is not installed; .ci/run installs it"
+)
 def test_report_opens_in_a_headless_browser(report, tmp_path):
-    probe = ("<script>window.addEventListener('load',function(){var im=document.images,ok=0;"
-             "for(var i=0;i<im.length;i++){if(im[i].complete&&im[i].naturalWidth>0)ok++;}"
-             "var p=document.createElement('pre');p.id='probe';p.textContent='PROBE'+JSON.stringify("
-             "{images:im.length,decoded:ok,tables:document.getElementsByTagName('table').length})"
-             "+'EBORP';document.body.appendChild(p);});</script>")
+    probe = (
+        "<script>window.addEventListener('load',function(){var im=document.images,ok=0;"
+        "for(var i=0;i<im.length;i++){if(im[i].complete&&im[i].naturalWidth>0)ok++;}"
+        "var p=document.createElement('pre');p.id='probe';p.textContent='PROBE'+JSON.stringify("
+        "{images:im.length,decoded:ok,tables:document.getElementsByTagName('table').length})"
+        "+'EBORP';document.body.appendChild(p);});</script>"
+    )
     page = report.read_text(encoding="utf-8").replace("</body>", probe + "</body>")
     probed = tmp_path / "probed.html"
     probed.write_text(page, encoding="utf-8")
@@ -117,6 +161,7 @@ def test_report_opens_in_a_headless_browser(report, tmp_path):
     _chromium([f"--screenshot={shot}", "--window-size=1200,2000", report.as_uri()], tmp_path)
     assert shot.exists()
     import matplotlib.image as mpimg
+
     pixels = mpimg.imread(shot)
     assert pixels.shape[0] >= 1000 and pixels.shape[1] >= 1000
     colours = np.unique((pixels[..., :3] * 255).astype(np.uint8).reshape(-1, 3)[::3], axis=0)

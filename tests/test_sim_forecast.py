@@ -1,22 +1,22 @@
 """Forecast orchestration in the library: the simpler true model against a richer alternative."""
+
 import os
 
 import numpy as np
 from scipy.stats import chi2
 
-from tests.helpers.invented import component, model_toml
 import uvfit
+from tests.helpers.invented import component, model_toml
+from uvfit.data.select import parse_time
 from uvfit.sim.array import load_array
 from uvfit.sim.forecast import forecast
 from uvfit.sim.observe import Observation
-from uvfit.data.select import parse_time
 
 HERE = os.path.join(os.path.dirname(__file__), "..", "examples", "planning")
 
 SINGLE = model_toml(component("core", 1.0, fwhm=40.0))
 
-DOUBLE = model_toml(component("core", 1.0, fwhm=40.0),
-                    component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0))
+DOUBLE = model_toml(component("core", 1.0, fwhm=40.0), component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0))
 
 
 def test_forecast_simpler_true_model(tmp_path):
@@ -24,11 +24,16 @@ def test_forecast_simpler_true_model(tmp_path):
     (tmp_path / "d.toml").write_text(DOUBLE)
     single, double = uvfit.load_model(tmp_path / "s.toml"), uvfit.load_model(tmp_path / "d.toml")
     arr = load_array(os.path.join(HERE, "array.toml"))
-    obs = Observation(ra_deg=210.547, dec_deg=38.753, start=parse_time("2027-04-10T03:00"),
-                      duration_s=3600.0, integration_s=600.0, frequency_hz=86e9)
+    obs = Observation(
+        ra_deg=210.547,
+        dec_deg=38.753,
+        start=parse_time("2027-04-10T03:00"),
+        duration_s=3600.0,
+        integration_s=600.0,
+        frequency_hz=86e9,
+    )
     calls = []
-    out = forecast(arr, single, [double], obs, trials=3, seed=3, alt_names=["double"],
-                   progress=calls.append)
+    out = forecast(arr, single, [double], obs, trials=3, seed=3, alt_names=["double"], progress=calls.append)
     assert calls == [1, 1, 1] and out["trial_seeds"] == [3, 4, 5]
     alt = out["alternatives"][0]
     # threshold: 99% point of chi-square with 6 - 2 = 4 degrees of freedom (scipy.stats)

@@ -1,28 +1,35 @@
 """Simulated observations: noise level, closure phases under gain errors, files that read back."""
+
 import numpy as np
 import pytest
 from astropy.io import fits
 
-from tests.helpers.invented import component, model_toml
 import uvfit
+from tests.helpers.invented import component, model_toml
+from uvfit.data.select import parse_time
 from uvfit.sim.array import parse_array
 from uvfit.sim.observe import Observation, simulate, write_simulation
-from uvfit.data.select import parse_time
 
 C = 299792458.0
 
 POINT = model_toml(component("p", 1.5, shape="point"))
 
-DOUBLE = model_toml(component("a", 1.0, fwhm=100.0),
-                    component("b", 0.4, east=-150.0, north=-250.0, fwhm=120.0))
+DOUBLE = model_toml(component("a", 1.0, fwhm=100.0), component("b", 0.4, east=-150.0, north=-250.0, fwhm=120.0))
 
 
 def invented_array(n=4, sefd=(300.0, 500.0, 800.0, 1200.0, 650.0)):
     # invented stations and SEFDs
     sites = [(40.0, -105.0), (32.0, -110.0), (45.0, -80.0), (19.5, -99.0), (50.0, -120.0)][:n]
-    return parse_array({"name": "invented", "defaults": {"eta": 0.88},
-                        "station": [{"name": f"S{k + 1}", "lat": la, "lon": lo, "height": 500.0,
-                                     "sefd": sefd[k]} for k, (la, lo) in enumerate(sites)]})
+    return parse_array(
+        {
+            "name": "invented",
+            "defaults": {"eta": 0.88},
+            "station": [
+                {"name": f"S{k + 1}", "lat": la, "lon": lo, "height": 500.0, "sefd": sefd[k]}
+                for k, (la, lo) in enumerate(sites)
+            ],
+        }
+    )
 
 
 def model_from(text, tmp_path, name="m.toml"):
@@ -32,9 +39,17 @@ def model_from(text, tmp_path, name="m.toml"):
 
 
 def observation(**kw):
-    base = dict(ra_deg=187.7, dec_deg=30.0, start=parse_time("2027-03-01T02:00"),
-                duration_s=6 * 3600.0, integration_s=30.0, frequency_hz=86e9,
-                bandwidth_hz=512e6, channels=2, source="TESTSRC")
+    base = dict(
+        ra_deg=187.7,
+        dec_deg=30.0,
+        start=parse_time("2027-03-01T02:00"),
+        duration_s=6 * 3600.0,
+        integration_s=30.0,
+        frequency_hz=86e9,
+        bandwidth_hz=512e6,
+        channels=2,
+        source="TESTSRC",
+    )
     base.update(kw)
     return Observation(**base)
 
@@ -95,8 +110,14 @@ def test_closure_phases_unchanged_by_gain_errors(tmp_path):
 def test_gains_constant_within_a_scan(tmp_path):
     # A point source's observed phase on one baseline is gain phase only: constant within a scan.
     arr = invented_array(2)
-    vs, layout = simulate(arr, model_from(POINT, tmp_path), observation(channels=1, scan_length_s=600.0),
-                          seed=5, phase_error_deg=30.0, thermal=False)
+    vs, layout = simulate(
+        arr,
+        model_from(POINT, tmp_path),
+        observation(channels=1, scan_length_s=600.0),
+        seed=5,
+        phase_error_deg=30.0,
+        thermal=False,
+    )
     phase = np.angle(vs.vis)
     for s in np.unique(layout.scan):
         assert np.ptp(phase[layout.scan == s]) < 1e-12
@@ -120,15 +141,14 @@ def test_channels_scale_uv_with_frequency(tmp_path):
     assert np.allclose(f, 86e9 + (np.arange(4) - 1.5) * 1e9)
     t0 = vs.time == vs.time[0]
     ratio = vs.u[t0] / vs.frequency[t0]
-    assert np.allclose(ratio, ratio[0], rtol=1e-12)      # u / nu is the same baseline in metres
+    assert np.allclose(ratio, ratio[0], rtol=1e-12)  # u / nu is the same baseline in metres
 
 
 @pytest.mark.parametrize("suffix", [".uvfits", ".ecsv"])
 def test_written_file_reads_back_same_sky(tmp_path, suffix):
     arr = invented_array(4)
     model = model_from(DOUBLE, tmp_path)
-    vs, _ = simulate(arr, model, observation(duration_s=2 * 3600.0, integration_s=60.0), seed=9,
-                     gain_error=0.05)
+    vs, _ = simulate(arr, model, observation(duration_s=2 * 3600.0, integration_s=60.0), seed=9, gain_error=0.05)
     path = tmp_path / f"sim{suffix}"
     write_simulation(vs, path)
     back = uvfit.read(path)
@@ -143,17 +163,15 @@ def test_written_file_reads_back_same_sky(tmp_path, suffix):
     assert np.isclose(back.ra_deg, 187.7) and np.isclose(back.dec_deg, 30.0)
     assert np.allclose(back.stations.xyz[:4], arr.xyz, atol=1e-3)
     # same sky: the model evaluated on the read-back (u, v) is the noiseless part of the data
-    clean, _ = simulate(arr, model, observation(duration_s=2 * 3600.0, integration_s=60.0),
-                        thermal=False)
-    assert np.allclose(model.visibilities(back.u, back.v, back.frequency)[order],
-                       clean.vis[ref], rtol=1e-9, atol=1e-12)
+    clean, _ = simulate(arr, model, observation(duration_s=2 * 3600.0, integration_s=60.0), thermal=False)
+    assert np.allclose(model.visibilities(back.u, back.v, back.frequency)[order], clean.vis[ref], rtol=1e-9, atol=1e-12)
     if suffix == ".uvfits":
         # independent reader: astropy.io.fits sees groups, header and the seed in the history
         with fits.open(path) as h:
             assert h[0].header["OBJECT"] == "TESTSRC"
             assert h[0].header["UVFSEED"] == 9
             assert any("seed 9" in str(line) for line in h[0].header["HISTORY"])
-            assert h[0].header["GCOUNT"] * 2 >= vs.n   # 2 channels per group at most
+            assert h[0].header["GCOUNT"] * 2 >= vs.n  # 2 channels per group at most
             assert "AIPS AN" in h
     else:
         assert back.meta.get("seed") == 9
@@ -162,7 +180,9 @@ def test_written_file_reads_back_same_sky(tmp_path, suffix):
 def test_planning_example_files_load_and_simulate():
     # the worked example's invented array and models are valid and simulate (kept small here)
     import os
+
     from uvfit.sim.array import load_array
+
     here = os.path.join(os.path.dirname(__file__), "..", "examples", "planning")
     arr = load_array(os.path.join(here, "array.toml"))
     assert len(arr) == 7 and arr.min_elevation.tolist().count(15.0) == 1
@@ -170,7 +190,8 @@ def test_planning_example_files_load_and_simulate():
     assert 3.0e6 < arr.max_baseline_m() < 6.0e6
     double = uvfit.load_model(os.path.join(here, "double.toml"))
     uvfit.load_model(os.path.join(here, "single.toml"))
-    obs = observation(ra_deg=210.547, dec_deg=38.753, start=parse_time("2027-04-10T03:00"),
-                      duration_s=3600.0, integration_s=600.0)
+    obs = observation(
+        ra_deg=210.547, dec_deg=38.753, start=parse_time("2027-04-10T03:00"), duration_s=3600.0, integration_s=600.0
+    )
     vs, layout = simulate(arr, double, obs, seed=1)
     assert vs.n == 6 * 21 * 2 and layout.summary()["baselines_with_data"] == 21

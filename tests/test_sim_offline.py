@@ -1,5 +1,6 @@
 """The simulation needs Earth-orientation data but never downloads it, and importing it changes
 no astropy setting for the rest of the process."""
+
 import json
 import os
 import subprocess
@@ -32,7 +33,8 @@ after_import = {k: getattr(iers.conf, k) for k in KEYS}
 
 import numpy as np
 from uvfit.sim.array import parse_array
-from uvfit.sim.tracks import compute_tracks, parse_time, time_grid
+from uvfit.data.select import parse_time
+from uvfit.sim.tracks import compute_tracks, time_grid
 arr = parse_array({"name": "offline", "station": [
     {"name": "P1", "lat": 40.0, "lon": -105.0, "height": 1600.0, "sefd": 1000.0},
     {"name": "P2", "lat": 32.0, "lon": -110.0, "height": 700.0, "sefd": 1000.0},
@@ -50,8 +52,13 @@ print(json.dumps({"before": before, "after_import": after_import, "after_tracks"
 def test_importing_sim_leaves_iers_settings_and_tracks_compute_offline():
     # Outside reference: astropy's own documented IERS settings (astropy.utils.iers.conf) and
     # its downloader astropy.utils.iers.iers.download_file, which a refresh would call.
-    proc = subprocess.run([sys.executable, "-c", SCRIPT], cwd=ROOT, capture_output=True,
-                          text=True, env={**os.environ, "PYTHONPATH": str(ROOT)})
+    proc = subprocess.run(
+        [sys.executable, "-c", SCRIPT],
+        cwd=ROOT,
+        capture_output=True,
+        text=True,
+        env={**os.environ, "PYTHONPATH": str(ROOT)},
+    )
     assert proc.returncode == 0, proc.stderr
     res = json.loads(proc.stdout.strip().splitlines()[-1])
     assert res["after_import"] == res["before"]

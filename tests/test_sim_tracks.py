@@ -1,13 +1,14 @@
 """Earth-rotation (u, v, w) tracks and array files, checked against outside references:
 astropy.coordinates / astropy.time / erfa computed independently here, the hour-angle formula of
 TMS 2017 eq. 4.1 (REFERENCES.md, from memory), and the (u, v) stored in a real UVFITS file."""
+
 import os
 import warnings
 
 import numpy as np
 import pytest
 from astropy import units as u
-from astropy.coordinates import AltAz, EarthLocation, SkyCoord, TETE
+from astropy.coordinates import TETE, AltAz, EarthLocation, SkyCoord
 from astropy.time import Time
 
 from tests.helpers.real_data import REAL_DATA
@@ -29,11 +30,19 @@ DATA = str(REAL_DATA)
 
 def invented_array(min_elevation=-90.0, stations=None):
     """Invented stations given by geodetic position (names and sites are made up)."""
-    sites = stations or [("P1", 40.0, -105.0, 1600.0), ("P2", 32.0, -110.0, 700.0),
-                         ("P3", 45.0, -80.0, 300.0), ("P4", 19.5, -99.0, 2300.0)]
-    return parse_array({"name": "test array", "defaults": {"min_elevation": min_elevation},
-                        "station": [{"name": n, "lat": la, "lon": lo, "height": h, "sefd": 1000.0}
-                                    for n, la, lo, h in sites]})
+    sites = stations or [
+        ("P1", 40.0, -105.0, 1600.0),
+        ("P2", 32.0, -110.0, 700.0),
+        ("P3", 45.0, -80.0, 300.0),
+        ("P4", 19.5, -99.0, 2300.0),
+    ]
+    return parse_array(
+        {
+            "name": "test array",
+            "defaults": {"min_elevation": min_elevation},
+            "station": [{"name": n, "lat": la, "lon": lo, "height": h, "sefd": 1000.0} for n, la, lo, h in sites],
+        }
+    )
 
 
 def _quiet_times(start, n, step_s):
@@ -50,6 +59,7 @@ def test_of_date_geometry_matches_hour_angle_formula():
     # motion from the station positions with erfa.pom00 and astropy's IERS x_p, y_p first.
     import erfa
     from astropy.utils import iers
+
     arr = invented_array()
     times = _quiet_times("2024-03-10T00:00", 25, 3600.0)
     ra, dec = 187.7, 12.4
@@ -61,13 +71,13 @@ def test_of_date_geometry_matches_hour_angle_formula():
         xp, yp = iers.earth_orientation_table.get().pm_xy(times)
         tt = times.tt
         sp = erfa.sp00(tt.jd1, tt.jd2)
-        wmat = erfa.pom00(xp.to_value(u.rad), yp.to_value(u.rad), sp)      # TIRS -> ITRS
+        wmat = erfa.pom00(xp.to_value(u.rad), yp.to_value(u.rad), sp)  # TIRS -> ITRS
     H = gast - app.ra.rad
     d = app.dec.rad
     xyz = arr.xyz
     for b, (i, j) in enumerate(zip(tr.station1, tr.station2)):
-        L_itrs = xyz[j] - xyz[i]                        # project sign: station1 -> station2
-        L = np.einsum("tji,j->ti", wmat, L_itrs)        # W^T L: into the terrestrial intermediate frame
+        L_itrs = xyz[j] - xyz[i]  # project sign: station1 -> station2
+        L = np.einsum("tji,j->ti", wmat, L_itrs)  # W^T L: into the terrestrial intermediate frame
         Lx, Ly, Lz = L.T
         uf = np.sin(H) * Lx + np.cos(H) * Ly
         vf = -np.sin(d) * np.cos(H) * Lx + np.sin(d) * np.sin(H) * Ly + np.cos(d) * Lz
@@ -121,7 +131,7 @@ def test_j2000_result_versus_of_date_formula_length_and_w():
         dw = np.abs(j2000.uvw_m[:, b, 2] - of_date.uvw_m[:, b, 2]) / length
         assert dw.max() < 1.5e-4
         duv = np.abs(j2000.uvw_m[:, b, :2] - of_date.uvw_m[:, b, :2]).max() / length
-        assert 1e-4 < duv < 1e-2      # precession 2000 -> 2024 is visible, and small
+        assert 1e-4 < duv < 1e-2  # precession 2000 -> 2024 is visible, and small
 
 
 def test_east_west_baseline_traces_ellipse_of_axis_ratio_sin_dec():
@@ -138,7 +148,7 @@ def test_east_west_baseline_traces_ellipse_of_axis_ratio_sin_dec():
     lxy = np.hypot(*(xyz[0] - xyz[1])[:2])
     uu, vv = od.uvw_m[:, 0, 0], od.uvw_m[:, 0, 1]
     with warnings.catch_warnings():
-        warnings.simplefilter("ignore")   # the of-date ellipse needs the apparent declination
+        warnings.simplefilter("ignore")  # the of-date ellipse needs the apparent declination
         dec_app = SkyCoord(75.0 * u.deg, dec * u.deg).transform_to(TETE(obstime=times)).dec.rad
     assert np.max(np.abs(np.hypot(uu, vv / np.sin(dec_app)) / lxy - 1)) < 1e-5
     j2 = compute_tracks(arr, 75.0, dec, times)
@@ -150,9 +160,15 @@ def test_east_west_baseline_traces_ellipse_of_axis_ratio_sin_dec():
 def test_elevation_matches_astropy_altaz_and_limits_drop_stations():
     # Elevation against astropy AltAz (no refraction: pressure 0); aberration is neglected in the
     # project's formula, so agreement to 0.01 deg (36 arcsec) is the expected level.
-    arr = invented_array(min_elevation=10.0,
-                         stations=[("N1", 40.0, -105.0, 1600.0), ("N2", 32.0, -110.0, 700.0),
-                                   ("N3", 45.0, -80.0, 300.0), ("S1", -70.0, -60.0, 50.0)])
+    arr = invented_array(
+        min_elevation=10.0,
+        stations=[
+            ("N1", 40.0, -105.0, 1600.0),
+            ("N2", 32.0, -110.0, 700.0),
+            ("N3", 45.0, -80.0, 300.0),
+            ("S1", -70.0, -60.0, 50.0),
+        ],
+    )
     times = _quiet_times("2026-05-01T00:00", 48, 1800.0)
     ra, dec = 150.0, 60.0
     tr = compute_tracks(arr, ra, dec, times)
@@ -165,8 +181,7 @@ def test_elevation_matches_astropy_altaz_and_limits_drop_stations():
             assert np.max(np.abs(alt - tr.elevation[:, k])) < 0.01
     # S1 at latitude -70 never sees dec +60 above 10 deg (max elevation 90 - 130 < 0; geometry)
     assert not tr.visible[:, 3].any()
-    assert not tr.valid[:, [b for b, (i, j) in enumerate(zip(tr.station1, tr.station2))
-                            if 3 in (i, j)]].any()
+    assert not tr.valid[:, [b for b, (i, j) in enumerate(zip(tr.station1, tr.station2)) if 3 in (i, j)]].any()
     assert tr.valid.any()
 
 
@@ -191,8 +206,12 @@ def test_sign_and_frame_against_real_uvfits_file():
         bl = np.asarray(d.par("BASELINE"), int)[sel]
         uu = np.asarray(d.par("UU---SIN"), float)[sel] * freq
         vv = np.asarray(d.par("VV---SIN"), float)[sel] * freq
-    arr = parse_array({"name": "real", "station": [
-        {"name": n, "x": p[0], "y": p[1], "z": p[2], "sefd": 1.0} for n, p in zip(names, xyz)]})
+    arr = parse_array(
+        {
+            "name": "real",
+            "station": [{"name": n, "x": p[0], "y": p[1], "z": p[2], "sefd": 1.0} for n, p in zip(names, xyz)],
+        }
+    )
     a1, a2 = bl // 256 - 1, bl % 256 - 1
     times = Time(jd, format="jd", scale="utc")
     tr = compute_tracks(arr, ra, dec, times)
@@ -201,7 +220,7 @@ def test_sign_and_frame_against_real_uvfits_file():
     mine = tr.uvw_m[np.arange(len(sel)), b, :2] * freq / C
     q = np.hypot(uu, vv)
     rel = np.hypot(mine[:, 0] + uu, mine[:, 1] + vv) / q
-    assert np.median(rel) < 2e-3 and rel.max() < 6e-3          # same sign and frame, precession apart
+    assert np.median(rel) < 2e-3 and rel.max() < 6e-3  # same sign and frame, precession apart
     # the file's own recipe: J2000 coordinates, mean sidereal time, no precession (TMS eq. 4.1)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -225,18 +244,35 @@ def test_future_date_gives_one_line_notice():
     assert np.all(np.isfinite(tr.uvw_m))
 
 
-@pytest.mark.parametrize("text, words", [
-    ('name = "a"\n[[station]]\nname = "A"\nx = 1.0e6\ny = 6.0e6\nz = 1.0e6\nsefd = 10.0\n',
-     ["1 station", "at least two"]),
-    ('name = "a"\n[[station]]\nname = "A"\nx = 1.0e6\ny = 6.0e6\nz = 1.0e6\nsefd = 10.0\ncolour = 1\n'
-     '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 1.0\n', ["'A'", "colour"]),
-    ('name = "a"\n[[station]]\nname = "A"\nx = 1.0e6\ny = 6.0e6\nsefd = 10.0\n'
-     '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 1.0\n', ["'A'", "position", "z"]),
-    ('name = "a"\n[[station]]\nname = "A"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 1.0\n'
-     '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = -5.0\n', ["'B'", "sefd", "positive"]),
-    ('name = "a"\n[[station]]\nname = "A"\nlat = 1.0\nlon = 2.0\nheight = 0.0\n'
-     '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 5.0\n', ["'A'", "sefd"]),
-])
+@pytest.mark.parametrize(
+    "text, words",
+    [
+        (
+            'name = "a"\n[[station]]\nname = "A"\nx = 1.0e6\ny = 6.0e6\nz = 1.0e6\nsefd = 10.0\n',
+            ["1 station", "at least two"],
+        ),
+        (
+            'name = "a"\n[[station]]\nname = "A"\nx = 1.0e6\ny = 6.0e6\nz = 1.0e6\nsefd = 10.0\ncolour = 1\n'
+            '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 1.0\n',
+            ["'A'", "colour"],
+        ),
+        (
+            'name = "a"\n[[station]]\nname = "A"\nx = 1.0e6\ny = 6.0e6\nsefd = 10.0\n'
+            '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 1.0\n',
+            ["'A'", "position", "z"],
+        ),
+        (
+            'name = "a"\n[[station]]\nname = "A"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 1.0\n'
+            '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = -5.0\n',
+            ["'B'", "sefd", "positive"],
+        ),
+        (
+            'name = "a"\n[[station]]\nname = "A"\nlat = 1.0\nlon = 2.0\nheight = 0.0\n'
+            '[[station]]\nname = "B"\nlat = 1.0\nlon = 2.0\nheight = 0.0\nsefd = 5.0\n',
+            ["'A'", "sefd"],
+        ),
+    ],
+)
 def test_bad_array_files(tmp_path, text, words):
     p = tmp_path / "bad.toml"
     p.write_text(text)
@@ -249,9 +285,11 @@ def test_bad_array_files(tmp_path, text, words):
 def test_array_file_geodetic_position_matches_astropy(tmp_path):
     # lat/lon/height -> geocentric with astropy EarthLocation (WGS84), the reference library
     p = tmp_path / "ok.toml"
-    p.write_text('name = "a"\n[defaults]\neta = 0.9\n[[station]]\nname = "A"\nlat = 10.0\nlon = 20.0\n'
-                 'height = 100.0\nsefd = 1.0\nmin_elevation = 5.0\n[[station]]\nname = "B"\n'
-                 'x = 1.0e6\ny = 6.0e6\nz = 1.0e6\nsefd = 2.0\ndiameter = 12.0\n')
+    p.write_text(
+        'name = "a"\n[defaults]\neta = 0.9\n[[station]]\nname = "A"\nlat = 10.0\nlon = 20.0\n'
+        'height = 100.0\nsefd = 1.0\nmin_elevation = 5.0\n[[station]]\nname = "B"\n'
+        "x = 1.0e6\ny = 6.0e6\nz = 1.0e6\nsefd = 2.0\ndiameter = 12.0\n"
+    )
     arr = load_array(p)
     loc = EarthLocation.from_geodetic(20.0 * u.deg, 10.0 * u.deg, 100.0 * u.m)
     assert np.allclose(arr.xyz[0], [loc.x.value, loc.y.value, loc.z.value], atol=1e-6)
@@ -270,17 +308,24 @@ def test_tracks_agree_with_reader_presentation_of_real_file():
     # Through the project's reader the same real file's rows carry (u, v) of station1 -> station2
     # with the project's sign: ours agree to the precession its writer neglected (~4e-3, see above).
     import uvfit
+
     path = os.path.join(DATA, "SR1_3C279_2017_095_hi_hops_netcal_StokesI.uvfits")
     vs = uvfit.read(path)
     sel = np.arange(0, vs.n, 60)
-    arr = parse_array({"name": "real", "station": [
-        {"name": n, "x": p[0], "y": p[1], "z": p[2], "sefd": 1.0}
-        for n, p in zip(vs.stations.names, vs.stations.xyz)]})
+    arr = parse_array(
+        {
+            "name": "real",
+            "station": [
+                {"name": n, "x": p[0], "y": p[1], "z": p[2], "sefd": 1.0}
+                for n, p in zip(vs.stations.names, vs.stations.xyz)
+            ],
+        }
+    )
     times = Time(vs.time[sel], format="mjd", scale="utc")
     tr = compute_tracks(arr, vs.ra_deg, vs.dec_deg, times)
     lookup = {(i, j): b for b, (i, j) in enumerate(zip(tr.station1, tr.station2))}
     a1, a2 = vs.ant1[sel], vs.ant2[sel]
-    flip = a1 > a2                      # rows stored the other way round: swap and negate
+    flip = a1 > a2  # rows stored the other way round: swap and negate
     keys = [(min(i, j), max(i, j)) for i, j in zip(a1, a2)]
     b = np.array([lookup[k] for k in keys])
     mine = tr.uvw_m[np.arange(len(sel)), b, :2] * (vs.frequency[sel] / C)[:, None]

@@ -1,15 +1,15 @@
 """The package imports and the command line answers (no traceback, clear exit codes)."""
+
 import subprocess
 import sys
 
 import numpy as np
+import pytest
 
 import uvfit
 from uvfit.data.visset import VisibilitySet
-from uvfit.outputs import atomic_write
 from uvfit.errors import UvfitError
-
-import pytest
+from uvfit.outputs import atomic_write
 
 
 def test_version_command():
@@ -20,9 +20,17 @@ def test_version_command():
 
 def test_visibility_set_flags_bad_weights():
     # rows with NaN or non-positive sigma are flagged, never used (common practice)
-    vs = VisibilitySet(u=[1, 2, 3], v=[0, 0, 0], w=None, time=[0, 0, 0], frequency=1e9,
-                       station1=["A", "A", "B"], station2=["B", "C", "C"],
-                       vis=[1, 1, 1], sigma=[1.0, np.nan, -1.0])
+    vs = VisibilitySet(
+        u=[1, 2, 3],
+        v=[0, 0, 0],
+        w=None,
+        time=[0, 0, 0],
+        frequency=1e9,
+        station1=["A", "A", "B"],
+        station2=["B", "C", "C"],
+        vis=[1, 1, 1],
+        sigma=[1.0, np.nan, -1.0],
+    )
     assert vs.flag.tolist() == [False, True, True]
     assert vs.good().n == 1
     with pytest.raises(UvfitError):
@@ -41,6 +49,7 @@ def test_atomic_write_refuses_overwrite(tmp_path):
 def test_written_files_get_ordinary_permissions(tmp_path):
     # a written file is readable like any other new file (mode 0666 less the umask; POSIX practice)
     import os
+
     p = tmp_path / "y.txt"
     atomic_write(p, "x")
     mask = os.umask(0)

@@ -4,6 +4,7 @@ Outside references: central finite differences for every derivative; the closed 
 REFERENCES.md (Pearson 1995; TMS 2017, from memory) for the Gaussian; the shift theorem and
 Hermitian symmetry of the Fourier kernel (TMS 2017 ch. 3, from memory).
 """
+
 import math
 
 import numpy as np
@@ -45,21 +46,71 @@ def fd_check(model, u=U, v=V, freq=F, rel=1e-6, tol=1e-6):
 SPECS = {
     "point": {"name": "a", "shape": "point", "flux": 0.7, "east": 0.12, "north": -0.05},
     "gaussian": {"name": "a", "shape": "gaussian", "flux": 1.3, "east": -0.08, "north": 0.02, "fwhm": 0.05},
-    "elliptical_gaussian": {"name": "a", "shape": "elliptical_gaussian", "flux": 0.9, "east": 0.03,
-                            "north": 0.07, "fwhm": 0.09, "axis_ratio": 0.45, "position_angle": 37.0},
-    "elliptical_round": {"name": "a", "shape": "elliptical_gaussian", "flux": 0.9, "fwhm": 0.06,
-                         "axis_ratio": 1.0, "position_angle": 20.0},
-    "double_point": {"name": "a", "shape": "double", "flux": 1.1, "east": 0.01, "north": 0.02,
-                     "flux_ratio": 0.4, "separation": 0.15, "position_angle": 230.0},
-    "double_gaussian": {"name": "a", "shape": "double", "member": "gaussian", "flux": 1.1, "east": 0.01,
-                        "flux_ratio": 0.6, "separation": 0.12, "position_angle": -40.0,
-                        "fwhm_1": 0.03, "fwhm_2": 0.06},
-    "double_elliptical": {"name": "a", "shape": "double", "member": "elliptical_gaussian", "flux": 0.8,
-                          "north": -0.03, "flux_ratio": 1.7, "separation": 0.2, "position_angle": 75.0,
-                          "fwhm_1": 0.04, "axis_ratio_1": 0.6, "position_angle_1": 15.0,
-                          "fwhm_2": 0.07, "axis_ratio_2": 0.3, "position_angle_2": 120.0},
-    "spectral": {"name": "a", "shape": "gaussian", "flux": 1.0, "east": 0.02, "fwhm": 0.04,
-                 "spectral_index": -0.8, "reference_frequency": "230 GHz"},
+    "elliptical_gaussian": {
+        "name": "a",
+        "shape": "elliptical_gaussian",
+        "flux": 0.9,
+        "east": 0.03,
+        "north": 0.07,
+        "fwhm": 0.09,
+        "axis_ratio": 0.45,
+        "position_angle": 37.0,
+    },
+    "elliptical_round": {
+        "name": "a",
+        "shape": "elliptical_gaussian",
+        "flux": 0.9,
+        "fwhm": 0.06,
+        "axis_ratio": 1.0,
+        "position_angle": 20.0,
+    },
+    "double_point": {
+        "name": "a",
+        "shape": "double",
+        "flux": 1.1,
+        "east": 0.01,
+        "north": 0.02,
+        "flux_ratio": 0.4,
+        "separation": 0.15,
+        "position_angle": 230.0,
+    },
+    "double_gaussian": {
+        "name": "a",
+        "shape": "double",
+        "member": "gaussian",
+        "flux": 1.1,
+        "east": 0.01,
+        "flux_ratio": 0.6,
+        "separation": 0.12,
+        "position_angle": -40.0,
+        "fwhm_1": 0.03,
+        "fwhm_2": 0.06,
+    },
+    "double_elliptical": {
+        "name": "a",
+        "shape": "double",
+        "member": "elliptical_gaussian",
+        "flux": 0.8,
+        "north": -0.03,
+        "flux_ratio": 1.7,
+        "separation": 0.2,
+        "position_angle": 75.0,
+        "fwhm_1": 0.04,
+        "axis_ratio_1": 0.6,
+        "position_angle_1": 15.0,
+        "fwhm_2": 0.07,
+        "axis_ratio_2": 0.3,
+        "position_angle_2": 120.0,
+    },
+    "spectral": {
+        "name": "a",
+        "shape": "gaussian",
+        "flux": 1.0,
+        "east": 0.02,
+        "fwhm": 0.04,
+        "spectral_index": -0.8,
+        "reference_frequency": "230 GHz",
+    },
 }
 
 
@@ -68,16 +119,18 @@ SPECS = {
 def test_jacobian_matches_finite_differences(case, unit):
     spec = dict(SPECS[case])
     if unit == "uas":  # same source, positions and sizes in microarcseconds
-        spec = {k: (v * 1e3 if k in ("east", "north", "separation") or k.startswith("fwhm") else v)
-                for k, v in spec.items()}
+        spec = {
+            k: (v * 1e3 if k in ("east", "north", "separation") or k.startswith("fwhm") else v) for k, v in spec.items()
+        }
     fd_check(SkyModel.build([spec], angular_unit=unit))
 
 
 def test_jacobian_several_components_and_ties():
-    specs = [SPECS["gaussian"] | {"name": "core"},
-             SPECS["double_elliptical"] | {"name": "pair"},
-             SPECS["spectral"] | {"name": "knot", "fwhm": {"tie": "core.fwhm"},
-                                  "north": {"tie": "pair.north"}}]
+    specs = [
+        SPECS["gaussian"] | {"name": "core"},
+        SPECS["double_elliptical"] | {"name": "pair"},
+        SPECS["spectral"] | {"name": "knot", "fwhm": {"tie": "core.fwhm"}, "north": {"tie": "pair.north"}},
+    ]
     tied = SkyModel.build(specs)
     fd_check(tied)
     # the column of a parameter others are tied to is the sum of the untied columns
@@ -88,18 +141,23 @@ def test_jacobian_several_components_and_ties():
     jt = tied.jacobian(U, V, F)
     ju = untied.jacobian(U, V, F)
     ft, fu = tied.free_names, untied.free_names
-    np.testing.assert_allclose(jt[:, ft.index("core.fwhm")],
-                               ju[:, fu.index("core.fwhm")] + ju[:, fu.index("knot.fwhm")], atol=1e-12)
-    np.testing.assert_allclose(jt[:, ft.index("pair.north")],
-                               ju[:, fu.index("pair.north")] + ju[:, fu.index("knot.north")], atol=1e-12)
+    np.testing.assert_allclose(
+        jt[:, ft.index("core.fwhm")], ju[:, fu.index("core.fwhm")] + ju[:, fu.index("knot.fwhm")], atol=1e-12
+    )
+    np.testing.assert_allclose(
+        jt[:, ft.index("pair.north")], ju[:, fu.index("pair.north")] + ju[:, fu.index("knot.north")], atol=1e-12
+    )
     assert "knot.fwhm" not in ft and tied.values()["knot.fwhm"] == tied.values()["core.fwhm"]
 
 
-@pytest.mark.parametrize("key,params", [
-    ("gaussian", {"fwhm": 0.05 * MAS}),
-    ("elliptical_gaussian", {"fwhm": 0.05 * MAS, "axis_ratio": 0.3, "position_angle": 0.4}),
-    ("double", {"flux_ratio": 0.5, "separation": 0.1 * MAS, "position_angle": 1.0}),
-])
+@pytest.mark.parametrize(
+    "key,params",
+    [
+        ("gaussian", {"fwhm": 0.05 * MAS}),
+        ("elliptical_gaussian", {"fwhm": 0.05 * MAS, "axis_ratio": 0.3, "position_angle": 0.4}),
+        ("double", {"flux_ratio": 0.5, "separation": 0.1 * MAS, "position_angle": 1.0}),
+    ],
+)
 def test_shape_gradient_matches_finite_differences(key, params):
     # the Shape contract directly, in radians (definition of the derivative)
     shape = shape_class(key)()
@@ -131,8 +189,18 @@ def test_elliptical_gaussian_axes_and_orientation():
     # REFERENCES.md: along the major axis (PA phi) the visibility falls as a circular Gaussian of
     # FWHM a, across it as one of FWHM b (Pearson 1995)
     a, ratio, pa = 0.1, 0.4, 30.0
-    m = SkyModel.build([{"name": "e", "shape": "elliptical_gaussian", "flux": 1.0, "fwhm": a,
-                         "axis_ratio": ratio, "position_angle": pa}])
+    m = SkyModel.build(
+        [
+            {
+                "name": "e",
+                "shape": "elliptical_gaussian",
+                "flux": 1.0,
+                "fwhm": a,
+                "axis_ratio": ratio,
+                "position_angle": pa,
+            }
+        ]
+    )
     phi = math.radians(pa)
     q_maj = 0.4413 / (a * MAS)
     q_min = 0.4413 / (a * ratio * MAS)
@@ -143,15 +211,26 @@ def test_elliptical_gaussian_axes_and_orientation():
 
 def test_elliptical_reduces_to_circular_at_ratio_one():
     # REFERENCES.md: reduces to the circular case for a = b; PA derivative exactly zero there
-    e = SkyModel.build([{"name": "e", "shape": "elliptical_gaussian", "flux": 1.0, "fwhm": 0.07,
-                         "axis_ratio": 1.0, "position_angle": 63.0}])
+    e = SkyModel.build(
+        [
+            {
+                "name": "e",
+                "shape": "elliptical_gaussian",
+                "flux": 1.0,
+                "fwhm": 0.07,
+                "axis_ratio": 1.0,
+                "position_angle": 63.0,
+            }
+        ]
+    )
     c = SkyModel.build([{"name": "e", "shape": "gaussian", "flux": 1.0, "fwhm": 0.07}])
     np.testing.assert_allclose(e.visibilities(U, V), c.visibilities(U, V), rtol=1e-12, atol=1e-15)
     jac = e.jacobian(U, V)
     assert np.all(np.isfinite(jac))
     assert np.all(jac[:, e.free_names.index("e.position_angle")] == 0)
-    np.testing.assert_allclose(jac[:, e.free_names.index("e.fwhm")],
-                               c.jacobian(U, V)[:, c.free_names.index("e.fwhm")], rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(
+        jac[:, e.free_names.index("e.fwhm")], c.jacobian(U, V)[:, c.free_names.index("e.fwhm")], rtol=1e-12, atol=1e-15
+    )
 
 
 @pytest.mark.parametrize("case", list(SPECS))
@@ -172,7 +251,7 @@ def test_spectral_index_scales_flux():
     np.testing.assert_allclose(vis0.real, (nu / 230e9) ** -0.8, rtol=1e-12)
     # without a frequency, the flux at the reference frequency
     assert m.visibilities([0.0], [0.0])[0] == pytest.approx(1.0)
-    assert m.total_flux(frequency=460e9) == pytest.approx(2 ** -0.8)
+    assert m.total_flux(frequency=460e9) == pytest.approx(2**-0.8)
 
 
 def test_centred_symmetric_shapes_are_real():
@@ -188,20 +267,36 @@ def test_centred_symmetric_shapes_are_real():
 @pytest.mark.parametrize("member", ["point", "gaussian", "elliptical_gaussian"])
 def test_double_equals_two_separate_components(member):
     # the shift theorem (TMS 2017 ch. 3): a double is the sum of two components placed apart
-    size = {"point": [{}, {}],
-            "gaussian": [{"fwhm": 0.03}, {"fwhm": 0.05}],
-            "elliptical_gaussian": [{"fwhm": 0.04, "axis_ratio": 0.5, "position_angle": 20.0},
-                                    {"fwhm": 0.06, "axis_ratio": 0.8, "position_angle": -70.0}]}[member]
+    size = {
+        "point": [{}, {}],
+        "gaussian": [{"fwhm": 0.03}, {"fwhm": 0.05}],
+        "elliptical_gaussian": [
+            {"fwhm": 0.04, "axis_ratio": 0.5, "position_angle": 20.0},
+            {"fwhm": 0.06, "axis_ratio": 0.8, "position_angle": -70.0},
+        ],
+    }[member]
     flux, r, sep, pa, e0, n0 = 1.5, 0.35, 0.22, 250.0, 0.05, -0.1
-    spec = {"name": "d", "shape": "double", "member": member, "flux": flux, "east": e0, "north": n0,
-            "flux_ratio": r, "separation": sep, "position_angle": pa}
+    spec = {
+        "name": "d",
+        "shape": "double",
+        "member": member,
+        "flux": flux,
+        "east": e0,
+        "north": n0,
+        "flux_ratio": r,
+        "separation": sep,
+        "position_angle": pa,
+    }
     for k in (1, 2):
         spec.update({f"{n}_{k}": v for n, v in size[k - 1].items()})
     double = SkyModel.build([spec])
     dx, dy = sep * math.sin(math.radians(pa)), sep * math.cos(math.radians(pa))
-    pair = SkyModel.build([
-        {"name": "one", "shape": member, "flux": flux / (1 + r), "east": e0, "north": n0, **size[0]},
-        {"name": "two", "shape": member, "flux": flux * r / (1 + r), "east": e0 + dx, "north": n0 + dy, **size[1]}])
+    pair = SkyModel.build(
+        [
+            {"name": "one", "shape": member, "flux": flux / (1 + r), "east": e0, "north": n0, **size[0]},
+            {"name": "two", "shape": member, "flux": flux * r / (1 + r), "east": e0 + dx, "north": n0 + dy, **size[1]},
+        ]
+    )
     np.testing.assert_allclose(double.visibilities(U, V), pair.visibilities(U, V), atol=1e-12)
     # the members helper gives the same two components
     mem = double.members()
@@ -216,8 +311,17 @@ def test_double_equals_two_separate_components(member):
 
 def test_double_parameter_names_follow_member():
     d = shape_class("double")(member="elliptical_gaussian")
-    assert d.parameter_names() == ["flux_ratio", "separation", "position_angle", "fwhm_1", "axis_ratio_1",
-                                   "position_angle_1", "fwhm_2", "axis_ratio_2", "position_angle_2"]
+    assert d.parameter_names() == [
+        "flux_ratio",
+        "separation",
+        "position_angle",
+        "fwhm_1",
+        "axis_ratio_1",
+        "position_angle_1",
+        "fwhm_2",
+        "axis_ratio_2",
+        "position_angle_2",
+    ]
     assert d.parameter_kind("fwhm_2") == "length" and d.parameter_kind("position_angle_1") == "angle"
     assert shape_class("double")().parameter_names() == ["flux_ratio", "separation", "position_angle"]
     with pytest.raises(ValueError):
@@ -234,16 +338,27 @@ def test_offset_follows_shift_theorem_sign():
 
 
 def test_free_parameters_bounds_and_prior():
-    m = SkyModel.build([{"name": "core", "shape": "elliptical_gaussian", "flux": 1.0,
-                         "east": {"value": 0.0, "fixed": True}, "north": {"value": 0.0, "fixed": True},
-                         "fwhm": {"value": 0.1, "max": 2.0, "prior": {"normal": [0.1, 0.05]}},
-                         "axis_ratio": 0.5, "position_angle": 10.0}])
+    m = SkyModel.build(
+        [
+            {
+                "name": "core",
+                "shape": "elliptical_gaussian",
+                "flux": 1.0,
+                "east": {"value": 0.0, "fixed": True},
+                "north": {"value": 0.0, "fixed": True},
+                "fwhm": {"value": 0.1, "max": 2.0, "prior": {"normal": [0.1, 0.05]}},
+                "axis_ratio": 0.5,
+                "position_angle": 10.0,
+            }
+        ]
+    )
     assert m.free_names == ["core.flux", "core.fwhm", "core.axis_ratio", "core.position_angle"]
     lo, hi = m.free_bounds()
     np.testing.assert_array_equal(lo, [-np.inf, 0.0, 0.0, -np.inf])
     np.testing.assert_array_equal(hi, [np.inf, 2.0, 1.0, np.inf])
     theta = m.get_free()
     from scipy.stats import norm  # outside reference for the normal density
+
     assert m.log_prior(theta) == pytest.approx(norm.logpdf(0.1, 0.1, 0.05))
     bad = theta.copy()
     bad[2] = 1.2
@@ -256,18 +371,48 @@ def test_free_parameters_bounds_and_prior():
     assert c.n_free == 3 and m.n_free == 4
 
 
-from hypothesis import given, settings, strategies as st  # noqa: E402
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402 (the property tests below start here)
 
 
 @settings(max_examples=25, deadline=None)
-@given(fwhm=st.floats(0.005, 0.3), ratio=st.floats(0.05, 1.0), pa=st.floats(-360.0, 360.0),
-       fr=st.floats(0.0, 5.0), sep=st.floats(0.0, 0.5), spa=st.floats(-180.0, 540.0),
-       east=st.floats(-1.0, 1.0), north=st.floats(-1.0, 1.0))
+@given(
+    fwhm=st.floats(0.005, 0.3),
+    ratio=st.floats(0.05, 1.0),
+    pa=st.floats(-360.0, 360.0),
+    fr=st.floats(0.0, 5.0),
+    sep=st.floats(0.0, 0.5),
+    spa=st.floats(-180.0, 540.0),
+    east=st.floats(-1.0, 1.0),
+    north=st.floats(-1.0, 1.0),
+)
 def test_jacobian_at_random_parameters(fwhm, ratio, pa, fr, sep, spa, east, north):
     # central finite differences at arbitrary parameter values (definition of the derivative)
-    m = SkyModel.build([
-        {"name": "e", "shape": "elliptical_gaussian", "flux": 0.7, "east": east, "north": north,
-         "fwhm": fwhm, "axis_ratio": ratio, "position_angle": pa},
-        {"name": "d", "shape": "double", "member": "gaussian", "flux": 0.4, "east": -north, "north": east,
-         "flux_ratio": fr, "separation": sep, "position_angle": spa, "fwhm_1": fwhm, "fwhm_2": 0.5 * fwhm}])
+    m = SkyModel.build(
+        [
+            {
+                "name": "e",
+                "shape": "elliptical_gaussian",
+                "flux": 0.7,
+                "east": east,
+                "north": north,
+                "fwhm": fwhm,
+                "axis_ratio": ratio,
+                "position_angle": pa,
+            },
+            {
+                "name": "d",
+                "shape": "double",
+                "member": "gaussian",
+                "flux": 0.4,
+                "east": -north,
+                "north": east,
+                "flux_ratio": fr,
+                "separation": sep,
+                "position_angle": spa,
+                "fwhm_1": fwhm,
+                "fwhm_2": 0.5 * fwhm,
+            },
+        ]
+    )
     fd_check(m, u=U[:20], v=V[:20], freq=None, tol=1e-5)

@@ -18,6 +18,7 @@ Visibility (shift theorem and the disk's 2 J1(x)/x, x = pi D q: Pearson 1995; TM
     V = [D^2 A(pi D q) - d^2 A(pi d q) exp(-2 pi i (u s sin psi + v s cos psi))] / (D^2 - d^2),
     A(x) = 2 J1(x) / x.
 """
+
 import json
 import math
 
@@ -28,15 +29,14 @@ from astropy import units as un
 from click.testing import CliRunner
 
 import uvfit
+from tests import test_sky_shapes as generic_shapes
+from tests import test_sky_transforms as generic_transforms
 from uvfit.cli import cli
 from uvfit.sky import modelfile
 from uvfit.sky import shapes as registry
 from uvfit.sky.model import SkyModel
 from uvfit.sky.shape import Shape
 from uvfit.sky.shapes import _radial
-
-from tests import test_sky_shapes as generic_shapes
-from tests import test_sky_transforms as generic_transforms
 
 JY = 1e-26
 
@@ -47,8 +47,7 @@ class Crescent(Shape):
 
     key = "crescent"
     parameters = ("diameter", "inner_diameter", "shift", "position_angle")
-    kinds = {"diameter": "length", "inner_diameter": "length", "shift": "length",
-             "position_angle": "angle"}
+    kinds = {"diameter": "length", "inner_diameter": "length", "shift": "length", "position_angle": "angle"}
     settings = {}
     real_when_centred = False
 
@@ -58,25 +57,26 @@ class Crescent(Shape):
         big, small = p["diameter"], p["inner_diameter"]
         s, psi = p["shift"], p["position_angle"]
         phase = np.exp(-2j * np.pi * s * (u * math.sin(psi) + v * math.cos(psi)))
-        area = big ** 2 - small ** 2
+        area = big**2 - small**2
         return u, v, q, big, small, s, psi, phase, area
 
     def structure(self, u, v, p):
         u, v, q, big, small, s, psi, phase, area = self._parts(u, v, p)
-        return (big ** 2 * _radial.airy(np.pi * big * q)
-                - small ** 2 * _radial.airy(np.pi * small * q) * phase) / area
+        return (big**2 * _radial.airy(np.pi * big * q) - small**2 * _radial.airy(np.pi * small * q) * phase) / area
 
     def structure_gradient(self, u, v, p):
         u, v, q, big, small, s, psi, phase, area = self._parts(u, v, p)
         outer = _radial.airy(np.pi * big * q)
         inner = _radial.airy(np.pi * small * q) * phase
-        value = (big ** 2 * outer - small ** 2 * inner) / area
-        hole = -small ** 2 * inner / area
+        value = (big**2 * outer - small**2 * inner) / area
+        hole = -(small**2) * inner / area
         return value, {
-            "diameter": (2 * big * (outer - value)
-                         + big ** 2 * np.pi * q * _radial.airy_derivative(np.pi * big * q)) / area,
-            "inner_diameter": (2 * small * (value - inner) - small ** 2 * np.pi * q
-                               * _radial.airy_derivative(np.pi * small * q) * phase) / area,
+            "diameter": (2 * big * (outer - value) + big**2 * np.pi * q * _radial.airy_derivative(np.pi * big * q))
+            / area,
+            "inner_diameter": (
+                2 * small * (value - inner) - small**2 * np.pi * q * _radial.airy_derivative(np.pi * small * q) * phase
+            )
+            / area,
             "shift": hole * (-2j * np.pi) * (u * math.sin(psi) + v * math.cos(psi)),
             "position_angle": hole * (-2j * np.pi) * s * (u * math.cos(psi) - v * math.sin(psi)),
         }
@@ -89,13 +89,12 @@ class Crescent(Shape):
         m = np.asarray(m, dtype=float)
         inside = np.hypot(l, m) <= big
         hole = np.hypot(l - s * math.sin(psi), m - s * math.cos(psi)) <= small
-        return np.where(inside & ~hole, 1.0 / (np.pi * (big ** 2 - small ** 2)), 0.0)
+        return np.where(inside & ~hole, 1.0 / (np.pi * (big**2 - small**2)), 0.0)
 
     def brightness_temperature(self, flux, frequency, p, redshift=0.0):
         """Rayleigh-Jeans temperature of the mean brightness S / (pi (D^2 - d^2) / 4)."""
         solid = np.pi * (p["diameter"] ** 2 - p["inner_diameter"] ** 2) / 4.0
-        return (299792458.0 ** 2 * flux * JY / solid / (2 * 1.380649e-23 * frequency ** 2)
-                * (1.0 + redshift))
+        return 299792458.0**2 * flux * JY / solid / (2 * 1.380649e-23 * frequency**2) * (1.0 + redshift)
 
 
 CASE = {"diameter": 1.0, "inner_diameter": 0.6, "shift": 0.15, "position_angle": 0.6}
@@ -111,12 +110,23 @@ def crescent(monkeypatch):
 def test_registry_takes_a_class(crescent):
     assert registry.shape_class("crescent") is Crescent
     # the model-file reader knows it now, and a double may have crescent members
-    model = SkyModel.build([{"name": "c", "shape": "crescent", "flux": 1.0, **CASE},
-                            {"name": "p", "shape": "double", "member": "crescent", "flux": 1.0,
-                             "flux_ratio": 0.5, "separation": 3.0, "position_angle": 40.0,
-                             **{f"{k}_{i}": x for k, x in CASE.items() for i in (1, 2)}}])
+    model = SkyModel.build(
+        [
+            {"name": "c", "shape": "crescent", "flux": 1.0, **CASE},
+            {
+                "name": "p",
+                "shape": "double",
+                "member": "crescent",
+                "flux": 1.0,
+                "flux_ratio": 0.5,
+                "separation": 3.0,
+                "position_angle": 40.0,
+                **{f"{k}_{i}": x for k, x in CASE.items() for i in (1, 2)},
+            },
+        ]
+    )
     assert model.component("p").shape.member.key == "crescent"
-    assert modelfile.loads(model.to_toml()) == model   # the model file round trip
+    assert modelfile.loads(model.to_toml()) == model  # the model file round trip
 
 
 @pytest.mark.parametrize("offset", [False, True], ids=["centred", "offset"])
@@ -140,6 +150,7 @@ def test_generic_shape_checks(crescent):
 def test_limit_is_a_disk(crescent):
     # no hole: the uniform disk's 2 J1(x)/x (scipy.special.j1), x = pi D q
     from scipy import special
+
     q = np.linspace(0.05, 3.0, 40)
     got = Crescent().structure(q, 0 * q, {**CASE, "inner_diameter": 0.0})
     x = np.pi * q
@@ -147,14 +158,28 @@ def test_limit_is_a_disk(crescent):
 
 
 def _model():
-    return SkyModel.build([{"name": "c", "shape": "crescent", "flux": 1.2, "east": 0.1,
-                            "north": -0.2, "diameter": 0.5, "inner_diameter": 0.3,
-                            "shift": 0.08, "position_angle": 50.0}], angular_unit="mas")
+    return SkyModel.build(
+        [
+            {
+                "name": "c",
+                "shape": "crescent",
+                "flux": 1.2,
+                "east": 0.1,
+                "north": -0.2,
+                "diameter": 0.5,
+                "inner_diameter": 0.3,
+                "shift": 0.08,
+                "position_angle": 50.0,
+            }
+        ],
+        angular_unit="mas",
+    )
 
 
 def test_engines_agree(crescent):
     # the compiled engine takes the shape's own numpy code; the numpy path is the reference
     from uvfit.sky import engine
+
     model = _model()
     rng = np.random.default_rng(5)
     u, v = rng.normal(0, 1e9, (2, 500))
@@ -169,14 +194,18 @@ def test_engines_agree(crescent):
 
 def test_size_and_brightness_temperature(crescent):
     from uvfit.infer.derived import quantities_at
+
     model = _model()
     values, units, info = quantities_at(model, model.get_free(), 86e9)
     assert values["c.size"] == 0.5 and info["c.size"]["parameter"] == "diameter"
     # Rayleigh-Jeans law with astropy's constants: T = c^2 I / (2 k nu^2), I = S / Omega
     omega = np.pi * ((0.5 * un.mas) ** 2 - (0.3 * un.mas) ** 2).to(un.sr) / 4
     nu = 86 * un.GHz
-    t = (const.c ** 2 * (1.2 * un.Jy / omega) / (2 * const.k_B * nu ** 2)).to(
-        un.K, equivalencies=un.dimensionless_angles()).value
+    t = (
+        (const.c**2 * (1.2 * un.Jy / omega) / (2 * const.k_B * nu**2))
+        .to(un.K, equivalencies=un.dimensionless_angles())
+        .value
+    )
     assert values["c.brightness_temperature"] == pytest.approx(t, rel=1e-10)
     assert units["c.brightness_temperature"] == "K"
     assert model.size_names() == ["c.diameter"]
@@ -194,16 +223,33 @@ def test_fit_through_the_command_line(crescent, tmp_path):
     vis = truth.visibilities(u, v) + rng.normal(0, sigma, n) + 1j * rng.normal(0, sigma, n)
     stations = np.array(["KA", "LO", "MU", "NE"])
     i = np.arange(n) % 3
-    vset = uvfit.VisibilitySet(u=u, v=v, w=None, time=60000.0 + np.arange(n) * 1e-4,
-                               frequency=86e9, station1=stations[i], station2=stations[i + 1],
-                               vis=vis, sigma=np.full(n, sigma))
+    vset = uvfit.VisibilitySet(
+        u=u,
+        v=v,
+        w=None,
+        time=60000.0 + np.arange(n) * 1e-4,
+        frequency=86e9,
+        station1=stations[i],
+        station2=stations[i + 1],
+        vis=vis,
+        sigma=np.full(n, sigma),
+    )
     uvfit.write(vset, tmp_path / "data.uvfits")
     start = truth.copy()
     start.set_free(truth.get_free() * 1.03)
     start.save(tmp_path / "model.toml")
-    result = CliRunner().invoke(cli, ["fit", str(tmp_path / "data.uvfits"),
-                                      str(tmp_path / "model.toml"), "--json",
-                                      str(tmp_path / "fit.json"), "--seed", "3"])
+    result = CliRunner().invoke(
+        cli,
+        [
+            "fit",
+            str(tmp_path / "data.uvfits"),
+            str(tmp_path / "model.toml"),
+            "--json",
+            str(tmp_path / "fit.json"),
+            "--seed",
+            "3",
+        ],
+    )
     assert result.exit_code == 0, result.output
     fit = json.loads((tmp_path / "fit.json").read_text())
     params = fit["parameters"]

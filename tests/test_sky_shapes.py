@@ -4,17 +4,17 @@ Outside references named beside each check: REFERENCES.md's table of component v
 (Pearson 1995; Thompson, Moran & Swenson 2017), scipy.special (Bessel zeros), scipy.optimize.brentq
 (the nulls of our functions), central finite differences (the derivatives), scipy.integrate.
 """
+
 import numpy as np
 import pytest
 from scipy import integrate, optimize, special
 
+from tests.helpers.sky_cases import case_params, scaled
 from uvfit.errors import ModelError
 from uvfit.sky.shapes import SHAPES, shape_class
 
-from tests.helpers.sky_cases import case_params, scaled
-
 MAS = np.pi / (180.0 * 3600.0 * 1000.0)
-SCALE = 0.25 * MAS   # the cases' length unit, radians
+SCALE = 0.25 * MAS  # the cases' length unit, radians
 RNG_SEED = 20260
 
 
@@ -28,8 +28,7 @@ def _uv(n=200, seed=RNG_SEED, qmax=12.0):
 
 def _null(shape, p, lo, hi):
     """First null of the structure along the u axis in [lo, hi] (scipy.optimize.brentq)."""
-    return optimize.brentq(lambda q: float(np.real(shape.structure(q, 0.0, p))), lo, hi,
-                           xtol=1e-14 / SCALE, rtol=1e-14)
+    return optimize.brentq(lambda q: float(np.real(shape.structure(q, 0.0, p))), lo, hi, xtol=1e-14 / SCALE, rtol=1e-14)
 
 
 # --- closed forms and check values (REFERENCES.md, "Visibilities of simple components") ---------
@@ -49,8 +48,7 @@ def test_disk_value_against_bessel():
     x = np.pi * theta * np.hypot(u, v)
     # REFERENCES.md: 2 J1(x)/x with scipy.special.jv as the outside Bessel function
     expected = 2 * special.jv(1, x) / x
-    assert np.allclose(shape_class("disk")().structure(u, v, {"diameter": theta}), expected,
-                       rtol=0, atol=1e-14)
+    assert np.allclose(shape_class("disk")().structure(u, v, {"diameter": theta}), expected, rtol=0, atol=1e-14)
 
 
 def test_ring_first_null():
@@ -70,8 +68,7 @@ def test_sphere_first_null():
     assert x0 == pytest.approx(4.4934, abs=1e-4)
     assert np.tan(x0) == pytest.approx(x0, rel=1e-9)
     # and the root of tan x = x by brentq on sin x - x cos x (the same equation, no poles)
-    assert x0 == pytest.approx(optimize.brentq(lambda x: np.sin(x) - x * np.cos(x), 4.0, 4.7),
-                               rel=1e-12)
+    assert x0 == pytest.approx(optimize.brentq(lambda x: np.sin(x) - x * np.cos(x), 4.0, 4.7), rel=1e-12)
 
 
 def test_thin_shell_first_null():
@@ -87,10 +84,10 @@ def test_shell_formula_from_references():
     q = np.hypot(u, v)
 
     def big_l(x):
-        return 3 * (np.sin(x) - x * np.cos(x)) / x ** 3
+        return 3 * (np.sin(x) - x * np.cos(x)) / x**3
+
     # REFERENCES.md: [Ro^3 L(2 pi Ro q) - Ri^3 L(2 pi Ri q)] / (Ro^3 - Ri^3)
-    expected = (ro ** 3 * big_l(2 * np.pi * ro * q) - ri ** 3 * big_l(2 * np.pi * ri * q)) / (
-        ro ** 3 - ri ** 3)
+    expected = (ro**3 * big_l(2 * np.pi * ro * q) - ri**3 * big_l(2 * np.pi * ri * q)) / (ro**3 - ri**3)
     got = shape_class("shell")().structure(u, v, {"inner_radius": ri, "outer_radius": ro})
     assert np.allclose(got, expected, rtol=0, atol=1e-12)
 
@@ -101,9 +98,8 @@ def test_shell_is_mean_of_thin_shells():
     shell = shape_class("shell")()
     for qr in [0.0, 0.2, 1.3, 4.0, 11.0]:
         q = qr / ro
-        num = integrate.quad(lambda r: 3 * r ** 2 * np.sinc(2 * q * r), ri, ro, limit=200,
-                             epsabs=0, epsrel=1e-12)[0]
-        ref = num / (ro ** 3 - ri ** 3)
+        num = integrate.quad(lambda r: 3 * r**2 * np.sinc(2 * q * r), ri, ro, limit=200, epsabs=0, epsrel=1e-12)[0]
+        ref = num / (ro**3 - ri**3)
         got = shell.structure(q, 0.0, {"inner_radius": ri, "outer_radius": ro})
         assert got == pytest.approx(ref, abs=1e-12)
 
@@ -123,8 +119,7 @@ def test_hermitian_symmetry(key, settings, p):
     pr = scaled(shape, p, SCALE)
     u, v = _uv()
     # REFERENCES.md: V(-u, -v) = conj V(u, v) for any real image
-    assert np.allclose(shape.structure(-u, -v, pr), np.conj(shape.structure(u, v, pr)),
-                       rtol=0, atol=1e-13)
+    assert np.allclose(shape.structure(-u, -v, pr), np.conj(shape.structure(u, v, pr)), rtol=0, atol=1e-13)
 
 
 @pytest.mark.parametrize("key,settings,p", case_params())
@@ -143,8 +138,7 @@ def test_real_when_centred(key, settings, p):
 def test_modulated_ring_is_complex_for_odd_harmonics():
     shape = shape_class("ring_modulated")()
     u, v = _uv()
-    value = shape.structure(u, v, {"diameter": 4 * SCALE, "blur": 0.0, "amplitude_1": 0.3,
-                                   "angle_1": 0.4})
+    value = shape.structure(u, v, {"diameter": 4 * SCALE, "blur": 0.0, "amplitude_1": 0.3, "angle_1": 0.4})
     assert not shape.real_when_centred
     assert np.max(np.abs(np.imag(value))) > 0.05  # odd harmonics break point symmetry
 
@@ -181,6 +175,7 @@ def test_shell_branches_agree(monkeypatch):
     # the quadrature branch (2 pi q (Ro - Ri) <= 1) and the closed form agree where both are
     # accurate: evaluate the same points with each branch forced
     from uvfit.sky.shapes import shell as shell_module
+
     ri, ro = 0.3 * MAS, 0.35 * MAS
     q = np.linspace(0.3, 3.0, 40) / (2 * np.pi * (ro - ri))
     shell = shape_class("shell")()
@@ -207,7 +202,7 @@ def test_modulated_ring_with_no_modulation_is_the_ring(order):
     # with blur, the product with the Gaussian of REFERENCES.md (circular Gaussian row)
     p["blur"] = 0.7 * SCALE
     q = np.hypot(u, v)
-    taper = np.exp(-(np.pi * p["blur"] * q) ** 2 / (4 * np.log(2)))
+    taper = np.exp(-((np.pi * p["blur"] * q) ** 2) / (4 * np.log(2)))
     got = shape_class("ring_modulated")(order=order).structure(u, v, p)
     assert np.allclose(got, ring * taper, rtol=0, atol=1e-15)
 
@@ -215,8 +210,7 @@ def test_modulated_ring_with_no_modulation_is_the_ring(order):
 def test_modulated_ring_blur_is_continuous_at_zero():
     shape = shape_class("ring_modulated")(order=2)
     u, v = _uv()
-    p = {"diameter": 3 * SCALE, "blur": 0.0, "amplitude_1": 0.3, "angle_1": 1.0,
-         "amplitude_2": 0.1, "angle_2": -0.5}
+    p = {"diameter": 3 * SCALE, "blur": 0.0, "amplitude_1": 0.3, "angle_1": 1.0, "amplitude_2": 0.1, "angle_2": -0.5}
     v0 = shape.structure(u, v, p)
     for b in [1e-2, 1e-4, 1e-6]:
         vb = shape.structure(u, v, {**p, "blur": b * SCALE})
@@ -251,27 +245,42 @@ def test_modulated_ring_brightest_at_its_position_angle():
     # the brightest point is north-east: l > 0 (east) and m > 0 (north)
     assert l[np.argmax(b)] > 0 and m[np.argmax(b)] > 0
     lp, mp, wp = shape.sample_points({**p, "blur": 0.0}, 360)
-    assert np.degrees(np.arctan2(lp[np.argmax(wp)], mp[np.argmax(wp)])) == pytest.approx(
-        60.0, abs=0.6)
+    assert np.degrees(np.arctan2(lp[np.argmax(wp)], mp[np.argmax(wp)])) == pytest.approx(60.0, abs=0.6)
     assert wp.sum() == pytest.approx(1.0, abs=1e-14)
     assert np.all(wp >= 0)  # amplitude 0.4 <= 0.5: non-negative everywhere
 
 
 def test_modulated_ring_brightness_integrates_to_one():
     shape = shape_class("ring_modulated")(order=2)
-    p = {"diameter": 2 * SCALE, "blur": 0.5 * SCALE, "amplitude_1": 0.3, "angle_1": 0.2,
-         "amplitude_2": 0.2, "angle_2": 1.2}
+    p = {
+        "diameter": 2 * SCALE,
+        "blur": 0.5 * SCALE,
+        "amplitude_1": 0.3,
+        "angle_1": 0.2,
+        "amplitude_2": 0.2,
+        "angle_2": 1.2,
+    }
     # scipy.integrate.dblquad in polar coordinates (dimensionless r in units of SCALE)
     total = integrate.dblquad(
-        lambda r, psi: r * SCALE ** 2 * shape.brightness(r * SCALE * np.sin(psi),
-                                                         r * SCALE * np.cos(psi), p),
-        0, 2 * np.pi, 0, 6.0, epsabs=1e-11)[0]
+        lambda r, psi: r * SCALE**2 * shape.brightness(r * SCALE * np.sin(psi), r * SCALE * np.cos(psi), p),
+        0,
+        2 * np.pi,
+        0,
+        6.0,
+        epsabs=1e-11,
+    )[0]
     assert total == pytest.approx(1.0, abs=1e-8)
 
 
-@pytest.mark.parametrize("key,p", [
-    ("disk", {"diameter": 2.0}), ("sphere", {"radius": 1.0}),
-    ("shell", {"inner_radius": 0.5, "outer_radius": 1.0}), ("thin_shell", {"radius": 1.0})])
+@pytest.mark.parametrize(
+    "key,p",
+    [
+        ("disk", {"diameter": 2.0}),
+        ("sphere", {"radius": 1.0}),
+        ("shell", {"inner_radius": 0.5, "outer_radius": 1.0}),
+        ("thin_shell", {"radius": 1.0}),
+    ],
+)
 def test_projected_brightness_integrates_to_one(key, p):
     shape = shape_class(key)()
     pr = {n: x * SCALE for n, x in p.items()}
@@ -279,9 +288,9 @@ def test_projected_brightness_integrates_to_one(key, p):
     def ring_flux(t):  # r = SCALE sin t removes the square-root edges
         r = SCALE * np.sin(t)
         return 2 * np.pi * r * SCALE * np.cos(t) * shape.brightness(r, 0.0, pr)
+
     # scipy.integrate.quad of 2 pi r I(r) dr (inner radius as a break point)
-    total = integrate.quad(ring_flux, 0, np.pi / 2, points=[np.pi / 6], limit=200,
-                           epsabs=1e-12)[0]
+    total = integrate.quad(ring_flux, 0, np.pi / 2, points=[np.pi / 6], limit=200, epsabs=1e-12)[0]
     assert total == pytest.approx(1.0, abs=1e-8)
     l, m, w = shape.sample_points(pr)
     assert w.sum() == pytest.approx(1.0, abs=1e-12)
@@ -291,8 +300,7 @@ def test_projected_brightness_integrates_to_one(key, p):
 # --- derivatives against central finite differences --------------------------------------------
 def _fd_gradient(shape, u, v, p, name):
     kind = shape.parameter_kind(name)
-    h = 1e-6 * abs(p[name]) if (kind == "length" and p[name] != 0) else (
-        1e-6 * SCALE if kind == "length" else 1e-6)
+    h = 1e-6 * abs(p[name]) if (kind == "length" and p[name] != 0) else (1e-6 * SCALE if kind == "length" else 1e-6)
     up = shape.structure(u, v, {**p, name: p[name] + h})
     dn = shape.structure(u, v, {**p, name: p[name] - h})
     return (up - dn) / (2 * h)
@@ -300,8 +308,7 @@ def _fd_gradient(shape, u, v, p, name):
 
 def _uv_regimes(p_scale):
     """(u, v) from x ~ 1e-4 (series) through the series threshold to x ~ 300, all directions."""
-    x = np.concatenate([np.geomspace(1e-4, 1.0, 25), np.linspace(1.0, 40.0, 60),
-                        np.array([120.0, 300.0])])
+    x = np.concatenate([np.geomspace(1e-4, 1.0, 25), np.linspace(1.0, 40.0, 60), np.array([120.0, 300.0])])
     q = x / (np.pi * p_scale)
     phi = np.linspace(0.1, 2 * np.pi, x.size)
     return q * np.sin(phi), q * np.cos(phi)
@@ -323,8 +330,16 @@ def test_derivatives_against_finite_differences(key, settings, p):
         assert np.all(err <= 1e-9 + 1e-6 * np.max(np.abs(fd)) * unit), name
 
 
-SHELL_GRADIENT_CASES = [(0.3, 0.5), (0.0, 0.5), (0.5, 0.5), (0.5 * (1 - 1e-9), 0.5),
-                        (0.499, 0.5), (0.45, 0.5), (0.05, 0.5), (0.5, 0.3)]
+SHELL_GRADIENT_CASES = [
+    (0.3, 0.5),
+    (0.0, 0.5),
+    (0.5, 0.5),
+    (0.5 * (1 - 1e-9), 0.5),
+    (0.499, 0.5),
+    (0.45, 0.5),
+    (0.05, 0.5),
+    (0.5, 0.3),
+]
 
 
 @pytest.mark.parametrize("ri,ro", SHELL_GRADIENT_CASES)
@@ -354,9 +369,11 @@ def test_shell_derivatives_across_thickness(ri, ro):
 def test_series_threshold_is_seamless(monkeypatch):
     # the series and the closed forms agree around each switch (same points, each one forced)
     from uvfit.sky.shapes import _radial
-    groups = [("AIRY_SERIES_BELOW", [_radial.airy, _radial.airy_derivative]),
-              ("BALL_SERIES_BELOW", [_radial.ball, _radial.ball_derivative,
-                                     _radial.sinc_derivative])]
+
+    groups = [
+        ("AIRY_SERIES_BELOW", [_radial.airy, _radial.airy_derivative]),
+        ("BALL_SERIES_BELOW", [_radial.ball, _radial.ball_derivative, _radial.sinc_derivative]),
+    ]
     for threshold, functions in groups:
         x = getattr(_radial, threshold) * np.linspace(0.8, 1.25, 19)
         monkeypatch.setattr(_radial, threshold, np.inf)
@@ -369,13 +386,10 @@ def test_series_threshold_is_seamless(monkeypatch):
     # and the series agree with scipy's Bessel functions at small x (scipy.special.jv)
     xs = np.geomspace(1e-6, 1.49, 50)
     assert np.allclose(_radial.airy(xs), 2 * special.jv(1, xs) / xs, rtol=1e-15, atol=0)
-    assert np.allclose(_radial.airy_derivative(xs), -2 * special.jv(2, xs) / xs, rtol=1e-13,
-                       atol=0)
+    assert np.allclose(_radial.airy_derivative(xs), -2 * special.jv(2, xs) / xs, rtol=1e-13, atol=0)
     # spherical Bessel functions: ball = 3 j1(x)/x, sinc = j0(x) (scipy.special.spherical_jn)
-    assert np.allclose(_radial.ball(xs), 3 * special.spherical_jn(1, xs) / xs, rtol=1e-14,
-                       atol=0)
-    assert np.allclose(_radial.sinc_derivative(xs), special.spherical_jn(0, xs, derivative=True),
-                       rtol=1e-14, atol=0)
+    assert np.allclose(_radial.ball(xs), 3 * special.spherical_jn(1, xs) / xs, rtol=1e-14, atol=0)
+    assert np.allclose(_radial.sinc_derivative(xs), special.spherical_jn(0, xs, derivative=True), rtol=1e-14, atol=0)
 
 
 # --- vectorised ---------------------------------------------------------------------------------
@@ -392,8 +406,7 @@ def test_vectorised_shapes(key, settings, p):
     assert all(g.shape == (100_000,) for g in grad.values())
     # the per-point loop result (a few points) equals the vectorised one
     for i in range(3):
-        assert shape.structure(u[i:i + 1], v[i:i + 1], pr)[0] == pytest.approx(value[i],
-                                                                              abs=1e-15)
+        assert shape.structure(u[i : i + 1], v[i : i + 1], pr)[0] == pytest.approx(value[i], abs=1e-15)
     grid = shape.structure(u[:1200].reshape(30, 40), v[:1200].reshape(30, 40), pr)
     assert grid.shape == (30, 40)
     assert np.all(np.isfinite(value))

@@ -19,25 +19,25 @@ at one pixel aliases by < 1e-7 at the frequencies compared). The FFT convention 
 A_k = sum_n a_n exp(-2 pi i k n / N) (numpy documentation), is the sign of the kernel in
 REFERENCES.md; test_fft_kernel_sign pins it.
 """
+
 import numpy as np
 import pytest
 from scipy import integrate, special
 
+from tests.helpers.sky_cases import case_params, importable, scaled
 from uvfit.sky.shapes import shape_class
 
-from tests.helpers.sky_cases import case_params, importable, scaled
-
 MAS = np.pi / (180.0 * 3600.0 * 1000.0)
-N = 512                 # grid size (pixels per side)
-DX = 0.01 * MAS         # pixel, radians
-S = 80                  # length scale of the cases, pixels (a diameter of 80 pixels)
-M = 44                  # compare the (2M+1)^2 lowest (u, v) cells: |u| dx, |v| dx <= 0.086
+N = 512  # grid size (pixels per side)
+DX = 0.01 * MAS  # pixel, radians
+S = 80  # length scale of the cases, pixels (a diameter of 80 pixels)
+M = 44  # compare the (2M+1)^2 lowest (u, v) cells: |u| dx, |v| dx <= 0.086
 OFFSET = (37.3, -21.6)  # centre offset in pixels: east and south, not on the grid
-KERNEL_SIGMA = 1.0      # pixels
-KERNEL_HALF = 6         # kernel taps either side
-TOLERANCE = 1e-3        # of the total flux (the task's requirement)
+KERNEL_SIGMA = 1.0  # pixels
+KERNEL_HALF = 6  # kernel taps either side
+TOLERANCE = 1e-3  # of the total flux (the task's requirement)
 
-AXIS = (np.arange(N) - N // 2) * DX   # pixel centres; index N//2 is l = 0
+AXIS = (np.arange(N) - N // 2) * DX  # pixel centres; index N//2 is l = 0
 
 
 # --- rendering --------------------------------------------------------------------------------
@@ -49,10 +49,10 @@ def render_brightness(brightness, l0, m0, oversample):
     image = np.empty((N, N))
     rows = 32
     for start in range(0, N, rows):
-        l_fine = (AXIS[start:start + rows, None] + sub[None, :]).ravel() - l0
+        l_fine = (AXIS[start : start + rows, None] + sub[None, :]).ravel() - l0
         b = brightness(l_fine[:, None], m_fine[None, :])
-        image[start:start + rows] = b.reshape(rows, s, N, s).mean(axis=(1, 3))
-    return image * DX ** 2
+        image[start : start + rows] = b.reshape(rows, s, N, s).mean(axis=(1, 3))
+    return image * DX**2
 
 
 def render_points(l, m, w, l0, m0):
@@ -64,15 +64,14 @@ def render_points(l, m, w, l0, m0):
     # padded); they are dropped (e.g. the far Gauss-Hermite nodes of a Gaussian)
     pl = (l + l0) / DX + N // 2
     pm = (m + m0) / DX + N // 2
-    inside = ((pl > KERNEL_HALF + 1) & (pl < N - KERNEL_HALF - 2)
-              & (pm > KERNEL_HALF + 1) & (pm < N - KERNEL_HALF - 2))
+    inside = (pl > KERNEL_HALF + 1) & (pl < N - KERNEL_HALF - 2) & (pm > KERNEL_HALF + 1) & (pm < N - KERNEL_HALF - 2)
     assert np.sum(np.abs(w[~inside])) < 1e-9, "the field is too small for this shape"
     l, m, w = l[inside], m[inside], w[inside]
     chunk = 20000
     for start in range(0, l.size, chunk):
-        lc = (l[start:start + chunk] + l0) / DX + N // 2   # position in pixel index units
-        mc = (m[start:start + chunk] + m0) / DX + N // 2
-        wc = w[start:start + chunk]
+        lc = (l[start : start + chunk] + l0) / DX + N // 2  # position in pixel index units
+        mc = (m[start : start + chunk] + m0) / DX + N // 2
+        wc = w[start : start + chunk]
         il = np.rint(lc).astype(int)[:, None] + taps[None, :]
         im = np.rint(mc).astype(int)[:, None] + taps[None, :]
         gl = norm * np.exp(-0.5 * ((il - lc[:, None]) / KERNEL_SIGMA) ** 2)
@@ -111,8 +110,12 @@ def _gaussian_image(fwhm_major, fwhm_minor, pa):
     def brightness(l, m):
         along = l * np.sin(pa) + m * np.cos(pa)
         across = l * np.cos(pa) - m * np.sin(pa)
-        return (k / (np.pi * fwhm_major * fwhm_minor)
-                * np.exp(-k * ((along / fwhm_major) ** 2 + (across / fwhm_minor) ** 2)))
+        return (
+            k
+            / (np.pi * fwhm_major * fwhm_minor)
+            * np.exp(-k * ((along / fwhm_major) ** 2 + (across / fwhm_minor) ** 2))
+        )
+
     return brightness
 
 
@@ -126,8 +129,16 @@ def fallback_rendering(key, p):
 
 
 OVERSAMPLE = {"disk": 8, "shell": 8, "sphere": 8, "ring_modulated": 2, "double": 8}
-POINT_RESOLUTION = {"ring": 256, "ring_modulated": 256, "disk": 96, "shell": 40,
-                    "thin_shell": 48, "sphere": 40, "gaussian": 64, "elliptical_gaussian": 64}
+POINT_RESOLUTION = {
+    "ring": 256,
+    "ring_modulated": 256,
+    "disk": 96,
+    "shell": 40,
+    "thin_shell": 48,
+    "sphere": 40,
+    "gaussian": 64,
+    "elliptical_gaussian": 64,
+}
 
 
 def _offers(shape, method, *args):
@@ -163,8 +174,10 @@ def renderings(key, settings, p):
     if not out:
         method, payload = fallback_rendering(key, p)
         if method is None:
-            pytest.fail(f"shape '{key}' has no brightness() or sample_points() and the test has "
-                        "no reference image for it; add one")
+            pytest.fail(
+                f"shape '{key}' has no brightness() or sample_points() and the test has "
+                "no reference image for it; add one"
+            )
         out.append((method, payload))
     return shape, out
 
@@ -189,7 +202,7 @@ def test_fft_of_rendered_image(key, settings, p, offset):
             image = render_points(*payload, l0, m0)
             measured, _, _ = fft_cells(image)
             sigma = KERNEL_SIGMA * DX
-            measured = measured / np.exp(-2.0 * np.pi ** 2 * sigma ** 2 * (u ** 2 + v ** 2))
+            measured = measured / np.exp(-2.0 * np.pi**2 * sigma**2 * (u**2 + v**2))
         # numerical 2-D FFT of the rendered image (numpy.fft); tolerance 1e-3 of the total flux
         err = np.max(np.abs(measured - expected))
         assert err < TOLERANCE, f"{key} ({label} rendering): max |FFT - model| = {err:.2e}"
@@ -225,27 +238,24 @@ def _pieces(key, p):
     two_pi = 2.0 * np.pi
 
     def ball(a):
-        return lambda t, q: two_pi * a ** 3 * np.cos(t) ** 2 * np.sin(t) * special.j0(
-            two_pi * q * a * np.sin(t))
+        return lambda t, q: two_pi * a**3 * np.cos(t) ** 2 * np.sin(t) * special.j0(two_pi * q * a * np.sin(t))
 
     def surface(a):
         return lambda t, q: two_pi * a * np.sin(t) * special.j0(two_pi * q * a * np.sin(t))
 
     if key == "disk":
         a = p["diameter"] / 2
-        return [(1.0, lambda t, q: two_pi * a ** 2 * t * special.j0(two_pi * q * a * t), 1.0)]
+        return [(1.0, lambda t, q: two_pi * a**2 * t * special.j0(two_pi * q * a * t), 1.0)]
     if key == "sphere":
         return [(1.0, ball(p["radius"]), np.pi / 2)]
     if key == "thin_shell":
         return [(1.0, surface(p["radius"]), np.pi / 2)]
     if key == "shell":
-        return [(1.0, ball(p["outer_radius"]), np.pi / 2),
-                (-1.0, ball(p["inner_radius"]), np.pi / 2)]
+        return [(1.0, ball(p["outer_radius"]), np.pi / 2), (-1.0, ball(p["inner_radius"]), np.pi / 2)]
     if key == "gaussian":
         w = p["fwhm"]
         k = 4.0 * np.log(2.0)
-        return [(1.0, lambda t, q: two_pi * w ** 2 * t * np.exp(-k * t ** 2)
-                 * special.j0(two_pi * q * w * t), 12.0)]
+        return [(1.0, lambda t, q: two_pi * w**2 * t * np.exp(-k * t**2) * special.j0(two_pi * q * w * t), 12.0)]
     raise KeyError(key)
 
 
@@ -259,10 +269,13 @@ HANKEL_CASES = [
 ]
 
 
-@pytest.mark.parametrize("key,p", [
-    pytest.param(k, p, id=f"{k}-{i}",
-                 marks=[] if importable(k)[0] else [pytest.mark.skip(reason=importable(k)[1])])
-    for i, (k, p) in enumerate(HANKEL_CASES)])
+@pytest.mark.parametrize(
+    "key,p",
+    [
+        pytest.param(k, p, id=f"{k}-{i}", marks=[] if importable(k)[0] else [pytest.mark.skip(reason=importable(k)[1])])
+        for i, (k, p) in enumerate(HANKEL_CASES)
+    ],
+)
 def test_hankel_transform_of_radial_profile(key, p):
     shape = shape_class(key)()
     pieces = _pieces(key, {n: x / R for n, x in p.items()})  # the integrals in units of R
@@ -277,12 +290,12 @@ def test_hankel_transform_of_radial_profile(key, p):
 def _ring_integral(weight, radius, u, v):
     """(1/2 pi) int_0^2pi weight(psi) exp[-2 pi i (u l + v m)] dpsi on l = R sin psi, m = R cos psi,
     by scipy.integrate.quad (real and imaginary parts)."""
+
     def phase(psi):
         return -2.0 * np.pi * radius * (u * np.sin(psi) + v * np.cos(psi))
-    re = integrate.quad(lambda s: weight(s) * np.cos(phase(s)), 0, 2 * np.pi, limit=400,
-                        epsabs=1e-13)[0]
-    im = integrate.quad(lambda s: weight(s) * np.sin(phase(s)), 0, 2 * np.pi, limit=400,
-                        epsabs=1e-13)[0]
+
+    re = integrate.quad(lambda s: weight(s) * np.cos(phase(s)), 0, 2 * np.pi, limit=400, epsabs=1e-13)[0]
+    im = integrate.quad(lambda s: weight(s) * np.sin(phase(s)), 0, 2 * np.pi, limit=400, epsabs=1e-13)[0]
     return (re + 1j * im) / (2.0 * np.pi)
 
 
@@ -310,8 +323,8 @@ def test_modulated_ring_against_direct_ring_integral(order):
         p[f"amplitude_{k}"], p[f"angle_{k}"] = amps[k - 1], angs[k - 1]
 
     def weight(psi):  # the brightness on the ring as defined in the module docstring
-        return 1.0 + sum(2 * a * np.cos(k * (psi - t)) for k, (a, t) in
-                         enumerate(zip(amps, angs), start=1))
+        return 1.0 + sum(2 * a * np.cos(k * (psi - t)) for k, (a, t) in enumerate(zip(amps, angs), start=1))
+
     for uu, vv in UV_SPREAD:
         u, v = uu / d, vv / d
         ref = _ring_integral(weight, R, u, v)
@@ -322,12 +335,18 @@ def test_modulated_ring_against_direct_ring_integral(order):
 
 # --- pixel images for display (pixel_fractions) -------------------------------------------------
 PIXEL_CASES = [
-    ("disk", {}, {"diameter": 30.0}), ("disk", {}, {"diameter": 1.5}),
-    ("disk", {}, {"diameter": 0.3}), ("sphere", {}, {"radius": 12.0}),
-    ("sphere", {}, {"radius": 0.4}), ("ring", {}, {"diameter": 40.0}),
+    ("disk", {}, {"diameter": 30.0}),
+    ("disk", {}, {"diameter": 1.5}),
+    ("disk", {}, {"diameter": 0.3}),
+    ("sphere", {}, {"radius": 12.0}),
+    ("sphere", {}, {"radius": 0.4}),
+    ("ring", {}, {"diameter": 40.0}),
     ("ring_modulated", {}, {"diameter": 40.0, "blur": 0.0, "amplitude_1": 0.4, "angle_1": 1.0}),
-    ("ring_modulated", {"order": 2}, {"diameter": 30.0, "blur": 0.8, "amplitude_1": 0.2,
-                                      "angle_1": 1.0, "amplitude_2": 0.2, "angle_2": -0.3}),
+    (
+        "ring_modulated",
+        {"order": 2},
+        {"diameter": 30.0, "blur": 0.8, "amplitude_1": 0.2, "angle_1": 1.0, "amplitude_2": 0.2, "angle_2": -0.3},
+    ),
     ("ring_modulated", {}, {"diameter": 30.0, "blur": 6.0, "amplitude_1": 0.3, "angle_1": 2.0}),
 ]
 
@@ -338,7 +357,7 @@ def test_pixel_images_keep_flux_and_low_frequencies(key, settings, p):
     n, dx = 128, 0.02 * MAS
     pr = {k: (x * dx if shape.parameter_kind(k) == "length" else x) for k, x in p.items()}
     axis = (np.arange(n) - n // 2) * dx
-    l, m = np.meshgrid(axis, axis)             # image[m index, l index]
+    l, m = np.meshgrid(axis, axis)  # image[m index, l index]
     image = shape.pixel_fractions(l, m, pr)
     assert image.shape == (n, n)
     assert image.sum() == pytest.approx(1.0, abs=1e-3)  # the flux is kept

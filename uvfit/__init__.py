@@ -6,17 +6,30 @@ The public face: data (:func:`read`, :func:`write`, :class:`VisibilitySet`), mod
 records and :class:`UvfitError`. Each task returns a record whose ``to_dict()`` is the JSON the
 command of the same name writes, and whose ``text()`` is the table it prints.
 """
+
 __version__ = "0.1.0"
 
 import os as _os
 from typing import Any as _Any
 
+from .data.visset import StationTable, VisibilitySet  # noqa: E402
 from .errors import UvfitError  # noqa: E402
-from .data.visset import VisibilitySet, StationTable  # noqa: E402
 from .sky.model import SkyModel  # noqa: E402
-from .tasks import (ClosureReport, CompareReport, FitReport, ForecastReport,  # noqa: E402
-                    InfoReport, SampleReport, SimulationReport, closures, compare, fit, forecast,
-                    sample, simulate)
+from .tasks import (  # noqa: E402
+    ClosureReport,
+    CompareReport,
+    FitReport,
+    ForecastReport,
+    InfoReport,
+    SampleReport,
+    SimulationReport,
+    closures,
+    compare,
+    fit,
+    forecast,
+    sample,
+    simulate,
+)
 
 
 def read(path: "str | _os.PathLike[str]", **options: _Any) -> VisibilitySet:
@@ -48,11 +61,11 @@ def read(path: "str | _os.PathLike[str]", **options: _Any) -> VisibilitySet:
     'UVD 0917+224'
     """
     from .data.io import read as _read
+
     return _read(path, **options)
 
 
-def write(vset: VisibilitySet, path: "str | _os.PathLike[str]", force: bool = False,
-          **options: _Any) -> _Any:
+def write(vset: VisibilitySet, path: "str | _os.PathLike[str]", force: bool = False, **options: _Any) -> _Any:
     """Write a VisibilitySet atomically; the format follows the suffix (.uvfits or .ecsv).
 
     Parameters
@@ -86,6 +99,7 @@ def write(vset: VisibilitySet, path: "str | _os.PathLike[str]", force: bool = Fa
     True
     """
     from .data.io import write as _write
+
     return _write(vset, path, force=force, **options)
 
 
@@ -115,10 +129,30 @@ def load_model(path: "str | _os.PathLike[str]") -> SkyModel:
     ['pair.flux', 'pair.east']
     """
     from .sky.modelfile import load_model as _load
+
     return _load(path)
 
 
-__all__ = ["read", "write", "load_model", "fit", "sample", "compare", "closures", "simulate",
-           "forecast", "VisibilitySet", "StationTable", "SkyModel", "UvfitError", "FitReport",
-           "SampleReport", "CompareReport", "ClosureReport", "InfoReport", "SimulationReport",
-           "ForecastReport", "__version__"]
+__all__ = [
+    "read",
+    "write",
+    "load_model",
+    "fit",
+    "sample",
+    "compare",
+    "closures",
+    "simulate",
+    "forecast",
+    "VisibilitySet",
+    "StationTable",
+    "SkyModel",
+    "UvfitError",
+    "FitReport",
+    "SampleReport",
+    "CompareReport",
+    "ClosureReport",
+    "InfoReport",
+    "SimulationReport",
+    "ForecastReport",
+    "__version__",
+]

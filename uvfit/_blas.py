@@ -8,21 +8,29 @@ library loaded in the process to one thread and restores the previous count afte
 the libraries through /proc/self/maps (Linux); elsewhere, or for other BLAS libraries, it does
 nothing. Results do not change, only the time they take.
 """
+
 import contextlib
 import ctypes
 
-_SETTERS = ("scipy_openblas_set_num_threads64_", "scipy_openblas_set_num_threads",
-            "openblas_set_num_threads64_", "openblas_set_num_threads")
-_GETTERS = ("scipy_openblas_get_num_threads64_", "scipy_openblas_get_num_threads",
-            "openblas_get_num_threads64_", "openblas_get_num_threads")
+_SETTERS = (
+    "scipy_openblas_set_num_threads64_",
+    "scipy_openblas_set_num_threads",
+    "openblas_set_num_threads64_",
+    "openblas_set_num_threads",
+)
+_GETTERS = (
+    "scipy_openblas_get_num_threads64_",
+    "scipy_openblas_get_num_threads",
+    "openblas_get_num_threads64_",
+    "openblas_get_num_threads",
+)
 
 
 def _libraries():
     """[(set, get)] functions of the OpenBLAS libraries loaded in this process."""
     try:
         with open("/proc/self/maps", "r", encoding="utf-8", errors="replace") as handle:
-            paths = sorted({line.split()[-1] for line in handle
-                            if "openblas" in line.lower() and ".so" in line})
+            paths = sorted({line.split()[-1] for line in handle if "openblas" in line.lower() and ".so" in line})
     except OSError:
         return []
     found = []
@@ -47,6 +55,7 @@ def single_threaded():
     try:
         import numpy  # noqa: F401  (make sure the libraries are loaded)
         import scipy.linalg  # noqa: F401
+
         libs = _libraries()
     except Exception:  # never let a speed tweak break a run
         libs = []

@@ -3,6 +3,7 @@
 Each command is a module in ``uvfit/commands/`` that defines a click command named ``command``;
 the group below finds them all, so adding a command touches no other file.
 """
+
 import importlib
 import os
 import pkgutil
@@ -19,6 +20,7 @@ class _Group(click.Group):
         if getattr(self, "_loaded", False):
             return
         from . import commands
+
         for info in sorted(pkgutil.iter_modules(commands.__path__), key=lambda m: m.name):
             if info.name.startswith("_"):
                 continue
@@ -80,8 +82,11 @@ def main(argv=None):
     except Exception as exc:  # a bug, not the user's fault: say so plainly
         if debug:
             raise
-        click.echo(f"uvfit: internal error ({type(exc).__name__}: {exc}). Run again with "
-                   "UVFIT_DEBUG=1 for the traceback and report it.", err=True)
+        click.echo(
+            f"uvfit: internal error ({type(exc).__name__}: {exc}). Run again with "
+            "UVFIT_DEBUG=1 for the traceback and report it.",
+            err=True,
+        )
         sys.exit(3)
     sys.exit(0)
 

@@ -19,6 +19,7 @@ seeded, by the simulation layer). The demo, in order:
 Every step calls the same library functions as the commands, so each output file is the one the
 corresponding command would write (``uvfit fit --json``, ``uvfit compare --json``, ...).
 """
+
 import json
 import os
 from importlib import resources
@@ -64,8 +65,10 @@ def demo_file(name):
     """Path of a file shipped in uvfit/demo_data (an installed package or the work tree)."""
     path = resources.files("uvfit").joinpath("demo_data", name)
     if not path.is_file():
-        raise UvfitError(f"the demo file {name} is missing from this installation of uvfit",
-                         "reinstall uvfit (pip install .) from a complete copy of the project")
+        raise UvfitError(
+            f"the demo file {name} is missing from this installation of uvfit",
+            "reinstall uvfit (pip install .) from a complete copy of the project",
+        )
     return str(path)
 
 
@@ -75,13 +78,16 @@ def check_out_dir(out_dir, force=False):
     if os.path.exists(out_dir) and not os.path.isdir(out_dir):
         raise UvfitError(f"{out_dir} exists and is not a folder", "give a new folder as out_dir")
     if os.path.isdir(out_dir) and os.listdir(out_dir) and not force:
-        raise UvfitError(f"the output folder {out_dir} exists already and is not empty",
-                         "give a new folder as out_dir, or pass force to overwrite the "
-                         "demo's files in it")
+        raise UvfitError(
+            f"the output folder {out_dir} exists already and is not empty",
+            "give a new folder as out_dir, or pass force to overwrite the demo's files in it",
+        )
     parent = os.path.dirname(os.path.abspath(out_dir))
     if not os.path.isdir(parent):
-        raise UvfitError(f"the folder {parent} for the demo's output folder does not exist",
-                         "create it first, or give another out_dir")
+        raise UvfitError(
+            f"the folder {parent} for the demo's output folder does not exist",
+            "create it first, or give another out_dir",
+        )
     os.makedirs(out_dir, exist_ok=True)
     return out_dir
 
@@ -103,6 +109,7 @@ class _NoBar:
 def _roundtrip(obj):
     """The object as a JSON reader sees it (what the report command would read from the files)."""
     from .outputs import to_json
+
     return json.loads(to_json(obj))
 
 
@@ -141,30 +148,41 @@ def headline(fit_two, fit_one, comparison, posterior=None):
     ratio, ratio_e = val("flux_ratio")
     numbers = {
         "preferred": comparison.get("preferred"),
-        "separation": sep, "separation_error": sep_e, "separation_unit": unit,
-        "position_angle": pa % 360.0, "position_angle_error": pa_e, "position_angle_unit": "deg",
-        "flux_ratio": ratio, "flux_ratio_error": ratio_e,
-        "false_alarm_probability": fap, "n_simulations": n_sim, "n_exceeding": n_exceed,
-        "source": "least squares (fit_two.json); false-alarm probability by parametric bootstrap "
-                  "(compare.json)",
+        "separation": sep,
+        "separation_error": sep_e,
+        "separation_unit": unit,
+        "position_angle": pa % 360.0,
+        "position_angle_error": pa_e,
+        "position_angle_unit": "deg",
+        "flux_ratio": ratio,
+        "flux_ratio_error": ratio_e,
+        "false_alarm_probability": fap,
+        "n_simulations": n_sim,
+        "n_exceeding": n_exceed,
+        "source": "least squares (fit_two.json); false-alarm probability by parametric bootstrap (compare.json)",
     }
     if fap is None:
         fap_text = "no false-alarm probability computed (bootstrap 0)"
     elif n_exceed == 0:
         bound = "< 1%" if fap < 0.01 else f"<= {_percent(fap)}"
-        fap_text = (f"false-alarm probability of the single component {bound}: none of {n_sim} "
-                    "simulations of it came as close")
+        fap_text = (
+            f"false-alarm probability of the single component {bound}: none of {n_sim} simulations of it came as close"
+        )
     else:
         fap_text = f"false-alarm probability of the single component {_percent(fap)} ({n_sim} simulations)"
     if comparison.get("preferred") == "two":
-        text = (f"two components, separation {_pm(sep, sep_e)} {unit} at PA "
-                f"{_pm(pa % 360.0, pa_e, 1)} deg, flux ratio {_pm(ratio, ratio_e)} ({fap_text})")
+        text = (
+            f"two components, separation {_pm(sep, sep_e)} {unit} at PA "
+            f"{_pm(pa % 360.0, pa_e, 1)} deg, flux ratio {_pm(ratio, ratio_e)} ({fap_text})"
+        )
     else:
         one = fit_one["parameters"]
         size = one.get("source.fwhm", {})
-        text = (f"one component suffices: a Gaussian of FWHM "
-                f"{_pm(float(size.get('value', float('nan'))), size.get('error'))} {unit}; "
-                f"the double is not required ({fap_text})")
+        text = (
+            f"one component suffices: a Gaussian of FWHM "
+            f"{_pm(float(size.get('value', float('nan'))), size.get('error'))} {unit}; "
+            f"the double is not required ({fap_text})"
+        )
     if posterior is not None:
         pp = posterior.get("parameters", {})
         if "pair.separation" in pp and "pair.flux_ratio" in pp:
@@ -175,8 +193,9 @@ def headline(fit_two, fit_one, comparison, posterior=None):
     return text, numbers
 
 
-def run_demo(out_dir, seed=0, bootstrap=DEFAULT_BOOTSTRAP, force=False,
-             max_steps=DEFAULT_MAX_STEPS, echo=print, progressbar=None):
+def run_demo(
+    out_dir, seed=0, bootstrap=DEFAULT_BOOTSTRAP, force=False, max_steps=DEFAULT_MAX_STEPS, echo=print, progressbar=None
+):
     """Run the whole demo into the folder ``out_dir``; returns {"headline", "numbers", "outputs"}.
 
     ``echo(text)`` prints a step's human output; ``progressbar(length, label)`` returns a context
@@ -199,9 +218,9 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     from . import tasks
     from .outputs import atomic_write, atomic_write_with, write_json
     from .show import readback, style
+    from .show.corner import write_corner_plot
     from .show.figures import KINDS, make_figure
     from .show.report import build_report
-    from .show.corner import write_corner_plot
 
     def path(key):
         return os.path.join(out_dir, OUTPUTS[key])
@@ -220,8 +239,10 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
         model_paths[key] = os.path.join(out_dir, name)
         with open(demo_file(name), "rb") as handle:
             atomic_write(model_paths[key], handle.read(), force=force)
-    echo(f"uvfit demo: the invented source UVD 0917+224 seen by the invented Aster Ridge Array; "
-         f"outputs in {out_dir}/ (seed {seed})")
+    echo(
+        f"uvfit demo: the invented source UVD 0917+224 seen by the invented Aster Ridge Array; "
+        f"outputs in {out_dir}/ (seed {seed})"
+    )
 
     # 1. the data
     step(f"1. the data ({DATA_FILE}; uvfit info)")
@@ -232,11 +253,9 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
 
     # 2. two least-squares fits
     fits = {}
-    for key, label in (("one", "one component: a circular Gaussian"),
-                       ("two", "two components: a double of points")):
+    for key, label in (("one", "one component: a circular Gaussian"), ("two", "two components: a double of points")):
         step(f"2{'ab'[key == 'two']}. least-squares fit, {label} ({MODEL_FILES[key]}; uvfit fit)")
-        out = tasks.fit(vset, model_paths[key], mode=MODE, seed=seed, data_path=data_path,
-                        selection={}).to_dict()
+        out = tasks.fit(vset, model_paths[key], mode=MODE, seed=seed, data_path=data_path, selection={}).to_dict()
         write_json(path(f"fit_{key}"), out, force=force)
         fits[key] = _roundtrip(out)
         echo(show_text.fit_text(fits[key]))
@@ -244,9 +263,16 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     # 3. one or two? the bootstrap false-alarm probability
     step(f"3. one or two components? ({bootstrap} bootstrap simulations; uvfit compare)")
     with bar(length=max(bootstrap, 1), label="bootstrap") as b:
-        cmp = tasks.compare(vset, [model_paths["one"], model_paths["two"]], mode=MODE,
-                            bootstrap=bootstrap, seed=seed, progress=b.update,
-                            data_path=data_path, selection={}).to_dict()
+        cmp = tasks.compare(
+            vset,
+            [model_paths["one"], model_paths["two"]],
+            mode=MODE,
+            bootstrap=bootstrap,
+            seed=seed,
+            progress=b.update,
+            data_path=data_path,
+            selection={},
+        ).to_dict()
     write_json(path("compare"), cmp, force=force)
     cmp = _roundtrip(cmp)
     echo(show_text.compare_text(cmp))
@@ -260,9 +286,18 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
             b.update(done - state["done"])
             state["done"] = done
 
-        sampled = tasks.sample(vset, model_paths["two"], mode=MODE, max_steps=max_steps,
-                               seed=seed, chain=path("chain"), force=force, progress=progress,
-                               data_path=data_path, selection={})
+        sampled = tasks.sample(
+            vset,
+            model_paths["two"],
+            mode=MODE,
+            max_steps=max_steps,
+            seed=seed,
+            chain=path("chain"),
+            force=force,
+            progress=progress,
+            data_path=data_path,
+            selection={},
+        )
     for note in sampled.posterior.notes:
         echo(f"note: {note}")
     echo(sampled.posterior.table())
@@ -272,14 +307,12 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
 
     # 5. the closure check of the fitted double
     step("5. closure check of the fitted double (uvfit closures)")
-    checked = tasks.closures(vset, fits["two"], data_path=data_path, model_path=path("fit_two"),
-                             selection={})
+    checked = tasks.closures(vset, fits["two"], data_path=data_path, model_path=path("fit_two"), selection={})
     check = checked.result
     echo(checked.text())
     write_json(path("closures"), checked.to_dict(), force=force)
     table = checked.table()
-    atomic_write_with(path("closure_table"), lambda p: table.write(p, format="ascii.ecsv"),
-                      force=force)
+    atomic_write_with(path("closure_table"), lambda p: table.write(p, format="ascii.ecsv"), force=force)
 
     # 6. figures and the report
     step("6. figures and the report (uvfit plot, uvfit report)")
@@ -293,17 +326,16 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
                 style.close(fig)
             b.update(1)
         discard, thin = readback.chain_settings(posterior)
-        chain = readback.order_chain(readback.read_chain(path("chain"), discard, thin), view.model,
-                                     posterior)
-        page = build_report(view, closure_check=check, posterior=posterior, chain=chain,
-                            compare=cmp, data_name=DATA_FILE)
+        chain = readback.order_chain(readback.read_chain(path("chain"), discard, thin), view.model, posterior)
+        page = build_report(
+            view, closure_check=check, posterior=posterior, chain=chain, compare=cmp, data_name=DATA_FILE
+        )
         atomic_write(path("report"), page, force=force)
         b.update(1)
 
     # 7. the answer
     text, numbers = headline(fits["two"], fits["one"], cmp, posterior)
-    numbers.update({"seed": seed, "n_bootstrap": bootstrap,
-                    "closures_support_the_double": check.get("supported")})
+    numbers.update({"seed": seed, "n_bootstrap": bootstrap, "closures_support_the_double": check.get("supported")})
     write_json(path("headline"), numbers, force=force)
     step("7. outputs")
     width = max(len(v) for v in OUTPUTS.values())
@@ -331,5 +363,4 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     echo(DEMO_CAUTION)
     echo("")
     echo(f"answer: {text}")
-    return {"headline": text, "numbers": numbers,
-            "outputs": {k: path(k) for k in OUTPUTS}, "out_dir": out_dir}
+    return {"headline": text, "numbers": numbers, "outputs": {k: path(k) for k in OUTPUTS}, "out_dir": out_dir}

@@ -12,8 +12,10 @@ FIT_CAUTIONS = [
 ]
 
 #: the caution of a model comparison (``caution`` of the comparison JSON, and the verdict's end)
-COMPARE_CAUTION = ("This holds for these model families only: a model outside them may describe the "
-                  "data better, and calibration errors can mimic structure (check `uvfit closures`).")
+COMPARE_CAUTION = (
+    "This holds for these model families only: a model outside them may describe the "
+    "data better, and calibration errors can mimic structure (check `uvfit closures`)."
+)
 
 
 #: cautions every forecast carries (``cautions`` of the forecast JSON)
@@ -26,41 +28,55 @@ FORECAST_CAUTIONS = [
 ]
 
 #: the caution every closure result carries
-CLOSURE_CAUTION = ("Closure quantities are immune to station-based gain errors but not to "
-                   "baseline-based errors (e.g. bandpass or polarisation leakage that differ per "
-                   "baseline), and they cannot fix the absolute position or the total flux of the "
-                   "model. A good closure fit supports the model family fitted; it does not exclude "
-                   "other structure the model cannot represent.")
+CLOSURE_CAUTION = (
+    "Closure quantities are immune to station-based gain errors but not to "
+    "baseline-based errors (e.g. bandpass or polarisation leakage that differ per "
+    "baseline), and they cannot fix the absolute position or the total flux of the "
+    "model. A good closure fit supports the model family fitted; it does not exclude "
+    "other structure the model cannot represent."
+)
 
 #: the line printed under the posterior table
-SAMPLE_CAUTION = ("Credible intervals hold for this model family and these data weights; calibration "
-                  "errors outside the statistic are not in them.")
+SAMPLE_CAUTION = (
+    "Credible intervals hold for this model family and these data weights; calibration "
+    "errors outside the statistic are not in them."
+)
 
 #: the report's cautions: (title, text)
 REPORT_CAUTIONS = [
-    ("Model family",
-     "Every number here holds for the model family that was fitted. A good chi-square says the "
-     "data do not contradict this model; it does not say the source is made of these components. "
-     "A fit of a few components is no substitute for an image where the structure is complex."),
-    ("Calibration",
-     "The complex mode trusts the phase calibration: station phase errors become structure. "
-     "The amplitude modes trust the amplitude calibration and flux scale. Closure modes are immune "
-     "to station-based gains but give up absolute position and (for closure amplitudes) total "
-     "flux. A systematic error floor, where one was used, is an assumption, not a measurement."),
-    ("What the closure check rules out",
-     "Closure phases and closure amplitudes cannot be changed by any station-based gain error, so "
-     "a model that matches the visibilities but not the closures is suspect. The check is blind to "
-     "baseline-based errors (which do change closures, and could mimic or hide structure), and it "
-     "says nothing about the absolute position or the flux scale."),
-    ("Errors",
-     "Least-squares errors come from the curvature of chi-square at the best fit and assume "
-     "Gaussian noise with the stated sigmas; where the posterior is asymmetric or the sigmas are "
-     "mis-scaled, prefer the sampler's intervals and look at the reduced chi-square."),
+    (
+        "Model family",
+        "Every number here holds for the model family that was fitted. A good chi-square says the "
+        "data do not contradict this model; it does not say the source is made of these components. "
+        "A fit of a few components is no substitute for an image where the structure is complex.",
+    ),
+    (
+        "Calibration",
+        "The complex mode trusts the phase calibration: station phase errors become structure. "
+        "The amplitude modes trust the amplitude calibration and flux scale. Closure modes are immune "
+        "to station-based gains but give up absolute position and (for closure amplitudes) total "
+        "flux. A systematic error floor, where one was used, is an assumption, not a measurement.",
+    ),
+    (
+        "What the closure check rules out",
+        "Closure phases and closure amplitudes cannot be changed by any station-based gain error, so "
+        "a model that matches the visibilities but not the closures is suspect. The check is blind to "
+        "baseline-based errors (which do change closures, and could mimic or hide structure), and it "
+        "says nothing about the absolute position or the flux scale.",
+    ),
+    (
+        "Errors",
+        "Least-squares errors come from the curvature of chi-square at the best fit and assume "
+        "Gaussian noise with the stated sigmas; where the posterior is asymmetric or the sigmas are "
+        "mis-scaled, prefer the sampler's intervals and look at the reduced chi-square.",
+    ),
 ]
 
 #: the demo's last caution, printed before its answer
-DEMO_CAUTION = ("Caution: the answer holds for the two model families tried, and these invented data "
-                "are perfectly calibrated; with real data check the closures and try other models.")
+DEMO_CAUTION = (
+    "Caution: the answer holds for the two model families tried, and these invented data "
+    "are perfectly calibrated; with real data check the closures and try other models."
+)
 
 
 def unit_text(param):

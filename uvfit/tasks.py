@@ -11,11 +11,12 @@ Tasks: :func:`fit`, :func:`sample`, :func:`compare`, :func:`closures`, :func:`in
 :func:`simulate`, :func:`forecast`; helpers :func:`load_data` (read plus selection),
 :func:`load_model_or_path`, :func:`observation` (an Observation from text such as ``"86GHz"``).
 """
+
 from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from typing import Any, Callable, Iterable, Optional, Sequence, Union
+from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union
 
 from .data.select import parse_time, read_selected
 from .data.visset import VisibilitySet
@@ -29,7 +30,7 @@ Model = Union[SkyModel, str, "os.PathLike[str]"]
 Progress = Optional[Callable[[int], Any]]
 
 
-def _is_path(x: Any) -> bool:
+def _is_path(x: Any) -> TypeGuard[str | os.PathLike[str]]:
     return isinstance(x, str) or hasattr(x, "__fspath__")
 
 
@@ -37,8 +38,7 @@ def _stem(path: Any) -> str:
     return os.path.splitext(os.path.basename(os.fspath(path)))[0]
 
 
-def load_data(data: Data, selection: Optional[dict] = None,
-              good: bool = True) -> tuple[VisibilitySet, list[str]]:
+def load_data(data: Data, selection: Optional[dict] = None, good: bool = True) -> tuple[VisibilitySet, list[str]]:
     """(VisibilitySet, notes): ``data`` read if it is a path, then selected (see
     :func:`uvfit.data.select.read_selected`); with ``good`` only the unflagged rows."""
     return read_selected(data, selection, good=good)
@@ -50,9 +50,9 @@ def load_model_or_path(model: Model) -> SkyModel:
         return model
     if _is_path(model):
         from .sky.modelfile import load_model
+
         return load_model(model)
-    raise UvfitError(f"model must be a SkyModel or the path of a model file, not "
-                     f"{type(model).__name__}")
+    raise UvfitError(f"model must be a SkyModel or the path of a model file, not {type(model).__name__}")
 
 
 def _check_at_least(name: str, value: Optional[int], least: int) -> None:
@@ -104,15 +104,28 @@ class FitReport:
     def text(self) -> str:
         """The table ``uvfit fit`` prints."""
         from .show.text import fit_text
+
         return fit_text(self.record)
 
 
-def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0,
-        rescale_errors: bool = False, starts: int = 1, seed: int = 0, global_search: bool = False,
-        redshift: float = 0.0, max_evaluations: Optional[int] = None, resolved_test: bool = True,
-        selection: Optional[dict] = None, progress: Progress = None,
-        data_path: Optional[str] = None, profile: Optional[str] = None,
-        jackknife: Optional[str] = None) -> FitReport:
+def fit(
+    data: Data,
+    model: Model,
+    mode: str = "complex",
+    systematic: float = 0.0,
+    rescale_errors: bool = False,
+    starts: int = 1,
+    seed: int = 0,
+    global_search: bool = False,
+    redshift: float = 0.0,
+    max_evaluations: Optional[int] = None,
+    resolved_test: bool = True,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+    profile: Optional[str] = None,
+    jackknife: Optional[str] = None,
+) -> FitReport:
     """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
 
     Parameters
@@ -179,15 +192,33 @@ def fit(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0
     vset, notes = load_data(data, selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    out, result = run_fit(vset, sky, mode=mode, systematic=systematic,
-                          rescale_errors=rescale_errors, starts=starts, seed=seed,
-                          global_search=global_search, redshift=redshift, data_path=data_path,
-                          selection=selection if selection is not None else {},
-                          resolved_test=resolved_test, max_evaluations=max_evaluations,
-                          progress=progress, return_result=True)
+    out, result = run_fit(
+        vset,
+        sky,
+        mode=mode,
+        systematic=systematic,
+        rescale_errors=rescale_errors,
+        starts=starts,
+        seed=seed,
+        global_search=global_search,
+        redshift=redshift,
+        data_path=data_path,
+        selection=selection if selection is not None else {},
+        resolved_test=resolved_test,
+        max_evaluations=max_evaluations,
+        progress=progress,
+        return_result=True,
+    )
     if _is_path(model):
         out["model_file"] = str(model)
+    if vset.meta.get("format") == "ms":  # what was read from a Measurement Set (only then)
+        out["read_options"] = {
+            "column": vset.meta["ms_column"],
+            "field": vset.meta["ms_field"],
+            "spw": list(vset.meta["ms_spws_read"]),
+        }
     from .infer.fluxscale import annotate as annotate_flux_scale
+
     annotate_flux_scale(out, result)
     _fit_extras(out, result, profile, jackknife, seed, redshift)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
@@ -219,11 +250,13 @@ class SampleReport:
     def text(self) -> str:
         """The table ``uvfit sample`` prints."""
         from .show.text import sample_text
+
         return sample_text(self.posterior.table())
 
 
-def check_sample_options(procs: int = 1, walkers: Optional[int] = None, max_steps: int = 5000,
-                         order_by: str = "flux") -> None:
+def check_sample_options(
+    procs: int = 1, walkers: Optional[int] = None, max_steps: int = 5000, order_by: str = "flux"
+) -> None:
     """UvfitError naming the first option of :func:`sample` out of range (checked before any
     work)."""
     _check_at_least("procs", procs, 1)
@@ -233,12 +266,26 @@ def check_sample_options(procs: int = 1, walkers: Optional[int] = None, max_step
         raise UvfitError(f"unknown order_by '{order_by}'", "use 'flux' or 'distance'")
 
 
-def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 0.0,
-           walkers: Optional[int] = None, max_steps: int = 5000, seed: int = 0, procs: int = 1,
-           chain: Optional[str] = None, resume: bool = False, force: bool = False,
-           order_by: str = "flux", starts: int = 1, redshift: float = 0.0,
-           selection: Optional[dict] = None, progress: Progress = None,
-           data_path: Optional[str] = None, rescale_errors: bool = False) -> SampleReport:
+def sample(
+    data: Data,
+    model: Model,
+    mode: str = "complex",
+    systematic: float = 0.0,
+    walkers: Optional[int] = None,
+    max_steps: int = 5000,
+    seed: int = 0,
+    procs: int = 1,
+    chain: Optional[str] = None,
+    resume: bool = False,
+    force: bool = False,
+    order_by: str = "flux",
+    starts: int = 1,
+    redshift: float = 0.0,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+    rescale_errors: bool = False,
+) -> SampleReport:
     """Posterior of the model's free parameters by ensemble MCMC (emcee), from the best fit.
 
     Parameters
@@ -298,11 +345,25 @@ def sample(data: Data, model: Model, mode: str = "complex", systematic: float = 
     sky = load_model_or_path(model)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    post = run_sample(vset, sky, mode=mode, systematic=systematic, n_walkers=walkers,
-                      max_steps=max_steps, seed=seed, procs=procs, chain_path=chain,
-                      resume=resume, force=force, order_by=order_by, progress=progress,
-                      starts=starts, redshift=redshift, data_path=data_path,
-                      **({"rescale_errors": True} if rescale_errors else {}))
+    post = run_sample(
+        vset,
+        sky,
+        mode=mode,
+        systematic=systematic,
+        n_walkers=walkers,
+        max_steps=max_steps,
+        seed=seed,
+        procs=procs,
+        chain_path=chain,
+        resume=resume,
+        force=force,
+        order_by=order_by,
+        progress=progress,
+        starts=starts,
+        redshift=redshift,
+        data_path=data_path,
+        **({"rescale_errors": True} if rescale_errors else {}),
+    )
     out = post.to_dict()
     out["selection"] = _given(selection)
     return SampleReport(record=out, posterior=post, notes=notes)
@@ -333,14 +394,24 @@ class CompareReport:
     def text(self) -> str:
         """The table ``uvfit compare`` prints."""
         from .show.text import compare_text
+
         return compare_text(self.record)
 
 
-def compare(data: Data, models: Sequence[Model], mode: str = "complex", systematic: float = 0.0,
-            starts: int = 1, bootstrap: int = 0, seed: int = 0,
-            names: Optional[Sequence[str]] = None, selection: Optional[dict] = None,
-            progress: Progress = None, data_path: Optional[str] = None,
-            rescale_errors: bool = False) -> CompareReport:
+def compare(
+    data: Data,
+    models: Sequence[Model],
+    mode: str = "complex",
+    systematic: float = 0.0,
+    starts: int = 1,
+    bootstrap: int = 0,
+    seed: int = 0,
+    names: Optional[Sequence[str]] = None,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+    rescale_errors: bool = False,
+) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
     Parameters
@@ -388,17 +459,25 @@ def compare(data: Data, models: Sequence[Model], mode: str = "complex", systemat
 
     models = list(models)
     if len(models) < 2:
-        raise UvfitError(f"compare needs at least two models (got {len(models)})",
-                         "pass two or more models")
+        raise UvfitError(f"compare needs at least two models (got {len(models)})", "pass two or more models")
     if names is None and all(_is_path(m) for m in models):
         names = [_stem(m) for m in models]
     skies = [load_model_or_path(m) for m in models]
     vset, notes = load_data(data, selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    out = run_compare(vset, skies, mode=mode, systematic=systematic, bootstrap=bootstrap,
-                      seed=seed, progress=progress, starts=starts, names=names,
-                      **({"rescale_errors": True} if rescale_errors else {}))
+    out = run_compare(
+        vset,
+        skies,
+        mode=mode,
+        systematic=systematic,
+        bootstrap=bootstrap,
+        seed=seed,
+        progress=progress,
+        starts=starts,
+        names=names,
+        **({"rescale_errors": True} if rescale_errors else {}),
+    )
     out["data"] = None if data_path is None else str(data_path)
     out["selection"] = selection if selection is not None else {}
     out["model_files"] = [str(m) if _is_path(m) else None for m in models]
@@ -427,18 +506,27 @@ class ClosureReport:
     def table(self):
         """Every closure quantity as an astropy Table (what ``--table`` writes)."""
         from .stats.closures import closure_table
+
         return closure_table(self.result)
 
     def text(self) -> str:
         """The table ``uvfit closures`` prints."""
         from .show.text import closures_text
+
         return closures_text(self.result)
 
 
-def closures(data: Data, model: Union[Model, dict, None] = None,
-             systematic: Optional[float] = None, snr_cut: float = 3.0, full: bool = False,
-             covariance: Optional[str] = None, selection: Optional[dict] = None,
-             data_path: Optional[str] = None, model_path: Optional[str] = None) -> ClosureReport:
+def closures(
+    data: Data,
+    model: Union[Model, dict, None] = None,
+    systematic: Optional[float] = None,
+    snr_cut: float = 3.0,
+    full: bool = False,
+    covariance: Optional[str] = None,
+    selection: Optional[dict] = None,
+    data_path: Optional[str] = None,
+    model_path: Optional[str] = None,
+) -> ClosureReport:
     """Closure phases and log closure amplitudes of the data; with a model, how well it fits them.
 
     Parameters
@@ -487,8 +575,7 @@ def closures(data: Data, model: Union[Model, dict, None] = None,
     sky, info = None, {}
     if isinstance(model, dict):
         sky = model_from_fit(model)
-        info = {"model_from": "fit result", "fit_mode": model.get("mode"),
-                "fit_systematic": model.get("systematic")}
+        info = {"model_from": "fit result", "fit_mode": model.get("mode"), "fit_systematic": model.get("systematic")}
     elif isinstance(model, SkyModel):
         sky, info = model, {"model_from": "model"}
     elif model is not None:
@@ -497,14 +584,18 @@ def closures(data: Data, model: Union[Model, dict, None] = None,
             model_path = os.fspath(model)
     if systematic is None:
         systematic = float(info.get("fit_systematic") or 0.0)
-    res = check_closures(vset, sky, systematic=systematic, snr_cut=snr_cut, full=full,
-                         covariance=covariance)
+    res = check_closures(vset, sky, systematic=systematic, snr_cut=snr_cut, full=full, covariance=covariance)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
     summary = json_summary(res)
-    summary.update({"data": None if data_path is None else str(data_path), "model": model_path,
-                    **info, "selection": {k: v for k, v in (selection or {}).items()
-                                          if v not in (None, (), "")}})
+    summary.update(
+        {
+            "data": None if data_path is None else str(data_path),
+            "model": model_path,
+            **info,
+            "selection": {k: v for k, v in (selection or {}).items() if v not in (None, (), "")},
+        }
+    )
     return ClosureReport(record=summary, result=res, notes=notes)
 
 
@@ -526,6 +617,7 @@ class InfoReport:
     def text(self) -> str:
         """The table ``uvfit info`` prints."""
         from .show.text import info_text
+
         return info_text(self.record)
 
 
@@ -534,15 +626,24 @@ def summarise(vset: VisibilitySet) -> dict:
     s = vset.summary()
     s["stokes"] = vset.meta.get("stokes_i_from", "I")
     s["file_format"] = vset.meta.get("format")
-    for key in ("note_single_hand", "note_weights", "note_stations", "selection_notes", "orientation",
-                "n_autocorrelation_rows_flagged"):
+    for key in (
+        "note_single_hand",
+        "note_weights",
+        "note_stations",
+        "selection_notes",
+        "orientation",
+        "n_autocorrelation_rows_flagged",
+    ):
         if key in vset.meta:
             s[key] = vset.meta[key]
+    if vset.meta.get("format") == "ms":
+        from .data.ms import add_ms_summary
+
+        add_ms_summary(vset, s)
     return s
 
 
-def info(data: Data, selection: Optional[dict] = None,
-         data_path: Optional[str] = None) -> InfoReport:
+def info(data: Data, selection: Optional[dict] = None, data_path: Optional[str] = None) -> InfoReport:
     """What a visibility file holds: source, frequencies, stations, times, uv coverage, resolution.
 
     Parameters
@@ -582,9 +683,18 @@ def info(data: Data, selection: Optional[dict] = None,
 # --------------------------------------------------------------------------- simulate, forecast
 
 
-def observation(ra: Union[str, float], dec: Union[str, float], start: Any, duration: Any,
-                frequency: Any, integration: Any = "30s", bandwidth: Any = "1GHz",
-                channels: int = 1, scan_length: Any = "5min", source: str = "SIM"):
+def observation(
+    ra: Union[str, float],
+    dec: Union[str, float],
+    start: Any,
+    duration: Any,
+    frequency: Any,
+    integration: Any = "30s",
+    bandwidth: Any = "1GHz",
+    channels: int = 1,
+    scan_length: Any = "5min",
+    source: str = "SIM",
+):
     """An :class:`uvfit.sim.observe.Observation` from values as users type them.
 
     Angles as astropy forms (``"12h30m49.4s"``, ``"+12d23m28s"``; a bare number is degrees),
@@ -605,20 +715,24 @@ def observation(ra: Union[str, float], dec: Union[str, float], start: Any, durat
     if not -90 <= dec_deg <= 90:
         raise UvfitError(f"the declination {dec} is outside -90..+90 degrees")
     obs = Observation(
-        ra_deg=ra_deg % 360.0, dec_deg=dec_deg,
+        ra_deg=ra_deg % 360.0,
+        dec_deg=dec_deg,
         start=start if hasattr(start, "mjd") else parse_time(start),
         duration_s=parse_duration(str(duration), "duration"),
         integration_s=parse_duration(str(integration), "integration time"),
         frequency_hz=parse_frequency(str(frequency), "frequency"),
         bandwidth_hz=parse_frequency(str(bandwidth), "bandwidth"),
-        channels=channels, scan_length_s=parse_duration(str(scan_length), "scan length"),
-        source=source)
+        channels=channels,
+        scan_length_s=parse_duration(str(scan_length), "scan length"),
+        source=source,
+    )
     obs.check()
     return obs
 
 
 def _array(array: Any):
     from .sim.array import Array, load_array
+
     return array if isinstance(array, Array) else load_array(array)
 
 
@@ -642,12 +756,22 @@ class SimulationReport:
     def text(self) -> str:
         """The summary ``uvfit simulate`` prints."""
         from .show.text import simulation_text
+
         return simulation_text(self.record, self.observation)
 
 
-def simulate(array: Any, model: Model, observation: Any, seed: int = 0, noise: bool = True,
-             gain_error: float = 0.0, phase_error: float = 0.0, systematic: float = 0.0,
-             output: Optional[str] = None, model_path: Optional[str] = None) -> SimulationReport:
+def simulate(
+    array: Any,
+    model: Model,
+    observation: Any,
+    seed: int = 0,
+    noise: bool = True,
+    gain_error: float = 0.0,
+    phase_error: float = 0.0,
+    systematic: float = 0.0,
+    output: Optional[str] = None,
+    model_path: Optional[str] = None,
+) -> SimulationReport:
     """A sky model observed by an array: Earth-rotation (u, v), thermal noise, gain errors.
 
     Parameters
@@ -732,6 +856,7 @@ class ForecastReport:
     def text(self) -> str:
         """The summary ``uvfit forecast`` prints."""
         from .show.text import forecast_text
+
         return forecast_text(self.record)
 
 
@@ -740,11 +865,22 @@ def check_forecast_options(trials: int = 20) -> None:
     _check_at_least("trials", int(trials), 1)
 
 
-def forecast(array: Any, true_model: Model, alternatives: Iterable[Model], observation: Any,
-             trials: int = 20, mode: str = "complex", starts: int = 1, seed: int = 0,
-             gain_error: float = 0.0, phase_error: float = 0.0, systematic: float = 0.0,
-             true_name: Optional[str] = None, alt_names: Optional[Sequence[str]] = None,
-             progress: Progress = None) -> ForecastReport:
+def forecast(
+    array: Any,
+    true_model: Model,
+    alternatives: Iterable[Model],
+    observation: Any,
+    trials: int = 20,
+    mode: str = "complex",
+    starts: int = 1,
+    seed: int = 0,
+    gain_error: float = 0.0,
+    phase_error: float = 0.0,
+    systematic: float = 0.0,
+    true_name: Optional[str] = None,
+    alt_names: Optional[Sequence[str]] = None,
+    progress: Progress = None,
+) -> ForecastReport:
     """Repeated simulations and fits: can the array tell the true model from the alternatives?
 
     Parameters
@@ -806,26 +942,42 @@ def forecast(array: Any, true_model: Model, alternatives: Iterable[Model], obser
         true_name = _stem(true_model) if _is_path(true_model) else "true"
     if alt_names is None and alternatives and all(_is_path(m) for m in alternatives):
         alt_names = [_stem(m) for m in alternatives]
-    out = run_forecast(arr, true_sky, alts, observation, trials, mode=mode, seed=seed,
-                       starts=starts, true_name=true_name, alt_names=alt_names,
-                       progress=progress, **corruption)
+    out = run_forecast(
+        arr,
+        true_sky,
+        alts,
+        observation,
+        trials,
+        mode=mode,
+        seed=seed,
+        starts=starts,
+        true_name=true_name,
+        alt_names=alt_names,
+        progress=progress,
+        **corruption,
+    )
     return ForecastReport(record=out)
 
 
 # --------------------------------------------------------------------------- profile, jackknife
 
 
-def _fit_extras(out: dict, result: Any, profile: Optional[str], jackknife: Optional[str],
-                seed: int, redshift: float) -> None:
+def _fit_extras(
+    out: dict, result: Any, profile: Optional[str], jackknife: Optional[str], seed: int, redshift: float
+) -> None:
     """Add ``profile`` ({name: profile dict}) and ``jackknife`` to a fit's record, with one
     notice each."""
     if profile:
-        from .infer.profile import profile as run_profile, profile_note
+        from .infer.profile import profile as run_profile
+        from .infer.profile import profile_note
+
         prof = run_profile(result.statistic, profile, seed=seed, best=result, starts=3)
         out["profile"] = {profile: prof}
         out["notices"].append(profile_note(prof))
     if jackknife:
-        from .infer.jackknife import GROUPINGS, jackknife as run_jackknife
+        from .infer.jackknife import GROUPINGS
+        from .infer.jackknife import jackknife as run_jackknife
+
         if jackknife not in GROUPINGS:
             raise UvfitError(f"jackknife must be one of {', '.join(GROUPINGS)} (got {jackknife!r})")
         jk = run_jackknife(result.statistic, result, by=jackknife, seed=seed, redshift=redshift)
@@ -857,16 +1009,28 @@ class ProfileReport:
     def text(self) -> str:
         """The lines ``uvfit profile`` prints."""
         from .infer.profile import profile_note
+
         r = self.record
         rows = [f"{'value':>14} {'delta chi2':>12}"]
         rows += [f"{g:>14.6g} {c - r['chi2_min']:>12.4g}" for g, c in zip(r["grid"], r["chi2"])]
         return "\n".join(rows + ["", profile_note(r)])
 
 
-def profile(data: Data, model: Model, parameter: str, value_range: Optional[Sequence[float]] = None,
-            points: int = 21, mode: str = "complex", systematic: float = 0.0, starts: int = 3,
-            seed: int = 0, selection: Optional[dict] = None, progress: Progress = None,
-            data_path: Optional[str] = None, **options) -> ProfileReport:
+def profile(
+    data: Data,
+    model: Model,
+    parameter: str,
+    value_range: Optional[Sequence[float]] = None,
+    points: int = 21,
+    mode: str = "complex",
+    systematic: float = 0.0,
+    starts: int = 3,
+    seed: int = 0,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+    **options,
+) -> ProfileReport:
     """Profile likelihood of ``parameter`` (``component.parameter``): chi2 minimised over every
     other free parameter at ``points`` values in ``value_range`` (default: best fit +/- 5 formal
     errors inside the bounds); intervals at delta chi2 = 1 and 3.84 (Wilks 1938; Venzon &
@@ -878,10 +1042,17 @@ def profile(data: Data, model: Model, parameter: str, value_range: Optional[Sequ
     _check_at_least("points", points, 3)
     _check_at_least("starts", starts, 1)
     stat, best, notes = _fit_for(data, model, mode, systematic, starts, seed, selection, options)
-    out = run_profile(stat, parameter, value_range=value_range, points=points, starts=starts,
-                      seed=seed, best=best, progress=progress)
-    out.update({"mode": mode, "systematic": float(systematic), "selection": _given(selection),
-                "data": os.fspath(data) if _is_path(data) else data_path})
+    out = run_profile(
+        stat, parameter, value_range=value_range, points=points, starts=starts, seed=seed, best=best, progress=progress
+    )
+    out.update(
+        {
+            "mode": mode,
+            "systematic": float(systematic),
+            "selection": _given(selection),
+            "data": os.fspath(data) if _is_path(data) else data_path,
+        }
+    )
     return ProfileReport(record=out, notes=notes)
 
 
@@ -899,11 +1070,15 @@ class JackknifeReport:
     def text(self) -> str:
         """The table ``uvfit jackknife`` prints."""
         r = self.record
-        rows = [f"leave-one-{r['by']}-out: {r['n_fits']} of {r['n_groups']} refits ({r['groups_from']})",
-                f"{'quantity':<36} {'value':>12} {'formal':>10} {'jackknife':>10} {'ratio':>7}"]
+        rows = [
+            f"leave-one-{r['by']}-out: {r['n_fits']} of {r['n_groups']} refits ({r['groups_from']})",
+            f"{'quantity':<36} {'value':>12} {'formal':>10} {'jackknife':>10} {'ratio':>7}",
+        ]
         for key, e in {**r["parameters"], **r["derived"]}.items():
-            rows.append(f"{key:<36} {e['value']:>12.6g} {e['formal_error']:>10.3g} "
-                        f"{e['jackknife_error']:>10.3g} {e['ratio']:>7.3g}")
+            rows.append(
+                f"{key:<36} {e['value']:>12.6g} {e['formal_error']:>10.3g} "
+                f"{e['jackknife_error']:>10.3g} {e['ratio']:>7.3g}"
+            )
         rows.append("")
         rows += r["summary"]
         for g in r["groups"]:
@@ -912,26 +1087,62 @@ class JackknifeReport:
         return "\n".join(rows)
 
 
-def jackknife(data: Data, model: Model, by: str = "station", mode: str = "complex",
-              systematic: float = 0.0, starts: int = 1, seed: int = 0, redshift: float = 0.0,
-              selection: Optional[dict] = None, progress: Progress = None,
-              data_path: Optional[str] = None, **options) -> JackknifeReport:
+def jackknife(
+    data: Data,
+    model: Model,
+    by: str = "station",
+    mode: str = "complex",
+    systematic: float = 0.0,
+    starts: int = 1,
+    seed: int = 0,
+    redshift: float = 0.0,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+    **options,
+) -> JackknifeReport:
     """Refit with each station, scan or channel (``by``) left out; the jackknife error of every
     parameter and derived quantity beside the formal one (Efron & Tibshirani 1993, ch. 11). See
     :func:`uvfit.infer.jackknife.jackknife` for the keys of ``to_dict()``."""
-    from .infer.jackknife import GROUPINGS, jackknife as run_jackknife
+    from .infer.jackknife import GROUPINGS
+    from .infer.jackknife import jackknife as run_jackknife
 
     if by not in GROUPINGS:
         raise UvfitError(f"by must be one of {', '.join(GROUPINGS)} (got {by!r})")
     stat, best, notes = _fit_for(data, model, mode, systematic, starts, seed, selection, options)
-    out = run_jackknife(stat, best, by=by, redshift=redshift, seed=seed, starts=starts,
-                        progress=progress)
-    out.update({"mode": mode, "systematic": float(systematic), "selection": _given(selection),
-                "data": os.fspath(data) if _is_path(data) else data_path})
+    out = run_jackknife(stat, best, by=by, redshift=redshift, seed=seed, starts=starts, progress=progress)
+    out.update(
+        {
+            "mode": mode,
+            "systematic": float(systematic),
+            "selection": _given(selection),
+            "data": os.fspath(data) if _is_path(data) else data_path,
+        }
+    )
     return JackknifeReport(record=out, notes=notes)
 
 
-__all__ = ["fit", "sample", "compare", "closures", "info", "simulate", "forecast", "observation",
-           "load_data", "load_model_or_path", "summarise", "FitReport", "SampleReport",
-           "CompareReport", "ClosureReport", "InfoReport", "SimulationReport", "ForecastReport",
-           "profile", "jackknife", "ProfileReport", "JackknifeReport"]
+__all__ = [
+    "fit",
+    "sample",
+    "compare",
+    "closures",
+    "info",
+    "simulate",
+    "forecast",
+    "observation",
+    "load_data",
+    "load_model_or_path",
+    "summarise",
+    "FitReport",
+    "SampleReport",
+    "CompareReport",
+    "ClosureReport",
+    "InfoReport",
+    "SimulationReport",
+    "ForecastReport",
+    "profile",
+    "jackknife",
+    "ProfileReport",
+    "JackknifeReport",
+]

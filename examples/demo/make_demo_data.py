@@ -13,6 +13,7 @@ The observation: one 10 h track on 2023-10-12 from 02:00 UTC, one 64 MHz channel
 100 kB). Thermal noise only, from the radiometer equation with the array file's SEFDs: the data
 are perfectly calibrated, which real data never are.
 """
+
 import argparse
 import os
 import sys
@@ -28,8 +29,8 @@ OUT = os.path.join(ROOT, "uvfit", "demo_data", "uvd0917.uvfits")
 
 SEED = 917
 SOURCE = "UVD 0917+224"
-RA_DEG = 139.3          # 09h17m12s
-DEC_DEG = 22.4          # +22d24m
+RA_DEG = 139.3  # 09h17m12s
+DEC_DEG = 22.4  # +22d24m
 START_UTC = "2023-10-12T02:00:00"
 DURATION_S = 10 * 3600.0
 INTEGRATION_S = 600.0
@@ -45,10 +46,18 @@ def make(seed=SEED):
     from uvfit.sim.array import load_array
     from uvfit.sim.observe import Observation, simulate
 
-    obs = Observation(ra_deg=RA_DEG, dec_deg=DEC_DEG, start=Time(START_UTC, scale="utc"),
-                      duration_s=DURATION_S, integration_s=INTEGRATION_S,
-                      frequency_hz=FREQUENCY_HZ, bandwidth_hz=BANDWIDTH_HZ, channels=1,
-                      scan_length_s=INTEGRATION_S, source=SOURCE)
+    obs = Observation(
+        ra_deg=RA_DEG,
+        dec_deg=DEC_DEG,
+        start=Time(START_UTC, scale="utc"),
+        duration_s=DURATION_S,
+        integration_s=INTEGRATION_S,
+        frequency_hz=FREQUENCY_HZ,
+        bandwidth_hz=BANDWIDTH_HZ,
+        channels=1,
+        scan_length_s=INTEGRATION_S,
+        source=SOURCE,
+    )
     return simulate(load_array(ARRAY), load_model(TRUTH), obs, seed=seed)
 
 
@@ -67,9 +76,11 @@ def main(argv=None):
         print(f"make_demo_data: {exc}", file=sys.stderr)
         return 2
     s = layout.summary()
-    print(f"wrote {args.out}: {vset.n} visibilities, {s['baselines_with_data']} baselines, "
-          f"nominal resolution {s['nominal_resolution_uas'] / 1e3:.3g} mas, "
-          f"median sigma {1e3 * s['median_sigma_jy']:.3g} mJy, seed {SEED}")
+    print(
+        f"wrote {args.out}: {vset.n} visibilities, {s['baselines_with_data']} baselines, "
+        f"nominal resolution {s['nominal_resolution_uas'] / 1e3:.3g} mas, "
+        f"median sigma {1e3 * s['median_sigma_jy']:.3g} mJy, seed {SEED}"
+    )
     return 0
 
 

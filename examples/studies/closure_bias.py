@@ -10,6 +10,7 @@ thermal noise (sigma divided by ``snr-scale``) with its own seed, fits from the 
 (fitted - true) / error of the flux ratio and the separation. The outside reference is the truth
 of the simulation. Prints mean and standard deviation of the normalised errors per mode.
 """
+
 import argparse
 import json
 import os
@@ -27,14 +28,16 @@ def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--trials", type=int, default=60)
     ap.add_argument("--snr-scale", type=float, nargs="+", default=[1.0, 3.0])
-    ap.add_argument("--modes", nargs="+",
-                    default=["closure", "closure_phase", "closure_amplitude", "hybrid", "complex"])
+    ap.add_argument(
+        "--modes", nargs="+", default=["closure", "closure_phase", "closure_amplitude", "hybrid", "complex"]
+    )
     ap.add_argument("--reference", nargs="+", default=["neighbours", "measured"])
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--json", default=None)
     a = ap.parse_args(argv)
 
     import make_demo_data
+
     from uvfit import load_model
     from uvfit._blas import single_threaded
     from uvfit.infer.lsq import fit
@@ -71,11 +74,18 @@ def main(argv=None):
                         for n in names:
                             pulls[n].append((res.value(n) - true[n]) / res.error(n))
                     key = f"snr x{scale:g} {mode} {ref}"
-                    out[key] = {n: {"mean": float(np.mean(v)), "std": float(np.std(v, ddof=1)),
-                                    "n": len(v)} for n, v in pulls.items()}
-                    print(key.ljust(40), "  ".join(
-                        f"{n.split('.')[1]}: mean {out[key][n]['mean']:+.2f} sd {out[key][n]['std']:.2f}"
-                        for n in names), flush=True)
+                    out[key] = {
+                        n: {"mean": float(np.mean(v)), "std": float(np.std(v, ddof=1)), "n": len(v)}
+                        for n, v in pulls.items()
+                    }
+                    print(
+                        key.ljust(40),
+                        "  ".join(
+                            f"{n.split('.')[1]}: mean {out[key][n]['mean']:+.2f} sd {out[key][n]['std']:.2f}"
+                            for n in names
+                        ),
+                        flush=True,
+                    )
     if a.json:
         with open(a.json, "w") as fh:
             json.dump({"seed": a.seed, "trials": a.trials, "results": out}, fh, indent=1)

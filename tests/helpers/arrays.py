@@ -5,6 +5,7 @@ Every invented data set of the tests is made here: a helper computes (u, v), sta
 :func:`observe`, which evaluates the model, adds seeded complex Gaussian noise and builds the
 ``VisibilitySet``. Station names and sources are made up.
 """
+
 import numpy as np
 
 from uvfit.data.visset import VisibilitySet
@@ -16,8 +17,7 @@ def complex_noise(rng, n, sigma):
     return sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
 
 
-def observe(u, v, station1, station2, time, *, frequency, sigma, model=None, vis=None,
-            noise=None, rng=None, **extra):
+def observe(u, v, station1, station2, time, *, frequency, sigma, model=None, vis=None, noise=None, rng=None, **extra):
     """A VisibilitySet of invented rows.
 
     The visibilities are ``vis`` or, when it is None, ``model.visibilities(u, v)``; when ``noise``
@@ -33,9 +33,18 @@ def observe(u, v, station1, station2, time, *, frequency, sigma, model=None, vis
     if noise:
         vis = vis + complex_noise(rng, n, noise)
     sigma = np.full(n, float(sigma)) if np.ndim(sigma) == 0 else np.asarray(sigma, dtype=float)
-    return VisibilitySet(u=u, v=v, w=None, time=np.asarray(time, dtype=float), frequency=frequency,
-                         station1=np.asarray(station1), station2=np.asarray(station2), vis=vis,
-                         sigma=sigma, **extra)
+    return VisibilitySet(
+        u=u,
+        v=v,
+        w=None,
+        time=np.asarray(time, dtype=float),
+        frequency=frequency,
+        station1=np.asarray(station1),
+        station2=np.asarray(station2),
+        vis=vis,
+        sigma=sigma,
+        **extra,
+    )
 
 
 def all_pairs(n_stations):

@@ -1,4 +1,5 @@
 """Invented arrays and data for the closure tests (station names and source are made up)."""
+
 import numpy as np
 
 from uvfit.data.visset import StationTable
@@ -13,13 +14,11 @@ def invented_stations(n, seed=0):
     rng = np.random.default_rng(seed)
     lat = np.radians(rng.uniform(-40, 60, n))
     lon = np.radians(rng.uniform(-120, 30, n))
-    xyz = EARTH_RADIUS_M * np.stack([np.cos(lat) * np.cos(lon), np.cos(lat) * np.sin(lon),
-                                     np.sin(lat)], 1)
+    xyz = EARTH_RADIUS_M * np.stack([np.cos(lat) * np.cos(lon), np.cos(lat) * np.sin(lon), np.sin(lat)], 1)
     return [f"ST{i:02d}" for i in range(n)], xyz
 
 
-def tracks(xyz, names, n_times=20, dec_deg=-5.0, wavelength_m=1.3e-3, hours=8.0, seed=0,
-           swap_fraction=0.3):
+def tracks(xyz, names, n_times=20, dec_deg=-5.0, wavelength_m=1.3e-3, hours=8.0, seed=0, swap_fraction=0.3):
     """Rows (t, i, j, u, v) for every baseline at every time: (u, v) by Earth rotation (TMS 2017
     eq. 4.1, as quoted in REFERENCES.md); some baselines stored the other way round to test
     orientation."""
@@ -33,8 +32,7 @@ def tracks(xyz, names, n_times=20, dec_deg=-5.0, wavelength_m=1.3e-3, hours=8.0,
     return np.column_stack([t, i, j, u, v])
 
 
-def make_vset(model, n_stations=6, n_times=20, sigma=0.01, seed=0, gain_amp=0.0, gain_phase=False,
-              noise=True):
+def make_vset(model, n_stations=6, n_times=20, sigma=0.01, seed=0, gain_amp=0.0, gain_phase=False, noise=True):
     """A VisibilitySet of ``model`` on an invented array, with thermal noise and, optionally,
     station gains per time (amplitudes within 1 +/- gain_amp, phases uniform if gain_phase)."""
     rng = np.random.default_rng(seed)
@@ -50,6 +48,17 @@ def make_vset(model, n_stations=6, n_times=20, sigma=0.01, seed=0, gain_amp=0.0,
     if gain_phase:
         g = g * np.exp(1j * rng.uniform(-np.pi, np.pi, g.shape))
     vis = vis * g[t, a1] * np.conj(g[t, a2])
-    return observe(u, v, np.array(names)[a1], np.array(names)[a2], 60000.0 + t / 1440.0,
-                   frequency=230e9, sigma=sigma, vis=vis, noise=sigma if noise else None, rng=rng,
-                   stations=StationTable(names, xyz), source="INVENTED-1")
+    return observe(
+        u,
+        v,
+        np.array(names)[a1],
+        np.array(names)[a2],
+        60000.0 + t / 1440.0,
+        frequency=230e9,
+        sigma=sigma,
+        vis=vis,
+        noise=sigma if noise else None,
+        rng=rng,
+        stations=StationTable(names, xyz),
+        source="INVENTED-1",
+    )

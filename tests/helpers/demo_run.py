@@ -1,6 +1,7 @@
 """Run the README's demo command once per test session (shared by test_demo.py and
 test_readme.py, each of which wraps it in a module-scoped fixture; the cache below makes the
 second fixture free)."""
+
 import atexit
 import os
 import re

@@ -9,8 +9,14 @@ CENTRE = "{ value = 0.0, fixed = true }"
 
 def component(name, flux, shape="gaussian", east=CENTRE, north=CENTRE, **sizes):
     """One ``[[component]]`` table; values are written as Python prints them, strings as given."""
-    lines = ["[[component]]", f'name = "{name}"', f'shape = "{shape}"', f"flux = {flux}",
-             f"east = {east}", f"north = {north}"]
+    lines = [
+        "[[component]]",
+        f'name = "{name}"',
+        f'shape = "{shape}"',
+        f"flux = {flux}",
+        f"east = {east}",
+        f"north = {north}",
+    ]
     lines += [f"{key} = {value}" for key, value in sizes.items()]
     return "\n".join(lines) + "\n"
 

@@ -3,6 +3,7 @@
 The files are part of the repository, so a test that needs them never skips; a missing file is a
 broken checkout and fails loudly.
 """
+
 from pathlib import Path
 
 #: the folder of the two 3C 279 UVFITS files and their CSV exports

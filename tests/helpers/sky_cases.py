@@ -5,6 +5,7 @@ angles in radians; ratios as they are. Shapes listed here get hand-picked cases;
 registered shape gets a generic case built from its parameter kinds, so the harness covers every
 shape in ``uvfit.sky.shapes.SHAPES``.
 """
+
 import importlib
 
 import pytest
@@ -18,11 +19,23 @@ CASES = {
     "ring_modulated": [
         ({}, {"diameter": 1.0, "blur": 0.0, "amplitude_1": 0.3, "angle_1": 0.7}),
         ({}, {"diameter": 1.0, "blur": 0.15, "amplitude_1": 0.4, "angle_1": -2.2}),
-        ({"order": 2}, {"diameter": 0.9, "blur": 0.0, "amplitude_1": 0.2, "angle_1": 2.0,
-                        "amplitude_2": 0.25, "angle_2": -0.4}),
-        ({"order": 3}, {"diameter": 1.0, "blur": 0.1, "amplitude_1": 0.2, "angle_1": 0.7,
-                        "amplitude_2": 0.15, "angle_2": -2.0, "amplitude_3": 0.1,
-                        "angle_3": 2.5}),
+        (
+            {"order": 2},
+            {"diameter": 0.9, "blur": 0.0, "amplitude_1": 0.2, "angle_1": 2.0, "amplitude_2": 0.25, "angle_2": -0.4},
+        ),
+        (
+            {"order": 3},
+            {
+                "diameter": 1.0,
+                "blur": 0.1,
+                "amplitude_1": 0.2,
+                "angle_1": 0.7,
+                "amplitude_2": 0.15,
+                "angle_2": -2.0,
+                "amplitude_3": 0.1,
+                "angle_3": 2.5,
+            },
+        ),
     ],
     "shell": [({}, {"inner_radius": 0.3, "outer_radius": 0.5})],
     "thin_shell": [({}, {"radius": 0.5})],
@@ -30,12 +43,26 @@ CASES = {
     # a double of point members, and doubles whose members are the shapes above
     "double": [
         ({}, {"flux_ratio": 0.35, "separation": 0.8, "position_angle": 0.6}),
-        ({"member": "disk"}, {"flux_ratio": 0.5, "separation": 0.9, "position_angle": -2.0,
-                              "diameter_1": 0.6, "diameter_2": 0.4}),
-        ({"member": "ring_modulated"},
-         {"flux_ratio": 0.6, "separation": 0.9, "position_angle": 2.3,
-          "diameter_1": 0.6, "blur_1": 0.1, "amplitude_1_1": 0.3, "angle_1_1": 0.5,
-          "diameter_2": 0.4, "blur_2": 0.0, "amplitude_1_2": 0.2, "angle_1_2": -1.4}),
+        (
+            {"member": "disk"},
+            {"flux_ratio": 0.5, "separation": 0.9, "position_angle": -2.0, "diameter_1": 0.6, "diameter_2": 0.4},
+        ),
+        (
+            {"member": "ring_modulated"},
+            {
+                "flux_ratio": 0.6,
+                "separation": 0.9,
+                "position_angle": 2.3,
+                "diameter_1": 0.6,
+                "blur_1": 0.1,
+                "amplitude_1_1": 0.3,
+                "angle_1_1": 0.5,
+                "diameter_2": 0.4,
+                "blur_2": 0.0,
+                "amplitude_1_2": 0.2,
+                "angle_1_2": -1.4,
+            },
+        ),
     ],
 }
 
@@ -53,8 +80,10 @@ def importable(key):
     except ModuleNotFoundError as exc:
         if exc.name != module:
             raise
-        return False, (f"shape '{key}': module {module} is not on this branch yet (it is written "
-                       f"on another branch; this skip disappears once that branch is merged)")
+        return False, (
+            f"shape '{key}': module {module} is not on this branch yet (it is written "
+            f"on another branch; this skip disappears once that branch is merged)"
+        )
     return True, ""
 
 
@@ -88,8 +117,10 @@ def all_cases():
             for i, (settings, params) in enumerate(CASES[key]):
                 names = shape_class(key)(**settings).parameter_names()
                 if sorted(names) != sorted(params):
-                    raise AssertionError(f"test case {key}-{i} has parameters {sorted(params)} "
-                                         f"but the shape has {sorted(names)}: update CASES")
+                    raise AssertionError(
+                        f"test case {key}-{i} has parameters {sorted(params)} "
+                        f"but the shape has {sorted(names)}: update CASES"
+                    )
                 out.append((f"{key}-{i}", key, settings, params, ""))
         else:
             shape = shape_class(key)()

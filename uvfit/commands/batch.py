@@ -1,20 +1,36 @@
 """uvfit batch: run a manifest of fit or sample jobs on a Dask cluster."""
+
 import os
 
 import click
 
-from ._common import force_option, progressbar
 from ..outputs import atomic_write_with
+from ._common import force_option, progressbar
 
 
 @click.command("batch")
 @click.argument("manifest", type=click.Path(dir_okay=False))
-@click.option("--scheduler", default=None, metavar="ADDRESS",
-              help="Connect to a running Dask scheduler (tcp://HOST:PORT) instead of a local cluster.")
-@click.option("--workers", type=int, default=2, show_default=True,
-              help="Worker processes of the local cluster (ignored with --scheduler).")
-@click.option("-o", "--output", "output", default=None, metavar="RESULTS.ecsv",
-              help="Results table, one row per job (default: batch-results.ecsv beside the manifest).")
+@click.option(
+    "--scheduler",
+    default=None,
+    metavar="ADDRESS",
+    help="Connect to a running Dask scheduler (tcp://HOST:PORT) instead of a local cluster.",
+)
+@click.option(
+    "--workers",
+    type=int,
+    default=2,
+    show_default=True,
+    help="Worker processes of the local cluster (ignored with --scheduler).",
+)
+@click.option(
+    "-o",
+    "--output",
+    "output",
+    default=None,
+    metavar="RESULTS.ecsv",
+    help="Results table, one row per job (default: batch-results.ecsv beside the manifest).",
+)
 @force_option
 def command(manifest, scheduler, workers, output, force):
     """Fit many datasets: one Dask task per job of MANIFEST, results gathered into one table.
@@ -32,8 +48,11 @@ def command(manifest, scheduler, workers, output, force):
     rewrite = force or _is_own_table(output, manifest)
     if os.path.exists(output) and not rewrite:
         from ..errors import UvfitError
-        raise UvfitError(f"results table {output} exists and was not written by this manifest",
-                         "choose another -o, or pass --force to overwrite it")
+
+        raise UvfitError(
+            f"results table {output} exists and was not written by this manifest",
+            "choose another -o, or pass --force to overwrite it",
+        )
     with progressbar(len(jobs), "jobs") as bar:
         rows, n_run = run_batch(jobs, scheduler=scheduler, workers=workers, progress=bar.update)
     table = results_table(rows)
@@ -50,6 +69,7 @@ def _is_own_table(path, manifest):
         return False
     try:
         from astropy.table import Table
+
         meta = Table.read(path, format="ascii.ecsv").meta
     except Exception:
         return False

@@ -1,5 +1,6 @@
 """`uvfit closures DATA [--model FIT.json | MODEL.toml]`: closure phases and closure amplitudes of
 the data, and how well a model reproduces them (per triangle, quadrangle and station)."""
+
 import os
 
 import click
@@ -9,22 +10,50 @@ from ._common import echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("closures")
-@click.argument("data", type=click.Path(dir_okay=False))
-@click.option("--model", "model_path", default=None, metavar="FIT.json|MODEL.toml",
-              help="Compare the closures of this model (a fit result or a model file) with the data.")
-@click.option("--systematic", type=float, default=None, metavar="F",
-              help="Systematic floor: fraction of |V| added in quadrature to each visibility's sigma "
-                   "(default 0, or the fit's value when --model is a fit result).")
-@click.option("--snr-cut", type=float, default=3.0, show_default=True, metavar="X",
-              help="Use only visibilities with |V|/sigma of at least X.")
-@click.option("--full", is_flag=True, help="Every triangle and quadrangle (redundant) instead of a "
-                                           "non-redundant set per snapshot.")
-@click.option("--covariance", type=click.Choice(["snapshot", "diagonal"]), default=None,
-              help="Errors of the chi2 totals: full covariance within each snapshot (default for the "
-                   "non-redundant set) or diagonal (always for --full).")
+@click.argument("data", type=click.Path())
+@click.option(
+    "--model",
+    "model_path",
+    default=None,
+    metavar="FIT.json|MODEL.toml",
+    help="Compare the closures of this model (a fit result or a model file) with the data.",
+)
+@click.option(
+    "--systematic",
+    type=float,
+    default=None,
+    metavar="F",
+    help="Systematic floor: fraction of |V| added in quadrature to each visibility's sigma "
+    "(default 0, or the fit's value when --model is a fit result).",
+)
+@click.option(
+    "--snr-cut",
+    type=float,
+    default=3.0,
+    show_default=True,
+    metavar="X",
+    help="Use only visibilities with |V|/sigma of at least X.",
+)
+@click.option(
+    "--full",
+    is_flag=True,
+    help="Every triangle and quadrangle (redundant) instead of a non-redundant set per snapshot.",
+)
+@click.option(
+    "--covariance",
+    type=click.Choice(["snapshot", "diagonal"]),
+    default=None,
+    help="Errors of the chi2 totals: full covariance within each snapshot (default for the "
+    "non-redundant set) or diagonal (always for --full).",
+)
 @click.option("--json", "json_out", default=None, metavar="OUT", help="Also write the results as JSON.")
-@click.option("--table", "table_out", default=None, metavar="OUT.ecsv",
-              help="Write every closure quantity (time, stations, value, sigma, model) as ECSV.")
+@click.option(
+    "--table",
+    "table_out",
+    default=None,
+    metavar="OUT.ecsv",
+    help="Write every closure quantity (time, stations, value, sigma, model) as ECSV.",
+)
 @selection_options
 @force_option
 def command(data, model_path, systematic, snr_cut, full, covariance, json_out, table_out, force, **kwargs):
@@ -44,10 +73,14 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
         raise UvfitError("--json and --table name the same file", "give two different file names")
     selection = pop_selection(kwargs)
     if selection.get("average"):
-        click.echo("note: averaging gives every row of a time bin the bin's common time; closures "
-                   "are formed among rows with exactly the same time", err=True)
-    report = tasks.closures(data, model_path, systematic=systematic, snr_cut=snr_cut, full=full,
-                            covariance=covariance, selection=selection)
+        click.echo(
+            "note: averaging gives every row of a time bin the bin's common time; closures "
+            "are formed among rows with exactly the same time",
+            err=True,
+        )
+    report = tasks.closures(
+        data, model_path, systematic=systematic, snr_cut=snr_cut, full=full, covariance=covariance, selection=selection
+    )
     echo_notes(report.notes)
     click.echo(report.text())
     if json_out:

@@ -1,30 +1,46 @@
 """uvfit compare DATA MODEL_A MODEL_B [...]: which model do the data require?"""
+
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
 
 
 @click.command("compare")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("models", nargs=-1, required=True, type=click.Path(dir_okay=False))
-@click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
-              help="What is fitted (as for uvfit fit).")
-@click.option("--systematic", type=float, default=0.0, show_default=True,
-              help="Fraction of |V| added in quadrature to every sigma.")
+@click.option(
+    "--mode",
+    type=click.Choice(list(MODES)),
+    default="complex",
+    show_default=True,
+    help="What is fitted (as for uvfit fit).",
+)
+@click.option(
+    "--systematic",
+    type=float,
+    default=0.0,
+    show_default=True,
+    help="Fraction of |V| added in quadrature to every sigma.",
+)
 @click.option("--starts", type=int, default=1, show_default=True, help="Starts of each model's fit to the data.")
-@click.option("--bootstrap", type=int, default=0, show_default=True,
-              help="Simulated data sets for the false-alarm probability of each richer model.")
-@click.option("--json", "json_out", type=click.Path(dir_okay=False), default=None,
-              help="Write the comparison as JSON here.")
-@click.option("--rescale-errors", is_flag=True,
-              help="Multiply every sigma by sqrt(chi2/dof) of the richest model's fit first.")
+@click.option(
+    "--bootstrap",
+    type=int,
+    default=0,
+    show_default=True,
+    help="Simulated data sets for the false-alarm probability of each richer model.",
+)
+@click.option(
+    "--json", "json_out", type=click.Path(dir_okay=False), default=None, help="Write the comparison as JSON here."
+)
+@click.option(
+    "--rescale-errors", is_flag=True, help="Multiply every sigma by sqrt(chi2/dof) of the richest model's fit first."
+)
 @seed_option
 @force_option
 @selection_options
-def command(data, models, mode, systematic, starts, bootstrap, json_out, rescale_errors, seed, force,
-            **kwargs):
+def command(data, models, mode, systematic, starts, bootstrap, json_out, rescale_errors, seed, force, **kwargs):
     """Fit two or more MODELS to DATA and say whether the richer ones are required.
 
     Reports chi2, AIC and BIC of each model and, against the model with the fewest free
@@ -40,8 +56,15 @@ def command(data, models, mode, systematic, starts, bootstrap, json_out, rescale
     selection = pop_selection(kwargs)
     if json_out:
         check_writable(json_out, force)
-    options = dict(mode=mode, systematic=systematic, starts=starts, bootstrap=bootstrap, seed=seed,
-                   selection=selection, rescale_errors=rescale_errors)
+    options = dict(
+        mode=mode,
+        systematic=systematic,
+        starts=starts,
+        bootstrap=bootstrap,
+        seed=seed,
+        selection=selection,
+        rescale_errors=rescale_errors,
+    )
     with as_options(bootstrap="--bootstrap"):
         if bootstrap > 0:
             with progressbar(bootstrap, "bootstrap") as bar:

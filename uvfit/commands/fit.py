@@ -1,43 +1,107 @@
 """uvfit fit DATA MODEL: least-squares fit of a sky model, with errors and derived quantities."""
+
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
 
 
 @click.command("fit")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", type=click.Path())
 @click.argument("model", type=click.Path(dir_okay=False))
-@click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
-              help="What is fitted: " + "; ".join(f"{k}: {v[2]}" for k, v in MODES.items()) + ".")
-@click.option("--systematic", type=float, default=0.0, show_default=True,
-              help="Fraction of |V| added in quadrature to every sigma (e.g. 0.02).")
-@click.option("--rescale-errors", is_flag=True,
-              help="Scale the errors by sqrt(chi2/dof), as if the sigmas gave a reduced chi2 of 1.")
-@click.option("--starts", type=int, default=1, show_default=True,
-              help="Number of starts: the model's values, then random ones inside the bounds.")
-@click.option("--global-search", is_flag=True,
-              help="Search chi2 globally inside the bounds first (needs a finite min and max everywhere).")
-@click.option("--redshift", type=float, default=0.0, show_default=True,
-              help="Source redshift, for rest-frame brightness temperatures.")
-@click.option("--max-evaluations", type=int, default=None,
-              help="Most model evaluations per start (default 200 x (free parameters + 1)).")
+@click.option(
+    "--mode",
+    type=click.Choice(list(MODES)),
+    default="complex",
+    show_default=True,
+    help="What is fitted: " + "; ".join(f"{k}: {v[2]}" for k, v in MODES.items()) + ".",
+)
+@click.option(
+    "--systematic",
+    type=float,
+    default=0.0,
+    show_default=True,
+    help="Fraction of |V| added in quadrature to every sigma (e.g. 0.02).",
+)
+@click.option(
+    "--rescale-errors",
+    is_flag=True,
+    help="Scale the errors by sqrt(chi2/dof), as if the sigmas gave a reduced chi2 of 1.",
+)
+@click.option(
+    "--starts",
+    type=int,
+    default=1,
+    show_default=True,
+    help="Number of starts: the model's values, then random ones inside the bounds.",
+)
+@click.option(
+    "--global-search",
+    is_flag=True,
+    help="Search chi2 globally inside the bounds first (needs a finite min and max everywhere).",
+)
+@click.option(
+    "--redshift",
+    type=float,
+    default=0.0,
+    show_default=True,
+    help="Source redshift, for rest-frame brightness temperatures.",
+)
+@click.option(
+    "--max-evaluations",
+    type=int,
+    default=None,
+    help="Most model evaluations per start (default 200 x (free parameters + 1)).",
+)
 @click.option("--no-resolved-test", is_flag=True, help="Skip the refits that test whether each component is resolved.")
-@click.option("--json", "json_out", type=click.Path(dir_okay=False), default=None,
-              help="Write the full result as JSON here.")
-@click.option("--save-model", type=click.Path(dir_okay=False), default=None,
-              help="Write the best-fit model (TOML) here.")
-@click.option("--profile", "profile_name", default=None, metavar="NAME",
-              help="Add the profile-likelihood interval of this free parameter (component.parameter).")
-@click.option("--jackknife", type=click.Choice(["station", "scan", "channel"]), default=None,
-              help="Add refits with each station, scan or channel left out, and their jackknife errors.")
+@click.option(
+    "--json", "json_out", type=click.Path(dir_okay=False), default=None, help="Write the full result as JSON here."
+)
+@click.option(
+    "--save-model", type=click.Path(dir_okay=False), default=None, help="Write the best-fit model (TOML) here."
+)
+@click.option(
+    "--profile",
+    "profile_name",
+    default=None,
+    metavar="NAME",
+    help="Add the profile-likelihood interval of this free parameter (component.parameter).",
+)
+@click.option(
+    "--jackknife",
+    type=click.Choice(["station", "scan", "channel"]),
+    default=None,
+    help="Add refits with each station, scan or channel left out, and their jackknife errors.",
+)
+@click.option(
+    "--write-model-column",
+    is_flag=True,
+    help="Write the best-fit model visibilities into the Measurement Set's MODEL_DATA column "
+    "(created if absent; DATA is never touched).",
+)
 @seed_option
 @force_option
 @selection_options
-def command(data, model, mode, systematic, rescale_errors, starts, global_search, redshift,
-            max_evaluations, no_resolved_test, json_out, save_model, profile_name, jackknife, seed,
-            force, **kwargs):
+def command(
+    data,
+    model,
+    mode,
+    systematic,
+    rescale_errors,
+    starts,
+    global_search,
+    redshift,
+    max_evaluations,
+    no_resolved_test,
+    json_out,
+    save_model,
+    profile_name,
+    jackknife,
+    seed,
+    force,
+    write_model_column=False,
+    **kwargs,
+):
     """Fit MODEL (a TOML model file) to the visibilities in DATA by least squares.
 
     Prints every parameter with its error, the derived quantities (separations, position angles,
@@ -48,15 +112,35 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     from ..outputs import atomic_write, check_writable, write_json
 
     selection = pop_selection(kwargs)
+    if write_model_column:
+        from ..data.ms import check_model_column_writable
+
+        check_model_column_writable(data)
     for path in (json_out, save_model):
         if path:
             check_writable(path, force)
-    options = dict(mode=mode, systematic=systematic, rescale_errors=rescale_errors, starts=starts,
-                   seed=seed, global_search=global_search, redshift=redshift,
-                   selection=selection, resolved_test=not no_resolved_test,
-                   max_evaluations=max_evaluations, profile=profile_name, jackknife=jackknife)
+    options = dict(
+        mode=mode,
+        systematic=systematic,
+        rescale_errors=rescale_errors,
+        starts=starts,
+        seed=seed,
+        global_search=global_search,
+        redshift=redshift,
+        selection=selection,
+        resolved_test=not no_resolved_test,
+        max_evaluations=max_evaluations,
+        profile=profile_name,
+        jackknife=jackknife,
+    )
     total = starts + (1 if global_search else 0)
-    with as_options(max_evaluations="--max-evaluations", jackknife="--jackknife"):
+    with as_options(
+        max_evaluations="--max-evaluations",
+        jackknife="--jackknife",
+        starts="--starts",
+        global_search="--global-search",
+        rescale_errors="--rescale-errors",
+    ):
         if total > 1:
             with progressbar(total, "fitting") as bar:
                 report = tasks.fit(data, model, progress=bar.update, **options)
@@ -71,3 +155,13 @@ def command(data, model, mode, systematic, rescale_errors, starts, global_search
     if save_model:
         atomic_write(save_model, out["model_toml"], force=force)
         click.echo(f"wrote {save_model}", err=True)
+    if write_model_column:
+        from ..data.ms import write_model_column as write_column
+        from ..sky.modelfile import loads
+
+        done = write_column(data, loads(out["model_toml"]), field=selection.get("field"), spw=selection.get("spw"))
+        click.echo(
+            f"wrote the best-fit model into {done['column']} of {data} ({done['rows_written']} of "
+            f"{done['rows_total']} rows{'; column created' if done['created'] else ''})",
+            err=True,
+        )

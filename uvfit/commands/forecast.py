@@ -1,9 +1,11 @@
 """uvfit forecast: repeated simulations and fits, to see whether an array can tell models apart."""
+
 import click
 
 from ..stats.modes import MODES
 from ._common import as_options, force_option, progressbar, seed_option
 from ._observation import observation_options, pop_observation
+
 
 @click.command("forecast")
 @click.argument("array_file", metavar="ARRAY", type=click.Path(dir_okay=False))
@@ -11,11 +13,21 @@ from ._observation import observation_options, pop_observation
 @click.argument("alt_files", metavar="MODEL_ALT...", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @observation_options
 @click.option("--trials", type=int, default=20, show_default=True, help="Number of simulated data sets.")
-@click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
-              help="Statistic the fits use (a closure mode when there are gain errors).")
+@click.option(
+    "--mode",
+    type=click.Choice(list(MODES)),
+    default="complex",
+    show_default=True,
+    help="Statistic the fits use (a closure mode when there are gain errors).",
+)
 @click.option("--starts", type=int, default=1, show_default=True, help="Fit starts per model and trial.")
-@click.option("--json", "json_path", default=None, type=click.Path(dir_okay=False),
-              help="Write the forecast (all numbers, per trial, seeds) as JSON here.")
+@click.option(
+    "--json",
+    "json_path",
+    default=None,
+    type=click.Path(dir_okay=False),
+    help="Write the forecast (all numbers, per trial, seeds) as JSON here.",
+)
 @seed_option
 @force_option
 def command(array_file, true_file, alt_files, trials, mode, starts, json_path, seed, force, **kwargs):
@@ -34,9 +46,18 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     with as_options(trials="--trials"):
         tasks.check_forecast_options(trials=trials)
     with progressbar(trials, "forecast trials") as bar:
-        report = tasks.forecast(array_file, true_file, list(alt_files), observation, trials=trials,
-                                mode=mode, seed=seed, starts=starts, progress=bar.update,
-                                **corruption)
+        report = tasks.forecast(
+            array_file,
+            true_file,
+            list(alt_files),
+            observation,
+            trials=trials,
+            mode=mode,
+            seed=seed,
+            starts=starts,
+            progress=bar.update,
+            **corruption,
+        )
     if report.notice:
         click.echo(report.notice, err=True)
     click.echo(report.text())

@@ -1,12 +1,19 @@
 """`uvfit info DATA`: what a visibility file holds, at a glance (and as JSON with --json)."""
+
 import click
 
 from ._common import echo_notes, force_option, pop_selection, selection_options
 
+
 @click.command("info")
-@click.argument("data", type=click.Path(dir_okay=False))
-@click.option("--json", "json_out", default=None, metavar="OUT",
-              help="Also write the summary as JSON to OUT ('-' writes the JSON to stdout instead of the table).")
+@click.argument("data", type=click.Path())
+@click.option(
+    "--json",
+    "json_out",
+    default=None,
+    metavar="OUT",
+    help="Also write the summary as JSON to OUT ('-' writes the JSON to stdout instead of the table).",
+)
 @selection_options
 @force_option
 def command(data, json_out, force, **kwargs):

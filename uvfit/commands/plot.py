@@ -1,4 +1,5 @@
 """uvfit plot: one figure of a fit (radial, uv, closure, sky) written as a PNG."""
+
 import click
 
 from ..show.figures import KINDS
@@ -6,19 +7,39 @@ from ._common import echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("plot")
-@click.argument("data", type=click.Path(dir_okay=False))
-@click.option("--fit", "fit_path", required=True, type=click.Path(dir_okay=False),
-              help="Fit output written by 'uvfit fit --json'; its model is drawn.")
-@click.option("--kind", required=True, type=click.Choice(list(KINDS)),
-              help="; ".join(f"{k}: {v}" for k, v in KINDS.items()) + ".")
-@click.option("--colour-by", type=click.Choice(["baseline", "time"]), default="baseline",
-              show_default=True, help="Colouring of the (u, v) coverage.")
-@click.option("--panels", type=click.IntRange(1, 12), default=6, show_default=True,
-              help="Number of closure-phase triangles shown (the most informative first).")
-@click.option("-o", "--out", "out", required=True, type=click.Path(dir_okay=False),
-              help="PNG file to write.")
-@click.option("--numbers", "numbers_path", default=None, type=click.Path(dir_okay=False),
-              help="Also write the numbers behind the figure as JSON.")
+@click.argument("data", type=click.Path())
+@click.option(
+    "--fit",
+    "fit_path",
+    required=True,
+    type=click.Path(dir_okay=False),
+    help="Fit output written by 'uvfit fit --json'; its model is drawn.",
+)
+@click.option(
+    "--kind", required=True, type=click.Choice(list(KINDS)), help="; ".join(f"{k}: {v}" for k, v in KINDS.items()) + "."
+)
+@click.option(
+    "--colour-by",
+    type=click.Choice(["baseline", "time"]),
+    default="baseline",
+    show_default=True,
+    help="Colouring of the (u, v) coverage.",
+)
+@click.option(
+    "--panels",
+    type=click.IntRange(1, 12),
+    default=6,
+    show_default=True,
+    help="Number of closure-phase triangles shown (the most informative first).",
+)
+@click.option("-o", "--out", "out", required=True, type=click.Path(dir_okay=False), help="PNG file to write.")
+@click.option(
+    "--numbers",
+    "numbers_path",
+    default=None,
+    type=click.Path(dir_okay=False),
+    help="Also write the numbers behind the figure as JSON.",
+)
 @force_option
 @selection_options
 def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, **kwargs):
@@ -46,6 +67,9 @@ def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, *
         style.close(fig)
     click.echo(f"wrote {out}")
     if numbers_path:
-        write_json(numbers_path, {"kind": kind, "data": str(data), "fit": str(fit_path),
-                                  "selection": view.selection, **numbers}, force=force)
+        write_json(
+            numbers_path,
+            {"kind": kind, "data": str(data), "fit": str(fit_path), "selection": view.selection, **numbers},
+            force=force,
+        )
         click.echo(f"wrote {numbers_path}")

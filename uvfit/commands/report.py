@@ -1,21 +1,41 @@
 """uvfit report: one self-contained HTML page of a fit, its checks, figures and cautions."""
+
 import click
 
 from ._common import echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("report")
-@click.argument("data", type=click.Path(dir_okay=False))
-@click.option("--fit", "fit_path", required=True, type=click.Path(dir_okay=False),
-              help="Fit output written by 'uvfit fit --json'.")
-@click.option("--posterior", "posterior_path", default=None, type=click.Path(dir_okay=False),
-              help="Posterior summary written by 'uvfit sample --json'.")
-@click.option("--chain", "chain_path", default=None, type=click.Path(dir_okay=False),
-              help="HDF5 chain written by 'uvfit sample'; adds a corner plot.")
-@click.option("--compare", "compare_path", default=None, type=click.Path(dir_okay=False),
-              help="Model comparison written by 'uvfit compare --json'.")
-@click.option("-o", "--out", "out", required=True, type=click.Path(dir_okay=False),
-              help="HTML file to write.")
+@click.argument("data", type=click.Path())
+@click.option(
+    "--fit",
+    "fit_path",
+    required=True,
+    type=click.Path(dir_okay=False),
+    help="Fit output written by 'uvfit fit --json'.",
+)
+@click.option(
+    "--posterior",
+    "posterior_path",
+    default=None,
+    type=click.Path(dir_okay=False),
+    help="Posterior summary written by 'uvfit sample --json'.",
+)
+@click.option(
+    "--chain",
+    "chain_path",
+    default=None,
+    type=click.Path(dir_okay=False),
+    help="HDF5 chain written by 'uvfit sample'; adds a corner plot.",
+)
+@click.option(
+    "--compare",
+    "compare_path",
+    default=None,
+    type=click.Path(dir_okay=False),
+    help="Model comparison written by 'uvfit compare --json'.",
+)
+@click.option("-o", "--out", "out", required=True, type=click.Path(dir_okay=False), help="HTML file to write.")
 @force_option
 @selection_options
 def command(data, fit_path, posterior_path, chain_path, compare_path, out, force, **kwargs):
@@ -45,7 +65,13 @@ def command(data, fit_path, posterior_path, chain_path, compare_path, out, force
     if chain is not None:
         chain = readback.order_chain(chain, view.model, posterior)
     check = run_closure_check(view)
-    page = build_report(view, closure_check=check, posterior=posterior, chain=chain,
-                        compare=compare, data_name=os.path.basename(str(data)))
+    page = build_report(
+        view,
+        closure_check=check,
+        posterior=posterior,
+        chain=chain,
+        compare=compare,
+        data_name=os.path.basename(str(data)),
+    )
     atomic_write(out, page, force=force)
     click.echo(f"wrote {out}")

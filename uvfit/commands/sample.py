@@ -1,46 +1,109 @@
 """uvfit sample: posterior distributions of a model's parameters by ensemble MCMC."""
+
 import click
 
 from ..stats.modes import MODES
-from ._common import (as_options, echo_notes, force_option, pop_selection, progressbar, seed_option,
-                      selection_options)
+from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
 
 
 @click.command("sample")
 @click.argument("data")
 @click.argument("model")
-@click.option("--mode", type=click.Choice(list(MODES)), default="complex", show_default=True,
-              help="Which quantities the likelihood compares.")
-@click.option("--systematic", type=float, default=0.0, show_default=True, metavar="F",
-              help="Fraction of |V| added in quadrature to every sigma.")
-@click.option("--walkers", type=int, default=None, metavar="N",
-              help="Number of walkers (default max(32, 4 x free parameters); taken from the chain on --resume).")
-@click.option("--max-steps", type=int, default=5000, show_default=True, metavar="N",
-              help="Longest chain (steps per walker, counting steps already in a resumed chain).")
+@click.option(
+    "--mode",
+    type=click.Choice(list(MODES)),
+    default="complex",
+    show_default=True,
+    help="Which quantities the likelihood compares.",
+)
+@click.option(
+    "--systematic",
+    type=float,
+    default=0.0,
+    show_default=True,
+    metavar="F",
+    help="Fraction of |V| added in quadrature to every sigma.",
+)
+@click.option(
+    "--walkers",
+    type=int,
+    default=None,
+    metavar="N",
+    help="Number of walkers (default max(32, 4 x free parameters); taken from the chain on --resume).",
+)
+@click.option(
+    "--max-steps",
+    type=int,
+    default=5000,
+    show_default=True,
+    metavar="N",
+    help="Longest chain (steps per walker, counting steps already in a resumed chain).",
+)
 @seed_option
-@click.option("--procs", type=int, default=1, show_default=True, metavar="N",
-              help="Evaluate the walkers in N processes.")
-@click.option("--chain", "chain_path", default=None, metavar="OUT.h5",
-              help="Keep the chain in this HDF5 file (needed for --resume).")
+@click.option(
+    "--procs", type=int, default=1, show_default=True, metavar="N", help="Evaluate the walkers in N processes."
+)
+@click.option(
+    "--chain",
+    "chain_path",
+    default=None,
+    metavar="OUT.h5",
+    help="Keep the chain in this HDF5 file (needed for --resume).",
+)
 @click.option("--resume", is_flag=True, help="Continue the chain in --chain where it stopped.")
-@click.option("--corner", "corner_path", default=None, metavar="OUT.png",
-              help="Write a corner plot of the free parameters.")
-@click.option("--json", "json_path", default=None, metavar="OUT.json",
-              help="Write the posterior summaries as JSON.")
-@click.option("--order-by", type=click.Choice(["flux", "distance"]), default="flux", show_default=True,
-              help="Label components of the same shape in every sample by flux (brightest first) "
-                   "or by distance from the phase centre (nearest first).")
-@click.option("--starts", type=int, default=1, show_default=True, metavar="N",
-              help="Least-squares starts for the point the walkers start from (the first at the "
-                   "model file's values, the others random, seeded).")
-@click.option("--redshift", type=float, default=0.0, show_default=True,
-              help="Redshift for the rest-frame brightness temperatures.")
-@click.option("--rescale-errors", is_flag=True,
-              help="Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first.")
+@click.option(
+    "--corner", "corner_path", default=None, metavar="OUT.png", help="Write a corner plot of the free parameters."
+)
+@click.option("--json", "json_path", default=None, metavar="OUT.json", help="Write the posterior summaries as JSON.")
+@click.option(
+    "--order-by",
+    type=click.Choice(["flux", "distance"]),
+    default="flux",
+    show_default=True,
+    help="Label components of the same shape in every sample by flux (brightest first) "
+    "or by distance from the phase centre (nearest first).",
+)
+@click.option(
+    "--starts",
+    type=int,
+    default=1,
+    show_default=True,
+    metavar="N",
+    help="Least-squares starts for the point the walkers start from (the first at the "
+    "model file's values, the others random, seeded).",
+)
+@click.option(
+    "--redshift",
+    type=float,
+    default=0.0,
+    show_default=True,
+    help="Redshift for the rest-frame brightness temperatures.",
+)
+@click.option(
+    "--rescale-errors", is_flag=True, help="Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first."
+)
 @force_option
 @selection_options
-def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chain_path, resume,
-            corner_path, json_path, order_by, starts, redshift, rescale_errors, force, **kwargs):
+def command(
+    data,
+    model,
+    mode,
+    systematic,
+    walkers,
+    max_steps,
+    seed,
+    procs,
+    chain_path,
+    resume,
+    corner_path,
+    json_path,
+    order_by,
+    starts,
+    redshift,
+    rescale_errors,
+    force,
+    **kwargs,
+):
     """Sample the posterior of MODEL's free parameters given the visibilities in DATA.
 
     The chain starts at the least-squares best fit and stops when the autocorrelation time has
@@ -56,8 +119,7 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
     selection = pop_selection(kwargs)
     names = dict(procs="--procs", walkers="--walkers", max_steps="--max-steps", order_by="--order-by")
     with as_options(**names):
-        tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps,
-                                   order_by=order_by)
+        tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
     # refuse early, before any long work, whatever would be refused at the end
     for path in (json_path, corner_path):
         if path is not None:
@@ -72,11 +134,25 @@ def command(data, model, mode, systematic, walkers, max_steps, seed, procs, chai
             bar.update(done - state["done"])
             state["done"] = done
 
-        report = tasks.sample(data, model, mode=mode, systematic=systematic, walkers=walkers,
-                              max_steps=max_steps, seed=seed, procs=procs, chain=chain_path,
-                              resume=resume, force=force, order_by=order_by, progress=progress,
-                              starts=starts, redshift=redshift, selection=selection,
-                              rescale_errors=rescale_errors)
+        report = tasks.sample(
+            data,
+            model,
+            mode=mode,
+            systematic=systematic,
+            walkers=walkers,
+            max_steps=max_steps,
+            seed=seed,
+            procs=procs,
+            chain=chain_path,
+            resume=resume,
+            force=force,
+            order_by=order_by,
+            progress=progress,
+            starts=starts,
+            redshift=redshift,
+            selection=selection,
+            rescale_errors=rescale_errors,
+        )
     echo_notes(report.notes)
     echo_notes(report.posterior.notes, prefix="note: ")
     click.echo(report.text())

@@ -1,4 +1,5 @@
 """uvfit simulate: a sky model observed by an array, with thermal noise and optional gain errors."""
+
 import click
 
 from ._common import force_option, seed_option
@@ -10,10 +11,12 @@ from ._observation import observation_options, pop_observation
 @click.argument("model_file", metavar="MODEL", type=click.Path(dir_okay=False))
 @observation_options
 @click.option("--no-noise", is_flag=True, help="Leave out the thermal noise (sigmas are still set).")
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
-              help="Output visibility file; .uvfits or .ecsv.")
-@click.option("--json", "json_path", default=None, type=click.Path(dir_okay=False),
-              help="Also write the summary as JSON here.")
+@click.option(
+    "-o", "--output", required=True, type=click.Path(dir_okay=False), help="Output visibility file; .uvfits or .ecsv."
+)
+@click.option(
+    "--json", "json_path", default=None, type=click.Path(dir_okay=False), help="Also write the summary as JSON here."
+)
 @seed_option
 @force_option
 def command(array_file, model_file, output, json_path, seed, force, no_noise, **kwargs):
@@ -32,8 +35,9 @@ def command(array_file, model_file, output, json_path, seed, force, no_noise, **
     check_writable(output, force)
     if json_path:
         check_writable(json_path, force)
-    report = tasks.simulate(array_file, model_file, observation, seed=seed, noise=not no_noise,
-                            output=output, **corruption)
+    report = tasks.simulate(
+        array_file, model_file, observation, seed=seed, noise=not no_noise, output=output, **corruption
+    )
     write_simulation(report.vset, output, force=force)
     if report.notice:
         click.echo(report.notice, err=True)

@@ -14,6 +14,7 @@ structure out to a field radius (Thompson, Moran & Swenson 2017, ch. 6, from mem
 The worst case uses the longest baseline in the set. These are upper limits on the loss for a
 linear phase run; a real source loses less where its emission is closer to the phase centre.
 """
+
 import numpy as np
 
 from ..errors import DataError
@@ -33,8 +34,12 @@ def time_smearing_loss(seconds, field_radius_rad, uv_distance):
 
 def bandwidth_smearing_loss(bandwidth_hz, frequency_hz, field_radius_rad, uv_distance):
     """Fractional amplitude loss 1 - sinc((dnu/nu) * theta * q) (see module docstring)."""
-    x = (np.asarray(bandwidth_hz, float) / np.asarray(frequency_hz, float)
-         * np.asarray(field_radius_rad, float) * np.asarray(uv_distance, float))
+    x = (
+        np.asarray(bandwidth_hz, float)
+        / np.asarray(frequency_hz, float)
+        * np.asarray(field_radius_rad, float)
+        * np.asarray(uv_distance, float)
+    )
     return 1.0 - np.sinc(x)
 
 
@@ -49,6 +54,7 @@ def _radius_for_loss(loss, rate):
     if rate <= 0:
         return float("inf")
     from scipy.optimize import brentq
+
     x = brentq(lambda x: 1.0 - np.sinc(x) - loss, 1e-12, 1.0)
     return x / rate
 
@@ -69,7 +75,7 @@ def _weighted_groups(vset, keys):
     """Group the rows by the integer key columns; returns (inverse, n_groups, sum of weights)."""
     uniq, inv = np.unique(keys, axis=0, return_inverse=True)
     inv = inv.reshape(-1)
-    weight = 1.0 / vset.sigma ** 2
+    weight = 1.0 / vset.sigma**2
     wsum = np.bincount(inv, weights=weight, minlength=len(uniq))
     return inv, len(uniq), weight, wsum
 
@@ -93,12 +99,27 @@ def _reduce(vset, inv, n_groups, weight, wsum, new_channel):
     first = np.full(n_groups, vset.n, int)
     np.minimum.at(first, inv, np.arange(vset.n))
     from .visset import VisibilitySet
+
     out = VisibilitySet(
-        u=mean(vset.u), v=mean(vset.v), w=mean(vset.w), time=mean(vset.time),
-        frequency=frequency, station1=vset.station1[first], station2=vset.station2[first],
-        vis=vis, sigma=1.0 / np.sqrt(wsum), flag=np.zeros(n_groups, bool), channel=new_channel[first],
-        integration=np.where(n_known == count, integ_sum, np.nan), stations=vset.stations,
-        source=vset.source, ra_deg=vset.ra_deg, dec_deg=vset.dec_deg, meta=dict(vset.meta))
+        u=mean(vset.u),
+        v=mean(vset.v),
+        w=mean(vset.w),
+        time=mean(vset.time),
+        frequency=frequency,
+        station1=vset.station1[first],
+        station2=vset.station2[first],
+        vis=vis,
+        sigma=1.0 / np.sqrt(wsum),
+        flag=np.zeros(n_groups, bool),
+        channel=new_channel[first],
+        integration=np.where(n_known == count, integ_sum, np.nan),
+        scan=vset.scan[first],
+        stations=vset.stations,
+        source=vset.source,
+        ra_deg=vset.ra_deg,
+        dec_deg=vset.dec_deg,
+        meta=dict(vset.meta),
+    )
     return out, count
 
 
@@ -125,15 +146,17 @@ def average_time(vset, seconds, field_radius=None):
     if good.n == 0:
         raise DataError("nothing to average: every row is flagged")
     t_s = (good.time - good.time.min()) * _SECONDS_PER_DAY
-    bins = np.floor((t_s + 1e-5) / seconds).astype(np.int64)   # 10 us: MJD rounding
-    keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel])
+    bins = np.floor((t_s + 1e-5) / seconds).astype(np.int64)  # 10 us: MJD rounding
+    # the scan number last: bins never mix scans (a constant -1 where the file has no scans
+    # leaves the grouping as it was)
+    keys = np.column_stack([bins, _codes(good.station1), _codes(good.station2), good.channel, good.scan])
     inv, n_groups, weight, wsum = _weighted_groups(good, keys)
     out, count = _reduce(good, inv, n_groups, weight, wsum, good.channel)
     # Every row of one bin gets the bin's common time stamp (the mean time of all rows in it), so
     # that baselines averaged together stay simultaneous and closures can still be formed. The
     # (u, v, w) of each row remain its own baseline's weighted means.
     _, bin_index = np.unique(bins, return_inverse=True)
-    t0 = good.time.min()   # sum offsets, not MJDs, to keep the precision of the stamp
+    t0 = good.time.min()  # sum offsets, not MJDs, to keep the precision of the stamp
     bin_time = t0 + np.bincount(bin_index, weights=good.time - t0) / np.bincount(bin_index)
     group_bin = np.zeros(n_groups, dtype=np.int64)
     group_bin[inv] = bin_index
@@ -144,15 +167,25 @@ def average_time(vset, seconds, field_radius=None):
     qmax = float(good.uv_distance.max())
     loss = float(time_smearing_loss(seconds, radius, qmax))
     r1 = _radius_for_loss(0.01, OMEGA_EARTH * seconds * qmax)
-    note = (f"averaged {good.n} rows into {out.n} in {seconds:g} s bins per baseline and channel "
-            f"(up to {int(count.max())} rows each); worst-case time smearing: {100 * loss:.3g}% amplitude "
-            f"loss at {_fmt_angle(radius)} from the phase centre on the longest baseline "
-            f"({qmax:.4g} wavelengths); below 1% within {_fmt_angle(r1)}. Coherent averaging assumes "
-            "steady phases over each bin")
-    report = {"kind": "time", "seconds": seconds, "n_in": int(good.n), "n_out": int(out.n),
-              "n_flagged_dropped": int(vset.n - good.n), "field_radius_rad": radius,
-              "uv_max_lambda": qmax, "smearing_loss": loss, "radius_for_1pct_loss_rad": r1,
-              "note": note}
+    note = (
+        f"averaged {good.n} rows into {out.n} in {seconds:g} s bins per baseline and channel "
+        f"(up to {int(count.max())} rows each); worst-case time smearing: {100 * loss:.3g}% amplitude "
+        f"loss at {_fmt_angle(radius)} from the phase centre on the longest baseline "
+        f"({qmax:.4g} wavelengths); below 1% within {_fmt_angle(r1)}. Coherent averaging assumes "
+        "steady phases over each bin"
+    )
+    report = {
+        "kind": "time",
+        "seconds": seconds,
+        "n_in": int(good.n),
+        "n_out": int(out.n),
+        "n_flagged_dropped": int(vset.n - good.n),
+        "field_radius_rad": radius,
+        "uv_max_lambda": qmax,
+        "smearing_loss": loss,
+        "radius_for_1pct_loss_rad": r1,
+        "note": note,
+    }
     out.meta["time_averaging"] = {k: v for k, v in report.items() if k != "note"}
     return out, report
 
@@ -170,9 +203,10 @@ def average_channels(vset, n, field_radius=None):
         raise DataError(f"the number of channels to average must be 1 or more, not {n}")
     per_if = vset.meta.get("n_channels_per_if") if isinstance(vset.meta, dict) else None
     if per_if and n > 1 and int(per_if) % n:
-        raise DataError(f"averaging {n} channels would merge channels of different IFs "
-                        f"({per_if} channels per IF)",
-                        f"choose a divisor of {per_if}")
+        raise DataError(
+            f"averaging {n} channels would merge channels of different IFs ({per_if} channels per IF)",
+            f"choose a divisor of {per_if}",
+        )
     good = vset.subset(~vset.flag)
     if good.n == 0:
         raise DataError("nothing to average: every row is flagged")
@@ -192,7 +226,7 @@ def average_channels(vset, n, field_radius=None):
         width_row = np.nan_to_num(width_row)
     wmax = np.zeros(n_groups)
     np.maximum.at(wmax, inv, width_row)
-    bandwidth = (fmax - fmin) + wmax          # span of the merged channels, edge to edge
+    bandwidth = (fmax - fmin) + wmax  # span of the merged channels, edge to edge
     radius = _default_radius(good) if field_radius is None else float(field_radius)
     q = out.uv_distance
     losses = bandwidth_smearing_loss(bandwidth, out.frequency, radius, q)
@@ -207,13 +241,23 @@ def average_channels(vset, n, field_radius=None):
         out.meta["channel_width_hz"] = new_widths
     if per_if:
         out.meta["n_channels_per_if"] = max(int(per_if) // n, 1)
-    note = (f"averaged {n} channels: {good.n} rows into {out.n}; worst-case bandwidth smearing: "
-            f"{100 * loss:.3g}% amplitude loss at {_fmt_angle(radius)} from the phase centre "
-            f"(merged bandwidth {bandwidth[k] / 1e6:.4g} MHz at {out.frequency[k] / 1e9:.6g} GHz); "
-            f"below 1% within {_fmt_angle(r1)}")
-    report = {"kind": "channels", "n_channels": n, "n_in": int(good.n), "n_out": int(out.n),
-              "field_radius_rad": radius, "bandwidth_hz": float(bandwidth[k]),
-              "smearing_loss": loss, "radius_for_1pct_loss_rad": r1, "note": note}
+    note = (
+        f"averaged {n} channels: {good.n} rows into {out.n}; worst-case bandwidth smearing: "
+        f"{100 * loss:.3g}% amplitude loss at {_fmt_angle(radius)} from the phase centre "
+        f"(merged bandwidth {bandwidth[k] / 1e6:.4g} MHz at {out.frequency[k] / 1e9:.6g} GHz); "
+        f"below 1% within {_fmt_angle(r1)}"
+    )
+    report = {
+        "kind": "channels",
+        "n_channels": n,
+        "n_in": int(good.n),
+        "n_out": int(out.n),
+        "field_radius_rad": radius,
+        "bandwidth_hz": float(bandwidth[k]),
+        "smearing_loss": loss,
+        "radius_for_1pct_loss_rad": r1,
+        "note": note,
+    }
     out.meta["channel_averaging"] = {k2: v for k2, v in report.items() if k2 != "note"}
     return out, report
 
@@ -257,16 +301,20 @@ def parse_channels(value):
             else:
                 out.add(int(part))
         except ValueError:
-            raise DataError(f"cannot read the channel list '{value}'",
-                            "use indices and ranges such as '0,2-5'") from None
+            raise DataError(
+                f"cannot read the channel list '{value}'", "use indices and ranges such as '0,2-5'"
+            ) from None
     if not out:
         raise DataError(f"the channel list '{value}' is empty", "use indices and ranges such as '0,2-5'")
     return sorted(out)
 
 
 #: the selection every command that reads data takes (keyword arguments of apply_selection)
-SELECTION_OPTIONS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels",
-                     "average")
+#: options of the reader (Measurement Sets: data column, field, spectral windows), carried in the
+#: same selection dictionary as the row selection and recorded in the outputs when given
+READ_OPTIONS = ("column", "field", "spw")
+
+SELECTION_OPTIONS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels", "average")
 
 
 def parse_time(text):
@@ -279,16 +327,19 @@ def parse_time(text):
     import warnings
 
     from astropy.time import Time
+
     number = _as_number(text)
     try:
         with warnings.catch_warnings():
-            warnings.simplefilter("ignore")   # ERFA's 'dubious year' for dates past its tables
+            warnings.simplefilter("ignore")  # ERFA's 'dubious year' for dates past its tables
             if number is not None:
                 return Time(number, format="mjd", scale="utc")
             return Time(str(text).strip(), scale="utc")
     except (ValueError, TypeError):
-        raise DataError(f"cannot read the time {str(text).strip()!r}",
-                        "give an ISO UTC time such as 2017-04-05T03:00:00, or an MJD number") from None
+        raise DataError(
+            f"cannot read the time {str(text).strip()!r}",
+            "give an ISO UTC time such as 2017-04-05T03:00:00, or an MJD number",
+        ) from None
 
 
 def _as_number(text):
@@ -315,16 +366,30 @@ def read_selected(data, selection=None, good=True):
     the flagged rows are kept). ``notes``: the selection's messages for the user (a list of str).
     Every command, task, batch job and the demo read data through this function.
     """
+    selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "", [])}
+    reading = {k: selection.pop(k) for k in READ_OPTIONS if k in selection}
+    notes = []
     if isinstance(data, (str, bytes)) or hasattr(data, "__fspath__"):
         from .io import read
-        vset = read(data)
+
+        vset = read(data, **reading)
+        if vset.meta.get("format") == "ms":
+            notes.append(
+                f"Measurement Set: column {vset.meta['ms_column_note']}, field "
+                f"{vset.meta['ms_field']} ({vset.source}), spectral windows "
+                + ", ".join(str(s) for s in vset.meta["ms_spws_read"])
+            )
     else:
+        if reading:
+            raise DataError(
+                "reader options (" + ", ".join(sorted(reading)) + ") apply to a file "
+                "being read, not to visibilities in memory",
+                "read the file with these options, or leave them out",
+            )
         vset = data
-    selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "", [])}
-    notes = []
     if selection:
-        vset, notes = apply_selection(vset, **selection)
-        notes = list(notes)
+        vset, more = apply_selection(vset, **selection)
+        notes += list(more)
     good_rows = vset.good()
     return (good_rows if good else vset), notes
 
@@ -333,12 +398,20 @@ def _check_known(names, vset, what):
     known = vset.station_names
     unknown = [s for s in names if s not in known]
     if unknown:
-        raise DataError(f"unknown station(s) in {what}: {', '.join(unknown)}",
-                        f"the data hold {', '.join(known)}")
+        raise DataError(f"unknown station(s) in {what}: {', '.join(unknown)}", f"the data hold {', '.join(known)}")
 
 
-def apply_selection(vset, min_uv=None, max_uv=None, stations=None, exclude_stations=None,
-                    time_range=None, channels=None, average=None, field_radius=None):
+def apply_selection(
+    vset,
+    min_uv=None,
+    max_uv=None,
+    stations=None,
+    exclude_stations=None,
+    time_range=None,
+    channels=None,
+    average=None,
+    field_radius=None,
+):
     """Select rows (and optionally average in time); returns ``(vset, notes)``.
 
     ``min_uv``/``max_uv`` in wavelengths; ``stations`` keeps baselines with both ends in the list,
@@ -357,27 +430,26 @@ def apply_selection(vset, min_uv=None, max_uv=None, stations=None, exclude_stati
         after = int(np.count_nonzero(mask))
         notes.append(f"{words}: kept {after} of {before} rows")
         if after == 0:
-            raise DataError(f"the selection leaves no visibilities ({words})",
-                            "widen or drop that selection option")
+            raise DataError(f"the selection leaves no visibilities ({words})", "widen or drop that selection option")
 
     if channels is not None and channels != "":
         chans = parse_channels(channels)
         present = sorted(set(np.unique(vset.channel).tolist()))
         missing = [c for c in chans if c not in present]
         if missing:
-            raise DataError(f"channel(s) {', '.join(map(str, missing))} not in the data",
-                            "the data hold channels " + _ranges(present))
+            raise DataError(
+                f"channel(s) {', '.join(map(str, missing))} not in the data",
+                "the data hold channels " + _ranges(present),
+            )
         cut(np.isin(vset.channel, chans), f"channels {_ranges(chans)}")
     if stations is not None and stations != "":
         names = parse_stations(stations)
         _check_known(names, vset, "--stations")
-        cut(np.isin(vset.station1, names) & np.isin(vset.station2, names),
-            f"baselines among {', '.join(names)}")
+        cut(np.isin(vset.station1, names) & np.isin(vset.station2, names), f"baselines among {', '.join(names)}")
     if exclude_stations is not None and exclude_stations != "":
         names = parse_stations(exclude_stations)
         _check_known(names, vset, "--exclude-stations")
-        cut(~(np.isin(vset.station1, names) | np.isin(vset.station2, names)),
-            f"baselines without {', '.join(names)}")
+        cut(~(np.isin(vset.station1, names) | np.isin(vset.station2, names)), f"baselines without {', '.join(names)}")
     if time_range is not None and len(time_range):
         if len(time_range) != 2:
             raise DataError("a time range needs two times, START and END")

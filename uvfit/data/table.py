@@ -7,6 +7,7 @@ station_names, station_xyz_m, and the set's own ``meta`` (as JSON-like values).
 
 Floating-point columns are written with full double precision, so a round trip is exact.
 """
+
 import json
 import os
 import warnings
@@ -36,8 +37,17 @@ COLUMNS = [
     ("channel", "channel", None, "flattened channel index (IF * n_channels + channel)"),
     ("integration_s", "integration", "s", "integration time of the row"),
 ]
-REQUIRED = ("time_mjd", "station1", "station2", "u_lambda", "v_lambda", "frequency_hz",
-            "vis_re_jy", "vis_im_jy", "sigma_jy")
+REQUIRED = (
+    "time_mjd",
+    "station1",
+    "station2",
+    "u_lambda",
+    "v_lambda",
+    "frequency_hz",
+    "vis_re_jy",
+    "vis_im_jy",
+    "sigma_jy",
+)
 
 
 def write_table(vset, path, force=False):
@@ -88,20 +98,22 @@ def read_table(path):
     except UvfitError:
         raise
     except Exception as exc:
-        raise DataError(f"{path}: not a readable ECSV visibility table ({type(exc).__name__}: {exc})",
-                        "check the file; see README 'Data formats' for the columns") from None
+        raise DataError(
+            f"{path}: not a readable ECSV visibility table ({type(exc).__name__}: {exc})",
+            "check the file; see README 'Data formats' for the columns",
+        ) from None
     missing = [c for c in REQUIRED if c not in table.colnames]
     if missing:
-        raise DataError(f"{path}: the table lacks the column(s) {', '.join(missing)}",
-                        "required columns: " + ", ".join(REQUIRED))
+        raise DataError(
+            f"{path}: the table lacks the column(s) {', '.join(missing)}", "required columns: " + ", ".join(REQUIRED)
+        )
 
     def col(name, default=None):
         if name not in table.colnames:
             return default
         c = table[name]
         if hasattr(c, "mask") and np.any(c.mask):
-            raise DataError(f"{path}: column '{name}' has empty entries",
-                            "fill them (use nan for an unknown number)")
+            raise DataError(f"{path}: column '{name}' has empty entries", "fill them (use nan for an unknown number)")
         return np.asarray(c)
 
     meta = table.meta
@@ -114,21 +126,35 @@ def read_table(path):
         extra = json.loads(meta["meta_json"]) if "meta_json" in meta else {}
         vis = col("vis_re_jy").astype(float) + 1j * col("vis_im_jy").astype(float)
         vset = VisibilitySet(
-            u=col("u_lambda"), v=col("v_lambda"), w=col("w_lambda"), time=col("time_mjd"),
-            frequency=col("frequency_hz"), station1=col("station1"), station2=col("station2"),
-            vis=vis, sigma=col("sigma_jy"), flag=col("flag"), channel=col("channel"),
-            integration=col("integration_s"), stations=stations,
+            u=col("u_lambda"),
+            v=col("v_lambda"),
+            w=col("w_lambda"),
+            time=col("time_mjd"),
+            frequency=col("frequency_hz"),
+            station1=col("station1"),
+            station2=col("station2"),
+            vis=vis,
+            sigma=col("sigma_jy"),
+            flag=col("flag"),
+            channel=col("channel"),
+            integration=col("integration_s"),
+            stations=stations,
             source=str(meta.get("source", "unknown")),
-            ra_deg=float(meta.get("ra_deg", np.nan)), dec_deg=float(meta.get("dec_deg", np.nan)),
-            meta=extra)
+            ra_deg=float(meta.get("ra_deg", np.nan)),
+            dec_deg=float(meta.get("dec_deg", np.nan)),
+            meta=extra,
+        )
     except UvfitError:
         raise
     except Exception as exc:
-        raise DataError(f"{path}: the table's columns or header cannot be used "
-                        f"({type(exc).__name__}: {exc})", "see README 'Data formats'") from None
+        raise DataError(
+            f"{path}: the table's columns or header cannot be used ({type(exc).__name__}: {exc})",
+            "see README 'Data formats'",
+        ) from None
     unknown = sorted((set(vset.station1.tolist()) | set(vset.station2.tolist())) - set(vset.stations.names))
     if unknown:
-        vset.stations = StationTable(list(vset.stations.names) + unknown,
-                                     np.vstack([vset.stations.xyz, np.full((len(unknown), 3), np.nan)]))
+        vset.stations = StationTable(
+            list(vset.stations.names) + unknown, np.vstack([vset.stations.xyz, np.full((len(unknown), 3), np.nan)])
+        )
     vset.meta.setdefault("format", "ecsv")
     return vset

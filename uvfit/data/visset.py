@@ -11,15 +11,31 @@ Conventions (see README, "Conventions"):
 - vis and sigma in Jy; sigma is the 1-sigma error of the real and of the imaginary part each.
 - time is MJD (UTC) as a float; frequency in Hz, per row.
 - flag is True for a row that must not be used.
+- scan is the scan number of a row as its file gives it (Measurement Sets: SCAN_NUMBER), -1 where
+  the file has none (UVFITS, ECSV, simulations); carried through subsets and averaging.
 """
+
 from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from ..errors import DataError
 
-_ROW_FIELDS = ("u", "v", "w", "time", "frequency", "station1", "station2", "vis", "sigma",
-               "flag", "channel", "integration")
+_ROW_FIELDS = (
+    "u",
+    "v",
+    "w",
+    "time",
+    "frequency",
+    "station1",
+    "station2",
+    "vis",
+    "sigma",
+    "flag",
+    "channel",
+    "integration",
+    "scan",
+)
 
 
 @dataclass
@@ -27,7 +43,7 @@ class StationTable:
     """Names of the stations, and their geocentric positions (m, NaN where unknown)."""
 
     names: list
-    xyz: np.ndarray = None
+    xyz: np.ndarray | None = None
 
     def __post_init__(self):
         self.names = [str(n) for n in self.names]
@@ -49,7 +65,8 @@ class VisibilitySet:
     Attributes that are 1-D arrays of one length (the rows): ``u``, ``v``, ``w`` (wavelengths),
     ``time`` (MJD), ``frequency`` (Hz), ``station1``, ``station2`` (station names, str),
     ``vis`` (complex, Jy), ``sigma`` (Jy), ``flag`` (bool), ``channel`` (int: flattened index
-    IF * n_channels + channel of the row in its file), ``integration`` (s, NaN where unknown).
+    IF * n_channels + channel of the row in its file), ``integration`` (s, NaN where unknown),
+    ``scan`` (int, the file's scan number; -1 where the file has none).
     """
 
     u: np.ndarray
@@ -61,10 +78,11 @@ class VisibilitySet:
     station2: np.ndarray
     vis: np.ndarray
     sigma: np.ndarray
-    flag: np.ndarray = None
-    channel: np.ndarray = None
-    integration: np.ndarray = None
-    stations: StationTable = None
+    flag: np.ndarray | None = None
+    channel: np.ndarray | None = None
+    integration: np.ndarray | None = None
+    scan: np.ndarray | None = None
+    stations: StationTable | None = None
     source: str = "unknown"
     ra_deg: float = float("nan")
     dec_deg: float = float("nan")
@@ -81,16 +99,19 @@ class VisibilitySet:
         self.station2 = np.asarray(self.station2).astype(str).ravel()
         self.vis = np.asarray(self.vis, dtype=np.complex128).ravel()
         self.sigma = np.asarray(self.sigma, dtype=np.float64).ravel()
-        self.flag = (np.zeros(n, bool) if self.flag is None
-                     else np.asarray(self.flag, dtype=bool).ravel())
-        self.channel = (np.zeros(n, int) if self.channel is None
-                        else np.asarray(self.channel, dtype=int).ravel())
-        self.integration = (np.full(n, np.nan) if self.integration is None
-                            else np.broadcast_to(np.asarray(self.integration, float), (n,)).copy())
+        self.flag = np.zeros(n, bool) if self.flag is None else np.asarray(self.flag, dtype=bool).ravel()
+        self.channel = np.zeros(n, int) if self.channel is None else np.asarray(self.channel, dtype=int).ravel()
+        self.integration = (
+            np.full(n, np.nan)
+            if self.integration is None
+            else np.broadcast_to(np.asarray(self.integration, float), (n,)).copy()
+        )
+        self.scan = (
+            np.full(n, -1, int) if self.scan is None else np.broadcast_to(np.asarray(self.scan, int), (n,)).copy()
+        )
         for name in _ROW_FIELDS:
             if len(getattr(self, name)) != n:
-                raise DataError(f"visibility column '{name}' has {len(getattr(self, name))} rows, "
-                                f"expected {n}")
+                raise DataError(f"visibility column '{name}' has {len(getattr(self, name))} rows, expected {n}")
         # Rows whose weight or value is not usable are flagged, never silently used.
         bad = ~np.isfinite(self.sigma) | (self.sigma <= 0) | ~np.isfinite(self.vis)
         self.flag = self.flag | bad
@@ -169,9 +190,10 @@ class VisibilitySet:
         """The unflagged rows; raises DataError if there are none."""
         out = self.subset(~self.flag)
         if out.n == 0:
-            raise DataError("no unflagged visibilities are left (every row is flagged or has a "
-                            "zero, negative or NaN weight)",
-                            "check the file's weights, or widen the selection options")
+            raise DataError(
+                "no unflagged visibilities are left (every row is flagged or has a zero, negative or NaN weight)",
+                "check the file's weights, or widen the selection options",
+            )
         return out
 
     def with_vis(self, vis, sigma=None):
@@ -208,10 +230,10 @@ class VisibilitySet:
         # Added for `uvfit info`: derived numbers a reader of the data wants at a glance.
         out["n_rows"] = int(self.n)
         out["channels"] = sorted(int(c) for c in np.unique(good.channel))
-        out["time_span_hours"] = ((out["time_end_mjd"] - out["time_start_mjd"]) * 24.0
-                                  if good.n else None)
+        out["time_span_hours"] = (out["time_end_mjd"] - out["time_start_mjd"]) * 24.0 if good.n else None
         if good.n:
             from astropy.time import Time
+
             out["time_start_utc"] = Time(out["time_start_mjd"], format="mjd", scale="utc").isot
             out["time_end_utc"] = Time(out["time_end_mjd"], format="mjd", scale="utc").isot
         cross = q[good.station1 != good.station2] if good.n else q

@@ -19,9 +19,11 @@ makes, so a job's JSON equals the one the command writes for the same inputs and
 fails records its error and the others go on. A job whose JSON exists and records the same input
 digest (data bytes, model bytes, options, uvfit version) is skipped on a rerun.
 """
+
 import hashlib
 import json
 import os
+
 import tomllib
 
 from .. import __version__
@@ -50,13 +52,13 @@ def _read_manifest_text(path):
         with open(path, "rb") as handle:
             raw = handle.read()
     except OSError as exc:
-        raise UvfitError(f"cannot read the batch manifest {path}: {exc.strerror}",
-                         "check the path") from None
+        raise UvfitError(f"cannot read the batch manifest {path}: {exc.strerror}", "check the path") from None
     try:
         return tomllib.loads(raw.decode("utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise UvfitError(f"the batch manifest {path} is not valid TOML: {exc}",
-                         "fix the syntax at the line named") from None
+        raise UvfitError(
+            f"the batch manifest {path} is not valid TOML: {exc}", "fix the syntax at the line named"
+        ) from None
 
 
 def load_manifest(path):
@@ -65,8 +67,10 @@ def load_manifest(path):
     folder = os.path.dirname(os.path.abspath(path))
     unknown_top = set(doc) - {"defaults", "job"}
     if unknown_top:
-        raise UvfitError(f"unknown key(s) {sorted(unknown_top)} at the top of {path}",
-                         "a manifest has a [defaults] table and [[job]] entries only")
+        raise UvfitError(
+            f"unknown key(s) {sorted(unknown_top)} at the top of {path}",
+            "a manifest has a [defaults] table and [[job]] entries only",
+        )
     defaults = doc.get("defaults", {})
     jobs = doc.get("job", [])
     if not isinstance(jobs, list) or not jobs:
@@ -76,21 +80,23 @@ def load_manifest(path):
         spec = {**defaults, **entry}
         unknown = set(spec) - _JOB_KEYS
         if unknown:
-            raise UvfitError(f"job {number} of {path}: unknown key(s) {sorted(unknown)}",
-                             "known keys: " + ", ".join(sorted(_JOB_KEYS)))
+            raise UvfitError(
+                f"job {number} of {path}: unknown key(s) {sorted(unknown)}",
+                "known keys: " + ", ".join(sorted(_JOB_KEYS)),
+            )
         for key in ("data", "model"):
             if key not in spec:
                 raise UvfitError(f"job {number} of {path} has no '{key}'", f"give the {key} file's path")
         job = {k: spec.get(k, v) for k, v in JOB_OPTIONS.items()}
         if job["command"] not in COMMANDS:
-            raise UvfitError(f"job {number} of {path}: unknown command '{job['command']}'",
-                             "use 'fit' or 'sample'")
+            raise UvfitError(f"job {number} of {path}: unknown command '{job['command']}'", "use 'fit' or 'sample'")
         job["data"] = os.path.normpath(os.path.join(folder, spec["data"]))
         job["model"] = os.path.normpath(os.path.join(folder, spec["model"]))
         job["name"] = str(spec.get("name") or os.path.splitext(os.path.basename(spec["data"]))[0])
         if job["name"] in names:
-            raise UvfitError(f"job {number} of {path}: the name '{job['name']}' is used twice",
-                             "give each job its own name")
+            raise UvfitError(
+                f"job {number} of {path}: the name '{job['name']}' is used twice", "give each job its own name"
+            )
         names.add(job["name"])
         job["output_dir"] = os.path.normpath(os.path.join(folder, spec.get("output_dir", "batch-results")))
         out.append(job)
@@ -132,16 +138,26 @@ def run_job(job):
     """Run one job (a Dask task); return a row dictionary. Never raises: errors become the row."""
     from ..outputs import write_json
 
-    row = {"name": job["name"], "command": job["command"], "data": job["data"],
-           "model": job["model"], "status": "failed", "error": "", "output": job_output(job)}
+    row = {
+        "name": job["name"],
+        "command": job["command"],
+        "data": job["data"],
+        "model": job["model"],
+        "status": "failed",
+        "error": "",
+        "output": job_output(job),
+    }
     from .._blas import single_threaded
 
     try:
         digest = job_digest(job)
         with single_threaded():
             result = _run(job)
-        result["batch"] = {"name": job["name"], "input_digest": digest, "options": {
-            k: job[k] for k in sorted(JOB_OPTIONS)}}
+        result["batch"] = {
+            "name": job["name"],
+            "input_digest": digest,
+            "options": {k: job[k] for k in sorted(JOB_OPTIONS)},
+        }
         os.makedirs(job["output_dir"], exist_ok=True)
         write_json(job_output(job), result, force=True)
         row.update(status="done", result=result)
@@ -158,22 +174,45 @@ def _run(job):
 
     selection = job["selection"] or {}
     if job["command"] == "fit":
-        return tasks.fit(job["data"], job["model"], mode=job["mode"], systematic=job["systematic"],
-                         rescale_errors=job["rescale_errors"], starts=job["starts"],
-                         global_search=job["global_search"], seed=job["seed"],
-                         redshift=job["redshift"], selection=selection).to_dict()
-    return tasks.sample(job["data"], job["model"], mode=job["mode"], systematic=job["systematic"],
-                        walkers=job["walkers"], max_steps=job["max_steps"], seed=job["seed"],
-                        starts=job["starts"], redshift=job["redshift"],
-                        selection=selection).to_dict()
+        return tasks.fit(
+            job["data"],
+            job["model"],
+            mode=job["mode"],
+            systematic=job["systematic"],
+            rescale_errors=job["rescale_errors"],
+            starts=job["starts"],
+            global_search=job["global_search"],
+            seed=job["seed"],
+            redshift=job["redshift"],
+            selection=selection,
+        ).to_dict()
+    return tasks.sample(
+        job["data"],
+        job["model"],
+        mode=job["mode"],
+        systematic=job["systematic"],
+        walkers=job["walkers"],
+        max_steps=job["max_steps"],
+        seed=job["seed"],
+        starts=job["starts"],
+        redshift=job["redshift"],
+        selection=selection,
+    ).to_dict()
 
 
 def cached_row(job):
     with open(job_output(job)) as handle:
         result = json.load(handle)
-    return {"name": job["name"], "command": job["command"], "data": job["data"],
-            "model": job["model"], "status": "cached", "error": "", "output": job_output(job),
-            "result": result}
+    return {
+        "name": job["name"],
+        "command": job["command"],
+        "data": job["data"],
+        "model": job["model"],
+        "status": "cached",
+        "error": "",
+        "output": job_output(job),
+        "result": result,
+    }
 
 
 def run_batch(jobs, scheduler=None, workers=2, progress=None):
@@ -185,8 +224,10 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
     try:
         from dask.distributed import Client, LocalCluster, as_completed
     except ImportError:
-        raise UvfitError("uvfit batch needs Dask's distributed scheduler, which is not installed",
-                         "pip install 'uvfit[batch]' (or: pip install 'dask[distributed]')") from None
+        raise UvfitError(
+            "uvfit batch needs Dask's distributed scheduler, which is not installed",
+            "pip install 'uvfit[batch]' (or: pip install 'dask[distributed]')",
+        ) from None
     rows = {}
     todo = []
     for job in jobs:
@@ -202,15 +243,24 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
             if scheduler:
                 client = Client(scheduler, timeout="20s")
             else:
-                cluster = LocalCluster(n_workers=int(workers), threads_per_worker=1, processes=True,
-                                       host="127.0.0.1", dashboard_address=None)
+                cluster = LocalCluster(
+                    n_workers=int(workers),
+                    threads_per_worker=1,
+                    processes=True,
+                    host="127.0.0.1",
+                    dashboard_address=None,
+                )
                 client = Client(cluster)
         except (OSError, TimeoutError) as exc:
-            raise UvfitError(f"cannot reach the Dask scheduler {scheduler or '(local)'}: {exc}",
-                             "check the address (tcp://HOST:PORT) and that the scheduler runs") from None
+            raise UvfitError(
+                f"cannot reach the Dask scheduler {scheduler or '(local)'}: {exc}",
+                "check the address (tcp://HOST:PORT) and that the scheduler runs",
+            ) from None
         try:
-            futures = [client.submit(run_job, job, key=f"uvfit-{job['name']}-{job_digest(job)[:12]}",
-                                     pure=False) for job in todo]
+            futures = [
+                client.submit(run_job, job, key=f"uvfit-{job['name']}-{job_digest(job)[:12]}", pure=False)
+                for job in todo
+            ]
             for future in as_completed(futures):
                 row = future.result()
                 rows[row["name"]] = row
@@ -225,8 +275,8 @@ def run_batch(jobs, scheduler=None, workers=2, progress=None):
 
 def results_table(rows):
     """One astropy Table row per job: status, error, chi-square, every parameter and derived value."""
-    from astropy.table import Table
     import numpy as np
+    from astropy.table import Table
 
     value_keys = []
     for row in rows:

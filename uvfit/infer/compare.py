@@ -11,12 +11,13 @@ scatter matches the weights), seeded per trial from ``seed``; both models are re
 best fits and FAP = (1 + #{delta chi2_sim >= delta chi2_obs}) / (1 + N) (Davison & Hinkley 1997,
 "Bootstrap Methods and their Application", ch. 4).
 """
+
 import numpy as np
 
 from .. import __version__
 from ..errors import FitError, UvfitError
-from ..stats.base import effective_sigma
 from ..labels import COMPARE_CAUTION
+from ..stats.base import effective_sigma
 from ..stats.modes import make_statistic
 from .lsq import aic, bic, fit
 
@@ -37,8 +38,20 @@ def _refit_on(result, vset_sim, seed, starts):
     return res.chi2
 
 
-def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, progress=None,
-            starts=1, names=None, bootstrap_starts=1, alpha=0.01, rescale_errors=False):
+def compare(
+    vset,
+    models,
+    mode="complex",
+    systematic=0.0,
+    bootstrap=0,
+    seed=0,
+    progress=None,
+    starts=1,
+    names=None,
+    bootstrap_starts=1,
+    alpha=0.01,
+    rescale_errors=False,
+):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
 
     ``models``: SkyModel objects; ``names``: labels for them (default model1, model2...).
@@ -63,7 +76,7 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
         try:
             results.append(_fit_model(vset, model, mode, systematic, starts, seed))
         except FitError as exc:
-            raise FitError(f"model '{name}': {exc.message}", exc.hint)
+            raise FitError(f"model '{name}': {exc.message}", exc.hint) from None
     n_free = [r.n_free for r in results]
     simple = int(np.argmin(n_free))
     s_res = results[simple]
@@ -75,11 +88,21 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
     rows = []
     for name, r in zip(names, results):
         c = r.chi2 / f2
-        rows.append({"name": name, "chi2": c, "dof": r.dof, "n_free": r.n_free, "n_data": r.n_data,
-                     "reduced_chi2": c / r.dof if r.dof > 0 else float("nan"),
-                     "aic": aic(c, r.n_free), "bic": bic(c, r.n_free, r.n_data),
-                     "likelihood_ratio": float((s_res.chi2 - r.chi2) / f2),
-                     "false_alarm_probability": None, "notices": list(r.notices)})
+        rows.append(
+            {
+                "name": name,
+                "chi2": c,
+                "dof": r.dof,
+                "n_free": r.n_free,
+                "n_data": r.n_data,
+                "reduced_chi2": c / r.dof if r.dof > 0 else float("nan"),
+                "aic": aic(c, r.n_free),
+                "bic": bic(c, r.n_free, r.n_data),
+                "likelihood_ratio": float((s_res.chi2 - r.chi2) / f2),
+                "false_alarm_probability": None,
+                "notices": list(r.notices),
+            }
+        )
     richer = [i for i in range(len(results)) if i != simple and n_free[i] > n_free[simple]]
     n_failed = 0
     if bootstrap > 0 and richer:
@@ -112,11 +135,21 @@ def compare(vset, models, mode="complex", systematic=0.0, bootstrap=0, seed=0, p
             rows[i]["n_simulations"] = valid[i]
             rows[i]["n_exceeding"] = exceed[i]
     verdict, preferred = _verdict(rows, simple, richer, bootstrap, alpha)
-    return {"version": __version__, "mode": mode, "systematic": float(systematic), "seed": int(seed),
-            "n_bootstrap": bootstrap, "n_failed_refits": n_failed, "alpha": alpha,
-            "simplest": names[simple], "models": rows, "preferred": preferred, "verdict": verdict,
-            "caution": COMPARE_CAUTION,
-            **({"error_scale": float(np.sqrt(f2))} if rescale_errors else {})}
+    return {
+        "version": __version__,
+        "mode": mode,
+        "systematic": float(systematic),
+        "seed": int(seed),
+        "n_bootstrap": bootstrap,
+        "n_failed_refits": n_failed,
+        "alpha": alpha,
+        "simplest": names[simple],
+        "models": rows,
+        "preferred": preferred,
+        "verdict": verdict,
+        "caution": COMPARE_CAUTION,
+        **({"error_scale": float(np.sqrt(f2))} if rescale_errors else {}),
+    }
 
 
 def _fmt_p(p):
@@ -127,13 +160,18 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
     s = rows[simple]
     if not richer:
         best = min(range(len(rows)), key=lambda i: rows[i]["bic"])
-        text = (f"every model has the same number of free parameters; the lowest BIC is "
-                f"'{rows[best]['name']}'")
+        text = f"every model has the same number of free parameters; the lowest BIC is '{rows[best]['name']}'"
         return text + ". " + COMPARE_CAUTION, rows[best]["name"]
     if bootstrap > 0:
-        required = [i for i in richer if rows[i]["false_alarm_probability"] is not None
-                    and (rows[i]["false_alarm_probability"] < alpha
-                         or (rows[i].get("n_exceeding") == 0 and rows[i]["false_alarm_probability"] <= 0.05))]
+        required = [
+            i
+            for i in richer
+            if rows[i]["false_alarm_probability"] is not None
+            and (
+                rows[i]["false_alarm_probability"] < alpha
+                or (rows[i].get("n_exceeding") == 0 and rows[i]["false_alarm_probability"] <= 0.05)
+            )
+        ]
         too_few = [i for i in richer if rows[i].get("n_exceeding") == 0 and i not in required]
         if required:
             best = min(required, key=lambda i: rows[i]["bic"])
@@ -148,21 +186,30 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
             text = f"'{r['name']}' preferred over '{s['name']}'; false-alarm probability {fap_text}"
         elif too_few:
             best = simple
-            text = ("undecided: no simulation reached the improvement of "
-                    + ", ".join(f"'{rows[i]['name']}'" for i in too_few)
-                    + f" over '{s['name']}', but N = {bootstrap} simulations cannot show a false-alarm "
-                    "probability below 5%; run again with --bootstrap 100 or more")
+            text = (
+                "undecided: no simulation reached the improvement of "
+                + ", ".join(f"'{rows[i]['name']}'" for i in too_few)
+                + f" over '{s['name']}', but N = {bootstrap} simulations cannot show a false-alarm "
+                "probability below 5%; run again with --bootstrap 100 or more"
+            )
         else:
-            faps = ", ".join(f"of '{rows[i]['name']}': {_fmt_p(rows[i]['false_alarm_probability'])}"
-                             for i in richer if rows[i]["false_alarm_probability"] is not None)
+            faps = ", ".join(
+                f"of '{rows[i]['name']}': {_fmt_p(rows[i]['false_alarm_probability'])}"
+                for i in richer
+                if rows[i]["false_alarm_probability"] is not None
+            )
             best = simple
-            text = (f"the data do not require a richer model than '{s['name']}' (false-alarm "
-                    f"probability {faps}, N = {bootstrap} simulations)")
+            text = (
+                f"the data do not require a richer model than '{s['name']}' (false-alarm "
+                f"probability {faps}, N = {bootstrap} simulations)"
+            )
         return text + ". " + COMPARE_CAUTION, rows[best]["name"]
     best = min(range(len(rows)), key=lambda i: rows[i]["bic"])
     best_aic = min(range(len(rows)), key=lambda i: rows[i]["aic"])
     text = f"BIC prefers '{rows[best]['name']}'"
-    text += (", and so does AIC" if best_aic == best else f", AIC prefers '{rows[best_aic]['name']}'")
-    text += ("; no false-alarm probability was computed (use --bootstrap N to calibrate the "
-             "likelihood ratio on simulated data)")
+    text += ", and so does AIC" if best_aic == best else f", AIC prefers '{rows[best_aic]['name']}'"
+    text += (
+        "; no false-alarm probability was computed (use --bootstrap N to calibrate the "
+        "likelihood ratio on simulated data)"
+    )
     return text + ". " + COMPARE_CAUTION, rows[best]["name"]

@@ -35,14 +35,14 @@ When a size is not significant (best value below twice its error, or the compone
 resolved) an upper limit on the size is given (``upper_limit``: where the chi2 profile, other
 parameters refitted, rises by 2.71 above the minimum, one-sided 95%), and a lower limit on Tb.
 """
+
 import math
 
 import numpy as np
 from scipy import stats as _st
 
 from ..errors import UvfitError
-from ..sky.temperature import (C_LIGHT, JY, K_BOLTZMANN,  # noqa: F401 (public here too)
-                               brightness_temperature_disk, brightness_temperature_gaussian)
+from ..sky.temperature import C_LIGHT, JY, K_BOLTZMANN, brightness_temperature_disk, brightness_temperature_gaussian  # noqa: F401 (public here too)
 
 #: delta chi2 of a one-sided 95% limit (the 90% point of chi2 with 1 d.o.f.)
 LIMIT_DCHI2 = float(_st.chi2.ppf(0.90, 1))
@@ -55,8 +55,7 @@ def _member_units(model, member):
     shape = member["member"]
     rad = float(model.rad_per_unit)
     factor = {"length": rad, "angle": math.pi / 180.0}
-    return {n: float(x) * factor.get(shape.parameter_kind(n), 1.0)
-            for n, x in member["parameters"].items()}
+    return {n: float(x) * factor.get(shape.parameter_kind(n), 1.0) for n, x in member["parameters"].items()}
 
 
 def _tb(model, member, frequency, redshift, size=None):
@@ -85,7 +84,7 @@ def quantities_at(model, theta, frequency, redshift=0.0):
     members = model.members(theta=theta, frequency=frequency)
     out, units, info = {}, {}, {}
     for i, a in enumerate(members):
-        for b in members[i + 1:]:
+        for b in members[i + 1 :]:
             key = f"{a['name']}-{b['name']}"
             de, dn = b["east"] - a["east"], b["north"] - a["north"]
             out[key + ".separation"] = math.hypot(de, dn)
@@ -115,8 +114,7 @@ def quantities_at(model, theta, frequency, redshift=0.0):
             out[f"{name}.brightness_temperature"] = tb
             units[f"{name}.brightness_temperature"] = "K"
         elif frequency is not None and np.isfinite(frequency):
-            info[f"{name}.size"]["brightness_temperature_note"] = (
-                f"shape '{shape.key}' gives no brightness temperature")
+            info[f"{name}.size"]["brightness_temperature_note"] = f"shape '{shape.key}' gives no brightness temperature"
     return out, units, info
 
 
@@ -127,7 +125,7 @@ def derived_periods(model):
     members = model.members()
     out = {}
     for i, a in enumerate(members):
-        for b in members[i + 1:]:
+        for b in members[i + 1 :]:
             out[f"{a['name']}-{b['name']}.position_angle"] = 360.0
     for m in members:
         shape = m["member"]
@@ -168,8 +166,7 @@ def _gradients(model, theta, errors, bounds, frequency, redshift, keys):
     return base, grads
 
 
-def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True, alpha=0.01,
-                       limits=True):
+def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True, alpha=0.01, limits=True):
     """{key: {"value", "error", "unit", ...}} for a :class:`uvfit.infer.lsq.FitResult`.
 
     ``frequency`` (Hz): for the brightness temperature; default the data's mean frequency.
@@ -207,7 +204,7 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
         _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits)
     # the size also under its own name ("core.fwhm", "shell.radius"), for readers that look for it
     for key in [k for k in out if k.endswith(".size")]:
-        alias = key[:-len("size")] + out[key]["parameter"]
+        alias = key[: -len("size")] + out[key]["parameter"]
         if alias not in out:
             out[alias] = dict(out[key], alias_of=key)
     return out
@@ -215,8 +212,8 @@ def derived_quantities(result, redshift=0.0, frequency=None, resolved_test=True,
 
 def _refit_chi2(result, fix):
     """chi2 of a refit from the best fit with the parameters in ``fix`` ({name: value}) fixed."""
-    from .lsq import fit
     from ..errors import FitError
+    from .lsq import fit
 
     model = result.model.copy()
     for name, value in fix.items():
@@ -268,9 +265,13 @@ def _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits):
                 p = float("nan")
             resolved = bool(p < alpha) if np.isfinite(p) else None
             out[f"{name}.resolved"] = {
-                "value": p, "delta_chi2": dchi2, "resolved": resolved, "alpha": alpha, "unit": "",
-                "test": "likelihood ratio against a point (size fixed at 0), reference 0.5 chi2_0 + "
-                        "0.5 chi2_1"}
+                "value": p,
+                "delta_chi2": dchi2,
+                "resolved": resolved,
+                "alpha": alpha,
+                "unit": "",
+                "test": "likelihood ratio against a point (size fixed at 0), reference 0.5 chi2_0 + 0.5 chi2_1",
+            }
         if limits and entry is not None:
             small = not (entry["value"] > 2.0 * entry["error"]) or resolved is False
             if small:
@@ -288,7 +289,7 @@ def _size_tests(result, out, frequency, redshift, alpha, resolved_test, limits):
 
 def _upper_limit(result, root, extra, best, max_steps=14):
     """Size where the chi2 profile rises by LIMIT_DCHI2 above the best fit (bisection)."""
-    target = result.chi2 + LIMIT_DCHI2 * (result.error_scale ** 2)
+    target = result.chi2 + LIMIT_DCHI2 * (result.error_scale**2)
     vs = result.statistic.vset
     good = ~vs.flag
     qmax = float(np.max(np.hypot(vs.u[good], vs.v[good]))) if good.any() else 0.0

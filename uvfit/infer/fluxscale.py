@@ -12,6 +12,7 @@ best matches the fitted model's amplitudes to the measured ones on the shortest 
 errors do). Absolute quantities are then given twice: as fitted (marked "not measured") and
 times s (``from_flux_scale``).
 """
+
 from __future__ import annotations
 
 import numpy as np
@@ -37,21 +38,26 @@ def flux_scale(vset, model, fraction=SHORTEST_FRACTION):
     sub = vs.subset(np.isin(np.arange(vs.n), order))
     m = np.abs(np.asarray(model.visibilities(sub.u, sub.v, sub.frequency)))
     a = np.abs(sub.vis)
-    w = 1.0 / sub.sigma ** 2
+    w = 1.0 / sub.sigma**2
     den = float(np.sum(w * m * m))
     s = float(np.sum(w * a * m) / den) if den > 0 else float("nan")
     formal = 1.0 / np.sqrt(den) if den > 0 else float("nan")
     chi2 = float(np.sum(w * (a - s * m) ** 2))
     inflate = max(1.0, np.sqrt(chi2 / (sub.n - 1))) if sub.n > 1 else 1.0
-    total = float(np.abs(model.visibilities(np.zeros(1), np.zeros(1),
-                                            np.full(1, float(np.mean(sub.frequency))))[0]))
+    total = float(np.abs(model.visibilities(np.zeros(1), np.zeros(1), np.full(1, float(np.mean(sub.frequency))))[0]))
     err = float(formal * inflate)
-    return {"scale": s, "scale_error": err, "model_total_flux_jy": total,
-            "total_flux_jy": s * total, "total_flux_error_jy": err * total,
-            "n_rows": int(sub.n), "max_uv_wavelengths": float(q[order].max()),
-            "baselines": sorted(set(map(str, sub.baseline_labels))),
-            "reduced_chi2": chi2 / (sub.n - 1) if sub.n > 1 else float("nan"),
-            "method": f"|V| = s |M| by weighted least squares on the {100 * fraction:g}% shortest rows"}
+    return {
+        "scale": s,
+        "scale_error": err,
+        "model_total_flux_jy": total,
+        "total_flux_jy": s * total,
+        "total_flux_error_jy": err * total,
+        "n_rows": int(sub.n),
+        "max_uv_wavelengths": float(q[order].max()),
+        "baselines": sorted(set(map(str, sub.baseline_labels))),
+        "reduced_chi2": chi2 / (sub.n - 1) if sub.n > 1 else float("nan"),
+        "method": f"|V| = s |M| by weighted least squares on the {100 * fraction:g}% shortest rows",
+    }
 
 
 def annotate(out, result):
@@ -69,16 +75,20 @@ def annotate(out, result):
     for name, p in out["parameters"].items():
         if name in fluxes or (p.get("unit") == "Jy"):
             _mark(p, s, e)
-    for key, d in out.get("derived", {}).items():
+    for d in out.get("derived", {}).values():
         if isinstance(d, dict) and d.get("unit") in ("Jy", "K"):
             _mark(d, s, e)
     names = ", ".join(est["baselines"][:6]) + (" ..." if len(est["baselines"]) > 6 else "")
-    out["notices"].insert(0, (
-        f"the {out.get('mode')} mode does not measure the total flux: fluxes (Jy) and brightness "
-        f"temperatures are {NOT_MEASURED} (they follow the start value); the amplitudes of the "
-        f"{est['n_rows']} shortest rows (up to {est['max_uv_wavelengths']:.3g} wavelengths; "
-        f"{names}) give a flux scale {s:.4g} +/- {e:.2g}, a total flux of "
-        f"{est['total_flux_jy']:.4g} +/- {est['total_flux_error_jy']:.2g} Jy (key flux_scale)"))
+    out["notices"].insert(
+        0,
+        (
+            f"the {out.get('mode')} mode does not measure the total flux: fluxes (Jy) and brightness "
+            f"temperatures are {NOT_MEASURED} (they follow the start value); the amplitudes of the "
+            f"{est['n_rows']} shortest rows (up to {est['max_uv_wavelengths']:.3g} wavelengths; "
+            f"{names}) give a flux scale {s:.4g} +/- {e:.2g}, a total flux of "
+            f"{est['total_flux_jy']:.4g} +/- {est['total_flux_error_jy']:.2g} Jy (key flux_scale)"
+        ),
+    )
     return est
 
 
@@ -89,8 +99,9 @@ def _mark(entry, s, e):
         entry["from_flux_scale"] = float(value * s)
         err = entry.get("error")
         rel = (err / value) if isinstance(err, (int, float)) and value else 0.0
-        entry["from_flux_scale_error"] = float(abs(value * s) * np.hypot(rel if np.isfinite(rel) else 0.0,
-                                                                       e / s if s else 0.0))
+        entry["from_flux_scale_error"] = float(
+            abs(value * s) * np.hypot(rel if np.isfinite(rel) else 0.0, e / s if s else 0.0)
+        )
     for key in ("upper_limit", "lower_limit"):
         if isinstance(entry.get(key), (int, float)):
             entry[f"{key}_from_flux_scale"] = float(entry[key] * s)
@@ -115,6 +126,8 @@ def figure_note(fit):
     fs = fit.get("flux_scale") or {}
     if fs.get("measured_by_mode", True):
         return None
-    return (f"Fluxes scaled to the amplitude estimate {fs['total_flux_jy']:.3g} +/- "
-            f"{fs['total_flux_error_jy']:.2g} Jy (the {fs['n_rows']} shortest rows); the "
-            f"{fit.get('mode')} fit itself does not measure the flux.")
+    return (
+        f"Fluxes scaled to the amplitude estimate {fs['total_flux_jy']:.3g} +/- "
+        f"{fs['total_flux_error_jy']:.2g} Jy (the {fs['n_rows']} shortest rows); the "
+        f"{fit.get('mode')} fit itself does not measure the flux."
+    )

@@ -8,6 +8,7 @@ stations) remove more than 1/n of the data each, so the factor (n - 1)/n becomes
 (1 - f)/(f n) with f the mean fraction of rows a group removes (Shao & Wu 1989, Ann. Stat. 17,
 1176); for disjoint groups of equal size f = 1/n and it is (n - 1)/n again. Angles are differenced on their circle (the model's periods).
 """
+
 from __future__ import annotations
 
 import numpy as np
@@ -58,8 +59,7 @@ def _wrapped(x, ref, period):
     return x
 
 
-def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=0, starts=1,
-              progress=None):
+def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=0, starts=1, progress=None):
     """Leave-one-group-out refits of the fit ``best`` (a FitResult of ``statistic``); a dict.
 
     Keys: by, groups_from, groups (per group: left_out, n_rows, chi2, converged, values or error),
@@ -69,8 +69,9 @@ def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=
     vset = best.statistic.vset
     found, how = groups(vset, by)
     if len(found) < 2:
-        raise UvfitError(f"only {len(found)} {by} group(s) in the data: a jackknife needs two or more",
-                         "choose another grouping")
+        raise UvfitError(
+            f"only {len(found)} {by} group(s) in the data: a jackknife needs two or more", "choose another grouping"
+        )
     if frequency is None:
         frequency = float(np.mean(vset.frequency))
     names = list(best.names)
@@ -92,8 +93,13 @@ def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=
             if progress:
                 progress(1)
             continue
-        entry.update({"chi2": float(res.chi2), "converged": bool(res.converged),
-                      "values": dict(zip(names, map(float, res.values)))})
+        entry.update(
+            {
+                "chi2": float(res.chi2),
+                "converged": bool(res.converged),
+                "values": dict(zip(names, map(float, res.values))),
+            }
+        )
         d = quantities_at(res.model, np.asarray(res.values), frequency, redshift)[0]
         entry["derived"] = {k: float(v) for k, v in d.items() if np.isfinite(v)}
         rows.append(entry)
@@ -104,8 +110,9 @@ def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=
             progress(1)
     n = len(values)
     if n < 2:
-        raise FitError(f"fewer than two of the {len(found)} leave-one-{by}-out fits succeeded",
-                       "check the data of each group")
+        raise FitError(
+            f"fewer than two of the {len(found)} leave-one-{by}-out fits succeeded", "check the data of each group"
+        )
 
     f = float(np.mean(fractions))
     factor = (1.0 - f) / (f * n) if 0 < f < 1 else (n - 1) / n
@@ -117,14 +124,19 @@ def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=
     par = {}
     formal = dict(zip(names, map(float, best.errors)))
     for j, name in enumerate(names):
-        par[name] = _entry(float(best.values[j]), formal[name],
-                           spread([v[j] for v in values], float(best.values[j]), periods.get(name)))
+        par[name] = _entry(
+            float(best.values[j]),
+            formal[name],
+            spread([v[j] for v in values], float(best.values[j]), periods.get(name)),
+        )
     der = {}
     fit_derived = {}
     try:
         from .derived import derived_quantities
-        fit_derived = derived_quantities(best, redshift=redshift, frequency=frequency,
-                                         resolved_test=False, limits=False)
+
+        fit_derived = derived_quantities(
+            best, redshift=redshift, frequency=frequency, resolved_test=False, limits=False
+        )
     except Exception:  # derived errors are optional here
         fit_derived = {}
     for key, ref in full_derived.items():
@@ -132,17 +144,29 @@ def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=
         if not np.all(np.isfinite(xs)) or not np.isfinite(ref):
             continue
         err = fit_derived.get(key, {}).get("error") if isinstance(fit_derived.get(key), dict) else None
-        der[key] = _entry(float(ref), float(err) if err is not None else float("nan"),
-                          spread(xs, float(ref), periods.get(key)))
+        der[key] = _entry(
+            float(ref), float(err) if err is not None else float("nan"), spread(xs, float(ref), periods.get(key))
+        )
     flagged = [k for k, e in {**par, **der}.items() if e["larger"] == "jackknife"]
     summary = []
     for k, e in par.items():
         summary.append(_line(k, e))
-    return {"by": by, "groups_from": how, "n_groups": len(found), "n_fits": n, "seed": int(seed),
-            "groups": rows, "parameters": par, "derived": der, "flagged": flagged,
-            "flag_ratio": FLAG_RATIO, "summary": summary,
-            "mean_fraction_left_out": f, "variance_factor": factor,
-            "method": "delete-one-group jackknife (Efron & Tibshirani 1993, ch. 11)"}
+    return {
+        "by": by,
+        "groups_from": how,
+        "n_groups": len(found),
+        "n_fits": n,
+        "seed": int(seed),
+        "groups": rows,
+        "parameters": par,
+        "derived": der,
+        "flagged": flagged,
+        "flag_ratio": FLAG_RATIO,
+        "summary": summary,
+        "mean_fraction_left_out": f,
+        "variance_factor": factor,
+        "method": "delete-one-group jackknife (Efron & Tibshirani 1993, ch. 11)",
+    }
 
 
 def _entry(value, formal, jack):
@@ -155,19 +179,21 @@ def _entry(value, formal, jack):
         larger = "formal"
     else:
         larger = "similar"
-    return {"value": value, "formal_error": formal, "jackknife_error": jack, "ratio": ratio,
-            "larger": larger}
+    return {"value": value, "formal_error": formal, "jackknife_error": jack, "ratio": ratio, "larger": larger}
 
 
 def _line(name, e):
     r = e["ratio"]
     if e["larger"] == "jackknife":
-        return (f"{name}: jackknife error {e['jackknife_error']:.3g} is {r:.2g} x the formal "
-                f"{e['formal_error']:.3g}: the data kept matter more than the noise (flagged)")
+        return (
+            f"{name}: jackknife error {e['jackknife_error']:.3g} is {r:.2g} x the formal "
+            f"{e['formal_error']:.3g}: the data kept matter more than the noise (flagged)"
+        )
     if e["larger"] == "formal":
-        return (f"{name}: formal error {e['formal_error']:.3g} is {1 / r:.2g} x the jackknife "
-                f"{e['jackknife_error']:.3g}")
+        return f"{name}: formal error {e['formal_error']:.3g} is {1 / r:.2g} x the jackknife {e['jackknife_error']:.3g}"
     if e["larger"] == "similar":
-        return (f"{name}: jackknife {e['jackknife_error']:.3g} and formal {e['formal_error']:.3g} "
-                f"errors agree (ratio {r:.2g})")
+        return (
+            f"{name}: jackknife {e['jackknife_error']:.3g} and formal {e['formal_error']:.3g} "
+            f"errors agree (ratio {r:.2g})"
+        )
     return f"{name}: jackknife error {e['jackknife_error']:.3g}; formal error undefined"

@@ -12,6 +12,7 @@ all models fitted to the same data.
 
 Priors other than the bounds are ignored here (use the sampler for them).
 """
+
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -81,6 +82,7 @@ class FitResult:
 def _poor_fit_chi2(dof):
     """The 99.9% point of the chi-square distribution with ``dof`` degrees of freedom (scipy)."""
     from scipy.stats import chi2 as chi2_dist
+
     return float(chi2_dist.isf(1e-3, dof))
 
 
@@ -96,12 +98,17 @@ def bic(chi2, k, n):
 
 # -------------------------------------------------------------------------------------- helpers
 
+
 def free_bounds(model):
     """(lower, upper) arrays of the free parameters, whatever form the model returns them in."""
     b = model.free_bounds()
     k = len(model.free_names)
-    if isinstance(b, tuple) and len(b) == 2 and all(np.ndim(x) == 1 and len(x) == k for x in b) \
-            and not (k == 2 and all(isinstance(x, tuple) for x in b)):
+    if (
+        isinstance(b, tuple)
+        and len(b) == 2
+        and all(np.ndim(x) == 1 and len(x) == k for x in b)
+        and not (k == 2 and all(isinstance(x, tuple) for x in b))
+    ):
         lo, hi = np.asarray(b[0], float), np.asarray(b[1], float)
     else:
         arr = np.asarray(b, dtype=float).reshape(k, 2) if k else np.zeros((0, 2))
@@ -115,19 +122,24 @@ def check_bounds(model):
     x0 = np.asarray(model.get_free(), float)
     for name, a, b, x in zip(model.free_names, lo, hi, x0):
         if not (a < b):
-            raise FitError(f"parameter {name} has inconsistent bounds: min {a:g} is not below max {b:g}",
-                           "correct min/max in the model file")
+            raise FitError(
+                f"parameter {name} has inconsistent bounds: min {a:g} is not below max {b:g}",
+                "correct min/max in the model file",
+            )
         if not np.isfinite(x):
             raise FitError(f"parameter {name} has no finite start value", "set a value in the model file")
         if not (a <= x <= b):
-            raise FitError(f"the start value {x:g} of parameter {name} lies outside its bounds "
-                           f"[{a:g}, {b:g}]", "move the value inside the bounds or widen them")
+            raise FitError(
+                f"the start value {x:g} of parameter {name} lies outside its bounds [{a:g}, {b:g}]",
+                "move the value inside the bounds or widen them",
+            )
     return lo, hi
 
 
 def rad_per_unit(model):
     """Radians per model angular unit (1 mas if the model does not say)."""
     import astropy.units as un
+
     unit = getattr(model, "angular_unit", "mas")
     try:
         return float(un.Unit(unit).to(un.rad))
@@ -194,7 +206,7 @@ def null_directions(jac, names, tol=NULL_TOL):
     jac = np.asarray(jac, float)
     if jac.size == 0:
         return [[n] for n in names], np.inf
-    norms = np.sqrt(np.sum(jac ** 2, axis=0))
+    norms = np.sqrt(np.sum(jac**2, axis=0))
     scale = norms.max() if norms.size else 0.0
     if not np.isfinite(scale) or scale == 0:
         return [list(names)], np.inf
@@ -228,7 +240,7 @@ def covariance_from_jacobian(jac, tol=NULL_TOL):
     """
     jac = np.asarray(jac, float)
     k = jac.shape[1]
-    norms = np.sqrt(np.sum(jac ** 2, axis=0))
+    norms = np.sqrt(np.sum(jac**2, axis=0))
     bad = np.zeros(k, bool)
     cov = np.full((k, k), np.nan)
     if k == 0:
@@ -298,16 +310,14 @@ def residual_breakdown(statistic, residuals):
     labels, inverse = np.unique(vs.baseline_labels, return_inverse=True)
     b_chi2 = np.bincount(inverse, weights=row_chi2, minlength=len(labels))
     b_n = np.bincount(inverse, weights=row_n, minlength=len(labels))
-    per_baseline = {str(lab): {"chi2": float(c), "n": float(m)}
-                    for lab, c, m in zip(labels, b_chi2, b_n) if m > 0}
+    per_baseline = {str(lab): {"chi2": float(c), "n": float(m)} for lab, c, m in zip(labels, b_chi2, b_n) if m > 0}
     names = np.array(vs.stations.names)
     a1, a2 = vs.ant1, vs.ant2
-    s_chi2 = np.bincount(a1, weights=row_chi2, minlength=len(names)) + \
-        np.bincount(a2, weights=row_chi2, minlength=len(names))
-    s_n = np.bincount(a1, weights=row_n, minlength=len(names)) + \
-        np.bincount(a2, weights=row_n, minlength=len(names))
-    per_station = {str(nm): {"chi2": float(c), "n": float(m)}
-                   for nm, c, m in zip(names, s_chi2, s_n) if m > 0}
+    s_chi2 = np.bincount(a1, weights=row_chi2, minlength=len(names)) + np.bincount(
+        a2, weights=row_chi2, minlength=len(names)
+    )
+    s_n = np.bincount(a1, weights=row_n, minlength=len(names)) + np.bincount(a2, weights=row_n, minlength=len(names))
+    per_station = {str(nm): {"chi2": float(c), "n": float(m)} for nm, c, m in zip(names, s_chi2, s_n) if m > 0}
     for d in (per_baseline, per_station):
         for item in d.values():
             item["n"] = int(round(item["n"])) if float(item["n"]).is_integer() else item["n"]
@@ -340,6 +350,7 @@ def fix_degeneracies(statistic):
 
 # ------------------------------------------------------------------------------------- the fit
 
+
 def _run_start(statistic, x0, lo, hi, max_nfev):
     # least_squares needs a start inside the bounds; nudge one sitting on a bound inward a little
     with np.errstate(invalid="ignore"):
@@ -350,17 +361,26 @@ def _run_start(statistic, x0, lo, hi, max_nfev):
         x0 = np.where(on_lo, lo + 1e-9 * span, x0)
         x0 = np.where(on_hi, hi - 1e-9 * span, x0)
     with np.errstate(all="ignore"):
-        return least_squares(statistic.residuals, x0, jac=statistic.jacobian, bounds=(lo, hi),
-                             method="trf", x_scale="jac", max_nfev=max_nfev)
+        return least_squares(
+            statistic.residuals,
+            x0,
+            jac=statistic.jacobian,
+            bounds=(lo, hi),
+            method="trf",
+            x_scale="jac",
+            max_nfev=max_nfev,
+        )
 
 
 def _global_start(statistic, lo, hi, seed, maxiter=150):
     names = statistic.model.free_names
     open_ = [n for n, a, b in zip(names, lo, hi) if not (np.isfinite(a) and np.isfinite(b))]
     if open_:
-        raise FitError("the global search needs a finite min and max for every free parameter; "
-                       "these have none: " + ", ".join(open_),
-                       "set min and max for them in the model file, or drop --global-search")
+        raise FitError(
+            "the global search needs a finite min and max for every free parameter; "
+            "these have none: " + ", ".join(open_),
+            "set min and max for them in the model file, or set global_search to False",
+        )
 
     def objective(x):
         with np.errstate(all="ignore"):
@@ -370,13 +390,30 @@ def _global_start(statistic, lo, hi, seed, maxiter=150):
                 return 1e300
         return c if np.isfinite(c) else 1e300
 
-    res = differential_evolution(objective, list(zip(lo, hi)), seed=seed, maxiter=maxiter,
-                                 popsize=15, tol=1e-7, polish=False, init="latinhypercube")
+    res = differential_evolution(
+        objective,
+        list(zip(lo, hi)),
+        seed=seed,
+        maxiter=maxiter,
+        popsize=15,
+        tol=1e-7,
+        polish=False,
+        init="latinhypercube",
+    )
     return np.asarray(res.x, float)
 
 
-def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=None,
-        rescale_errors=False, max_nfev=None, strict=True):
+def fit(
+    statistic,
+    model=None,
+    starts=1,
+    seed=0,
+    global_search=False,
+    progress=None,
+    rescale_errors=False,
+    max_nfev=None,
+    strict=True,
+):
     """Least-squares fit of the statistic's model; returns a :class:`FitResult`.
 
     ``model``: the model to fit (default: the statistic's own); it is changed in place (parameters
@@ -392,43 +429,53 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         statistic = statistic.rebuilt(model)
     model = statistic.model
     if int(starts) < 1:
-        raise UvfitError(f"--starts must be at least 1 (got {starts})")
+        raise UvfitError(f"starts must be at least 1 (got {starts})")
     statistic, fixed, notices = fix_degeneracies(statistic)
     names = list(model.free_names)
     k = len(names)
     if k == 0:
-        raise FitError("the model has no free parameter left to fit" +
-                       (f" (fixed because the mode cannot constrain them: {', '.join(fixed)})" if fixed else ""),
-                       "free at least one parameter in the model file, or use another --mode")
+        raise FitError(
+            "the model has no free parameter left to fit"
+            + (f" (fixed because the mode cannot constrain them: {', '.join(fixed)})" if fixed else ""),
+            "free at least one parameter in the model file, or use another fitting mode",
+        )
     n = statistic.n_data
     if n <= k:
-        raise FitError(f"only {n} data for {k} free parameters: the fit is not determined",
-                       "fix some parameters, or use more data (check the selection options)")
+        raise FitError(
+            f"only {n} data for {k} free parameters: the fit is not determined",
+            "fix some parameters, or use more data (check the selection options)",
+        )
     lo, hi = check_bounds(model)
     x_start = np.asarray(model.get_free(), float)
 
     with np.errstate(all="ignore"):
         r0 = statistic.residuals(x_start)
     if not np.all(np.isfinite(r0)):
-        raise FitError("the model gives non-finite predictions at its start values",
-                       "check the parameter values in the model file")
+        raise FitError(
+            "the model gives non-finite predictions at its start values", "check the parameter values in the model file"
+        )
     with np.errstate(all="ignore"):
         j0 = statistic.jacobian(x_start)
     j0 = np.asarray(j0, float)
     if not np.all(np.isfinite(j0)):
-        raise FitError("the model's derivatives are not finite at its start values",
-                       "check the parameter values in the model file (a size of exactly zero?)")
+        raise FitError(
+            "the model's derivatives are not finite at its start values",
+            "check the parameter values in the model file (a size of exactly zero?)",
+        )
     if not np.any(j0 != 0):
-        raise FitError("the data cannot constrain any free parameter at the start values (the "
-                       f"{statistic.mode} data do not change when {', '.join(names)} change)",
-                       "fix these parameters, choose start values where they matter, or use another --mode")
+        raise FitError(
+            "the data cannot constrain any free parameter at the start values (the "
+            f"{statistic.mode} data do not change when {', '.join(names)} change)",
+            "fix these parameters, choose start values where they matter, or use another fitting mode",
+        )
     groups, _ = null_directions(j0, names)
     for grp in groups:
         if len(grp) == 1:
             notices.append(f"at the start values the data do not constrain {grp[0]}")
         else:
-            notices.append("at the start values the data cannot separate " + ", ".join(grp) +
-                           " (a degenerate combination)")
+            notices.append(
+                "at the start values the data cannot separate " + ", ".join(grp) + " (a degenerate combination)"
+            )
 
     rng = np.random.default_rng(seed)
     start_list = [x_start] + random_starts(model, statistic, int(starts) - 1, rng)
@@ -457,12 +504,15 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
             progress(1)
     if best is None:
         if best_any is None:
-            raise FitError("every start of the fit failed: the model's predictions were not finite",
-                           "check the start values and bounds in the model file")
+            raise FitError(
+                "every start of the fit failed: the model's predictions were not finite",
+                "check the start values and bounds in the model file",
+            )
         if strict:
-            raise FitError(f"the fit did not converge after {best_any.nfev} evaluations "
-                           f"({len(start_list)} start(s))",
-                           "try --starts 20, tighter bounds, or better start values")
+            raise FitError(
+                f"the fit did not converge after {best_any.nfev} evaluations ({len(start_list)} start(s))",
+                "try starts 20, tighter bounds, or better start values",
+            )
         best = best_any
         notices.append(f"the fit did not converge after {best.nfev} evaluations")
 
@@ -477,35 +527,60 @@ def fit(statistic, model=None, starts=1, seed=0, global_search=False, progress=N
         if len(unconstrained) == k:
             msg = "the data constrain none of the free parameters at the best fit"
             if strict:
-                raise FitError(msg + f" ({', '.join(names)})",
-                               "fix or tie parameters, or choose a model with fewer free parameters")
+                raise FitError(
+                    msg + f" ({', '.join(names)})",
+                    "fix or tie parameters, or choose a model with fewer free parameters",
+                )
         groups, _ = null_directions(jac, names)
         for grp in groups:
-            notices.append("at the best fit the data cannot constrain " + " + ".join(grp) +
-                           ": their errors are undefined (reported as infinite); fix or tie one of them")
+            notices.append(
+                "at the best fit the data cannot constrain "
+                + " + ".join(grp)
+                + ": their errors are undefined (reported as infinite); fix or tie one of them"
+            )
     dof = n - k
     scale = 1.0
     if rescale_errors:
         scale = float(np.sqrt(chi2 / dof)) if dof > 0 and chi2 > 0 else 1.0
-        cov = cov * scale ** 2
+        cov = cov * scale**2
         notices.append(f"errors multiplied by sqrt(chi2/dof) = {scale:.3g} (--rescale-errors)")
     elif dof > 0 and chi2 > _poor_fit_chi2(dof):
         notices.append(
             f"reduced chi2 {chi2 / dof:.3g} is far above 1 (beyond the 99.9% point of chi2 with "
             f"{dof} degrees of freedom): the model does not describe the data to within their "
             "errors, so the quoted errors are too small; consider a richer model, a systematic "
-            "floor (--systematic) or --rescale-errors")
+            "floor (--systematic) or --rescale-errors"
+        )
     with np.errstate(invalid="ignore"):
         errors = np.sqrt(np.diag(cov))
     corr = correlation_from_covariance(cov)
     per_station, per_baseline = residual_breakdown(statistic, r)
     result = FitResult(
-        names=names, values=theta, errors=errors, covariance=cov, correlation=corr, chi2=chi2,
-        dof=dof, n_data=n, log_likelihood=float(statistic.log_likelihood(theta)),
-        converged=bool(best.status > 0), status=str(best.message), nfev=int(best.nfev),
-        model=model.copy(), statistic=statistic, seed=int(seed), starts=int(starts),
-        global_search=bool(global_search), rescale_errors=bool(rescale_errors), error_scale=scale,
-        systematic=float(getattr(statistic, "systematic", 0.0)), per_station=per_station,
-        per_baseline=per_baseline, notices=notices, fixed_by_fitter=fixed, start_chi2=start_chi2,
-        unconstrained=unconstrained)
+        names=names,
+        values=theta,
+        errors=errors,
+        covariance=cov,
+        correlation=corr,
+        chi2=chi2,
+        dof=dof,
+        n_data=n,
+        log_likelihood=float(statistic.log_likelihood(theta)),
+        converged=bool(best.status > 0),
+        status=str(best.message),
+        nfev=int(best.nfev),
+        model=model.copy(),
+        statistic=statistic,
+        seed=int(seed),
+        starts=int(starts),
+        global_search=bool(global_search),
+        rescale_errors=bool(rescale_errors),
+        error_scale=scale,
+        systematic=float(getattr(statistic, "systematic", 0.0)),
+        per_station=per_station,
+        per_baseline=per_baseline,
+        notices=notices,
+        fixed_by_fitter=fixed,
+        start_chi2=start_chi2,
+        unconstrained=unconstrained,
+    )
     return result

@@ -21,6 +21,7 @@ Rules, stated once (README "sample" and DEVELOPERS "Sampling" repeat them):
   pressed against 1, mirrored: ``lower_limit_95`` = the 5th percentile), except angles on the
   circle. A brightness temperature whose size is an upper limit gets a 95% lower limit.
 """
+
 import math
 
 import numpy as np
@@ -72,9 +73,17 @@ def summarize(x, i_max=None, unit="", period=None, lower_bound=None, upper_bound
     """
     x = np.asarray(x, dtype=float)
     good = np.isfinite(x)
-    out = {"median": float("nan"), "lower": float("nan"), "upper": float("nan"),
-           "lower_95": float("nan"), "upper_95": float("nan"), "mean": float("nan"),
-           "std": float("nan"), "max_posterior": float("nan"), "unit": unit}
+    out = {
+        "median": float("nan"),
+        "lower": float("nan"),
+        "upper": float("nan"),
+        "lower_95": float("nan"),
+        "upper_95": float("nan"),
+        "mean": float("nan"),
+        "std": float("nan"),
+        "max_posterior": float("nan"),
+        "unit": unit,
+    }
     if i_max is not None and np.isfinite(x[i_max]):
         out["max_posterior"] = float(x[i_max])
     if not good.any():
@@ -82,24 +91,27 @@ def summarize(x, i_max=None, unit="", period=None, lower_bound=None, upper_bound
     xs = x[good]
     if period:
         xs = circular_unwrap(xs, period)
-    p025, p16, p50, p84, p975 = np.percentile(xs, PERCENTILES,
-                                              method="nearest" if np.isinf(xs).any() else "linear")
+    p025, p16, p50, p84, p975 = np.percentile(xs, PERCENTILES, method="nearest" if np.isinf(xs).any() else "linear")
     shift = 0.0
     if period:
         shift = -period * math.floor(p50 / period)
         if i_max is not None and np.isfinite(x[i_max]):
             out["max_posterior"] = float(x[i_max] % period)
-    out.update(median=float(p50 + shift), lower=float(p16 + shift), upper=float(p84 + shift),
-               lower_95=float(p025 + shift), upper_95=float(p975 + shift),
-               mean=float(np.mean(xs)) + shift,
-               std=float(np.std(xs, ddof=1)) if xs.size > 1 else float("nan"))
+    out.update(
+        median=float(p50 + shift),
+        lower=float(p16 + shift),
+        upper=float(p84 + shift),
+        lower_95=float(p025 + shift),
+        upper_95=float(p975 + shift),
+        mean=float(np.mean(xs)) + shift,
+        std=float(np.std(xs, ddof=1)) if xs.size > 1 else float("nan"),
+    )
     if period:
         out["circular"] = True
     method = "nearest" if np.isinf(xs).any() else "linear"
     if lower_bound is not None and np.isfinite(lower_bound) and consistent_with_bound(xs, lower_bound):
         out["upper_limit_95"] = float(np.percentile(xs, 95.0, method=method))
-    if upper_bound is not None and np.isfinite(upper_bound) and \
-            consistent_with_bound(xs, upper_bound, side="upper"):
+    if upper_bound is not None and np.isfinite(upper_bound) and consistent_with_bound(xs, upper_bound, side="upper"):
         out["lower_limit_95"] = float(np.percentile(xs, 5.0, method=method))
     if good.sum() < x.size:
         out["n_undefined"] = int(x.size - good.sum())
@@ -147,9 +159,14 @@ def double_members(model, movable=()):
         swap = comp.shape.symmetric_members()
         if swap is None:
             continue
-        full = {r: f"{comp.name}.{local}" for r, local in
-                (("flux_ratio", swap.ratio), ("separation", swap.separation),
-                 ("position_angle", swap.angle))}
+        full = {
+            r: f"{comp.name}.{local}"
+            for r, local in (
+                ("flux_ratio", swap.ratio),
+                ("separation", swap.separation),
+                ("position_angle", swap.angle),
+            )
+        }
         full["east"], full["north"] = positions[comp.name]
         own = {r: index.get(n) for r, n in full.items()}
         if any(own[r] is None for r in ("flux_ratio", "separation", "position_angle")):
@@ -223,30 +240,35 @@ def order_samples(model, samples, order_by="flux", groups=None, movable=()):
         groups = swap_groups(model)
     doubles = double_members(model, movable)
     if not groups and not doubles:
-        return samples, {"rule": order_by, "groups": [], "description":
-                         "no two components can swap labels; no ordering applied"}
+        return samples, {
+            "rule": order_by,
+            "groups": [],
+            "description": "no two components can swap labels; no ordering applied",
+        }
     names = list(model.free_names)
     texts, swapped = _swap_double_members(model, samples, order_by, doubles)
     for group in groups:
         comps = [c for c, _ in group]
-        blocks = np.array([idx for _, idx in group])          # (m, p)
+        blocks = np.array([idx for _, idx in group])  # (m, p)
         first = [names[j] for j in group[0][1]]
         if order_by == "flux":
             k = first.index(model.flux_names()[comps[0]])
-            key = -samples[:, blocks[:, k]]                    # brightest first
+            key = -samples[:, blocks[:, k]]  # brightest first
         else:
             ke, kn = (first.index(n) for n in model.position_names()[comps[0]])
             key = np.hypot(samples[:, blocks[:, ke]], samples[:, blocks[:, kn]])
-        order = np.argsort(key, axis=1, kind="stable")         # (n, m)
+        order = np.argsort(key, axis=1, kind="stable")  # (n, m)
         rows = np.arange(samples.shape[0])[:, None, None]
-        new = samples[rows, blocks[order]]                      # (n, m, p)
+        new = samples[rows, blocks[order]]  # (n, m, p)
         for j in range(len(comps)):
             samples[:, blocks[j]] = new[:, j, :]
         swapped |= np.any(order != np.arange(len(comps)), axis=1)
         rule = "largest flux first" if order_by == "flux" else "nearest the phase centre first"
-        texts.append(f"components {', '.join(comps)} (same shape) are labelled in every sample by "
-                     f"{order_by}, {rule}")
-    return samples, {"rule": order_by, "groups": [[c for c, _ in g] for g in groups],
-                     "doubles": [d[0] for d in doubles],
-                     "description": "; ".join(texts) if texts else "no ordering applied",
-                     "fraction_relabelled": float(np.mean(swapped)) if samples.shape[0] else 0.0}
+        texts.append(f"components {', '.join(comps)} (same shape) are labelled in every sample by {order_by}, {rule}")
+    return samples, {
+        "rule": order_by,
+        "groups": [[c for c, _ in g] for g in groups],
+        "doubles": [d[0] for d in doubles],
+        "description": "; ".join(texts) if texts else "no ordering applied",
+        "fraction_relabelled": float(np.mean(swapped)) if samples.shape[0] else 0.0,
+    }

@@ -10,6 +10,7 @@ Ann. Math. Stat. 9, 60: the profile delta chi2 follows chi2 with one degree of f
 with several dips gives several [lo, hi] pairs; edges are found by a parabola through the three
 grid points around each crossing (exact for a quadratic profile).
 """
+
 from __future__ import annotations
 
 import numpy as np
@@ -26,13 +27,12 @@ def _crossing(g, d, i, level):
     lo_x, hi_x = g[i], g[i + 1]
     j = min(max(i - 1, 0), len(g) - 3)
     if j >= 0:
-        xs, ys = g[j:j + 3], d[j:j + 3]
+        xs, ys = g[j : j + 3], d[j : j + 3]
         try:
             c = np.polyfit(xs, ys - level, 2)
             roots = np.roots(c)
             roots = roots[np.isreal(roots)].real
-            inside = roots[(roots >= lo_x - 1e-12 * abs(hi_x - lo_x)) &
-                           (roots <= hi_x + 1e-12 * abs(hi_x - lo_x))]
+            inside = roots[(roots >= lo_x - 1e-12 * abs(hi_x - lo_x)) & (roots <= hi_x + 1e-12 * abs(hi_x - lo_x))]
             if inside.size == 1:
                 return float(inside[0])
         except (np.linalg.LinAlgError, ValueError):
@@ -85,8 +85,7 @@ def default_range(value, error, lo, hi, width=5.0):
     return float(max(a, lo)), float(min(b, hi))
 
 
-def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best=None,
-            max_nfev=None, progress=None):
+def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best=None, max_nfev=None, progress=None):
     """The profile of parameter ``name`` of the statistic's model; a JSON-ready dict.
 
     ``best``: a FitResult of the same statistic (default: a fit with ``starts`` starts).
@@ -106,8 +105,9 @@ def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best
     names = list(best.names)
     if name not in names:
         known = ", ".join(names)
-        raise UvfitError(f"parameter {name} is not free in this fit (free: {known})",
-                         "name a free parameter as component.parameter")
+        raise UvfitError(
+            f"parameter {name} is not free in this fit (free: {known})", "name a free parameter as component.parameter"
+        )
     k = names.index(name)
     value, error = best.value(name), best.error(name)
     model = best.model.copy()
@@ -120,8 +120,10 @@ def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best
         if not a < b:
             raise UvfitError(f"the range of {name} must have lo below hi (got {a:g}, {b:g})")
         if a < p_lo or b > p_hi:
-            raise UvfitError(f"the range {a:g}..{b:g} of {name} leaves its bounds "
-                             f"[{p_lo:g}, {p_hi:g}]", "choose a range inside the bounds")
+            raise UvfitError(
+                f"the range {a:g}..{b:g} of {name} leaves its bounds [{p_lo:g}, {p_hi:g}]",
+                "choose a range inside the bounds",
+            )
     grid = np.linspace(a, b, points)
     if a < value < b and not np.any(np.isclose(grid, value, rtol=0, atol=1e-12 * (b - a))):
         grid = np.sort(np.append(grid, value))
@@ -163,16 +165,24 @@ def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best
         if progress:
             progress(1)
     if not np.any(np.isfinite(chi2)):
-        raise FitError(f"the profile of {name} failed at every grid value",
-                       "check the range and the model's start values")
+        raise FitError(
+            f"the profile of {name} failed at every grid value", "check the range and the model's start values"
+        )
     i_min = int(np.nanargmin(chi2))
     chi2_min = float(min(best.chi2, chi2[i_min]))
     best_value = float(value if best.chi2 <= chi2[i_min] else grid[i_min])
     delta = chi2 - chi2_min
     from ..labels import unit_text
-    out = {"parameter": name, "unit": unit_text(model.parameters[name]),
-           "grid": [float(x) for x in grid], "chi2": [float(c) for c in chi2],
-           "best": best_value, "chi2_min": chi2_min, "formal_error": float(error)}
+
+    out = {
+        "parameter": name,
+        "unit": unit_text(model.parameters[name]),
+        "grid": [float(x) for x in grid],
+        "chi2": [float(c) for c in chi2],
+        "best": best_value,
+        "chi2_min": chi2_min,
+        "formal_error": float(error),
+    }
     reaches = False
     for key, level in LEVELS.items():
         iv, open_end = intervals(grid, delta, level)
@@ -185,10 +195,8 @@ def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best
     out["lower_than_fit"] = bool(chi2[i_min] < best.chi2 - 1e-6 * max(1.0, best.chi2))
     out["seed"] = int(seed)
     out["starts"] = int(starts)
-    out["method"] = ("profile likelihood (Venzon & Moolgavkar 1988), delta chi2 1 and 3.84 "
-                     "(Wilks 1938)")
-    out["other_parameters"] = {n: [None if s is None else float(s[j]) for s in solutions]
-                               for j, n in enumerate(others)}
+    out["method"] = "profile likelihood (Venzon & Moolgavkar 1988), delta chi2 1 and 3.84 (Wilks 1938)"
+    out["other_parameters"] = {n: [None if s is None else float(s[j]) for s in solutions] for j, n in enumerate(others)}
     return out
 
 
@@ -198,8 +206,10 @@ def profile_note(prof):
     iv = "; ".join(f"{a:.6g} .. {b:.6g}" for a, b in prof["interval_68"]) or "none"
     line = f"profile of {name}: best {prof['best']:.6g}, 68% interval {iv}"
     if prof["unconstrained"]:
-        line += (" (unconstrained: delta chi2 stays below 1 up to an end of the range "
-                 f"{prof['grid'][0]:.6g} .. {prof['grid'][-1]:.6g})")
+        line += (
+            " (unconstrained: delta chi2 stays below 1 up to an end of the range "
+            f"{prof['grid'][0]:.6g} .. {prof['grid'][-1]:.6g})"
+        )
     if len(prof["interval_68"]) > 1:
         line += f" ({len(prof['interval_68'])} separate dips)"
     if prof.get("lower_than_fit"):

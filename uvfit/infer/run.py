@@ -3,6 +3,7 @@
 ``run_fit`` returns the very dictionary that ``uvfit fit --json`` writes, so that the batch runner,
 the demo and the report can fit without the command line. See README, "fit", for the keys.
 """
+
 import numpy as np
 
 from .. import __version__
@@ -10,7 +11,6 @@ from ..labels import FIT_CAUTIONS, unit_text
 from ..stats.modes import make_statistic
 from .derived import derived_quantities
 from .lsq import fit
-
 
 
 def parameter_table(result):
@@ -28,16 +28,21 @@ def parameter_table(result):
             err = float(errors.get(root, float("nan")))
         else:
             err = None
-        out[name] = {"value": float(p.value), "error": err, "unit": unit_text(p), "free": bool(free),
-                     "fixed": bool(p.fixed), "tie": tie}
+        out[name] = {
+            "value": float(p.value),
+            "error": err,
+            "unit": unit_text(p),
+            "free": bool(free),
+            "fixed": bool(p.fixed),
+            "tie": tie,
+        }
         note = getattr(p, "note", None)
         if note:
             out[name]["note"] = note
     return out
 
 
-def result_dict(result, derived=None, mode=None, data_path=None, selection=None, redshift=0.0,
-                frequency=None):
+def result_dict(result, derived=None, mode=None, data_path=None, selection=None, redshift=0.0, frequency=None):
     """The JSON-ready dictionary of a fit (see README, "fit", for the keys)."""
     model = result.model
     stat = result.statistic
@@ -59,10 +64,17 @@ def result_dict(result, derived=None, mode=None, data_path=None, selection=None,
         "parameters": parameter_table(result),
         "derived": derived or {},
         "statistics": {
-            "chi2": result.chi2, "dof": result.dof, "reduced_chi2": result.reduced_chi2,
-            "n_data": result.n_data, "n_free": result.n_free, "aic": result.aic, "bic": result.bic,
-            "log_likelihood": result.log_likelihood, "converged": result.converged,
-            "status": result.status, "n_evaluations": result.nfev,
+            "chi2": result.chi2,
+            "dof": result.dof,
+            "reduced_chi2": result.reduced_chi2,
+            "n_data": result.n_data,
+            "n_free": result.n_free,
+            "aic": result.aic,
+            "bic": result.bic,
+            "log_likelihood": result.log_likelihood,
+            "converged": result.converged,
+            "status": result.status,
+            "n_evaluations": result.nfev,
         },
         "covariance": {"names": names, "matrix": np.asarray(result.covariance).tolist()},
         "correlation": {"names": names, "matrix": np.asarray(result.correlation).tolist()},
@@ -78,9 +90,25 @@ def result_dict(result, derived=None, mode=None, data_path=None, selection=None,
     return out
 
 
-def run_fit(vset, model, mode="complex", systematic=0.0, rescale_errors=False, starts=1, seed=0,
-            global_search=False, redshift=0.0, progress=None, data_path=None, selection=None,
-            resolved_test=True, frequency=None, return_result=False, max_evaluations=None, **options):
+def run_fit(
+    vset,
+    model,
+    mode="complex",
+    systematic=0.0,
+    rescale_errors=False,
+    starts=1,
+    seed=0,
+    global_search=False,
+    redshift=0.0,
+    progress=None,
+    data_path=None,
+    selection=None,
+    resolved_test=True,
+    frequency=None,
+    return_result=False,
+    max_evaluations=None,
+    **options,
+):
     """Fit ``model`` (not changed; a copy is fitted) to ``vset`` in ``mode``; returns the result
     dictionary (and the FitResult too with ``return_result``). ``options`` go to the statistic.
 
@@ -89,13 +117,20 @@ def run_fit(vset, model, mode="complex", systematic=0.0, rescale_errors=False, s
     """
     work = model.copy()
     stat = make_statistic(mode, vset, work, systematic=systematic, **options)
-    result = fit(stat, starts=starts, seed=seed, global_search=global_search, progress=progress,
-                 rescale_errors=rescale_errors, max_nfev=max_evaluations)
+    result = fit(
+        stat,
+        starts=starts,
+        seed=seed,
+        global_search=global_search,
+        progress=progress,
+        rescale_errors=rescale_errors,
+        max_nfev=max_evaluations,
+    )
     if frequency is None:
         vs = result.statistic.vset
         frequency = float(np.mean(vs.frequency[~vs.flag]))
-    derived = derived_quantities(result, redshift=redshift, frequency=frequency,
-                                 resolved_test=resolved_test)
-    out = result_dict(result, derived, mode=mode, data_path=data_path, selection=selection,
-                      redshift=redshift, frequency=frequency)
+    derived = derived_quantities(result, redshift=redshift, frequency=frequency, resolved_test=resolved_test)
+    out = result_dict(
+        result, derived, mode=mode, data_path=data_path, selection=selection, redshift=redshift, frequency=frequency
+    )
     return (out, result) if return_result else out

@@ -3,6 +3,7 @@
 Drawn with the corner package (Foreman-Mackey 2016, JOSS 1, 24) under the house style; the 16,
 50 and 84 % quantiles are marked.
 """
+
 import matplotlib
 import numpy as np
 
@@ -21,8 +22,7 @@ def corner_plot(samples, names, units=None, truths=None, title=None):
 
     samples = np.asarray(samples, float)
     if samples.ndim != 2 or samples.shape[0] < 2:
-        raise UvfitError("the chain has too few samples for a corner plot",
-                         "sample longer, or discard fewer steps")
+        raise UvfitError("the chain has too few samples for a corner plot", "sample longer, or discard fewer steps")
     if samples.shape[1] != len(names):
         raise UvfitError(f"the chain has {samples.shape[1]} parameters but {len(names)} names")
     units = [style.angle_label(u) if u else "" for u in (units or [""] * len(names))]
@@ -35,17 +35,27 @@ def corner_plot(samples, names, units=None, truths=None, title=None):
     size = max(6.0, 1.9 * len(names))
     fig, _ = style.new_figure(len(names), len(names), figsize=(size, size), grid=False)
     with style.style(), matplotlib.rc_context({"axes.grid": False}):
-        corner.corner(samples, labels=labels, titles=list(names), fig=fig,
-                      quantiles=[0.16, 0.5, 0.84], show_titles=True, title_fmt=".3g", range=ranges,
-                      color=DATA_COLOUR, hist_kwargs={"color": DATA_COLOUR}, truths=truths,
-                      truth_color=MODEL_COLOUR, label_kwargs={"fontsize": 9},
-                      title_kwargs={"fontsize": 9})
+        corner.corner(
+            samples,
+            labels=labels,
+            titles=list(names),
+            fig=fig,
+            quantiles=[0.16, 0.5, 0.84],
+            show_titles=True,
+            title_fmt=".3g",
+            range=ranges,
+            color=DATA_COLOUR,
+            hist_kwargs={"color": DATA_COLOUR},
+            truths=truths,
+            truth_color=MODEL_COLOUR,
+            label_kwargs={"fontsize": 9},
+            title_kwargs={"fontsize": 9},
+        )
         if title:
             fig.subplots_adjust(top=0.92)
             fig.suptitle(title)
     q = np.percentile(samples, [16, 50, 84], axis=0)
-    return fig, {"names": list(names), "n_samples": int(samples.shape[0]),
-                 "lower": q[0], "median": q[1], "upper": q[2]}
+    return fig, {"names": list(names), "n_samples": int(samples.shape[0]), "lower": q[0], "median": q[1], "upper": q[2]}
 
 
 def write_corner_plot(post, path, force=False):

@@ -3,6 +3,7 @@ report embeds.
 
 ``make_figure(kind, view, ...)`` -> ``(Figure, numbers)``; the caller saves and closes it.
 """
+
 from . import plots
 from .sky import sky_figure
 

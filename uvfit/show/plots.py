@@ -9,6 +9,7 @@ Orientation (see README, "Conventions"): l (relative right ascension) increases 
 (relative declination) to the north. Sky images and (u, v) coverage are drawn with east to the
 LEFT, as the sky is seen, so the u axis increases to the left too (common practice).
 """
+
 import numpy as np
 from matplotlib.patches import Circle, Ellipse
 
@@ -47,8 +48,10 @@ def _break_gaps(x, *ys, factor=5.0):
 def _check_lengths(vset, model_vis):
     model_vis = np.asarray(model_vis, dtype=complex).ravel()
     if model_vis.shape[0] != vset.n:
-        raise UvfitError(f"model visibilities have {model_vis.shape[0]} rows but the data {vset.n}",
-                         "evaluate the model at the data's own (u, v)")
+        raise UvfitError(
+            f"model visibilities have {model_vis.shape[0]} rows but the data {vset.n}",
+            "evaluate the model at the data's own (u, v)",
+        )
     return model_vis
 
 
@@ -86,37 +89,33 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
         res_phase = np.where(phase_sigma > 0, dphase / phase_sigma, np.nan)
     x = q / scale
 
-    fig, axes = style.new_figure(3, 1, sharex=True, figsize=(8.0, 8.5),
-                                 gridspec_kw={"height_ratios": [3, 2, 1.6]})
+    fig, axes = style.new_figure(3, 1, sharex=True, figsize=(8.0, 8.5), gridspec_kw={"height_ratios": [3, 2, 1.6]})
     with style.style():
         ax_a, ax_p, ax_r = axes
-        ax_a.errorbar(x, amp, yerr=sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR,
-                      alpha=0.6, label="data ±1σ", zorder=2)
-        ax_a.plot(x, mamp, ".", ms=2.5, color=MODEL_COLOUR, label="model at the data's (u, v)",
-                  zorder=3)
+        ax_a.errorbar(
+            x, amp, yerr=sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR, alpha=0.6, label="data ±1σ", zorder=2
+        )
+        ax_a.plot(x, mamp, ".", ms=2.5, color=MODEL_COLOUR, label="model at the data's (u, v)", zorder=3)
         ax_a.set_ylabel("amplitude (Jy)")
         if log_amplitude:
             ax_a.set_yscale("log")
         else:
             ax_a.set_ylim(bottom=0.0)
         ax_a.legend(loc="upper right", markerscale=2.5)
-        ax_p.errorbar(x, phase, yerr=phase_sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR,
-                      alpha=0.6, zorder=2)
+        ax_p.errorbar(x, phase, yerr=phase_sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR, alpha=0.6, zorder=2)
         ax_p.plot(x, mphase, ".", ms=2.5, color=MODEL_COLOUR, zorder=3)
         ax_p.set_ylabel("phase (deg)")
         ax_p.set_ylim(-190, 190)
         ax_p.set_yticks([-180, -90, 0, 90, 180])
         ax_r.axhline(0.0, color="0.3", lw=0.8)
-        ax_r.plot(x, res_amp, "o", ms=2.5, color=DATA_COLOUR, alpha=0.7,
-                  label="(|V| − |M|) / σ")
-        ax_r.plot(x, res_phase, "^", ms=2.5, color=OKABE_ITO["orange"], alpha=0.7,
-                  label="(φ − φ_M) / σ_φ")
+        ax_r.plot(x, res_amp, "o", ms=2.5, color=DATA_COLOUR, alpha=0.7, label="(|V| − |M|) / σ")
+        ax_r.plot(x, res_phase, "^", ms=2.5, color=OKABE_ITO["orange"], alpha=0.7, label="(φ − φ_M) / σ_φ")
         finite = np.concatenate([res_amp[np.isfinite(res_amp)], res_phase[np.isfinite(res_phase)]])
         lim = max(5.0, float(np.max(np.abs(finite))) * 1.1) if finite.size else 5.0
         if lim > 30.0:
             # a poor fit: linear within +-3 sigma, logarithmic beyond, so both stay readable
             ax_r.set_yscale("symlog", linthresh=3.0)
-            ticks = [10.0 ** k for k in range(1, int(np.log10(lim)) + 1)]
+            ticks = [10.0**k for k in range(1, int(np.log10(lim)) + 1)]
             ticks = [-t for t in ticks[::-1]] + [0.0] + ticks
             ax_r.set_yticks(ticks)
             ax_r.set_yticklabels([f"{t:g}" for t in ticks])
@@ -131,10 +130,18 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
             fig.text(0.01, 0.005, note, fontsize=8, color="0.25", ha="left", va="bottom")
         fig.tight_layout()
     numbers = {
-        "uv": q, "uv_scale": scale, "uv_unit": unit, "order": order,
-        "amplitude": amp, "sigma": sigma, "model_amplitude": mamp,
-        "phase_deg": phase, "phase_sigma_deg": phase_sigma, "model_phase_deg": mphase,
-        "residual_amplitude": res_amp, "residual_phase": res_phase,
+        "uv": q,
+        "uv_scale": scale,
+        "uv_unit": unit,
+        "order": order,
+        "amplitude": amp,
+        "sigma": sigma,
+        "model_amplitude": mamp,
+        "phase_deg": phase,
+        "phase_sigma_deg": phase_sigma,
+        "model_phase_deg": mphase,
+        "residual_amplitude": res_amp,
+        "residual_phase": res_phase,
     }
     return fig, numbers
 
@@ -166,16 +173,29 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
             key = np.concatenate([index, index])
             for i, name in enumerate(baselines):
                 sel = key == i
-                ax.plot(u[sel] / scale, v[sel] / scale, linestyle="none",
-                        marker=style.MARKERS[(i // len(style.CYCLE)) % len(style.MARKERS)],
-                        ms=2.5, color=style.CYCLE[i % len(style.CYCLE)], label=name)
+                ax.plot(
+                    u[sel] / scale,
+                    v[sel] / scale,
+                    linestyle="none",
+                    marker=style.MARKERS[(i // len(style.CYCLE)) % len(style.MARKERS)],
+                    ms=2.5,
+                    color=style.CYCLE[i % len(style.CYCLE)],
+                    label=name,
+                )
             ncol = 1 if len(baselines) <= 20 else 2
-            ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), ncol=ncol, fontsize=7,
-                      markerscale=2.0, title="baseline", title_fontsize=8, frameon=False)
+            ax.legend(
+                loc="upper left",
+                bbox_to_anchor=(1.02, 1.0),
+                ncol=ncol,
+                fontsize=7,
+                markerscale=2.0,
+                title="baseline",
+                title_fontsize=8,
+                frameon=False,
+            )
         else:
             key = np.concatenate([hours, hours])
-            sc = ax.scatter(u / scale, v / scale, c=key, s=4, cmap=style.SEQUENTIAL_CMAP,
-                            linewidths=0)
+            sc = ax.scatter(u / scale, v / scale, c=key, s=4, cmap=style.SEQUENTIAL_CMAP, linewidths=0)
             cb = fig.colorbar(sc, ax=ax, shrink=0.85)
             cb.set_label(f"time (h UTC from MJD {day0:.0f})")
         lim = (np.abs(np.concatenate([u, v])).max() / scale * 1.05) if u.size else 1.0
@@ -186,8 +206,15 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
         ax.set_ylabel(f"v ({unit}), north up")
         ax.set_title(title or f"{vset.source}: (u, v) coverage with conjugates")
         fig.tight_layout()
-    numbers = {"u": u, "v": v, "scale": scale, "unit": unit, "baselines": baselines.tolist(),
-               "colour_key": key, "colour_by": colour_by}
+    numbers = {
+        "u": u,
+        "v": v,
+        "scale": scale,
+        "unit": unit,
+        "baselines": baselines.tolist(),
+        "colour_key": key,
+        "colour_by": colour_by,
+    }
     return fig, numbers
 
 
@@ -217,13 +244,26 @@ def closure_phase_series(vset, model_vis, systematic=0.0, snr_cut=None):
     q = vset.uv_distance
     longest = float(q.max()) if q.size else 0.0
     if cp.n == 0:
-        return {"triangle": np.zeros(0, str), "time": np.zeros(0), "channel": np.zeros(0, int),
-                "phase": np.zeros(0), "sigma": np.zeros(0), "model": np.zeros(0),
-                "shortest_uv": np.zeros(0), "longest_uv": longest}
-    return {"triangle": cp.labels, "time": np.asarray(cp.time, float),
-            "channel": np.asarray(cp.channel, int), "phase": np.asarray(cp.value, float),
-            "sigma": np.asarray(cp.sigma, float), "model": cp.evaluate(model_vis),
-            "shortest_uv": q[cp.rows].min(axis=1), "longest_uv": longest}
+        return {
+            "triangle": np.zeros(0, str),
+            "time": np.zeros(0),
+            "channel": np.zeros(0, int),
+            "phase": np.zeros(0),
+            "sigma": np.zeros(0),
+            "model": np.zeros(0),
+            "shortest_uv": np.zeros(0),
+            "longest_uv": longest,
+        }
+    return {
+        "triangle": cp.labels,
+        "time": np.asarray(cp.time, float),
+        "channel": np.asarray(cp.channel, int),
+        "phase": np.asarray(cp.value, float),
+        "sigma": np.asarray(cp.sigma, float),
+        "model": cp.evaluate(model_vis),
+        "shortest_uv": q[cp.rows].min(axis=1),
+        "longest_uv": longest,
+    }
 
 
 #: a triangle whose shortest baseline is below this fraction of the longest is "trivial"
@@ -241,8 +281,7 @@ def rank_triangles(series, max_panels=6):
     if tri.size == 0:
         return []
     names, inv = np.unique(tri, return_inverse=True)
-    info = np.bincount(inv, weights=1.0 / np.asarray(series["sigma"], float) ** 2,
-                       minlength=len(names))
+    info = np.bincount(inv, weights=1.0 / np.asarray(series["sigma"], float) ** 2, minlength=len(names))
     trivial = np.zeros(len(names), bool)
     shortest = series.get("shortest_uv")
     longest = float(series.get("longest_uv") or 0.0)
@@ -267,14 +306,15 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
     if triangles is None:
         triangles = rank_triangles(series, max_panels)
     if not triangles:
-        raise UvfitError("no closed triangle of baselines in the data, so there is no closure phase "
-                         "to plot", "closure phases need three stations observing at the same time")
+        raise UvfitError(
+            "no closed triangle of baselines in the data, so there is no closure phase to plot",
+            "closure phases need three stations observing at the same time",
+        )
     hours_all, day0 = _hours(series["time"])
     n = len(triangles)
     ncol = 1 if n == 1 else 2
     nrow = int(np.ceil(n / ncol))
-    fig, axes = style.new_figure(nrow, ncol, sharex=True, figsize=(10.0, 2.6 * nrow + 1.0),
-                                 squeeze=False)
+    fig, axes = style.new_figure(nrow, ncol, sharex=True, figsize=(10.0, 2.6 * nrow + 1.0), squeeze=False)
     panels = {}
     with style.style():
         for k, tri in enumerate(triangles):
@@ -285,8 +325,7 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
             ph = np.degrees(np.asarray(series["phase"])[sel][order])
             sg = np.degrees(np.clip(np.asarray(series["sigma"])[sel][order], 0, np.pi))
             md = np.degrees(np.asarray(series["model"])[sel][order])
-            ax.errorbar(h, ph, yerr=sg, fmt="o", ms=3, lw=0.7, color=DATA_COLOUR, alpha=0.7,
-                        label="data ±1σ")
+            ax.errorbar(h, ph, yerr=sg, fmt="o", ms=3, lw=0.7, color=DATA_COLOUR, alpha=0.7, label="data ±1σ")
             hx, mx = _break_gaps(h, md)
             ax.plot(hx, mx, "-", lw=1.4, color=MODEL_COLOUR, label="model")
             ax.set_title(f"{tri}   (N = {sel.sum()}, median σ = {np.median(sg):.1f}°)", fontsize=10)
@@ -310,8 +349,7 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
 # --------------------------------------------------------------------------- the model on the sky
 
 
-def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None, note=None,
-             vmax=None):
+def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None, note=None, vmax=None):
     """The fitted model on the sky, east to the LEFT, with component outlines and the resolution.
 
     ``image``: 2-D brightness, Jy per pixel, ``image[j, i]`` at relative declination y_j and
@@ -341,8 +379,16 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
         if vmax is None:
             top = float(np.max(brightness))
             vmax = top if np.isfinite(top) and top > 0 else 1.0
-        im = ax.imshow(brightness, origin="lower", extent=(x0, x1, y0, y1), cmap=style.IMAGE_CMAP,
-                       vmin=0.0, vmax=vmax, interpolation="nearest", aspect="equal")
+        im = ax.imshow(
+            brightness,
+            origin="lower",
+            extent=(x0, x1, y0, y1),
+            cmap=style.IMAGE_CMAP,
+            vmin=0.0,
+            vmax=vmax,
+            interpolation="nearest",
+            aspect="equal",
+        )
         cb = fig.colorbar(im, ax=ax, shrink=0.85)
         cb.set_label(f"brightness (Jy / {label}²)")
         halo = {"facecolor": "white", "alpha": 0.8, "edgecolor": "none", "pad": 1.5}
@@ -360,25 +406,47 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
                 pa = float(o.get("pa_deg", 0.0) or 0.0)
                 # data axes: x east, y north; the major axis points to (sin pa, cos pa), whose
                 # angle from +x is 90 deg - pa (the inverted x axis then shows it as on the sky)
-                ax.add_patch(Ellipse((x, y), width=major, height=minor, angle=90.0 - pa,
-                                     fill=False, lw=1.8, color=colour,
-                                     linestyle="--" if kind == "ring" else "-"))
+                ax.add_patch(
+                    Ellipse(
+                        (x, y),
+                        width=major,
+                        height=minor,
+                        angle=90.0 - pa,
+                        fill=False,
+                        lw=1.8,
+                        color=colour,
+                        linestyle="--" if kind == "ring" else "-",
+                    )
+                )
             # labels alternate above and below their centre, so neighbours do not overwrite
-            ax.annotate(o.get("label", f"c{k}"), (x, y), xytext=(6, 6 if k % 2 == 0 else -16),
-                        textcoords="offset points", fontsize=9, color="black", bbox=halo)
+            ax.annotate(
+                o.get("label", f"c{k}"),
+                (x, y),
+                xytext=(6, 6 if k % 2 == 0 else -16),
+                textcoords="offset points",
+                fontsize=9,
+                color="black",
+                bbox=halo,
+            )
         if resolution and np.isfinite(resolution) and resolution > 0:
             # lower left on the sky = large x (east) and small y, since x increases to the left
             width = abs(x1 - x0)
             r = 0.5 * float(resolution)
             cx = max(x0, x1) - 0.06 * width - r
             cy = min(y0, y1) + 0.06 * abs(y1 - y0) + r
-            ax.add_patch(Circle((cx, cy), r, fill=True, facecolor="white", alpha=0.5,
-                                edgecolor="white", lw=1.2, hatch="///"))
+            ax.add_patch(
+                Circle((cx, cy), r, fill=True, facecolor="white", alpha=0.5, edgecolor="white", lw=1.2, hatch="///")
+            )
             small = 2 * r < 0.01 * width
-            ax.annotate(f"λ/B_max = {resolution:.3g} {label}" + (" (too small to draw)" if small
-                                                                  else ""), (cx + r, cy + r),
-                        xytext=(0, 4), textcoords="offset points", ha="left", fontsize=8,
-                        bbox=halo)
+            ax.annotate(
+                f"λ/B_max = {resolution:.3g} {label}" + (" (too small to draw)" if small else ""),
+                (cx + r, cy + r),
+                xytext=(0, 4),
+                textcoords="offset points",
+                ha="left",
+                fontsize=8,
+                bbox=halo,
+            )
         ax.grid(False)
         ax.set_xlim(max(x0, x1), min(x0, x1))  # east to the left
         ax.set_ylim(min(y0, y1), max(y0, y1))
@@ -388,8 +456,14 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
         if note:
             fig.text(0.01, 0.005, note, fontsize=8, color="0.25", ha="left", va="bottom")
         fig.tight_layout()
-    numbers = {"image": brightness, "extent": (x0, x1, y0, y1), "peak_xy": peak,
-               "outlines": list(outlines), "resolution": resolution, "unit": unit}
+    numbers = {
+        "image": brightness,
+        "extent": (x0, x1, y0, y1),
+        "peak_xy": peak,
+        "outlines": list(outlines),
+        "resolution": resolution,
+        "unit": unit,
+    }
     return fig, numbers
 
 

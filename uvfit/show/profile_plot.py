@@ -1,5 +1,6 @@
 """The figure of a profile likelihood: delta chi2 against the parameter, with the 68% and 95%
 levels (delta chi2 = 1 and 3.84, Wilks 1938) and the intervals they give."""
+
 import numpy as np
 
 from . import style
@@ -31,8 +32,13 @@ def profile_plot(prof, title=None):
     note = "unconstrained over this range" if prof.get("unconstrained") else None
     ax.set_title(title or (f"profile of {prof['parameter']}" + (f": {note}" if note else "")))
     ax.legend(fontsize="small", loc="upper center")
-    numbers = {"grid": g, "delta_chi2": d, "levels": levels,
-               "interval_68": prof["interval_68"], "interval_95": prof["interval_95"]}
+    numbers = {
+        "grid": g,
+        "delta_chi2": d,
+        "levels": levels,
+        "interval_68": prof["interval_68"],
+        "interval_95": prof["interval_95"],
+    }
     return fig, numbers
 
 

@@ -4,6 +4,7 @@ Each reader checks that the file is what it claims to be and raises :class:`Uvfi
 file and the fix otherwise. The model is rebuilt from the fit's own ``model_toml`` text, so that a
 figure shows exactly the model that was fitted, and the data are selected as the fit recorded.
 """
+
 import json
 import os
 from dataclasses import dataclass
@@ -28,11 +29,14 @@ def read_json(path, what):
         with open(path, "r", encoding="utf-8") as handle:
             obj = json.load(handle)
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise UvfitError(f"{what} file {path} is not valid JSON ({exc})",
-                         f"give the JSON written by the command that makes a {what}") from None
+        raise UvfitError(
+            f"{what} file {path} is not valid JSON ({exc})", f"give the JSON written by the command that makes a {what}"
+        ) from None
     if not isinstance(obj, dict):
-        raise UvfitError(f"{what} file {path} does not hold a JSON object",
-                         f"give the JSON written by the command that makes a {what}")
+        raise UvfitError(
+            f"{what} file {path} does not hold a JSON object",
+            f"give the JSON written by the command that makes a {what}",
+        )
     return obj
 
 
@@ -41,11 +45,13 @@ def load_fit(path):
     fit = read_json(path, "fit")
     missing = [k for k in FIT_KEYS if k not in fit]
     bad_params = not isinstance(fit.get("parameters"), dict) or not all(
-        isinstance(p, dict) and "value" in p for p in fit.get("parameters", {}).values())
+        isinstance(p, dict) and "value" in p for p in fit.get("parameters", {}).values()
+    )
     if missing or bad_params or not isinstance(fit.get("model_toml"), str):
         what = f"it lacks {', '.join(missing)}" if missing else "its parameters or model are malformed"
-        raise UvfitError(f"{path} is not a fit output ({what})",
-                         "give the file written by 'uvfit fit ... --json FIT.json'")
+        raise UvfitError(
+            f"{path} is not a fit output ({what})", "give the file written by 'uvfit fit ... --json FIT.json'"
+        )
     return fit
 
 
@@ -53,10 +59,15 @@ def load_posterior(path):
     """A posterior summary written by ``uvfit sample --json``."""
     post = read_json(path, "posterior")
     params = post.get("parameters")
-    if not isinstance(params, dict) or not params or not all(
-            isinstance(p, dict) and "median" in p for p in params.values()):
-        raise UvfitError(f"{path} is not a posterior summary (no parameters with medians)",
-                         "give the JSON written by 'uvfit sample ... --json'")
+    if (
+        not isinstance(params, dict)
+        or not params
+        or not all(isinstance(p, dict) and "median" in p for p in params.values())
+    ):
+        raise UvfitError(
+            f"{path} is not a posterior summary (no parameters with medians)",
+            "give the JSON written by 'uvfit sample ... --json'",
+        )
     return post
 
 
@@ -64,8 +75,10 @@ def load_compare(path):
     """A model comparison written by ``uvfit compare --json``."""
     comp = read_json(path, "comparison")
     if "models" not in comp and "verdict" not in comp:
-        raise UvfitError(f"{path} is not a model comparison (no models, no verdict)",
-                         "give the JSON written by 'uvfit compare ... --json'")
+        raise UvfitError(
+            f"{path} is not a model comparison (no models, no verdict)",
+            "give the JSON written by 'uvfit compare ... --json'",
+        )
     return comp
 
 
@@ -103,8 +116,7 @@ def model_from_fit(fit, path=None):
     try:
         model = model_from_text(fit["model_toml"], path=path)
     except UvfitError as exc:
-        raise UvfitError(f"the model recorded in the fit cannot be rebuilt: {exc.message}",
-                         exc.hint) from None
+        raise UvfitError(f"the model recorded in the fit cannot be rebuilt: {exc.message}", exc.hint) from None
     params = fit.get("parameters", {})
     names = list(model.free_names)
     if names and all(n in params for n in names):
@@ -120,23 +132,32 @@ def load_model_or_fit(path):
     """
     path = os.fspath(path)
     if not os.path.exists(path):
-        raise UvfitError(f"model file {path} does not exist", "give a model file (.toml) or a fit "
-                         "result (.json written by uvfit fit --json)")
+        raise UvfitError(
+            f"model file {path} does not exist",
+            "give a model file (.toml) or a fit result (.json written by uvfit fit --json)",
+        )
     if path.lower().endswith(".json"):
         try:
             with open(path, encoding="utf-8") as handle:
                 doc = json.load(handle)
         except (OSError, ValueError) as exc:
-            raise ModelError(f"{path} is not a readable JSON file ({exc})",
-                             "give the JSON written by uvfit fit --json, or a model file (.toml)")
+            raise ModelError(
+                f"{path} is not a readable JSON file ({exc})",
+                "give the JSON written by uvfit fit --json, or a model file (.toml)",
+            ) from None
         text = doc.get("model_toml") if isinstance(doc, dict) else None
         if not text:
-            raise ModelError(f"{path} holds no best-fit model (no 'model_toml' key)",
-                             "give the JSON written by uvfit fit --json, or a model file (.toml)")
-        return model_from_fit(doc, path=path), {"model_from": "fit result",
-                                                 "fit_mode": doc.get("mode"),
-                                                 "fit_systematic": doc.get("systematic")}
+            raise ModelError(
+                f"{path} holds no best-fit model (no 'model_toml' key)",
+                "give the JSON written by uvfit fit --json, or a model file (.toml)",
+            )
+        return model_from_fit(doc, path=path), {
+            "model_from": "fit result",
+            "fit_mode": doc.get("mode"),
+            "fit_systematic": doc.get("systematic"),
+        }
     from ..sky.modelfile import load_model
+
     return load_model(path), {"model_from": "model file"}
 
 
@@ -182,8 +203,10 @@ class FitView:
     def phase_note(self):
         """A sentence for the radial figure when the fit did not use the visibility phases."""
         if self.mode in ("closure", "closure_phase", "closure_amplitude", "amplitude", "hybrid"):
-            note = (f"Fitted in {self.mode} mode: the visibility phases were not fitted (absolute "
-                    "position free, station phases uncalibrated), so phase residuals are expected.")
+            note = (
+                f"Fitted in {self.mode} mode: the visibility phases were not fitted (absolute "
+                "position free, station phases uncalibrated), so phase residuals are expected."
+            )
             flux = self.flux_note
             return note + (" " + flux if flux else "")
         return None
@@ -192,12 +215,14 @@ class FitView:
     def flux_note(self):
         """A sentence when the fit's mode did not measure the flux (figures use the estimate)."""
         from ..infer.fluxscale import figure_note
+
         return figure_note(self.fit)
 
 
 def fit_view(vset, fit, selection=None):
     """Build a :class:`FitView` from the selected data and a fit output dict."""
     from ..infer.fluxscale import scaled_model
+
     model = scaled_model(model_from_fit(fit), fit)
     model_vis = np.asarray(model.visibilities(vset.u, vset.v, vset.frequency), dtype=complex)
     return FitView(vset=vset, model=model, model_vis=model_vis, fit=fit, selection=selection or {})
@@ -213,8 +238,10 @@ def open_fit_view(data_path, fit_path, options=None):
     vset, notes = read_selected(data_path, selection, good=False)
     fitted = fit.get("data")
     if fitted and os.path.basename(str(fitted)) != os.path.basename(os.fspath(data_path)):
-        notes.append(f"note: the fit was made on {os.path.basename(str(fitted))}, the figures show "
-                     f"{os.path.basename(os.fspath(data_path))}")
+        notes.append(
+            f"note: the fit was made on {os.path.basename(str(fitted))}, the figures show "
+            f"{os.path.basename(os.fspath(data_path))}"
+        )
     return fit_view(vset.good(), fit, selection), notes
 
 

@@ -5,6 +5,7 @@ font, no image) from anywhere. It is deterministic: the same inputs give the sam
 the PNGs carry no time or software stamp, the page carries no time except those in the inputs, and
 every table follows the order of its input.
 """
+
 import base64
 import html
 
@@ -16,7 +17,6 @@ from ..labels import REPORT_CAUTIONS
 from . import plots, style
 from .corner import corner_plot
 from .figures import KINDS, make_figure
-
 
 _CSS = """
 body{font-family:Georgia,'DejaVu Serif',serif;max-width:1100px;margin:1.5em auto;padding:0 1em;
@@ -64,8 +64,11 @@ def fmt(x):
 
 
 def _cell(x):
-    cls = ' class="num"' if isinstance(x, (int, float, np.integer, np.floating)) and not isinstance(
-        x, (bool, np.bool_)) else ""
+    cls = (
+        ' class="num"'
+        if isinstance(x, (int, float, np.integer, np.floating)) and not isinstance(x, (bool, np.bool_))
+        else ""
+    )
     return f"<td{cls}>{_esc(fmt(x))}</td>"
 
 
@@ -91,8 +94,10 @@ def records_table(records, first="name"):
     for rec in records.values():
         if isinstance(rec, dict):
             columns.extend(c for c in rec if c not in columns)
-    rows = [[name] + [rec.get(c) if isinstance(rec, dict) else (rec if c == "value" else None)
-                      for c in columns] for name, rec in records.items()]
+    rows = [
+        [name] + [rec.get(c) if isinstance(rec, dict) else (rec if c == "value" else None) for c in columns]
+        for name, rec in records.items()
+    ]
     if not columns:
         columns = ["value"]
         rows = [[name, rec] for name, rec in records.items()]
@@ -102,8 +107,10 @@ def records_table(records, first="name"):
 def _figure(fig, caption, alt):
     data = base64.b64encode(style.png_bytes(fig)).decode("ascii")
     style.close(fig)
-    return (f'<figure><img alt="{_esc(alt)}" src="data:image/png;base64,{data}">'
-            f"<figcaption>{_esc(caption)}</figcaption></figure>")
+    return (
+        f'<figure><img alt="{_esc(alt)}" src="data:image/png;base64,{data}">'
+        f"<figcaption>{_esc(caption)}</figcaption></figure>"
+    )
 
 
 def _section(title, body, anchor):
@@ -113,15 +120,26 @@ def _section(title, body, anchor):
 # --------------------------------------------------------------------------- sections
 
 
-_SUMMARY_UNITS = {"ra_deg": "deg", "dec_deg": "deg", "uv_min_lambda": "λ", "uv_max_lambda": "λ",
-                  "time_start_mjd": "MJD (UTC)", "time_end_mjd": "MJD (UTC)",
-                  "time_start_utc": "UTC", "time_end_utc": "UTC", "time_span_hours": "h",
-                  "resolution_mas": "mas", "largest_scale_mas": "mas", "median_sigma_jy": "Jy",
-                  "median_integration_s": "s"}
+_SUMMARY_UNITS = {
+    "ra_deg": "deg",
+    "dec_deg": "deg",
+    "uv_min_lambda": "λ",
+    "uv_max_lambda": "λ",
+    "time_start_mjd": "MJD (UTC)",
+    "time_end_mjd": "MJD (UTC)",
+    "time_start_utc": "UTC",
+    "time_end_utc": "UTC",
+    "time_span_hours": "h",
+    "resolution_mas": "mas",
+    "largest_scale_mas": "mas",
+    "median_sigma_jy": "Jy",
+    "median_integration_s": "s",
+}
 
 
 def _iso(mjd):
     from astropy.time import Time
+
     return Time(float(mjd), format="mjd", scale="utc").isot[:19]
 
 
@@ -133,14 +151,22 @@ def data_summary_table(summary, vset, model=None):
             rows.append(("frequencies", [round(f / 1e9, 6) for f in value], "GHz"))
             continue
         rows.append((key, value, _SUMMARY_UNITS.get(key, "")))
-        if (key in ("time_start_mjd", "time_end_mjd") and value is not None
-                and key.replace("_mjd", "_utc") not in summary):
+        if (
+            key in ("time_start_mjd", "time_end_mjd")
+            and value is not None
+            and key.replace("_mjd", "_utc") not in summary
+        ):
             rows.append((key.replace("_mjd", ""), _iso(value), "UTC"))
     res = plots.nominal_resolution(vset)
     if np.isfinite(res):
         if model is not None:
-            rows.append(("nominal resolution λ/B_max", res / float(model.rad_per_unit),
-                         style.angle_label(model.angular_unit_text)))
+            rows.append(
+                (
+                    "nominal resolution λ/B_max",
+                    res / float(model.rad_per_unit),
+                    style.angle_label(model.angular_unit_text),
+                )
+            )
         else:
             rows.append(("nominal resolution λ/B_max", res, "rad"))
     return table(("quantity", "value", "unit"), rows)
@@ -173,12 +199,13 @@ def _statistics_section(fit):
     rows = [(k, stats.get(k)) for k in order if k in stats]
     rows += [(k, v) for k, v in stats.items() if k not in order]
     body = [table(("statistic", "value"), rows)]
-    body.append(f'<p class="note">Mode: {_esc(fit.get("mode", "unknown"))}; systematic floor: '
-                f'{_esc(fmt(fit.get("systematic")))} of |V| added in quadrature to each sigma.</p>')
+    body.append(
+        f'<p class="note">Mode: {_esc(fit.get("mode", "unknown"))}; systematic floor: '
+        f"{_esc(fmt(fit.get('systematic')))} of |V| added in quadrature to each sigma.</p>"
+    )
     per_station = fit.get("per_station")
     if isinstance(per_station, dict) and per_station:
-        body.append("<p>Chi-square by station (a station far above the others points at its "
-                    "calibration):</p>")
+        body.append("<p>Chi-square by station (a station far above the others points at its calibration):</p>")
         body.append(records_table(per_station, first="station"))
     elif isinstance(per_station, list) and per_station:
         body.append(_list_table(per_station))
@@ -186,13 +213,17 @@ def _statistics_section(fit):
     if isinstance(corr, dict) and corr.get("names") and corr.get("matrix"):
         names, matrix = corr["names"], corr["matrix"]
         if len(names) == len(matrix):
-            body.append("<p>Correlation of the free parameters (|r| near 1: the data cannot tell "
-                        "them apart):</p>")
-            body.append(table([""] + list(names), [[n] + [None if v is None else round(float(v), 3)
-                                                          for v in row]
-                                                   for n, row in zip(names, matrix)]))
-    for key, text in (("fixed_by_fitter", "Fixed by the fitter (the data cannot constrain them)"),
-                      ("unconstrained", "Unconstrained by the data")):
+            body.append("<p>Correlation of the free parameters (|r| near 1: the data cannot tell them apart):</p>")
+            body.append(
+                table(
+                    [""] + list(names),
+                    [[n] + [None if v is None else round(float(v), 3) for v in row] for n, row in zip(names, matrix)],
+                )
+            )
+    for key, text in (
+        ("fixed_by_fitter", "Fixed by the fitter (the data cannot constrain them)"),
+        ("unconstrained", "Unconstrained by the data"),
+    ):
         items = fit.get(key) or []
         if items:
             body.append(f"<p>{_esc(text)}: {_esc(fmt(list(items)))}</p>")
@@ -216,11 +247,21 @@ def _list_table(records):
 
 #: lists of a closure check shown as tables, with their headings (the full per-quadrangle list
 #: is long and stays in the check's own outputs)
-_CLOSURE_LISTS = (("per_station", "Closure misfit by station (worst first)"),
-                  ("per_triangle", "Closure phases by triangle (worst first)"),
-                  ("worst_quadrangles", "Log closure amplitudes: the worst quadrangles"))
-_CLOSURE_SKIP = ("closures", "model_values", "verdict", "summary", "caution", "per_quadrangle",
-                 "worst_triangles", "worst_stations")
+_CLOSURE_LISTS = (
+    ("per_station", "Closure misfit by station (worst first)"),
+    ("per_triangle", "Closure phases by triangle (worst first)"),
+    ("worst_quadrangles", "Log closure amplitudes: the worst quadrangles"),
+)
+_CLOSURE_SKIP = (
+    "closures",
+    "model_values",
+    "verdict",
+    "summary",
+    "caution",
+    "per_quadrangle",
+    "worst_triangles",
+    "worst_stations",
+)
 
 
 def _closure_section(check):
@@ -232,8 +273,9 @@ def _closure_section(check):
     verdict = check.get("verdict") or check.get("summary")
     if verdict:
         body.append(f'<p class="verdict">{_esc(fmt(verdict))}</p>')
-    flat = {k: v for k, v in check.items() if k not in _CLOSURE_SKIP
-            and not isinstance(v, (dict, list, tuple, np.ndarray))}
+    flat = {
+        k: v for k, v in check.items() if k not in _CLOSURE_SKIP and not isinstance(v, (dict, list, tuple, np.ndarray))
+    }
     listed = {k: v for k, v in check.items() if k == "stations"}
     if flat or listed:
         body.append(mapping_table({**flat, **listed}))
@@ -245,10 +287,12 @@ def _closure_section(check):
     caution = check.get("caution")
     if caution:
         body.append(f'<p class="caution">{_esc(caution)}</p>')
-    body.append('<p class="note">The closure check compares the closure phases and log closure '
-                "amplitudes of the data with those of the fitted model. It is immune to "
-                "station-based gain errors, not to baseline-based errors, and blind to the "
-                "absolute position and the flux scale.</p>")
+    body.append(
+        '<p class="note">The closure check compares the closure phases and log closure '
+        "amplitudes of the data with those of the fitted model. It is immune to "
+        "station-based gain errors, not to baseline-based errors, and blind to the "
+        "absolute position and the flux scale.</p>"
+    )
     return "\n".join(body)
 
 
@@ -258,8 +302,7 @@ def _compare_section(compare):
     if verdict:
         body.append(f'<p class="verdict">Verdict: {_esc(fmt(verdict))}</p>')
     models = compare.get("models")
-    cols = ("chi2", "dof", "n_free", "reduced_chi2", "aic", "bic", "likelihood_ratio",
-            "false_alarm_probability")
+    cols = ("chi2", "dof", "n_free", "reduced_chi2", "aic", "bic", "likelihood_ratio", "false_alarm_probability")
     if isinstance(models, dict) and models:
         rows = []
         for name, m in models.items():
@@ -267,45 +310,76 @@ def _compare_section(compare):
             rows.append([name] + [m.get(c) for c in cols])
         body.append(table(("model",) + cols, rows))
     elif isinstance(models, list) and models:
-        rows = [[m.get("name", f"model {i}")] + [m.get(c) for c in cols]
-                for i, m in enumerate(models) if isinstance(m, dict)]
+        rows = [
+            [m.get("name", f"model {i}")] + [m.get(c) for c in cols]
+            for i, m in enumerate(models)
+            if isinstance(m, dict)
+        ]
         body.append(table(("model",) + cols, rows))
-    rest = {k: v for k, v in compare.items() if k not in ("verdict", "models")
-            and not isinstance(v, (dict, list))}
+    rest = {k: v for k, v in compare.items() if k not in ("verdict", "models") and not isinstance(v, (dict, list))}
     if rest:
         body.append(mapping_table(rest))
-    body.append('<p class="note">The false-alarm probability, where given, is calibrated by '
-                "simulation on the data's own (u, v) coverage and errors; the chi-square reference "
-                "distribution does not hold for a component whose flux can go to zero.</p>")
+    body.append(
+        '<p class="note">The false-alarm probability, where given, is calibrated by '
+        "simulation on the data's own (u, v) coverage and errors; the chi-square reference "
+        "distribution does not hold for a component whose flux can go to zero.</p>"
+    )
     return "\n".join(body)
 
 
 def _posterior_section(posterior):
     params = posterior.get("parameters", {})
-    cols = [c for c in ("median", "lower", "upper", "lower_95", "upper_95", "max_posterior",
-                        "upper_limit_95", "lower_limit_95")
-            if any(c in p for p in params.values())]
+    cols = [
+        c
+        for c in (
+            "median",
+            "lower",
+            "upper",
+            "lower_95",
+            "upper_95",
+            "max_posterior",
+            "upper_limit_95",
+            "lower_limit_95",
+        )
+        if any(c in p for p in params.values())
+    ]
     rows = [[n] + [p.get(c) for c in cols] + [p.get("unit", "")] for n, p in params.items()]
-    body = [table(["parameter"] + cols + ["unit"], rows),
-            '<p class="note">lower and upper: the central 68 % credible interval; _95: the central '
-            "95 % interval; a limit is given where the posterior piles up against a bound.</p>"]
+    body = [
+        table(["parameter"] + cols + ["unit"], rows),
+        '<p class="note">lower and upper: the central 68 % credible interval; _95: the central '
+        "95 % interval; a limit is given where the posterior piles up against a bound.</p>",
+    ]
     derived = posterior.get("derived")
     if derived:
         body.append("<p>Derived quantities from the samples:</p>")
         body.append(_derived_table(derived))
-    diag = {k: posterior.get(k) for k in ("converged", "acceptance_fraction",
-                                          "autocorrelation_time", "n_walkers", "n_steps",
-                                          "n_samples", "burn_in", "discard", "thin", "seed")
-            if k in posterior}
+    diag = {
+        k: posterior.get(k)
+        for k in (
+            "converged",
+            "acceptance_fraction",
+            "autocorrelation_time",
+            "n_walkers",
+            "n_steps",
+            "n_samples",
+            "burn_in",
+            "discard",
+            "thin",
+            "seed",
+        )
+        if k in posterior
+    }
     ordering = posterior.get("ordering")
     if isinstance(ordering, dict) and ordering.get("description"):
         diag["ordering of the samples"] = ordering["description"]
     if diag:
         body.append(mapping_table(diag, header=("sampler diagnostic", "value")))
     if posterior.get("converged") is False:
-        body.append('<p class="caution">The sampler did not record convergence: the chain may be '
-                    "shorter than a few tens of autocorrelation times, and the intervals are not "
-                    "to be trusted yet.</p>")
+        body.append(
+            '<p class="caution">The sampler did not record convergence: the chain may be '
+            "shorter than a few tens of autocorrelation times, and the intervals are not "
+            "to be trusted yet.</p>"
+        )
     return "\n".join(body)
 
 
@@ -314,15 +388,23 @@ def _posterior_section(posterior):
 
 #: anchor and caption of each figure of :data:`uvfit.show.figures.KINDS` in the page
 _CAPTIONS = {
-    "radial": ("radial", "Visibility amplitude and phase against uv distance: data with 1σ errors "
-               "(blue), the model at the data's own (u, v) (vermillion); normalised residuals "
-               "below."),
-    "uv": ("coverage", "(u, v) coverage, each visibility with its conjugate; u increases to "
-           "the left (east)."),
-    "closure": ("closure-phases", "Closure phases against time for the most informative "
-                "triangles (largest sum of 1/σ²): data with 1σ errors and the model."),
-    "sky": ("sky", "The fitted model on the sky (east to the left) with each component's "
-            "outline and the nominal resolution λ/B_max for scale."),
+    "radial": (
+        "radial",
+        "Visibility amplitude and phase against uv distance: data with 1σ errors "
+        "(blue), the model at the data's own (u, v) (vermillion); normalised residuals "
+        "below.",
+    ),
+    "uv": ("coverage", "(u, v) coverage, each visibility with its conjugate; u increases to the left (east)."),
+    "closure": (
+        "closure-phases",
+        "Closure phases against time for the most informative "
+        "triangles (largest sum of 1/σ²): data with 1σ errors and the model.",
+    ),
+    "sky": (
+        "sky",
+        "The fitted model on the sky (east to the left) with each component's "
+        "outline and the nominal resolution λ/B_max for scale.",
+    ),
 }
 
 
@@ -341,16 +423,14 @@ def figures(view, chain=None, chain_names=None, chain_units=None):
         out.append((anchor, caption, fig))
     if chain is not None:
         fig, _ = corner_plot(chain, chain_names, chain_units)
-        out.append(("corner", "Posterior samples of the free parameters (16, 50, 84 % quantiles "
-                    "marked).", fig))
+        out.append(("corner", "Posterior samples of the free parameters (16, 50, 84 % quantiles marked).", fig))
     return out
 
 
 # --------------------------------------------------------------------------- the page
 
 
-def build_report(view, closure_check=None, posterior=None, chain=None, compare=None,
-                 data_name=None):
+def build_report(view, closure_check=None, posterior=None, chain=None, compare=None, data_name=None):
     """The report as HTML text. ``view`` is a :class:`uvfit.show.readback.FitView`."""
     fit = view.fit
     summary = view.vset.summary()
@@ -368,48 +448,81 @@ def build_report(view, closure_check=None, posterior=None, chain=None, compare=N
     if posterior is not None:
         ident["sampler seed"] = posterior.get("seed")
     parts.append(mapping_table(ident, header=("item", "value")))
-    parts.append('<p class="caution">Results hold for the model family fitted, under the '
-                 "calibration assumptions of the mode used; see <a href=\"#cautions\">Cautions</a>."
-                 "</p>")
-    parts.append(_section("Data", data_summary_table(summary, view.vset, view.model) + (
-        "<p>Selection applied (the fit's own, overridden by the command's options):</p>"
-        + mapping_table(view.selection, header=("option", "value")) if view.selection else
-        '<p class="note">No selection applied.</p>'), "data"))
+    parts.append(
+        '<p class="caution">Results hold for the model family fitted, under the '
+        'calibration assumptions of the mode used; see <a href="#cautions">Cautions</a>.'
+        "</p>"
+    )
+    parts.append(
+        _section(
+            "Data",
+            data_summary_table(summary, view.vset, view.model)
+            + (
+                "<p>Selection applied (the fit's own, overridden by the command's options):</p>"
+                + mapping_table(view.selection, header=("option", "value"))
+                if view.selection
+                else '<p class="note">No selection applied.</p>'
+            ),
+            "data",
+        )
+    )
     params = fit.get("parameters", {})
-    parts.append(_section("Parameters", table(("parameter", "value", "error (1σ)", "unit", "status"),
-                                              parameter_rows(params)), "parameters"))
+    parts.append(
+        _section(
+            "Parameters",
+            table(("parameter", "value", "error (1σ)", "unit", "status"), parameter_rows(params)),
+            "parameters",
+        )
+    )
     parts.append(_section("Derived quantities", _derived_table(fit.get("derived") or {}), "derived"))
     parts.append(_section("Goodness of fit", _statistics_section(fit), "goodness"))
     chain_names = list((posterior or {}).get("parameters", {}).keys())
-    chain_units = [(posterior or {}).get("parameters", {}).get(n, {}).get("unit")
-                   or params.get(n, {}).get("unit", "") for n in chain_names]
+    chain_units = [
+        (posterior or {}).get("parameters", {}).get(n, {}).get("unit") or params.get(n, {}).get("unit", "")
+        for n in chain_names
+    ]
     if chain is not None and chain.shape[1] != len(chain_names):
         chain_names = [n for n, p in params.items() if p.get("free", True)]
         chain_units = [params[n].get("unit", "") for n in chain_names]
     made = figures(view, chain, chain_names, chain_units)
-    html_figs = {anchor: (f'<p class="note">{_esc(caption)}</p>' if fig is None
-                          else _figure(fig, caption, anchor)) for anchor, caption, fig in made}
+    html_figs = {
+        anchor: (f'<p class="note">{_esc(caption)}</p>' if fig is None else _figure(fig, caption, anchor))
+        for anchor, caption, fig in made
+    }
     corner_html = html_figs.pop("corner", "")
     parts.append(_section("Figures", "\n".join(html_figs.values()), "figures"))
     parts.append(_section("Closure check", _closure_section(closure_check), "closure-check"))
     if compare is not None:
         parts.append(_section("Model comparison", _compare_section(compare), "comparison"))
     if posterior is not None or corner_html:
-        body = _posterior_section(posterior) if posterior is not None else (
-            '<p class="note">No posterior summary was given; the corner plot shows the whole '
-            "chain.</p>")
+        body = (
+            _posterior_section(posterior)
+            if posterior is not None
+            else ('<p class="note">No posterior summary was given; the corner plot shows the whole chain.</p>')
+        )
         parts.append(_section("Posterior", body + corner_html, "posterior"))
     notices = list(fit.get("notices") or []) + list(fit.get("cautions") or [])
     if notices:
-        parts.append(_section("Notices and cautions recorded by the fit",
-                              "<ul>" + "".join(f"<li>{_esc(fmt(n))}</li>" for n in notices)
-                              + "</ul>", "notices"))
-    parts.append(_section("Cautions", "\n".join(
-        f'<div class="caution"><b>{_esc(t)}.</b> {_esc(x)}</div>' for t, x in REPORT_CAUTIONS), "cautions"))
+        parts.append(
+            _section(
+                "Notices and cautions recorded by the fit",
+                "<ul>" + "".join(f"<li>{_esc(fmt(n))}</li>" for n in notices) + "</ul>",
+                "notices",
+            )
+        )
+    parts.append(
+        _section(
+            "Cautions",
+            "\n".join(f'<div class="caution"><b>{_esc(t)}.</b> {_esc(x)}</div>' for t, x in REPORT_CAUTIONS),
+            "cautions",
+        )
+    )
     body = "\n".join(parts)
-    return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
-            f"<title>uvfit report: {_esc(source)}</title>\n<style>{_CSS}</style>\n</head>\n"
-            f"<body>\n{body}\n</body>\n</html>\n")
+    return (
+        '<!DOCTYPE html>\n<html lang="en">\n<head>\n<meta charset="utf-8">\n'
+        f"<title>uvfit report: {_esc(source)}</title>\n<style>{_CSS}</style>\n</head>\n"
+        f"<body>\n{body}\n</body>\n</html>\n"
+    )
 
 
 def run_closure_check(view):

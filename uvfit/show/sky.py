@@ -4,6 +4,7 @@ Outlines: the FWHM ellipse of a Gaussian, the edge of a disk or sphere, the ring
 edge of a shell, a cross for a point. The field of view covers every component with a margin, and
 at least a few times the nominal resolution lambda / B_max = 1 / max(uv distance) (common practice).
 """
+
 import numpy as np
 
 from . import plots
@@ -11,14 +12,25 @@ from . import plots
 
 def _outline(member, unit_label):
     shape, p = member["shape"], member["parameters"]
-    o = {"label": f"{member['name']} ({member['flux']:.3g} Jy)", "x": float(member["east"]),
-         "y": float(member["north"]), "kind": "point", "major": 0.0, "minor": 0.0, "pa_deg": 0.0,
-         "shape": shape}
+    o = {
+        "label": f"{member['name']} ({member['flux']:.3g} Jy)",
+        "x": float(member["east"]),
+        "y": float(member["north"]),
+        "kind": "point",
+        "major": 0.0,
+        "minor": 0.0,
+        "pa_deg": 0.0,
+        "shape": shape,
+    }
     if shape == "gaussian":
         o.update(kind="ellipse", major=abs(p["fwhm"]), minor=abs(p["fwhm"]))
     elif shape == "elliptical_gaussian":
-        o.update(kind="ellipse", major=abs(p["fwhm"]), minor=abs(p["fwhm"] * p["axis_ratio"]),
-                 pa_deg=float(p["position_angle"]))
+        o.update(
+            kind="ellipse",
+            major=abs(p["fwhm"]),
+            minor=abs(p["fwhm"] * p["axis_ratio"]),
+            pa_deg=float(p["position_angle"]),
+        )
     elif shape == "disk":
         o.update(kind="circle", major=abs(p["diameter"]), minor=abs(p["diameter"]))
     elif shape in ("ring", "ring_modulated"):
@@ -74,14 +86,21 @@ def sky_figure(view, npix=256, title=None):
         for o in compact:
             i = int(np.clip(np.round((o["x"] - l_axis[0]) / step), 0, npix - 1))
             j = int(np.clip(np.round((o["y"] - m_axis[0]) / step), 0, npix - 1))
-            masked[max(j - 2, 0):j + 3, max(i - 2, 0):i + 3] = 0.0
+            masked[max(j - 2, 0) : j + 3, max(i - 2, 0) : i + 3] = 0.0
         if masked.max() > 0:
-            vmax = float(masked.max()) / step ** 2
-    note = ("Compact components (+) saturate the colour scale." if vmax is not None else None)
+            vmax = float(masked.max()) / step**2
+    note = "Compact components (+) saturate the colour scale." if vmax is not None else None
     if view.flux_note:
         note = view.flux_note if note is None else f"{note} {view.flux_note}"
-    fig, numbers = plots.sky_plot(image, extent, outlines, resolution=resolution, unit=unit,
-                                  title=title or f"{vset.source}: fitted model on the sky",
-                                  note=note, vmax=vmax)
+    fig, numbers = plots.sky_plot(
+        image,
+        extent,
+        outlines,
+        resolution=resolution,
+        unit=unit,
+        title=title or f"{vset.source}: fitted model on the sky",
+        note=note,
+        vmax=vmax,
+    )
     numbers["centre"] = centre
     return fig, numbers

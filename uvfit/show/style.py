@@ -5,10 +5,12 @@ blindness (Okabe & Ito 2008, "Color Universal Design"; the hex values are common
 are drawn on the Agg canvas without pyplot, so nothing needs a display and no global figure state
 is touched (importing this module changes no one's backend).
 """
+
 import io
 
 import matplotlib
 import numpy as np
+from cycler import cycler
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
@@ -26,8 +28,10 @@ OKABE_ITO = {
     "reddish_purple": "#CC79A7",
 }
 #: colours for categories (baselines, components), yellow last because it prints faintly
-CYCLE = [OKABE_ITO[k] for k in ("blue", "vermillion", "bluish_green", "orange", "reddish_purple",
-                                 "sky_blue", "black", "yellow")]
+CYCLE = [
+    OKABE_ITO[k]
+    for k in ("blue", "vermillion", "bluish_green", "orange", "reddish_purple", "sky_blue", "black", "yellow")
+]
 #: markers cycled together with the colours so that more than eight categories stay distinct
 MARKERS = ["o", "s", "^", "D", "v", "P", "X", "*"]
 DATA_COLOUR = OKABE_ITO["blue"]
@@ -49,7 +53,7 @@ RC = {
     "axes.grid": True,
     "grid.alpha": 0.3,
     "grid.linewidth": 0.6,
-    "axes.prop_cycle": matplotlib.cycler(color=CYCLE),
+    "axes.prop_cycle": cycler(color=CYCLE),
     "savefig.facecolor": "white",
     "figure.facecolor": "white",
     "svg.hashsalt": "uvfit",

@@ -4,6 +4,7 @@ Every function returns the text without a final newline; ``click.echo(text)`` pr
 functions read only the JSON-ready dictionaries the tasks return (``uvfit.tasks``), so a table can
 be printed again from a file written by ``--json``.
 """
+
 import numpy as np
 
 from ..labels import SAMPLE_CAUTION
@@ -29,16 +30,20 @@ def fit_text(out):
     lines = []
     echo = lines.append
     st = out["statistics"]
-    echo(f"mode {out['mode']}, {st['n_data']} data, {st['n_free']} free parameters, "
-         f"systematic floor {out['systematic']:g}, seed {out['seed']}")
+    echo(
+        f"mode {out['mode']}, {st['n_data']} data, {st['n_free']} free parameters, "
+        f"systematic floor {out['systematic']:g}, seed {out['seed']}"
+    )
     echo("")
     echo(f"{'parameter':<28} {'value ± error':<30} {'unit':<6} status")
     for name, p in out["parameters"].items():
         status = "free" if p["free"] else (f"tied to {p['tie']}" if p.get("tie") else "fixed")
         if p.get("measured") is False:
             status += f", not measured (x flux scale: {p['from_flux_scale']:.4g})"
-        echo(f"{name:<28} {_fmt(p['value'], p['error'] if p['free'] or p.get('tie') else None):<30} "
-             f"{p['unit']:<6} {status}")
+        echo(
+            f"{name:<28} {_fmt(p['value'], p['error'] if p['free'] or p.get('tie') else None):<30} "
+            f"{p['unit']:<6} {status}"
+        )
     if out["derived"]:
         echo("")
         echo(f"{'derived quantity':<36} {'value ± error':<30} unit")
@@ -58,8 +63,10 @@ def fit_text(out):
                 text += "  not measured"
             echo(f"{key:<36} {text:<30} {d['unit']}")
     echo("")
-    echo(f"chi2 {st['chi2']:.6g} for {st['dof']} degrees of freedom (reduced {st['reduced_chi2']:.4g}); "
-         f"AIC {st['aic']:.6g}, BIC {st['bic']:.6g}")
+    echo(
+        f"chi2 {st['chi2']:.6g} for {st['dof']} degrees of freedom (reduced {st['reduced_chi2']:.4g}); "
+        f"AIC {st['aic']:.6g}, BIC {st['bic']:.6g}"
+    )
     if out["rescale_errors"]:
         echo(f"errors scaled by {out['error_scale']:.4g} (reduced chi2 set to 1)")
     for label, key in (("stations", "per_station"), ("baselines", "per_baseline")):
@@ -67,8 +74,10 @@ def fit_text(out):
         if not table:
             continue
         worst = sorted(table.items(), key=lambda kv: -(kv[1]["chi2"] / max(kv[1]["n"], 1)))[:5]
-        echo(f"worst {label} (chi2 / n): " + ", ".join(
-            f"{k} {v['chi2'] / max(v['n'], 1):.3g} ({v['n']})" for k, v in worst))
+        echo(
+            f"worst {label} (chi2 / n): "
+            + ", ".join(f"{k} {v['chi2'] / max(v['n'], 1):.3g} ({v['n']})" for k, v in worst)
+        )
     for note in out["notices"]:
         echo(f"notice: {note}")
     for caution in out["cautions"]:
@@ -83,16 +92,19 @@ def compare_text(out):
     """The table of a model comparison (``uvfit.tasks.compare(...).to_dict()``)."""
     lines = []
     echo = lines.append
-    echo(f"mode {out['mode']}, systematic floor {out['systematic']:g}, seed {out['seed']}, "
-         f"{out['n_bootstrap']} bootstrap simulations")
+    echo(
+        f"mode {out['mode']}, systematic floor {out['systematic']:g}, seed {out['seed']}, "
+        f"{out['n_bootstrap']} bootstrap simulations"
+    )
     echo("")
-    echo(f"{'model':<24} {'n_free':>6} {'chi2':>12} {'dof':>6} {'AIC':>12} {'BIC':>12} "
-         f"{'2 ln LR':>10} {'FAP':>8}")
+    echo(f"{'model':<24} {'n_free':>6} {'chi2':>12} {'dof':>6} {'AIC':>12} {'BIC':>12} {'2 ln LR':>10} {'FAP':>8}")
     for r in out["models"]:
         fap = r["false_alarm_probability"]
         fap_text = "-" if fap is None else f"{fap:.3g}"
-        echo(f"{r['name']:<24} {r['n_free']:>6} {r['chi2']:>12.6g} {r['dof']:>6} {r['aic']:>12.6g} "
-             f"{r['bic']:>12.6g} {r['likelihood_ratio']:>10.4g} {fap_text:>8}")
+        echo(
+            f"{r['name']:<24} {r['n_free']:>6} {r['chi2']:>12.6g} {r['dof']:>6} {r['aic']:>12.6g} "
+            f"{r['bic']:>12.6g} {r['likelihood_ratio']:>10.4g} {fap_text:>8}"
+        )
     echo("")
     echo(f"2 ln LR: chi2 of the simplest model ('{out['simplest']}') minus the model's chi2.")
     for r in out["models"]:
@@ -133,9 +145,11 @@ def closures_text(res):
             f"{_f(res['closure_amplitude_reduced_chi2'])}  (expected 1 +/- "
             f"{_f(res['closure_amplitude_expected_spread'], '.2g')})",
         ]
-        for title, key, label in (("worst triangles", "worst_triangles", "label"),
-                                  ("worst quadrangles", "worst_quadrangles", "label"),
-                                  ("worst stations", "worst_stations", "station")):
+        for title, key, label in (
+            ("worst triangles", "worst_triangles", "label"),
+            ("worst quadrangles", "worst_quadrangles", "label"),
+            ("worst stations", "worst_stations", "station"),
+        ):
             rows = res.get(key) or []
             if not rows:
                 continue
@@ -154,8 +168,9 @@ def closures_text(res):
 def _sexagesimal(ra_deg, dec_deg):
     if not (np.isfinite(ra_deg) and np.isfinite(dec_deg)):
         return "unknown"
-    from astropy.coordinates import Angle
     import astropy.units as u
+    from astropy.coordinates import Angle
+
     ra = Angle(ra_deg, u.deg).to_string(unit=u.hourangle, sep="hms", precision=4, pad=True)
     dec = Angle(dec_deg, u.deg).to_string(unit=u.deg, sep="dms", precision=3, alwayssign=True, pad=True)
     return f"RA {ra}  Dec {dec}  (J2000; {ra_deg:.6f} deg, {dec_deg:+.6f} deg)"
@@ -178,6 +193,47 @@ def _angle(mas):
     if mas < 1e3:
         return f"{mas:.3g} mas"
     return f"{mas / 1e3:.3g} arcsec"
+
+
+def _ms_lines(s):
+    """The extra lines of the human table for a Measurement Set."""
+    fields = s.get("ms_fields", [])
+    used = [f for f in fields if f.get("n_rows")]
+    spws = s.get("ms_spws", [])
+    read = set(s.get("ms_spws_read", []))
+    scans = s.get("scans", [])
+    rows = [
+        ("data column", s.get("ms_column_note", "-") + f"; weights from {s.get('ms_weights', '-')}"),
+        (
+            "fields",
+            f"{len(fields)}: "
+            + ", ".join(
+                f"{f['id']} {f['name']}"
+                + (" (read)" if f["id"] == s.get("ms_field") else "")
+                + ("" if f.get("n_rows") else " (no rows)")
+                for f in fields
+            )
+            + (f"; {len(used)} with data" if len(used) != len(fields) else ""),
+        ),
+        (
+            "spectral windows",
+            f"{len(spws)}: "
+            + ", ".join(
+                f"{w['id']} {w['name'] or '-'} ({w['n_channels']} channels, "
+                f"{(w['frequency_min_hz'] or 0) / 1e9:.6g}-{(w['frequency_max_hz'] or 0) / 1e9:.6g} GHz)"
+                + (" (read)" if w["id"] in read else "")
+                for w in spws
+            ),
+        ),
+        ("antennas", f"{len(s.get('ms_antennas', []))} in the ANTENNA table, {s['n_stations']} with data"),
+        (
+            "scans",
+            f"{len(scans)}: "
+            + ", ".join(f"{c['scan']} ({c['duration_s']:.4g} s, {c['n_visibilities']} vis)" for c in scans[:20])
+            + (" ..." if len(scans) > 20 else ""),
+        ),
+    ]
+    return rows
 
 
 def info_text(s):
@@ -204,9 +260,15 @@ def info_text(s):
         ("uv distance", f"{_uv(s['uv_min_lambda'])} to {_uv(s['uv_max_lambda'])}"),
         ("resolution", f"{_angle(s['resolution_mas'])}  (lambda/B_max, nominal)"),
         ("largest scale", f"{_angle(s['largest_scale_mas'])}  (lambda/B_min)"),
-        ("median SNR", f"{s['median_snr']:.3g}  (median sigma {s['median_sigma_jy']:.3g} Jy)"
-         if s.get("median_snr") is not None else "-"),
+        (
+            "median SNR",
+            f"{s['median_snr']:.3g}  (median sigma {s['median_sigma_jy']:.3g} Jy)"
+            if s.get("median_snr") is not None
+            else "-",
+        ),
     ]
+    if s.get("file_format") == "ms":
+        rows += _ms_lines(s)
     width = max(len(k) for k, _ in rows)
     lines = [f"{k:<{width}}  {v}" for k, v in rows]
     for key in ("note_single_hand", "note_weights", "note_stations"):
@@ -251,23 +313,26 @@ def forecast_text(out):
         f"forecast: {out['trials']} trials of '{out['true_model']}' ({out['true_free_parameters']} free) "
         f"with array '{out['array']}', "
         f"mode {out['mode']}, seed {out['seed']} (trial k uses seed {out['seed']} + k)",
-        f"rows per trial: {out['rows_per_trial']}; nominal resolution "
-        f"{out['nominal_resolution_uas']:.1f} microarcsec",
+        f"rows per trial: {out['rows_per_trial']}; nominal resolution {out['nominal_resolution_uas']:.1f} microarcsec",
         f"true structure recovered (all free parameters within 3 sigma): "
-        f"{out['recovered_fraction']:.0%}" + (f" ({out['true_fit_failures']} fits failed)"
-                                               if out["true_fit_failures"] else ""),
+        f"{out['recovered_fraction']:.0%}"
+        + (f" ({out['true_fit_failures']} fits failed)" if out["true_fit_failures"] else ""),
         f"true model preferred over every alternative: by BIC {out['preferred_bic_fraction']:.0%}, "
         f"by likelihood ratio {out['preferred_lr_fraction']:.0%}",
     ]
     for a in out["alternatives"]:
         d = a["delta_chi2"]
         med = "-" if d["median"] is None else f"{d['median']:.1f} [{d['p16']:.1f}, {d['p84']:.1f}]"
-        rule = (f"threshold delta chi2 {a['lr_threshold_delta_chi2']:.2f}"
-                if a["free_parameters"] != out["true_free_parameters"]
-                else "same number of free parameters: higher likelihood")
-        lines.append(f"  vs {a['name']} ({a['free_parameters']} free): BIC {a['true_preferred_bic_fraction']:.0%}, "
-                     f"LR {a['true_preferred_lr_fraction']:.0%} ({rule}); "
-                     f"delta chi2 = chi2_alt - chi2_true, median [16%, 84%] {med}")
+        rule = (
+            f"threshold delta chi2 {a['lr_threshold_delta_chi2']:.2f}"
+            if a["free_parameters"] != out["true_free_parameters"]
+            else "same number of free parameters: higher likelihood"
+        )
+        lines.append(
+            f"  vs {a['name']} ({a['free_parameters']} free): BIC {a['true_preferred_bic_fraction']:.0%}, "
+            f"LR {a['true_preferred_lr_fraction']:.0%} ({rule}); "
+            f"delta chi2 = chi2_alt - chi2_true, median [16%, 84%] {med}"
+        )
     if out["structure"]:
         lines.append("recovered structure, median [16%, 84%] (true value):")
         for key, s in out["structure"].items():

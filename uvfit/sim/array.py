@@ -25,7 +25,9 @@ Format (all keys lower case; see README, "Array files")::
 The default elevation limit of 10 degrees is a common-practice value for planning; a station below
 its limit takes no data (its baselines drop out of the track).
 """
+
 import os
+
 try:
     import tomllib
 except ModuleNotFoundError:  # Python 3.10
@@ -36,7 +38,7 @@ import numpy as np
 
 from ..errors import UvfitError
 
-DEFAULT_ETA = 0.88          # 2-bit sampling efficiency (TMS 2017 ch. 8, from memory)
+DEFAULT_ETA = 0.88  # 2-bit sampling efficiency (TMS 2017 ch. 8, from memory)
 DEFAULT_MIN_ELEVATION = 10.0  # degrees (common practice)
 
 _TOP_KEYS = {"name", "description", "defaults", "station"}
@@ -47,9 +49,9 @@ _STATION_KEYS = {"name", "x", "y", "z", "lat", "lon", "height", "sefd", "diamete
 @dataclass
 class Station:
     name: str
-    xyz: np.ndarray           # geocentric position, m
-    sefd: float               # Jy
-    min_elevation: float      # degrees
+    xyz: np.ndarray  # geocentric position, m
+    sefd: float  # Jy
+    min_elevation: float  # degrees
     diameter: float = float("nan")  # m, NaN when not given
 
 
@@ -101,8 +103,7 @@ class Array:
 
 def _number(value, where, key):
     if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise UvfitError(f"array file: {where}: '{key}' must be a number, got {value!r}",
-                         f"write {key} = <number>")
+        raise UvfitError(f"array file: {where}: '{key}' must be a number, got {value!r}", f"write {key} = <number>")
     value = float(value)
     if not np.isfinite(value):
         raise UvfitError(f"array file: {where}: '{key}' must be finite, got {value!r}")
@@ -112,8 +113,10 @@ def _number(value, where, key):
 def _elevation(value, where):
     value = _number(value, where, "min_elevation")
     if not -90.0 <= value < 90.0:
-        raise UvfitError(f"array file: {where}: 'min_elevation' = {value} is outside -90..90 degrees",
-                         "give the elevation limit in degrees, e.g. 10")
+        raise UvfitError(
+            f"array file: {where}: 'min_elevation' = {value} is outside -90..90 degrees",
+            "give the elevation limit in degrees, e.g. 10",
+        )
     return value
 
 
@@ -124,8 +127,9 @@ def parse_array(data, source="array file"):
 
     unknown = set(data) - _TOP_KEYS
     if unknown:
-        raise UvfitError(f"{source}: unknown top-level key(s) {sorted(unknown)}",
-                         f"allowed keys are {sorted(_TOP_KEYS)}")
+        raise UvfitError(
+            f"{source}: unknown top-level key(s) {sorted(unknown)}", f"allowed keys are {sorted(_TOP_KEYS)}"
+        )
     name = data.get("name")
     if not isinstance(name, str) or not name.strip():
         raise UvfitError(f"{source}: the array has no 'name'", 'add a line name = "my array" at the top')
@@ -134,18 +138,20 @@ def parse_array(data, source="array file"):
         raise UvfitError(f"{source}: 'defaults' must be a table", "write [defaults] on its own line")
     unknown = set(defaults) - _DEFAULT_KEYS
     if unknown:
-        raise UvfitError(f"{source}: unknown key(s) {sorted(unknown)} in [defaults]",
-                         f"allowed keys are {sorted(_DEFAULT_KEYS)}")
+        raise UvfitError(
+            f"{source}: unknown key(s) {sorted(unknown)} in [defaults]", f"allowed keys are {sorted(_DEFAULT_KEYS)}"
+        )
     eta = _number(defaults.get("eta", DEFAULT_ETA), "[defaults]", "eta")
     if not 0.0 < eta <= 1.0:
-        raise UvfitError(f"{source}: [defaults] eta = {eta} is outside (0, 1]",
-                         "eta is the digital efficiency, about 0.88 for 2-bit sampling")
+        raise UvfitError(
+            f"{source}: [defaults] eta = {eta} is outside (0, 1]",
+            "eta is the digital efficiency, about 0.88 for 2-bit sampling",
+        )
     min_el_default = _elevation(defaults.get("min_elevation", DEFAULT_MIN_ELEVATION), "[defaults]")
 
     raw = data.get("station", [])
     if not isinstance(raw, list):
-        raise UvfitError(f"{source}: 'station' must be a list of tables",
-                         "write each station as a [[station]] table")
+        raise UvfitError(f"{source}: 'station' must be a list of tables", "write each station as a [[station]] table")
     stations, seen = [], set()
     for k, st in enumerate(raw, start=1):
         label = f"station {k}"
@@ -158,22 +164,26 @@ def parse_array(data, source="array file"):
         where = f"station '{sname}'"
         unknown = set(st) - _STATION_KEYS
         if unknown:
-            raise UvfitError(f"{source}: {where}: unknown key(s) {sorted(unknown)}",
-                             f"allowed keys are {sorted(_STATION_KEYS)}")
+            raise UvfitError(
+                f"{source}: {where}: unknown key(s) {sorted(unknown)}", f"allowed keys are {sorted(_STATION_KEYS)}"
+            )
         if sname in seen:
             raise UvfitError(f"{source}: {where}: the name is used twice", "give every station its own name")
         seen.add(sname)
         has_xyz = [key in st for key in ("x", "y", "z")]
         has_geo = [key in st for key in ("lat", "lon", "height")]
         if any(has_xyz) and any(has_geo):
-            raise UvfitError(f"{source}: {where}: both x/y/z and lat/lon/height are given",
-                             "give the position one way only")
+            raise UvfitError(
+                f"{source}: {where}: both x/y/z and lat/lon/height are given", "give the position one way only"
+            )
         if all(has_xyz):
             xyz = np.array([_number(st[key], where, key) for key in ("x", "y", "z")])
             if np.linalg.norm(xyz) < 6.0e6 or np.linalg.norm(xyz) > 6.5e6:
-                raise UvfitError(f"{source}: {where}: position (x, y, z) is {np.linalg.norm(xyz):.0f} m "
-                                 "from the geocentre, not on the Earth's surface",
-                                 "x, y, z are geocentric coordinates in metres")
+                raise UvfitError(
+                    f"{source}: {where}: position (x, y, z) is {np.linalg.norm(xyz):.0f} m "
+                    "from the geocentre, not on the Earth's surface",
+                    "x, y, z are geocentric coordinates in metres",
+                )
         elif all(has_geo):
             lat = _number(st["lat"], where, "lat")
             lon = _number(st["lon"], where, "lon")
@@ -184,18 +194,25 @@ def parse_array(data, source="array file"):
             xyz = np.array([loc.x.to_value(u.m), loc.y.to_value(u.m), loc.z.to_value(u.m)])
         else:
             given = [key for key in ("x", "y", "z", "lat", "lon", "height") if key in st]
-            missing = ([key for key, h in zip("xyz", has_xyz) if not h] if any(has_xyz) else
-                       [key for key, h in zip(("lat", "lon", "height"), has_geo) if not h]
-                       if any(has_geo) else ["x", "y", "z"])
-            raise UvfitError(f"{source}: {where}: missing position key(s) {missing}"
-                             + (f" (given: {given})" if given else ""),
-                             "give x, y, z (geocentric, m) or lat, lon (deg) and height (m)")
+            missing = (
+                [key for key, h in zip("xyz", has_xyz) if not h]
+                if any(has_xyz)
+                else [key for key, h in zip(("lat", "lon", "height"), has_geo) if not h]
+                if any(has_geo)
+                else ["x", "y", "z"]
+            )
+            raise UvfitError(
+                f"{source}: {where}: missing position key(s) {missing}" + (f" (given: {given})" if given else ""),
+                "give x, y, z (geocentric, m) or lat, lon (deg) and height (m)",
+            )
         if "sefd" not in st:
             raise UvfitError(f"{source}: {where}: missing key 'sefd'", "add sefd = <Jy>, e.g. sefd = 500.0")
         sefd = _number(st["sefd"], where, "sefd")
         if sefd <= 0:
-            raise UvfitError(f"{source}: {where}: 'sefd' = {sefd} must be positive",
-                             "the SEFD is the system equivalent flux density in Jy")
+            raise UvfitError(
+                f"{source}: {where}: 'sefd' = {sefd} must be positive",
+                "the SEFD is the system equivalent flux density in Jy",
+            )
         diameter = float("nan")
         if "diameter" in st:
             diameter = _number(st["diameter"], where, "diameter")
@@ -204,10 +221,13 @@ def parse_array(data, source="array file"):
         min_el = _elevation(st["min_elevation"], where) if "min_elevation" in st else min_el_default
         stations.append(Station(sname, xyz, sefd, min_el, diameter))
     if len(stations) < 2:
-        raise UvfitError(f"{source}: the array has {len(stations)} station(s); an interferometer "
-                         "needs at least two", "add [[station]] tables")
-    return Array(name=name.strip(), stations=stations, eta=eta,
-                 description=str(data.get("description", "")), source_path=source)
+        raise UvfitError(
+            f"{source}: the array has {len(stations)} station(s); an interferometer needs at least two",
+            "add [[station]] tables",
+        )
+    return Array(
+        name=name.strip(), stations=stations, eta=eta, description=str(data.get("description", "")), source_path=source
+    )
 
 
 def load_array(path):
@@ -219,8 +239,9 @@ def load_array(path):
         with open(path, "rb") as handle:
             data = tomllib.load(handle)
     except tomllib.TOMLDecodeError as exc:
-        raise UvfitError(f"array file {path} is not valid TOML: {exc}",
-                         "see README, 'Array files', for the format") from None
+        raise UvfitError(
+            f"array file {path} is not valid TOML: {exc}", "see README, 'Array files', for the format"
+        ) from None
     except UnicodeDecodeError:
         raise UvfitError(f"array file {path} is not a text file") from None
     return parse_array(data, source=f"array file {path}")

@@ -24,6 +24,7 @@ A forecast is only as good as its assumptions: the array file's SEFDs, perfect c
 the gain errors asked for, the true model exactly right, no atmosphere. Fits in mode ``complex``
 need phase-calibrated data; with station gain errors use a closure mode.
 """
+
 import numpy as np
 
 from .. import __version__
@@ -39,6 +40,7 @@ def _fit(vset, model, mode, systematic, starts, seed, frequency):
     from ..infer.derived import derived_quantities
     from ..infer.lsq import fit
     from ..stats.modes import make_statistic
+
     stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
     res = fit(stat, starts=starts, seed=seed)
     derived = derived_quantities(res, frequency=frequency, resolved_test=False, limits=False)
@@ -48,6 +50,7 @@ def _fit(vset, model, mode, systematic, starts, seed, frequency):
 def true_structure(model, frequency):
     """Derived structure quantities of the true model itself (no fit)."""
     from ..infer.derived import quantities_at
+
     values, _, _ = quantities_at(model, model.get_free(), frequency, 0.0)
     return {k: float(v) for k, v in values.items() if k.endswith(STRUCTURE_SUFFIXES)}
 
@@ -60,9 +63,23 @@ def _spread(values):
     return {"n": int(len(x)), "median": float(p50), "p16": float(p16), "p84": float(p84)}
 
 
-def forecast(array, true_model, alternatives, observation, trials, mode="complex", seed=0,
-             gain_error=0.0, phase_error_deg=0.0, systematic=0.0, fit_systematic=None, starts=1,
-             true_name="true", alt_names=None, progress=None):
+def forecast(
+    array,
+    true_model,
+    alternatives,
+    observation,
+    trials,
+    mode="complex",
+    seed=0,
+    gain_error=0.0,
+    phase_error_deg=0.0,
+    systematic=0.0,
+    fit_systematic=None,
+    starts=1,
+    true_name="true",
+    alt_names=None,
+    progress=None,
+):
     """Run the forecast (see the module docstring); returns a JSON-ready dictionary.
 
     ``alternatives``: SkyModel objects; ``fit_systematic``: the systematic fraction the fits use
@@ -75,8 +92,10 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
         raise UvfitError(f"trials must be at least 1 (got {trials})")
     alternatives = list(alternatives)
     if not alternatives:
-        raise UvfitError("forecast needs at least one alternative model (alternatives is empty)",
-                         "pass one or more alternative models")
+        raise UvfitError(
+            "forecast needs at least one alternative model (alternatives is empty)",
+            "pass one or more alternative models",
+        )
     alt_names = list(alt_names) if alt_names else [f"alt{i + 1}" for i in range(len(alternatives))]
     fit_systematic = systematic if fit_systematic is None else fit_systematic
     layout = plan(array, observation)
@@ -87,17 +106,27 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
     true_struct = true_structure(true_model, frequency)
     k_true = len(true_model.free_names)
     per_trial, struct_values = [], {k: [] for k in true_struct}
-    alt_stats = [{"name": n, "free_parameters": len(m.free_names), "bic_preferred": 0,
-                  "lr_preferred": 0, "delta_chi2": [], "lr_threshold": None, "fit_failures": 0}
-                 for n, m in zip(alt_names, alternatives)]
+    alt_stats = [
+        {
+            "name": n,
+            "free_parameters": len(m.free_names),
+            "bic_preferred": 0,
+            "lr_preferred": 0,
+            "delta_chi2": [],
+            "lr_threshold": None,
+            "fit_failures": 0,
+        }
+        for n, m in zip(alt_names, alternatives)
+    ]
     for a, m in zip(alt_stats, alternatives):
         dk = abs(k_true - len(m.free_names))
         a["lr_threshold"] = float(chi2_dist.ppf(LR_LEVEL, dk)) if dk else 0.0
     n_recovered = n_fail_true = 0
     trial_seeds = [int(seed) + k for k in range(trials)]
     for k, s in enumerate(trial_seeds):
-        vset = observe(layout, model_vis, seed=s, gain_error=gain_error,
-                       phase_error_deg=phase_error_deg, systematic=systematic)
+        vset = observe(
+            layout, model_vis, seed=s, gain_error=gain_error, phase_error_deg=phase_error_deg, systematic=systematic
+        )
         row = {"trial": k, "seed": s}
         try:
             res, derived = _fit(vset, true_model, mode, fit_systematic, starts, s, frequency)
@@ -118,8 +147,16 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
         for key in struct_values:
             if key in derived:
                 struct_values[key].append(float(derived[key]["value"]))
-        row.update({"recovered": recovered, "pulls": pulls, "chi2_true": res.chi2,
-                    "bic_true": res.bic, "n_data": res.n_data, "converged": bool(res.converged)})
+        row.update(
+            {
+                "recovered": recovered,
+                "pulls": pulls,
+                "chi2_true": res.chi2,
+                "bic_true": res.bic,
+                "n_data": res.n_data,
+                "converged": bool(res.converged),
+            }
+        )
         row["alternatives"] = {}
         for a, alt in zip(alt_stats, alternatives):
             try:
@@ -139,21 +176,31 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
             a["bic_preferred"] += bool(bic_pref)
             a["lr_preferred"] += bool(lr_pref)
             a["delta_chi2"].append(float(dchi2))
-            row["alternatives"][a["name"]] = {"chi2": ares.chi2, "bic": ares.bic,
-                                              "delta_chi2": float(dchi2),
-                                              "bic_prefers_true": bool(bic_pref),
-                                              "lr_prefers_true": bool(lr_pref)}
+            row["alternatives"][a["name"]] = {
+                "chi2": ares.chi2,
+                "bic": ares.bic,
+                "delta_chi2": float(dchi2),
+                "bic_prefers_true": bool(bic_pref),
+                "lr_prefers_true": bool(lr_pref),
+            }
         per_trial.append(row)
         if progress:
             progress(1)
     alts_out = []
     for a in alt_stats:
-        alts_out.append({
-            "name": a["name"], "free_parameters": a["free_parameters"],
-            "true_preferred_bic_fraction": a["bic_preferred"] / trials,
-            "true_preferred_lr_fraction": a["lr_preferred"] / trials,
-            "lr_threshold_delta_chi2": a["lr_threshold"], "lr_level": LR_LEVEL,
-            "delta_chi2": _spread(a["delta_chi2"]), "fit_failures": a["fit_failures"]})
+        alts_out.append(
+            {
+                "name": a["name"],
+                "free_parameters": a["free_parameters"],
+                "true_preferred_bic_fraction": a["bic_preferred"] / trials,
+                "true_preferred_lr_fraction": a["lr_preferred"] / trials,
+                "lr_threshold_delta_chi2": a["lr_threshold"],
+                "lr_level": LR_LEVEL,
+                "delta_chi2": _spread(a["delta_chi2"]),
+                "fit_failures": a["fit_failures"],
+            }
+        )
+
     def _all(flag):
         n = 0
         for row in per_trial:
@@ -173,8 +220,12 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
         "true_free_parameters": k_true,
         "array": array.name,
         "observation": observation.describe(),
-        "corruption": {"gain_error": gain_error, "phase_error_deg": phase_error_deg,
-                       "systematic": systematic, "fit_systematic": fit_systematic},
+        "corruption": {
+            "gain_error": gain_error,
+            "phase_error_deg": phase_error_deg,
+            "systematic": systematic,
+            "fit_systematic": fit_systematic,
+        },
         "rows_per_trial": summary["rows"],
         "nominal_resolution_uas": summary["nominal_resolution_uas"],
         "recovered_fraction": n_recovered / trials,
@@ -182,11 +233,12 @@ def forecast(array, true_model, alternatives, observation, trials, mode="complex
         "true_fit_failures": n_fail_true,
         "preferred_bic_fraction": _all("bic_prefers_true"),
         "preferred_lr_fraction": _all("lr_prefers_true"),
-        "preference_rule": ("true model preferred over every alternative: lower BIC; or "
-                            f"likelihood ratio against the {LR_LEVEL:.0%} chi-square point"),
+        "preference_rule": (
+            "true model preferred over every alternative: lower BIC; or "
+            f"likelihood ratio against the {LR_LEVEL:.0%} chi-square point"
+        ),
         "alternatives": alts_out,
-        "structure": {key: {"true": true_struct[key], **_spread(vals)}
-                      for key, vals in struct_values.items()},
+        "structure": {key: {"true": true_struct[key], **_spread(vals)} for key, vals in struct_values.items()},
         "notice": summary["notice"],
         "cautions": list(FORECAST_CAUTIONS),
         "per_trial": per_trial,

@@ -18,6 +18,7 @@ Systematic fraction f: an extra independent error of rms f |V| per part is added
 included in the row's sigma in quadrature, sigma_total = sqrt(sigma^2 + (f |V|)^2), the same form
 the statistics layer uses for its systematic floor.
 """
+
 import numpy as np
 
 from ..errors import UvfitError
@@ -30,17 +31,23 @@ def thermal_sigma(sefd1, sefd2, bandwidth_hz, integration_s, eta):
     if np.any(bandwidth_hz <= 0) or np.any(integration_s <= 0) or not 0 < eta <= 1:
         raise UvfitError("the channel bandwidth, integration time and efficiency must be positive")
     return np.sqrt(np.asarray(sefd1, float) * np.asarray(sefd2, float)) / (
-        eta * np.sqrt(2.0 * bandwidth_hz * integration_s))
+        eta * np.sqrt(2.0 * bandwidth_hz * integration_s)
+    )
 
 
 def check_corruption(gain_error=0.0, phase_error_deg=0.0, systematic=0.0):
-    for label, value in (("gain error", gain_error), ("phase error", phase_error_deg),
-                         ("systematic fraction", systematic)):
+    for label, value in (
+        ("gain error", gain_error),
+        ("phase error", phase_error_deg),
+        ("systematic fraction", systematic),
+    ):
         if value is None or not np.isfinite(value) or value < 0:
             raise UvfitError(f"the {label} must be a non-negative number, got {value}")
     if gain_error >= 1.0:
-        raise UvfitError(f"the gain error {gain_error} is a fraction of the amplitude and must be "
-                         "below 1", "e.g. --gain-error 0.1 for 10% amplitude scatter")
+        raise UvfitError(
+            f"the gain error {gain_error} is a fraction of the amplitude and must be below 1",
+            "e.g. --gain-error 0.1 for 10% amplitude scatter",
+        )
 
 
 def station_gains(rng, n_scans, n_stations, gain_error=0.0, phase_error_deg=0.0):
@@ -60,8 +67,19 @@ def complex_noise(rng, sigma):
     return sigma * rng.standard_normal(sigma.shape) + 1j * sigma * rng.standard_normal(sigma.shape)
 
 
-def corrupt(model_vis, sigma_thermal, ant1, ant2, scan, n_stations, rng, gain_error=0.0,
-            phase_error_deg=0.0, systematic=0.0, thermal=True):
+def corrupt(
+    model_vis,
+    sigma_thermal,
+    ant1,
+    ant2,
+    scan,
+    n_stations,
+    rng,
+    gain_error=0.0,
+    phase_error_deg=0.0,
+    systematic=0.0,
+    thermal=True,
+):
     """Observed visibilities and their sigmas from model visibilities (all arrays per row).
 
     ``ant1``, ``ant2``: station indices per row; ``scan``: scan index per row (0 ..). Returns
@@ -77,7 +95,7 @@ def corrupt(model_vis, sigma_thermal, ant1, ant2, scan, n_stations, rng, gain_er
     if systematic > 0:
         extra = systematic * np.abs(model_vis)
         vis = vis + complex_noise(rng, extra)
-        sigma = np.sqrt(sigma ** 2 + extra ** 2)
+        sigma = np.sqrt(sigma**2 + extra**2)
     if thermal:
         vis = vis + complex_noise(rng, sigma_thermal)
     return vis, sigma, gains

@@ -14,6 +14,7 @@ Scans: station gain errors are constant over a scan; scans are consecutive block
 A simulation is only as good as its assumptions: perfect calibration apart from the gain errors
 asked for, no atmosphere, no source variability, the model exactly as given.
 """
+
 from dataclasses import dataclass
 
 import numpy as np
@@ -50,8 +51,10 @@ class Observation:
         if int(self.channels) != self.channels or self.channels < 1:
             raise UvfitError(f"the number of channels must be a positive integer, got {self.channels}")
         if self.bandwidth_hz >= 2 * self.frequency_hz:
-            raise UvfitError("the bandwidth is wider than twice the centre frequency",
-                             "check the units of --bandwidth and --frequency")
+            raise UvfitError(
+                "the bandwidth is wider than twice the centre frequency",
+                "check the units of --bandwidth and --frequency",
+            )
         if not self.scan_length_s > 0:
             raise UvfitError(f"the scan length must be positive, got {self.scan_length_s} s")
         if not -90 <= self.dec_deg <= 90:
@@ -70,19 +73,26 @@ class Observation:
     def describe(self):
         with _Quiet():
             start = self.start.isot
-        return {"ra_deg": self.ra_deg, "dec_deg": self.dec_deg, "start_utc": start,
-                "duration_s": self.duration_s, "integration_s": self.integration_s,
-                "frequency_hz": self.frequency_hz, "bandwidth_hz": self.bandwidth_hz,
-                "channels": int(self.channels), "scan_length_s": self.scan_length_s,
-                "source": self.source}
+        return {
+            "ra_deg": self.ra_deg,
+            "dec_deg": self.dec_deg,
+            "start_utc": start,
+            "duration_s": self.duration_s,
+            "integration_s": self.integration_s,
+            "frequency_hz": self.frequency_hz,
+            "bandwidth_hz": self.bandwidth_hz,
+            "channels": int(self.channels),
+            "scan_length_s": self.scan_length_s,
+            "source": self.source,
+        }
 
 
 @dataclass
 class Layout:
     """The rows of an observation before any visibility is put in them."""
 
-    template: VisibilitySet   # vis = 0, sigma = thermal sigma
-    tracks: object            # uvfit.sim.tracks.Tracks
+    template: VisibilitySet  # vis = 0, sigma = thermal sigma
+    tracks: object  # uvfit.sim.tracks.Tracks
     ant1: np.ndarray
     ant2: np.ndarray
     scan: np.ndarray
@@ -130,10 +140,11 @@ def plan(array, observation):
             "the source is never above the elevation limit of two stations at the same time "
             f"between {_iso(times[0])} and {_iso(times[-1])} UTC"
             + (f" (never up at: {', '.join(never)})" if never else ""),
-            "choose another start time or duration, or check --ra/--dec")
+            "choose another start time or duration, or check --ra/--dec",
+        )
     freqs = obs.channel_frequencies
     n_ch = len(freqs)
-    uvw = tracks.uvw_m[ti, bi]                                   # (R, 3) m
+    uvw = tracks.uvw_m[ti, bi]  # (R, 3) m
     s1, s2 = tracks.station1[bi], tracks.station2[bi]
     ant1, ant2 = np.repeat(s1, n_ch), np.repeat(s2, n_ch)
     scale = np.tile(freqs, len(ti)) / C_LIGHT
@@ -141,55 +152,89 @@ def plan(array, observation):
     mjd = np.repeat(tracks.mjd[ti], n_ch)
     elapsed = np.repeat((tracks.mjd[ti] - obs.start.mjd) * 86400.0, n_ch)
     scan = np.floor(elapsed / obs.scan_length_s).astype(int)
-    _, scan = np.unique(scan, return_inverse=True)              # scans with data, numbered 0..
+    _, scan = np.unique(scan, return_inverse=True)  # scans with data, numbered 0..
     sefd = array.sefd
     sigma = thermal_sigma(sefd[ant1], sefd[ant2], obs.channel_width_hz, obs.integration_s, array.eta)
     names = np.array(array.names)
     template = VisibilitySet(
-        u=uvw_l[:, 0], v=uvw_l[:, 1], w=uvw_l[:, 2], time=mjd,
-        frequency=np.tile(freqs, len(ti)), station1=names[ant1], station2=names[ant2],
-        vis=np.zeros(len(mjd), complex), sigma=sigma, channel=np.tile(np.arange(n_ch), len(ti)),
+        u=uvw_l[:, 0],
+        v=uvw_l[:, 1],
+        w=uvw_l[:, 2],
+        time=mjd,
+        frequency=np.tile(freqs, len(ti)),
+        station1=names[ant1],
+        station2=names[ant2],
+        vis=np.zeros(len(mjd), complex),
+        sigma=sigma,
+        channel=np.tile(np.arange(n_ch), len(ti)),
         integration=np.full(len(mjd), float(obs.integration_s)),
-        stations=StationTable(list(array.names), array.xyz), source=obs.source,
-        ra_deg=float(obs.ra_deg), dec_deg=float(obs.dec_deg), meta={})
+        stations=StationTable(list(array.names), array.xyz),
+        source=obs.source,
+        ra_deg=float(obs.ra_deg),
+        dec_deg=float(obs.dec_deg),
+        meta={},
+    )
     return Layout(template, tracks, ant1, ant2, scan.ravel(), obs, array)
 
 
-def observe(layout, model_vis, seed=0, gain_error=0.0, phase_error_deg=0.0, systematic=0.0,
-            thermal=True, rng=None):
+def observe(layout, model_vis, seed=0, gain_error=0.0, phase_error_deg=0.0, systematic=0.0, thermal=True, rng=None):
     """Fill a layout with ``model_vis`` (per row) corrupted as asked; returns a VisibilitySet."""
     rng = np.random.default_rng(seed) if rng is None else rng
-    vis, sigma, _ = corrupt(model_vis, layout.template.sigma, layout.ant1, layout.ant2,
-                            layout.scan, len(layout.array), rng, gain_error=gain_error,
-                            phase_error_deg=phase_error_deg, systematic=systematic, thermal=thermal)
+    vis, sigma, _ = corrupt(
+        model_vis,
+        layout.template.sigma,
+        layout.ant1,
+        layout.ant2,
+        layout.scan,
+        len(layout.array),
+        rng,
+        gain_error=gain_error,
+        phase_error_deg=phase_error_deg,
+        systematic=systematic,
+        thermal=thermal,
+    )
     out = layout.template.with_vis(vis, sigma)
-    settings = {"seed": seed, "gain_error": gain_error, "phase_error_deg": phase_error_deg,
-                "systematic": systematic, "thermal_noise": bool(thermal),
-                "eta": layout.array.eta, "array": layout.array.name,
-                **layout.observation.describe()}
+    settings = {
+        "seed": seed,
+        "gain_error": gain_error,
+        "phase_error_deg": phase_error_deg,
+        "systematic": systematic,
+        "thermal_noise": bool(thermal),
+        "eta": layout.array.eta,
+        "array": layout.array.name,
+        **layout.observation.describe(),
+    }
     out.meta = {
         "origin": "uvfit simulate",
         "channel_width_hz": [layout.observation.channel_width_hz] * int(layout.observation.channels),
         "seed": seed,
         "simulation": settings,
-        "history": [f"uvfit simulation: array '{layout.array.name}', seed {seed}, gain error "
-                    f"{gain_error}, phase error {phase_error_deg} deg, systematic {systematic}, "
-                    f"thermal noise {'on' if thermal else 'off'}"],
+        "history": [
+            f"uvfit simulation: array '{layout.array.name}', seed {seed}, gain error "
+            f"{gain_error}, phase error {phase_error_deg} deg, systematic {systematic}, "
+            f"thermal noise {'on' if thermal else 'off'}"
+        ],
     }
     if layout.tracks.notice:
         out.meta["notes"] = [layout.tracks.notice]
     return out
 
 
-def simulate(array, model, observation, seed=0, gain_error=0.0, phase_error_deg=0.0,
-             systematic=0.0, thermal=True):
+def simulate(array, model, observation, seed=0, gain_error=0.0, phase_error_deg=0.0, systematic=0.0, thermal=True):
     """Simulate ``observation`` of the SkyModel ``model`` with ``array``; returns (vset, layout)."""
     check_corruption(gain_error, phase_error_deg, systematic)
     layout = plan(array, observation)
     t = layout.template
     model_vis = model.visibilities(t.u, t.v, t.frequency)
-    vset = observe(layout, model_vis, seed=seed, gain_error=gain_error,
-                   phase_error_deg=phase_error_deg, systematic=systematic, thermal=thermal)
+    vset = observe(
+        layout,
+        model_vis,
+        seed=seed,
+        gain_error=gain_error,
+        phase_error_deg=phase_error_deg,
+        systematic=systematic,
+        thermal=thermal,
+    )
     return vset, layout
 
 
@@ -207,10 +252,12 @@ def write_simulation(vset, path, force=False):
     path = os.fspath(path)
     check_writable(path, force)
     if os.path.splitext(path)[1].lower() in (".uvfits", ".uvf", ".fits", ".fit", ".fts"):
+
         def _write(tmp):
-            with _Quiet():   # dates past the leap-second table: ERFA's "dubious year" is expected
+            with _Quiet():  # dates past the leap-second table: ERFA's "dubious year" is expected
                 write(vset, tmp, force=True)
             from astropy.io import fits
+
             with fits.open(tmp, mode="update") as hdul:
                 header = hdul[0].header
                 lines = list(vset.meta.get("history", []))
@@ -220,6 +267,7 @@ def write_simulation(vset, path, force=False):
                 for line in lines:
                     header.add_history(str(line))
                 header["UVFSEED"] = (int(vset.meta.get("seed", 0)), "uvfit simulation seed")
+
         return atomic_write_with(path, _write, force=force)
     with _Quiet():
         return write(vset, path, force=force)

@@ -5,6 +5,7 @@ ascension), ``+12d23m28s`` or ``-5.79`` (declination; a bare number is degrees),
 (UTC), ``12h`` / ``30s`` / ``90min`` (durations), ``86GHz`` / ``512MHz`` (frequencies). Anything
 else is one UvfitError saying what was expected.
 """
+
 import numpy as np
 
 from ..errors import UvfitError
@@ -17,6 +18,7 @@ def parse_angle(text, what="angle", colon_unit="deg"):
     """
     from astropy import units as u
     from astropy.coordinates import Angle
+
     text = str(text).strip()
     try:
         value = float(text)
@@ -28,28 +30,32 @@ def parse_angle(text, what="angle", colon_unit="deg"):
             return float(Angle(text, unit=getattr(u, colon_unit)).to_value(u.deg))
         return float(Angle(text).to_value(u.deg))
     except (ValueError, TypeError, u.UnitsError) as exc:
-        raise UvfitError(f"cannot read the {what} {text!r} ({exc})",
-                         "write it as 12h30m49s, +12d23m28s or 187.7d") from None
+        raise UvfitError(
+            f"cannot read the {what} {text!r} ({exc})", "write it as 12h30m49s, +12d23m28s or 187.7d"
+        ) from None
 
 
 def parse_quantity(text, unit, what):
     """A float in ``unit`` (an astropy unit string) from text such as '12h' or '86GHz'."""
     from astropy import units as u
+
     text = str(text).strip()
     try:
         q = u.Quantity(text)
     except (ValueError, TypeError):
-        raise UvfitError(f"cannot read the {what} {text!r}: unknown number or unit",
-                         f"give a number with a unit convertible to {unit}, e.g. "
-                         f"{_EXAMPLES.get(unit, '1' + unit)}") from None
+        raise UvfitError(
+            f"cannot read the {what} {text!r}: unknown number or unit",
+            f"give a number with a unit convertible to {unit}, e.g. {_EXAMPLES.get(unit, '1' + unit)}",
+        ) from None
     if q.unit == u.dimensionless_unscaled:
-        raise UvfitError(f"the {what} {text!r} has no unit",
-                         f"add one, e.g. {_EXAMPLES.get(unit, '1' + unit)}")
+        raise UvfitError(f"the {what} {text!r} has no unit", f"add one, e.g. {_EXAMPLES.get(unit, '1' + unit)}")
     try:
         value = float(q.to_value(unit))
     except u.UnitConversionError:
-        raise UvfitError(f"the {what} {text!r} is in {q.unit}, which is not a {_KIND.get(unit, unit)}",
-                         f"e.g. {_EXAMPLES.get(unit, '1' + unit)}") from None
+        raise UvfitError(
+            f"the {what} {text!r} is in {q.unit}, which is not a {_KIND.get(unit, unit)}",
+            f"e.g. {_EXAMPLES.get(unit, '1' + unit)}",
+        ) from None
     if not np.isfinite(value):
         raise UvfitError(f"the {what} {text!r} is not finite")
     return value

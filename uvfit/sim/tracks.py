@@ -36,6 +36,7 @@ Importing this module changes no astropy setting. A date past the end of the tab
 observation being planned) proceeds, with UT1-UTC and polar motion extrapolated by astropy; the
 :class:`Tracks` object then carries a one-line ``notice`` saying so (no stack of warnings).
 """
+
 import functools
 import warnings
 from contextlib import contextmanager
@@ -54,18 +55,24 @@ def offline_earth_orientation():
     a download; its IERS settings are restored on leaving (nothing changes for the rest of the
     process)."""
     from astropy.utils import iers
+
     # Beyond the tables astropy keeps going with the last values (with a warning we collect).
-    with iers.conf.set_temp("auto_download", False), iers.conf.set_temp("auto_max_age", None), \
-            iers.conf.set_temp("iers_degraded_accuracy", "warn"):
+    with (
+        iers.conf.set_temp("auto_download", False),
+        iers.conf.set_temp("auto_max_age", None),
+        iers.conf.set_temp("iers_degraded_accuracy", "warn"),
+    ):
         yield
 
 
 def _offline(func):
     """Run ``func`` inside :func:`offline_earth_orientation`."""
+
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
         with offline_earth_orientation():
             return func(*args, **kwargs)
+
     return wrapper
 
 
@@ -84,9 +91,9 @@ def iers_last_mjd():
     offline (see :func:`offline_earth_orientation`)."""
     try:
         from astropy.utils import iers
+
         table = iers.earth_orientation_table.get()
-        return float(np.asarray(table["MJD"].to_value("d") if hasattr(table["MJD"], "to_value")
-                                else table["MJD"])[-1])
+        return float(np.asarray(table["MJD"].to_value("d") if hasattr(table["MJD"], "to_value") else table["MJD"])[-1])
     except Exception:  # pragma: no cover - a broken astropy install
         return None
 
@@ -98,24 +105,30 @@ def extrapolation_notice(mjd):
     if last is None or np.max(mjd) <= last:
         return None
     from astropy.time import Time
+
     with _Quiet():
         end = Time(last, format="mjd").iso[:10]
-    return (f"note: the observation lies after the end of the Earth-orientation tables ({end}); "
-            "UT1-UTC and polar motion are extrapolated from their last values (an Earth-rotation "
-            "error of a fraction of a second, ~1e-5 rad in (u, v): negligible for planning)")
+    return (
+        f"note: the observation lies after the end of the Earth-orientation tables ({end}); "
+        "UT1-UTC and polar motion are extrapolated from their last values (an Earth-rotation "
+        "error of a fraction of a second, ~1e-5 rad in (u, v): negligible for planning)"
+    )
 
 
 def time_grid(start, duration_s, integration_s):
     """Integration midpoints start + (k + 1/2) * integration, k = 0 .. floor(duration/integration) - 1."""
     from astropy import units as u
+
     if not integration_s > 0:
         raise UvfitError(f"the integration time must be positive, got {integration_s} s")
     if not duration_s > 0:
         raise UvfitError(f"the duration must be positive, got {duration_s} s")
     n = int(np.floor(duration_s / integration_s + 1e-9))
     if n < 1:
-        raise UvfitError(f"the duration ({duration_s} s) is shorter than one integration "
-                         f"({integration_s} s)", "lengthen --duration or shorten --integration")
+        raise UvfitError(
+            f"the duration ({duration_s} s) is shorter than one integration ({integration_s} s)",
+            "lengthen --duration or shorten --integration",
+        )
     if n > 2_000_000:
         raise UvfitError(f"{n} integrations is too many", "use a longer integration time")
     offsets = (np.arange(n) + 0.5) * integration_s
@@ -127,6 +140,7 @@ def time_grid(start, duration_s, integration_s):
 def terrestrial_to_celestial(times):
     """(T, 3, 3) rotation matrices taking ITRS vectors to GCRS vectors at each time."""
     from astropy.coordinates import GCRS, ITRS, CartesianRepresentation
+
     times = times.reshape(-1)
     n = len(times)
     # The three ITRS axes, scaled to the Earth's radius, transformed at every time (vectorised).
@@ -144,17 +158,20 @@ def terrestrial_to_celestial(times):
 def uvw_basis(ra_deg, dec_deg):
     """(3, 3) matrix whose rows are the unit vectors e_u (east), e_v (north), e_w (to source)."""
     a, d = np.radians(ra_deg), np.radians(dec_deg)
-    return np.array([
-        [-np.sin(a), np.cos(a), 0.0],
-        [-np.sin(d) * np.cos(a), -np.sin(d) * np.sin(a), np.cos(d)],
-        [np.cos(d) * np.cos(a), np.cos(d) * np.sin(a), np.sin(d)],
-    ])
+    return np.array(
+        [
+            [-np.sin(a), np.cos(a), 0.0],
+            [-np.sin(d) * np.cos(a), -np.sin(d) * np.sin(a), np.cos(d)],
+            [np.cos(d) * np.cos(a), np.cos(d) * np.sin(a), np.sin(d)],
+        ]
+    )
 
 
 def geodetic_up(xyz):
     """(N, 3) unit vectors of the geodetic vertical (WGS84) at ITRS positions (N, 3) in metres."""
     from astropy import units as u
     from astropy.coordinates import EarthLocation
+
     loc = EarthLocation.from_geocentric(xyz[:, 0], xyz[:, 1], xyz[:, 2], unit=u.m)
     geo = loc.to_geodetic()
     lat, lon = geo.lat.to_value(u.rad), geo.lon.to_value(u.rad)
@@ -169,17 +186,17 @@ class Tracks:
     ``visible``: (T, N) station above its limit; ``valid``: (T, B) both stations above.
     """
 
-    times: object          # astropy Time (T,)
-    mjd: np.ndarray        # (T,)
-    station1: np.ndarray   # (B,) station index
-    station2: np.ndarray   # (B,)
-    uvw_m: np.ndarray      # (T, B, 3)
+    times: object  # astropy Time (T,)
+    mjd: np.ndarray  # (T,)
+    station1: np.ndarray  # (B,) station index
+    station2: np.ndarray  # (B,)
+    uvw_m: np.ndarray  # (T, B, 3)
     elevation: np.ndarray  # (T, N)
-    visible: np.ndarray    # (T, N)
-    valid: np.ndarray      # (T, B)
+    visible: np.ndarray  # (T, N)
+    valid: np.ndarray  # (T, B)
     ra_deg: float
     dec_deg: float
-    notice: str = None
+    notice: str | None = None
 
     def uvw_lambda(self, frequency_hz):
         """(T, B, C, 3) (u, v, w) in wavelengths for channel frequencies (C,) in Hz."""
@@ -204,36 +221,49 @@ def compute_tracks(array, ra_deg, dec_deg, times, of_date=False):
         raise UvfitError(f"declination {dec_deg} deg is outside -90..90")
     times = times.reshape(-1)
     xyz = array.xyz
-    rot = terrestrial_to_celestial(times)                      # (T, 3, 3)
+    rot = terrestrial_to_celestial(times)  # (T, 3, 3)
     s1, s2 = array.baselines()
-    base_itrs = xyz[s2] - xyz[s1]                              # (B, 3): station1 -> station2
-    base_cel = np.einsum("tij,bj->tbi", rot, base_itrs)       # (T, B, 3) GCRS
+    base_itrs = xyz[s2] - xyz[s1]  # (B, 3): station1 -> station2
+    base_cel = np.einsum("tij,bj->tbi", rot, base_itrs)  # (T, B, 3) GCRS
     basis = uvw_basis(ra_deg, dec_deg)
     if of_date:
         import erfa
         from astropy import units as u
         from astropy.coordinates import TETE, SkyCoord
+
         with _Quiet():
             tt = times.tt
-            npb = erfa.pnm06a(tt.jd1, tt.jd2)                  # GCRS -> true of date
-            app = SkyCoord(ra=ra_deg * u.deg, dec=dec_deg * u.deg, frame="icrs").transform_to(
-                TETE(obstime=times))
+            npb = erfa.pnm06a(tt.jd1, tt.jd2)  # GCRS -> true of date
+            app = SkyCoord(ra=ra_deg * u.deg, dec=dec_deg * u.deg, frame="icrs").transform_to(TETE(obstime=times))
         base_cel = np.einsum("tij,tbj->tbi", npb, base_cel)
         a, d = app.ra.to_value(u.rad), app.dec.to_value(u.rad)
-        basis_t = np.stack([
-            np.stack([-np.sin(a), np.cos(a), np.zeros_like(a)], -1),
-            np.stack([-np.sin(d) * np.cos(a), -np.sin(d) * np.sin(a), np.cos(d)], -1),
-            np.stack([np.cos(d) * np.cos(a), np.cos(d) * np.sin(a), np.sin(d)], -1)], 1)
+        basis_t = np.stack(
+            [
+                np.stack([-np.sin(a), np.cos(a), np.zeros_like(a)], -1),
+                np.stack([-np.sin(d) * np.cos(a), -np.sin(d) * np.sin(a), np.cos(d)], -1),
+                np.stack([np.cos(d) * np.cos(a), np.cos(d) * np.sin(a), np.sin(d)], -1),
+            ],
+            1,
+        )
         uvw = np.einsum("tkj,tbj->tbk", basis_t, base_cel)
     else:
-        uvw = np.einsum("kj,tbj->tbk", basis, base_cel)        # (T, B, 3)
+        uvw = np.einsum("kj,tbj->tbk", basis, base_cel)  # (T, B, 3)
     # elevation with the catalogue direction and the geodetic vertical (refraction neglected)
     up_cel = np.einsum("tij,nj->tni", rot, geodetic_up(xyz))  # (T, N, 3)
     sin_el = np.clip(up_cel @ basis[2], -1.0, 1.0)
     elevation = np.degrees(np.arcsin(sin_el))
     visible = elevation >= array.min_elevation[None, :]
     valid = visible[:, s1] & visible[:, s2]
-    return Tracks(times=times, mjd=np.asarray(times.mjd, float), station1=s1, station2=s2,
-                  uvw_m=uvw, elevation=elevation, visible=visible, valid=valid,
-                  ra_deg=float(ra_deg), dec_deg=float(dec_deg),
-                  notice=extrapolation_notice(times.mjd))
+    return Tracks(
+        times=times,
+        mjd=np.asarray(times.mjd, float),
+        station1=s1,
+        station2=s2,
+        uvw_m=uvw,
+        elevation=elevation,
+        visible=visible,
+        valid=valid,
+        ra_deg=float(ra_deg),
+        dec_deg=float(dec_deg),
+        notice=extrapolation_notice(times.mjd),
+    )

@@ -30,12 +30,15 @@ and derivatives were evaluated by the shape itself (``gen_d`` / ``gen_g`` rows, 
 north, the shape's parameters, [spectral_index]); column -1 for a parameter that is not free.
 The Jacobian is written transposed, ``jac[column, row]``, so that each column is contiguous.
 """
+
 import math
 
 import numpy as np
 from llvmlite import ir
 from numba import njit, types
 from numba.extending import intrinsic
+
+from .shapes import gaussian as _gaussian
 
 #: rows per chunk: the scratch arrays of one chunk stay in the first-level caches
 CHUNK = 1024
@@ -44,7 +47,6 @@ SCRATCH_ROWS = 10
 
 _HALF_PI = math.pi / 2.0
 _TWO_PI = 2.0 * math.pi
-from .shapes import gaussian as _gaussian
 
 #: the Gaussians' visibility formulas, shared with the shapes (uvfit.sky.shapes.gaussian)
 C_VIS = _gaussian.C_VIS
@@ -81,15 +83,15 @@ def _bits_to_float(typingctx, x):
 @njit(inline="always", cache=True)
 def sincos_turns(t):
     """(sin 2 pi t, cos 2 pi t)."""
-    x = 4.0 * (t - np.floor(t + 0.5))          # quarter turns, in [-2, 2]
+    x = 4.0 * (t - np.floor(t + 0.5))  # quarter turns, in [-2, 2]
     k = np.floor(x + 0.5)
-    a = (x - k) * _HALF_PI                     # radians, in [-pi/4, pi/4]
+    a = (x - k) * _HALF_PI  # radians, in [-pi/4, pi/4]
     a2 = a * a
     s = a * (S1 + a2 * (S3 + a2 * (S5 + a2 * (S7 + a2 * (S9 + a2 * (S11 + a2 * (S13 + a2 * S15)))))))
     c = C0 + a2 * (C2 + a2 * (C4 + a2 * (C6 + a2 * (C8 + a2 * (C10 + a2 * (C12 + a2 * (C14 + a2 * C16)))))))
     # turn by k quarter turns, k in {-2, -1, 0, 1, 2}, without branches
     kk = k * k
-    e = 1.0 - 0.5 * kk                         # 1 for k = 0, -1 for k = +-2
+    e = 1.0 - 0.5 * kk  # 1 for k = 0, -1 for k = +-2
     odd = kk == 1.0
     sn = k * c if odd else e * s
     cs = -k * s if odd else e * c
@@ -102,15 +104,29 @@ def exp_(x):
     xc = min(max(x, -745.5), 709.0)
     kf = np.floor(xc * LOG2E + 0.5)
     r = (xc - kf * LN2_HI) - kf * LN2_LO
-    p = E0 + r * (E1 + r * (E2 + r * (E3 + r * (E4 + r * (E5 + r * (E6 + r * (E7 + r * (
-        E8 + r * (E9 + r * (E10 + r * (E11 + r * (E12 + r * E13))))))))))))
+    p = E0 + r * (
+        E1
+        + r
+        * (
+            E2
+            + r
+            * (
+                E3
+                + r
+                * (
+                    E4
+                    + r * (E5 + r * (E6 + r * (E7 + r * (E8 + r * (E9 + r * (E10 + r * (E11 + r * (E12 + r * E13))))))))
+                )
+            )
+        )
+    )
     k = np.int64(kf)
     k1 = k >> 1
     k2 = k - k1
     out = p * _bits_to_float((k1 + 1023) << 52) * _bits_to_float((k2 + 1023) << 52)
     out = out if x > -745.0 else 0.0
     out = out if x < 709.782712893384 else np.inf
-    return out if x == x else x             # nan stays nan
+    return out if x == x else x  # nan stays nan
 
 
 @njit(cache=True, nogil=True)
@@ -151,6 +167,7 @@ def _make_pass(kind, mode):
             acc[j] += wc[j] * (rr * rr + ri * ri)
 
     if kind == 0:
+
         @njit(inline="always", cache=True)
         def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
             l0 = pr[1]
@@ -159,6 +176,7 @@ def _make_pass(kind, mode):
                 s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
                 emit(o, acc, dc, wc, j, am[j] * co, -am[j] * s)
     elif kind == 1:
+
         @njit(inline="always", cache=True)
         def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
             l0 = pr[1]
@@ -172,6 +190,7 @@ def _make_pass(kind, mode):
                 xi = -d * s
                 emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
     elif kind == 2:
+
         @njit(inline="always", cache=True)
         def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
             l0 = pr[1]
@@ -188,6 +207,7 @@ def _make_pass(kind, mode):
                 xi = -d * s
                 emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
     else:
+
         @njit(inline="always", cache=True)
         def run(o, acc, dc, wc, uc, vc, am, m, pr, gd):
             l0 = pr[1]
@@ -199,6 +219,7 @@ def _make_pass(kind, mode):
                 xr = zr * co + zi * s
                 xi = zi * co - zr * s
                 emit(o, acc, dc, wc, j, am[j] * xr, am[j] * xi)
+
     return run
 
 
@@ -216,6 +237,7 @@ def _make_mode_dispatch(kind):
             p2(o, acc, dc, wc, uc, vc, am, m, pr, gd)
         else:
             p3(o, acc, dc, wc, uc, vc, am, m, pr, gd)
+
     return run
 
 
@@ -235,8 +257,31 @@ def _visibility_pass(kind, mode, o, acc, dc, wc, uc, vc, am, m, pr, gd):
 
 
 @njit(cache=True, nogil=True)
-def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen_d, gen_g,
-             cols, facs, out, jac, want_jac, scratch, data, weight, local):
+def evaluate(
+    u,
+    v,
+    r0,
+    r1,
+    kinds,
+    par,
+    sidx,
+    spec,
+    logr,
+    gidx,
+    gstart,
+    gnum,
+    gen_d,
+    gen_g,
+    cols,
+    facs,
+    out,
+    jac,
+    want_jac,
+    scratch,
+    data,
+    weight,
+    local,
+):
     """For rows r0 <= i < r1: add every component's visibility to ``out`` (complex, n) and, with
     ``want_jac``, its derivatives to ``jac`` (complex, (n_free, n)). ``scratch``: float64
     (rows, chunk) work space, given by the caller so that its memory is accounted for: rows =
@@ -250,13 +295,13 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
     ncomp = kinds.size
     reduce = data.size > 0
     chunk = scratch.shape[1]
-    sf = scratch[0]     # spectral factor (nu/nu0)^alpha
-    am = scratch[1]     # amplitude: flux * spectral factor
-    acc = scratch[2] if reduce else scratch[0]   # partial sums of weight |data - V|^2
+    sf = scratch[0]  # spectral factor (nu/nu0)^alpha
+    am = scratch[1]  # amplitude: flux * spectral factor
+    acc = scratch[2] if reduce else scratch[0]  # partial sums of weight |data - V|^2
     if want_jac:
-        wr = scratch[3]     # W = D P: the unit-flux shifted structure
+        wr = scratch[3]  # W = D P: the unit-flux shifted structure
         wi = scratch[4]
-        pc = scratch[5]     # P = cos - i sin
+        pc = scratch[5]  # P = cos - i sin
         ps = scratch[6]
         hs = scratch[7:10]  # real factors h_p with dD/dp = D h_p (Gaussians)
     else:
@@ -269,7 +314,7 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
         i1 = min(i0 + chunk, r1)
         m = i1 - i0
         if reduce:
-            o = local[0:m]      # V - data of the components so far (first and last fused)
+            o = local[0:m]  # V - data of the components so far (first and last fused)
         else:
             o = out[i0:i1]
         dc = data[i0:i1]
@@ -300,7 +345,7 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
                         mode = 1
                     elif c == ncomp - 1:
                         mode = 2
-                gd = gen_d[gidx[c], i0 - r0:i1 - r0] if kind == 3 else local
+                gd = gen_d[gidx[c], i0 - r0 : i1 - r0] if kind == 3 else local
                 _visibility_pass(kind, mode, o, acc, dc, wc, uc, vc, am, m, par[c], gd)
                 continue
             # ---- visibility and derivatives: the phase factor reused by every column. Short
@@ -340,7 +385,7 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
                     h0[j], h1[j], h2[j] = elliptical_log_derivatives(fa, rho, qp, qn)
             else:
                 nshape = gnum[c]
-                gd = gen_d[gidx[c], i0 - r0:i1 - r0]
+                gd = gen_d[gidx[c], i0 - r0 : i1 - r0]
                 for j in range(m):
                     s, co = sincos_turns(uc[j] * l0 + vc[j] * m0)
                     pc[j] = co
@@ -377,7 +422,7 @@ def evaluate(u, v, r0, r1, kinds, par, sidx, spec, logr, gidx, gstart, gnum, gen
                 jr = jac[col, i0:i1]
                 f = facs[c, 3 + p]
                 if kind == 3:
-                    gg = gen_g[gstart[c] + p, i0 - r0:i1 - r0]
+                    gg = gen_g[gstart[c] + p, i0 - r0 : i1 - r0]
                     for j in range(m):
                         zr = gg[j].real
                         zi = gg[j].imag

@@ -9,6 +9,7 @@ ascension) and m0 = ``north``. Positions and sizes come in the model's angular u
 degrees; the component converts them to radians for the shape and chains the derivatives back, so
 every derivative it returns is per model-file unit.
 """
+
 import numpy as np
 
 from .parameters import COMPONENT_KINDS
@@ -84,16 +85,20 @@ class Component:
 
     def geometry_values(self, values):
         """The shape's parameters for ``Shape.members``: angles in radians, lengths as given."""
-        return {n: float(values[n]) * (DEG if self.shape.parameter_kind(n) == "angle" else 1.0)
-                for n in self.shape.parameter_names()}
+        return {
+            n: float(values[n]) * (DEG if self.shape.parameter_kind(n) == "angle" else 1.0)
+            for n in self.shape.parameter_names()
+        }
 
     def _factor(self, kind, rad_per_unit):
         return {"length": rad_per_unit, "angle": DEG}.get(kind, 1.0)
 
     def shape_values(self, values, rad_per_unit):
         """The shape's parameters in radians, from model-unit ``values`` (local name -> value)."""
-        return {n: float(values[n]) * self._factor(self.shape.parameter_kind(n), rad_per_unit)
-                for n in self.shape.parameter_names()}
+        return {
+            n: float(values[n]) * self._factor(self.shape.parameter_kind(n), rad_per_unit)
+            for n in self.shape.parameter_names()
+        }
 
     def spectral_factor(self, frequency, values):
         """(nu/nu0)^alpha and ln(nu/nu0), or (1, None) without a spectral index or a frequency."""
@@ -156,6 +161,9 @@ class Component:
         return self.flux_at(frequency, values) * np.real(frac)
 
     def same_as(self, other):
-        return (self.name == other.name and self.key == other.key
-                and self.shape.config == other.shape.config
-                and self.reference_frequency == other.reference_frequency)
+        return (
+            self.name == other.name
+            and self.key == other.key
+            and self.shape.config == other.shape.config
+            and self.reference_frequency == other.reference_frequency
+        )

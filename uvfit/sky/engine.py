@@ -19,6 +19,7 @@ Choice: ``set_engine(name)`` / the ``using(name)`` context manager, else the env
 variable ``UVFIT_ENGINE`` (``numba``, ``numpy`` or ``auto``, the default: numba when it can be
 imported, otherwise numpy).
 """
+
 import contextlib
 import os
 
@@ -49,6 +50,7 @@ def numba_available():
     if _numba_ok is None:
         try:
             import numba  # noqa: F401
+
             _numba_ok = True
         except Exception:  # pragma: no cover - depends on the installation
             _numba_ok = False
@@ -80,11 +82,15 @@ def using(name):
 
 def _check(name):
     if name not in ENGINES:
-        raise ModelError(f"unknown visibility engine '{name}'",
-                         f"use one of {', '.join(ENGINES)} (or auto), e.g. {ENGINE_VARIABLE}=numpy")
+        raise ModelError(
+            f"unknown visibility engine '{name}'",
+            f"use one of {', '.join(ENGINES)} (or auto), e.g. {ENGINE_VARIABLE}=numpy",
+        )
     if name == "numba" and not numba_available():
-        raise ModelError("the numba engine was asked for but numba cannot be imported",
-                         f"install numba (pip install numba) or set {ENGINE_VARIABLE}=numpy")
+        raise ModelError(
+            "the numba engine was asked for but numba cannot be imported",
+            f"install numba (pip install numba) or set {ENGINE_VARIABLE}=numpy",
+        )
     return name
 
 
@@ -108,6 +114,7 @@ def kernels():
     global _kernels
     if _kernels is None:
         from . import _kernels as k
+
         _kernels = k
     return _kernels
 
@@ -142,9 +149,9 @@ class Plan:
         nslot = max([len(c.parameter_names()) for c in comps] + [1])
         self.cols = np.full((nc, nslot), -1, dtype=np.int64)
         self.facs = np.zeros((nc, nslot))
-        self.spectral = []          # (component index, reference frequency, spectral-index position)
-        self.generic = []           # component indices evaluated by their shape's numpy code
-        self.local_index = []       # per component: {local name: value index}
+        self.spectral = []  # (component index, reference frequency, spectral-index position)
+        self.generic = []  # component indices evaluated by their shape's numpy code
+        self.local_index = []  # per component: {local name: value index}
         self.gstart = np.zeros(nc, dtype=np.int64)
         self.gnum = np.zeros(nc, dtype=np.int64)
         self.gidx = np.full(nc, -1, dtype=np.int64)
@@ -261,9 +268,31 @@ def evaluate_numba(model, u, v, frequency, theta, gradient, data=None, weight=No
             sidx[c] = r
     total = 0.0
     if not plan.generic:
-        total = k.evaluate(uf, vf, 0, n, plan.kinds, par, sidx, spec, logr, plan.gidx, plan.gstart,
-                           plan.gnum, _EMPTY_C, _EMPTY_C, plan.cols, plan.facs, out, jac, bool(gradient),
-                           scratch, data, weight, local)
+        total = k.evaluate(
+            uf,
+            vf,
+            0,
+            n,
+            plan.kinds,
+            par,
+            sidx,
+            spec,
+            logr,
+            plan.gidx,
+            plan.gstart,
+            plan.gnum,
+            _EMPTY_C,
+            _EMPTY_C,
+            plan.cols,
+            plan.facs,
+            out,
+            jac,
+            bool(gradient),
+            scratch,
+            data,
+            weight,
+            local,
+        )
     else:
         comps = model.components
         rpu = model.rad_per_unit
@@ -287,9 +316,31 @@ def evaluate_numba(model, u, v, frequency, theta, gradient, data=None, weight=No
                 else:
                     d = shp.structure(ub, vb, shape_p[g])
                 gen_d[g] = d
-            total += k.evaluate(uf, vf, b0, b1, plan.kinds, par, sidx, spec, logr, plan.gidx,
-                                plan.gstart, plan.gnum, gen_d, gen_g, plan.cols, plan.facs, out, jac,
-                                bool(gradient), scratch, data, weight, local)
+            total += k.evaluate(
+                uf,
+                vf,
+                b0,
+                b1,
+                plan.kinds,
+                par,
+                sidx,
+                spec,
+                logr,
+                plan.gidx,
+                plan.gstart,
+                plan.gnum,
+                gen_d,
+                gen_g,
+                plan.cols,
+                plan.facs,
+                out,
+                jac,
+                bool(gradient),
+                scratch,
+                data,
+                weight,
+                local,
+            )
     if reduce:
         return float(total)
     vis = out.reshape(shape)
@@ -311,8 +362,11 @@ def evaluate_numpy(model, u, v, frequency, theta, gradient):
     n = uf.size
     nu = None
     if frequency is not None:
-        nu = np.broadcast_to(np.asarray(frequency, dtype=float), shape).reshape(-1) \
-            if np.ndim(frequency) else float(frequency)
+        nu = (
+            np.broadcast_to(np.asarray(frequency, dtype=float), shape).reshape(-1)
+            if np.ndim(frequency)
+            else float(frequency)
+        )
     vis = np.zeros(n, dtype=complex)
     jac = np.zeros((n, len(names)), dtype=complex) if gradient else None
     columns = []
@@ -353,7 +407,7 @@ def misfit(model, u, v, data, weight, frequency=None, theta=None):
     if data.size != vis.size or weight.size != vis.size:
         raise ModelError(f"data and weights need one value per row ({vis.size}); got {data.size} and {weight.size}")
     d = data - vis
-    return float(np.sum(weight * (d.real ** 2 + d.imag ** 2)))
+    return float(np.sum(weight * (d.real**2 + d.imag**2)))
 
 
 def evaluate(model, u, v, frequency=None, theta=None, gradient=False):

@@ -5,11 +5,12 @@ toward east (increasing right ascension), m toward north, u and v in wavelengths
 north through east. Parameter values are in the model's units (Jy, ``angular_unit``, degrees);
 shapes see radians. See DEVELOPERS.md, "SkyModel", for the contract.
 """
+
 import copy as _copy
 import math
 
-import numpy as np
 import astropy.units as un
+import numpy as np
 
 from ..errors import ModelError
 from . import engine as _engine
@@ -25,10 +26,11 @@ def angular_unit_of(text):
         try:
             unit = un.Unit(str(text))
         except ValueError:
-            raise ModelError(f"angular_unit '{text}' is not a unit astropy knows",
-                             "use e.g. \"uas\", \"mas\", \"arcsec\", \"deg\"")
+            raise ModelError(
+                f"angular_unit '{text}' is not a unit astropy knows", 'use e.g. "uas", "mas", "arcsec", "deg"'
+            ) from None
     if not unit.is_equivalent(un.rad):
-        raise ModelError(f"angular_unit '{text}' is not an angle", "use e.g. \"uas\", \"mas\", \"arcsec\"")
+        raise ModelError(f"angular_unit '{text}' is not an angle", 'use e.g. "uas", "mas", "arcsec"')
     return unit, str(text)
 
 
@@ -57,26 +59,33 @@ class SkyModel:
         for c in self.components:
             missing = [ln for ln in c.parameter_names() if f"{c.name}.{ln}" not in self.parameters]
             if missing:
-                raise ModelError(f"component '{c.name}' has no parameter(s) {missing}",
-                                 "give every parameter of the shape a value")
+                raise ModelError(
+                    f"component '{c.name}' has no parameter(s) {missing}", "give every parameter of the shape a value"
+                )
         for full, p in self.parameters.items():
             if p.tie is None:
                 continue
             if p.tie not in self.parameters:
-                raise ModelError(f"parameter {full} is tied to {p.tie}, which does not exist",
-                                 "tie to an existing 'component.parameter'")
+                raise ModelError(
+                    f"parameter {full} is tied to {p.tie}, which does not exist",
+                    "tie to an existing 'component.parameter'",
+                )
             seen = [full]
             target = p.tie
             while target is not None:
                 if target in seen:
-                    raise ModelError(f"the ties of {full} form a loop ({' -> '.join(seen + [target])})",
-                                     "tie every parameter to one that is not tied back")
+                    raise ModelError(
+                        f"the ties of {full} form a loop ({' -> '.join(seen + [target])})",
+                        "tie every parameter to one that is not tied back",
+                    )
                 seen.append(target)
                 target = self.parameters[target].tie
             root = self.parameters[seen[-1]]
             if root.kind != p.kind:
-                raise ModelError(f"parameter {full} ({p.kind}) is tied to {root.name} ({root.kind})",
-                                 "tie only parameters of the same kind (a size to a size, ...)")
+                raise ModelError(
+                    f"parameter {full} ({p.kind}) is tied to {root.name} ({root.kind})",
+                    "tie only parameters of the same kind (a size to a size, ...)",
+                )
 
     # -- parameters ---------------------------------------------------------------------------
     @property
@@ -163,8 +172,10 @@ class SkyModel:
             prior = p.prior
             if prior is None:
                 if not (math.isfinite(p.min) and math.isfinite(p.max)):
-                    raise ModelError(f"cannot draw {name} from its prior: it has no prior and no finite bounds",
-                                     "give it min and max, or a prior")
+                    raise ModelError(
+                        f"cannot draw {name} from its prior: it has no prior and no finite bounds",
+                        "give it min and max, or a prior",
+                    )
                 prior = Uniform(p.min, p.max)
             x = prior.sample(rng, int(n))
             # a prior wider than the bounds: redraw outside values (few rounds; then clip)
@@ -232,8 +243,12 @@ class SkyModel:
     def total_flux(self, frequency=None, theta=None):
         """Sum of the component fluxes (Jy): the visibility at zero spacing."""
         vals = self.values(theta)
-        return float(sum(np.sum(c.flux_at(frequency, {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}))
-                         for c in self.components))
+        return float(
+            sum(
+                np.sum(c.flux_at(frequency, {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}))
+                for c in self.components
+            )
+        )
 
     # -- geometry helpers for fits and reports ---------------------------------------------------
     def component_centres(self, theta=None):
@@ -260,12 +275,19 @@ class SkyModel:
                 east, north = local["east"], local["north"]
                 if mb.offset is not None:
                     east, north = east + mb.offset[0], north + mb.offset[1]
-                out.append({"name": f"{c.name}.{mb.suffix}" if mb.suffix else c.name,
-                            "component": c.name, "shape": mb.shape.key, "flux": mb.flux,
-                            "east": east, "north": north,
-                            "parameters": {pn: local[ln] for pn, ln in mb.names.items()},
-                            "member": mb.shape,
-                            "names": {pn: f"{c.name}.{ln}" for pn, ln in mb.names.items()}})
+                out.append(
+                    {
+                        "name": f"{c.name}.{mb.suffix}" if mb.suffix else c.name,
+                        "component": c.name,
+                        "shape": mb.shape.key,
+                        "flux": mb.flux,
+                        "east": east,
+                        "north": north,
+                        "parameters": {pn: local[ln] for pn, ln in mb.names.items()},
+                        "member": mb.shape,
+                        "names": {pn: f"{c.name}.{ln}" for pn, ln in mb.names.items()},
+                    }
+                )
         return out
 
     # -- structure: what consumers ask instead of parsing parameter names -------------------------
@@ -295,17 +317,20 @@ class SkyModel:
 
     def periods(self):
         """{full name: period in degrees} of the parameters that live on a circle (``Shape.periods``)."""
-        return {f"{c.name}.{ln}": period for c in self.components
-                for ln, period in c.shape.periods().items()}
+        return {f"{c.name}.{ln}": period for c in self.components for ln, period in c.shape.periods().items()}
 
     def structure_key(self):
         """A value equal for two states of the model exactly when their structure is the same:
         parameter names and order, which are free, fixed or tied (and to what), the components'
         shapes, settings and reference frequencies, and the angular unit. Values do not enter."""
-        return (self.rad_per_unit, tuple(self.parameters),
-                tuple([p.tie if p.tie is not None else bool(p.fixed) for p in self.parameters.values()]),
-                tuple([(c.name, c.key, c.reference_frequency, tuple(sorted(c.shape.config.items())))
-                       for c in self.components]))
+        return (
+            self.rad_per_unit,
+            tuple(self.parameters),
+            tuple([p.tie if p.tie is not None else bool(p.fixed) for p in self.parameters.values()]),
+            tuple(
+                [(c.name, c.key, c.reference_frequency, tuple(sorted(c.shape.config.items()))) for c in self.components]
+            ),
+        )
 
     def plan(self, build):
         """The evaluation plan of this model's structure: ``build(model)`` when the structure has
@@ -331,7 +356,7 @@ class SkyModel:
             try:
                 img += c.brightness(l, m, local, self.rad_per_unit, frequency)
             except NotImplementedError:
-                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet")
+                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet") from None
         return img
 
     def render(self, npix, fov, frequency=None, theta=None, centre=(0.0, 0.0)):
@@ -357,27 +382,47 @@ class SkyModel:
             params = {}
             for ln in c.parameter_names():
                 p = self.parameters[f"{c.name}.{ln}"]
-                params[ln] = {"value": p.value, "min": p.min, "max": p.max, "fixed": bool(p.fixed),
-                              "tie": p.tie, "free": p.free, "kind": p.kind,
-                              "unit": p.unit.to_string() if p.unit is not None else "",
-                              "prior": None if p.prior is None else {p.prior.key: list(p.prior.args())}}
+                params[ln] = {
+                    "value": p.value,
+                    "min": p.min,
+                    "max": p.max,
+                    "fixed": bool(p.fixed),
+                    "tie": p.tie,
+                    "free": p.free,
+                    "kind": p.kind,
+                    "unit": p.unit.to_string() if p.unit is not None else "",
+                    "prior": None if p.prior is None else {p.prior.key: list(p.prior.args())},
+                }
                 if p.note:
                     params[ln]["note"] = p.note
-            comps.append({"name": c.name, "shape": c.key, "settings": dict(c.shape.config),
-                          "reference_frequency_hz": c.reference_frequency, "parameters": params})
-        return {"angular_unit": self.angular_unit_text, "description": self.description,
-                "free_names": self.free_names, "components": comps}
+            comps.append(
+                {
+                    "name": c.name,
+                    "shape": c.key,
+                    "settings": dict(c.shape.config),
+                    "reference_frequency_hz": c.reference_frequency,
+                    "parameters": params,
+                }
+            )
+        return {
+            "angular_unit": self.angular_unit_text,
+            "description": self.description,
+            "free_names": self.free_names,
+            "components": comps,
+        }
 
     def __eq__(self, other):
         if not isinstance(other, SkyModel):
             return NotImplemented
-        return (self.angular_unit == other.angular_unit
-                and len(self.components) == len(other.components)
-                and all(a.same_as(b) for a, b in zip(self.components, other.components))
-                and list(self.parameters) == list(other.parameters)
-                and all(a.same_as(b) for a, b in zip(self.parameters.values(), other.parameters.values())))
+        return (
+            self.angular_unit == other.angular_unit
+            and len(self.components) == len(other.components)
+            and all(a.same_as(b) for a, b in zip(self.components, other.components))
+            and list(self.parameters) == list(other.parameters)
+            and all(a.same_as(b) for a, b in zip(self.parameters.values(), other.parameters.values()))
+        )
 
-    __hash__ = None
+    __hash__ = None  # type: ignore[assignment]  # equal models are mutable: not hashable
 
     def __repr__(self):
         comps = ", ".join(f"{c.name}:{c.key}" for c in self.components)

@@ -12,20 +12,20 @@ A parameter is a number or a table with keys ``value``, ``min``, ``max``, ``fixe
 ``prior``. See the README, "Model files", for every shape, the defaults and the priors. Every
 problem in a file is reported as one ModelError naming the line, the component and the key.
 """
+
 import json
 import math
 import os
 import re
-import tomllib
 
 import astropy.units as un
+import tomllib
 
 from ..errors import ModelError, UvfitError
 from ..outputs import atomic_write
 from .component import Component
 from .model import SkyModel, angular_unit_of
-from .parameters import PRIORS, LogUniform, Parameter, Uniform, _toml_float, kind_unit
-from .parameters import ParameterSet
+from .parameters import PRIORS, LogUniform, Parameter, ParameterSet, Uniform, _toml_float, kind_unit
 from .shapes import SHAPES, shape_class
 
 _TOP_KEYS = ("angular_unit", "description", "component")
@@ -35,6 +35,7 @@ _NAME_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_\-]*")
 
 # -- where things are in the source text ----------------------------------------------------------
 
+
 class _Locator:
     """Finds the line of a key in the TOML text (a plain scan; good enough for messages)."""
 
@@ -43,8 +44,7 @@ class _Locator:
         self.lines = source.splitlines() if source is not None else None
         self.headers = []
         if self.lines is not None:
-            self.headers = [i for i, s in enumerate(self.lines)
-                            if re.match(r"\s*\[\[\s*component\s*\]\]", s)]
+            self.headers = [i for i, s in enumerate(self.lines) if re.match(r"\s*\[\[\s*component\s*\]\]", s)]
 
     def line(self, component=None, key=None):
         if self.lines is None:
@@ -86,6 +86,7 @@ def _is_number(x):
 
 # -- reading ------------------------------------------------------------------------------------
 
+
 def load_model(path):
     """Read a model file into a SkyModel (ModelError naming the line and key on any problem)."""
     path = os.fspath(path)
@@ -93,13 +94,13 @@ def load_model(path):
         with open(path, "rb") as handle:
             raw = handle.read()
     except FileNotFoundError:
-        raise ModelError(f"model file {path} does not exist", "check the path")
+        raise ModelError(f"model file {path} does not exist", "check the path") from None
     except OSError as exc:
-        raise ModelError(f"cannot read model file {path}: {exc.strerror}")
+        raise ModelError(f"cannot read model file {path}: {exc.strerror}") from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
-        raise ModelError(f"model file {path} is not UTF-8 text", "save it as a plain UTF-8 TOML file")
+        raise ModelError(f"model file {path} is not UTF-8 text", "save it as a plain UTF-8 TOML file") from None
     return loads(text, path=path)
 
 
@@ -109,8 +110,7 @@ def loads(text, path=None):
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         where = f"{path}: " if path else ""
-        raise ModelError(f"{where}TOML syntax error: {exc}",
-                         "see the README, 'Model files', for the format")
+        raise ModelError(f"{where}TOML syntax error: {exc}", "see the README, 'Model files', for the format") from None
     return model_from_dict(data, source=text, path=path)
 
 
@@ -120,8 +120,10 @@ def build_model(components, angular_unit="mas", description=None):
     Each value is a number (a free parameter started there) or a table
     ``{"value": .., "min": .., "max": .., "fixed": .., "tie": .., "prior": ..}``. Also
     ``SkyModel.build`` (alias ``SkyModel.from_components``)."""
-    data = {"angular_unit": angular_unit if isinstance(angular_unit, str) else angular_unit.to_string(),
-            "component": list(components)}
+    data = {
+        "angular_unit": angular_unit if isinstance(angular_unit, str) else angular_unit.to_string(),
+        "component": list(components),
+    }
     if description:
         data["description"] = description
     return model_from_dict(data)
@@ -142,7 +144,7 @@ def model_from_dict(data, source=None, path=None):
     try:
         unit, unit_text = angular_unit_of(data["angular_unit"])
     except ModelError as exc:
-        raise loc.error(exc.message, exc.hint, key="angular_unit")
+        raise loc.error(exc.message, exc.hint, key="angular_unit") from None
     description = data.get("description")
     if description is not None and not isinstance(description, str):
         raise loc.error("description must be a string", key="description")
@@ -150,8 +152,7 @@ def model_from_dict(data, source=None, path=None):
     if not comps:
         raise loc.error("the model has no components", "add at least one [[component]] table")
     if not isinstance(comps, list) or not all(isinstance(c, dict) for c in comps):
-        raise loc.error("'component' must be an array of tables, one [[component]] per component",
-                        key="component")
+        raise loc.error("'component' must be an array of tables, one [[component]] per component", key="component")
 
     components, params, names = [], ParameterSet(), {}
     for i, table in enumerate(comps):
@@ -168,24 +169,33 @@ def _component(table, i, loc, unit, names):
     if name is None:
         raise loc.error("the component has no name", 'add name = "..."', component=i)
     if not isinstance(name, str) or not _NAME_RE.fullmatch(name):
-        raise loc.error(f"component name {name!r} is not a plain name",
-                        "use letters, digits, '_' or '-', starting with a letter (no dots)", component=i, key="name")
+        raise loc.error(
+            f"component name {name!r} is not a plain name",
+            "use letters, digits, '_' or '-', starting with a letter (no dots)",
+            component=i,
+            key="name",
+        )
     if name in names:
-        raise loc.error(f"duplicate component name '{name}' (also component #{names[name] + 1})",
-                        "give every component its own name", component=i, key="name", name=name)
+        raise loc.error(
+            f"duplicate component name '{name}' (also component #{names[name] + 1})",
+            "give every component its own name",
+            component=i,
+            key="name",
+            name=name,
+        )
 
     def err(message, hint=None, key=None):
         return loc.error(message, hint, component=i, key=key, name=name)
 
     key = table.get("shape")
     if key is None:
-        raise err("the component has no shape", "add shape = \"...\"; known: " + ", ".join(SHAPES))
+        raise err("the component has no shape", 'add shape = "..."; known: ' + ", ".join(SHAPES))
     if not isinstance(key, str) or key not in SHAPES:
         raise err(f"unknown shape {key!r}", "known shapes: " + ", ".join(SHAPES), key="shape")
     try:
         cls = shape_class(key)
     except (ImportError, AttributeError):
-        raise err(f"shape '{key}' is not available in this installation", key="shape")
+        raise err(f"shape '{key}' is not available in this installation", key="shape") from None
 
     setting_names = cls.accepted_settings(table)
     settings = {}
@@ -198,17 +208,23 @@ def _component(table, i, loc, unit, names):
         text = exc.message if isinstance(exc, UvfitError) else str(exc)
         hint = exc.hint if isinstance(exc, UvfitError) else None
         bad = next((s for s in settings if s in text), None)
-        raise err(text, hint, key=bad or (setting_names[0] if setting_names else "shape"))
+        raise err(text, hint, key=bad or (setting_names[0] if setting_names else "shape")) from None
 
     ref = None
     if "spectral_index" in table:
         if "reference_frequency" not in table:
-            raise err("a spectral_index needs a reference_frequency", 'add e.g. reference_frequency = "230 GHz"',
-                      key="spectral_index")
+            raise err(
+                "a spectral_index needs a reference_frequency",
+                'add e.g. reference_frequency = "230 GHz"',
+                key="spectral_index",
+            )
         ref = _frequency(table["reference_frequency"], err)
     elif "reference_frequency" in table:
-        raise err("reference_frequency is given but no spectral_index",
-                  "add spectral_index = ..., or remove reference_frequency", key="reference_frequency")
+        raise err(
+            "reference_frequency is given but no spectral_index",
+            "add spectral_index = ..., or remove reference_frequency",
+            key="reference_frequency",
+        )
     comp = Component(name, shape, reference_frequency=ref)
 
     allowed = ["name", "shape"] + setting_names + comp.parameter_names()
@@ -222,8 +238,9 @@ def _component(table, i, loc, unit, names):
     params = {}
     for local in comp.parameter_names():
         kind = comp.parameter_kind(local)
-        params[f"{name}.{local}"] = _parameter(table.get(local), name, local, kind, unit, err,
-                                               comp.default_bounds(local), comp.default_value(local))
+        params[f"{name}.{local}"] = _parameter(
+            table.get(local), name, local, kind, unit, err, comp.default_bounds(local), comp.default_value(local)
+        )
     return comp, params
 
 
@@ -231,8 +248,9 @@ def _setting(value, s, cls, err):
     default = cls.settings.get(s)
     if s == "member":
         if not isinstance(value, str) or value not in SHAPES or value == "double":
-            raise err(f"unknown member shape {value!r}",
-                      "known: " + ", ".join(k for k in SHAPES if k != "double"), key=s)
+            raise err(
+                f"unknown member shape {value!r}", "known: " + ", ".join(k for k in SHAPES if k != "double"), key=s
+            )
         return value
     if isinstance(default, bool):
         ok = isinstance(value, bool)
@@ -257,8 +275,11 @@ def _frequency(value, err):
         try:
             q = un.Quantity(value)
         except (ValueError, TypeError):
-            raise err(f"reference_frequency {value!r} is not a frequency astropy understands",
-                      'write e.g. "230 GHz" or a number in Hz', key=key)
+            raise err(
+                f"reference_frequency {value!r} is not a frequency astropy understands",
+                'write e.g. "230 GHz" or a number in Hz',
+                key=key,
+            ) from None
         if not q.unit.is_equivalent(un.Hz):
             raise err(f"reference_frequency {value!r} is not a frequency", 'write e.g. "230 GHz"', key=key)
         hz = float(q.to_value(un.Hz))
@@ -285,8 +306,9 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
     elif isinstance(spec, dict):
         for k in spec:
             if k not in _PARAM_KEYS:
-                raise err(f"unknown key '{k}' in the table of '{local}'", "allowed: " + ", ".join(_PARAM_KEYS),
-                          key=local)
+                raise err(
+                    f"unknown key '{k}' in the table of '{local}'", "allowed: " + ", ".join(_PARAM_KEYS), key=local
+                )
         for b in ("min", "max"):
             if b in spec:
                 if not _is_number(spec[b]):
@@ -311,21 +333,29 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
             raise err(f"'{local}' has no value", f"write {local} = {{ value = ..., ... }}", key=local)
         if "prior" in spec:
             if p.tie is not None:
-                raise err(f"'{local}' is tied, so it takes the prior of the parameter it is tied to",
-                          "remove 'prior' here, or give it to the parameter it is tied to", key=local)
+                raise err(
+                    f"'{local}' is tied, so it takes the prior of the parameter it is tied to",
+                    "remove 'prior' here, or give it to the parameter it is tied to",
+                    key=local,
+                )
             p.prior = _prior(spec["prior"], p, local, err)
     else:
-        raise err(f"'{local}' must be a number or a table like {{ value = 1.0, min = 0.0 }}, got {spec!r}",
-                  key=local)
+        raise err(f"'{local}' must be a number or a table like {{ value = 1.0, min = 0.0 }}, got {spec!r}", key=local)
     if math.isnan(p.min) or math.isnan(p.max) or p.min > p.max:
-        raise err(f"the minimum of '{local}' ({p.min!r}) is above its maximum ({p.max!r})",
-                  "swap them or correct one", key=local)
+        raise err(
+            f"the minimum of '{local}' ({p.min!r}) is above its maximum ({p.max!r})",
+            "swap them or correct one",
+            key=local,
+        )
     if p.tie is None:
         if not math.isfinite(p.value):
             raise err(f"the start value of '{local}' must be finite, got {p.value!r}", key=local)
         if not p.min <= p.value <= p.max:
-            raise err(f"the start value {p.value!r} of '{local}' is outside its bounds [{p.min!r}, {p.max!r}]",
-                      "move the start value inside, or widen min/max", key=local)
+            raise err(
+                f"the start value {p.value!r} of '{local}' is outside its bounds [{p.min!r}, {p.max!r}]",
+                "move the start value inside, or widen min/max",
+                key=local,
+            )
     return p
 
 
@@ -336,20 +366,25 @@ def _prior(spec, p, local, err):
                 return Uniform(p.min, p.max)
             if spec == "log_uniform":
                 return LogUniform(p.min, p.max)
-            raise err(f"unknown prior {spec!r} for '{local}'",
-                      "use \"uniform\", \"log_uniform\" (on min..max) or a table like { normal = [mean, sd] }",
-                      key=local)
+            raise err(
+                f"unknown prior {spec!r} for '{local}'",
+                'use "uniform", "log_uniform" (on min..max) or a table like { normal = [mean, sd] }',
+                key=local,
+            )
         if isinstance(spec, dict) and len(spec) == 1:
-            (kind, args), = spec.items()
+            ((kind, args),) = spec.items()
             if kind not in PRIORS:
                 raise err(f"unknown prior '{kind}' for '{local}'", "known: " + ", ".join(PRIORS), key=local)
             if not (isinstance(args, list) and len(args) == 2 and all(_is_number(a) for a in args)):
                 raise err(f"prior '{kind}' of '{local}' needs two numbers, e.g. {{ {kind} = [a, b] }}", key=local)
             return PRIORS[kind](*args)
     except ValueError as exc:
-        raise err(f"bad prior for '{local}': {exc}", key=local)
-    raise err(f"bad prior for '{local}'",
-              "use \"uniform\", \"log_uniform\", or a one-key table like { normal = [mean, sd] }", key=local)
+        raise err(f"bad prior for '{local}': {exc}", key=local) from None
+    raise err(
+        f"bad prior for '{local}'",
+        'use "uniform", "log_uniform", or a one-key table like { normal = [mean, sd] }',
+        key=local,
+    )
 
 
 def _resolve_ties(params, names, loc):
@@ -360,31 +395,40 @@ def _resolve_ties(params, names, loc):
         i = names.get(cname)
 
         def err(message, hint=None):
-            return loc.error(message, hint, component=i, key=local, name=cname)
+            return loc.error(message, hint, component=i, key=local, name=cname)  # noqa: B023 (called in this iteration only)
 
         if p.tie == full:
             raise err(f"'{local}' is tied to itself", "remove the tie")
         if p.tie not in params:
-            raise err(f"'{local}' is tied to '{p.tie}', which does not exist",
-                      "tie to an existing 'component.parameter', e.g. " + ", ".join(list(params)[:4]))
+            raise err(
+                f"'{local}' is tied to '{p.tie}', which does not exist",
+                "tie to an existing 'component.parameter', e.g. " + ", ".join(list(params)[:4]),
+            )
         seen, target = [full], p.tie
         while target is not None:
             if target in seen:
-                raise err("the ties form a loop: " + " -> ".join(seen + [target]),
-                          "tie every parameter to one that is not tied back")
+                raise err(
+                    "the ties form a loop: " + " -> ".join(seen + [target]),
+                    "tie every parameter to one that is not tied back",
+                )
             seen.append(target)
             target = params[target].tie
         root = params[seen[-1]]
         if root.kind != p.kind:
-            raise err(f"'{local}' ({p.kind}) is tied to '{root.name}' ({root.kind})",
-                      "tie only parameters of the same kind (a size to a size, ...)")
+            raise err(
+                f"'{local}' ({p.kind}) is tied to '{root.name}' ({root.kind})",
+                "tie only parameters of the same kind (a size to a size, ...)",
+            )
         p.value = root.value
         if not p.min <= p.value <= p.max:
-            raise err(f"'{local}' is tied to '{root.name}' = {root.value!r}, outside its own bounds "
-                      f"[{p.min!r}, {p.max!r}]", "widen its bounds or change the start value")
+            raise err(
+                f"'{local}' is tied to '{root.name}' = {root.value!r}, outside its own bounds [{p.min!r}, {p.max!r}]",
+                "widen its bounds or change the start value",
+            )
 
 
 # -- writing ------------------------------------------------------------------------------------
+
 
 def _toml_value(x):
     if isinstance(x, bool):
@@ -421,8 +465,10 @@ def _parameter_text(p, bounds):
 
 def model_to_toml(model):
     """The model as model-file text; loading it gives back an equal model."""
-    out = ["# uvfit sky model", "# positions and sizes in the angular unit below; angles in degrees,"
-           " north through east; fluxes in Jy"]
+    out = [
+        "# uvfit sky model",
+        "# positions and sizes in the angular unit below; angles in degrees, north through east; fluxes in Jy",
+    ]
     if model.description:
         out.append(f"description = {json.dumps(model.description)}")
     out.append(f"angular_unit = {json.dumps(model.angular_unit_text)}")
@@ -448,7 +494,7 @@ def _build(cls, components, angular_unit="mas", description=None):
 
 
 # the model's conveniences for files, provided here so that uvfit.sky.model needs no file code
-SkyModel.build = classmethod(_build)
-SkyModel.from_components = SkyModel.build
-SkyModel.to_toml = model_to_toml
-SkyModel.save = save_model
+SkyModel.build = classmethod(_build)  # type: ignore[attr-defined]  # attached here: sky.model has no file code
+SkyModel.from_components = SkyModel.build  # type: ignore[attr-defined]  # same
+SkyModel.to_toml = model_to_toml  # type: ignore[attr-defined]  # same
+SkyModel.save = save_model  # type: ignore[attr-defined]  # same

@@ -6,11 +6,12 @@ angle, and no unit for a ratio or a spectral index. A parameter is free unless i
 a tied parameter always equals the parameter it is tied to (its Jacobian column is added to that
 parameter's column).
 """
+
 import math
 from dataclasses import dataclass
 
-import numpy as np
 import astropy.units as un
+import numpy as np
 
 #: kind of each component-level parameter
 COMPONENT_KINDS = {"flux": "flux", "east": "length", "north": "length", "spectral_index": "ratio"}
@@ -28,11 +29,11 @@ def default_bounds(kind):
 
 def kind_unit(kind, angular_unit):
     """The astropy unit of a parameter of this kind in a model with this angular unit."""
-    return {"flux": un.Jy, "length": angular_unit, "angle": un.deg,
-            "ratio": un.dimensionless_unscaled}[kind]
+    return {"flux": un.Jy, "length": angular_unit, "angle": un.deg, "ratio": un.dimensionless_unscaled}[kind]
 
 
 # -- priors ---------------------------------------------------------------------------------------
+
 
 class Prior:
     """A prior density on one parameter, in the parameter's model-file units."""
@@ -136,6 +137,7 @@ PRIORS = {"uniform": Uniform, "normal": Normal, "log_uniform": LogUniform}
 
 # -- parameters -----------------------------------------------------------------------------------
 
+
 @dataclass
 class Parameter:
     """One model parameter (see the module docstring for units).
@@ -149,11 +151,11 @@ class Parameter:
     min: float = -math.inf
     max: float = math.inf
     fixed: bool = False
-    tie: str = None
-    prior: Prior = None
+    tie: str | None = None
+    prior: Prior | None = None
     unit: object = None
     kind: str = "ratio"
-    note: str = None
+    note: str | None = None
 
     @property
     def component(self):
@@ -185,10 +187,16 @@ class Parameter:
 
     def same_as(self, other):
         """Equal in everything a model file records (the note aside)."""
-        return (self.name == other.name and _feq(self.value, other.value)
-                and _feq(self.min, other.min) and _feq(self.max, other.max)
-                and bool(self.fixed) == bool(other.fixed) and self.tie == other.tie
-                and self.prior == other.prior and self.kind == other.kind)
+        return (
+            self.name == other.name
+            and _feq(self.value, other.value)
+            and _feq(self.min, other.min)
+            and _feq(self.max, other.max)
+            and bool(self.fixed) == bool(other.fixed)
+            and self.tie == other.tie
+            and self.prior == other.prior
+            and self.kind == other.kind
+        )
 
 
 def _feq(a, b):
@@ -220,4 +228,5 @@ class ParameterSet(dict):
 
     def copy(self):
         import copy
+
         return ParameterSet((k, copy.copy(p)) for k, p in self.items())

@@ -9,6 +9,7 @@ Units inside a shape: u, v in wavelengths; every length (size, separation) in ra
 angle (position angle, modulation angle) in radians, position angles measured north through east.
 The component converts from the model file's units (mas, deg) and chains the derivatives.
 """
+
 from typing import ClassVar, NamedTuple
 
 import numpy as np
@@ -74,7 +75,7 @@ class Shape:
     #: True when the shape is made of several members with parameters of their own (a double)
     compound: ClassVar[bool] = False
     #: built-in kernel of the compiled engine ("point", "gaussian", "elliptical_gaussian"), or None
-    kernel: ClassVar = None
+    kernel: ClassVar[str | None] = None
 
     def __init__(self, **settings):
         unknown = set(settings) - set(self.settings)

@@ -8,6 +8,7 @@ Shared by every statistic: :func:`effective_sigma` (the systematic floor),
 :func:`model_visibilities_and_jacobian` (the model and its Jacobian on given rows) and
 :func:`common_shift` (the free parameter behind a common shift or scale of all components).
 """
+
 import numpy as np
 
 from ..errors import UvfitError
@@ -19,7 +20,7 @@ def effective_sigma(sigma, amplitude, systematic=0.0):
     f = float(systematic)
     if f < 0:
         raise UvfitError(f"the systematic floor must be >= 0 (got {f})", "pass e.g. --systematic 0.02")
-    return np.sqrt(sigma ** 2 + (f * amplitude) ** 2)
+    return np.sqrt(sigma**2 + (f * amplitude) ** 2)
 
 
 def model_visibilities_and_jacobian(model, u, v, frequency, theta):
@@ -67,7 +68,7 @@ class Statistic:
     #: mode name, e.g. "complex"
     mode = ""
     #: True when the residual is an angle and must be wrapped into (-pi, pi]
-    wrapped = None  # or a boolean array over the data vector
+    wrapped: bool | np.ndarray | None = None  # or a boolean array over the data vector
 
     def __init__(self, vset, model, systematic=0.0, **options):
         self.vset = vset
@@ -134,10 +135,12 @@ class Statistic:
         """The same statistic (class and options) on another model (or the same model after its
         free set changed), on other rows ``vset`` and with another ``systematic`` floor; each
         defaults to this statistic's own."""
-        return type(self)(self.vset if vset is None else vset,
-                          self.model if model is None else model,
-                          systematic=self.systematic if systematic is None else systematic,
-                          **self.options)
+        return type(self)(
+            self.vset if vset is None else vset,
+            self.model if model is None else model,
+            systematic=self.systematic if systematic is None else systematic,
+            **self.options,
+        )
 
 
 class JoinedStatistic(Statistic):
@@ -155,8 +158,9 @@ class JoinedStatistic(Statistic):
         self.members = list(members)
         self.data = np.concatenate([p.data for p in self.members])
         self.sigma = np.concatenate([p.sigma for p in self.members])
-        self.wrapped = np.concatenate([np.broadcast_to(
-            False if p.wrapped is None else p.wrapped, (p.n_data,)) for p in self.members])
+        self.wrapped = np.concatenate(
+            [np.broadcast_to(False if p.wrapped is None else p.wrapped, (p.n_data,)) for p in self.members]
+        )
 
     def predict(self, theta):
         return np.concatenate([p.predict(theta) for p in self.members])
@@ -185,5 +189,3 @@ class JoinedStatistic(Statistic):
         out.members = [p.scaled(factor) for p in self.members]
         out.sigma = np.concatenate([p.sigma for p in out.members])
         return out
-
-

@@ -28,6 +28,7 @@ Amplitude mode
     Amplitudes carry no information on absolute position, and a model and its point reflection
     through the origin have the same amplitudes (a 180-degree ambiguity).
 """
+
 import numpy as np
 from scipy.special import i0e, i1e
 
@@ -125,7 +126,7 @@ class ComplexStatistic(Statistic):
             return -np.vstack([jac.real, jac.imag]) / self.sigma[:, None]
         scale = -1.0 / self.sigma
         if jac.T.flags.c_contiguous:
-            jt = jac.T                      # (n_free, n), rows contiguous
+            jt = jac.T  # (n_free, n), rows contiguous
             out = np.empty((jac.shape[1], 2 * n))
             np.multiply(jt.real, scale[:n], out=out[:, :n])
             np.multiply(jt.imag, scale[n:], out=out[:, n:])
@@ -182,27 +183,29 @@ class AmplitudeStatistic(Statistic):
             nu_ref = np.where(np.isfinite(nu_ref), nu_ref, 0.0)
         self.reference_amplitude = nu_ref
         self.high = nu_ref >= self.debias_snr * self.sigma
-        debiased = np.sqrt(np.maximum(amp ** 2 - self.sigma ** 2, 0.0))
+        debiased = np.sqrt(np.maximum(amp**2 - self.sigma**2, 0.0))
         self.data = np.where(self.high, debiased, amp)
         low = ~self.high
         if np.any(low):
             s = self.sigma[low]
             mean, _ = self._rice_mean(nu_ref[low], s)
-            var = 2.0 * s ** 2 + nu_ref[low] ** 2 - mean ** 2
+            var = 2.0 * s**2 + nu_ref[low] ** 2 - mean**2
             self.sigma = self.sigma.copy()
-            self.sigma[low] = np.sqrt(np.maximum(var, 1e-6 * s ** 2))
+            self.sigma[low] = np.sqrt(np.maximum(var, 1e-6 * s**2))
             self.rice_sigma = s
         else:
             self.rice_sigma = self.sigma[low]
         self.row_index = rows.index
-        self.notices = ["amplitudes cannot fix the absolute position, and a model and its point "
-                        "reflection through the origin (every position angle + 180 deg) fit equally "
-                        "well: position angles are ambiguous by 180 degrees in this mode"]
+        self.notices = [
+            "amplitudes cannot fix the absolute position, and a model and its point "
+            "reflection through the origin (every position angle + 180 deg) fit equally "
+            "well: position angles are ambiguous by 180 degrees in this mode"
+        ]
 
     # Rice mean E[A] = sigma sqrt(pi/2) [(1 + 2y) i0e(y) + 2y i1e(y)], y = nu^2 / (4 sigma^2);
     # d/dy of the bracket = i0e(y) + i1e(y).
     def _rice_mean(self, nu, sigma):
-        y = nu ** 2 / (4.0 * sigma ** 2)
+        y = nu**2 / (4.0 * sigma**2)
         mean = sigma * _SQRT_HALF_PI * ((1.0 + 2.0 * y) * i0e(y) + 2.0 * y * i1e(y))
         dmean = _SQRT_HALF_PI * (i0e(y) + i1e(y)) * nu / (2.0 * sigma)
         return mean, dmean
@@ -234,7 +237,7 @@ class AmplitudeStatistic(Statistic):
         """Exact Rice log-likelihood of the measured amplitudes (not the least-squares objective)."""
         nu = np.abs(_model_vis(self.model, self.rows, theta))
         a = self.amplitude
-        s2 = self.noise_sigma ** 2
+        s2 = self.noise_sigma**2
         z = a * nu / s2
         with np.errstate(divide="ignore"):
             loga = np.log(a)
@@ -248,7 +251,9 @@ class AmplitudeStatistic(Statistic):
         return out
 
     def degeneracies(self):
-        reason = ("visibility amplitudes do not depend on the absolute position; it is held at its "
-                  "start value (positions of other components are relative to it, and the whole "
-                  "model is still ambiguous by a 180-degree point reflection)")
+        reason = (
+            "visibility amplitudes do not depend on the absolute position; it is held at its "
+            "start value (positions of other components are relative to it, and the whole "
+            "model is still ambiguous by a 180-degree point reflection)"
+        )
         return [(name, reason) for name in free_translation(self.model)]

@@ -13,6 +13,7 @@ chain file), :mod:`.runner` (the sampler run and the entry :func:`sample`), :mod
 (:class:`Posterior`), :mod:`.table` (its text table). The corner plot is
 :mod:`uvfit.show.corner`.
 """
+
 from .chainfile import CHAIN_GROUP, chain_info, check_chain_file, read_chain
 from .convergence import autocorrelation_time, burn_and_thin, convergence_check
 from .logpost import LogPosterior
@@ -20,6 +21,19 @@ from .runner import Chain, run_chain, sample
 from .start import initial_ball
 from .summary import Posterior, summarize_chain
 
-__all__ = ["CHAIN_GROUP", "Chain", "LogPosterior", "Posterior", "autocorrelation_time",
-           "burn_and_thin", "chain_info", "check_chain_file", "convergence_check", "initial_ball",
-           "read_chain", "run_chain", "sample", "summarize_chain"]
+__all__ = [
+    "CHAIN_GROUP",
+    "Chain",
+    "LogPosterior",
+    "Posterior",
+    "autocorrelation_time",
+    "burn_and_thin",
+    "chain_info",
+    "check_chain_file",
+    "convergence_check",
+    "initial_ball",
+    "read_chain",
+    "run_chain",
+    "sample",
+    "summarize_chain",
+]

@@ -5,6 +5,7 @@ and ``uvfit_meta`` (JSON: mode, systematic, data), next to emcee's own (``iterat
 ``nwalkers``, ...). emcee stores the sampler's random state after every step, so a resumed chain
 continues the same random sequence. Everything that writes, resumes or reads a chain file is here.
 """
+
 import json
 import os
 
@@ -22,18 +23,25 @@ def read_chain_attrs(path):
     try:
         with h5py.File(path, "r") as f:
             if CHAIN_GROUP not in f:
-                raise UvfitError(f"{path} holds no uvfit chain",
-                                 "give the chain file written by an earlier 'uvfit sample --chain' run")
+                raise UvfitError(
+                    f"{path} holds no uvfit chain",
+                    "give the chain file written by an earlier 'uvfit sample --chain' run",
+                )
             g = f[CHAIN_GROUP]
             attrs = {k: g.attrs[k] for k in g.attrs}
     except OSError as exc:
-        raise UvfitError(f"cannot read the chain file {path} ({exc})",
-                         "give an HDF5 chain file written by 'uvfit sample --chain', or start a new one with --force")
+        raise UvfitError(
+            f"cannot read the chain file {path} ({exc})",
+            "give an HDF5 chain file written by 'uvfit sample --chain', or start a new one with --force",
+        ) from None
     names = json.loads(attrs.get("uvfit_names", "[]"))
-    return {"names": names, "seed": int(attrs.get("uvfit_seed", 0)),
-            "iteration": int(attrs.get("iteration", 0)),
-            "n_walkers": int(attrs.get("nwalkers", 0)),
-            "meta": json.loads(attrs.get("uvfit_meta", "{}"))}
+    return {
+        "names": names,
+        "seed": int(attrs.get("uvfit_seed", 0)),
+        "iteration": int(attrs.get("iteration", 0)),
+        "n_walkers": int(attrs.get("nwalkers", 0)),
+        "meta": json.loads(attrs.get("uvfit_meta", "{}")),
+    }
 
 
 def write_chain_attrs(path, names, seed, meta):
@@ -61,16 +69,18 @@ def check_chain_file(chain_path, resume=False, force=False):
         if chain_path is None:
             raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
         if not os.path.exists(chain_path):
-            raise UvfitError(f"there is no chain file {chain_path} to resume",
-                             "run once without --resume to start the chain")
+            raise UvfitError(
+                f"there is no chain file {chain_path} to resume", "run once without --resume to start the chain"
+            )
         return read_chain_attrs(chain_path)["iteration"]
     if chain_path is not None:
         if os.path.exists(chain_path) and not force:
-            raise UvfitError(f"the chain file {chain_path} exists already",
-                             "pass --resume to continue it, or --force to start it again")
+            raise UvfitError(
+                f"the chain file {chain_path} exists already",
+                "pass --resume to continue it, or --force to start it again",
+            )
         if not os.path.isdir(os.path.dirname(os.path.abspath(chain_path))):
-            raise UvfitError(f"the folder for the chain file {chain_path} does not exist",
-                             "create it first")
+            raise UvfitError(f"the folder for the chain file {chain_path} does not exist", "create it first")
     return 0
 
 
@@ -85,18 +95,20 @@ def resume_backend(chain_path, names, n_walkers, seed):
     notes = []
     info = read_chain_attrs(chain_path)
     if info["names"] != names:
-        raise UvfitError(f"the chain in {chain_path} was run on other free parameters "
-                         f"({', '.join(info['names'])})",
-                         "resume with the same model file, or start a new chain with --force")
+        raise UvfitError(
+            f"the chain in {chain_path} was run on other free parameters ({', '.join(info['names'])})",
+            "resume with the same model file, or start a new chain with --force",
+        )
     if n_walkers is not None and int(n_walkers) != info["n_walkers"]:
-        raise UvfitError(f"the chain in {chain_path} has {info['n_walkers']} walkers, not {n_walkers}",
-                         "drop --walkers when resuming")
+        raise UvfitError(
+            f"the chain in {chain_path} has {info['n_walkers']} walkers, not {n_walkers}",
+            "drop --walkers when resuming",
+        )
     if info["iteration"] < 1:
         raise UvfitError(f"the chain in {chain_path} is empty", "start it again with --force")
     n_walkers = info["n_walkers"]
     if int(seed) != info["seed"]:
-        notes.append(f"the chain continues its own random sequence (seed {info['seed']}); "
-                     f"--seed {seed} is not used")
+        notes.append(f"the chain continues its own random sequence (seed {info['seed']}); --seed {seed} is not used")
     seed = info["seed"]
     backend = emcee.backends.HDFBackend(chain_path, name=CHAIN_GROUP)
     return backend, n_walkers, seed, notes
@@ -129,10 +141,10 @@ def chain_group(path):
                 if isinstance(handle[name], h5py.Group) and "chain" in handle[name]:
                     return name
     except OSError as exc:
-        raise UvfitError(f"chain file {path} is not an HDF5 file ({exc})",
-                         "give the HDF5 chain written by 'uvfit sample'") from None
-    raise UvfitError(f"chain file {path} holds no sampler chain",
-                     "give the HDF5 chain written by 'uvfit sample'")
+        raise UvfitError(
+            f"chain file {path} is not an HDF5 file ({exc})", "give the HDF5 chain written by 'uvfit sample'"
+        ) from None
+    raise UvfitError(f"chain file {path} holds no sampler chain", "give the HDF5 chain written by 'uvfit sample'")
 
 
 def read_chain(path, discard=0, thin=1):
@@ -146,9 +158,13 @@ def read_chain(path, discard=0, thin=1):
         backend = emcee.backends.HDFBackend(path, name=chain_group(path), read_only=True)
         samples = backend.get_chain(discard=int(discard), thin=int(thin), flat=True)
     except (OSError, KeyError, AttributeError, ValueError) as exc:
-        raise UvfitError(f"chain file {path} is not a readable sampler chain ({exc})",
-                         "give the HDF5 chain written by 'uvfit sample'") from None
+        raise UvfitError(
+            f"chain file {path} is not a readable sampler chain ({exc})",
+            "give the HDF5 chain written by 'uvfit sample'",
+        ) from None
     if samples is None or samples.size == 0:
-        raise UvfitError(f"chain file {path} has no samples left after discarding {discard} steps",
-                         "check the chain, or the discard recorded in the posterior JSON")
+        raise UvfitError(
+            f"chain file {path} has no samples left after discarding {discard} steps",
+            "check the chain, or the discard recorded in the posterior JSON",
+        )
     return np.asarray(samples)

@@ -8,6 +8,7 @@ the previous check ``check_every`` (100) steps earlier. Burn-in is ``burn_factor
 largest tau, thinning half the smallest tau. The decision at step n is a pure function of the
 first n steps, so a resumed run decides exactly as an uninterrupted one.
 """
+
 import math
 
 import numpy as np
@@ -35,8 +36,7 @@ def autocorrelation_time(chain):
     return np.asarray(tau, dtype=float)
 
 
-def convergence_check(chain, n, check_every=CHECK_EVERY, tau_factor=TAU_FACTOR,
-                      tau_change=TAU_CHANGE):
+def convergence_check(chain, n, check_every=CHECK_EVERY, tau_factor=TAU_FACTOR, tau_change=TAU_CHANGE):
     """(converged, tau) for the first ``n`` steps of ``chain``.
 
     Converged when n > tau_factor * max(tau) and every tau changed by less than the fraction
@@ -52,7 +52,7 @@ def convergence_state(chain, n, check_every, tau_factor, tau_change):
     tau = autocorrelation_time(chain[:n])
     if n - check_every < 4 or not np.all(np.isfinite(tau)):
         return False, tau, float("nan")
-    previous = autocorrelation_time(chain[:n - check_every])
+    previous = autocorrelation_time(chain[: n - check_every])
     change = float(np.max(np.abs(tau - previous) / tau))
     return bool(change < tau_change and n > tau_factor * np.max(tau)), tau, change
 
@@ -70,6 +70,5 @@ def burn_and_thin(tau, n_steps, burn_factor=BURN_FACTOR):
     thin = max(1, int(0.5 * float(np.min(tau))))
     if burn > n_steps // 2:
         burn = n_steps // 2
-        note = (f"burn-in of {burn_factor:g} tau would exceed half the chain; half the chain "
-                "is discarded instead")
+        note = f"burn-in of {burn_factor:g} tau would exceed half the chain; half the chain is discarded instead"
     return burn, thin, note

@@ -3,6 +3,7 @@
 ``model.log_prior(theta) + statistic.log_likelihood(theta)`` over the model's free parameters:
 uniform inside the bounds unless the model file gives a prior.
 """
+
 import numpy as np
 
 

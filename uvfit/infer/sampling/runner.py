@@ -7,6 +7,7 @@ sampler's own generator (a ``RandomState`` given to emcee through the initial ``
 every step, so a resumed chain continues the same random sequence and equals one uninterrupted run
 of the same total length.
 """
+
 import os
 from dataclasses import dataclass, field
 
@@ -37,15 +38,15 @@ class Chain:
     """A finished (or stopped) run: the stored chain and what the stopping rule found."""
 
     names: list
-    chain: np.ndarray            # (n_steps, n_walkers, n_dim)
-    log_prob: np.ndarray         # (n_steps, n_walkers)
-    acceptance: np.ndarray       # per walker, over the whole chain
-    tau: np.ndarray              # per parameter (steps)
+    chain: np.ndarray  # (n_steps, n_walkers, n_dim)
+    log_prob: np.ndarray  # (n_steps, n_walkers)
+    acceptance: np.ndarray  # per walker, over the whole chain
+    tau: np.ndarray  # per parameter (steps)
     converged: bool
     seed: int
     burn_in: int
     thin: int
-    path: str = None
+    path: str | None = None
     notes: list = field(default_factory=list)
     resumed_from: int = 0
 
@@ -63,8 +64,8 @@ class Chain:
 
     def flat(self):
         """(samples (n, n_dim), log-posterior (n,)) after burn-in and thinning."""
-        c = self.chain[self.burn_in::self.thin]
-        lp = self.log_prob[self.burn_in::self.thin]
+        c = self.chain[self.burn_in :: self.thin]
+        lp = self.log_prob[self.burn_in :: self.thin]
         return c.reshape(-1, c.shape[-1]), lp.reshape(-1)
 
     def max_posterior(self):
@@ -73,10 +74,27 @@ class Chain:
         return self.chain[k].copy(), float(self.log_prob[k])
 
 
-def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_steps=5000, seed=0,
-              procs=1, chain_path=None, resume=False, force=False, progress=None,
-              check_every=CHECK_EVERY, tau_factor=TAU_FACTOR, tau_change=TAU_CHANGE,
-              burn_factor=BURN_FACTOR, ball_scale=0.3, meta=None):
+def run_chain(
+    log_prob,
+    start,
+    covariance,
+    bounds,
+    names,
+    n_walkers=None,
+    max_steps=5000,
+    seed=0,
+    procs=1,
+    chain_path=None,
+    resume=False,
+    force=False,
+    progress=None,
+    check_every=CHECK_EVERY,
+    tau_factor=TAU_FACTOR,
+    tau_change=TAU_CHANGE,
+    burn_factor=BURN_FACTOR,
+    ball_scale=0.3,
+    meta=None,
+):
     """Run (or resume) the ensemble sampler and return a :class:`Chain`.
 
     ``log_prob`` is a picklable callable theta -> log-posterior (e.g. :class:`LogPosterior`);
@@ -92,8 +110,7 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
     names = list(names)
     n_dim = len(names)
     if n_dim == 0:
-        raise FitError("the model has no free parameters to sample",
-                       "free at least one parameter in the model file")
+        raise FitError("the model has no free parameters to sample", "free at least one parameter in the model file")
     max_steps = int(max_steps)
     if max_steps < 1:
         raise UvfitError("--max-steps must be at least 1", "give a positive number of steps")
@@ -110,8 +127,9 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
         n_walkers = int(n_walkers)
         n_walkers += n_walkers % 2
         if n_walkers < 2 * n_dim:
-            raise UvfitError(f"{n_walkers} walkers are too few for {n_dim} free parameters",
-                             f"use --walkers {2 * n_dim + 2} or more")
+            raise UvfitError(
+                f"{n_walkers} walkers are too few for {n_dim} free parameters", f"use --walkers {2 * n_dim + 2} or more"
+            )
         backend = new_backend(chain_path, n_walkers, n_dim, names, seed, meta)
 
     pool = None
@@ -119,8 +137,7 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
     if procs and int(procs) > 1:
         import multiprocessing
 
-        pool = multiprocessing.get_context().Pool(int(procs), initializer=_init_worker,
-                                                  initargs=(log_prob,))
+        pool = multiprocessing.get_context().Pool(int(procs), initializer=_init_worker, initargs=(log_prob,))
         fn = _WorkerLogProb()
     try:
         sampler = emcee.EnsembleSampler(n_walkers, n_dim, fn, pool=pool, backend=backend)
@@ -129,9 +146,15 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
         else:
             seq = np.random.SeedSequence(int(seed))
             ball_seq, walk_seq = seq.spawn(2)
-            pos, note = initial_ball(start, covariance, bounds, n_walkers,
-                                     np.random.default_rng(ball_seq), scale=ball_scale,
-                                     log_prob=log_prob)
+            pos, note = initial_ball(
+                start,
+                covariance,
+                bounds,
+                n_walkers,
+                np.random.default_rng(ball_seq),
+                scale=ball_scale,
+                log_prob=log_prob,
+            )
             if note:
                 notes.append(note)
             rstate = np.random.RandomState(np.random.MT19937(walk_seq)).get_state()
@@ -139,15 +162,14 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
         # the decision at the steps already stored (a resumed chain may be finished)
         converged = False
         if previous and previous % check_every == 0:
-            converged, _ = convergence_check(sampler.get_chain(), previous, check_every,
-                                             tau_factor, tau_change)
+            converged, _ = convergence_check(sampler.get_chain(), previous, check_every, tau_factor, tau_change)
             if converged:
-                notes.append(f"the chain had converged already at its {previous} steps; no steps "
-                             "were added")
+                notes.append(f"the chain had converged already at its {previous} steps; no steps were added")
         todo = max_steps - previous
         if previous and todo <= 0:
-            notes.append(f"the chain already has {previous} steps (--max-steps {max_steps}); "
-                         "raise --max-steps to continue it")
+            notes.append(
+                f"the chain already has {previous} steps (--max-steps {max_steps}); raise --max-steps to continue it"
+            )
         if todo > 0 and not converged:
             done = 0
             for _ in sampler.sample(state, iterations=todo, skip_initial_state_check=bool(previous)):
@@ -156,8 +178,7 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
                     progress(done)
                 it = previous + done
                 if it % check_every == 0:
-                    converged, _ = convergence_check(sampler.get_chain(), it, check_every,
-                                                     tau_factor, tau_change)
+                    converged, _ = convergence_check(sampler.get_chain(), it, check_every, tau_factor, tau_change)
                     if converged:
                         break
     except BaseException:
@@ -180,33 +201,71 @@ def run_chain(log_prob, start, covariance, bounds, names, n_walkers=None, max_st
     if not converged:
         _, _, change = convergence_state(chain, n_steps, check_every, tau_factor, tau_change)
         if np.all(np.isfinite(tau)) and tau.size and np.max(tau) > 0:
-            how = (f"it is {n_steps / np.max(tau):.0f} autocorrelation times long (needs more "
-                   f"than {tau_factor:g})")
+            how = f"it is {n_steps / np.max(tau):.0f} autocorrelation times long (needs more than {tau_factor:g})"
         else:
             how = "it is too short to estimate its autocorrelation time"
         if np.isfinite(change):
-            how += (f" and tau changed by {100 * change:.1f}% over the last {check_every} steps "
-                    f"(needs less than {100 * tau_change:g}%)")
-        notes.append(f"the chain has NOT converged after {n_steps} steps: {how}; treat the "
-                     "intervals as rough and run longer (raise --max-steps, add --resume)")
+            how += (
+                f" and tau changed by {100 * change:.1f}% over the last {check_every} steps "
+                f"(needs less than {100 * tau_change:g}%)"
+            )
+        notes.append(
+            f"the chain has NOT converged after {n_steps} steps: {how}; treat the "
+            "intervals as rough and run longer (raise --max-steps, add --resume)"
+        )
     acc = float(np.mean(acceptance))
     if acc < ACCEPTANCE_RANGE[0]:
-        notes.append(f"the mean acceptance fraction {acc:.2f} is below {ACCEPTANCE_RANGE[0]}: the "
-                     "walkers rarely move (a multimodal, very narrow or curved posterior, or walkers "
-                     "stuck); the intervals may be too narrow")
+        notes.append(
+            f"the mean acceptance fraction {acc:.2f} is below {ACCEPTANCE_RANGE[0]}: the "
+            "walkers rarely move (a multimodal, very narrow or curved posterior, or walkers "
+            "stuck); the intervals may be too narrow"
+        )
     elif acc > ACCEPTANCE_RANGE[1]:
-        notes.append(f"the mean acceptance fraction {acc:.2f} is above {ACCEPTANCE_RANGE[1]}: the "
-                     "steps are small against the posterior width (common with few free parameters); "
-                     "check that the autocorrelation times are well below the chain length")
-    return Chain(names=names, chain=chain, log_prob=log_post, acceptance=np.asarray(acceptance, float),
-                 tau=tau, converged=bool(converged), seed=int(seed), burn_in=burn, thin=thin,
-                 path=chain_path, notes=notes, resumed_from=previous)
+        notes.append(
+            f"the mean acceptance fraction {acc:.2f} is above {ACCEPTANCE_RANGE[1]}: the "
+            "steps are small against the posterior width (common with few free parameters); "
+            "check that the autocorrelation times are well below the chain length"
+        )
+    return Chain(
+        names=names,
+        chain=chain,
+        log_prob=log_post,
+        acceptance=np.asarray(acceptance, float),
+        tau=tau,
+        converged=bool(converged),
+        seed=int(seed),
+        burn_in=burn,
+        thin=thin,
+        path=chain_path,
+        notes=notes,
+        resumed_from=previous,
+    )
 
 
-def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_steps=5000, seed=0,
-           procs=1, chain_path=None, resume=False, force=False, order_by="flux", progress=None,
-           starts=1, frequency=None, redshift=0.0, data_path=None, derived=True,
-           fit_progress=None, ball_scale=0.3, rescale_errors=False, **options):
+def sample(
+    vset,
+    model,
+    mode="complex",
+    systematic=0.0,
+    n_walkers=None,
+    max_steps=5000,
+    seed=0,
+    procs=1,
+    chain_path=None,
+    resume=False,
+    force=False,
+    order_by="flux",
+    progress=None,
+    starts=1,
+    frequency=None,
+    redshift=0.0,
+    data_path=None,
+    derived=True,
+    fit_progress=None,
+    ball_scale=0.3,
+    rescale_errors=False,
+    **options,
+):
     """Sample the posterior of ``model`` (not changed) given ``vset`` in ``mode``; a :class:`Posterior`.
 
     A new chain starts from the least-squares best fit (``starts`` starts, seeded), in a ball scaled
@@ -223,17 +282,20 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
         raise UvfitError(f"unknown ordering '{order_by}'", "use --order-by flux or --order-by distance")
     work = model.copy()
     stat = make_statistic(mode, vset, work, systematic=systematic, **options)
-    extra = {"systematic": float(systematic),
-             "angular_unit": getattr(work, "angular_unit_text", str(getattr(work, "angular_unit", "")))}
+    extra = {
+        "systematic": float(systematic),
+        "angular_unit": getattr(work, "angular_unit_text", str(getattr(work, "angular_unit", ""))),
+    }
     start = cov = None
     if resume:
         if chain_path is not None and os.path.exists(chain_path):
             stored = chain_info(chain_path)["meta"]
             for key, now in (("mode", mode), ("systematic", float(systematic))):
                 if key in stored and stored[key] != now:
-                    raise UvfitError(f"the chain in {chain_path} was run with {key} {stored[key]}, "
-                                     f"not {now}",
-                                     f"resume with the same --{key}, or start a new chain with --force")
+                    raise UvfitError(
+                        f"the chain in {chain_path} was run with {key} {stored[key]}, not {now}",
+                        f"resume with the same --{key}, or start a new chain with --force",
+                    )
         stat, fixed, notices = fix_degeneracies(stat)
         error_scale = float(stored.get("error_scale", 1.0)) if chain_path and os.path.exists(chain_path) else 1.0
     else:
@@ -241,23 +303,27 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
         stat = result.statistic
         fixed, notices = list(result.fixed_by_fitter), list(result.notices)
         start, cov = np.asarray(result.values, float), np.asarray(result.covariance, float)
-        extra["least_squares"] = {"values": dict(zip(result.names, map(float, result.values))),
-                                  "errors": dict(zip(result.names, map(float, result.errors))),
-                                  "chi2": float(result.chi2), "dof": int(result.dof)}
+        extra["least_squares"] = {
+            "values": dict(zip(result.names, map(float, result.values))),
+            "errors": dict(zip(result.names, map(float, result.errors))),
+            "chi2": float(result.chi2),
+            "dof": int(result.dof),
+        }
         error_scale = 1.0
         if rescale_errors and result.dof > 0 and result.chi2 > 0:
             error_scale = float(np.sqrt(result.chi2 / result.dof))
-            cov = cov * error_scale ** 2
+            cov = cov * error_scale**2
     if rescale_errors and error_scale != 1.0:
         stat = stat.scaled(error_scale)
-        notices = list(notices) + [f"every sigma multiplied by sqrt(chi2/dof) = {error_scale:.4g} "
-                                   "(rescale_errors)"]
+        notices = list(notices) + [f"every sigma multiplied by sqrt(chi2/dof) = {error_scale:.4g} (rescale_errors)"]
     if rescale_errors:
         extra["error_scale"] = float(error_scale)
     work = stat.model
     if stat.n_data <= len(work.free_names):
-        raise FitError(f"only {stat.n_data} data for {len(work.free_names)} free parameters",
-                       "fix some parameters, or use more data (check the selection options)")
+        raise FitError(
+            f"only {stat.n_data} data for {len(work.free_names)} free parameters",
+            "fix some parameters, or use more data (check the selection options)",
+        )
     extra["fixed_for_mode"] = list(fixed)
     if frequency is None:
         frequency = float(np.mean(stat.vset.frequency)) if stat.vset.n else float("nan")
@@ -268,12 +334,34 @@ def sample(vset, model, mode="complex", systematic=0.0, n_walkers=None, max_step
     meta = {"mode": mode, "systematic": float(systematic), "data": None if data_path is None else str(data_path)}
     if rescale_errors:
         meta["error_scale"] = float(error_scale)
-    chain = run_chain(log_prob, start, cov, bounds, work.free_names, n_walkers=n_walkers,
-                      max_steps=max_steps, seed=seed, procs=procs, chain_path=chain_path,
-                      resume=resume, force=force, progress=progress, meta=meta,
-                      ball_scale=ball_scale)
-    post = summarize_chain(chain, work, order_by=order_by, frequency=frequency, redshift=redshift,
-                           mode=mode, data_path=data_path, derived=derived, extra=extra,
-                           movable=fixed)
+    chain = run_chain(
+        log_prob,
+        start,
+        cov,
+        bounds,
+        work.free_names,
+        n_walkers=n_walkers,
+        max_steps=max_steps,
+        seed=seed,
+        procs=procs,
+        chain_path=chain_path,
+        resume=resume,
+        force=force,
+        progress=progress,
+        meta=meta,
+        ball_scale=ball_scale,
+    )
+    post = summarize_chain(
+        chain,
+        work,
+        order_by=order_by,
+        frequency=frequency,
+        redshift=redshift,
+        mode=mode,
+        data_path=data_path,
+        derived=derived,
+        extra=extra,
+        movable=fixed,
+    )
     post.notes = list(notices) + post.notes
     return post

@@ -4,13 +4,13 @@ The ball has 0.3 times the least-squares standard deviations by default (a small
 longer burn-in: with 0.1 and 2 tau, posterior means in a linear test scattered by 1.4 times their
 Monte Carlo error, with 0.3 and 3 tau by 1.0-1.1 times).
 """
+
 import numpy as np
 
 from ...errors import FitError
 
 
-def initial_ball(center, covariance, bounds, n_walkers, rng, scale=0.3, log_prob=None,
-                 max_tries=100):
+def initial_ball(center, covariance, bounds, n_walkers, rng, scale=0.3, log_prob=None, max_tries=100):
     """Walker positions around ``center``: normal with covariance ``scale**2 * covariance``.
 
     Falls back to a diagonal ball (1e-3 of |value|, of the bound range, or 1e-3 absolute) when the
@@ -36,8 +36,10 @@ def initial_ball(center, covariance, bounds, n_walkers, rng, scale=0.3, log_prob
         step = np.where(center != 0, 1e-3 * np.abs(center), width)
         step = np.where(np.isfinite(step) & (step > 0), step, 1e-3)
         chol = np.diag(step / scale)
-        note = ("the least-squares covariance is singular or undefined; the walkers start in a "
-                "small ball of 0.1% of each value instead")
+        note = (
+            "the least-squares covariance is singular or undefined; the walkers start in a "
+            "small ball of 0.1% of each value instead"
+        )
 
     def draw(k):
         x = center + scale * rng.standard_normal((k, n)) @ chol.T
@@ -57,6 +59,8 @@ def initial_ball(center, covariance, bounds, n_walkers, rng, scale=0.3, log_prob
                 break
             pos[bad] = draw(int(bad.sum()))
         else:
-            raise FitError("could not place the walkers where the posterior is non-zero",
-                           "check the start values, bounds and priors of the model")
+            raise FitError(
+                "could not place the walkers where the posterior is non-zero",
+                "check the start values, bounds and priors of the model",
+            )
     return pos, note

@@ -3,6 +3,7 @@
 The rules (percentiles, circular angles, the limit rule against bounds, the ordering of same-shape
 components and of the members of a double) are those of :mod:`uvfit.infer.posterior`.
 """
+
 import numpy as np
 
 from ...errors import UvfitError
@@ -76,8 +77,21 @@ class Posterior:
     (after burn-in and thinning); ``theta_max`` the ordered max-posterior sample.
     """
 
-    def __init__(self, chain, model, samples, log_prob, theta_max, parameters, derived, ordering,
-                 mode="", data_path=None, notes=None, extra=None):
+    def __init__(
+        self,
+        chain,
+        model,
+        samples,
+        log_prob,
+        theta_max,
+        parameters,
+        derived,
+        ordering,
+        mode="",
+        data_path=None,
+        notes=None,
+        extra=None,
+    ):
         self.chain = chain
         self.model = model
         self.samples = samples
@@ -120,8 +134,12 @@ class Posterior:
             "burn_in": ch.burn_in,
             "thin": ch.thin,
             "converged": ch.converged,
-            "stopping_rule": {"check_every": CHECK_EVERY, "tau_factor": TAU_FACTOR,
-                              "tau_change": TAU_CHANGE, "burn_factor": BURN_FACTOR},
+            "stopping_rule": {
+                "check_every": CHECK_EVERY,
+                "tau_factor": TAU_FACTOR,
+                "tau_change": TAU_CHANGE,
+                "burn_factor": BURN_FACTOR,
+            },
             "ordering": self.ordering,
             "chain": ch.path,
             "resumed_from_step": ch.resumed_from,
@@ -138,16 +156,28 @@ class Posterior:
         return posterior_table(self)
 
 
-def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0, mode="",
-                    data_path=None, derived=True, extra=None, movable=()):
+def summarize_chain(
+    chain,
+    model,
+    order_by="flux",
+    frequency=None,
+    redshift=0.0,
+    mode="",
+    data_path=None,
+    derived=True,
+    extra=None,
+    movable=(),
+):
     """A :class:`Posterior` from a :class:`Chain` on ``model`` (whose free parameters it sampled)."""
     from ..derived import derived_periods
     from ..posterior import order_samples, summarize, swap_groups
 
     names = list(chain.names)
     if list(model.free_names) != names:
-        raise UvfitError("the chain's parameters do not match the model's free parameters",
-                         "use the model file the chain was run with")
+        raise UvfitError(
+            "the chain's parameters do not match the model's free parameters",
+            "use the model file the chain was run with",
+        )
     samples, log_prob = chain.flat()
     groups = swap_groups(model)
     samples, ordering = order_samples(model, samples, order_by, groups, movable)
@@ -159,8 +189,13 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
     params = {}
     for j, name in enumerate(names):
         lo, hi = _limit_bounds(model, name)
-        s = summarize(both[:-1, j], unit=_unit_text(model.parameters[name]),
-                      period=_parameter_period(model, name), lower_bound=lo, upper_bound=hi)
+        s = summarize(
+            both[:-1, j],
+            unit=_unit_text(model.parameters[name]),
+            period=_parameter_period(model, name),
+            lower_bound=lo,
+            upper_bound=hi,
+        )
         s["max_posterior"] = _max_value(both[i_max, j], _parameter_period(model, name))
         params[name] = s
     out_derived = {}
@@ -173,7 +208,7 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
             s = summarize(x[:-1], unit=units.get(key, ""), period=periods.get(key), lower_bound=bound)
             s["max_posterior"] = _max_value(x[i_max], periods.get(key))
             if "upper_limit_95" in s:
-                limited.add(key[:-len(".size")])
+                limited.add(key[: -len(".size")])
             out_derived[key] = s
         for member in limited:
             tb = out_derived.get(f"{member}.brightness_temperature")
@@ -184,8 +219,20 @@ def summarize_chain(chain, model, order_by="flux", frequency=None, redshift=0.0,
                     tb["lower_limit_95"] = float(np.percentile(x, 5.0, method="nearest"))
                     tb["note"] = "the size is an upper limit, so this is a lower limit (one-sided 95%)"
     notes = list(chain.notes)
-    return Posterior(chain, model, samples, log_prob, theta_max, params, out_derived, ordering,
-                     mode=mode, data_path=data_path, notes=notes, extra=extra)
+    return Posterior(
+        chain,
+        model,
+        samples,
+        log_prob,
+        theta_max,
+        params,
+        out_derived,
+        ordering,
+        mode=mode,
+        data_path=data_path,
+        notes=notes,
+        extra=extra,
+    )
 
 
 def _max_value(x, period):

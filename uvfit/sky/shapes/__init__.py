@@ -3,6 +3,7 @@
 A value is either (module, class name), imported on first use, or a Shape subclass itself: a
 shape defined elsewhere (e.g. in a test) is registered with ``SHAPES["crescent"] = Crescent``.
 """
+
 import importlib
 
 SHAPES = {

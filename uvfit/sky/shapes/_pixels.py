@@ -3,11 +3,13 @@
 ``l``, ``m`` are 2-D arrays of pixel-centre offsets (radians, l east, m north) on a regular grid;
 the result is the fraction of the unit flux falling in each pixel.
 """
+
 import numpy as np
 
 
 def grid_steps(l, m):
     """(dl, dm): the pixel spacings of a regular 2-D grid of pixel centres."""
+
     def step(a):
         a = np.asarray(a, dtype=float)
         if a.ndim != 2:
@@ -17,6 +19,7 @@ def grid_steps(l, m):
         if s == 0.0:
             raise ValueError("cannot tell the pixel size of a grid with a single pixel")
         return s
+
     return step(l), step(m)
 
 
@@ -30,7 +33,7 @@ def oversampled(brightness, l, m, s=4):
     dl, dm = grid_steps(l, m)
     offsets = (np.arange(s) + 0.5) / s - 0.5
     total = np.zeros(np.broadcast(l, m).shape)
-    for a in offsets:          # s^2 whole-grid evaluations (not a loop over pixels)
+    for a in offsets:  # s^2 whole-grid evaluations (not a loop over pixels)
         for b in offsets:
             total += brightness(l + a * dl, m + b * dm)
     return total * (dl * dm) / (s * s)

@@ -6,6 +6,7 @@ smooth f (Gauss-Legendre in radius or polar angle, the periodic trapezoid/midpoi
 both converge faster than any power of the node count). Image rendering splats these nodes onto
 pixels; they also serve as an image-domain reference for the Fourier-domain formulas.
 """
+
 import numpy as np
 
 
@@ -29,8 +30,7 @@ def disk_points(radius, n):
     r, wr = _gauss_legendre(0.0, radius, n)
     wr = wr * r / np.sum(wr * r)
     l, m, wa = ring_points(1.0, 4 * int(n))
-    return ((r[:, None] * l[None, :]).ravel(), (r[:, None] * m[None, :]).ravel(),
-            (wr[:, None] * wa[None, :]).ravel())
+    return ((r[:, None] * l[None, :]).ravel(), (r[:, None] * m[None, :]).ravel(), (wr[:, None] * wa[None, :]).ravel())
 
 
 def sphere_surface_points(n):
@@ -60,10 +60,9 @@ def shell_points(inner, outer, n):
         r, wr = np.array([float(outer)]), np.array([1.0])
     else:
         r, wr = _gauss_legendre(inner, outer, max(4, int(n) // 2))
-        wr = wr * r ** 2 / np.sum(wr * r ** 2)
+        wr = wr * r**2 / np.sum(wr * r**2)
     l, m, ws = sphere_surface_points(n)
-    return ((r[:, None] * l[None, :]).ravel(), (r[:, None] * m[None, :]).ravel(),
-            (wr[:, None] * ws[None, :]).ravel())
+    return ((r[:, None] * l[None, :]).ravel(), (r[:, None] * m[None, :]).ravel(), (wr[:, None] * ws[None, :]).ravel())
 
 
 def gaussian_blur_points(l, m, w, fwhm, n=20):
@@ -77,5 +76,4 @@ def gaussian_blur_points(l, m, w, fwhm, n=20):
     dl = np.repeat(d, d.size)
     dm = np.tile(d, d.size)
     wd = np.outer(wt, wt).ravel()
-    return ((l[:, None] + dl[None, :]).ravel(), (m[:, None] + dm[None, :]).ravel(),
-            (w[:, None] * wd[None, :]).ravel())
+    return ((l[:, None] + dl[None, :]).ravel(), (m[:, None] + dm[None, :]).ravel(), (w[:, None] * wd[None, :]).ravel())

@@ -8,6 +8,7 @@ to cancellation: below a threshold they switch to their Taylor series (terms wri
     sinc(x)    = sin(x) / x                          (zero-thickness spherical shell)
     ball(x)    = 3 (sin x - x cos x) / x^3           (uniform optically thin sphere)
 """
+
 import math
 
 import numpy as np
@@ -21,7 +22,7 @@ AIRY_SERIES_BELOW = 1.5
 BALL_SERIES_BELOW = 1.5
 
 # 2 J1(x)/x = sum_k (-1)^k (x/2)^(2k) / (k! (k+1)!)    (Abramowitz & Stegun 9.1.10)
-_AIRY = [(-1) ** k / (math.factorial(k) * math.factorial(k + 1) * 4.0 ** k) for k in range(14)]
+_AIRY = [(-1) ** k / (math.factorial(k) * math.factorial(k + 1) * 4.0**k) for k in range(14)]
 # 3 (sin x - x cos x)/x^3 = sum_n (-1)^(n+1) 6 n x^(2n-2) / (2n+1)!   (from the sine/cosine series)
 _BALL = [(-1) ** (n + 1) * 6.0 * n / math.factorial(2 * n + 1) for n in range(1, 15)]
 
@@ -57,7 +58,7 @@ def airy(x):
 def airy_derivative(x):
     """d/dx [2 J1(x)/x] = -2 J2(x)/x = 2 (x J0(x) - 2 J1(x)) / x^2 (J1' = J0 - J1/x)."""
     x, small, safe = _split(x, AIRY_SERIES_BELOW)
-    closed = 2.0 * (safe * special.j0(safe) - 2.0 * special.j1(safe)) / safe ** 2
+    closed = 2.0 * (safe * special.j0(safe) - 2.0 * special.j1(safe)) / safe**2
     return np.where(small, _poly_x2_derivative(_AIRY, x), closed)
 
 
@@ -75,7 +76,7 @@ def sinc_derivative(x):
 def ball(x):
     """3 (sin x - x cos x)/x^3, equal to 1 at x = 0."""
     x, small, safe = _split(x, BALL_SERIES_BELOW)
-    closed = 3.0 * (np.sin(safe) - safe * np.cos(safe)) / safe ** 3
+    closed = 3.0 * (np.sin(safe) - safe * np.cos(safe)) / safe**3
     return np.where(small, _poly_x2(_BALL, x), closed)
 
 

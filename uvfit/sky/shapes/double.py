@@ -9,6 +9,7 @@ member from the first (separation s, position angle psi north through east). The
 position is that of the FIRST member; its flux is the total of both. Each member's size parameters
 carry the suffix ``_1`` or ``_2`` (``fwhm_1``, ``axis_ratio_2``...).
 """
+
 import math
 
 import numpy as np
@@ -36,8 +37,10 @@ class Double(Shape):
     def __init__(self, **settings):
         member = settings.pop("member", "point")
         if member not in SHAPES:
-            raise ValueError(f"unknown member shape '{member}' for a double; known shapes: "
-                             + ", ".join(k for k in SHAPES if k != "double"))
+            raise ValueError(
+                f"unknown member shape '{member}' for a double; known shapes: "
+                + ", ".join(k for k in SHAPES if k != "double")
+            )
         if member == "double":
             raise ValueError("a double cannot have double members; use two components instead")
         cls = shape_class(member)
@@ -75,9 +78,9 @@ class Double(Shape):
         r = p["flux_ratio"]
         sep, pa = p["separation"], p["position_angle"]
         out = []
-        for k, (f, offset) in enumerate([(flux / (1.0 + r), None),
-                                         (flux * r / (1.0 + r),
-                                          (sep * math.sin(pa), sep * math.cos(pa)))], start=1):
+        for k, (f, offset) in enumerate(
+            [(flux / (1.0 + r), None), (flux * r / (1.0 + r), (sep * math.sin(pa), sep * math.cos(pa)))], start=1
+        ):
             names = {n: f"{n}_{k}" for n in self._member_names}
             out.append(Member(str(k), self.member, names, f, offset))
         return out
@@ -100,8 +103,9 @@ class Double(Shape):
 
     def symmetric_members(self):
         """The members trade places: see MemberSwap (flux_ratio, separation, position_angle)."""
-        return MemberSwap("flux_ratio", "separation", "position_angle",
-                          tuple((f"{n}_1", f"{n}_2") for n in self._member_names))
+        return MemberSwap(
+            "flux_ratio", "separation", "position_angle", tuple((f"{n}_1", f"{n}_2") for n in self._member_names)
+        )
 
     def member_values(self, p, k):
         """The size parameters of member k (1 or 2) from the double's parameter mapping."""
@@ -150,8 +154,7 @@ class Double(Shape):
 
     def parameter_bounds(self, name):
         if name in _OWN:
-            return {"flux_ratio": (0.0, np.inf), "separation": (0.0, np.inf),
-                    "position_angle": (-np.inf, np.inf)}[name]
+            return {"flux_ratio": (0.0, np.inf), "separation": (0.0, np.inf), "position_angle": (-np.inf, np.inf)}[name]
         return self.member.parameter_bounds(self.member_parameter(name)[0])
 
     # image domain ---------------------------------------------------------------------------------
@@ -182,5 +185,8 @@ class Double(Shape):
         dx, dy = self.member_offset(p)
         l1, m1, w1 = self.member.sample_points(self.member_values(p, 1), n)
         l2, m2, w2 = self.member.sample_points(self.member_values(p, 2), n)
-        return (np.concatenate([l1, l2 + dx]), np.concatenate([m1, m2 + dy]),
-                np.concatenate([np.asarray(w1) / (1.0 + r), np.asarray(w2) * (r / (1.0 + r))]))
+        return (
+            np.concatenate([l1, l2 + dx]),
+            np.concatenate([m1, m2 + dy]),
+            np.concatenate([np.asarray(w1) / (1.0 + r), np.asarray(w2) * (r / (1.0 + r))]),
+        )

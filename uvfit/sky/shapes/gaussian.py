@@ -7,15 +7,16 @@ FWHM a, minor-axis FWHM b = rho a and major axis at position angle phi (north th
 V = exp[-pi^2/(4 ln 2) (a^2 q_par^2 + b^2 q_perp^2)], with q_par = u sin phi + v cos phi (along
 the major axis) and q_perp = u cos phi - v sin phi.
 """
-import numpy as np
 
 import math
+
+import numpy as np
 
 from ..shape import Shape, grid_steps, nearest_pixel
 from ..temperature import brightness_temperature_gaussian
 
 #: pi^2 / (4 ln 2): the constant in the exponent of a Gaussian's visibility in terms of its FWHM
-C_VIS = math.pi ** 2 / (4.0 * math.log(2.0))
+C_VIS = math.pi**2 / (4.0 * math.log(2.0))
 #: 4 ln 2: the constant in the exponent of a Gaussian's brightness in terms of its FWHM
 C_IMG = 4.0 * np.log(2.0)
 
@@ -48,8 +49,11 @@ def elliptical_log_derivatives(fwhm, ratio, q_par, q_perp):
     zero at rho = 1."""
     qn2 = q_perp * q_perp
     e = q_par * q_par + ratio * ratio * qn2
-    return (-C_VIS * 2.0 * fwhm * e, -C_VIS * 2.0 * fwhm * fwhm * ratio * qn2,
-            -C_VIS * 2.0 * fwhm * fwhm * (1.0 - ratio * ratio) * q_par * q_perp)
+    return (
+        -C_VIS * 2.0 * fwhm * e,
+        -C_VIS * 2.0 * fwhm * fwhm * ratio * qn2,
+        -C_VIS * 2.0 * fwhm * fwhm * (1.0 - ratio * ratio) * q_par * q_perp,
+    )
 
 
 def gaussian_density(l, m, fwhm_major, fwhm_minor, phi):
@@ -60,8 +64,11 @@ def gaussian_density(l, m, fwhm_major, fwhm_minor, phi):
     m = np.asarray(m, dtype=float)
     x_maj = l * np.sin(phi) + m * np.cos(phi)
     x_min = l * np.cos(phi) - m * np.sin(phi)
-    return C_IMG / (np.pi * fwhm_major * fwhm_minor) * np.exp(
-        -C_IMG * (x_maj ** 2 / fwhm_major ** 2 + x_min ** 2 / fwhm_minor ** 2))
+    return (
+        C_IMG
+        / (np.pi * fwhm_major * fwhm_minor)
+        * np.exp(-C_IMG * (x_maj**2 / fwhm_major**2 + x_min**2 / fwhm_minor**2))
+    )
 
 
 #: the point sets of a Gaussian stop at this many standard deviations (flux beyond: exp(-18) = 1.5e-8)
@@ -105,9 +112,9 @@ def gaussian_pixels(l, m, fwhm_major, fwhm_minor, phi):
         return nearest_pixel(l, m)
     to_sigma = 1.0 / np.sqrt(8.0 * np.log(2.0))
     s_maj, s_min = fwhm_major * to_sigma, fwhm_minor * to_sigma
-    e_maj = np.array([np.sin(phi), np.cos(phi)])   # (east, north) along the major axis
+    e_maj = np.array([np.sin(phi), np.cos(phi)])  # (east, north) along the major axis
     e_min = np.array([np.cos(phi), -np.sin(phi)])
-    cov = s_maj ** 2 * np.outer(e_maj, e_maj) + s_min ** 2 * np.outer(e_min, e_min)
+    cov = s_maj**2 * np.outer(e_maj, e_maj) + s_min**2 * np.outer(e_min, e_min)
     narrow = fwhm_minor < 1.5 * max(dl, dm)
     if narrow:
         cov = cov + np.diag([dl * dl / 12.0, dm * dm / 12.0])

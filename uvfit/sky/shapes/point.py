@@ -1,4 +1,5 @@
 """A point source: all its flux at one position, the same visibility on every baseline."""
+
 import numpy as np
 
 from ..shape import Shape

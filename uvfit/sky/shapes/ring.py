@@ -27,6 +27,7 @@ z = pi d q (using J_(-m) = (-1)^m J_m). With the real parameters, alpha_k = phi_
 times exp[-(pi b q)^2 / (4 ln 2)] for a circular Gaussian blur of FWHM b (``blur``; 0 = none).
 The sign of the phase is checked against a numerical FFT of the rendered ring in the tests.
 """
+
 import re
 
 import numpy as np
@@ -46,7 +47,7 @@ def _bessel_j(top, z):
     if top >= 2:
         orders = np.arange(2, top + 1).reshape((-1,) + (1,) * np.ndim(z))
         out.extend(special.jv(orders, z[None, ...]))
-    return np.stack(out[:top + 1])
+    return np.stack(out[: top + 1])
 
 
 def _minus_j1(x):
@@ -73,8 +74,7 @@ class ThinRing(_radial.OneSizeRadial):
     def pixel_fractions(self, l, m, p):
         """Flux fraction per pixel: the ring drawn with a Gaussian cross-section of
         _pixels.MIN_LINE_SIGMA pixels (see ModulatedRing.pixel_fractions)."""
-        return ModulatedRing(order=0).pixel_fractions(l, m, {"diameter": p["diameter"],
-                                                             "blur": 0.0})
+        return ModulatedRing(order=0).pixel_fractions(l, m, {"diameter": p["diameter"], "blur": 0.0})
 
     def sample_points(self, p, n=1024):
         """n equally spaced nodes (l, m, weight) on the ring."""
@@ -94,8 +94,7 @@ class ModulatedRing(Shape):
     kinds = {"diameter": "length", "blur": "length", "amplitude_1": "ratio", "angle_1": "angle"}
     settings = {"order": 1}
     real_when_centred = False
-    bounds = {"diameter": (0.0, np.inf), "blur": (0.0, np.inf), "amplitude_1": (0.0, 0.5),
-              "angle_1": (-np.inf, np.inf)}
+    bounds = {"diameter": (0.0, np.inf), "blur": (0.0, np.inf), "amplitude_1": (0.0, 0.5), "angle_1": (-np.inf, np.inf)}
 
     _HARMONIC = re.compile(r"^(amplitude|angle)_([1-9][0-9]*)$")
 
@@ -106,8 +105,10 @@ class ModulatedRing(Shape):
             if isinstance(order, float) and order.is_integer() and order >= 0:
                 order = int(order)
             else:
-                raise ModelError(f"setting 'order' of shape 'ring_modulated' must be a whole "
-                                 f"number >= 0, got {order!r}", "write e.g. order = 2")
+                raise ModelError(
+                    f"setting 'order' of shape 'ring_modulated' must be a whole number >= 0, got {order!r}",
+                    "write e.g. order = 2",
+                )
         self.order = int(order)
         self.config["order"] = self.order
         names = ["diameter", "blur"]
@@ -115,9 +116,16 @@ class ModulatedRing(Shape):
             names += [f"amplitude_{k}", f"angle_{k}"]
         self._names = names
         self.kinds = {n: self._kind(n) for n in names}
-        self.bounds = {n: ((0.0, 0.5) if n.startswith("amplitude_") else
-                           (-np.inf, np.inf) if n.startswith("angle_") else (0.0, np.inf))
-                       for n in names}
+        self.bounds = {
+            n: (
+                (0.0, 0.5)
+                if n.startswith("amplitude_")
+                else (-np.inf, np.inf)
+                if n.startswith("angle_")
+                else (0.0, np.inf)
+            )
+            for n in names
+        }
 
     def parameter_names(self):
         return list(self._names)
@@ -145,7 +153,7 @@ class ModulatedRing(Shape):
         phi = uv_position_angle(u, v)
         z = np.pi * p["diameter"] * q
         blur = p.get("blur", 0.0)
-        taper = np.exp(-(np.pi * blur * q) ** 2 / (4.0 * _LN2))
+        taper = np.exp(-((np.pi * blur * q) ** 2) / (4.0 * _LN2))
         bessel = _bessel_j(self.order + 1, z)  # J_0 .. J_(order+1)
         ring = bessel[0].astype(complex)
         grads = {}
@@ -165,7 +173,7 @@ class ModulatedRing(Shape):
         value = ring * taper
         if derivatives:
             grads["diameter"] = np.pi * q * d_ring_dz * taper
-            grads["blur"] = -(np.pi ** 2) * blur * q ** 2 / (2.0 * _LN2) * value
+            grads["blur"] = -(np.pi**2) * blur * q**2 / (2.0 * _LN2) * value
             grads = {n: grads[n] for n in self._names}
         return value, grads
 
@@ -198,17 +206,16 @@ class ModulatedRing(Shape):
         with ive_n(z) = exp(-z) I_n(z) (scipy.special.ive) and R = d/2.
         """
         if self.singular(p):
-            raise ValueError("an unblurred ring has no finite brightness; "
-                             "render it from sample_points()")
+            raise ValueError("an unblurred ring has no finite brightness; render it from sample_points()")
         l, m = np.broadcast_arrays(np.asarray(l, dtype=float), np.asarray(m, dtype=float))
         sigma = abs(p["blur"]) / np.sqrt(8.0 * _LN2)
         radius = 0.5 * abs(p["diameter"])
         r = np.hypot(l, m)
         psi = np.arctan2(l, m)
-        z = r * radius / sigma ** 2
+        z = r * radius / sigma**2
         orders = np.arange(self.order + 1).reshape((-1,) + (1,) * z.ndim)
         ratio = special.ive(orders, z[None, ...])
-        envelope = np.exp(-(r - radius) ** 2 / (2.0 * sigma ** 2)) / (2.0 * np.pi * sigma ** 2)
+        envelope = np.exp(-((r - radius) ** 2) / (2.0 * sigma**2)) / (2.0 * np.pi * sigma**2)
         return envelope * self._azimuthal(psi, p, ratio)
 
     def pixel_fractions(self, l, m, p):

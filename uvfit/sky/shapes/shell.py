@@ -16,6 +16,7 @@ Projected brightness (unit flux): sphere 3 sqrt(R^2 - r^2) / (2 pi R^3); thin sh
 1 / (2 pi R sqrt(R^2 - r^2)); shell 3 [sqrt(Ro^2 - r^2) - sqrt(Ri^2 - r^2)] / (2 pi (Ro^3 - Ri^3)),
 each square root taken as 0 where its argument is negative.
 """
+
 import numpy as np
 
 from uvfit.sky.shape import Shape
@@ -32,7 +33,7 @@ _THIN_BELOW = 1.0
 
 
 def _projected_root(radius, r):
-    return np.sqrt(np.clip(radius ** 2 - r ** 2, 0.0, None))
+    return np.sqrt(np.clip(radius**2 - r**2, 0.0, None))
 
 
 class Shell(Shape):
@@ -57,7 +58,7 @@ class Shell(Shape):
         value = np.ones_like(q)
         d_ri = np.zeros_like(q)
         d_ro = np.zeros_like(q)
-        spread = ro ** 2 + ro * ri + ri ** 2  # (Ro^3 - Ri^3) / (Ro - Ri)
+        spread = ro**2 + ro * ri + ri**2  # (Ro^3 - Ri^3) / (Ro - Ri)
         if spread == 0.0:  # both radii zero: a point
             return value, {"inner_radius": d_ri, "outer_radius": d_ro}
         delta = ro - ri
@@ -68,28 +69,28 @@ class Shell(Shape):
         s = (ri + delta * _TAU)[:, None]
         w = _TAU_W[:, None]
         g = _radial.sinc(kt * s)
-        value[thin] = np.sum(w * s ** 2 * g, axis=0) / np.sum(w * s ** 2, axis=0)
+        value[thin] = np.sum(w * s**2 * g, axis=0) / np.sum(w * s**2, axis=0)
         if derivatives:
             dg = kt * _radial.sinc_derivative(kt * s)  # d sinc(k s) / ds
             tau = _TAU[:, None]
-            d_ro[thin] = 3 * ro ** 2 / spread ** 2 * np.sum(
-                w * dg * tau * (s ** 2 + s * ri + ri ** 2), axis=0)
-            d_ri[thin] = 3 * ri ** 2 / spread ** 2 * np.sum(
-                w * dg * (1 - tau) * (ro ** 2 + ro * s + s ** 2), axis=0)
+            d_ro[thin] = 3 * ro**2 / spread**2 * np.sum(w * dg * tau * (s**2 + s * ri + ri**2), axis=0)
+            d_ri[thin] = 3 * ri**2 / spread**2 * np.sum(w * dg * (1 - tau) * (ro**2 + ro * s + s**2), axis=0)
 
         # closed-form branch (here 2 pi q |Ro - Ri| > 1, so Ro^3 - Ri^3 is not small)
         thick = ~thin
         xo = k[thick] * ro
         xi = k[thick] * ri
-        cube = ro ** 3 - ri ** 3
-        val = (ro ** 3 * _radial.ball(xo) - ri ** 3 * _radial.ball(xi)) / cube
+        cube = ro**3 - ri**3
+        val = (ro**3 * _radial.ball(xo) - ri**3 * _radial.ball(xi)) / cube
         value[thick] = val
         if derivatives:
-            d_ro[thick] = 3 * ro ** 2 * (_radial.sinc(xo) - val) / cube
-            d_ri[thick] = -3 * ri ** 2 * (_radial.sinc(xi) - val) / cube
+            d_ro[thick] = 3 * ro**2 * (_radial.sinc(xo) - val) / cube
+            d_ri[thick] = -3 * ri**2 * (_radial.sinc(xi) - val) / cube
         # chain through the absolute values taken above
-        return value, {"inner_radius": d_ri * np.sign(p["inner_radius"] or 1.0),
-                       "outer_radius": d_ro * np.sign(p["outer_radius"] or 1.0)}
+        return value, {
+            "inner_radius": d_ri * np.sign(p["inner_radius"] or 1.0),
+            "outer_radius": d_ro * np.sign(p["outer_radius"] or 1.0),
+        }
 
     def structure(self, u, v, p):
         return self._evaluate(u, v, p, derivatives=False)[0]
@@ -107,8 +108,7 @@ class Shell(Shape):
         if ri == ro:
             return ThinShell().brightness(l, m, {"radius": ro})
         r = np.hypot(np.asarray(l, dtype=float), np.asarray(m, dtype=float))
-        return 3.0 * (_projected_root(ro, r) - _projected_root(ri, r)) / (
-            2.0 * np.pi * (ro ** 3 - ri ** 3))
+        return 3.0 * (_projected_root(ro, r) - _projected_root(ri, r)) / (2.0 * np.pi * (ro**3 - ri**3))
 
     def sample_points(self, p, n=64):
         """Quadrature nodes (l, m, weight) of the 3-D shell projected on the sky."""
@@ -161,15 +161,14 @@ class Sphere(_radial.OneSizeRadial):
         """Projected brightness per steradian, 3 sqrt(R^2 - r^2) / (2 pi R^3)."""
         radius = abs(p["radius"])
         r = np.hypot(np.asarray(l, dtype=float), np.asarray(m, dtype=float))
-        return 3.0 * _projected_root(radius, r) / (2.0 * np.pi * radius ** 3)
+        return 3.0 * _projected_root(radius, r) / (2.0 * np.pi * radius**3)
 
     def pixel_fractions(self, l, m, p):
         """Flux fraction per pixel: brightness averaged over 4 x 4 sub-pixel points; a sphere
         under two pixels across is drawn as a pixel-wide Gaussian of the same second moment
         (R^2/5 per axis), keeping its flux."""
         radius = abs(p["radius"])
-        return _pixels.compact_or_oversampled(lambda a, b: self.brightness(a, b, p), l, m,
-                                              2 * radius, radius ** 2 / 5.0)
+        return _pixels.compact_or_oversampled(lambda a, b: self.brightness(a, b, p), l, m, 2 * radius, radius**2 / 5.0)
 
     def sample_points(self, p, n=64):
         """Quadrature nodes (l, m, weight) of the 3-D ball projected on the sky."""

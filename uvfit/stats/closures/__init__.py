@@ -10,17 +10,29 @@ Modules, one concept each:
 - :mod:`~uvfit.stats.closures.check`: how well any model reproduces the closures, and the verdict;
 - :mod:`~uvfit.stats.closures.table`: the closures as an astropy Table.
 """
+
 from .build import DEFAULT_SNR_CUT, ClosureSet, build_closures
 from .check import CLOSURE_CAUTION, check_closures, json_summary
 from .covariance import COVARIANCE_NOTE
 from .statistics import (
-                         ClosurePhaseStatistic,
-                         ClosureStatistic,
-                         HybridStatistic,
-                         LogClosureAmplitudeStatistic,
+    ClosurePhaseStatistic,
+    ClosureStatistic,
+    HybridStatistic,
+    LogClosureAmplitudeStatistic,
 )
 from .table import closure_table
 
-__all__ = ["CLOSURE_CAUTION", "COVARIANCE_NOTE", "DEFAULT_SNR_CUT", "ClosurePhaseStatistic",
-           "ClosureSet", "ClosureStatistic", "HybridStatistic", "LogClosureAmplitudeStatistic",
-           "build_closures", "check_closures", "closure_table", "json_summary"]
+__all__ = [
+    "CLOSURE_CAUTION",
+    "COVARIANCE_NOTE",
+    "DEFAULT_SNR_CUT",
+    "ClosurePhaseStatistic",
+    "ClosureSet",
+    "ClosureStatistic",
+    "HybridStatistic",
+    "LogClosureAmplitudeStatistic",
+    "build_closures",
+    "check_closures",
+    "closure_table",
+    "json_summary",
+]

@@ -66,6 +66,7 @@ Full set (``full=True``): every triangle, and for every set of four stations all
 amplitudes that can be formed. It is redundant (its members are linear combinations of one another)
 so a chi-square over it counts the same information several times: use it to look, not to weigh.
 """
+
 from dataclasses import dataclass, field
 from functools import lru_cache
 from itertools import combinations
@@ -77,6 +78,7 @@ from ..base import effective_sigma
 
 #: default SNR cut on the contributing visibilities (thermal SNR |V| / sigma)
 DEFAULT_SNR_CUT = 3.0
+
 
 @dataclass
 class ClosureSet:
@@ -107,12 +109,12 @@ class ClosureSet:
     n_snapshots: int = 0
     #: per row of the VisibilitySet: the amplitude (Jy) behind the SNR cut, the choice of the set and
     #: the errors (see ``reference_amplitudes``); None for sets made without it
-    reference_amplitude: np.ndarray = None
+    reference_amplitude: np.ndarray | None = None
     #: the reference actually used: "neighbours" or "measured" (see ``build_closures``)
     amplitude_reference: str = "neighbours"
     #: per row of the VisibilitySet: the error of its arg V (phase sets, radians) or of its
     #: log|V| (amplitude sets); ``sigma`` is the root sum of squares over each closure's rows
-    row_sigma: np.ndarray = None
+    row_sigma: np.ndarray | None = None
     #: robust reduced chi2 of the amplitudes against their neighbours (``amplitude_smoothness``;
     #: NaN when not computed); above SMOOTHNESS_LIMIT the measured amplitudes are used
     smoothness: float = float("nan")
@@ -156,12 +158,16 @@ class ClosureSet:
             coef = orient
         else:
             st = self.stations
-            pairs = np.stack([np.stack([np.minimum(st[:, i], st[:, j]), np.maximum(st[:, i], st[:, j])], -1)
-                              for i, j in ((0, 1), (2, 3), (0, 2), (1, 3))], axis=1)
+            pairs = np.stack(
+                [
+                    np.stack([np.minimum(st[:, i], st[:, j]), np.maximum(st[:, i], st[:, j])], -1)
+                    for i, j in ((0, 1), (2, 3), (0, 2), (1, 3))
+                ],
+                axis=1,
+            )
             coef = np.broadcast_to(np.array([1.0, 1.0, -1.0, -1.0]), pairs.shape[:2])
         # one column per (baseline, snapshot): closures of different snapshots never share a column
-        key = np.concatenate([pairs.reshape(-1, 2),
-                              np.repeat(self.snapshot, pairs.shape[1])[:, None]], axis=1)
+        key = np.concatenate([pairs.reshape(-1, 2), np.repeat(self.snapshot, pairs.shape[1])[:, None]], axis=1)
         uniq, inv = np.unique(key, axis=0, return_inverse=True)
         mat = np.zeros((self.n, len(uniq)))
         rows = np.repeat(np.arange(self.n), pairs.shape[1])
@@ -189,10 +195,14 @@ def _quadrangles(n):
         return np.zeros((0, 4), int)
     sets = np.array(list(combinations(range(n), 4)), dtype=int)
     a, b, c, d = sets.T
-    out = np.stack([np.stack([a, b, c, d], 1),      # |ab||cd| / (|ac||bd|)
-                    np.stack([a, d, c, b], 1),      # |ad||bc| / (|ac||bd|)
-                    np.stack([a, b, d, c], 1)],     # |ab||cd| / (|ad||bc|)
-                   axis=1)
+    out = np.stack(
+        [
+            np.stack([a, b, c, d], 1),  # |ab||cd| / (|ac||bd|)
+            np.stack([a, d, c, b], 1),  # |ad||bc| / (|ac||bd|)
+            np.stack([a, b, d, c], 1),
+        ],  # |ab||cd| / (|ad||bc|)
+        axis=1,
+    )
     return out.reshape(-1, 4)
 
 
@@ -330,11 +340,13 @@ def _rice_table(n_grid=400, n_nodes=96):
     ww = (w[:, None] * w[None, :]).ravel()
     re = snr[:, None] + n1.ravel()[None, :]
     im = np.broadcast_to(n2.ravel()[None, :], re.shape)
-    logr = 0.5 * np.log(re ** 2 + im ** 2)
+    logr = 0.5 * np.log(re**2 + im**2)
     arg = np.arctan2(im, re)
+
     def std(f):
         m = f @ ww
         return np.sqrt(np.maximum((f - m[:, None]) ** 2 @ ww, 0.0))
+
     return snr, std(logr), std(arg)
 
 
@@ -371,17 +383,23 @@ def amplitude_smoothness(vset, ref, found, window=NEIGHBOURS):
         return float("nan")
     snr = ref[ok] / vset.sigma[ok]
     e_log, _ = rice_errors(snr)
-    var = e_log ** 2 + (1.0 / snr ** 2 + 1.0 / snr ** 4) / (2 * window)
+    var = e_log**2 + (1.0 / snr**2 + 1.0 / snr**4) / (2 * window)
     y = np.log(amp[ok]) - np.log(ref[ok])
-    return float(np.median(y ** 2 / var) / _CHI2_1_MEDIAN)
+    return float(np.median(y**2 / var) / _CHI2_1_MEDIAN)
 
 
 #: median of the chi-square distribution with one degree of freedom (scipy.stats.chi2(1).median())
 _CHI2_1_MEDIAN = 0.454936423119572
 
 
-def build_closures(vset, snr_cut=DEFAULT_SNR_CUT, systematic=0.0, full=False, kinds=("phase", "amplitude"),
-                   amplitude_reference="neighbours"):
+def build_closures(
+    vset,
+    snr_cut=DEFAULT_SNR_CUT,
+    systematic=0.0,
+    full=False,
+    kinds=("phase", "amplitude"),
+    amplitude_reference="neighbours",
+):
     """Closure phases and log closure amplitudes of ``vset`` (see the module docstring).
 
     Returns a dict kind -> ClosureSet for the requested ``kinds`` ("phase", "amplitude"). Row
@@ -396,14 +414,17 @@ def build_closures(vset, snr_cut=DEFAULT_SNR_CUT, systematic=0.0, full=False, ki
     snr_cut = float(snr_cut if snr_cut is not None else 0.0)
     systematic = float(systematic or 0.0)
     if snr_cut < 0 or not np.isfinite(snr_cut):
-        raise DataError(f"the SNR cut must be a finite number >= 0, not {snr_cut}",
-                        "give e.g. --snr-cut 3")
+        raise DataError(f"the SNR cut must be a finite number >= 0, not {snr_cut}", "give e.g. --snr-cut 3")
     if systematic < 0 or not np.isfinite(systematic):
-        raise DataError(f"the systematic floor must be a finite fraction >= 0, not {systematic}",
-                        "give e.g. --systematic 0.02 for 2 per cent of |V|")
+        raise DataError(
+            f"the systematic floor must be a finite fraction >= 0, not {systematic}",
+            "give e.g. --systematic 0.02 for 2 per cent of |V|",
+        )
     if amplitude_reference not in AMPLITUDE_REFERENCES:
-        raise DataError(f"unknown amplitude reference '{amplitude_reference}' for the closures",
-                        "use 'neighbours' (default) or 'measured'")
+        raise DataError(
+            f"unknown amplitude reference '{amplitude_reference}' for the closures",
+            "use 'neighbours' (default) or 'measured'",
+        )
     names = list(vset.stations.names)
     ant1, ant2 = vset.ant1, vset.ant2
     measured = np.abs(vset.vis)
@@ -424,11 +445,10 @@ def build_closures(vset, snr_cut=DEFAULT_SNR_CUT, systematic=0.0, full=False, ki
     # comes from the neighbours, the linear sigma/|V| where it is the row's own amplitude
     e_log, e_arg = rice_errors(snr)
     rel_kind = {
-        "phase": np.where(from_neighbours, np.sqrt(e_arg ** 2 + systematic ** 2), rel),
-        "amplitude": np.where(from_neighbours, np.sqrt(e_log ** 2 + systematic ** 2), rel),
+        "phase": np.where(from_neighbours, np.sqrt(e_arg**2 + systematic**2), rel),
+        "amplitude": np.where(from_neighbours, np.sqrt(e_log**2 + systematic**2), rel),
     }
-    usable = ((~vset.flag) & (ant1 != ant2) & np.isfinite(rel) & (amp > 0) & (measured > 0)
-              & (snr >= snr_cut))
+    usable = (~vset.flag) & (ant1 != ant2) & np.isfinite(rel) & (amp > 0) & (measured > 0) & (snr >= snr_cut)
 
     acc = {k: {"rows": [], "signs": [], "stations": [], "snap": []} for k in kinds}
     groups = _snapshots(vset, usable)
@@ -515,16 +535,27 @@ def build_closures(vset, snr_cut=DEFAULT_SNR_CUT, systematic=0.0, full=False, ki
             stations = np.zeros((0, k), int)
             snap = np.zeros(0, int)
         first = rows[:, 0] if len(rows) else np.zeros(0, int)
-        cs = ClosureSet(kind=kind, rows=rows, signs=signs, stations=stations,
-                        time=vset.time[first], frequency=vset.frequency[first],
-                        channel=vset.channel[first], snapshot=snap,
-                        value=np.zeros(len(rows)),
-                        sigma=np.sqrt(np.sum(rel_kind[kind][rows] ** 2, axis=1)),
-                        station_names=names, full=bool(full), snr_cut=snr_cut,
-                        systematic=systematic, n_snapshots=len(groups),
-                        reference_amplitude=amp, amplitude_reference=used_reference,
-                        smoothness=smoothness,
-                        row_sigma=rel_kind[kind])
+        cs = ClosureSet(
+            kind=kind,
+            rows=rows,
+            signs=signs,
+            stations=stations,
+            time=vset.time[first],
+            frequency=vset.frequency[first],
+            channel=vset.channel[first],
+            snapshot=snap,
+            value=np.zeros(len(rows)),
+            sigma=np.sqrt(np.sum(rel_kind[kind][rows] ** 2, axis=1)),
+            station_names=names,
+            full=bool(full),
+            snr_cut=snr_cut,
+            systematic=systematic,
+            n_snapshots=len(groups),
+            reference_amplitude=amp,
+            amplitude_reference=used_reference,
+            smoothness=smoothness,
+            row_sigma=rel_kind[kind],
+        )
         cs.value = cs.evaluate(vset.vis)
         out[kind] = cs
     return out
@@ -552,11 +583,14 @@ def no_closure_error(vset, kind, snr_cut):
     for rows in _snapshots(vset, usable):
         most = max(most, np.unique(np.concatenate([ant1[rows], ant2[rows]])).size)
     if most < need:
-        return DataError(f"no {what} can be formed: at most {most} station(s) observe at the same "
-                         f"time and channel, and {what} need {need}",
-                         "closures need at least three (phases) or four (amplitudes) stations "
-                         "observing at once; check the selection (--stations, --exclude-stations, "
-                         "--time-range) or use a visibility mode")
-    return DataError(f"no {what} can be formed after the SNR cut of {snr_cut:g} on the "
-                     f"contributing visibilities",
-                     "lower --snr-cut, or average in time (--average) to raise the SNR")
+        return DataError(
+            f"no {what} can be formed: at most {most} station(s) observe at the same "
+            f"time and channel, and {what} need {need}",
+            "closures need at least three (phases) or four (amplitudes) stations "
+            "observing at once; check the selection (--stations, --exclude-stations, "
+            "--time-range) or use a visibility mode",
+        )
+    return DataError(
+        f"no {what} can be formed after the SNR cut of {snr_cut:g} on the contributing visibilities",
+        "lower --snr-cut, or average in time (--average) to raise the SNR",
+    )

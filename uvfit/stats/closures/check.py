@@ -5,6 +5,7 @@ any mode (Thompson, Moran & Swenson 2017, ch. 10). The chi2 totals use the covar
 :mod:`uvfit.stats.closures.covariance`; the breakdown per triangle, quadrangle and station uses
 each closure's own (diagonal) error.
 """
+
 import numpy as np
 
 from ...labels import CLOSURE_CAUTION
@@ -28,8 +29,9 @@ def _group_chi2(labels, chi):
     uniq, inv = np.unique(labels, return_inverse=True)
     n = np.bincount(inv, minlength=len(uniq))
     c = np.bincount(inv, weights=chi, minlength=len(uniq))
-    rows = [{"label": str(l), "n": int(k), "chi2": float(x), "reduced_chi2": float(x / k)}
-            for l, k, x in zip(uniq, n, c)]
+    rows = [
+        {"label": str(l), "n": int(k), "chi2": float(x), "reduced_chi2": float(x / k)} for l, k, x in zip(uniq, n, c)
+    ]
     rows.sort(key=lambda r: -r["reduced_chi2"])
     return rows
 
@@ -69,8 +71,16 @@ def _judge(what, chi2, n, full):
     return True, text + " -> consistent"
 
 
-def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                   covariance=None, worst=5, amplitude_reference="neighbours"):
+def check_closures(
+    vset,
+    model=None,
+    systematic=0.0,
+    snr_cut=DEFAULT_SNR_CUT,
+    full=False,
+    covariance=None,
+    worst=5,
+    amplitude_reference="neighbours",
+):
     """Counts of the closure quantities of ``vset`` and, with a model, how well the model's closure
     phases and log closure amplitudes match the data (at the model's current parameter values).
 
@@ -88,16 +98,20 @@ def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, fu
     vset = vset.good()
     snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
     covariance = check_covariance(covariance, full)
-    cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full,
-                        amplitude_reference=amplitude_reference)
+    cs = build_closures(
+        vset, snr_cut=snr_cut, systematic=systematic, full=full, amplitude_reference=amplitude_reference
+    )
     cp, ca = cs["phase"], cs["amplitude"]
     if cp.n == 0:
         raise no_closure_error(vset, "phase", snr_cut)
     used_st = np.unique(np.concatenate([cp.stations.ravel(), ca.stations.ravel()]))
-    note = (COVARIANCE_NOTE if covariance == "diagonal" else
-            "linear propagation; full covariance within each snapshot for the chi2 totals "
-            "(closures sharing a baseline are correlated), diagonal errors for the per-triangle, "
-            "per-quadrangle and per-station breakdown")
+    note = (
+        COVARIANCE_NOTE
+        if covariance == "diagonal"
+        else "linear propagation; full covariance within each snapshot for the chi2 totals "
+        "(closures sharing a baseline are correlated), diagonal errors for the per-triangle, "
+        "per-quadrangle and per-station breakdown"
+    )
     out = {
         "n_closure_phases": int(cp.n),
         "n_closure_amplitudes": int(ca.n),
@@ -159,10 +173,12 @@ def check_closures(vset, model=None, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, fu
         head = "The closure quantities do NOT support the fitted structure."
         if out["worst_stations"]:
             w = out["worst_stations"][0]
-            head += (f" The largest misfit involves station {w['station']} (reduced chi2 "
-                     f"{w['reduced_chi2']:.3g}): the model may miss structure, the errors may be "
-                     f"underestimated (try a systematic floor), or that station may carry "
-                     f"baseline-based errors.")
+            head += (
+                f" The largest misfit involves station {w['station']} (reduced chi2 "
+                f"{w['reduced_chi2']:.3g}): the model may miss structure, the errors may be "
+                f"underestimated (try a systematic floor), or that station may carry "
+                f"baseline-based errors."
+            )
     out["supported"] = supported
     out["verdict"] = " ".join([head, t_p + ";", t_a + "."])
     return out

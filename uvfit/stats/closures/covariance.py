@@ -7,14 +7,17 @@ propagation; Chael et al. 2018, ApJ 857, 23). "snapshot" whitens each snapshot's
 inverse of the Cholesky factor of C (snapshots independent); "diagonal" (common practice) keeps
 only the diagonal, each closure weighed by its own sigma.
 """
+
 import numpy as np
 
 from ...errors import UvfitError
 from ..base import effective_sigma
 
 #: words used in outputs for the error model of a diagonal covariance
-COVARIANCE_NOTE = ("diagonal approximation: errors by linear propagation; correlations between "
-                   "closures that share a baseline are ignored")
+COVARIANCE_NOTE = (
+    "diagonal approximation: errors by linear propagation; correlations between "
+    "closures that share a baseline are ignored"
+)
 
 #: the covariances a closure statistic accepts
 COVARIANCES = ("diagonal", "snapshot")
@@ -26,11 +29,15 @@ def check_covariance(covariance, full):
     if covariance is None:
         return "diagonal" if full else "snapshot"
     if covariance not in COVARIANCES:
-        raise UvfitError(f"unknown closure covariance '{covariance}'",
-                         "use 'snapshot' (the default for the non-redundant set) or 'diagonal'")
+        raise UvfitError(
+            f"unknown closure covariance '{covariance}'",
+            "use 'snapshot' (the default for the non-redundant set) or 'diagonal'",
+        )
     if covariance == "snapshot" and full:
-        raise UvfitError("the full (redundant) closure set has a singular covariance",
-                         "use the non-redundant set (no --full) with the snapshot covariance")
+        raise UvfitError(
+            "the full (redundant) closure set has a singular covariance",
+            "use the non-redundant set (no --full) with the snapshot covariance",
+        )
     return covariance
 
 
@@ -41,11 +48,11 @@ def whitening(vset, cs):
     from scipy.sparse import block_diag
 
     if cs.row_sigma is not None:
-        rel2 = cs.row_sigma ** 2
+        rel2 = cs.row_sigma**2
     else:
         amp = np.abs(vset.vis)
         with np.errstate(divide="ignore", invalid="ignore"):
-            rel2 = effective_sigma(vset.sigma, amp, cs.systematic) ** 2 / amp ** 2
+            rel2 = effective_sigma(vset.sigma, amp, cs.systematic) ** 2 / amp**2
     bounds = np.flatnonzero(np.diff(cs.snapshot)) + 1
     groups = np.split(np.arange(cs.n), bounds)
     covs = []
@@ -53,8 +60,7 @@ def whitening(vset, cs):
         rows = cs.rows[idx]
         uniq, inv = np.unique(rows, return_inverse=True)
         a = np.zeros((len(idx), len(uniq)))
-        np.add.at(a, (np.repeat(np.arange(len(idx)), rows.shape[1]), inv.ravel()),
-                  cs.signs[idx].ravel())
+        np.add.at(a, (np.repeat(np.arange(len(idx)), rows.shape[1]), inv.ravel()), cs.signs[idx].ravel())
         covs.append((a * rel2[uniq]) @ a.T)
     blocks = [None] * len(groups)
     logdet = 0.0

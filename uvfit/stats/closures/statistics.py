@@ -3,7 +3,7 @@
 Closure phases and log closure amplitudes are unchanged by station-based complex gains
 (Thompson, Moran & Swenson 2017, ch. 10), so a model fitted to them alone does not depend on the
 phase or amplitude calibration of the stations. Construction, errors and the choice of a
-non-redundant set: :mod:`uvfit.stats.closures.build`; the covariance: 
+non-redundant set: :mod:`uvfit.stats.closures.build`; the covariance:
 :mod:`uvfit.stats.closures.covariance` ("snapshot" by default for the non-redundant set,
 "diagonal" for the full set).
 
@@ -19,6 +19,7 @@ Each closure statistic's predict is index arithmetic on the model visibilities a
 V = model.visibilities(u[used], v[used]); psi = sum_k s_k arg V[k]; log CA = sum_k t_k log|V[k]|;
 the Jacobian uses d arg V = Im(dV / V) and d log|V| = Re(dV / V).
 """
+
 import numpy as np
 
 from ..base import (
@@ -39,9 +40,14 @@ def position_degeneracies(model, why):
     for local in ("east", "north"):
         name = common_shift(model, local)
         if name:
-            out.append((name, f"{why} are blind to the absolute position of the source (a shift of "
-                              f"the whole model cancels in them); {name} is fixed and the other "
-                              f"positions are measured relative to it"))
+            out.append(
+                (
+                    name,
+                    f"{why} are blind to the absolute position of the source (a shift of "
+                    f"the whole model cancels in them); {name} is fixed and the other "
+                    f"positions are measured relative to it",
+                )
+            )
     return out
 
 
@@ -51,9 +57,14 @@ def flux_degeneracies(model, why):
     name = common_shift(model, "flux")
     if not name:
         return []
-    return [(name, f"{why} constrain flux ratios but not the total flux (scaling every flux by "
-                   f"one factor leaves them unchanged); {name} is fixed at its starting value, "
-                   f"which sets the flux scale, and the other fluxes are measured relative to it")]
+    return [
+        (
+            name,
+            f"{why} constrain flux ratios but not the total flux (scaling every flux by "
+            f"one factor leaves them unchanged); {name} is fixed at its starting value, "
+            f"which sets the flux scale, and the other fluxes are measured relative to it",
+        )
+    ]
 
 
 class _ClosurePart(Statistic):
@@ -70,25 +81,54 @@ class _ClosurePart(Statistic):
     kind = ""
     why = ""
 
-    def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                 covariance=None, closures=None, amplitude_reference="neighbours", **options):
+    def __init__(
+        self,
+        vset,
+        model,
+        systematic=0.0,
+        snr_cut=DEFAULT_SNR_CUT,
+        full=False,
+        covariance=None,
+        closures=None,
+        amplitude_reference="neighbours",
+        **options,
+    ):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
         covariance = check_covariance(covariance, full)
-        super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
-                         covariance=covariance, amplitude_reference=amplitude_reference, **options)
-        cs = closures if closures is not None else build_closures(
-            vset, snr_cut=snr_cut, systematic=systematic, full=full, kinds=(self.kind,),
-            amplitude_reference=amplitude_reference)[self.kind]
+        super().__init__(
+            vset,
+            model,
+            systematic=systematic,
+            snr_cut=snr_cut,
+            full=bool(full),
+            covariance=covariance,
+            amplitude_reference=amplitude_reference,
+            **options,
+        )
+        cs = (
+            closures
+            if closures is not None
+            else build_closures(
+                vset,
+                snr_cut=snr_cut,
+                systematic=systematic,
+                full=full,
+                kinds=(self.kind,),
+                amplitude_reference=amplitude_reference,
+            )[self.kind]
+        )
         if cs.n == 0:
             raise no_closure_error(vset, self.kind, snr_cut)
         self.closures = cs
         self.snr_cut = snr_cut
         self.full = bool(full)
         self.covariance = covariance
-        self.covariance_note = (COVARIANCE_NOTE if covariance == "diagonal" else
-                                "full covariance within each snapshot (closures sharing a baseline "
-                                "correlated); snapshots independent")
+        self.covariance_note = (
+            COVARIANCE_NOTE
+            if covariance == "diagonal"
+            else "full covariance within each snapshot (closures sharing a baseline correlated); snapshots independent"
+        )
         self.data = cs.value.copy()
         self.sigma = cs.sigma.copy()
         #: rows of ``vset`` that enter each datum (n_data, 3 or 4), and their stations
@@ -182,8 +222,7 @@ class LogClosureAmplitudeStatistic(_ClosurePart):
         with np.errstate(divide="ignore", invalid="ignore"):
             dla = (jac / vis[:, None]).real
             la = np.log(np.abs(vis))
-        return (np.sum(self._signs * la[self._local], axis=1),
-                np.einsum("nk,nkp->np", self._signs, dla[self._local]))
+        return (np.sum(self._signs * la[self._local], axis=1), np.einsum("nk,nkp->np", self._signs, dla[self._local]))
 
 
 def _pad(a, width=4):
@@ -191,7 +230,7 @@ def _pad(a, width=4):
     if a.ndim == 1:
         a = a[:, None]
     out = np.full((a.shape[0], width), -1, dtype=int)
-    out[:, :a.shape[1]] = a
+    out[:, : a.shape[1]] = a
     return out
 
 
@@ -206,28 +245,66 @@ class ClosureStatistic(JoinedStatistic):
 
     mode = "closure"
 
-    def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                 covariance=None, amplitude_reference="neighbours", **options):
+    def __init__(
+        self,
+        vset,
+        model,
+        systematic=0.0,
+        snr_cut=DEFAULT_SNR_CUT,
+        full=False,
+        covariance=None,
+        amplitude_reference="neighbours",
+        **options,
+    ):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
         covariance = check_covariance(covariance, full)
-        super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
-                         covariance=covariance, amplitude_reference=amplitude_reference, **options)
-        cs = build_closures(vset, snr_cut=snr_cut, systematic=systematic, full=full,
-                            amplitude_reference=amplitude_reference)
+        super().__init__(
+            vset,
+            model,
+            systematic=systematic,
+            snr_cut=snr_cut,
+            full=bool(full),
+            covariance=covariance,
+            amplitude_reference=amplitude_reference,
+            **options,
+        )
+        cs = build_closures(
+            vset, snr_cut=snr_cut, systematic=systematic, full=full, amplitude_reference=amplitude_reference
+        )
         if cs["phase"].n == 0:
             raise no_closure_error(vset, "phase", snr_cut)
-        members = [ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, covariance,
-                                         closures=cs["phase"],
-                                         amplitude_reference=amplitude_reference)]
+        members = [
+            ClosurePhaseStatistic(
+                vset,
+                model,
+                systematic,
+                snr_cut,
+                full,
+                covariance,
+                closures=cs["phase"],
+                amplitude_reference=amplitude_reference,
+            )
+        ]
         self.notices = []
         if cs["amplitude"].n:
-            members.append(LogClosureAmplitudeStatistic(vset, model, systematic, snr_cut, full,
-                                                        covariance, closures=cs["amplitude"],
-                                                        amplitude_reference=amplitude_reference))
+            members.append(
+                LogClosureAmplitudeStatistic(
+                    vset,
+                    model,
+                    systematic,
+                    snr_cut,
+                    full,
+                    covariance,
+                    closures=cs["amplitude"],
+                    amplitude_reference=amplitude_reference,
+                )
+            )
         else:
-            self.notices.append("no closure amplitudes can be formed (fewer than four stations with "
-                                "enough SNR at every time): closure phases only")
+            self.notices.append(
+                "no closure amplitudes can be formed (fewer than four stations with "
+                "enough SNR at every time): closure phases only"
+            )
         self._join(members)
         self.snr_cut = snr_cut
         self.full = bool(full)
@@ -254,15 +331,33 @@ class HybridStatistic(JoinedStatistic):
 
     mode = "hybrid"
 
-    def __init__(self, vset, model, systematic=0.0, snr_cut=DEFAULT_SNR_CUT, full=False,
-                 covariance=None, amplitude_reference="neighbours", **options):
+    def __init__(
+        self,
+        vset,
+        model,
+        systematic=0.0,
+        snr_cut=DEFAULT_SNR_CUT,
+        full=False,
+        covariance=None,
+        amplitude_reference="neighbours",
+        **options,
+    ):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
-        super().__init__(vset, model, systematic=systematic, snr_cut=snr_cut, full=bool(full),
-                         covariance=covariance, amplitude_reference=amplitude_reference, **options)
+        super().__init__(
+            vset,
+            model,
+            systematic=systematic,
+            snr_cut=snr_cut,
+            full=bool(full),
+            covariance=covariance,
+            amplitude_reference=amplitude_reference,
+            **options,
+        )
         amp = AmplitudeStatistic(vset, model, systematic=systematic, **options)
-        cp = ClosurePhaseStatistic(vset, model, systematic, snr_cut, full, covariance,
-                                   amplitude_reference=amplitude_reference)
+        cp = ClosurePhaseStatistic(
+            vset, model, systematic, snr_cut, full, covariance, amplitude_reference=amplitude_reference
+        )
         self._join([amp, cp])
         self.notices = list(getattr(amp, "notices", []) or [])
         self.snr_cut = snr_cut
@@ -277,8 +372,7 @@ class HybridStatistic(JoinedStatistic):
         self.row_index = np.vstack([_pad(amp_rows), _pad(cp.row_index)])
         amp_st = np.stack([vset.ant1[amp_rows], vset.ant2[amp_rows]], 1)
         self.station_index = np.vstack([_pad(amp_st), _pad(cp.station_index)])
-        self.kinds = np.concatenate([np.full(amp.n_data, "visibility_amplitude"),
-                                     np.full(cp.n_data, "phase")])
+        self.kinds = np.concatenate([np.full(amp.n_data, "visibility_amplitude"), np.full(cp.n_data, "phase")])
 
     def degeneracies(self):
         return position_degeneracies(self.model, "visibility amplitudes and closure phases")

@@ -1,4 +1,5 @@
 """Export of closure quantities (data, errors and model values) as an astropy Table."""
+
 import numpy as np
 
 from .check import CLOSURE_CAUTION
@@ -19,8 +20,7 @@ def closure_table(result, vset=None):
         m = models.get(kind)
         m = np.full(c.n, np.nan) if m is None else np.asarray(m) * scale
         t = Table()
-        t["kind"] = np.full(c.n, "closure_phase" if kind == "phase" else "log_closure_amplitude",
-                            dtype="U21")
+        t["kind"] = np.full(c.n, "closure_phase" if kind == "phase" else "log_closure_amplitude", dtype="U21")
         t["time"] = c.time * un.day
         t["time"].description = "MJD (UTC)"
         t["frequency"] = c.frequency * un.Hz
@@ -36,7 +36,8 @@ def closure_table(result, vset=None):
     out.meta["snr_cut"] = result["snr_cut"]
     out.meta["systematic"] = result["systematic"]
     out.meta["covariance"] = result["covariance"]
-    out.meta["stations_meaning"] = ("triangle A-B-C: arg V_AB + arg V_BC + arg V_CA; quadrangle "
-                                    "A-B-C-D: ln(|V_AB| |V_CD| / (|V_AC| |V_BD|))")
+    out.meta["stations_meaning"] = (
+        "triangle A-B-C: arg V_AB + arg V_BC + arg V_CA; quadrangle A-B-C-D: ln(|V_AB| |V_CD| / (|V_AC| |V_BD|))"
+    )
     out.meta["caution"] = CLOSURE_CAUTION
     return out

@@ -123,6 +123,8 @@ def fit(
     selection: Optional[dict] = None,
     progress: Progress = None,
     data_path: Optional[str] = None,
+    profile: Optional[str] = None,
+    jackknife: Optional[str] = None,
 ) -> FitReport:
     """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
 
@@ -157,6 +159,10 @@ def fit(
         Called with 1 after each start.
     data_path : str, optional
         The data file recorded in the result (default: ``data`` when it is a path).
+    profile : str, optional
+        A free parameter whose profile likelihood is added (key ``profile``; see :func:`profile`).
+    jackknife : {"station", "scan", "channel"}, optional
+        Add leave-one-group-out refits (key ``jackknife``; see :func:`jackknife`).
 
     Returns
     -------
@@ -211,6 +217,10 @@ def fit(
             "field": vset.meta["ms_field"],
             "spw": list(vset.meta["ms_spws_read"]),
         }
+    from .infer.fluxscale import annotate as annotate_flux_scale
+
+    annotate_flux_scale(out, result)
+    _fit_extras(out, result, profile, jackknife, seed, redshift)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -274,6 +284,7 @@ def sample(
     selection: Optional[dict] = None,
     progress: Progress = None,
     data_path: Optional[str] = None,
+    rescale_errors: bool = False,
 ) -> SampleReport:
     """Posterior of the model's free parameters by ensemble MCMC (emcee), from the best fit.
 
@@ -305,6 +316,9 @@ def sample(
         Called with the number of steps done so far.
     data_path : str, optional
         The data file recorded (default: ``data`` when it is a path).
+    rescale_errors : bool
+        Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first (recorded as
+        ``error_scale``).
 
     Returns
     -------
@@ -348,6 +362,7 @@ def sample(
         starts=starts,
         redshift=redshift,
         data_path=data_path,
+        **({"rescale_errors": True} if rescale_errors else {}),
     )
     out = post.to_dict()
     out["selection"] = _given(selection)
@@ -968,6 +983,169 @@ def forecast(
     return ForecastReport(record=out)
 
 
+# --------------------------------------------------------------------------- profile, jackknife
+
+
+def _fit_extras(
+    out: dict, result: Any, profile: Optional[str], jackknife: Optional[str], seed: int, redshift: float
+) -> None:
+    """Add ``profile`` ({name: profile dict}) and ``jackknife`` to a fit's record, with one
+    notice each."""
+    if profile:
+        from .infer.profile import profile as run_profile
+        from .infer.profile import profile_note
+
+        prof = run_profile(result.statistic, profile, seed=seed, best=result, starts=3)
+        out["profile"] = {profile: prof}
+        out["notices"].append(profile_note(prof))
+    if jackknife:
+        from .infer.jackknife import GROUPINGS
+        from .infer.jackknife import jackknife as run_jackknife
+
+        if jackknife not in GROUPINGS:
+            raise UvfitError(f"jackknife must be one of {', '.join(GROUPINGS)} (got {jackknife!r})")
+        jk = run_jackknife(result.statistic, result, by=jackknife, seed=seed, redshift=redshift)
+        out["jackknife"] = jk
+        out["notices"].extend(f"jackknife by {jackknife}: {line}" for line in jk["summary"])
+
+
+def _fit_for(data, model, mode, systematic, starts, seed, selection, options):
+    from .infer.lsq import fit as lsq_fit
+    from .stats.modes import make_statistic
+
+    sky = load_model_or_path(model)
+    vset, notes = load_data(data, selection)
+    stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **(options or {}))
+    return stat, lsq_fit(stat, starts=starts, seed=seed), notes
+
+
+@dataclass
+class ProfileReport:
+    """The result of :func:`profile`: the profile's JSON (``record``)."""
+
+    record: dict
+    notes: list = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        """What ``uvfit profile --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The lines ``uvfit profile`` prints."""
+        from .infer.profile import profile_note
+
+        r = self.record
+        rows = [f"{'value':>14} {'delta chi2':>12}"]
+        rows += [f"{g:>14.6g} {c - r['chi2_min']:>12.4g}" for g, c in zip(r["grid"], r["chi2"])]
+        return "\n".join(rows + ["", profile_note(r)])
+
+
+def profile(
+    data: Data,
+    model: Model,
+    parameter: str,
+    value_range: Optional[Sequence[float]] = None,
+    points: int = 21,
+    mode: str = "complex",
+    systematic: float = 0.0,
+    starts: int = 3,
+    seed: int = 0,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+    **options,
+) -> ProfileReport:
+    """Profile likelihood of ``parameter`` (``component.parameter``): chi2 minimised over every
+    other free parameter at ``points`` values in ``value_range`` (default: best fit +/- 5 formal
+    errors inside the bounds); intervals at delta chi2 = 1 and 3.84 (Wilks 1938; Venzon &
+    Moolgavkar 1988). ``starts``: starts of the fit and per grid point besides the warm start.
+    See :func:`uvfit.infer.profile.profile` for the keys of ``to_dict()``.
+    """
+    from .infer.profile import profile as run_profile
+
+    _check_at_least("points", points, 3)
+    _check_at_least("starts", starts, 1)
+    stat, best, notes = _fit_for(data, model, mode, systematic, starts, seed, selection, options)
+    out = run_profile(
+        stat, parameter, value_range=value_range, points=points, starts=starts, seed=seed, best=best, progress=progress
+    )
+    out.update(
+        {
+            "mode": mode,
+            "systematic": float(systematic),
+            "selection": _given(selection),
+            "data": os.fspath(data) if _is_path(data) else data_path,
+        }
+    )
+    return ProfileReport(record=out, notes=notes)
+
+
+@dataclass
+class JackknifeReport:
+    """The result of :func:`jackknife`: its JSON (``record``)."""
+
+    record: dict
+    notes: list = field(default_factory=list)
+
+    def to_dict(self) -> dict:
+        """What ``uvfit jackknife --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The table ``uvfit jackknife`` prints."""
+        r = self.record
+        rows = [
+            f"leave-one-{r['by']}-out: {r['n_fits']} of {r['n_groups']} refits ({r['groups_from']})",
+            f"{'quantity':<36} {'value':>12} {'formal':>10} {'jackknife':>10} {'ratio':>7}",
+        ]
+        for key, e in {**r["parameters"], **r["derived"]}.items():
+            rows.append(
+                f"{key:<36} {e['value']:>12.6g} {e['formal_error']:>10.3g} "
+                f"{e['jackknife_error']:>10.3g} {e['ratio']:>7.3g}"
+            )
+        rows.append("")
+        rows += r["summary"]
+        for g in r["groups"]:
+            if "error" in g:
+                rows.append(f"without {g['left_out']}: no fit ({g['error']})")
+        return "\n".join(rows)
+
+
+def jackknife(
+    data: Data,
+    model: Model,
+    by: str = "station",
+    mode: str = "complex",
+    systematic: float = 0.0,
+    starts: int = 1,
+    seed: int = 0,
+    redshift: float = 0.0,
+    selection: Optional[dict] = None,
+    progress: Progress = None,
+    data_path: Optional[str] = None,
+    **options,
+) -> JackknifeReport:
+    """Refit with each station, scan or channel (``by``) left out; the jackknife error of every
+    parameter and derived quantity beside the formal one (Efron & Tibshirani 1993, ch. 11). See
+    :func:`uvfit.infer.jackknife.jackknife` for the keys of ``to_dict()``."""
+    from .infer.jackknife import GROUPINGS
+    from .infer.jackknife import jackknife as run_jackknife
+
+    if by not in GROUPINGS:
+        raise UvfitError(f"by must be one of {', '.join(GROUPINGS)} (got {by!r})")
+    stat, best, notes = _fit_for(data, model, mode, systematic, starts, seed, selection, options)
+    out = run_jackknife(stat, best, by=by, redshift=redshift, seed=seed, starts=starts, progress=progress)
+    out.update(
+        {
+            "mode": mode,
+            "systematic": float(systematic),
+            "selection": _given(selection),
+            "data": os.fspath(data) if _is_path(data) else data_path,
+        }
+    )
+    return JackknifeReport(record=out, notes=notes)
+
+
 __all__ = [
     "fit",
     "sample",
@@ -987,4 +1165,8 @@ __all__ = [
     "InfoReport",
     "SimulationReport",
     "ForecastReport",
+    "profile",
+    "jackknife",
+    "ProfileReport",
+    "JackknifeReport",
 ]

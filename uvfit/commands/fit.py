@@ -73,6 +73,19 @@ from ._common import (
     "--save-model", type=click.Path(dir_okay=False), default=None, help="Write the best-fit model (TOML) here."
 )
 @click.option(
+    "--profile",
+    "profile_name",
+    default=None,
+    metavar="NAME",
+    help="Add the profile-likelihood interval of this free parameter (component.parameter).",
+)
+@click.option(
+    "--jackknife",
+    type=click.Choice(["station", "scan", "channel"]),
+    default=None,
+    help="Add refits with each station, scan or channel left out, and their jackknife errors.",
+)
+@click.option(
     "--write-model-column",
     is_flag=True,
     help="Write the best-fit model visibilities into the Measurement Set's MODEL_DATA column "
@@ -94,6 +107,8 @@ def command(
     no_resolved_test,
     json_out,
     save_model,
+    profile_name,
+    jackknife,
     seed,
     force,
     write_model_column=False,
@@ -125,10 +140,13 @@ def command(
         selection=selection,
         resolved_test=not no_resolved_test,
         max_evaluations=max_evaluations,
+        profile=profile_name,
+        jackknife=jackknife,
     )
     total = starts + (1 if global_search else 0)
     with as_options(
         max_evaluations="--max-evaluations",
+        jackknife="--jackknife",
         starts="--starts",
         global_search="--global-search",
         rescale_errors="--rescale-errors",

@@ -91,6 +91,9 @@ from ._common import (
     show_default=True,
     help="Redshift for the rest-frame brightness temperatures.",
 )
+@click.option(
+    "--rescale-errors", is_flag=True, help="Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first."
+)
 @force_option
 @selection_options
 def command(
@@ -109,6 +112,7 @@ def command(
     order_by,
     starts,
     redshift,
+    rescale_errors,
     force,
     **kwargs,
 ):
@@ -162,6 +166,7 @@ def command(
             starts=starts,
             redshift=redshift,
             selection=selection,
+            rescale_errors=rescale_errors,
         )
     echo_notes(report.notes)
     echo_notes(report.posterior.notes, prefix="note: ")

@@ -19,7 +19,7 @@ from ..errors import FitError, UvfitError
 from ..labels import COMPARE_CAUTION
 from ..stats.base import effective_sigma
 from ..stats.modes import make_statistic
-from .lsq import fit
+from .lsq import aic, bic, fit
 
 
 def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False):
@@ -187,19 +187,25 @@ def compare(
     n_free = [r.n_free for r in results]
     simple = int(np.argmin(n_free)) if reference is None else names.index(reference)
     s_res = results[simple]
+    f2 = 1.0
+    if rescale_errors:
+        rich = results[int(np.argmax(n_free))]
+        if rich.dof > 0 and rich.chi2 > 0:
+            f2 = float(rich.chi2 / rich.dof)
     rows = []
     for name, r in zip(names, results):
+        c = r.chi2 / f2
         rows.append(
             {
                 "name": name,
-                "chi2": r.chi2,
+                "chi2": c,
                 "dof": r.dof,
                 "n_free": r.n_free,
                 "n_data": r.n_data,
-                "reduced_chi2": r.reduced_chi2,
-                "aic": r.aic,
-                "bic": r.bic,
-                "likelihood_ratio": float(s_res.chi2 - r.chi2),
+                "reduced_chi2": c / r.dof if r.dof > 0 else float("nan"),
+                "aic": aic(c, r.n_free),
+                "bic": bic(c, r.n_free, r.n_data),
+                "likelihood_ratio": float((s_res.chi2 - r.chi2) / f2),
                 "false_alarm_probability": None,
                 "notices": list(r.notices),
             }

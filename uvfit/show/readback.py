@@ -215,16 +215,27 @@ class FitView:
     def phase_note(self):
         """A sentence for the radial figure when the fit did not use the visibility phases."""
         if self.mode in ("closure", "closure_phase", "closure_amplitude", "amplitude", "hybrid"):
-            return (
+            note = (
                 f"Fitted in {self.mode} mode: the visibility phases were not fitted (absolute "
                 "position free, station phases uncalibrated), so phase residuals are expected."
             )
+            flux = self.flux_note
+            return note + (" " + flux if flux else "")
         return None
+
+    @property
+    def flux_note(self):
+        """A sentence when the fit's mode did not measure the flux (figures use the estimate)."""
+        from ..infer.fluxscale import figure_note
+
+        return figure_note(self.fit)
 
 
 def fit_view(vset, fit, selection=None):
     """Build a :class:`FitView` from the selected data and a fit output dict."""
-    model = model_from_fit(fit)
+    from ..infer.fluxscale import scaled_model
+
+    model = scaled_model(model_from_fit(fit), fit)
     model_vis = np.asarray(model.visibilities(vset.u, vset.v, vset.frequency), dtype=complex)
     return FitView(vset=vset, model=model, model_vis=model_vis, fit=fit, selection=selection or {})
 

@@ -90,6 +90,8 @@ def sky_figure(view, npix=256, title=None):
         if masked.max() > 0:
             vmax = float(masked.max()) / step**2
     note = "Compact components (+) saturate the colour scale." if vmax is not None else None
+    if view.flux_note:
+        note = view.flux_note if note is None else f"{note} {view.flux_note}"
     fig, numbers = plots.sky_plot(
         image,
         extent,

@@ -49,6 +49,8 @@ def fit_text(out):
     echo(f"{'parameter':<28} {'value ± error':<30} {'unit':<6} status")
     for name, p in out["parameters"].items():
         status = "free" if p["free"] else (f"tied to {p['tie']}" if p.get("tie") else "fixed")
+        if p.get("measured") is False:
+            status += f", not measured (x flux scale: {p['from_flux_scale']:.4g})"
         echo(
             f"{name:<28} {_fmt(p['value'], p['error'] if p['free'] or p.get('tie') else None):<30} "
             f"{p['unit']:<6} {status}"
@@ -68,6 +70,8 @@ def fit_text(out):
                 text += f"  (< {d['upper_limit']:.3g})"
             if "lower_limit" in d:
                 text += f"  (> {d['lower_limit']:.3g})"
+            if d.get("measured") is False:
+                text += "  not measured"
             echo(f"{key:<36} {text:<30} {d['unit']}")
     echo("")
     echo(

@@ -303,6 +303,7 @@ def sample(
     derived=True,
     fit_progress=None,
     ball_scale=0.3,
+    rescale_errors=False,
     **options,
 ):
     """Sample the posterior of ``model`` (not changed) given ``vset`` in ``mode``; a :class:`Posterior`.
@@ -311,7 +312,8 @@ def sample(
     by its covariance; parameters the mode cannot constrain are fixed as the fitter fixes them. A
     resumed chain (``resume`` with ``chain_path``) skips the fit and continues where it stopped.
     Other arguments: see :func:`run_chain` and :func:`summarize_chain`. ``options`` go to the
-    statistic.
+    statistic. ``rescale_errors``: every sigma times sqrt(chi2/dof) of the least-squares fit (a
+    reduced chi2 of 1), recorded as ``error_scale`` (a resumed chain reuses the stored factor).
     """
     from ...stats.modes import make_statistic
     from ..lsq import fit, fix_degeneracies
@@ -342,6 +344,7 @@ def sample(
         ):
             # (other free parameters: resume_backend names them)
             check_digests(chain_path, stored, digests(vset, model))
+        error_scale = float(stored.get("error_scale", 1.0)) if chain_path and os.path.exists(chain_path) else 1.0
     else:
         result = fit(stat, starts=starts, seed=seed, progress=fit_progress, strict=False)
         stat = result.statistic
@@ -353,6 +356,15 @@ def sample(
             "chi2": float(result.chi2),
             "dof": int(result.dof),
         }
+        error_scale = 1.0
+        if rescale_errors and result.dof > 0 and result.chi2 > 0:
+            error_scale = float(np.sqrt(result.chi2 / result.dof))
+            cov = cov * error_scale**2
+    if rescale_errors and error_scale != 1.0:
+        stat = stat.scaled(error_scale)
+        notices = list(notices) + [f"every sigma multiplied by sqrt(chi2/dof) = {error_scale:.4g} (rescale_errors)"]
+    if rescale_errors:
+        extra["error_scale"] = float(error_scale)
     work = stat.model
     if stat.n_data <= len(work.free_names):
         raise FitError(
@@ -372,6 +384,8 @@ def sample(
         "data": None if data_path is None else str(data_path),
         "digest": digests(vset, model),
     }
+    if rescale_errors:
+        meta["error_scale"] = float(error_scale)
     chain = run_chain(
         log_prob,
         start,

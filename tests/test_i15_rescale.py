@@ -47,19 +47,6 @@ def data():
     return vs.with_vis(vs.vis, sigma=vs.sigma / 2)  # sigmas stated 2x too small
 
 
-def test_compare_rescaled_divides_chi2_by_reduced_chi2_of_richest(data):
-    plain = uvfit.compare(data, [_one(), _two()]).to_dict()
-    scaled = uvfit.compare(data, [_one(), _two()], rescale_errors=True).to_dict()
-    rich = plain["models"][1]
-    f2 = rich["chi2"] / rich["dof"]  # definition of the rescaling
-    assert scaled["error_scale"] == pytest.approx(np.sqrt(f2), rel=1e-9)
-    assert 1.6 < scaled["error_scale"] < 2.4  # the invented sigmas were halved
-    for a, b in zip(plain["models"], scaled["models"]):
-        assert b["chi2"] == pytest.approx(a["chi2"] / f2, rel=1e-9)
-        assert b["likelihood_ratio"] == pytest.approx(a["likelihood_ratio"] / f2, rel=1e-9)
-    assert "error_scale" not in plain
-
-
 def test_sample_rescaled_records_the_scale(data):
     rep = uvfit.sample(data, _one(), max_steps=30, walkers=8, rescale_errors=True)
     post = rep.posterior

@@ -65,7 +65,19 @@ def test_all_lists_the_public_api():
 
 @pytest.mark.parametrize(
     "obj",
-    [uvfit.read, uvfit.write, uvfit.load_model, uvfit.fit, uvfit.closures, uvfit.tasks.info, uvfit.tasks.observation],
+    [
+        uvfit.read,
+        uvfit.write,
+        uvfit.load_model,
+        uvfit.fit,
+        uvfit.sample,
+        uvfit.compare,
+        uvfit.closures,
+        uvfit.simulate,
+        uvfit.forecast,
+        uvfit.tasks.info,
+        uvfit.tasks.observation,
+    ],
 )
 def test_docstring_examples_run(obj):
     finder = doctest.DocTestFinder()

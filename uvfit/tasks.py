@@ -839,7 +839,12 @@ def simulate(
     >>> from uvfit.tasks import observation
     >>> obs = observation("9h17m12s", "+22d24m", "2027-03-01T02:00", "1h", "22.2GHz",
     ...                   integration="600s")
-    >>> rep = uvfit.simulate("examples/demo/array.toml", demo_file("two.toml"), obs, seed=1)
+    >>> from uvfit.sim.array import parse_array
+    >>> array = parse_array({"name": "three invented stations", "station": [
+    ...     {"name": "P1", "lat": 50.0, "lon": 5.0, "height": 300.0, "sefd": 700.0},
+    ...     {"name": "P2", "lat": 46.0, "lon": 12.0, "height": 500.0, "sefd": 700.0},
+    ...     {"name": "P3", "lat": 41.0, "lon": -3.0, "height": 600.0, "sefd": 700.0}]})
+    >>> rep = uvfit.simulate(array, demo_file("two.toml"), obs, seed=1)
     >>> rep.vset.n == rep.to_dict()["rows"]
     True
     """
@@ -947,7 +952,12 @@ def forecast(
     >>> from uvfit.tasks import observation
     >>> obs = observation("9h17m12s", "+22d24m", "2027-03-01T02:00", "1h", "22.2GHz",
     ...                   integration="900s")
-    >>> rep = uvfit.forecast("examples/demo/array.toml", demo_file("two.toml"),
+    >>> from uvfit.sim.array import parse_array
+    >>> array = parse_array({"name": "three invented stations", "station": [
+    ...     {"name": "P1", "lat": 50.0, "lon": 5.0, "height": 300.0, "sefd": 700.0},
+    ...     {"name": "P2", "lat": 46.0, "lon": 12.0, "height": 500.0, "sefd": 700.0},
+    ...     {"name": "P3", "lat": 41.0, "lon": -3.0, "height": 600.0, "sefd": 700.0}]})
+    >>> rep = uvfit.forecast(array, demo_file("two.toml"),
     ...                      [demo_file("one.toml")], obs, trials=1)
     >>> rep.to_dict()["trials"]
     1

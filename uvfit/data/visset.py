@@ -15,9 +15,12 @@ Conventions (see README, "Conventions"):
   the file has none (UVFITS, ECSV, simulations); carried through subsets and averaging.
 """
 
+from __future__ import annotations
+
 from dataclasses import dataclass, field, replace
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..errors import DataError
 
@@ -78,11 +81,11 @@ class VisibilitySet:
     station2: np.ndarray
     vis: np.ndarray
     sigma: np.ndarray
-    flag: np.ndarray | None = None
-    channel: np.ndarray | None = None
-    integration: np.ndarray | None = None
-    scan: np.ndarray | None = None
-    stations: StationTable | None = None
+    flag: np.ndarray = None  # type: ignore[assignment]  # None given: filled by __post_init__
+    channel: np.ndarray = None  # type: ignore[assignment]  # None given: filled by __post_init__
+    integration: np.ndarray = None  # type: ignore[assignment]  # None given: filled by __post_init__
+    scan: np.ndarray = None  # type: ignore[assignment]  # None given: filled by __post_init__
+    stations: StationTable = None  # type: ignore[assignment]  # None given: filled by __post_init__
     source: str = "unknown"
     ra_deg: float = float("nan")
     dec_deg: float = float("nan")
@@ -124,34 +127,34 @@ class VisibilitySet:
         return len(self.u)
 
     @property
-    def n(self):
+    def n(self) -> int:
         return len(self.u)
 
     @property
-    def uv_distance(self):
+    def uv_distance(self) -> np.ndarray:
         """Projected baseline length sqrt(u^2 + v^2) in wavelengths."""
         return np.hypot(self.u, self.v)
 
     @property
-    def amplitude(self):
+    def amplitude(self) -> np.ndarray:
         return np.abs(self.vis)
 
     @property
-    def phase(self):
+    def phase(self) -> np.ndarray:
         """Visibility phase in radians."""
         return np.angle(self.vis)
 
     @property
-    def snr(self):
+    def snr(self) -> np.ndarray:
         return np.abs(self.vis) / self.sigma
 
     @property
-    def frequencies(self):
+    def frequencies(self) -> np.ndarray:
         """The distinct frequencies of the rows (Hz), sorted."""
         return np.unique(self.frequency)
 
     @property
-    def station_names(self):
+    def station_names(self) -> list[str]:
         """Names of the stations that appear in the rows, in station-table order."""
         used = set(self.station1.tolist()) | set(self.station2.tolist())
         return [n for n in self.stations.names if n in used]
@@ -165,12 +168,12 @@ class VisibilitySet:
         return np.array([table[name] for name in distinct.tolist()], dtype=int)[inverse.ravel()]
 
     @property
-    def ant1(self):
+    def ant1(self) -> np.ndarray:
         """Station-table index of station1 for every row."""
         return self._station_index(self.station1)
 
     @property
-    def ant2(self):
+    def ant2(self) -> np.ndarray:
         """Station-table index of station2 for every row."""
         return self._station_index(self.station2)
 
@@ -180,13 +183,13 @@ class VisibilitySet:
         return np.char.add(np.char.add(self.station1, "-"), self.station2)
 
     # -------------------------------------------------------------- subsets
-    def subset(self, mask):
+    def subset(self, mask: ArrayLike) -> VisibilitySet:
         """A new set with the rows selected by a boolean mask or an index array."""
         mask = np.asarray(mask)
         kw = {name: getattr(self, name)[mask] for name in _ROW_FIELDS}
         return replace(self, **kw, meta=dict(self.meta))
 
-    def good(self):
+    def good(self) -> VisibilitySet:
         """The unflagged rows; raises DataError if there are none."""
         out = self.subset(~self.flag)
         if out.n == 0:
@@ -196,7 +199,7 @@ class VisibilitySet:
             )
         return out
 
-    def with_vis(self, vis, sigma=None):
+    def with_vis(self, vis: ArrayLike, sigma: ArrayLike | None = None) -> VisibilitySet:
         """A copy with new visibilities (and optionally new sigmas), same rows otherwise."""
         out = self.subset(np.arange(self.n))
         out.vis = np.asarray(vis, dtype=np.complex128).copy()
@@ -207,7 +210,7 @@ class VisibilitySet:
     def copy(self):
         return self.subset(np.arange(self.n))
 
-    def summary(self):
+    def summary(self) -> dict:
         """A dictionary of what is in the set (used by ``uvfit info``)."""
         good = self.subset(~self.flag)
         q = good.uv_distance
@@ -227,10 +230,10 @@ class VisibilitySet:
             "uv_max_lambda": float(q.max()) if good.n else None,
             "median_snr": float(np.median(good.snr)) if good.n else None,
         }
-        # Added for `uvfit info`: derived numbers a reader of the data wants at a glance.
+        # derived numbers a reader of the data wants at a glance
         out["n_rows"] = int(self.n)
         out["channels"] = sorted(int(c) for c in np.unique(good.channel))
-        out["time_span_hours"] = (out["time_end_mjd"] - out["time_start_mjd"]) * 24.0 if good.n else None
+        out["time_span_hours"] = float(good.time.max() - good.time.min()) * 24.0 if good.n else None
         if good.n:
             from astropy.time import Time
 

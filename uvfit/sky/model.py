@@ -6,11 +6,14 @@ north through east. Parameter values are in the model's units (Jy, ``angular_uni
 shapes see radians. See DEVELOPERS.md, "SkyModel", for the contract.
 """
 
+from __future__ import annotations
+
 import copy as _copy
 import math
 
 import astropy.units as un
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..errors import ModelError
 from . import engine as _engine
@@ -50,7 +53,7 @@ class SkyModel:
     # ``save``) are provided by ``uvfit.sky.modelfile``, the only module that knows files; the
     # package ``uvfit.sky`` attaches them to this class, so that this module does not import it.
 
-    def check(self):
+    def check(self) -> None:
         """Validate names, ties (targets exist, no cycles, same kind). Raises ModelError."""
         names = [c.name for c in self.components]
         dup = sorted({n for n in names if names.count(n) > 1})
@@ -89,24 +92,24 @@ class SkyModel:
 
     # -- parameters ---------------------------------------------------------------------------
     @property
-    def free_names(self):
+    def free_names(self) -> list[str]:
         return self.parameters.free_names
 
     @property
-    def n_free(self):
+    def n_free(self) -> int:
         return len(self.free_names)
 
-    def root(self, full):
+    def root(self, full: str) -> str:
         """The parameter that ``full`` finally equals through its ties (itself when untied)."""
         p = self.parameters[full]
         while p.tie is not None:
             p = self.parameters[p.tie]
         return p.name
 
-    def get_free(self):
+    def get_free(self) -> np.ndarray:
         return np.array([self.parameters[n].value for n in self.free_names], dtype=float)
 
-    def set_free(self, theta):
+    def set_free(self, theta: ArrayLike) -> None:
         names = self.free_names
         theta = np.asarray(theta, dtype=float).ravel()
         if theta.size != len(names):
@@ -117,12 +120,12 @@ class SkyModel:
             if p.tie is not None:
                 p.value = self.parameters[self.root(p.name)].value
 
-    def free_bounds(self):
+    def free_bounds(self) -> tuple[np.ndarray, np.ndarray]:
         """(lo, hi) arrays over the free parameters, -inf / +inf where unbounded."""
         ps = [self.parameters[n] for n in self.free_names]
         return (np.array([p.min for p in ps], dtype=float), np.array([p.max for p in ps], dtype=float))
 
-    def values(self, theta=None):
+    def values(self, theta: ArrayLike | None = None) -> dict[str, float]:
         """{full name: value in model units} with ``theta`` (or the current free values), ties applied."""
         vals = {n: p.value for n, p in self.parameters.items()}
         if theta is not None:
@@ -142,7 +145,7 @@ class SkyModel:
         comp = self.component(name)
         return {ln: vals[f"{comp.name}.{ln}"] for ln in comp.parameter_names()}
 
-    def log_prior(self, theta):
+    def log_prior(self, theta: ArrayLike) -> float:
         """Sum of the free parameters' log priors: -inf outside [min, max]; the given prior, or a
         flat one (normalised where both bounds are finite). Tied parameters must lie within their
         own bounds too."""
@@ -163,7 +166,7 @@ class SkyModel:
                     return -math.inf
         return float(total)
 
-    def sample_prior(self, n, seed):
+    def sample_prior(self, n: int, seed: int) -> np.ndarray:
         """(n, n_free) draws from the priors (a flat prior needs finite bounds). Seeded."""
         rng = np.random.default_rng(seed)
         out = np.empty((int(n), self.n_free))
@@ -187,7 +190,7 @@ class SkyModel:
             out[:, j] = np.clip(x, p.min, p.max)
         return out
 
-    def fix(self, name, reason=None):
+    def fix(self, name: str, reason: str | None = None) -> None:
         """Fix a parameter at its current value (a tied one: at the value of its tie, untied)."""
         if name not in self.parameters:
             raise ModelError(f"no parameter {name}", "known: " + ", ".join(self.parameters))
@@ -199,7 +202,7 @@ class SkyModel:
         if reason:
             p.note = str(reason)
 
-    def release(self, name):
+    def release(self, name: str) -> None:
         """Make a fixed parameter free again."""
         if name not in self.parameters:
             raise ModelError(f"no parameter {name}", "known: " + ", ".join(self.parameters))
@@ -212,7 +215,7 @@ class SkyModel:
                 return c
         raise ModelError(f"no component named '{name}'", "known: " + ", ".join(c.name for c in self.components))
 
-    def copy(self):
+    def copy(self) -> SkyModel:
         return _copy.deepcopy(self)
 
     # -- prediction ---------------------------------------------------------------------------
@@ -221,16 +224,22 @@ class SkyModel:
         kernel, or the numpy reference path; both give the same numbers)."""
         return _engine.evaluate(self, u, v, frequency, theta, gradient)
 
-    def visibilities(self, u, v, frequency=None, theta=None):
+    def visibilities(
+        self, u: ArrayLike, v: ArrayLike, frequency: ArrayLike | None = None, theta: ArrayLike | None = None
+    ) -> np.ndarray:
         """Model visibilities (complex Jy) at (u, v) in wavelengths; ``frequency`` (Hz, scalar or
         per row) matters only for components with a spectral index (None: reference frequency)."""
         return self._evaluate(u, v, frequency, theta, gradient=False)[0]
 
-    def jacobian(self, u, v, frequency=None, theta=None):
+    def jacobian(
+        self, u: ArrayLike, v: ArrayLike, frequency: ArrayLike | None = None, theta: ArrayLike | None = None
+    ) -> np.ndarray:
         """d V / d theta, complex, shape (n, n_free), per model unit of each free parameter."""
         return self._evaluate(u, v, frequency, theta, gradient=True)[1]
 
-    def visibilities_and_jacobian(self, u, v, frequency=None, theta=None):
+    def visibilities_and_jacobian(
+        self, u: ArrayLike, v: ArrayLike, frequency: ArrayLike | None = None, theta: ArrayLike | None = None
+    ) -> tuple[np.ndarray, np.ndarray]:
         """(visibilities, jacobian) computed together."""
         return self._evaluate(u, v, frequency, theta, gradient=True)
 
@@ -240,7 +249,7 @@ class SkyModel:
         engine forms no array of model visibilities for it (used by likelihoods in samplers)."""
         return _engine.misfit(self, u, v, data, weight, frequency=frequency, theta=theta)
 
-    def total_flux(self, frequency=None, theta=None):
+    def total_flux(self, frequency: ArrayLike | None = None, theta: ArrayLike | None = None) -> float:
         """Sum of the component fluxes (Jy): the visibility at zero spacing."""
         vals = self.values(theta)
         return float(
@@ -296,15 +305,15 @@ class SkyModel:
         comp = self.component(name)
         return [f"{comp.name}.{ln}" for ln in comp.parameter_names()]
 
-    def position_names(self):
+    def position_names(self) -> dict[str, tuple[str, str]]:
         """{component name: (full name of its east, of its north)}, in component order."""
         return {c.name: (f"{c.name}.east", f"{c.name}.north") for c in self.components}
 
-    def flux_names(self):
+    def flux_names(self) -> dict[str, str]:
         """{component name: full name of its flux}, in component order."""
         return {c.name: f"{c.name}.flux" for c in self.components}
 
-    def size_names(self):
+    def size_names(self) -> list[str]:
         """Full names of the members' size parameters (``Shape.size_parameter``), model order."""
         out = []
         for c in self.components:
@@ -315,7 +324,7 @@ class SkyModel:
                     out.append(f"{c.name}.{mb.names[size]}")
         return out
 
-    def periods(self):
+    def periods(self) -> dict[str, float]:
         """{full name: period in degrees} of the parameters that live on a circle (``Shape.periods``)."""
         return {f"{c.name}.{ln}": period for c in self.components for ln, period in c.shape.periods().items()}
 
@@ -375,7 +384,7 @@ class SkyModel:
         return self.image(ll, mm, frequency=frequency, theta=theta), l_axis, m_axis
 
     # -- files ----------------------------------------------------------------------------------
-    def to_dict(self):
+    def to_dict(self) -> dict:
         """A plain description for JSON outputs (``uvfit.outputs.to_json`` turns infinities into null)."""
         comps = []
         for c in self.components:

@@ -248,7 +248,7 @@ def test_readme_info_example_is_the_output_of_its_command():
     res = CliRunner().invoke(cli, ["info", str(ROOT / m.group(2))])
     assert res.exit_code == 0, res.output
     assert res.stdout.strip() == m.group(3).strip()
-    assert "../shared" not in README
+    assert "/shared/" not in README  # the shared folder beside the project is not the reader's
 
 
 # ------------------------------------------------------------------ item 5: forecast counts

@@ -57,9 +57,6 @@ from ._common import (
 @click.option(
     "--json", "json_out", type=click.Path(dir_okay=False), default=None, help="Write the comparison as JSON here."
 )
-@click.option(
-    "--rescale-errors", is_flag=True, help="Multiply every sigma by sqrt(chi2/dof) of the richest model's fit first."
-)
 @seed_option
 @force_option
 @selection_options

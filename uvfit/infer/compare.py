@@ -187,14 +187,9 @@ def compare(
     n_free = [r.n_free for r in results]
     simple = int(np.argmin(n_free)) if reference is None else names.index(reference)
     s_res = results[simple]
-    f2 = 1.0
-    if rescale_errors:
-        rich = results[int(np.argmax(n_free))]
-        if rich.dof > 0 and rich.chi2 > 0:
-            f2 = float(rich.chi2 / rich.dof)
     rows = []
     for name, r in zip(names, results):
-        c = r.chi2 / f2
+        c = r.chi2
         rows.append(
             {
                 "name": name,
@@ -205,7 +200,7 @@ def compare(
                 "reduced_chi2": c / r.dof if r.dof > 0 else float("nan"),
                 "aic": aic(c, r.n_free),
                 "bic": bic(c, r.n_free, r.n_data),
-                "likelihood_ratio": float((s_res.chi2 - r.chi2) / f2),
+                "likelihood_ratio": float(s_res.chi2 - r.chi2),
                 "false_alarm_probability": None,
                 "notices": list(r.notices),
             }

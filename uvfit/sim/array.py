@@ -225,28 +225,9 @@ def parse_array(data, source="array file"):
             f"{source}: the array has {len(stations)} station(s); an interferometer needs at least two",
             "add [[station]] tables",
         )
-    _check_apart(stations, source)
     return Array(
         name=name.strip(), stations=stations, eta=eta, description=str(data.get("description", "")), source_path=source
     )
-
-
-#: two stations closer than this (m) are one place: their baseline would have no length
-MIN_SEPARATION_M = 1.0
-
-
-def _check_apart(stations, source):
-    """Refuse stations at one place (a zero-length baseline), naming them."""
-    xyz = np.array([s.xyz for s in stations], dtype=float)
-    d = np.linalg.norm(xyz[:, None, :] - xyz[None, :, :], axis=-1)
-    i, j = np.nonzero(np.triu(d < MIN_SEPARATION_M, k=1))
-    if i.size:
-        a, b = stations[int(i[0])].name, stations[int(j[0])].name
-        raise UvfitError(
-            f"{source}: stations '{a}' and '{b}' are {d[i[0], j[0]]:.2f} m apart "
-            f"(less than {MIN_SEPARATION_M:g} m): one place, no baseline",
-            "give each station its own position",
-        )
 
 
 def load_array(path):

@@ -38,6 +38,20 @@ class _Group(click.Group):
         self._load()
         return super().get_command(ctx, name)
 
+    def invoke(self, ctx):
+        try:
+            return super().invoke(ctx)
+        except UvfitError as exc:
+            command = self.get_command(ctx, ctx.invoked_subcommand) if ctx.invoked_subcommand else None
+            if command is None:
+                raise
+            from .commands._common import reword
+
+            worded = reword(exc, command)
+            if worded is exc:
+                raise
+            raise worded from None
+
 
 @click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="uvfit")

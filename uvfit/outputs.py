@@ -24,7 +24,7 @@ def check_writable(path, force=False):
     """Raise a clear error if ``path`` exists and ``force`` is false, or its folder is missing."""
     path = os.fspath(path)
     if os.path.exists(path) and not force:
-        raise UvfitError(f"output file {path} exists already", "choose another name, or pass --force to overwrite it")
+        raise UvfitError(f"output file {path} exists already", "choose another name, or pass `force` to overwrite it")
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise UvfitError(f"the folder for output file {path} does not exist", "create it first")

@@ -71,27 +71,79 @@ def pop_selection(kwargs):
     return selection
 
 
+def worded(text: str) -> str:
+    """A library text with its quoted parameter names (`` `name` ``) as the running command's options."""
+    ctx = click.get_current_context(silent=True)
+    if ctx is None or "`" not in text:
+        return text
+    return reword(UvfitError(text), ctx.command).message
+
+
 def echo_notes(notes, prefix=""):
-    """Print a task's notes (selection messages) to stderr."""
+    """Print a task's notes (selection messages) to stderr, parameter names as options."""
     for note in notes:
-        click.echo(f"{prefix}{note}", err=True)
+        click.echo(f"{prefix}{worded(note)}", err=True)
 
 
 @contextlib.contextmanager
 def as_options(**names):
-    """Re-word the library's errors for the command line: each parameter name given (a keyword)
-    becomes its option (the value), e.g. ``as_options(max_evaluations="--max-evaluations")``."""
+    """Re-word the library's errors for the command line where a parameter is named in plain words
+    (not quoted): each parameter name given (a keyword) becomes its option (the value), e.g.
+    ``as_options(max_evaluations="--max-evaluations")``. Quoted names (`` `name` ``) are reworded for
+    every command by the command group (:func:`reword`)."""
     try:
         yield
     except UvfitError as exc:
-        message, hint = exc.message, exc.hint
+        worded = reword(exc, names)
+        message, hint = worded.message, worded.hint
         for name, option in names.items():
-            pattern = re.compile(rf"(?<![\w-]){re.escape(name)}(?!\w)")
+            pattern = re.compile(rf"(?<![\w`-]){re.escape(name)}(?![\w`=])")
             message = pattern.sub(option, message)
             hint = None if hint is None else pattern.sub(option, hint)
         if message == exc.message and hint == exc.hint:
             raise
         raise type(exc)(message, hint) from None
+
+
+_PARAMETER = re.compile(r"`([a-z][a-z0-9_]*)(?:=([^`]*))?`")
+
+
+def option_names(command: click.Command) -> dict[str, str]:
+    """Each parameter name of a command and its long option, e.g. ``{"snr_cut": "--snr-cut"}``."""
+    names: dict[str, str] = {}
+    for param in command.params:
+        if isinstance(param, click.Option) and param.name:
+            longs = [opt for opt in param.opts if opt.startswith("--")]
+            for opt in longs:  # the option's own spelling too: `chain` for --chain (chain_path)
+                names.setdefault(opt[2:].replace("-", "_"), opt)
+            if longs:
+                names[param.name] = max(longs, key=len)
+    return names
+
+
+def reword(exc: UvfitError, command: "click.Command | dict[str, str]") -> UvfitError:
+    """The library names parameters as `` `name` `` or `` `name=value` `` (what a Python caller
+    passes); on the command line they read as options: ``--name`` or ``--name value`` (a flag's
+    ``=True`` is dropped). Names that are not options of ``command`` (a click command, or a mapping
+    of parameter names to options) keep their quotes."""
+    names = command if isinstance(command, dict) else option_names(command)
+
+    def swap(match):
+        name, value = match.group(1), match.group(2)
+        option = names.get(name)
+        if option is None:
+            return match.group(0)
+        if value is None or value == "True":
+            return option
+        return f"{option} {value}"
+
+    message = _PARAMETER.sub(swap, exc.message)
+    hint = None if exc.hint is None else _PARAMETER.sub(swap, exc.hint)
+    if message == exc.message and hint == exc.hint:
+        return exc
+    worded = type(exc)(message, hint)
+    worded.exit_code = exc.exit_code
+    return worded
 
 
 def force_option(func):

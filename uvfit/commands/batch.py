@@ -41,7 +41,7 @@ def command(manifest, scheduler, workers, output, force):
     from ..infer.batch import check_outputs as check_job_outputs
     from ..show.text import batch_text
 
-    with as_options(workers="--workers", scheduler="--scheduler"):
+    with as_options(workers="--workers", scheduler="--scheduler", output_dir="--output"):
         check_cluster(scheduler, workers)
     jobs = load_manifest(manifest)
     if output is None:

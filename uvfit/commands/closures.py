@@ -3,7 +3,7 @@ the data, and how well a model reproduces them (per triangle, quadrangle and sta
 
 import click
 
-from ._common import at_least_zero, check_outputs, echo_notes, force_option, pop_selection, selection_options
+from ._common import at_least_zero, check_outputs, echo_notes, force_option, pop_selection, selection_options, worded
 
 
 @click.command("closures")
@@ -76,7 +76,7 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
         data, model_path, systematic=systematic, snr_cut=snr_cut, full=full, covariance=covariance, selection=selection
     )
     echo_notes(report.notes)
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_out:
         write_json(json_out, report.to_dict(), force=force)
         click.echo(f"wrote {json_out}", err=True)

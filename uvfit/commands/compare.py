@@ -13,6 +13,7 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    worded,
 )
 
 
@@ -107,7 +108,7 @@ def command(
         else:
             report = tasks.compare(data, list(models), **options)
     echo_notes(report.notes)
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_out:
         write_json(json_out, report.to_dict(), force=force)
         click.echo(f"wrote {json_out}", err=True)

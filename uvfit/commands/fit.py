@@ -13,6 +13,7 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    worded,
 )
 
 
@@ -158,7 +159,7 @@ def command(
             report = tasks.fit(data, model, **options)
     echo_notes(report.notes)
     out = report.to_dict()
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_out:
         write_json(json_out, out, force=force)
         click.echo(f"wrote {json_out}", err=True)

@@ -3,7 +3,7 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, check_outputs, force_option, progressbar, seed_option
+from ._common import as_options, check_outputs, force_option, progressbar, seed_option, worded
 from ._observation import observation_options, pop_observation
 
 
@@ -63,6 +63,6 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
         )
     if report.notice:
         click.echo(report.notice, err=True)
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_path:
         write_json(json_path, report.to_dict(), force=force)

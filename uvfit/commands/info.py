@@ -2,7 +2,7 @@
 
 import click
 
-from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options
+from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options, worded
 
 
 @click.command("info")
@@ -32,7 +32,7 @@ def command(data, json_out, force, **kwargs):
     if json_out == "-":
         click.echo(to_json(s), nl=False)
         return
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_out:
         write_json(json_out, s, force=force)
         click.echo(f"wrote {json_out}", err=True)

@@ -3,7 +3,7 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, seed_option, selection_options
+from ._common import as_options, echo_notes, force_option, pop_selection, seed_option, selection_options, worded
 
 
 @click.command("jackknife")
@@ -71,7 +71,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
             selection=selection,
         )
     echo_notes(report.notes)
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_out:
         write_json(json_out, report.to_dict(), force=force)
         click.echo(f"wrote {json_out}", err=True)

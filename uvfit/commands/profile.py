@@ -3,7 +3,16 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
+from ._common import (
+    as_options,
+    echo_notes,
+    force_option,
+    pop_selection,
+    progressbar,
+    seed_option,
+    selection_options,
+    worded,
+)
 
 
 @click.command("profile")
@@ -90,7 +99,7 @@ def command(
                 progress=bar.update,
             )
     echo_notes(report.notes)
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_out:
         write_json(json_out, report.to_dict(), force=force)
         click.echo(f"wrote {json_out}", err=True)

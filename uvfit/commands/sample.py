@@ -13,6 +13,7 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    worded,
 )
 
 
@@ -170,7 +171,7 @@ def command(
         )
     echo_notes(report.notes)
     echo_notes(report.posterior.notes, prefix="note: ")
-    click.echo(report.text())
+    click.echo(worded(report.text()))
     if json_path is not None:
         write_json(json_path, report.to_dict(), force=force)
         click.echo(f"wrote {json_path}", err=True)

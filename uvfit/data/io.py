@@ -1,8 +1,8 @@
 """Choosing a reader or writer for a visibility file, by suffix and by content.
 
 To add a format: write ``uvfit/data/<format>.py`` with a reader and a writer, add its suffixes to
-``_SUFFIXES``, its content test to :func:`sniff`, and its two functions to ``_READERS`` /
-``_WRITERS`` (see DEVELOPERS.md, "Data layer").
+``_SUFFIXES``, its content test to :func:`sniff`, and its two functions to :func:`_readers` /
+:func:`_writers` (see DEVELOPERS.md, "Data layer").
 
 A Measurement Set is a directory (a casacore table: ``table.dat`` inside), recognised by that
 content or by the ``.ms`` suffix, and read by :mod:`uvfit.data.ms` (python-casacore, the optional
@@ -11,8 +11,12 @@ extra ``ms``); uvfit does not write Measurement Sets (only their MODEL_DATA colu
 """
 
 import os
+from typing import TYPE_CHECKING, Any, Optional
 
 from ..errors import DataError
+
+if TYPE_CHECKING:
+    from .visset import VisibilitySet
 
 _SUFFIXES = {
     ".uvfits": "uvfits",
@@ -52,7 +56,7 @@ def _writers():
     return {"uvfits": write_uvfits, "ecsv": write_table}
 
 
-def read(path, format=None, **options):
+def read(path: "str | os.PathLike[str]", format: Optional[str] = None, **options: Any) -> "VisibilitySet":
     """Read a visibility file into a VisibilitySet.
 
     The suffix (.uvfits .uvf .fits .fit .fts or .ecsv) says what the file should be; its first
@@ -118,14 +122,24 @@ def read(path, format=None, **options):
     return _readers()[expected](path, **options)
 
 
-def write(vset, path, force=False, format=None, **options):
-    """Write a VisibilitySet; the format follows ``format`` or the suffix (.uvfits or .ecsv)."""
+def write(
+    vset: "VisibilitySet",
+    path: "str | os.PathLike[str]",
+    force: bool = False,
+    format: Optional[str] = None,
+    **options: Any,
+) -> str:
+    """Write a VisibilitySet; the format follows ``format`` or the suffix (.uvfits or .ecsv).
+
+    Returns the path written. The file appears whole or not at all (written to a temporary file,
+    then renamed); an existing file is replaced only with ``force``.
+    """
     path = os.fspath(path)
     kind = format or _SUFFIXES.get(os.path.splitext(path)[1].lower())
     if kind == "ms":
         raise DataError(
             f"{path}: uvfit does not write Measurement Sets",
-            "write .uvfits or .ecsv (fit --write-model-column fills a set's MODEL_DATA)",
+            "write .uvfits or .ecsv (a fit with `write_model_column` fills a set's MODEL_DATA)",
         )
     if kind not in _NAMES:
         raise DataError(f"{path}: cannot tell which format to write from the name", "end the name in .uvfits or .ecsv")

@@ -185,7 +185,7 @@ class MsLayout:
                 _fail(
                     self.path,
                     "has no data column (neither CORRECTED_DATA nor DATA)",
-                    "present: " + (", ".join(present) or "none") + "; choose one with --column",
+                    "present: " + (", ".join(present) or "none") + "; choose one with `column`",
                 )
             return
         name = str(column).strip().upper()
@@ -193,13 +193,13 @@ class MsLayout:
             _fail(
                 self.path,
                 f"'{column}' is not a data column uvfit reads",
-                "use --column DATA, CORRECTED_DATA or MODEL_DATA",
+                "use `column=DATA`, CORRECTED_DATA or MODEL_DATA",
             )
         if name not in self.columns:
             _fail(
                 self.path,
                 f"has no {name} column; its data columns are " + (", ".join(present) or "none"),
-                "choose one of those with --column",
+                "choose one of those with `column`",
             )
         self.column, self.column_note = name, f"{name} (chosen)"
 
@@ -332,15 +332,15 @@ class MsLayout:
                 _fail(
                     path,
                     "holds several fields: " + ", ".join(f"{f['id']} ({f['name']})" for f in listed),
-                    "choose one with --field NAME or ID",
+                    "choose one with `field=NAME` or ID",
                 )
             self.field_id = int(listed[0]["id"])
         else:
-            ids = _match(choice, self.fields, "field", path, "--field")
+            ids = _match(choice, self.fields, "field", path, "`field`")
             if len(ids) > 1:
                 _fail(
                     path,
-                    "--field names several fields (" + ", ".join(str(i) for i in ids) + "); "
+                    "`field` names several fields (" + ", ".join(str(i) for i in ids) + "); "
                     "uvfit fits one field at a time",
                     "give one field NAME or ID",
                 )
@@ -360,7 +360,7 @@ class MsLayout:
         if choice is None:
             spw_ids = spw_present
         else:
-            spw_ids = _match(choice, self.spws, "spectral window", path, "--spw")
+            spw_ids = _match(choice, self.spws, "spectral window", path, "`spw`")
             empty = [s for s in spw_ids if s not in spw_present]
             if empty:
                 _fail(
@@ -381,20 +381,20 @@ class MsLayout:
             _fail(
                 path,
                 "mixes polarisation setups: " + "; ".join(describe(d) for d in dd_ids),
-                "choose spectral windows of one setup with --spw",
+                "choose spectral windows of one setup with `spw`",
             )
         n_chan = {self.spws[int(self.dd_spw[d])]["n_channels"] for d in dd_ids}
         if len(n_chan) > 1:
             _fail(
                 path,
                 "has spectral windows of different channel counts: " + "; ".join(describe(d) for d in dd_ids),
-                "choose spectral windows with --spw",
+                "choose spectral windows with `spw`",
             )
         if len(dd_ids) != len(spw_ids):
             _fail(
                 path,
                 "a spectral window appears under several data descriptions: " + "; ".join(describe(d) for d in dd_ids),
-                "choose one with --spw",
+                "choose one with `spw`",
             )
         self.spw_ids = [int(s) for s in spw_ids]
         self.dd_ids = dd_ids
@@ -705,7 +705,7 @@ def check_model_column_writable(path):
     if not is_ms(path):
         raise UvfitError(
             f"{path}: writing a model column needs a Measurement Set (a casacore table folder)",
-            "drop --write-model-column, or give the Measurement Set",
+            "drop `write_model_column`, or give the Measurement Set",
         )
     casacore_tables()
     targets = [

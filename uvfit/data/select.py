@@ -444,11 +444,11 @@ def apply_selection(
         cut(np.isin(vset.channel, chans), f"channels {_ranges(chans)}")
     if stations is not None and stations != "":
         names = parse_stations(stations)
-        _check_known(names, vset, "--stations")
+        _check_known(names, vset, "`stations`")
         cut(np.isin(vset.station1, names) & np.isin(vset.station2, names), f"baselines among {', '.join(names)}")
     if exclude_stations is not None and exclude_stations != "":
         names = parse_stations(exclude_stations)
-        _check_known(names, vset, "--exclude-stations")
+        _check_known(names, vset, "`exclude_stations`")
         cut(~(np.isin(vset.station1, names) | np.isin(vset.station2, names)), f"baselines without {', '.join(names)}")
     if time_range is not None and len(time_range):
         if len(time_range) != 2:

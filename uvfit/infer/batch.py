@@ -171,7 +171,7 @@ def check_outputs(jobs, force=False):
         if os.path.lexists(out) and not force and not _own_result(out, job):
             raise UvfitError(
                 f"job '{job['name']}': {out} exists and is not a batch result of this job",
-                "move it away, choose another output_dir, or pass --force",
+                "move it away, choose another `output_dir`, or pass `force`",
             )
 
 

@@ -305,7 +305,7 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
                 "undecided: no simulation reached the improvement of "
                 + ", ".join(f"'{rows[i]['name']}'" for i in too_few)
                 + f" over '{s['name']}', but N = {bootstrap} simulations cannot show a false-alarm "
-                "probability below 5%; run again with --bootstrap 100 or more"
+                "probability below 5%; run again with 100 or more bootstrap simulations"
             )
         else:
             faps = ", ".join(
@@ -324,7 +324,7 @@ def _verdict(rows, simple, richer, bootstrap, alpha):
     text = f"BIC prefers '{rows[best]['name']}'"
     text += ", and so does AIC" if best_aic == best else f", AIC prefers '{rows[best_aic]['name']}'"
     text += (
-        "; no false-alarm probability was computed (use --bootstrap N to calibrate the "
+        "; no false-alarm probability was computed (ask for bootstrap simulations to calibrate the "
         "likelihood ratio on simulated data)"
     )
     return text + ". " + COMPARE_CAUTION, rows[best]["name"]

@@ -116,7 +116,7 @@ def scaled_model(model, fit):
     out = model.copy()
     for name in out.flux_names().values():
         p = out.parameters[name]
-        if getattr(p, "tie", None) is None:
+        if p.tie is None:
             p.value = float(p.value) * float(fs["scale"])
     return out
 

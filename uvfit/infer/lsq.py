@@ -138,30 +138,6 @@ def check_bounds(model):
     return lo, hi
 
 
-def rad_per_unit(model):
-    """Radians per model angular unit (1 mas if the model does not say)."""
-    import astropy.units as un
-
-    unit = getattr(model, "angular_unit", "mas")
-    try:
-        return float(un.Unit(unit).to(un.rad))
-    except Exception:
-        return float(un.mas.to(un.rad))
-
-
-def _kind(model, name):
-    p = model.parameters[name]
-    kind = getattr(p, "kind", None)
-    if kind:
-        return kind
-    local = name.split(".", 1)[-1]
-    if local == "flux":
-        return "flux"
-    if local.startswith("position_angle"):
-        return "angle"
-    return "length" if local in ("east", "north", "fwhm", "diameter", "radius", "separation") else "ratio"
-
-
 def random_starts(model, statistic, n, rng):
     """``n`` start vectors: uniform inside finite bounds; otherwise a scatter around the start
     value scaled to the parameter's kind (the array's resolution for a length, 180 deg for an
@@ -172,7 +148,7 @@ def random_starts(model, statistic, n, rng):
     vs = statistic.vset
     good = ~vs.flag
     qmax = float(np.max(np.hypot(vs.u[good], vs.v[good]))) if good.any() else 1.0
-    resolution = (1.0 / qmax) / rad_per_unit(model) if qmax > 0 else 1.0
+    resolution = (1.0 / qmax) / model.rad_per_unit if qmax > 0 else 1.0
     fmax = float(np.max(np.abs(vs.vis[good]))) if good.any() else 1.0
     out = []
     for _ in range(n):
@@ -182,7 +158,7 @@ def random_starts(model, statistic, n, rng):
             if np.isfinite(a) and np.isfinite(b):
                 x[i] = rng.uniform(a, b)
                 continue
-            kind = _kind(model, name)
+            kind = model.parameters[name].kind
             if kind == "angle":
                 val = x0[i] + rng.uniform(-180.0, 180.0)
             else:
@@ -330,19 +306,18 @@ def fix_degeneracies(statistic):
     """Fix, in the statistic's model, every parameter the statistic says it cannot constrain.
 
     Returns (statistic rebuilt on the changed model, [names fixed], [notices]); the notices start
-    with the statistic's own ``notices`` / ``notes`` (lists of str), if it has them.
+    with the statistic's own ``notices``.
     """
     model = statistic.model
     degs = list(statistic.degeneracies() or [])
-    notices = list(getattr(statistic, "notices", []) or []) + list(getattr(statistic, "notes", []) or [])
+    notices = list(statistic.notices)
     fixed = []
     for name, reason in degs:
         p = model.parameters[name]
-        if p.fixed or getattr(p, "tie", None) is not None:
+        if p.fixed or p.tie is not None:
             continue
         p.fixed = True
-        if hasattr(p, "note"):
-            p.note = f"fixed by the fitter: {reason}"
+        p.note = f"fixed by the fitter: {reason}"
         fixed.append(name)
         notices.append(f"{name} fixed at {p.value:g}: {reason}")
     if fixed:
@@ -563,13 +538,13 @@ def fit(
     if rescale_errors:
         scale = float(np.sqrt(chi2 / dof)) if dof > 0 and chi2 > 0 else 1.0
         cov = cov * scale**2
-        notices.append(f"errors multiplied by sqrt(chi2/dof) = {scale:.3g} (--rescale-errors)")
+        notices.append(f"errors multiplied by sqrt(chi2/dof) = {scale:.3g} (errors rescaled on request)")
     elif dof > 0 and chi2 > _poor_fit_chi2(dof):
         notices.append(
             f"reduced chi2 {chi2 / dof:.3g} is far above 1 (beyond the 99.9% point of chi2 with "
             f"{dof} degrees of freedom): the model does not describe the data to within their "
             "errors, so the quoted errors are too small; consider a richer model, a systematic "
-            "floor (--systematic) or --rescale-errors"
+            "floor or errors rescaled by sqrt(chi2/dof)"
         )
     with np.errstate(invalid="ignore"):
         errors = np.sqrt(np.diag(cov))
@@ -603,7 +578,7 @@ def fit(
         global_search=bool(global_search),
         rescale_errors=bool(rescale_errors),
         error_scale=scale,
-        systematic=float(getattr(statistic, "systematic", 0.0)),
+        systematic=float(statistic.systematic),
         per_station=per_station,
         per_baseline=per_baseline,
         notices=notices,

@@ -19,12 +19,12 @@ def parameter_table(result):
     errors = dict(zip(result.names, result.errors))
     out = {}
     for name, p in model.parameters.items():
-        tie = getattr(p, "tie", None)
+        tie = p.tie
         free = name in errors
         if free:
             err = float(errors[name])
         elif tie is not None:
-            root = model.root(name) if hasattr(model, "root") else tie
+            root = model.root(name)
             err = float(errors.get(root, float("nan")))
         else:
             err = None
@@ -36,7 +36,7 @@ def parameter_table(result):
             "fixed": bool(p.fixed),
             "tie": tie,
         }
-        note = getattr(p, "note", None)
+        note = p.note
         if note:
             out[name]["note"] = note
     return out
@@ -58,7 +58,7 @@ def result_dict(result, derived=None, mode=None, data_path=None, selection=None,
         "error_scale": float(result.error_scale),
         "starts": int(result.starts),
         "global_search": bool(result.global_search),
-        "angular_unit": getattr(model, "angular_unit_text", str(getattr(model, "angular_unit", ""))),
+        "angular_unit": model.angular_unit_text,
         "frequency_hz": frequency,
         "redshift": float(redshift or 0.0),
         "parameters": parameter_table(result),

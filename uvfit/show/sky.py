@@ -46,7 +46,7 @@ def _outline(member, unit_label):
 
 def component_outlines(model, frequency=None):
     """Outline dicts (see :func:`uvfit.show.plots.sky_plot`) of every member of the model."""
-    unit = getattr(model, "angular_unit_text", "")
+    unit = model.angular_unit_text
     return [_outline(m, unit) for m in model.members(frequency=frequency)]
 
 
@@ -70,7 +70,7 @@ def sky_figure(view, npix=256, title=None):
     """The sky plot of a FitView's model: (fig, numbers) as :func:`uvfit.show.plots.sky_plot`."""
     model, vset = view.model, view.vset
     frequency = float(np.median(vset.frequency)) if vset.n else None
-    unit = getattr(model, "angular_unit_text", view.angular_unit)
+    unit = model.angular_unit_text
     resolution = plots.nominal_resolution(vset) / float(model.rad_per_unit)
     outlines = component_outlines(model, frequency)
     centre, width = field(outlines, resolution)

@@ -46,7 +46,7 @@ def check_corruption(gain_error=0.0, phase_error_deg=0.0, systematic=0.0):
     if gain_error >= 1.0:
         raise UvfitError(
             f"the gain error {gain_error} is a fraction of the amplitude and must be below 1",
-            "e.g. --gain-error 0.1 for 10% amplitude scatter",
+            "e.g. `gain_error=0.1` for 10% amplitude scatter",
         )
 
 

@@ -53,7 +53,7 @@ class Observation:
         if self.bandwidth_hz >= 2 * self.frequency_hz:
             raise UvfitError(
                 "the bandwidth is wider than twice the centre frequency",
-                "check the units of --bandwidth and --frequency",
+                "check the units of `bandwidth` and `frequency`",
             )
         if not self.scan_length_s > 0:
             raise UvfitError(f"the scan length must be positive, got {self.scan_length_s} s")
@@ -140,7 +140,7 @@ def plan(array, observation):
             "the source is never above the elevation limit of two stations at the same time "
             f"between {_iso(times[0])} and {_iso(times[-1])} UTC"
             + (f" (never up at: {', '.join(never)})" if never else ""),
-            "choose another start time or duration, or check --ra/--dec",
+            "choose another start time or duration, or check `ra` and `dec`",
         )
     freqs = obs.channel_frequencies
     n_ch = len(freqs)

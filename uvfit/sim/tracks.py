@@ -127,7 +127,7 @@ def time_grid(start, duration_s, integration_s):
     if n < 1:
         raise UvfitError(
             f"the duration ({duration_s} s) is shorter than one integration ({integration_s} s)",
-            "lengthen --duration or shorten --integration",
+            "lengthen `duration` or shorten `integration`",
         )
     if n > 2_000_000:
         raise UvfitError(f"{n} integrations is too many", "use a longer integration time")

@@ -19,7 +19,7 @@ def effective_sigma(sigma, amplitude, systematic=0.0):
     amplitude ``A``) added in quadrature (common practice)."""
     f = float(systematic)
     if f < 0:
-        raise UvfitError(f"the systematic floor must be >= 0 (got {f})", "pass e.g. --systematic 0.02")
+        raise UvfitError(f"the systematic floor must be >= 0 (got {f})", "pass e.g. `systematic=0.02`")
     return np.sqrt(sigma**2 + (f * amplitude) ** 2)
 
 
@@ -81,6 +81,8 @@ class Statistic:
     #: point reflection through the origin (every position angle + 180 deg) then fit equally well.
     #: Any phase information (visibility or closure phases) breaks that symmetry.
     amplitude_only = False
+    #: what the user should know about this statistic (printed with the fit); subclasses set a list
+    notices: "list[str] | tuple[str, ...]" = ()
 
     def __init__(self, vset, model, systematic=0.0, **options):
         self.vset = vset

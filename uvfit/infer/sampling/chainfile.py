@@ -26,14 +26,14 @@ def read_chain_attrs(path):
             if CHAIN_GROUP not in f:
                 raise UvfitError(
                     f"{path} holds no uvfit chain",
-                    "give the chain file written by an earlier 'uvfit sample --chain' run",
+                    "give the chain file written by an earlier sampling run (`chain`)",
                 )
             g = f[CHAIN_GROUP]
             attrs = {k: g.attrs[k] for k in g.attrs}
     except OSError as exc:
         raise UvfitError(
             f"cannot read the chain file {path} ({exc})",
-            "give an HDF5 chain file written by 'uvfit sample --chain', or start a new one with --force",
+            "give an HDF5 chain file written by an earlier sampling run, or start a new one with `force`",
         ) from None
     try:
         names = json.loads(attrs.get("uvfit_names", "[]"))
@@ -58,7 +58,7 @@ def read_chain_attrs(path):
         raise UvfitError(
             f"the attributes of the chain file {path} are damaged (uvfit_names, "
             "uvfit_seed, uvfit_meta, iteration or nwalkers)",
-            "start a new chain with --force",
+            "start a new chain with `force`",
         )
     return info
 
@@ -86,17 +86,17 @@ def check_chain_file(chain_path, resume=False, force=False):
     """
     if resume:
         if chain_path is None:
-            raise UvfitError("--resume needs the chain file to continue", "give it with --chain FILE.h5")
+            raise UvfitError("`resume` needs the chain file to continue", "give it with `chain=FILE.h5`")
         if not os.path.exists(chain_path):
             raise UvfitError(
-                f"there is no chain file {chain_path} to resume", "run once without --resume to start the chain"
+                f"there is no chain file {chain_path} to resume", "run once without `resume` to start the chain"
             )
         return read_chain_attrs(chain_path)["iteration"]
     if chain_path is not None:
         if os.path.exists(chain_path) and not force:
             raise UvfitError(
                 f"the chain file {chain_path} exists already",
-                "pass --resume to continue it, or --force to start it again",
+                "pass `resume` to continue it, or `force` to start it again",
             )
         if not os.path.isdir(os.path.dirname(os.path.abspath(chain_path))):
             raise UvfitError(f"the folder for the chain file {chain_path} does not exist", "create it first")
@@ -115,18 +115,18 @@ def resume_backend(chain_path, names, n_walkers, seed):
     if info["names"] != names:
         raise UvfitError(
             f"the chain in {chain_path} was run on other free parameters ({', '.join(info['names'])})",
-            "resume with the same model file, or start a new chain with --force",
+            "resume with the same model file, or start a new chain with `force`",
         )
     if n_walkers is not None and int(n_walkers) != info["n_walkers"]:
         raise UvfitError(
             f"the chain in {chain_path} has {info['n_walkers']} walkers, not {n_walkers}",
-            "drop --walkers when resuming",
+            "drop `walkers` when resuming",
         )
     if info["iteration"] < 1:
-        raise UvfitError(f"the chain in {chain_path} is empty", "start it again with --force")
+        raise UvfitError(f"the chain in {chain_path} is empty", "start it again with `force`")
     n_walkers = info["n_walkers"]
     if int(seed) != info["seed"]:
-        notes.append(f"the chain continues its own random sequence (seed {info['seed']}); --seed {seed} is not used")
+        notes.append(f"the chain continues its own random sequence (seed {info['seed']}); `seed={seed}` is not used")
     seed = info["seed"]
     backend = _backend_class()(chain_path, name=CHAIN_GROUP)
     return backend, n_walkers, seed, notes
@@ -150,7 +150,7 @@ def _backend_class():
                 kept = f"it keeps its {done} complete steps" if done is not None else "it may be damaged"
                 raise UvfitError(
                     f"cannot write the next step to the chain file {self.filename} ({exc.strerror or exc}); {kept}",
-                    "free disk space, then continue with --resume",
+                    "free disk space, then continue with `resume`",
                 ) from None
 
     return ChainBackend

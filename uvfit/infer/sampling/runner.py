@@ -113,7 +113,7 @@ def run_chain(
         raise FitError("the model has no free parameters to sample", "free at least one parameter in the model file")
     max_steps = int(max_steps)
     if max_steps < 1:
-        raise UvfitError("--max-steps must be at least 1", "give a positive number of steps")
+        raise UvfitError("`max_steps` must be at least 1", "give a positive number of steps")
     notes = []
     backend = None
     previous = 0
@@ -128,7 +128,7 @@ def run_chain(
         n_walkers += n_walkers % 2
         if n_walkers < 2 * n_dim:
             raise UvfitError(
-                f"{n_walkers} walkers are too few for {n_dim} free parameters", f"use --walkers {2 * n_dim + 2} or more"
+                f"{n_walkers} walkers are too few for {n_dim} free parameters", f"use `walkers={2 * n_dim + 2}` or more"
             )
         backend = new_backend(chain_path, n_walkers, n_dim, names, seed, meta)
 
@@ -168,7 +168,7 @@ def run_chain(
         todo = max_steps - previous
         if previous and todo <= 0:
             notes.append(
-                f"the chain already has {previous} steps (--max-steps {max_steps}); raise --max-steps to continue it"
+                f"the chain already has {previous} steps (`max_steps={max_steps}`); raise `max_steps` to continue it"
             )
         if todo > 0 and not converged:
             done = 0
@@ -211,7 +211,7 @@ def run_chain(
             )
         notes.append(
             f"the chain has NOT converged after {n_steps} steps: {how}; treat the "
-            "intervals as rough and run longer (raise --max-steps, add --resume)"
+            "intervals as rough and run longer (raise `max_steps`, add `resume`)"
         )
     acc = float(np.mean(acceptance))
     if acc < ACCEPTANCE_RANGE[0]:
@@ -278,7 +278,7 @@ def check_digests(chain_path, stored, now):
     if differ:
         raise UvfitError(
             f"the chain in {chain_path} was run on " + " and ".join(differ),
-            "resume with the same data, selection and model file, or start a new chain with --force",
+            "resume with the same data, selection and model file, or start a new chain with `force`",
         )
 
 
@@ -319,7 +319,7 @@ def sample(
     from ..lsq import fit, fix_degeneracies
 
     if order_by not in ("flux", "distance"):
-        raise UvfitError(f"unknown ordering '{order_by}'", "use --order-by flux or --order-by distance")
+        raise UvfitError(f"unknown ordering '{order_by}'", "use `order_by=flux` or `order_by=distance`")
     work = model.copy()
     stat = make_statistic(mode, vset, work, systematic=systematic, **options)
     extra = {
@@ -334,7 +334,7 @@ def sample(
                 if key in stored and stored[key] != now:
                     raise UvfitError(
                         f"the chain in {chain_path} was run with {key} {stored[key]}, not {now}",
-                        f"resume with the same --{key}, or start a new chain with --force",
+                        f"resume with the same `{key}`, or start a new chain with `force`",
                     )
         stat, fixed, notices = fix_degeneracies(stat)
         if (

@@ -37,7 +37,7 @@ def _limit_bounds(model, name):
     positions = {n for pair in model.position_names().values() for n in pair}
     lo = float(p.min) if np.isfinite(p.min) else None
     hi = float(p.max) if np.isfinite(p.max) else None
-    if getattr(p, "kind", None) == "length" and name not in positions and lo is None:
+    if p.kind == "length" and name not in positions and lo is None:
         lo = 0.0
     if _parameter_period(model, name):
         return None, None

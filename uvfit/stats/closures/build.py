@@ -414,11 +414,11 @@ def build_closures(
     snr_cut = float(snr_cut if snr_cut is not None else 0.0)
     systematic = float(systematic or 0.0)
     if snr_cut < 0 or not np.isfinite(snr_cut):
-        raise DataError(f"the SNR cut must be a finite number >= 0, not {snr_cut}", "give e.g. --snr-cut 3")
+        raise DataError(f"the SNR cut must be a finite number >= 0, not {snr_cut}", "give e.g. `snr_cut=3`")
     if systematic < 0 or not np.isfinite(systematic):
         raise DataError(
             f"the systematic floor must be a finite fraction >= 0, not {systematic}",
-            "give e.g. --systematic 0.02 for 2 per cent of |V|",
+            "give e.g. `systematic=0.02` for 2 per cent of |V|",
         )
     if amplitude_reference not in AMPLITUDE_REFERENCES:
         raise DataError(
@@ -587,10 +587,10 @@ def no_closure_error(vset, kind, snr_cut):
             f"no {what} can be formed: at most {most} station(s) observe at the same "
             f"time and channel, and {what} need {need}",
             "closures need at least three (phases) or four (amplitudes) stations "
-            "observing at once; check the selection (--stations, --exclude-stations, "
-            "--time-range) or use a visibility mode",
+            "observing at once; check the selection (`stations`, `exclude_stations`, "
+            "`time_range`) or use a visibility mode",
         )
     return DataError(
         f"no {what} can be formed after the SNR cut of {snr_cut:g} on the contributing visibilities",
-        "lower --snr-cut, or average in time (--average) to raise the SNR",
+        "lower `snr_cut`, or average in time (`average`) to raise the SNR",
     )

@@ -17,8 +17,7 @@ def _model_vis_at_rows(model, vset, rows):
     """Model visibilities at every row of vset (NaN where not needed), computed only at ``rows``."""
     used = np.unique(rows)
     out = np.full(vset.n, np.nan + 0j)
-    theta = model.get_free() if hasattr(model, "get_free") else None
-    out[used] = model.visibilities(vset.u[used], vset.v[used], vset.frequency[used], theta=theta)
+    out[used] = model.visibilities(vset.u[used], vset.v[used], vset.frequency[used], theta=model.get_free())
     return out
 
 

@@ -36,7 +36,7 @@ def check_covariance(covariance, full):
     if covariance == "snapshot" and full:
         raise UvfitError(
             "the full (redundant) closure set has a singular covariance",
-            "use the non-redundant set (no --full) with the snapshot covariance",
+            "use the non-redundant set (not `full`) with the snapshot covariance",
         )
     return covariance
 

@@ -363,7 +363,7 @@ class HybridStatistic(JoinedStatistic):
         self._join([amp, cp])
         # the closure phases break the point-reflection symmetry of the amplitudes: keep the
         # amplitudes' notices except the 180-degree one, unless the join is amplitude-only
-        self.notices = [n for n in (getattr(amp, "notices", []) or []) if self.amplitude_only or n != REFLECTION_NOTICE]
+        self.notices = [n for n in amp.notices if self.amplitude_only or n != REFLECTION_NOTICE]
         self.snr_cut = snr_cut
         self.full = bool(full)
         self.covariance = covariance

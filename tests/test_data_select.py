@@ -167,3 +167,17 @@ def test_selection_options():
 def test_selection_errors(kwargs, words):
     with pytest.raises(DataError, match=words):
         apply_selection(grid_set(), **kwargs)
+
+
+def test_unknown_selection_keys_are_named():
+    """A misspelt key in a selection (a batch manifest's ``selection`` table, a Python caller's
+    dict) is refused by name, with the known keys listed (common practice: no silent ignore)."""
+    from tests.helpers.real_data import real_file
+    from uvfit.data.select import read_selected
+
+    with pytest.raises(DataError, match="unknown selection key.*min_uvw"):
+        read_selected(real_file("lo"), {"min_uvw": 1e7})
+    with pytest.raises(DataError, match="not list"):
+        read_selected(real_file("lo"), [1, 2])
+    vset, _ = read_selected(real_file("lo"), {"min_uv": 1e7, "column": None})
+    assert vset.n > 0

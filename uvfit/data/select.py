@@ -366,7 +366,18 @@ def read_selected(data, selection=None, good=True):
     the flagged rows are kept). ``notes``: the selection's messages for the user (a list of str).
     Every command, task, batch job and the demo read data through this function.
     """
+    if selection is not None and not isinstance(selection, dict):
+        raise DataError(
+            f"a selection is a table of keys and values, not {type(selection).__name__} {selection!r}",
+            "known keys: " + ", ".join(SELECTION_OPTIONS + READ_OPTIONS),
+        )
     selection = {k: v for k, v in (selection or {}).items() if v not in (None, (), "", [])}
+    unknown = sorted(set(selection) - set(SELECTION_OPTIONS) - set(READ_OPTIONS))
+    if unknown:
+        raise DataError(
+            "unknown selection key(s) " + ", ".join(map(str, unknown)),
+            "known keys: " + ", ".join(SELECTION_OPTIONS + READ_OPTIONS),
+        )
     reading = {k: selection.pop(k) for k in READ_OPTIONS if k in selection}
     notes = []
     if isinstance(data, (str, bytes)) or hasattr(data, "__fspath__"):

@@ -2,7 +2,8 @@
 
 Columns (README "Data formats"): time_mjd (d, UTC), station1, station2, u_lambda, v_lambda,
 w_lambda (wavelengths), frequency_hz (Hz), vis_re_jy, vis_im_jy, sigma_jy (Jy), flag (bool),
-channel (int), integration_s (s). Table metadata: format name and version, source, ra_deg, dec_deg,
+channel (int), integration_s (s), scan (int, -1 where the source file had none). Table metadata:
+format name and version, source, ra_deg, dec_deg,
 station_names, station_xyz_m, and the set's own ``meta`` (as JSON-like values).
 
 Floating-point columns are written with full double precision, so a round trip is exact.
@@ -37,6 +38,7 @@ COLUMNS = [
     ("flag", "flag", None, "true where the row must not be used"),
     ("channel", "channel", None, "flattened channel index (IF * n_channels + channel)"),
     ("integration_s", "integration", "s", "integration time of the row"),
+    ("scan", "scan", None, "scan number of the row as its file gave it; -1 where none"),
 ]
 REQUIRED = (
     "time_mjd",
@@ -170,6 +172,7 @@ def read_table(path):
             flag=col("flag"),
             channel=col("channel"),
             integration=col("integration_s"),
+            scan=col("scan"),
             stations=stations,
             source=str(meta.get("source", "unknown")),
             ra_deg=float(meta.get("ra_deg", np.nan)),

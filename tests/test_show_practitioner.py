@@ -16,7 +16,9 @@ from matplotlib.patches import Ellipse
 from scipy import stats
 from test_practitioner_figures import _nine_station_set
 
+from uvfit.errors import UvfitError
 from uvfit.show import plots, style
+from uvfit.show.corner import corner_plot
 from uvfit.show.figures import make_figure
 from uvfit.show.readback import fit_view
 from uvfit.show.sky import position_covariances, sky_figure
@@ -267,3 +269,130 @@ def test_station_markers_are_split_lines():
     assert [g[0] for g in groups] == ["A-B", "A-C", "B-C"] and [e[0] for e in legend] == ["A", "B", "C"]
     line = Line2D([0], [0], **groups[0][2])
     assert line.get_fillstyle() == "left"
+
+
+# --------------------------------------------------------------------------- the corner plot
+
+
+def _overlaps(fig):
+    """Pairs (axis label, tick label) whose text boxes overlap (matplotlib's renderer geometry)."""
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    bad = []
+    for ax in fig.axes:
+        for axis in (ax.xaxis, ax.yaxis):
+            label = axis.label
+            if not label.get_visible() or not label.get_text():
+                continue
+            box = label.get_window_extent(renderer)
+            ticks = [t for t in axis.get_ticklabels() if t.get_visible() and t.get_text()]
+            offset = axis.get_offset_text()
+            for t in ticks + ([offset] if offset.get_visible() and offset.get_text() else []):
+                if box.overlaps(t.get_window_extent(renderer)):
+                    bad.append((label.get_text(), t.get_text()))
+    return bad
+
+
+def test_corner_labels_do_not_overlap_tick_labels():
+    rng = np.random.default_rng(1)
+    # long tick labels: a tiny spread about a large value, and large values (invented posteriors)
+    samples = rng.normal(size=(4000, 4)) * [1e-4, 3.0, 0.01, 50.0] + [1234.5678, -20000.0, 0.5, 1e5]
+    names = ["core.flux", "knot.east", "knot.a_rather_long_parameter_name", "core.fwhm"]
+    fig, _ = corner_plot(samples, names, ["Jy", "uas", "", "uas"])
+    assert _overlaps(fig) == []
+    renderer = fig.canvas.get_renderer()
+    frame = fig.bbox
+    titles = [ax.title.get_window_extent(renderer) for ax in fig.axes if ax.title.get_text()]
+    for ax in fig.axes:
+        for label in (ax.xaxis.label, ax.yaxis.label):
+            if label.get_text():
+                b = label.get_window_extent(renderer)
+                assert frame.x0 <= b.x0 and b.y0 >= frame.y0  # inside the figure
+    # the diagonal titles do not overlap one another
+    assert all(not a.overlaps(b) for i, a in enumerate(titles) for b in titles[i + 1 :])
+    style.close(fig)
+
+
+def _posterior_of_two_points():
+    """A Posterior of the invented two-point model from draws of a known normal (not a sampler)."""
+    from helpers.sample_data import two_points
+
+    from uvfit.infer.sampling.runner import Chain
+    from uvfit.infer.sampling.summary import summarize_chain
+
+    model = two_points(1.0, 0.3, east=0.3, north=0.2)
+    names = list(model.free_names)
+    mean = np.array([model.parameters[n].value for n in names])
+    sd = np.array([0.01 if n.endswith("flux") else 0.02 for n in names])
+    rng = np.random.default_rng(12)
+    draws = mean + sd * rng.standard_normal((400, 10, len(names)))
+    chain = Chain(
+        names=names,
+        chain=draws,
+        log_prob=np.zeros((400, 10)),
+        acceptance=np.full(10, 0.4),
+        tau=np.full(len(names), 5.0),
+        converged=True,
+        seed=12,
+        burn_in=0,
+        thin=1,
+    )
+    return summarize_chain(chain, model, frequency=86e9), draws.reshape(-1, len(names)), names
+
+
+def test_corner_with_derived_quantities_beside_the_parameters():
+    from uvfit.show.corner import derived_columns, select_derived
+
+    post, flat, names = _posterior_of_two_points()
+    keys = select_derived(post.derived, ["separation", "a-b.position_angle", "flux_ratio"])
+    assert keys == ["a-b.separation", "a-b.position_angle", "a-b.flux_ratio"]
+    extra, units, summaries = derived_columns(post, keys)
+    east, north = flat[:, names.index("b.east")], flat[:, names.index("b.north")]
+    # separation from a at the origin and position angle north through east (closed forms, common practice)
+    np.testing.assert_allclose(np.sort(extra[:, 0]), np.sort(np.hypot(east, north)))
+    pa = np.degrees(np.arctan2(east, north))
+    np.testing.assert_allclose(np.median(extra[:, 1]), np.median(pa), atol=1e-9)
+    ratio = flat[:, names.index("b.flux")] / flat[:, names.index("a.flux")]
+    np.testing.assert_allclose(np.median(extra[:, 2]), np.median(ratio))
+    assert units == ["mas", "deg", ""]
+    samples = np.column_stack([post.samples, extra])
+    fig, d = corner_plot(samples, names + keys, [post.parameters[n]["unit"] for n in names] + units)
+    assert d["names"][-3:] == keys
+    # the marked median of the separation is the sample median (numpy percentile)
+    assert d["median"][len(names)] == pytest.approx(np.median(np.hypot(east, north)), rel=1e-6)
+    assert _overlaps(fig) == []
+    style.close(fig)
+    with pytest.raises(UvfitError, match="not among this model's"):
+        select_derived(post.derived, ["brightness"])
+
+
+def _exit_message(args, capsys):
+    """Exit code and stderr of ``uvfit ARGS`` run as the console script runs it."""
+    from uvfit.cli import main
+
+    with pytest.raises(SystemExit) as exc:
+        main(list(args))
+    return exc.value.code, capsys.readouterr().err.strip()
+
+
+def test_sample_command_derived_option(tmp_path, capsys):
+    from click.testing import CliRunner
+    from helpers.sample_data import simulate, two_points
+
+    import uvfit
+    from uvfit.cli import cli
+
+    truth = two_points(1.0, 0.3, east=0.3, north=0.2)
+    uvfit.write(simulate(truth, n=60, sigma=0.05, seed=2), str(tmp_path / "obs.ecsv"))
+    truth.save(str(tmp_path / "model.toml"))
+    base = ["sample", str(tmp_path / "obs.ecsv"), str(tmp_path / "model.toml"), "--walkers", "10", "--seed", "3"]
+    code, err = _exit_message([*base, "--corner", str(tmp_path / "c.png"), "--derived", "nonsense"], capsys)
+    assert code == 2 and "--derived names 'nonsense'" in err and "a-b.separation" in err
+    assert len(err.splitlines()) == 1 and not (tmp_path / "c.png").exists()
+    code, err = _exit_message([*base, "--derived", "separation"], capsys)
+    assert code == 2 and "--corner" in err
+    ok = CliRunner().invoke(
+        cli, [*base, "--max-steps", "60", "--corner", str(tmp_path / "c.png"), "--derived", "separation"]
+    )
+    assert ok.exit_code == 0, ok.output
+    assert (tmp_path / "c.png").read_bytes().startswith(style.PNG_SIGNATURE)  # PNG signature (PNG spec)

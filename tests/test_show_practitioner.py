@@ -396,3 +396,23 @@ def test_sample_command_derived_option(tmp_path, capsys):
     )
     assert ok.exit_code == 0, ok.output
     assert (tmp_path / "c.png").read_bytes().startswith(style.PNG_SIGNATURE)  # PNG signature (PNG spec)
+
+
+def test_plot_command_colours_the_radial_figure(tmp_path):
+    import json
+
+    from click.testing import CliRunner
+
+    import uvfit
+    from uvfit.cli import cli
+
+    vset = show_sim.simulated_set(n_times=4)
+    uvfit.write(vset, str(tmp_path / "sim.ecsv"))
+    show_sim.write_json(tmp_path / "fit.json", show_sim.truth_fit_json())
+    args = ["plot", str(tmp_path / "sim.ecsv"), "--fit", str(tmp_path / "fit.json"), "--kind", "radial"]
+    r = CliRunner().invoke(
+        cli, [*args, "--colour-by", "station", "-o", str(tmp_path / "r.png"), "--numbers", str(tmp_path / "r.json")]
+    )
+    assert r.exit_code == 0, r.output
+    numbers = json.loads((tmp_path / "r.json").read_text())
+    assert numbers["colour_by"] == "station" and numbers["groups"] == sorted(show_sim.STATIONS)

@@ -27,9 +27,9 @@ def _value_text(med, lo, hi):
         return f"{med:.4g}"
     decimals = 1 - math.floor(math.log10(min(spread)))
     if decimals > 8 or abs(med) >= 1e7:
-        return f"{med:.4g} (+{hi - med:.2g} −{med - lo:.2g})"
+        return f"{med:.4g} (+{hi - med:.2g} -{med - lo:.2g})"
     d = max(decimals, 0)
-    return f"{med:.{d}f} (+{hi - med:.{d}f} −{med - lo:.{d}f})"
+    return f"{med:.{d}f} (+{hi - med:.{d}f} -{med - lo:.{d}f})"
 
 
 def _ticks_box(fig, axis, renderer):

@@ -206,16 +206,20 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None, col
             (ax_r, res_phase, None, "^"),
         )
         if groups is not None:
-            for _, sel, kw in groups:
+            for g, (_, sel, kw) in enumerate(groups):
                 for ax, y, err, marker in series:
                     if err is not None:
-                        ax.errorbar(x[sel], y[sel], yerr=err[sel], fmt="none", lw=0.5, ecolor="0.6", zorder=1)
+                        bar = "data ±1σ" if (g == 0 and ax is ax_a) else None
+                        ax.errorbar(
+                            x[sel], y[sel], yerr=err[sel], fmt="none", lw=0.5, ecolor="0.6", zorder=1, label=bar
+                        )
                     ax.plot(x[sel], y[sel], linestyle="none", ms=3.5, alpha=0.9, zorder=2, **{**kw, "marker": marker})
             _group_legend(fig, legend, LEGEND_TITLES[str(colour_by)])
         elif colour_by == "time":
             for ax, y, err, marker in series:
                 if err is not None:
-                    ax.errorbar(x, y, yerr=err, fmt="none", lw=0.5, ecolor="0.6", zorder=1)
+                    bar = "data ±1σ" if ax is ax_a else None
+                    ax.errorbar(x, y, yerr=err, fmt="none", lw=0.5, ecolor="0.6", zorder=1, label=bar)
                 sc = ax.scatter(x, y, c=key, s=8, marker=marker, cmap=style.SEQUENTIAL_CMAP, linewidths=0, zorder=2)
         else:
             ax_a.errorbar(
@@ -314,7 +318,7 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
             key = np.concatenate([index, index])
             for name, sel, kw in groups:
                 both = np.concatenate([sel, sel])
-                ms = 2.5 if colour_by == "baseline" else 3.5
+                ms = 2.5 if colour_by == "baseline" else 4.5
                 ax.plot(u[both] / scale, v[both] / scale, linestyle="none", ms=ms, label=name, **kw)
             # outside the axes, in as many columns as the height needs (about 22 rows fit)
             _group_legend(fig, legend, LEGEND_TITLES[colour_by])

@@ -49,6 +49,8 @@ def _ms_set(tmp_path):
 
     write_invented_ms(str(tmp_path / "double.ms"), n_times=4, n_chan=2)  # the last channel is flagged
     vset = uvfit.read(str(tmp_path / "double.ms")).good()
+    five = sorted(set(vset.station1.tolist()))[:5]  # ten baselines keep the test fast
+    vset = vset.subset(np.isin(vset.station1, five) & np.isin(vset.station2, five))
     return vset, textbook_double(vset.u, vset.v)
 
 
@@ -58,7 +60,7 @@ def _real_set(real_data):
     import uvfit
 
     vset = uvfit.read(str(real_file("lo"))).good()
-    vset = vset.subset(np.arange(vset.n) < 400)
+    vset = vset.subset(np.arange(vset.n) < 150)
     return vset, np.full(vset.n, 1.0 + 0j)  # a 1 Jy point at the phase centre
 
 
@@ -83,15 +85,15 @@ def _data_points(ax):
 
 def test_radial_colour_by_every_kind_of_data(tmp_path, real_data):
     for what, (vset, model_vis) in _data_kinds(tmp_path, real_data):
-        plain_fig, plain = plots.radial_plot(vset, model_vis)
-        style.close(plain_fig)
-        rows = plain["order"]
+        rows = np.argsort(np.hypot(vset.u, vset.v), kind="stable")
+        # normalised amplitude residuals, (|V| - |M|) / sigma, computed here (definition)
+        expected = (np.abs(vset.vis) - np.abs(model_vis)) / vset.sigma
         # the baseline of every row, built here from the station columns
         labels = np.array([f"{a}-{b}" for a, b in zip(vset.station1[rows], vset.station2[rows])])
         for colour_by in plots.COLOURINGS:
             fig, d = plots.radial_plot(vset, model_vis, colour_by=colour_by)
             # the residual panel is in sigma as before, whatever the colouring
-            np.testing.assert_array_equal(d["residual_amplitude"], plain["residual_amplitude"], err_msg=what)
+            np.testing.assert_allclose(d["residual_amplitude"], expected[rows], rtol=1e-9, err_msg=what)
             ax_a = fig.axes[0]
             if colour_by == "time":
                 # hours since 0 h UTC of the first day (MJD definition: days)
@@ -325,11 +327,11 @@ def _posterior_of_two_points():
     mean = np.array([model.parameters[n].value for n in names])
     sd = np.array([0.01 if n.endswith("flux") else 0.02 for n in names])
     rng = np.random.default_rng(12)
-    draws = mean + sd * rng.standard_normal((400, 10, len(names)))
+    draws = mean + sd * rng.standard_normal((200, 10, len(names)))
     chain = Chain(
         names=names,
         chain=draws,
-        log_prob=np.zeros((400, 10)),
+        log_prob=np.zeros((200, 10)),
         acceptance=np.full(10, 0.4),
         tau=np.full(len(names), 5.0),
         converged=True,

@@ -2,7 +2,8 @@
 
 import click
 
-from ..show.figures import KINDS
+from ..show.figures import KINDS, MANY_BASELINES
+from ..show.plots import COLOURINGS
 from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 
@@ -20,10 +21,11 @@ from ._common import check_outputs, echo_notes, force_option, pop_selection, sel
 )
 @click.option(
     "--colour-by",
-    type=click.Choice(["baseline", "time"]),
-    default="baseline",
-    show_default=True,
-    help="Colouring of the (u, v) coverage.",
+    type=click.Choice(list(COLOURINGS)),
+    default=None,
+    help="Colour the (u, v) coverage and the radial figure's data by baseline, by station (each marker split "
+    "between its two stations; a legend of stations) or by time. Default: the radial data in one colour; "
+    f"the coverage by baseline, by station above {MANY_BASELINES} baselines.",
 )
 @click.option(
     "--panels",

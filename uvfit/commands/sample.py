@@ -66,6 +66,15 @@ from ._common import (
 @click.option(
     "--corner", "corner_path", default=None, metavar="OUT.png", help="Write a corner plot of the free parameters."
 )
+@click.option(
+    "--derived",
+    "derived",
+    multiple=True,
+    metavar="KEY",
+    help="Draw this derived quantity beside the free parameters in the --corner plot: a key such as "
+    "core-knot.separation, or a quantity (separation, position_angle, flux_ratio, size...) for every "
+    "key of that quantity. Repeatable.",
+)
 @click.option("--json", "json_path", default=None, metavar="OUT.json", help="Write the posterior summaries as JSON.")
 @click.option(
     "--order-by",
@@ -109,6 +118,7 @@ def command(
     chain_path,
     resume,
     corner_path,
+    derived,
     json_path,
     order_by,
     starts,
@@ -140,6 +150,16 @@ def command(
         force=True,
     )
     check_outputs({"--json": json_path, "--corner": corner_path}, {}, force)
+    if derived:
+        from ..errors import UvfitError
+        from ..show.corner import derived_keys, select_derived
+
+        if corner_path is None:
+            raise UvfitError(
+                "--derived names quantities of the corner plot, but none is written", "add --corner OUT.png"
+            )
+        with as_options(derived="--derived"):
+            select_derived(derived_keys(tasks.load_model_or_path(model)), derived)
     previous = check_chain_file(chain_path, resume, force)
 
     todo = max(max_steps - previous, 0)
@@ -176,5 +196,6 @@ def command(
         write_json(json_path, report.to_dict(), force=force)
         click.echo(f"wrote {json_path}", err=True)
     if corner_path is not None:
-        write_corner_plot(report.posterior, corner_path, force=force)
+        with as_options(derived="--derived"):
+            write_corner_plot(report.posterior, corner_path, force=force, derived=derived)
         click.echo(f"wrote {corner_path}", err=True)

@@ -16,15 +16,27 @@ KINDS = {
 }
 
 
-def make_figure(kind, view, colour_by="baseline", panels=6):
+#: the (u, v) coverage is coloured by baseline unless another colouring is asked for
+UV_DEFAULT_COLOURING = "baseline"
+#: with more baselines than this, the (u, v) coverage's default legend is by station
+MANY_BASELINES = 21
+
+
+def make_figure(kind, view, colour_by=None, panels=6):
     """The figure ``kind`` (a key of :data:`KINDS`) of a :class:`uvfit.show.readback.FitView`.
 
-    ``colour_by`` ("baseline" or "time") colours the (u, v) coverage; ``panels`` is the number of
-    closure-phase triangles shown (the most informative first).
+    ``colour_by`` ("baseline", "station" or "time"; :data:`uvfit.show.plots.COLOURINGS`) colours
+    the (u, v) coverage and the data of the radial figure. Without it the radial figure draws the
+    data in one colour and the coverage is coloured by baseline, or by station when there are more
+    than :data:`MANY_BASELINES` baselines (a legend of stations stays readable). ``panels`` is the
+    number of closure-phase triangles shown (the most informative first).
     """
     if kind == "radial":
-        return plots.radial_plot(view.vset, view.model_vis, note=view.phase_note)
+        return plots.radial_plot(view.vset, view.model_vis, note=view.phase_note, colour_by=colour_by)
     if kind == "uv":
+        if colour_by is None:
+            many = len(set(view.vset.baseline_labels.tolist())) > MANY_BASELINES
+            colour_by = "station" if many else UV_DEFAULT_COLOURING
         return plots.uv_coverage_plot(view.vset, colour_by=colour_by)
     if kind == "closure":
         series = plots.closure_phase_series(view.vset, view.model_vis, systematic=view.systematic)

@@ -55,10 +55,101 @@ def _check_lengths(vset, model_vis):
     return model_vis
 
 
+# --------------------------------------------------------------------------- colouring by group
+
+#: the ways the rows of a figure can be coloured
+COLOURINGS = ("baseline", "station", "time")
+
+
+def station_colours(names):
+    """{station: colour}: the Okabe-Ito cycle first, then the lighter tab20 colours for more."""
+    import matplotlib
+
+    extra = [matplotlib.colors.to_hex(c) for c in matplotlib.colormaps["tab20"].colors[1::2]]
+    palette = list(style.CYCLE) + extra
+    return {str(n): palette[k % len(palette)] for k, n in enumerate(names)}
+
+
+def row_groups(station1, station2, colour_by):
+    """How the rows of a figure are grouped and drawn when coloured by baseline or by station.
+
+    Returns (groups, key, legend): ``groups`` a list of (label, row mask, marker keywords for
+    ``Axes.plot``), ``key`` the group index of every row, ``legend`` a list of (label, colour,
+    marker) entries. By baseline: one colour and marker per baseline. By station: each marker is
+    split, its left half in the colour of the row's first station and its right half in the second
+    station's, and the legend lists the stations (fewer entries than baselines).
+    """
+    station1 = np.asarray(station1).astype(str)
+    station2 = np.asarray(station2).astype(str)
+    labels = np.char.add(np.char.add(station1, "-"), station2)
+    baselines, index = np.unique(labels, return_inverse=True)
+    groups, legend = [], []
+    if colour_by == "baseline":
+        for i, name in enumerate(baselines):
+            marker = style.MARKERS[(i // len(style.CYCLE)) % len(style.MARKERS)]
+            colour = style.CYCLE[i % len(style.CYCLE)]
+            groups.append((str(name), index == i, {"marker": marker, "color": colour}))
+            legend.append((str(name), colour, marker))
+        return groups, index, legend
+    stations = list(dict.fromkeys(sorted(set(station1.tolist()) | set(station2.tolist()))))
+    colours = station_colours(stations)
+    for i, name in enumerate(baselines):
+        sel = index == i
+        a, b = station1[sel][0], station2[sel][0]
+        groups.append(
+            (
+                str(name),
+                sel,
+                {
+                    "marker": "o",
+                    "color": colours[a],
+                    "markerfacecolor": colours[a],
+                    "markerfacecoloralt": colours[b],
+                    "fillstyle": "left",
+                    "markeredgecolor": "0.25",
+                    "markeredgewidth": 0.3,
+                },
+            )
+        )
+    legend = [(n, colours[n], "o") for n in stations]
+    return groups, index, legend
+
+
+def _group_legend(fig, legend, title):
+    """A legend of (label, colour, marker) entries outside the axes, on the figure's right edge."""
+    from matplotlib.lines import Line2D
+
+    handles = [
+        Line2D([], [], linestyle="none", marker=m, ms=5, color=c, markeredgecolor="0.25", markeredgewidth=0.3)
+        for _, c, m in legend
+    ]
+    ncol = max(1, int(np.ceil(len(legend) / LEGEND_ROWS)))
+    fig.legend(
+        handles,
+        [lab for lab, _, _ in legend],
+        loc="upper right",
+        bbox_to_anchor=(0.995, 0.98),
+        ncol=ncol,
+        fontsize=7,
+        title=title,
+        title_fontsize=8,
+        frameon=False,
+        columnspacing=0.8,
+        handletextpad=0.3,
+    )
+
+
+#: the legend titles of the groupings
+LEGEND_TITLES = {
+    "baseline": "baseline",
+    "station": "station\n(marker halves: the\nbaseline's two stations)",
+}
+
+
 # --------------------------------------------------------------------------- radial plot
 
 
-def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
+def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None, colour_by=None):
     """Amplitude and phase against uv distance, data with errors and the model, residuals below.
 
     ``model_vis`` is the model evaluated at the data's own (u, v) (one complex value per row, Jy).
@@ -66,11 +157,19 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
     distance alone). The residual panel shows (|V| - |M|) / sigma and the wrapped phase
     difference divided by its error sigma / |V| (high-SNR error, Chael et al. 2018, ApJ 857, 23).
 
+    ``colour_by`` None draws the data in one colour; "baseline", "station" (split markers, see
+    :func:`row_groups`) or "time" (hours of UTC on a sequential map) colour the data points of
+    every panel, the model then drawn in black.
+
     Returns (fig, numbers); numbers holds every plotted array in uv-distance order: ``uv``
     (wavelengths), ``uv_scale`` and ``uv_unit`` of the axis, ``amplitude``, ``sigma``,
     ``model_amplitude`` (Jy), ``phase_deg``, ``phase_sigma_deg``, ``model_phase_deg``,
-    ``residual_amplitude``, ``residual_phase`` (both in units of their error), ``order``.
+    ``residual_amplitude``, ``residual_phase`` (both in units of their error), ``order``,
+    ``colour_by``, ``colour_key`` (per row: group index or hours; None without colouring) and
+    ``groups`` (the legend's labels: baselines or stations).
     """
+    if colour_by is not None and colour_by not in COLOURINGS:
+        raise UvfitError(f"unknown colouring '{colour_by}'", f"use one of {', '.join(COLOURINGS)}")
     model_vis = _check_lengths(vset, model_vis)
     q = vset.uv_distance
     order = np.argsort(q, kind="stable")
@@ -89,27 +188,58 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
         res_phase = np.where(phase_sigma > 0, dphase / phase_sigma, np.nan)
     x = q / scale
 
+    hours, day0 = _hours(vset.time[order])
+    groups, key, legend = (None, None, [])
+    if colour_by in ("baseline", "station"):
+        groups, key, legend = row_groups(vset.station1[order], vset.station2[order], colour_by)
+    elif colour_by == "time":
+        key = hours
+    model_colour = MODEL_COLOUR if colour_by is None else "black"
+
     fig, axes = style.new_figure(3, 1, sharex=True, figsize=(8.0, 8.5), gridspec_kw={"height_ratios": [3, 2, 1.6]})
     with style.style():
         ax_a, ax_p, ax_r = axes
-        ax_a.errorbar(
-            x, amp, yerr=sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR, alpha=0.6, label="data ±1σ", zorder=2
+        series = (
+            (ax_a, amp, sigma, "o"),
+            (ax_p, phase, phase_sigma, "o"),
+            (ax_r, res_amp, None, "o"),
+            (ax_r, res_phase, None, "^"),
         )
-        ax_a.plot(x, mamp, ".", ms=2.5, color=MODEL_COLOUR, label="model at the data's (u, v)", zorder=3)
+        if groups is not None:
+            for g, (_, sel, kw) in enumerate(groups):
+                for ax, y, err, marker in series:
+                    if err is not None:
+                        bar = "data ±1σ" if (g == 0 and ax is ax_a) else None
+                        ax.errorbar(
+                            x[sel], y[sel], yerr=err[sel], fmt="none", lw=0.5, ecolor="0.6", zorder=1, label=bar
+                        )
+                    ax.plot(x[sel], y[sel], linestyle="none", ms=3.5, alpha=0.9, zorder=2, **{**kw, "marker": marker})
+            _group_legend(fig, legend, LEGEND_TITLES[str(colour_by)])
+        elif colour_by == "time":
+            for ax, y, err, marker in series:
+                if err is not None:
+                    bar = "data ±1σ" if ax is ax_a else None
+                    ax.errorbar(x, y, yerr=err, fmt="none", lw=0.5, ecolor="0.6", zorder=1, label=bar)
+                sc = ax.scatter(x, y, c=key, s=8, marker=marker, cmap=style.SEQUENTIAL_CMAP, linewidths=0, zorder=2)
+        else:
+            ax_a.errorbar(
+                x, amp, yerr=sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR, alpha=0.6, label="data ±1σ", zorder=2
+            )
+            ax_p.errorbar(x, phase, yerr=phase_sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR, alpha=0.6, zorder=2)
+            ax_r.plot(x, res_amp, "o", ms=2.5, color=DATA_COLOUR, alpha=0.7, label="(|V| − |M|) / σ")
+            ax_r.plot(x, res_phase, "^", ms=2.5, color=OKABE_ITO["orange"], alpha=0.7, label="(φ − φ_M) / σ_φ")
+        ax_a.plot(x, mamp, ".", ms=2.5, color=model_colour, label="model at the data's (u, v)", zorder=3)
         ax_a.set_ylabel("amplitude (Jy)")
         if log_amplitude:
             ax_a.set_yscale("log")
         else:
             ax_a.set_ylim(bottom=0.0)
         ax_a.legend(loc="upper right", markerscale=2.5)
-        ax_p.errorbar(x, phase, yerr=phase_sigma, fmt="o", ms=2.5, lw=0.6, color=DATA_COLOUR, alpha=0.6, zorder=2)
-        ax_p.plot(x, mphase, ".", ms=2.5, color=MODEL_COLOUR, zorder=3)
+        ax_p.plot(x, mphase, ".", ms=2.5, color=model_colour, zorder=3)
         ax_p.set_ylabel("phase (deg)")
         ax_p.set_ylim(-190, 190)
         ax_p.set_yticks([-180, -90, 0, 90, 180])
         ax_r.axhline(0.0, color="0.3", lw=0.8)
-        ax_r.plot(x, res_amp, "o", ms=2.5, color=DATA_COLOUR, alpha=0.7, label="(|V| − |M|) / σ")
-        ax_r.plot(x, res_phase, "^", ms=2.5, color=OKABE_ITO["orange"], alpha=0.7, label="(φ − φ_M) / σ_φ")
         finite = np.concatenate([res_amp[np.isfinite(res_amp)], res_phase[np.isfinite(res_phase)]])
         lim = max(5.0, float(np.max(np.abs(finite))) * 1.1) if finite.size else 5.0
         if lim > 30.0:
@@ -121,14 +251,23 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
             ax_r.set_yticklabels([f"{t:g}" for t in ticks])
         ax_r.set_ylim(-lim, lim)
         ax_r.set_ylabel("normalised\nresidual (σ)")
-        ax_r.legend(loc="upper right", ncol=2, markerscale=2.5)
+        if colour_by is None:
+            ax_r.legend(loc="upper right", ncol=2, markerscale=2.5)
+        else:
+            ax_r.set_title("residuals: ○ amplitude (|V| − |M|) / σ,  △ phase (φ − φ_M) / σ_φ", fontsize=9)
         ax_r.set_xlabel(f"uv distance ({unit})")
         ax_r.set_xlim(left=0.0)
         head = title or f"{vset.source}: visibilities against uv distance"
         ax_a.set_title(head)
         if note:
-            fig.text(0.01, 0.005, note, fontsize=8, color="0.25", ha="left", va="bottom")
-        fig.tight_layout()
+            fig.text(0.01, 0.005, note, fontsize=8, color="0.25", ha="left", va="bottom", wrap=True)
+        if groups is not None:
+            _fit_legend(fig, bottom=0.04 if note else 0.0)
+        else:
+            fig.tight_layout(rect=(0.0, 0.04 if note else 0.0, 1.0, 1.0))
+        if colour_by == "time":
+            cb = fig.colorbar(sc, ax=list(axes), shrink=0.6, pad=0.02)
+            cb.set_label(f"time (h UTC from MJD {day0:.0f})")
     numbers = {
         "uv": q,
         "uv_scale": scale,
@@ -142,6 +281,9 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
         "model_phase_deg": mphase,
         "residual_amplitude": res_amp,
         "residual_phase": res_phase,
+        "colour_by": colour_by,
+        "colour_key": key,
+        "groups": [lab for lab, _, _ in legend],
     }
     return fig, numbers
 
@@ -152,50 +294,34 @@ def radial_plot(vset, model_vis, title=None, log_amplitude=False, note=None):
 def uv_coverage_plot(vset, colour_by="baseline", title=None):
     """The (u, v) coverage, each row and its Hermitian conjugate (-u, -v).
 
-    ``colour_by`` is "baseline" (one colour and marker per baseline) or "time" (a sequential map
-    of the hours of UTC). u increases to the LEFT (east on the sky), v upward (north).
+    ``colour_by`` is "baseline" (one colour and marker per baseline), "station" (markers split
+    between the colours of the baseline's two stations, a legend by station: readable when there
+    are many baselines) or "time" (a sequential map of the hours of UTC). u increases to the LEFT
+    (east on the sky), v upward (north).
 
     Returns (fig, numbers): ``u``, ``v`` (wavelengths, the rows followed by their conjugates),
-    ``scale``, ``unit``, ``baselines`` (the labels in legend order), ``colour_key`` (per point:
-    baseline index or hours).
+    ``scale``, ``unit``, ``baselines`` (the baseline labels), ``groups`` (the legend's labels:
+    baselines or stations; empty for time), ``colour_key`` (per point: baseline index or hours).
     """
-    if colour_by not in ("baseline", "time"):
-        raise UvfitError(f"unknown colouring '{colour_by}'", "use 'baseline' or 'time'")
+    if colour_by not in COLOURINGS:
+        raise UvfitError(f"unknown colouring '{colour_by}'", f"use one of {', '.join(COLOURINGS)}")
     u = np.concatenate([vset.u, -vset.u])
     v = np.concatenate([vset.v, -vset.v])
     scale, unit = style.uv_unit(np.hypot(u, v).max() if u.size else 0.0)
-    labels = vset.baseline_labels
-    baselines, index = np.unique(labels, return_inverse=True)
+    baselines = np.unique(vset.baseline_labels)
     hours, day0 = _hours(vset.time)
+    legend = []
     fig, ax = style.new_figure(figsize=(8.6, 7.0))
     with style.style():
-        if colour_by == "baseline":
+        if colour_by in ("baseline", "station"):
+            groups, index, legend = row_groups(vset.station1, vset.station2, colour_by)
             key = np.concatenate([index, index])
-            for i, name in enumerate(baselines):
-                sel = key == i
-                ax.plot(
-                    u[sel] / scale,
-                    v[sel] / scale,
-                    linestyle="none",
-                    marker=style.MARKERS[(i // len(style.CYCLE)) % len(style.MARKERS)],
-                    ms=2.5,
-                    color=style.CYCLE[i % len(style.CYCLE)],
-                    label=name,
-                )
+            for name, sel, kw in groups:
+                both = np.concatenate([sel, sel])
+                ms = 2.5 if colour_by == "baseline" else 4.5
+                ax.plot(u[both] / scale, v[both] / scale, linestyle="none", ms=ms, label=name, **kw)
             # outside the axes, in as many columns as the height needs (about 22 rows fit)
-            ncol = max(1, int(np.ceil(len(baselines) / LEGEND_ROWS)))
-            fig.legend(
-                loc="upper right",
-                bbox_to_anchor=(0.995, 0.98),
-                ncol=ncol,
-                fontsize=7,
-                markerscale=2.0,
-                title="baseline",
-                title_fontsize=8,
-                frameon=False,
-                columnspacing=0.8,
-                handletextpad=0.3,
-            )
+            _group_legend(fig, legend, LEGEND_TITLES[colour_by])
         else:
             key = np.concatenate([hours, hours])
             sc = ax.scatter(u / scale, v / scale, c=key, s=4, cmap=style.SEQUENTIAL_CMAP, linewidths=0)
@@ -208,7 +334,7 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
         ax.set_xlabel(f"u ({unit}), increasing to the left (east)")
         ax.set_ylabel(f"v ({unit}), north up")
         ax.set_title(title or f"{vset.source}: (u, v) coverage with conjugates")
-        if colour_by == "baseline":
+        if colour_by != "time":
             _fit_legend(fig)
         else:
             fig.tight_layout()
@@ -218,6 +344,7 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
         "scale": scale,
         "unit": unit,
         "baselines": baselines.tolist(),
+        "groups": [lab for lab, _, _ in legend],
         "colour_key": key,
         "colour_by": colour_by,
     }
@@ -228,9 +355,10 @@ def uv_coverage_plot(vset, colour_by="baseline", title=None):
 LEGEND_ROWS = 22
 
 
-def _fit_legend(fig):
+def _fit_legend(fig, bottom=0.0):
     """Make room for the figure's legend (anchored to the figure's right edge, so never cut off):
-    the figure is widened by the legend's width and the axes laid out to its left."""
+    the figure is widened by the legend's width and the axes laid out to its left (above
+    ``bottom``, a fraction of the height kept for a footnote)."""
     legend = fig.legends[0]
     renderer = fig.canvas.get_renderer()
     box = legend.get_window_extent(renderer)
@@ -238,7 +366,7 @@ def _fit_legend(fig):
     width, height = fig.get_size_inches()
     fig.set_size_inches(width + legend_w - 1.6, max(height, box.height / fig.dpi + 0.4))
     width = fig.get_size_inches()[0]
-    fig.tight_layout(rect=(0.0, 0.0, 1.0 - legend_w / width, 1.0))
+    fig.tight_layout(rect=(0.0, bottom, 1.0 - legend_w / width, 1.0))
 
 
 # --------------------------------------------------------------------------- closure phases
@@ -372,7 +500,9 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
 # --------------------------------------------------------------------------- the model on the sky
 
 
-def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None, note=None, vmax=None):
+def sky_plot(
+    image, extent, outlines=(), resolution=None, unit="mas", title=None, note=None, vmax=None, draw_image=True
+):
     """The fitted model on the sky, east to the LEFT, with component outlines and the resolution.
 
     ``image``: 2-D brightness, Jy per pixel, ``image[j, i]`` at relative declination y_j and
@@ -382,10 +512,14 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
     ``unit``), ``major``, ``minor`` (full axes, ``unit``) and ``pa_deg`` (major axis, north through
     east). ``resolution``: the nominal resolution lambda / B_max in ``unit``, drawn as a circle of
     that diameter in the lower left corner. ``vmax``: top of the colour scale (Jy per square
-    ``unit``; default the brightest pixel).
+    ``unit``; default the brightest pixel). An outline's ``position_error`` ({major, minor,
+    pa_deg}, the 1-sigma ellipse) is drawn dotted around its centre. ``draw_image`` False (every
+    component compact) draws the components as markers with no image and no colour bar. A
+    resolution larger than a third of the field is written, not drawn.
 
     Returns (fig, numbers): ``image`` (Jy per square ``unit``), ``extent``, ``peak_xy`` (position of
-    the brightest pixel), ``outlines``, ``resolution``, ``unit``.
+    the brightest pixel), ``outlines``, ``resolution``, ``unit``, ``image_drawn``,
+    ``resolution_drawn``.
     """
     image = np.asarray(image, float)
     if image.ndim != 2 or image.size == 0:
@@ -399,21 +533,24 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
     peak = (x0 + (i + 0.5) * (x1 - x0) / nx, y0 + (j + 0.5) * (y1 - y0) / ny)
     fig, ax = style.new_figure(figsize=(7.6, 6.6))
     with style.style():
-        if vmax is None:
-            top = float(np.max(brightness))
-            vmax = top if np.isfinite(top) and top > 0 else 1.0
-        im = ax.imshow(
-            brightness,
-            origin="lower",
-            extent=(x0, x1, y0, y1),
-            cmap=style.IMAGE_CMAP,
-            vmin=0.0,
-            vmax=vmax,
-            interpolation="nearest",
-            aspect="equal",
-        )
-        cb = fig.colorbar(im, ax=ax, shrink=0.85)
-        cb.set_label(f"brightness (Jy / {label}²)")
+        if draw_image:
+            if vmax is None:
+                top = float(np.max(brightness))
+                vmax = top if np.isfinite(top) and top > 0 else 1.0
+            im = ax.imshow(
+                brightness,
+                origin="lower",
+                extent=(x0, x1, y0, y1),
+                cmap=style.IMAGE_CMAP,
+                vmin=0.0,
+                vmax=vmax,
+                interpolation="nearest",
+                aspect="equal",
+            )
+            cb = fig.colorbar(im, ax=ax, shrink=0.85)
+            cb.set_label(f"brightness (Jy / {label}²)")
+        else:
+            ax.set_aspect("equal")
         halo = {"facecolor": "white", "alpha": 0.8, "edgecolor": "none", "pad": 1.5}
         for k, o in enumerate(outlines):
             colour = style.CYCLE[(k + 1) % len(style.CYCLE)]
@@ -421,8 +558,13 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
                 colour = OKABE_ITO["orange"] if k % 2 else OKABE_ITO["sky_blue"]
             kind = o.get("kind", "point")
             x, y = float(o["x"]), float(o["y"])
+            if colour == OKABE_ITO["yellow"] and not draw_image:
+                colour = OKABE_ITO["reddish_purple"]
             if kind == "point" or not o.get("major"):
-                ax.plot([x], [y], marker="+", ms=12, mew=2, color=colour)
+                if draw_image:
+                    ax.plot([x], [y], marker="+", ms=12, mew=2, color=colour)
+                else:
+                    ax.plot([x], [y], marker="o", ms=8, color=colour, markeredgecolor="black", mew=0.8)
             else:
                 major = float(o["major"])
                 minor = float(o.get("minor", major) or major)
@@ -441,6 +583,21 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
                         linestyle="--" if kind == "ring" else "-",
                     )
                 )
+            err = o.get("position_error")
+            if err and err.get("major", 0) > 0:
+                ax.add_patch(
+                    Ellipse(
+                        (x, y),
+                        width=float(err["major"]),
+                        height=float(err["minor"]),
+                        angle=90.0 - float(err["pa_deg"]),
+                        fill=False,
+                        lw=1.2,
+                        linestyle=":",
+                        color="white" if draw_image else colour,
+                        gid="position_error",
+                    )
+                )
             # labels alternate above and below their centre, so neighbours do not overwrite
             ax.annotate(
                 o.get("label", f"c{k}"),
@@ -451,9 +608,23 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
                 color="black",
                 bbox=halo,
             )
-        if resolution and np.isfinite(resolution) and resolution > 0:
+        width = abs(x1 - x0)
+        resolution_drawn = False
+        if resolution and np.isfinite(resolution) and resolution > width / 3.0:
+            ax.annotate(
+                f"λ/B_max = {resolution:.3g} {label}, larger than this field: the structure drawn is finer "
+                "than the nominal resolution",
+                (0.02, 0.02),
+                xycoords="axes fraction",
+                ha="left",
+                va="bottom",
+                fontsize=8,
+                wrap=True,
+                bbox=halo,
+            )
+        elif resolution and np.isfinite(resolution) and resolution > 0:
+            resolution_drawn = True
             # lower left on the sky = large x (east) and small y, since x increases to the left
-            width = abs(x1 - x0)
             r = 0.5 * float(resolution)
             cx = max(x0, x1) - 0.06 * width - r
             cy = min(y0, y1) + 0.06 * abs(y1 - y0) + r
@@ -486,6 +657,8 @@ def sky_plot(image, extent, outlines=(), resolution=None, unit="mas", title=None
         "outlines": list(outlines),
         "resolution": resolution,
         "unit": unit,
+        "image_drawn": bool(draw_image),
+        "resolution_drawn": resolution_drawn,
     }
     return fig, numbers
 

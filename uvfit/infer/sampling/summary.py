@@ -91,6 +91,8 @@ class Posterior:
         data_path=None,
         notes=None,
         extra=None,
+        frequency=None,
+        redshift=0.0,
     ):
         self.chain = chain
         self.model = model
@@ -104,6 +106,9 @@ class Posterior:
         self.data_path = data_path
         self.notes = list(notes or [])
         self.extra = dict(extra or {})
+        #: the frequency (Hz) and redshift the derived quantities were evaluated at
+        self.frequency = frequency
+        self.redshift = float(redshift or 0.0)
 
     @property
     def names(self):
@@ -232,6 +237,8 @@ def summarize_chain(
         data_path=data_path,
         notes=notes,
         extra=extra,
+        frequency=frequency,
+        redshift=redshift,
     )
 
 

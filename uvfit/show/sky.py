@@ -34,25 +34,8 @@ def _outline(member, unit_label):
         "pa_deg": 0.0,
         "shape": shape,
     }
-    if shape == "gaussian":
-        o.update(kind="ellipse", major=abs(p["fwhm"]), minor=abs(p["fwhm"]))
-    elif shape == "elliptical_gaussian":
-        o.update(
-            kind="ellipse",
-            major=abs(p["fwhm"]),
-            minor=abs(p["fwhm"] * p["axis_ratio"]),
-            pa_deg=float(p["position_angle"]),
-        )
-    elif shape == "disk":
-        o.update(kind="circle", major=abs(p["diameter"]), minor=abs(p["diameter"]))
-    elif shape in ("ring", "ring_modulated"):
-        o.update(kind="ring", major=abs(p["diameter"]), minor=abs(p["diameter"]))
-    elif shape == "sphere":
-        o.update(kind="circle", major=2 * abs(p["radius"]), minor=2 * abs(p["radius"]))
-    elif shape == "thin_shell":
-        o.update(kind="ring", major=2 * abs(p["radius"]), minor=2 * abs(p["radius"]))
-    elif shape == "shell":
-        o.update(kind="circle", major=2 * abs(p["outer_radius"]), minor=2 * abs(p["outer_radius"]))
+    kind, major, minor, pa_deg = member["member"].outline(p)
+    o.update(kind=kind, major=float(major), minor=float(minor), pa_deg=float(pa_deg))
     return o
 
 

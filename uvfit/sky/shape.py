@@ -138,6 +138,16 @@ class Shape:
         rest frame at ``redshift``; ``p`` in radians. None: the shape gives none (default)."""
         return None
 
+    def outline(self, p):
+        """How the sky figure draws the shape: ``(kind, major, minor, position_angle_deg)`` with
+        kind "point", "ellipse", "circle" (filled) or "ring" (an edge), major and minor the full
+        widths in the units of ``p``. Default: a circle as wide as ``main_size`` (read as a
+        diameter), or a point for a shape without a size."""
+        size = self.main_size(p)
+        if size is None:
+            return ("point", 0.0, 0.0, 0.0)
+        return ("circle", abs(size), abs(size), 0.0)
+
     def reported_parameters(self):
         """Local names reported among the derived quantities besides the size (an angle reduced
         to ``periods()``), and held at their best values when the size is tested against zero.

@@ -164,6 +164,10 @@ class CircularGaussian(Shape):
     def size_parameter(self):
         return "fwhm"
 
+    def outline(self, p):
+        """An ellipse of the FWHM (a circle)."""
+        return ("ellipse", abs(p["fwhm"]), abs(p["fwhm"]), 0.0)
+
     def brightness_temperature(self, flux, frequency, p, redshift=0.0):
         """Tb (K) from ``uvfit.sky.temperature.brightness_temperature_gaussian``; inf at zero size."""
         major = p["fwhm"]
@@ -225,6 +229,10 @@ class EllipticalGaussian(Shape):
 
     def size_parameter(self):
         return "fwhm"
+
+    def outline(self, p):
+        """The FWHM ellipse: major axis ``fwhm``, minor ``fwhm * axis_ratio``, at ``position_angle``."""
+        return ("ellipse", abs(p["fwhm"]), abs(p["fwhm"] * p["axis_ratio"]), float(p["position_angle"]))
 
     def reported_parameters(self):
         return ("axis_ratio", "position_angle")

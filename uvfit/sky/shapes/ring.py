@@ -64,6 +64,10 @@ class ThinRing(_radial.OneSizeRadial):
     profile = staticmethod(special.j0)
     profile_derivative = staticmethod(_minus_j1)
 
+    def outline(self, p):
+        """A ring (an edge) of the diameter."""
+        return ("ring", abs(p["diameter"]), abs(p["diameter"]), 0.0)
+
     def singular(self, p):
         """True: all the flux is on a curve; render it from ``sample_points``."""
         return True
@@ -97,6 +101,10 @@ class ModulatedRing(Shape):
     bounds = {"diameter": (0.0, np.inf), "blur": (0.0, np.inf), "amplitude_1": (0.0, 0.5), "angle_1": (-np.inf, np.inf)}
 
     _HARMONIC = re.compile(r"^(amplitude|angle)_([1-9][0-9]*)$")
+
+    def outline(self, p):
+        """A ring (an edge) of the diameter."""
+        return ("ring", abs(p["diameter"]), abs(p["diameter"]), 0.0)
 
     def __init__(self, **settings):
         super().__init__(**settings)

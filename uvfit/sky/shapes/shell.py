@@ -46,6 +46,10 @@ class Shell(Shape):
     real_when_centred = True
     bounds = {"inner_radius": (0.0, np.inf), "outer_radius": (0.0, np.inf)}
 
+    def outline(self, p):
+        """A filled circle of the outer diameter."""
+        return ("circle", 2 * abs(p["outer_radius"]), 2 * abs(p["outer_radius"]), 0.0)
+
     def invalid_values(self, p):
         """An inner radius above the outer one describes no shell."""
         if p["inner_radius"] > p["outer_radius"]:
@@ -137,6 +141,10 @@ class ThinShell(_radial.OneSizeRadial):
     profile = staticmethod(_radial.sinc)
     profile_derivative = staticmethod(_radial.sinc_derivative)
 
+    def outline(self, p):
+        """A ring (an edge, the limb-brightened rim) of the diameter."""
+        return ("ring", 2 * abs(p["radius"]), 2 * abs(p["radius"]), 0.0)
+
     def singular(self, p):
         """True: the projected brightness diverges at the rim; render from ``sample_points``."""
         return True
@@ -163,6 +171,10 @@ class Sphere(_radial.OneSizeRadial):
     gradient_k_first = True
     profile = staticmethod(_radial.ball)
     profile_derivative = staticmethod(_radial.ball_derivative)
+
+    def outline(self, p):
+        """A filled circle of the diameter."""
+        return ("circle", 2 * abs(p["radius"]), 2 * abs(p["radius"]), 0.0)
 
     def singular(self, p):
         """False: the projected brightness is bounded."""

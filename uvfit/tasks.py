@@ -1156,6 +1156,94 @@ def jackknife(
     return JackknifeReport(record=out, notes=notes)
 
 
+# --------------------------------------------------------------------------- image
+
+
+@dataclass
+class ImageReport:
+    """The result of :func:`image`: the image's summary (JSON), its pixels and FITS header cards.
+
+    ``pixels[j, i]`` is FITS pixel (i + 1, j + 1); ``write(path)`` writes the FITS file."""
+
+    record: dict
+    pixels: Any
+    cards: list
+    history: list
+
+    def hdu(self) -> Any:
+        """The astropy PrimaryHDU of the image."""
+        from .show.modelimage import image_hdu
+
+        return image_hdu(self.pixels, self.cards, self.history)
+
+    def write(self, path: str, force: bool = False) -> str:
+        """Write the FITS file atomically; an existing file only with ``force``."""
+        from .outputs import atomic_write_with
+
+        hdu = self.hdu()
+        return atomic_write_with(path, lambda tmp: hdu.writeto(tmp), force=force)
+
+    def to_dict(self) -> dict:
+        """What ``uvfit image --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The summary ``uvfit image`` prints."""
+        from .show.text import image_text
+
+        return image_text(self.record)
+
+
+def image(
+    fit: Union[dict, str, "os.PathLike[str]"],
+    pixel: Optional[float] = None,
+    size: int = 256,
+    restore: Optional[str] = None,
+    data: Optional[Data] = None,
+) -> ImageReport:
+    """The fitted model as an image on a celestial grid (FITS; see :mod:`uvfit.show.modelimage`).
+
+    Parameters
+    ----------
+    fit : path or dict
+        A fit result (the JSON of ``uvfit fit --json``).
+    pixel : float, optional
+        Pixel size in the fit's angular unit (default: a tenth of the nominal resolution, larger
+        when needed to hold the model).
+    size : int
+        Pixels per side.
+    restore : str, optional
+        None (flux per pixel, JY/PIXEL), ``"auto"`` (a Gaussian beam from the data's uv
+        coverage) or ``"MAJOR,MINOR,PA"`` (FWHM in the angular unit, degrees): JY/BEAM.
+    data : VisibilitySet or path, optional
+        Read only for the automatic beam or when the fit records no phase centre (default: the
+        fit's data file).
+
+    Returns
+    -------
+    ImageReport
+        ``write(path)`` writes the FITS file; ``to_dict()`` the JSON of ``uvfit image --json``.
+
+    Raises
+    ------
+    UvfitError
+        A file that is not a fit result, bad pixel, size or beam, or no phase centre.
+    """
+    from .show.modelimage import build_image
+    from .show.readback import load_fit
+
+    fit_path = None
+    if isinstance(fit, dict):
+        record_in = fit
+    else:
+        fit_path = os.fspath(fit)
+        record_in = load_fit(fit_path)
+    record, pixels, cards, history = build_image(
+        record_in, fit_path=fit_path, pixel=pixel, size=size, restore=restore, data=data
+    )
+    return ImageReport(record=record, pixels=pixels, cards=cards, history=history)
+
+
 __all__ = [
     "fit",
     "sample",
@@ -1179,4 +1267,6 @@ __all__ = [
     "jackknife",
     "ProfileReport",
     "JackknifeReport",
+    "image",
+    "ImageReport",
 ]

@@ -379,3 +379,28 @@ def batch_text(rows, n_run, output):
         lines.append(f"  {r['name']:<{width}}  {r['status']:<7}  {tail}")
     lines.append(f"results table: {output}")
     return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------- image
+
+
+def image_text(out):
+    """The summary of a model image (``uvfit.tasks.image(...).to_dict()``)."""
+    unit = out.get("angular_unit") or ""
+    n = out["size_pixels"]
+    lines = [
+        f"model image of {out.get('source') or 'the fit'}: {n} x {n} pixels of {out['pixel']:.4g} {unit}, "
+        f"centre RA {out['ra_deg']:.6f} deg, Dec {out['dec_deg']:+.6f} deg, unit {out['bunit']}",
+        f"model flux {out['model_flux_jy']:.6g} Jy, inside the image {out['flux_in_image_jy']:.6g} Jy; "
+        f"peak {out['peak']:.4g} {out['peak_unit']}",
+    ]
+    beam = out.get("beam")
+    if beam:
+        lines.append(
+            f"restoring beam {beam['major']:.4g} x {beam['minor']:.4g} {unit}, PA {beam['pa_deg']:.1f} deg ({beam['how']})"
+        )
+    lines.append("pixels per component:")
+    lines += [f"  {name}: {rule}" for name, rule in out.get("rendering", {}).items()]
+    lines += [f"NOTE: {note}" for note in out.get("notices", [])]
+    lines += list(out.get("cautions", []))
+    return "\n".join(lines)

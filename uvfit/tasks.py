@@ -1244,6 +1244,69 @@ def image(
     return ImageReport(record=record, pixels=pixels, cards=cards, history=history)
 
 
+# --------------------------------------------------------------------------- motion
+
+
+@dataclass
+class MotionReport:
+    """The result of :func:`motion`: the motion of each component across the epochs (JSON)."""
+
+    record: dict
+
+    def to_dict(self) -> dict:
+        """What ``uvfit motion --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The table ``uvfit motion`` prints."""
+        from .show.text import motion_text
+
+        return motion_text(self.record)
+
+
+def motion(
+    fits: Sequence[Union[dict, str, "os.PathLike[str]"]],
+    reference: Optional[str] = None,
+    redshift: Optional[float] = None,
+    cosmology: str = "Planck18",
+) -> MotionReport:
+    """Linear motion of every component relative to a reference across fits of several epochs.
+
+    Parameters
+    ----------
+    fits : sequence of paths or dicts
+        Fit results (the JSON of ``uvfit fit --json``), one per epoch; each records its
+        observation time.
+    reference : str, optional
+        The reference component (default: the brightest one present in every epoch).
+    redshift : float, optional
+        Source redshift: adds the apparent speed beta_app = mu D_L / (c (1 + z)).
+    cosmology : str
+        An astropy.cosmology realisation (Planck18, WMAP9, ...).
+
+    Returns
+    -------
+    MotionReport
+        ``to_dict()`` is the JSON of ``uvfit motion --json`` (see :mod:`uvfit.infer.motion`).
+
+    Raises
+    ------
+    UvfitError
+        Fewer than two epochs, an epoch without observation time, an unknown reference or
+        cosmology, or positions without errors.
+    """
+    from .infer.motion import motions
+    from .show.readback import load_fit
+
+    items = []
+    for k, f in enumerate(fits):
+        if isinstance(f, dict):
+            items.append((f"fit {k + 1}", f))
+        else:
+            items.append((os.fspath(f), load_fit(os.fspath(f))))
+    return MotionReport(record=motions(items, reference=reference, redshift=redshift, cosmology=cosmology))
+
+
 __all__ = [
     "fit",
     "sample",
@@ -1269,4 +1332,6 @@ __all__ = [
     "JackknifeReport",
     "image",
     "ImageReport",
+    "motion",
+    "MotionReport",
 ]

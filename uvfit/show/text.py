@@ -404,3 +404,38 @@ def image_text(out):
     lines += [f"NOTE: {note}" for note in out.get("notices", [])]
     lines += list(out.get("cautions", []))
     return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------- motion
+
+
+def motion_text(out):
+    """The table of a motion result (``uvfit.tasks.motion(...).to_dict()``)."""
+    unit = out.get("angular_unit") or ""
+    lines = [
+        f"{len(out['epochs'])} epochs, {out['epochs'][0]['time_utc'][:10]} to {out['epochs'][-1]['time_utc'][:10]}; "
+        f"reference {out['reference']} ({out['reference_chosen']}); components matched {out['matched']}",
+    ]
+    head = f"{'component':<12} {'mu (mas/yr)':>18} {'PA (deg)':>14} {'ejection (J yr)':>18} {'chi2/dof':>10}"
+    beta = out.get("redshift") is not None
+    if beta:
+        head += f" {'beta_app':>14}"
+    lines.append(head)
+    for name, c in out["components"].items():
+        pm, pa, ej = c["proper_motion"], c["position_angle"], c["ejection_epoch"]
+        year = "-" if ej["year"] is None else f"{ej['year']:.2f} ± {ej['error_years']:.2f}"
+        dof = f"{c['chi2']:.3g}/{c['dof']}" if c["dof"] > 0 else "-"
+        row = f"{name:<12} {pm['value']:>9.4g} ± {pm['error']:<6.2g} {pa['value']:>7.1f} ± {pa['error']:<4.2g} {year:>18} {dof:>10}"
+        if beta:
+            row += f" {c['beta_app']['value']:>7.3g} ± {c['beta_app']['error']:.2g}"
+        lines.append(row)
+    if beta:
+        d = next(iter(out["components"].values()), {}).get("luminosity_distance_mpc")
+        if d is not None:
+            lines.append(
+                f"z = {out['redshift']:g}, {out['cosmology']}: D_L = {d:.1f} Mpc; beta_app = mu D_L / (c (1 + z))"
+            )
+    lines.append(f"positions relative to {out['reference']} in {unit}; time in {out['time_unit']}")
+    lines += [f"note: {n}" for n in out.get("notes", [])]
+    lines += list(out.get("cautions", []))
+    return "\n".join(lines)

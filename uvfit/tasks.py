@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union
+from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union, cast
 
 from .data.select import parse_time, read_selected
 from .data.visset import VisibilitySet
@@ -42,6 +42,22 @@ def load_data(data: Data, selection: Optional[dict] = None, good: bool = True) -
     """(VisibilitySet, notes): ``data`` read if it is a path, then selected (see
     :func:`uvfit.data.select.read_selected`); with ``good`` only the unflagged rows."""
     return read_selected(data, selection, good=good)
+
+
+def _stacked(data: Sequence[Data], selection: Optional[dict]) -> tuple[VisibilitySet, list[str], list[str]]:
+    """Several files (or sets) read with one selection and stacked (``uvfit.data.stack``):
+    (set, notes, labels)."""
+    from .data.stack import stack_sets
+
+    if not data:
+        raise UvfitError("data is an empty list", "give one data file or several")
+    sets, notes, labels = [], [], []
+    for k, item in enumerate(data):
+        vs, more = load_data(item, selection)
+        sets.append(vs)
+        notes += more
+        labels.append(os.fspath(item) if _is_path(item) else f"set {k + 1}")
+    return stack_sets(sets, labels), notes, labels
 
 
 def load_model_or_path(model: Model) -> SkyModel:
@@ -109,7 +125,7 @@ class FitReport:
 
 
 def fit(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     mode: str = "complex",
     systematic: float = 0.0,
@@ -130,8 +146,10 @@ def fit(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities (a file is read; only unflagged rows are used).
+    data : VisibilitySet or path, or a list of them
+        The visibilities (a file is read; only unflagged rows are used). Several files of one
+        source and phase centre are fitted jointly (``uvfit.data.stack.stack_sets``): every
+        parameter shared, the statistic the sum over the files, their chi2 in ``files``.
     model : SkyModel or path
         The model (not changed: a copy is fitted), or its TOML file.
     mode : str
@@ -189,7 +207,11 @@ def fit(
 
     _check_at_least("max_evaluations", max_evaluations, 1)
     sky = load_model_or_path(model)
-    vset, notes = load_data(data, selection)
+    labels = None
+    if isinstance(data, (list, tuple)):
+        vset, notes, labels = _stacked(data, selection)
+    else:
+        vset, notes = load_data(cast(Data, data), selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
     out, result = run_fit(
@@ -221,6 +243,11 @@ def fit(
 
     annotate_flux_scale(out, result)
     _fit_extras(out, result, profile, jackknife, seed, redshift)
+    if labels is not None:
+        from .infer.joint import per_file_chi2
+
+        out["data"] = labels
+        out["files"] = per_file_chi2(result.statistic, result.statistic.model.get_free(), labels)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -1228,6 +1255,15 @@ def image(
     ------
     UvfitError
         A file that is not a fit result, bad pixel, size or beam, or no phase centre.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> report = uvfit.fit(demo_file("uvd0917.uvfits"), demo_file("one.toml"), seed=0)
+    >>> picture = uvfit.tasks.image(report.to_dict(), size=64)
+    >>> picture.record["bunit"], picture.pixels.shape
+    ('JY/PIXEL', (64, 64))
     """
     from .show.modelimage import build_image
     from .show.readback import load_fit

@@ -201,7 +201,13 @@ def build_image(
             raise UvfitError(f"{why} and no visibility file is known", "name the file the fit was made on with data")
         from ..data.select import read_selected
 
-        vset, _ = read_selected(source, merged_selection(fit, {}), good=True)
+        chosen = merged_selection(fit, {})
+        if isinstance(source, (list, tuple)):  # a joint fit of several files
+            from ..data.stack import stack_sets
+
+            vset = stack_sets([read_selected(s, chosen, good=True)[0] for s in source], [str(s) for s in source])
+        else:
+            vset, _ = read_selected(source, chosen, good=True)
         if not np.isfinite(float(observed.get("ra_deg") or np.nan)):
             observed.update({"source": vset.source, "ra_deg": vset.ra_deg, "dec_deg": vset.dec_deg})
     ra, dec = float(observed.get("ra_deg") or np.nan), float(observed.get("dec_deg") or np.nan)

@@ -89,6 +89,8 @@ def fit_text(out):
             f"worst {label} (chi2 / n): "
             + ", ".join(f"{k} {v['chi2'] / max(v['n'], 1):.3g} ({v['n']})" for k, v in worst)
         )
+    for f in out.get("files") or []:
+        echo(f"file {f['data']}: chi2 {f['chi2']:.6g} on {f['n']} data ({f['rows']} rows)")
     for note in out["notices"]:
         echo(f"notice: {note}")
     for caution in out["cautions"]:

@@ -77,6 +77,7 @@ def test_all_lists_the_public_api():
         uvfit.forecast,
         uvfit.tasks.info,
         uvfit.tasks.observation,
+        uvfit.tasks.image,
     ],
 )
 def test_docstring_examples_run(obj):

@@ -11,6 +11,19 @@ FIT_CAUTIONS = [
     "Calibration errors can mimic or hide structure: check the closure quantities with `uvfit closures`.",
 ]
 
+#: cautions every model image carries (``cautions`` of the image JSON, HISTORY of the FITS file)
+IMAGE_CAUTIONS = [
+    "This image is the fitted model, not an image made from the data: structure the model lacks is absent.",
+    "Restored with a beam, it shows the model at that resolution; it is not a deconvolved map.",
+]
+
+#: cautions every motion result carries (``cautions`` of the motion JSON)
+MOTION_CAUTIONS = [
+    "A linear motion is assumed: accelerating or curved paths bias the speed and the ejection epoch.",
+    "The reference is assumed stationary: a core whose position shifts with time or frequency moves every "
+    "component with it.",
+]
+
 #: the caution of a model comparison (``caution`` of the comparison JSON, and the verdict's end)
 COMPARE_CAUTION = (
     "This holds for these model families only: a model outside them may describe the "

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union
+from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union, cast
 
 from .data.select import parse_time, read_selected
 from .data.visset import VisibilitySet
@@ -42,6 +42,22 @@ def load_data(data: Data, selection: Optional[dict] = None, good: bool = True) -
     """(VisibilitySet, notes): ``data`` read if it is a path, then selected (see
     :func:`uvfit.data.select.read_selected`); with ``good`` only the unflagged rows."""
     return read_selected(data, selection, good=good)
+
+
+def _stacked(data: Sequence[Data], selection: Optional[dict]) -> tuple[VisibilitySet, list[str], list[str]]:
+    """Several files (or sets) read with one selection and stacked (``uvfit.data.stack``):
+    (set, notes, labels)."""
+    from .data.stack import stack_sets
+
+    if not data:
+        raise UvfitError("data is an empty list", "give one data file or several")
+    sets, notes, labels = [], [], []
+    for k, item in enumerate(data):
+        vs, more = load_data(item, selection)
+        sets.append(vs)
+        notes += more
+        labels.append(os.fspath(item) if _is_path(item) else f"set {k + 1}")
+    return stack_sets(sets, labels), notes, labels
 
 
 def load_model_or_path(model: Model) -> SkyModel:
@@ -109,7 +125,7 @@ class FitReport:
 
 
 def fit(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     mode: str = "complex",
     systematic: float = 0.0,
@@ -130,8 +146,10 @@ def fit(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities (a file is read; only unflagged rows are used).
+    data : VisibilitySet or path, or a list of them
+        The visibilities (a file is read; only unflagged rows are used). Several files of one
+        source and phase centre are fitted jointly (``uvfit.data.stack.stack_sets``): every
+        parameter shared, the statistic the sum over the files, their chi2 in ``files``.
     model : SkyModel or path
         The model (not changed: a copy is fitted), or its TOML file.
     mode : str
@@ -189,7 +207,11 @@ def fit(
 
     _check_at_least("max_evaluations", max_evaluations, 1)
     sky = load_model_or_path(model)
-    vset, notes = load_data(data, selection)
+    labels = None
+    if isinstance(data, (list, tuple)):
+        vset, notes, labels = _stacked(data, selection)
+    else:
+        vset, notes = load_data(cast(Data, data), selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
     out, result = run_fit(
@@ -221,6 +243,11 @@ def fit(
 
     annotate_flux_scale(out, result)
     _fit_extras(out, result, profile, jackknife, seed, redshift)
+    if labels is not None:
+        from .infer.joint import per_file_chi2
+
+        out["data"] = labels
+        out["files"] = per_file_chi2(result.statistic, result.statistic.model.get_free(), labels)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -1156,6 +1183,166 @@ def jackknife(
     return JackknifeReport(record=out, notes=notes)
 
 
+# --------------------------------------------------------------------------- image
+
+
+@dataclass
+class ImageReport:
+    """The result of :func:`image`: the image's summary (JSON), its pixels and FITS header cards.
+
+    ``pixels[j, i]`` is FITS pixel (i + 1, j + 1); ``write(path)`` writes the FITS file."""
+
+    record: dict
+    pixels: Any
+    cards: list
+    history: list
+
+    def hdu(self) -> Any:
+        """The astropy PrimaryHDU of the image."""
+        from .show.modelimage import image_hdu
+
+        return image_hdu(self.pixels, self.cards, self.history)
+
+    def write(self, path: str, force: bool = False) -> str:
+        """Write the FITS file atomically; an existing file only with ``force``."""
+        from .outputs import atomic_write_with
+
+        hdu = self.hdu()
+        return atomic_write_with(path, lambda tmp: hdu.writeto(tmp), force=force)
+
+    def to_dict(self) -> dict:
+        """What ``uvfit image --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The summary ``uvfit image`` prints."""
+        from .show.text import image_text
+
+        return image_text(self.record)
+
+
+def image(
+    fit: Union[dict, str, "os.PathLike[str]"],
+    pixel: Optional[float] = None,
+    size: int = 256,
+    restore: Optional[str] = None,
+    data: Optional[Data] = None,
+) -> ImageReport:
+    """The fitted model as an image on a celestial grid (FITS; see :mod:`uvfit.show.modelimage`).
+
+    Parameters
+    ----------
+    fit : path or dict
+        A fit result (the JSON of ``uvfit fit --json``).
+    pixel : float, optional
+        Pixel size in the fit's angular unit (default: a tenth of the nominal resolution, larger
+        when needed to hold the model).
+    size : int
+        Pixels per side.
+    restore : str, optional
+        None (flux per pixel, JY/PIXEL), ``"auto"`` (a Gaussian beam from the data's uv
+        coverage) or ``"MAJOR,MINOR,PA"`` (FWHM in the angular unit, degrees): JY/BEAM.
+    data : VisibilitySet or path, optional
+        Read only for the automatic beam or when the fit records no phase centre (default: the
+        fit's data file).
+
+    Returns
+    -------
+    ImageReport
+        ``write(path)`` writes the FITS file; ``to_dict()`` the JSON of ``uvfit image --json``.
+
+    Raises
+    ------
+    UvfitError
+        A file that is not a fit result, bad pixel, size or beam, or no phase centre.
+
+    Examples
+    --------
+    >>> import uvfit
+    >>> from uvfit.demo import demo_file
+    >>> report = uvfit.fit(demo_file("uvd0917.uvfits"), demo_file("one.toml"), seed=0)
+    >>> picture = uvfit.tasks.image(report.to_dict(), size=64)
+    >>> picture.record["bunit"], picture.pixels.shape
+    ('JY/PIXEL', (64, 64))
+    """
+    from .show.modelimage import build_image
+    from .show.readback import load_fit
+
+    fit_path = None
+    if isinstance(fit, dict):
+        record_in = fit
+    else:
+        fit_path = os.fspath(fit)
+        record_in = load_fit(fit_path)
+    record, pixels, cards, history = build_image(
+        record_in, fit_path=fit_path, pixel=pixel, size=size, restore=restore, data=data
+    )
+    return ImageReport(record=record, pixels=pixels, cards=cards, history=history)
+
+
+# --------------------------------------------------------------------------- motion
+
+
+@dataclass
+class MotionReport:
+    """The result of :func:`motion`: the motion of each component across the epochs (JSON)."""
+
+    record: dict
+
+    def to_dict(self) -> dict:
+        """What ``uvfit motion --json`` writes."""
+        return self.record
+
+    def text(self) -> str:
+        """The table ``uvfit motion`` prints."""
+        from .show.text import motion_text
+
+        return motion_text(self.record)
+
+
+def motion(
+    fits: Sequence[Union[dict, str, "os.PathLike[str]"]],
+    reference: Optional[str] = None,
+    redshift: Optional[float] = None,
+    cosmology: str = "Planck18",
+) -> MotionReport:
+    """Linear motion of every component relative to a reference across fits of several epochs.
+
+    Parameters
+    ----------
+    fits : sequence of paths or dicts
+        Fit results (the JSON of ``uvfit fit --json``), one per epoch; each records its
+        observation time.
+    reference : str, optional
+        The reference component (default: the brightest one present in every epoch).
+    redshift : float, optional
+        Source redshift: adds the apparent speed beta_app = mu D_L / (c (1 + z)).
+    cosmology : str
+        An astropy.cosmology realisation (Planck18, WMAP9, ...).
+
+    Returns
+    -------
+    MotionReport
+        ``to_dict()`` is the JSON of ``uvfit motion --json`` (see :mod:`uvfit.infer.motion`).
+
+    Raises
+    ------
+    UvfitError
+        Fewer than two epochs, an epoch without observation time, an unknown reference or
+        cosmology, or positions without errors.
+    """
+    from .infer.motion import motions
+    from .show.readback import load_fit
+
+    items = []
+    for k, f in enumerate(fits):
+        if isinstance(f, dict):
+            items.append((f"fit {k + 1}", f))
+        else:
+            items.append((os.fspath(f), load_fit(os.fspath(f))))
+    return MotionReport(record=motions(items, reference=reference, redshift=redshift, cosmology=cosmology))
+
+
 __all__ = [
     "fit",
     "sample",
@@ -1179,4 +1366,8 @@ __all__ = [
     "jackknife",
     "ProfileReport",
     "JackknifeReport",
+    "image",
+    "ImageReport",
+    "motion",
+    "MotionReport",
 ]

@@ -18,7 +18,7 @@ from ._common import (
 
 
 @click.command("fit")
-@click.argument("data", type=click.Path())
+@click.argument("data", nargs=-1, required=True, type=click.Path())
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.option(
     "--mode",
@@ -115,7 +115,9 @@ def command(
     write_model_column=False,
     **kwargs,
 ):
-    """Fit MODEL (a TOML model file) to the visibilities in DATA by least squares.
+    """Fit MODEL (a TOML model file) to the visibilities in DATA by least squares. Several DATA
+    files of one source and phase centre are fitted jointly (every parameter shared, the chi2 of
+    each file reported).
 
     Prints every parameter with its error, the derived quantities (separations, position angles,
     flux ratios, sizes, brightness temperatures, whether each component is resolved), the
@@ -125,11 +127,19 @@ def command(
     from ..outputs import atomic_write, write_json
 
     selection = pop_selection(kwargs)
+    inputs = {f"data file {k + 1}": d for k, d in enumerate(data)}
+    data = data[0] if len(data) == 1 else list(data)
+    if write_model_column and isinstance(data, list):
+        from ..errors import UvfitError
+
+        raise UvfitError(
+            "--write-model-column takes one data file", "fit each Measurement Set alone to write its column"
+        )
     if write_model_column:
         from ..data.ms import check_model_column_writable
 
         check_model_column_writable(data)
-    check_outputs({"--json": json_out, "--save-model": save_model}, {"the data": data, "the model": model}, force)
+    check_outputs({"--json": json_out, "--save-model": save_model}, {**inputs, "the model": model}, force)
     options = dict(
         mode=mode,
         systematic=systematic,

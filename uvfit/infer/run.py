@@ -42,6 +42,27 @@ def parameter_table(result):
     return out
 
 
+def observation_record(vset):
+    """Where and when the fitted rows were observed: source, phase centre (deg), times (MJD, UTC)."""
+    t = np.asarray(vset.time, dtype=float)
+    t = t[np.isfinite(t)]
+    rec = {
+        "source": str(vset.source),
+        "ra_deg": float(vset.ra_deg),
+        "dec_deg": float(vset.dec_deg),
+        "time_start_mjd": float(t.min()) if t.size else None,
+        "time_end_mjd": float(t.max()) if t.size else None,
+        "time_mean_mjd": float(t.mean()) if t.size else None,
+        "time_mean_utc": None,
+        "max_uv_wavelengths": float(np.max(vset.uv_distance)) if vset.n else None,
+    }
+    if t.size:
+        from astropy.time import Time
+
+        rec["time_mean_utc"] = Time(float(t.mean()), format="mjd", scale="utc").isot
+    return rec
+
+
 def result_dict(result, derived=None, mode=None, data_path=None, selection=None, redshift=0.0, frequency=None):
     """The JSON-ready dictionary of a fit (see README, "fit", for the keys)."""
     model = result.model
@@ -60,6 +81,7 @@ def result_dict(result, derived=None, mode=None, data_path=None, selection=None,
         "global_search": bool(result.global_search),
         "angular_unit": model.angular_unit_text,
         "frequency_hz": frequency,
+        "observation": observation_record(stat.vset),
         "redshift": float(redshift or 0.0),
         "parameters": parameter_table(result),
         "derived": derived or {},

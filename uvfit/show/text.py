@@ -89,6 +89,8 @@ def fit_text(out):
             f"worst {label} (chi2 / n): "
             + ", ".join(f"{k} {v['chi2'] / max(v['n'], 1):.3g} ({v['n']})" for k, v in worst)
         )
+    for f in out.get("files") or []:
+        echo(f"file {f['data']}: chi2 {f['chi2']:.6g} on {f['n']} data ({f['rows']} rows)")
     for note in out["notices"]:
         echo(f"notice: {note}")
     for caution in out["cautions"]:
@@ -378,4 +380,64 @@ def batch_text(rows, n_run, output):
         tail = f"reduced chi2 {chi:.3f}" if isinstance(chi, (int, float)) else r["error"]
         lines.append(f"  {r['name']:<{width}}  {r['status']:<7}  {tail}")
     lines.append(f"results table: {output}")
+    return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------- image
+
+
+def image_text(out):
+    """The summary of a model image (``uvfit.tasks.image(...).to_dict()``)."""
+    unit = out.get("angular_unit") or ""
+    n = out["size_pixels"]
+    lines = [
+        f"model image of {out.get('source') or 'the fit'}: {n} x {n} pixels of {out['pixel']:.4g} {unit}, "
+        f"centre RA {out['ra_deg']:.6f} deg, Dec {out['dec_deg']:+.6f} deg, unit {out['bunit']}",
+        f"model flux {out['model_flux_jy']:.6g} Jy, inside the image {out['flux_in_image_jy']:.6g} Jy; "
+        f"peak {out['peak']:.4g} {out['peak_unit']}",
+    ]
+    beam = out.get("beam")
+    if beam:
+        lines.append(
+            f"restoring beam {beam['major']:.4g} x {beam['minor']:.4g} {unit}, PA {beam['pa_deg']:.1f} deg ({beam['how']})"
+        )
+    lines.append("pixels per component:")
+    lines += [f"  {name}: {rule}" for name, rule in out.get("rendering", {}).items()]
+    lines += [f"NOTE: {note}" for note in out.get("notices", [])]
+    lines += list(out.get("cautions", []))
+    return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------- motion
+
+
+def motion_text(out):
+    """The table of a motion result (``uvfit.tasks.motion(...).to_dict()``)."""
+    unit = out.get("angular_unit") or ""
+    lines = [
+        f"{len(out['epochs'])} epochs, {out['epochs'][0]['time_utc'][:10]} to {out['epochs'][-1]['time_utc'][:10]}; "
+        f"reference {out['reference']} ({out['reference_chosen']}); components matched {out['matched']}",
+    ]
+    head = f"{'component':<12} {'mu (mas/yr)':>18} {'PA (deg)':>14} {'ejection (J yr)':>18} {'chi2/dof':>10}"
+    beta = out.get("redshift") is not None
+    if beta:
+        head += f" {'beta_app':>14}"
+    lines.append(head)
+    for name, c in out["components"].items():
+        pm, pa, ej = c["proper_motion"], c["position_angle"], c["ejection_epoch"]
+        year = "-" if ej["year"] is None else f"{ej['year']:.2f} ± {ej['error_years']:.2f}"
+        dof = f"{c['chi2']:.3g}/{c['dof']}" if c["dof"] > 0 else "-"
+        row = f"{name:<12} {pm['value']:>9.4g} ± {pm['error']:<6.2g} {pa['value']:>7.1f} ± {pa['error']:<4.2g} {year:>18} {dof:>10}"
+        if beta:
+            row += f" {c['beta_app']['value']:>7.3g} ± {c['beta_app']['error']:.2g}"
+        lines.append(row)
+    if beta:
+        d = next(iter(out["components"].values()), {}).get("luminosity_distance_mpc")
+        if d is not None:
+            lines.append(
+                f"z = {out['redshift']:g}, {out['cosmology']}: D_L = {d:.1f} Mpc; beta_app = mu D_L / (c (1 + z))"
+            )
+    lines.append(f"positions relative to {out['reference']} in {unit}; time in {out['time_unit']}")
+    lines += [f"note: {n}" for n in out.get("notes", [])]
+    lines += list(out.get("cautions", []))
     return "\n".join(lines)

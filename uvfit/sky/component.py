@@ -160,6 +160,15 @@ class Component:
         frac = render_fractions(self.shape, np.asarray(l, dtype=float) - l0, np.asarray(m, dtype=float) - m0, p)
         return self.flux_at(frequency, values) * np.real(frac)
 
+    def pixel_flux(self, l, m, values, rad_per_unit, frequency=None):
+        """(flux per pixel in Jy integrated over each pixel, the rule used: ``Shape.pixel_flux``)
+        on a regular grid of pixel centres (l east, m north, radians)."""
+        l0 = float(values["east"]) * rad_per_unit
+        m0 = float(values["north"]) * rad_per_unit
+        p = self.shape_values(values, rad_per_unit)
+        got = self.shape.pixel_flux(np.asarray(l, dtype=float) - l0, np.asarray(m, dtype=float) - m0, p)
+        return self.flux_at(frequency, values) * np.real(got.fraction), got.rule
+
     def same_as(self, other):
         return (
             self.name == other.name

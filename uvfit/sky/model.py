@@ -368,6 +368,24 @@ class SkyModel:
                 raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet") from None
         return img
 
+    def pixel_flux(self, l, m, frequency=None, theta=None) -> tuple[np.ndarray, dict[str, str]]:
+        """(image, rules): the flux (Jy) integrated over each pixel of a regular 2-D grid of pixel
+        centres ``l`` (east), ``m`` (north) in the model's angular unit, and {component: how its
+        pixels were computed} (``Shape.pixel_flux``). Flux outside the grid is left out."""
+        l = np.asarray(l, dtype=float) * self.rad_per_unit
+        m = np.asarray(m, dtype=float) * self.rad_per_unit
+        vals = self.values(theta)
+        img = np.zeros(l.shape)
+        rules = {}
+        for c in self.components:
+            local = {ln: vals[f"{c.name}.{ln}"] for ln in c.parameter_names()}
+            try:
+                flux, rules[c.name] = c.pixel_flux(l, m, local, self.rad_per_unit, frequency)
+            except NotImplementedError:
+                raise ModelError(f"component '{c.name}': shape '{c.key}' cannot be drawn as an image yet") from None
+            img += flux
+        return img, rules
+
     def render(self, npix, fov, frequency=None, theta=None, centre=(0.0, 0.0)):
         """(image, l, m): the model on an npix x npix grid spanning ``fov`` (model angular unit).
 

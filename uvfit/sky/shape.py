@@ -16,6 +16,11 @@ import numpy as np
 
 from .parameters import default_bounds
 
+#: sub-pixel points per axis of the default super-sampled pixel flux (``Shape.pixel_flux``)
+SUPER_SAMPLING = 8
+#: a bounded shape under this many pixels across is rendered from its quadrature nodes instead
+COMPACT_PIXELS = 4.0
+
 
 class Member(NamedTuple):
     """One member of a shape as seen on the sky (see ``Shape.members``).
@@ -45,6 +50,20 @@ class MemberSwap(NamedTuple):
     separation: str
     angle: str
     pairs: tuple
+
+
+class PixelFlux(NamedTuple):
+    """What ``Shape.pixel_flux`` gives: ``fraction`` (the unit flux integrated over each pixel,
+    an array like the grid) and ``rule`` (one line saying how it was computed)."""
+
+    fraction: np.ndarray
+    rule: str
+
+
+#: the rules of the default ``Shape.pixel_flux``
+RULE_SUPER = f"super-sampled: brightness averaged over {SUPER_SAMPLING} x {SUPER_SAMPLING} points per pixel"
+RULE_NODES = "quadrature nodes added to their nearest pixel: flux kept, detail below a pixel approximate"
+RULE_EXACT_POINT = "exact: all the flux in the pixel holding the position"
 
 
 class Shape:
@@ -187,6 +206,27 @@ class Shape:
         """Quadrature nodes ``(l, m, weight)`` (flat arrays, radians, weights summing to 1) such
         that sum(weight * f(l, m)) approximates the integral of I f for smooth f."""
         raise NotImplementedError(f"shape '{self.key}' has no point-set description")
+
+    def pixel_flux(self, l, m, p):
+        """PixelFlux: the fraction of the unit flux inside each pixel, and how it was computed.
+
+        ``l``, ``m``: 2-D arrays of pixel-centre offsets from the shape's centre (radians, a
+        regular grid, steps of either sign). Unlike ``pixel_fractions`` (for display) nothing is
+        widened: the values integrate the brightness over the pixel. Default: a singular shape,
+        or one under COMPACT_PIXELS pixels across (``main_size``), puts the weights of its
+        ``sample_points`` into their nearest pixels (flux kept exactly); any other one averages
+        its ``brightness`` over SUPER_SAMPLING x SUPER_SAMPLING points per pixel. A shape with an
+        analytic pixel integral overrides this."""
+        from .shapes._pixels import oversampled
+
+        dl, dm = grid_steps(l, m)
+        size = self.main_size(p)
+        compact = size is not None and abs(size) < COMPACT_PIXELS * float(np.sqrt(dl * dm))
+        if self.singular(p) or compact:
+            lp, mp, w = self.sample_points(p)
+            return PixelFlux(splat(l, m, lp, mp, w), RULE_NODES)
+        frac = oversampled(lambda a, b: self.brightness(a, b, p), l, m, s=SUPER_SAMPLING)
+        return PixelFlux(np.asarray(frac, dtype=float), RULE_SUPER)
 
 
 def render_fractions(shape, l, m, p):

@@ -2,7 +2,7 @@
 
 import numpy as np
 
-from ..shape import Shape
+from ..shape import RULE_EXACT_POINT, PixelFlux, Shape, nearest_pixel
 
 
 class Point(Shape):
@@ -31,3 +31,7 @@ class Point(Shape):
     def sample_points(self, p, n=1):
         """One node at the centre with all the weight."""
         return np.zeros(1), np.zeros(1), np.ones(1)
+
+    def pixel_flux(self, l, m, p):
+        """Exact: all the flux in the pixel holding the position."""
+        return PixelFlux(nearest_pixel(l, m), RULE_EXACT_POINT)

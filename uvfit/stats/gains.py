@@ -558,3 +558,28 @@ class GainStatistic(Statistic):
             "from the Schur complement of the gain blocks",
             "table": self.gain_table(theta, covariance),
         }
+
+
+def gain_astropy_table(record: dict, meta: dict | None = None):
+    """The ``gains`` record of a fit as an astropy Table (for ECSV): station, interval, time start
+    and end (MJD), amplitude and its error, phase and its error (deg), reference; ``meta``
+    (seed, data, ...) and the record's settings go into the table's meta."""
+    import astropy.units as un
+    from astropy.table import Table
+
+    rows = record.get("table") or []
+    t = Table()
+    t["station"] = np.array([r["station"] for r in rows], dtype="U32")
+    t["interval"] = np.array([r["interval"] for r in rows], int)
+    for key in ("time_start_mjd", "time_end_mjd"):
+        t[key.replace("_mjd", "")] = np.array([r[key] for r in rows], float) * un.day
+        t[key.replace("_mjd", "")].description = "MJD (UTC)"
+    t["amplitude"] = np.array([r["amplitude"] for r in rows], float)
+    t["amplitude_error"] = np.array([r["amplitude_error"] for r in rows], float)
+    t["phase"] = np.array([r["phase_deg"] for r in rows], float) * un.deg
+    t["phase_error"] = np.array([r["phase_error_deg"] for r in rows], float) * un.deg
+    t["reference"] = np.array([r["reference"] for r in rows], bool)
+    t.meta.update({k: v for k, v in record.items() if k != "table"})
+    t.meta["model"] = "V_ij = g_i conj(g_j) V_model, g = amplitude * exp(i phase)"
+    t.meta.update(meta or {})
+    return t

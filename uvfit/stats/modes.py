@@ -63,8 +63,8 @@ def make_statistic(mode, vset, model, systematic=0.0, **options):
         check_gain_kind(gains)
         if mode != "complex":
             raise UvfitError(
-                f"gains are solved only with mode complex (got mode {mode})",
-                f"use mode complex with gains={gains}, or leave gains out: closure modes are immune to station gains",
+                f"gains={gains} needs mode complex (got mode {mode})",
+                "use mode complex, or leave gains out (closure modes need no gain solution)",
             )
         return GainStatistic(vset, model, systematic=systematic, **options)
     module, name, _ = MODES[mode]

@@ -275,7 +275,7 @@ class GainSolver:
                 new = np.where(mod > 1e-3, new, 1e-3 * np.exp(1j * np.angle(new)))
             change = float(np.max(np.abs(new - g))) if size else 0.0
             g = 0.5 * (g + new)
-            if change < 1e-10 and step > 2:
+            if change < 1e-7 and step > 2:
                 break
         g = g.reshape(n_int, n_st)
         return np.log(np.abs(g)), np.angle(g)
@@ -292,46 +292,55 @@ class GainSolver:
         phi = np.where(self.present, phi, 0.0)
         return a, phi
 
-    def _linearise(self, model_vis, a, phi):
-        """(predicted, residual vector, sparse gain Jacobian, normal blocks, gradient blocks)."""
-        n, w = self.n_rows, self.width
+    def _linearise(self, model_vis, a, phi, jacobian=False):
+        """(predicted, residual vector, normal blocks, gradient blocks, sparse gain Jacobian or
+        None); the blocks are summed straight from the rows (bincount), the sparse Jacobian is
+        built only when asked."""
+        n, w, n_st, n_int = self.n_rows, self.width, self.n_stations, self.n_intervals
         pred = self._row_gains(a, phi) * model_vis
         res_c = (self.vis - pred) / self.sigma
         d = -pred / self.sigma  # d residual / d a_i (and a_j)
         # d residual / d phi_i = -i pred / sigma, d / d phi_j = +i pred / sigma
         vals = np.stack([d, d, 1j * d, -1j * d])
-        rows = np.arange(n)
-        data_r = np.concatenate([vals.real.reshape(-1), vals.imag.reshape(-1)])
-        row_r = np.concatenate([np.tile(rows, 4), np.tile(rows + n, 4)])
-        col_r = np.concatenate([self._cols.reshape(-1), self._cols.reshape(-1)])
+        local = np.stack([self.ant1, self.ant2, n_st + self.ant1, n_st + self.ant2])
+        base = self.interval * (w * w)
+        index = (base[None, None, :] + local[:, None, :] * w + local[None, :, :]).reshape(-1)
+        weight = np.real(np.conj(vals)[:, None, :] * vals[None, :, :]).reshape(-1)
+        blocks = np.bincount(index, weight, n_int * w * w).reshape(n_int, w, w)
+        gindex = (self.interval * w)[None, :] + local
+        grad = np.bincount(gindex.reshape(-1), np.real(np.conj(vals) * res_c).reshape(-1), n_int * w).reshape(n_int, w)
         prior_sd = self.spread[self.prior_station]
-        prior_amp = np.exp(a[self.prior_interval, self.prior_station])
+        pb, ps = self.prior_interval, self.prior_station
+        prior_amp = np.exp(a[pb, ps])
         prior_res = -(prior_amp - 1.0) / prior_sd
-        data_r = np.concatenate([data_r, -prior_amp / prior_sd])
-        row_r = np.concatenate([row_r, 2 * n + np.arange(self.n_prior)])
-        col_r = np.concatenate([col_r, self._prior_cols])
-        keep = self.active.reshape(-1)[col_r]
-        jac = sp.csr_matrix(
-            (data_r[keep], (row_r[keep], col_r[keep])), shape=(2 * n + self.n_prior, self.n_intervals * w)
-        )
+        blocks[pb, ps, ps] += (prior_amp / prior_sd) ** 2
+        grad[pb, ps] += (prior_amp / prior_sd) * (prior_amp - 1.0) / prior_sd
         residuals = np.concatenate([res_c.real, res_c.imag, prior_res])
-        normal = (jac.T @ jac).tocoo()
-        blocks = np.zeros((self.n_intervals, w, w))
-        np.add.at(blocks, (normal.row // w, normal.row % w, normal.col % w), normal.data)
-        grad = np.asarray(jac.T @ residuals).reshape(self.n_intervals, w)
         inactive = ~self.active
         blocks[np.broadcast_to(inactive[:, :, None], blocks.shape)] = 0.0
         blocks[np.broadcast_to(inactive[:, None, :], blocks.shape)] = 0.0
         ib, ic = np.nonzero(inactive)
         blocks[ib, ic, ic] = 1.0
         grad[inactive] = 0.0
-        return pred, residuals, jac, blocks, grad
+        jac = None
+        if jacobian:
+            rows = np.arange(n)
+            data_r = np.concatenate([vals.real.reshape(-1), vals.imag.reshape(-1), -prior_amp / prior_sd])
+            row_r = np.concatenate([np.tile(rows, 4), np.tile(rows + n, 4), 2 * n + np.arange(self.n_prior)])
+            col_r = np.concatenate([self._cols.reshape(-1), self._cols.reshape(-1), self._prior_cols])
+            keep = self.active.reshape(-1)[col_r]
+            jac = sp.csr_matrix((data_r[keep], (row_r[keep], col_r[keep])), shape=(2 * n + self.n_prior, n_int * w))
+        return pred, residuals, blocks, grad, jac
 
-    def solve(self, model_vis: np.ndarray) -> GainSolution:
-        """The gains (and what the profile needs) for the model visibilities of every row."""
+    def solve(self, model_vis: np.ndarray, start: GainSolution | None = None) -> GainSolution:
+        """The gains (and what the profile needs) for the model visibilities of every row;
+        ``start``: the gains of a nearby structure vector to begin from (else alternating steps
+        from g = 1)."""
         model_vis = np.asarray(model_vis, complex)
         n_st = self.n_stations
-        if self.kind == "amplitude":
+        if start is not None:
+            a, phi = start.a.copy(), start.phi.copy()
+        elif self.kind == "amplitude":
             a = np.zeros((self.n_intervals, n_st))
             phi = np.zeros_like(a)
         else:
@@ -339,16 +348,16 @@ class GainSolver:
         a, phi = self._gauge(a, phi)
         a = np.clip(a, -5.0, 5.0)
         for _ in range(_NEWTON_STEPS):
-            pred, res, jac, blocks, grad = self._linearise(model_vis, a, phi)
+            _, _, blocks, grad, _ = self._linearise(model_vis, a, phi)
             step = _block_solve(blocks, -grad[:, :, None])[:, :, 0]
             step[~self.active | ~np.isfinite(step)] = 0.0
             step = np.clip(step, -MAX_STEP, MAX_STEP)
             a = a + step[:, :n_st]
             phi = phi + step[:, n_st:]
-            if float(np.max(np.abs(step), initial=0.0)) < 1e-9:
+            if float(np.max(np.abs(step), initial=0.0)) < 1e-8:
                 break
         a = np.clip(a, -10.0, 10.0)
-        pred, res, jac, blocks, _ = self._linearise(model_vis, a, phi)
+        pred, res, blocks, _, jac = self._linearise(model_vis, a, phi, jacobian=True)
         return GainSolution(a, phi, pred, res, jac, blocks)
 
 

@@ -4,7 +4,7 @@ the profile's gradient and covariance, and the real 3C 279 data."""
 import numpy as np
 import pytest
 
-from tests.helpers.gain_sky import TRUE, double, observe_double, start_model
+from tests.helpers.gain_sky import TRUE, observe_double, start_model
 from uvfit.infer.lsq import fit
 from uvfit.stats.gains import gain_intervals, parse_gain_prior, scan_numbers
 from uvfit.stats.modes import make_statistic

@@ -31,7 +31,9 @@ def eight_station_array(sefd=60000.0):
     stations = [
         {"name": n, "lat": lat, "lon": lon, "height": 1000.0, "sefd": sefd, "diameter": 20.0} for n, lat, lon in SITES
     ]
-    return parse_array({"name": "invented eight", "defaults": {"eta": 0.88, "min_elevation": 10.0}, "station": stations})
+    return parse_array(
+        {"name": "invented eight", "defaults": {"eta": 0.88, "min_elevation": 10.0}, "station": stations}
+    )
 
 
 def double(flux=1.5, flux_ratio=0.4, separation=40.0, position_angle=230.0):

@@ -58,10 +58,12 @@ GAIN_KINDS = ("amplitude", "phase", "complex")
 SCAN_GAP_FACTOR = 5.0
 #: ... and never a gap shorter than this (s)
 MIN_SCAN_GAP_S = 30.0
-_ALTERNATING_STEPS = 60
+_ALTERNATING_STEPS = 8
 _NEWTON_STEPS = 30
 #: the largest Gauss-Newton change of a log amplitude or a phase (rad) in one step
 MAX_STEP = 0.5
+#: the gains are solved when no Gauss-Newton step changes a log amplitude or phase by more
+STEP_TOLERANCE = 1e-6
 _SECONDS_PER_DAY = 86400.0
 
 FLAT_AMPLITUDE_REASON = (
@@ -165,12 +167,20 @@ class GainSolution:
     """The gains of one structure vector: log amplitudes ``a`` and phases ``phi`` (n_intervals,
     n_stations), the whitened residual vector, the sparse gain Jacobian and the bordered blocks."""
 
-    def __init__(self, a, phi, predicted, residuals, jac_gain, blocks):
+    def __init__(self, a, phi, predicted, residuals, blocks, build_jacobian):
         self.a, self.phi = a, phi
         self.predicted = predicted
         self.residuals = residuals
-        self.jac_gain = jac_gain
         self.blocks = blocks
+        self._build_jacobian = build_jacobian
+        self._jac = None
+
+    @property
+    def jac_gain(self):
+        """The sparse Jacobian of the residuals in the gains (built when first asked)."""
+        if self._jac is None:
+            self._jac = self._build_jacobian()
+        return self._jac
 
     @property
     def gains(self) -> np.ndarray:
@@ -232,6 +242,11 @@ class GainSolver:
         base = self.interval * w
         self._cols = np.stack([base + self.ant1, base + self.ant2, base + n_st + self.ant1, base + n_st + self.ant2])
         self._prior_cols = pb * w + ps
+        # where each row's 4 x 4 products land in the normal blocks, and its 4 terms in the gradient
+        local = np.stack([self.ant1, self.ant2, n_st + self.ant1, n_st + self.ant2])
+        block_base = self.interval * (w * w)
+        self._block_index = (block_base[None, None, :] + local[:, None, :] * w + local[None, :, :]).reshape(-1)
+        self._grad_index = ((self.interval * w)[None, :] + local).reshape(-1)
         self.n_gains = int(active.sum())
 
     def scaled(self, factor: float) -> GainSolver:
@@ -245,14 +260,28 @@ class GainSolver:
         b, i, j = self.interval, self.ant1, self.ant2
         return np.exp(a[b, i] + a[b, j] + 1j * (phi[b, i] - phi[b, j]))
 
+    def _reference_phases(self, model_vis, wt, k1, k2, size):
+        """Phase of each station from its baselines to the interval's reference station (whose
+        phase is 0): arg of the weighted sum of V conj(V_model) (conjugated where the station is
+        first); 1 where a station has no baseline to the reference."""
+        ref = self.reference[self.interval]
+        x = wt * self.vis * np.conj(model_vis)
+        z = np.zeros(size, complex)
+        first, second = self.ant1 == ref, self.ant2 == ref
+        np.add.at(z, k2[first], np.conj(x[first]))
+        np.add.at(z, k1[second], x[second])
+        mod = np.abs(z)
+        return np.where(mod > 0, z / np.where(mod > 0, mod, 1.0), 1.0 + 0j)
+
     def _alternating(self, model_vis):
-        """Damped alternating least squares for complex (or unit-modulus) gains from g = 1."""
+        """Damped alternating least squares for complex (or unit-modulus) gains, from the
+        phases on the baselines to the reference station."""
         b, i, j = self.interval, self.ant1, self.ant2
         n_int, n_st = self.n_intervals, self.n_stations
         size = n_int * n_st
         wt = 1.0 / self.sigma**2
         k1, k2 = b * n_st + i, b * n_st + j
-        g = np.ones(size, complex)
+        g = self._reference_phases(model_vis, wt, k1, k2, size)
         vis = self.vis
         for step in range(_ALTERNATING_STEPS):
             gi, gj = g[k1], g[k2]
@@ -275,7 +304,7 @@ class GainSolver:
                 new = np.where(mod > 1e-3, new, 1e-3 * np.exp(1j * np.angle(new)))
             change = float(np.max(np.abs(new - g))) if size else 0.0
             g = 0.5 * (g + new)
-            if change < 1e-7 and step > 2:
+            if change < 1e-3 and step > 2:
                 break
         g = g.reshape(n_int, n_st)
         return np.log(np.abs(g)), np.angle(g)
@@ -296,19 +325,16 @@ class GainSolver:
         """(predicted, residual vector, normal blocks, gradient blocks, sparse gain Jacobian or
         None); the blocks are summed straight from the rows (bincount), the sparse Jacobian is
         built only when asked."""
-        n, w, n_st, n_int = self.n_rows, self.width, self.n_stations, self.n_intervals
+        n, w, n_int = self.n_rows, self.width, self.n_intervals
         pred = self._row_gains(a, phi) * model_vis
         res_c = (self.vis - pred) / self.sigma
         d = -pred / self.sigma  # d residual / d a_i (and a_j)
         # d residual / d phi_i = -i pred / sigma, d / d phi_j = +i pred / sigma
         vals = np.stack([d, d, 1j * d, -1j * d])
-        local = np.stack([self.ant1, self.ant2, n_st + self.ant1, n_st + self.ant2])
-        base = self.interval * (w * w)
-        index = (base[None, None, :] + local[:, None, :] * w + local[None, :, :]).reshape(-1)
         weight = np.real(np.conj(vals)[:, None, :] * vals[None, :, :]).reshape(-1)
-        blocks = np.bincount(index, weight, n_int * w * w).reshape(n_int, w, w)
-        gindex = (self.interval * w)[None, :] + local
-        grad = np.bincount(gindex.reshape(-1), np.real(np.conj(vals) * res_c).reshape(-1), n_int * w).reshape(n_int, w)
+        blocks = np.bincount(self._block_index, weight, n_int * w * w).reshape(n_int, w, w)
+        grad_w = np.real(np.conj(vals) * res_c).reshape(-1)
+        grad = np.bincount(self._grad_index, grad_w, n_int * w).reshape(n_int, w)
         prior_sd = self.spread[self.prior_station]
         pb, ps = self.prior_interval, self.prior_station
         prior_amp = np.exp(a[pb, ps])
@@ -354,11 +380,11 @@ class GainSolver:
             step = np.clip(step, -MAX_STEP, MAX_STEP)
             a = a + step[:, :n_st]
             phi = phi + step[:, n_st:]
-            if float(np.max(np.abs(step), initial=0.0)) < 1e-8:
+            if float(np.max(np.abs(step), initial=0.0)) < STEP_TOLERANCE:
                 break
         a = np.clip(a, -10.0, 10.0)
-        pred, res, blocks, _, jac = self._linearise(model_vis, a, phi, jacobian=True)
-        return GainSolution(a, phi, pred, res, jac, blocks)
+        pred, res, blocks, _, _ = self._linearise(model_vis, a, phi)
+        return GainSolution(a, phi, pred, res, blocks, lambda: self._linearise(model_vis, a, phi, jacobian=True)[4])
 
 
 def _block_solve(blocks, rhs):

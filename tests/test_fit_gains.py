@@ -93,17 +93,28 @@ def test_structure_covariance_is_the_joint_one():
     assert np.allclose(np.sqrt(np.diag(full)), res.errors, rtol=0.02), (np.sqrt(np.diag(full)), res.errors)
 
 
-def test_separation_coverage_over_simulations():
-    # Outside reference: the frequentist meaning of a 1-sigma error (68.3% of intervals cover the
-    # truth for a Gaussian estimator; common practice), over N = 40 seeded simulations of the
-    # invented double with fresh gains and noise each. Binomial scatter sqrt(0.68 0.32 / 40) =
-    # 0.074; tolerance 0.18 (2.4 of it). Measured when written: 0.70.
+def _separation_hits(n):
     hits = []
-    for k in range(40):
+    for k in range(n):
         vs = observe_double(100 + k, hours=4.0, integration_s=300.0)
         v, e = _values(fit(make_statistic("complex", vs, start_model(), **GAINS)))
         hits.append(abs(v["pair.separation"] - TRUE["separation"]) <= e["pair.separation"])
-    assert abs(np.mean(hits) - 0.683) <= 0.18, np.mean(hits)
+    return np.array(hits)
+
+
+def test_separation_coverage_over_simulations():
+    # Outside reference: the frequentist meaning of a 1-sigma error (68.3% of intervals cover the
+    # truth for a Gaussian estimator; common practice), over N = 40 seeded simulations of the
+    # invented double with fresh gains and noise each (about 15 s). Binomial scatter
+    # sqrt(0.68 0.32 / 40) = 0.074; tolerance 0.18 (2.4 of it). Measured when written: 0.725.
+    assert abs(_separation_hits(40).mean() - 0.683) <= 0.18
+
+
+@pytest.mark.slow
+def test_separation_coverage_over_100_simulations():
+    # As above over N = 100 (about 40 s): binomial scatter 0.047, tolerance 0.07. Measured when
+    # written: 0.72 (position angle 0.70, flux ratio 0.61; rms pulls 0.97, 0.89, 1.02).
+    assert abs(_separation_hits(100).mean() - 0.683) <= 0.07
 
 
 def test_gains_of_one_give_the_plain_complex_fit():

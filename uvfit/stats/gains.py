@@ -347,6 +347,10 @@ class GainSolver:
         blocks[np.broadcast_to(inactive[:, None, :], blocks.shape)] = 0.0
         ib, ic = np.nonzero(inactive)
         blocks[ib, ic, ic] = 1.0
+        # a relative ridge of 1e-10 keeps a block solvable when an interval's stations form two
+        # groups with no baseline between them (a second free phase offset); it moves nothing else
+        diag = np.einsum("bii->bi", blocks)
+        diag += 1e-10 * diag.max(axis=1, keepdims=True) * self.active
         grad[inactive] = 0.0
         jac = None
         if jacobian:

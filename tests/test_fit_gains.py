@@ -112,7 +112,7 @@ def test_separation_coverage_over_simulations():
 
 @pytest.mark.slow
 def test_separation_coverage_over_100_simulations():
-    # As above over N = 100 (about 40 s): binomial scatter 0.047, tolerance 0.07. Measured when
+    # As above over N = 100 (40-70 s): binomial scatter 0.047, tolerance 0.07. Measured when
     # written: 0.72 (position angle 0.70, flux ratio 0.61; rms pulls 0.97, 0.89, 1.02).
     assert abs(_separation_hits(100).mean() - 0.683) <= 0.07
 

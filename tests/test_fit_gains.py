@@ -36,6 +36,9 @@ def test_gains_fit_recovers_the_double_with_errors_like_the_closure_fit(corrupte
         assert abs(v[name] - TRUE[key]) < 3 * e[name], (name, v[name], e[name])
         assert e[name] <= 1.5 * ec[name], (name, e[name], ec[name])  # measured here: ratios 0.98-1.0
     assert res.dof == res.n_data - res.n_free and 0.8 < res.chi2 / res.dof < 1.2
+    # gains drawn with 30% rms under a 0.3 prior: median pull about 0.67 (half-normal), no notice
+    record = res.statistic.gain_record(res.values)
+    assert record["prior_pull_median"] < 1.2 and not record["notices"]
 
 
 def test_profiled_gradient_is_the_numerical_one(corrupted):

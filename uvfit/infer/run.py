@@ -138,4 +138,5 @@ def run_fit(
     gain_record = getattr(result.statistic, "gain_record", None)
     if gain_record is not None:  # station gains solved with the structure (uvfit.stats.gains)
         out["gains"] = gain_record(result.values, result.covariance)
+        out["notices"].extend(out["gains"]["notices"])
     return (out, result) if return_result else out

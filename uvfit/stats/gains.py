@@ -62,6 +62,8 @@ _ALTERNATING_STEPS = 8
 _NEWTON_STEPS = 30
 #: the largest Gauss-Newton change of a log amplitude or a phase (rad) in one step
 MAX_STEP = 0.5
+#: a median |g - 1| / spread above this gets a notice (the gains absorb a model mismatch)
+PRIOR_PULL_LIMIT = 2.0
 #: the gains are solved when no Gauss-Newton step changes a log amplitude or phase by more
 STEP_TOLERANCE = 1e-6
 _SECONDS_PER_DAY = 86400.0
@@ -578,11 +580,30 @@ class GainStatistic(Statistic):
             )
         return out
 
+    def prior_pull(self, theta=None) -> float | None:
+        """Median over the gains with a prior of |amplitude - 1| / spread (None without priors)."""
+        sv = self.solver
+        if not sv.n_prior:
+            return None
+        sol = self.solution(theta)
+        amp = np.exp(sol.a[sv.prior_interval, sv.prior_station])
+        return float(np.median(np.abs(amp - 1.0) / sv.spread[sv.prior_station]))
+
     def gain_record(self, theta=None, covariance=None) -> dict:
-        """The ``gains`` section of a fit's JSON."""
+        """The ``gains`` section of a fit's JSON (``notices``: cautions about the solution)."""
         sv = self.solver
         spreads = {k: float(v) for k, v in self.prior.items()}
+        pull = self.prior_pull(theta)
+        notices = []
+        if pull is not None and pull > PRIOR_PULL_LIMIT:
+            notices.append(
+                f"the amplitude gains sit far outside their prior (median |g - 1| / spread = {pull:.3g}): "
+                "the model's amplitudes or its flux scale do not match the data, and the gains absorb the "
+                "difference; compare with a closure fit, which station gains cannot touch"
+            )
         return {
+            "notices": notices,
+            "prior_pull_median": pull,
             "solved": self.kind,
             "interval": self.interval_spec,
             "n_intervals": int(sv.n_intervals),

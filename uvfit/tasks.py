@@ -76,6 +76,18 @@ def _check_at_least(name: str, value: Optional[int], least: int) -> None:
         raise UvfitError(f"{name} must be at least {least} (got {value})")
 
 
+def _gain_options(gains: Optional[str], gain_interval: Any = "scan", gain_prior: Any = None) -> dict:
+    """The statistic options of station gains (checked), or {} without ``gains``."""
+    if gains is None:
+        return {}
+    from .stats.gains import check_gain_kind, parse_gain_interval, parse_gain_prior
+
+    check_gain_kind(gains)
+    parse_gain_interval(gain_interval)
+    parse_gain_prior(gain_prior)
+    return {"gains": gains, "gain_interval": gain_interval, "gain_prior": gain_prior}
+
+
 def _given(selection: Optional[dict]) -> dict:
     return {k: v for k, v in (selection or {}).items() if v not in (None, ())}
 
@@ -141,6 +153,9 @@ def fit(
     data_path: Optional[str] = None,
     profile: Optional[str] = None,
     jackknife: Optional[str] = None,
+    gains: Optional[str] = None,
+    gain_interval: Union[str, float] = "scan",
+    gain_prior: Union[str, dict, None] = None,
 ) -> FitReport:
     """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
 
@@ -181,6 +196,12 @@ def fit(
         A free parameter whose profile likelihood is added (key ``profile``; see :func:`profile`).
     jackknife : {"station", "scan", "channel"}, optional
         Add leave-one-group-out refits (key ``jackknife``; see :func:`jackknife`).
+    gains : {"amplitude", "phase", "complex"}, optional
+        Solve station gains per interval with the structure (:mod:`uvfit.stats.gains`; mode complex).
+    gain_interval : "scan" or float
+        One gain per station per scan, or per this many seconds.
+    gain_prior : str or dict, optional
+        Fractional rms of the amplitude gains, e.g. ``"AA=0.05,*=0.1"`` (flat where not given).
 
     Returns
     -------
@@ -230,6 +251,7 @@ def fit(
         max_evaluations=max_evaluations,
         progress=progress,
         return_result=True,
+        **_gain_options(gains, gain_interval, gain_prior),
     )
     if _is_path(model):
         out["model_file"] = str(model)
@@ -312,6 +334,9 @@ def sample(
     progress: Progress = None,
     data_path: Optional[str] = None,
     rescale_errors: bool = False,
+    gains: Optional[str] = None,
+    gain_interval: Union[str, float] = "scan",
+    gain_prior: Union[str, dict, None] = None,
 ) -> SampleReport:
     """Posterior of the model's free parameters by ensemble MCMC (emcee), from the best fit.
 
@@ -321,8 +346,9 @@ def sample(
         The visibilities.
     model : SkyModel or path
         The model (not changed), or its TOML file; priors are the model's.
-    mode, systematic, starts, redshift, seed
-        As for :func:`fit`.
+    mode, systematic, starts, redshift, seed, gains, gain_interval, gain_prior
+        As for :func:`fit`; with ``gains`` the likelihood is marginalised over the gains of each
+        interval (Laplace approximation, :mod:`uvfit.stats.gains`).
     walkers : int, optional
         Number of walkers (default max(32, 4 x free parameters)).
     max_steps : int
@@ -390,6 +416,7 @@ def sample(
         redshift=redshift,
         data_path=data_path,
         **({"rescale_errors": True} if rescale_errors else {}),
+        **_gain_options(gains, gain_interval, gain_prior),
     )
     out = post.to_dict()
     out["selection"] = _given(selection)
@@ -440,6 +467,9 @@ def compare(
     rescale_errors: bool = False,
     global_search: bool = False,
     reference: Optional[str] = None,
+    gains: Optional[str] = None,
+    gain_interval: Union[str, float] = "scan",
+    gain_prior: Union[str, dict, None] = None,
 ) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
@@ -449,7 +479,7 @@ def compare(
         The visibilities.
     models : sequence of SkyModel or path
         Two or more models.
-    mode, systematic, starts, seed
+    mode, systematic, starts, seed, gains, gain_interval, gain_prior
         As for :func:`fit`.
     bootstrap : int
         Simulated data sets for the false-alarm probability of each richer model (0: none).
@@ -510,6 +540,7 @@ def compare(
         rescale_errors=rescale_errors,
         global_search=global_search,
         reference=reference,
+        options=_gain_options(gains, gain_interval, gain_prior),
     )
     out["data"] = None if data_path is None else str(data_path)
     out["selection"] = selection if selection is not None else {}
@@ -936,6 +967,9 @@ def forecast(
     true_name: Optional[str] = None,
     alt_names: Optional[Sequence[str]] = None,
     progress: Progress = None,
+    gains: Optional[str] = None,
+    gain_interval: Union[str, float] = "scan",
+    gain_prior: Union[str, dict, None] = None,
 ) -> ForecastReport:
     """Repeated simulations and fits: can the array tell the true model from the alternatives?
 
@@ -953,6 +987,8 @@ def forecast(
         Number of simulated data sets (trial k uses seed ``seed + k``).
     mode : str
         Statistic of the fits.
+    gains, gain_interval, gain_prior
+        Station gains solved in every fit, as for :func:`fit`.
     starts : int
         Fit starts per model and trial.
     seed, gain_error, phase_error, systematic
@@ -1015,6 +1051,7 @@ def forecast(
         true_name=true_name,
         alt_names=alt_names,
         progress=progress,
+        options=_gain_options(gains, gain_interval, gain_prior),
         **corruption,
     )
     return ForecastReport(record=out)

@@ -146,6 +146,40 @@ def reword(exc: UvfitError, command: "click.Command | dict[str, str]") -> UvfitE
     return worded
 
 
+#: how the library's names of the gain options read on the command line
+GAIN_OPTION_NAMES = {"gains": "--gains", "gain_interval": "--gain-interval", "gain_prior": "--gain-prior"}
+
+
+def gain_options(func):
+    """--gains, --gain-interval, --gain-prior: station gains solved inside the fit."""
+    func = click.option(
+        "--gain-prior",
+        default=None,
+        metavar="STATION=SPREAD,...",
+        help="Fractional rms of the amplitude gains per station, '*' for the others "
+        "(e.g. 'AA=0.05,LM=0.3,*=0.1'); flat where not given, flat on phases.",
+    )(func)
+    func = click.option(
+        "--gain-interval",
+        default="scan",
+        show_default=True,
+        metavar="scan|SECONDS",
+        help="One gain per station per scan (from the file's scan numbers or gaps in time) or per SECONDS.",
+    )(func)
+    func = click.option(
+        "--gains",
+        type=click.Choice(["amplitude", "phase", "complex"]),
+        default=None,
+        help="Solve station gains V_ij = g_i conj(g_j) V_model with the structure (with --mode complex).",
+    )(func)
+    return func
+
+
+def pop_gains(kwargs):
+    """The gain options out of a command's keyword arguments, as the tasks take them."""
+    return {key: kwargs.pop(key, None) for key in GAIN_OPTION_NAMES}
+
+
 def force_option(func):
     return click.option("--force", is_flag=True, help="Overwrite output files that exist already.")(func)
 

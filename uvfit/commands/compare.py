@@ -4,11 +4,14 @@ import click
 
 from ..stats.modes import MODES
 from ._common import (
+    GAIN_OPTION_NAMES,
     as_options,
     at_least_zero,
     check_outputs,
     echo_notes,
     force_option,
+    gain_options,
+    pop_gains,
     pop_selection,
     progressbar,
     seed_option,
@@ -59,6 +62,7 @@ from ._common import (
     "--json", "json_out", type=click.Path(dir_okay=False), default=None, help="Write the comparison as JSON here."
 )
 @seed_option
+@gain_options
 @force_option
 @selection_options
 def command(
@@ -100,8 +104,9 @@ def command(
         rescale_errors=rescale_errors,
         global_search=global_search,
         reference=reference,
+        **pop_gains(kwargs),
     )
-    with as_options(bootstrap="--bootstrap", reference="--reference"):
+    with as_options(bootstrap="--bootstrap", reference="--reference", **GAIN_OPTION_NAMES):
         if bootstrap > 0:
             with progressbar(bootstrap, "bootstrap") as bar:
                 report = tasks.compare(data, list(models), progress=bar.update, **options)

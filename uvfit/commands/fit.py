@@ -4,11 +4,14 @@ import click
 
 from ..stats.modes import MODES
 from ._common import (
+    GAIN_OPTION_NAMES,
     as_options,
     at_least_zero,
     check_outputs,
     echo_notes,
     force_option,
+    gain_options,
+    pop_gains,
     pop_selection,
     progressbar,
     seed_option,
@@ -92,7 +95,22 @@ from ._common import (
     help="Write the best-fit model visibilities into the Measurement Set's MODEL_DATA column "
     "(created if absent; DATA is never touched).",
 )
+@click.option(
+    "--gains-out",
+    type=click.Path(dir_okay=False),
+    default=None,
+    metavar="FILE.ecsv",
+    help="Write the gain solutions (station, interval, amplitude, phase and their errors) as ECSV here.",
+)
+@click.option(
+    "--gains-plot",
+    type=click.Path(dir_okay=False),
+    default=None,
+    metavar="FILE.png",
+    help="Draw the gain amplitudes and phases against time into this PNG.",
+)
 @seed_option
+@gain_options
 @force_option
 @selection_options
 def command(
@@ -112,6 +130,8 @@ def command(
     jackknife,
     seed,
     force,
+    gains_out=None,
+    gains_plot=None,
     write_model_column=False,
     **kwargs,
 ):
@@ -135,11 +155,22 @@ def command(
         raise UvfitError(
             "--write-model-column takes one data file", "fit each Measurement Set alone to write its column"
         )
+    gains = pop_gains(kwargs)
+    if (gains_out or gains_plot) and not gains["gains"]:
+        from ..errors import UvfitError
+
+        raise UvfitError(
+            "--gains-out and --gains-plot need gains solved in the fit", "add --gains amplitude|phase|complex"
+        )
     if write_model_column:
         from ..data.ms import check_model_column_writable
 
         check_model_column_writable(data)
-    check_outputs({"--json": json_out, "--save-model": save_model}, {**inputs, "the model": model}, force)
+    check_outputs(
+        {"--json": json_out, "--save-model": save_model, "--gains-out": gains_out, "--gains-plot": gains_plot},
+        {**inputs, "the model": model},
+        force,
+    )
     options = dict(
         mode=mode,
         systematic=systematic,
@@ -153,6 +184,7 @@ def command(
         max_evaluations=max_evaluations,
         profile=profile_name,
         jackknife=jackknife,
+        **gains,
     )
     total = starts + (1 if global_search else 0)
     with as_options(
@@ -161,6 +193,7 @@ def command(
         starts="--starts",
         global_search="--global-search",
         rescale_errors="--rescale-errors",
+        **GAIN_OPTION_NAMES,
     ):
         if total > 1:
             with progressbar(total, "fitting") as bar:
@@ -176,6 +209,21 @@ def command(
     if save_model:
         atomic_write(save_model, out["model_toml"], force=force)
         click.echo(f"wrote {save_model}", err=True)
+    if gains_out:
+        from ..outputs import atomic_write_with
+        from ..stats.gains import gain_astropy_table
+
+        table = gain_astropy_table(out["gains"], {"seed": out["seed"], "data": out["data"]})
+        atomic_write_with(gains_out, lambda p: table.write(p, format="ascii.ecsv"), force=force)
+        click.echo(f"wrote {gains_out}", err=True)
+    if gains_plot:
+        from ..show.gains_plot import gain_plot
+        from ..show.style import close, save_png
+
+        fig, _ = gain_plot(out["gains"])
+        save_png(fig, gains_plot, force=force)
+        close(fig)
+        click.echo(f"wrote {gains_plot}", err=True)
     if write_model_column:
         from ..data.ms import write_model_column as write_column
         from ..sky.modelfile import loads

@@ -3,7 +3,17 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, check_outputs, force_option, progressbar, seed_option, worded
+from ._common import (
+    GAIN_OPTION_NAMES,
+    as_options,
+    check_outputs,
+    force_option,
+    gain_options,
+    pop_gains,
+    progressbar,
+    seed_option,
+    worded,
+)
 from ._observation import observation_options, pop_observation
 
 
@@ -29,6 +39,7 @@ from ._observation import observation_options, pop_observation
     help="Write the forecast (all numbers, per trial, seeds) as JSON here.",
 )
 @seed_option
+@gain_options
 @force_option
 def command(array_file, true_file, alt_files, trials, mode, starts, json_path, seed, force, **kwargs):
     """Simulate MODEL_TRUE --trials times with ARRAY, fit MODEL_TRUE and every MODEL_ALT to each,
@@ -40,6 +51,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     from .. import tasks
     from ..outputs import write_json
 
+    gains = pop_gains(kwargs)
     observation, corruption = pop_observation(kwargs)
     check_outputs(
         {"--json": json_path},
@@ -48,7 +60,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     )
     with as_options(trials="--trials"):
         tasks.check_forecast_options(trials=trials)
-    with progressbar(trials, "forecast trials") as bar:
+    with progressbar(trials, "forecast trials") as bar, as_options(**GAIN_OPTION_NAMES):
         report = tasks.forecast(
             array_file,
             true_file,
@@ -59,6 +71,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
             seed=seed,
             starts=starts,
             progress=bar.update,
+            **gains,
             **corruption,
         )
     if report.notice:

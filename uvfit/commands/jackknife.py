@@ -3,7 +3,18 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, seed_option, selection_options, worded
+from ._common import (
+    GAIN_OPTION_NAMES,
+    as_options,
+    echo_notes,
+    force_option,
+    gain_options,
+    pop_gains,
+    pop_selection,
+    seed_option,
+    selection_options,
+    worded,
+)
 
 
 @click.command("jackknife")
@@ -46,6 +57,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, seed_o
     help="Write the per-group results and errors as JSON here.",
 )
 @seed_option
+@gain_options
 @force_option
 @selection_options
 def command(data, model, by, mode, systematic, starts, redshift, json_out, seed, force, **kwargs):
@@ -56,9 +68,10 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
     from ..outputs import check_writable, write_json
 
     selection = pop_selection(kwargs)
+    gains = pop_gains(kwargs)
     if json_out:
         check_writable(json_out, force)
-    with as_options(by="--by", starts="--starts"):
+    with as_options(by="--by", starts="--starts", **GAIN_OPTION_NAMES):
         report = tasks.jackknife(
             data,
             model,
@@ -69,6 +82,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
             seed=seed,
             redshift=redshift,
             selection=selection,
+            **gains,
         )
     echo_notes(report.notes)
     click.echo(worded(report.text()))

@@ -4,11 +4,14 @@ import click
 
 from ..stats.modes import MODES
 from ._common import (
+    GAIN_OPTION_NAMES,
     as_options,
     at_least_zero,
     check_outputs,
     echo_notes,
     force_option,
+    gain_options,
+    pop_gains,
     pop_selection,
     progressbar,
     seed_option,
@@ -104,6 +107,7 @@ from ._common import (
 @click.option(
     "--rescale-errors", is_flag=True, help="Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first."
 )
+@gain_options
 @force_option
 @selection_options
 def command(
@@ -140,6 +144,7 @@ def command(
     from ..show.corner import write_corner_plot
 
     selection = pop_selection(kwargs)
+    gains = pop_gains(kwargs)
     names = dict(procs="--procs", walkers="--walkers", max_steps="--max-steps", order_by="--order-by")
     with as_options(**names):
         tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
@@ -170,25 +175,27 @@ def command(
             bar.update(done - state["done"])
             state["done"] = done
 
-        report = tasks.sample(
-            data,
-            model,
-            mode=mode,
-            systematic=systematic,
-            walkers=walkers,
-            max_steps=max_steps,
-            seed=seed,
-            procs=procs,
-            chain=chain_path,
-            resume=resume,
-            force=force,
-            order_by=order_by,
-            progress=progress,
-            starts=starts,
-            redshift=redshift,
-            selection=selection,
-            rescale_errors=rescale_errors,
-        )
+        with as_options(**GAIN_OPTION_NAMES):
+            report = tasks.sample(
+                data,
+                model,
+                mode=mode,
+                systematic=systematic,
+                walkers=walkers,
+                max_steps=max_steps,
+                seed=seed,
+                procs=procs,
+                chain=chain_path,
+                resume=resume,
+                force=force,
+                order_by=order_by,
+                progress=progress,
+                starts=starts,
+                redshift=redshift,
+                selection=selection,
+                rescale_errors=rescale_errors,
+                **gains,
+            )
     echo_notes(report.notes)
     echo_notes(report.posterior.notes, prefix="note: ")
     click.echo(worded(report.text()))

@@ -22,8 +22,8 @@ from ..stats.modes import make_statistic
 from .lsq import aic, bic, fit
 
 
-def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False):
-    stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
+def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False, options=None):
+    stat = make_statistic(mode, vset, model.copy(), systematic=systematic, **(options or {}))
     return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search)
 
 
@@ -142,6 +142,7 @@ def compare(
     rescale_errors=False,
     global_search=False,
     reference=None,
+    options=None,
 ):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
 
@@ -151,7 +152,7 @@ def compare(
     model counts as required. ``rescale_errors``, ``global_search``: as for the fit.
     ``reference``: the name of the model every other is judged against (default: the simplest);
     ``pairs`` of the output gives a verdict for each pair (against ``reference``, or each model
-    against the next simpler one).
+    against the next simpler one). ``options`` go to every model's statistic (e.g. ``gains``).
     """
     models = list(models)
     if len(models) < 2:
@@ -180,6 +181,7 @@ def compare(
                     seed,
                     rescale_errors=rescale_errors,
                     global_search=global_search,
+                    options=options,
                 )
             )
         except FitError as exc:
@@ -246,6 +248,7 @@ def compare(
     out = {
         "version": __version__,
         "mode": mode,
+        "statistic_options": {k: v for k, v in (options or {}).items() if v is not None},
         "systematic": float(systematic),
         "seed": int(seed),
         "n_bootstrap": bootstrap,

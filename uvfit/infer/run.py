@@ -157,4 +157,8 @@ def run_fit(
     out = result_dict(
         result, derived, mode=mode, data_path=data_path, selection=selection, redshift=redshift, frequency=frequency
     )
+    gain_record = getattr(result.statistic, "gain_record", None)
+    if gain_record is not None:  # station gains solved with the structure (uvfit.stats.gains)
+        out["gains"] = gain_record(result.values, result.covariance)
+        out["notices"].extend(out["gains"]["notices"])
     return (out, result) if return_result else out

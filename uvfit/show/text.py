@@ -80,6 +80,17 @@ def fit_text(out):
     )
     if out["rescale_errors"]:
         echo(f"errors scaled by {out['error_scale']:.4g} (reduced chi2 set to 1)")
+    gains = out.get("gains")
+    if gains:
+        per = "scan" if gains["interval"] == "scan" else f"{gains['interval']:g} s"
+        prior = ", ".join(f"{k}={v:g}" for k, v in gains["prior_spread"].items()) or "flat"
+        table = gains["table"]
+        amps = np.array([r["amplitude"] for r in table]) if table else np.ones(1)
+        echo(
+            f"gains ({gains['solved']}): {gains['n_gains']} solved, one per station per {per} in "
+            f"{gains['n_intervals']} intervals; amplitude prior {prior}; amplitudes "
+            f"{amps.min():.3g} to {amps.max():.3g}; chi2 per station below is after the gains"
+        )
     for label, key in (("stations", "per_station"), ("baselines", "per_baseline")):
         table = out.get(key) or {}
         if not table:

@@ -41,10 +41,32 @@ MODES = {
 }
 
 
+#: the options of station gains solved inside a fit (uvfit.stats.gains)
+GAIN_OPTIONS = ("gains", "gain_interval", "gain_prior")
+
+
 def make_statistic(mode, vset, model, systematic=0.0, **options):
-    """Build the statistic for ``mode`` on the unflagged rows of ``vset``."""
+    """Build the statistic for ``mode`` on the unflagged rows of ``vset``.
+
+    With ``gains`` (amplitude, phase or complex; and ``gain_interval``, ``gain_prior``) the
+    complex mode solves station gains with the structure (:class:`uvfit.stats.gains.GainStatistic`).
+    """
     if mode not in MODES:
         raise UvfitError(f"unknown mode '{mode}'", "use one of: " + ", ".join(MODES))
+    gains = options.get("gains")
+    if gains is None:
+        for key in GAIN_OPTIONS:
+            options.pop(key, None)
+    else:
+        from .gains import GainStatistic, check_gain_kind
+
+        check_gain_kind(gains)
+        if mode != "complex":
+            raise UvfitError(
+                f"gains={gains} needs mode complex (got mode {mode})",
+                "use mode complex, or leave gains out (closure modes need no gain solution)",
+            )
+        return GainStatistic(vset, model, systematic=systematic, **options)
     module, name, _ = MODES[mode]
     cls = getattr(importlib.import_module(module), name)
     return cls(vset, model, systematic=systematic, **options)

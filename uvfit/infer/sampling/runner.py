@@ -326,6 +326,13 @@ def sample(
         "systematic": float(systematic),
         "angular_unit": getattr(work, "angular_unit_text", str(getattr(work, "angular_unit", ""))),
     }
+    if options.get("gains"):  # station gains marginalised per interval (uvfit.stats.gains)
+        extra["gains"] = {
+            "solved": options["gains"],
+            "interval": options.get("gain_interval", "scan"),
+            "prior_spread": options.get("gain_prior"),
+            "method": "likelihood marginalised over the gains of each interval (Laplace approximation)",
+        }
     start = cov = None
     if resume:
         if chain_path is not None and os.path.exists(chain_path):

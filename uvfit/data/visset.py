@@ -258,6 +258,22 @@ class VisibilitySet:
 # baselines at the highest radio frequencies are ~1e11 wavelengths; common practice).
 MAX_UV_LAMBDA = 1.0e15
 
+#: longest station name a reader accepts (characters). Each row holds its two names as
+#: fixed-width strings as long as the longest name, so one long name costs memory on every row;
+#: names of real stations are short (common practice).
+MAX_STATION_NAME = 64
+
+
+def check_station_names(names, path, where="the station table"):
+    """DataError naming the file when a station name is longer than MAX_STATION_NAME."""
+    for i, name in enumerate(names):
+        if len(name) > MAX_STATION_NAME:
+            raise DataError(
+                f"{path}: {where} holds a station name of {len(name)} characters (entry {i + 1}; at most "
+                f"{MAX_STATION_NAME} accepted)",
+                "shorten the station names",
+            )
+
 
 def screen_rows(vset, path):
     """Flag the rows a reader must not use, counting each reason in ``meta["flagged_reasons"]``.

@@ -111,7 +111,20 @@ def loads(text, path=None):
     except tomllib.TOMLDecodeError as exc:
         where = f"{path}: " if path else ""
         raise ModelError(f"{where}TOML syntax error: {exc}", "see the README, 'Model files', for the format") from None
-    return model_from_dict(data, source=text, path=path)
+    except RecursionError:
+        where = f"{path}: " if path else ""
+        raise ModelError(
+            f"{where}the model file is nested too deeply to read",
+            "a model file holds [[component]] tables of numbers and small tables",
+        ) from None
+    try:
+        return model_from_dict(data, source=text, path=path)
+    except RecursionError:
+        where = f"{path}: " if path else ""
+        raise ModelError(
+            f"{where}the model file is nested too deeply to use",
+            "a model file holds [[component]] tables of numbers and small tables",
+        ) from None
 
 
 def build_model(components, angular_unit="mas", description=None):

@@ -130,7 +130,16 @@ def main(argv=None):
             raise
         click.echo(f"uvfit: error: {exc}", err=True)
         sys.exit(exc.exit_code)
-    except (OSError, MemoryError) as exc:
+    except MemoryError as exc:
+        if debug:
+            raise
+        click.echo(
+            f"uvfit: error: not enough memory for this run ({exc or 'MemoryError'}). Fix: select fewer "
+            "rows or channels, or lower the sizes asked for (walkers, steps, starts)",
+            err=True,
+        )
+        sys.exit(2)
+    except OSError as exc:
         if debug:
             raise
         click.echo(f"uvfit: error: {exc}", err=True)

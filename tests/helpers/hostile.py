@@ -36,16 +36,19 @@ SENTINEL = b"precious: not made by uvfit\n"
 class Probe:
     name: str
     build: Callable[[Path], list]
-    #: substrings the one-line message must hold (a file or option name, and the problem)
+    #: substrings the one-line message must hold (a file or option name, and the problem); for
+    #: an accepted input, substrings of stdout + stderr
     expect: tuple
+    #: None: refused (exit code 2); else the outputs (paths in ``work``) an accepted run writes
+    outputs: tuple | None = None
 
 
 PROBES: dict[str, Probe] = {}
 
 
-def probe(name, *expect):
+def probe(name, *expect, outputs=None):
     def register(build):
-        PROBES[name] = Probe(name, build, tuple(expect))
+        PROBES[name] = Probe(name, build, tuple(expect), None if outputs is None else tuple(outputs))
         return build
 
     return register
@@ -814,6 +817,106 @@ def _(work):
 @probe("batch-unknown-key", "m.toml", "unknown key")
 def _(work):
     return ["batch", _manifest(work, f'[[job]]\nname = "a"\ndata = "{DATA}"\nmodel = "{ONE}"\nwalkerz = 3\n')]
+
+
+# ---- sizes asked for that would exhaust memory or time -----------------------------------------
+
+
+@probe("option-channel-range-huge", "channel list", "more than")
+def _(work):
+    return ["fit", DATA, ONE, "--channels", "0-999999999"]
+
+
+@probe("option-walkers-huge", "walkers", "GiB")
+def _(work):
+    return ["sample", DATA, ONE, "--walkers", "1000000000", "--max-steps", "2"]
+
+
+@probe("option-max-steps-huge", "max_steps", "GiB")
+def _(work):
+    return ["sample", DATA, ONE, "--walkers", "8", "--max-steps", "1000000000000"]
+
+
+@probe("model-ring-order-huge", "r.toml", "order")
+def _(work):
+    toml_model(work, "r.toml", component("ring_modulated", flux=1, diameter=0.5, order=10**9))
+    return ["fit", DATA, "r.toml"]
+
+
+ARRAY = DEMO.parent.parent / "examples" / "demo" / "array.toml"
+SIMULATE = ["--ra", "09h00m", "--dec", "20d", "--start", "2027-03-01T02:00", "--frequency", "22GHz"]
+
+
+@probe("simulate-channels-huge", "visibilities", "channels")
+def _(work):
+    shutil.copy(ARRAY, work / "array.toml")
+    return ["simulate", "array.toml", ONE, "-o", "s.uvfits", *SIMULATE, "--duration", "1h", "--channels", "100000000"]
+
+
+@probe("simulate-integrations-huge", "integrations")
+def _(work):
+    shutil.copy(ARRAY, work / "array.toml")
+    return ["simulate", "array.toml", ONE, "-o", "s.uvfits", *SIMULATE, "--duration", "100000h", "--integration", "1s"]
+
+
+@probe("simulate-station-name-long", "array.toml", "characters")
+def _(work):
+    text = ARRAY.read_text().replace('name = "FELL"', f'name = "{"F" * 2000}"')
+    (work / "array.toml").write_text(text)
+    return ["simulate", "array.toml", ONE, "-o", "s.uvfits", *SIMULATE, "--duration", "1h"]
+
+
+@probe("simulate-array-nested", "array.toml", "nested")
+def _(work):
+    (work / "array.toml").write_text('name = "x"\nz = ' + "[" * 3000 + "]" * 3000 + "\n")
+    return ["simulate", "array.toml", ONE, "-o", "s.uvfits", *SIMULATE, "--duration", "1h"]
+
+
+@probe("simulate-output-exists", "s.uvfits", "--force")
+def _(work):
+    shutil.copy(ARRAY, work / "array.toml")
+    (work / "s.uvfits").write_bytes(SENTINEL)
+    return ["simulate", "array.toml", ONE, "-o", "s.uvfits", *SIMULATE, "--duration", "1h"]
+
+
+# ---- odd but usable inputs: accepted, with a note and nothing raw -----------------------------
+
+
+def _nan_rows(work, column):
+    vs = demo_rows(n=60)
+    getattr(vs, column)[[3, 17]] = np.nan
+    ecsv(work, "n.ecsv", vs)
+    fit_json(work)
+    return "n.ecsv"
+
+
+@probe("accepted-report-nan-times", "non-finite time", outputs=["r.html"])
+def _(work):
+    return ["report", _nan_rows(work, "time"), "--fit", "fit.json", "-o", "r.html"]
+
+
+@probe("accepted-plot-uv-nan-uv", "non-finite u", outputs=["p.png"])
+def _(work):
+    return ["plot", _nan_rows(work, "u"), "--fit", "fit.json", "--kind", "uv", "-o", "p.png"]
+
+
+@probe("accepted-info-nan-times", "non-finite time", outputs=[])
+def _(work):
+    return ["info", _nan_rows(work, "time")]
+
+
+@probe("accepted-closures-underflow", "numerical warning", outputs=[])
+def _(work):
+    """A Gaussian of 20 mas on the demo data: its visibilities underflow to 0 on long baselines."""
+    body = component("gaussian", flux=0.3, fwhm="{ value = 20.0, fixed = true }")
+    toml_model(work, "wide.toml", body)
+    return ["closures", DATA, "--model", "wide.toml"]
+
+
+@probe("accepted-long-names-at-limit", "stations", outputs=[])
+def _(work):
+    ecsv(work, "l.ecsv", demo_rows(long_name="N" * 63))
+    return ["info", "l.ecsv"]
 
 
 # ---- the runner -------------------------------------------------------------------------------

@@ -279,8 +279,12 @@ def parse_stations(value):
     return names
 
 
+#: most channel indices one channel list may name (a range is expanded into its indices)
+MAX_CHANNEL_LIST = 1 << 20
+
+
 def parse_channels(value):
-    """'0,2-5' (or a list of ints) -> sorted list of ints."""
+    """'0,2-5' (or a list of ints) -> sorted list of ints (at most MAX_CHANNEL_LIST of them)."""
     if value is None:
         return None
     if not isinstance(value, str):
@@ -299,6 +303,11 @@ def parse_channels(value):
                 lo, hi = int(lo), int(hi)
                 if hi < lo:
                     raise ValueError
+                if hi - lo + 1 + len(out) > MAX_CHANNEL_LIST:
+                    raise DataError(
+                        f"the channel list '{value}' names more than {MAX_CHANNEL_LIST} channels",
+                        "name the channels the data hold (uvfit info lists them)",
+                    )
                 out.update(range(lo, hi + 1))
             else:
                 out.add(int(part))

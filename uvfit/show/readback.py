@@ -326,6 +326,12 @@ def open_fit_view(data_path, fit_path, options=None):
     model_from_fit(fit, path=fit_path)  # refuse a damaged fit (naming the file) before reading the data
     selection = merged_selection(fit, options)
     vset, notes = read_selected(data_path, selection, good=False)
+    reasons = vset.meta.get("flagged_reasons") or {}
+    if reasons:
+        notes.append(
+            f"note: {os.path.basename(os.fspath(data_path))}: rows flagged on reading and not shown: "
+            + "; ".join(f"{k}: {n}" for k, n in reasons.items())
+        )
     fitted = fit.get("data")
     if fitted and os.path.basename(str(fitted)) != os.path.basename(os.fspath(data_path)):
         notes.append(

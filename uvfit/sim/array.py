@@ -36,6 +36,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..data.visset import MAX_STATION_NAME
 from ..errors import UvfitError
 
 DEFAULT_ETA = 0.88  # 2-bit sampling efficiency (TMS 2017 ch. 8, from memory)
@@ -161,6 +162,11 @@ def parse_array(data, source="array file"):
         if not isinstance(sname, str) or not sname.strip():
             raise UvfitError(f"{source}: {label} has no 'name'", 'add name = "XX" to the station')
         sname = sname.strip()
+        if len(sname) > MAX_STATION_NAME:
+            raise UvfitError(
+                f"{source}: {label} has a name of {len(sname)} characters (at most {MAX_STATION_NAME} accepted)",
+                "give the station a short name",
+            )
         where = f"station '{sname}'"
         unknown = set(st) - _STATION_KEYS
         if unknown:
@@ -244,4 +250,8 @@ def load_array(path):
         ) from None
     except UnicodeDecodeError:
         raise UvfitError(f"array file {path} is not a text file") from None
+    except RecursionError:
+        raise UvfitError(
+            f"array file {path} is nested too deeply to read", "an array file holds [[station]] tables of numbers"
+        ) from None
     return parse_array(data, source=f"array file {path}")

@@ -41,6 +41,10 @@ from uvfit.sky.shapes._quadrature import gaussian_blur_points, ring_points
 _LN2 = np.log(2.0)
 
 
+#: most azimuthal harmonics of a modulated ring (each adds two parameters)
+MAX_ORDER = 32
+
+
 def _bessel_j(top, z):
     """[J_0(z), ..., J_top(z)] stacked on a new first axis (scipy.special j0, j1, jv)."""
     out = [special.j0(z), special.j1(z)]
@@ -109,6 +113,11 @@ class ModulatedRing(Shape):
                     f"setting 'order' of shape 'ring_modulated' must be a whole number >= 0, got {order!r}",
                     "write e.g. order = 2",
                 )
+        if order > MAX_ORDER:
+            raise ModelError(
+                f"setting 'order' of shape 'ring_modulated' is {order}, more than {MAX_ORDER} harmonics",
+                f"use an order from 0 to {MAX_ORDER}; a few harmonics describe any ring the data resolve",
+            )
         self.order = int(order)
         self.config["order"] = self.order
         names = ["diameter", "blur"]

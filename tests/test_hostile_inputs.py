@@ -309,3 +309,37 @@ def test_ring_modulation_refused_exactly_when_brightness_negative(amps, angles):
         assert "'a'" in str(exc.value) and "amplitude_" in str(exc.value) and "negative" in str(exc.value)
     else:
         loads(body)
+
+
+# ---- the demo's answer never contradicts its comparison ---------------------------------------
+
+
+def _answer(fap, n_sim, n_exceed, preferred):
+    from uvfit.demo import headline
+
+    pair = {k: {"value": 1.0, "error": 0.1} for k in ("pair.separation", "pair.position_angle", "pair.flux_ratio")}
+    comparison = {
+        "preferred": preferred,
+        "models": [
+            {"name": "one"},
+            {"name": "two", "false_alarm_probability": fap, "n_simulations": n_sim, "n_exceeding": n_exceed},
+        ],
+    }
+    fit_one = {"parameters": {"source.fwhm": {"value": 0.3, "error": 0.01}}}
+    return headline({"parameters": pair}, fit_one, comparison)
+
+
+@pytest.mark.parametrize("n_sim", [1, 2, 5, 10])
+def test_demo_answer_undecided_with_too_few_simulations(n_sim):
+    """None of N simulations reached the improvement, but N < 20 cannot show a false-alarm
+    probability below 5% (the bound 1/(N+1) > 0.05; common practice): the comparison says
+    'undecided', so the answer must not say that one component suffices."""
+    text, numbers = _answer(1.0 / (n_sim + 1), n_sim, 0, "one")
+    assert text.startswith("undecided") and "suffices" not in text and numbers["undecided"] is True
+
+
+def test_demo_answer_decided_with_enough_simulations():
+    text, numbers = _answer(1.0 / 101, 100, 0, "two")
+    assert text.startswith("two components") and numbers["undecided"] is False
+    text, numbers = _answer(0.4, 100, 40, "one")
+    assert text.startswith("one component suffices") and numbers["undecided"] is False

@@ -657,6 +657,17 @@ def _(work):
     return ["sample", DATA, ONE, "--chain", "c.out", "--json", "c.out", "--max-steps", "5"]
 
 
+@probe("output-name-too-long", "bytes long")
+def _(work):
+    return ["fit", DATA, ONE, "--json", "x" * 250 + ".json"]
+
+
+@probe("output-report-name-too-long", "bytes long")
+def _(work):
+    fit_json(work)
+    return ["report", DATA, "--fit", "fit.json", "-o", "r" * 300 + ".html"]
+
+
 # ---- uvfit's own outputs read back ------------------------------------------------------------
 
 
@@ -879,6 +890,76 @@ def _(work):
     return ["simulate", "array.toml", ONE, "-o", "s.uvfits", *SIMULATE, "--duration", "1h"]
 
 
+# ---- devices, pipes and oversized files where a small file is expected ------------------------
+
+
+def _fifo(work, name):
+    os.mkfifo(work / name)
+    return name
+
+
+def _zero(work, name):
+    os.symlink("/dev/zero", work / name)
+    return name
+
+
+@probe("model-is-pipe", "p.toml", "not a regular file")
+def _(work):
+    return ["fit", DATA, _fifo(work, "p.toml")]
+
+
+@probe("model-is-dev-zero", "z.toml", "not a regular file")
+def _(work):
+    return ["fit", DATA, _zero(work, "z.toml")]
+
+
+@probe("model-oversized", "big.toml", "bytes")
+def _(work):
+    toml_model(work, "big.toml", "# padding\n" * 2_000_000)
+    return ["fit", DATA, "big.toml"]
+
+
+@probe("data-ecsv-is-pipe", "p.ecsv", "not a regular file")
+def _(work):
+    return ["info", _fifo(work, "p.ecsv")]
+
+
+@probe("data-uvfits-is-pipe", "p.uvfits", "not a regular file")
+def _(work):
+    return ["fit", _fifo(work, "p.uvfits"), ONE]
+
+
+@probe("data-is-dev-zero", "z.uvfits", "not a regular file")
+def _(work):
+    return ["closures", _zero(work, "z.uvfits")]
+
+
+@probe("fit-json-is-dev-zero", "z.json", "not a regular file")
+def _(work):
+    return ["plot", DATA, "--fit", _zero(work, "z.json"), "--kind", "uv", "-o", "p.png"]
+
+
+@probe("posterior-json-is-pipe", "p.json", "not a regular file")
+def _(work):
+    fit_json(work)
+    return ["report", DATA, "--fit", "fit.json", "--posterior", _fifo(work, "p.json"), "-o", "r.html"]
+
+
+@probe("manifest-is-pipe", "p.toml", "not a regular file")
+def _(work):
+    return ["batch", _fifo(work, "p.toml")]
+
+
+@probe("array-is-dev-zero", "z.toml", "not a regular file")
+def _(work):
+    return ["simulate", _zero(work, "z.toml"), ONE, "-o", "s.uvfits", *SIMULATE, "--duration", "1h"]
+
+
+@probe("fit-model-from-json-pipe", "p.json", "not a regular file")
+def _(work):
+    return ["closures", DATA, "--model", _fifo(work, "p.json")]
+
+
 # ---- odd but usable inputs: accepted, with a note and nothing raw -----------------------------
 
 
@@ -923,11 +1004,14 @@ def _(work):
 
 
 def _snapshot(root):
+    """Every file under ``root`` with its bytes (links and pipes by what they are, unread)."""
     out = {}
     for folder, dirs, files in os.walk(root):
         for name in files + [d for d in dirs if os.path.islink(os.path.join(folder, d))]:
             path = os.path.join(folder, name)
-            if os.path.islink(path):
+            if not os.path.islink(path) and not os.path.isfile(path):
+                out[path] = b"special file"
+            elif os.path.islink(path):
                 out[path] = b"link:" + os.readlink(path).encode()
             else:
                 with open(path, "rb") as handle:

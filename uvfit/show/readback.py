@@ -23,12 +23,14 @@ SELECTION_KEYS = SELECTION_OPTIONS
 
 def read_json(path, what):
     """The JSON object in ``path``; ``what`` names the kind of file in the messages."""
+    from ..inputs import MAX_JSON_BYTES, read_input_bytes
+
     path = os.fspath(path)
-    if not os.path.isfile(path):
+    if not os.path.exists(path):
         raise UvfitError(f"{what} file {path} does not exist", "check the path")
+    raw = read_input_bytes(path, f"{what} file", MAX_JSON_BYTES)
     try:
-        with open(path, "r", encoding="utf-8") as handle:
-            obj = json.load(handle)
+        obj = json.loads(raw.decode("utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise UvfitError(
             f"{what} file {path} is not valid JSON ({exc})", f"give the JSON written by the command that makes a {what}"
@@ -224,9 +226,15 @@ def load_model_or_fit(path):
             "give a model file (.toml) or a fit result (.json written by uvfit fit --json)",
         )
     if path.lower().endswith(".json"):
+        from ..inputs import MAX_JSON_BYTES, read_input_bytes
+
+        raw = read_input_bytes(path, "fit file", MAX_JSON_BYTES)
         try:
-            with open(path, encoding="utf-8") as handle:
-                doc = json.load(handle)
+            doc = json.loads(raw.decode("utf-8"))
+        except RecursionError:
+            raise ModelError(
+                f"{path} is nested too deeply to read", "give the JSON written by uvfit fit --json"
+            ) from None
         except (OSError, ValueError) as exc:
             raise ModelError(
                 f"{path} is not a readable JSON file ({exc})",

@@ -238,12 +238,12 @@ def parse_array(data, source="array file"):
 
 def load_array(path):
     """Read an array file (TOML, see the module docstring)."""
+    from ..inputs import read_input_bytes
+
     path = os.fspath(path)
-    if not os.path.exists(path):
-        raise UvfitError(f"array file {path} does not exist", "check the path")
+    raw = read_input_bytes(path, "array file")
     try:
-        with open(path, "rb") as handle:
-            data = tomllib.load(handle)
+        data = tomllib.loads(raw.decode("utf-8"))
     except tomllib.TOMLDecodeError as exc:
         raise UvfitError(
             f"array file {path} is not valid TOML: {exc}", "see README, 'Array files', for the format"

@@ -89,14 +89,13 @@ def _is_number(x):
 
 def load_model(path):
     """Read a model file into a SkyModel (ModelError naming the line and key on any problem)."""
+    from ..inputs import read_input_bytes
+
     path = os.fspath(path)
     try:
-        with open(path, "rb") as handle:
-            raw = handle.read()
-    except FileNotFoundError:
-        raise ModelError(f"model file {path} does not exist", "check the path") from None
-    except OSError as exc:
-        raise ModelError(f"cannot read model file {path}: {exc.strerror}") from None
+        raw = read_input_bytes(path, "model file")
+    except UvfitError as exc:
+        raise ModelError(exc.message, exc.hint) from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:

@@ -26,7 +26,7 @@ MEMORY_GROWTH = 400 * 1024**2
 PROBE_SECONDS = 30.0
 RUN_SECONDS = 900
 
-PROGRESS_LABELS = {"jobs", "sampling", "fitting"}
+PROGRESS_LABELS = {"jobs", "sampling", "fitting", "profiling"}
 
 
 def _limit():

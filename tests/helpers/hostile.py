@@ -854,6 +854,16 @@ def _(work):
     return ["fit", DATA, "r.toml"]
 
 
+@probe("option-profile-points-huge", "--points", "at most")
+def _(work):
+    return ["profile", DATA, ONE, "--parameter", "source.fwhm", "--points", "1000000000"]
+
+
+@probe("option-profile-unknown-parameter", "nope.x", "not free", "component.parameter")
+def _(work):
+    return ["profile", DATA, ONE, "--parameter", "nope.x"]
+
+
 ARRAY = DEMO.parent.parent / "examples" / "demo" / "array.toml"
 SIMULATE = ["--ra", "09h00m", "--dec", "20d", "--start", "2027-03-01T02:00", "--frequency", "22GHz"]
 

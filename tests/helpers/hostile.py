@@ -1004,6 +1004,21 @@ def _(work):
     return ["closures", DATA, "--model", "wide.toml"]
 
 
+@probe("accepted-absurd-times", "time outside MJD", outputs=[])
+def _(work):
+    """Two rows at MJD 9.3e9 (a damaged date): flagged, not passed to the calendar conversions."""
+    vs = demo_rows(n=60)
+    vs.time[[4, 9]] = 9.3e9
+    ecsv(work, "t.ecsv", vs)
+    return ["info", "t.ecsv"]
+
+
+@probe("ecsv-all-times-absurd", "t.ecsv", "no unflagged")
+def _(work):
+    ecsv(work, "t.ecsv", demo_rows(time=np.full(24, -5e6)))
+    return ["fit", "t.ecsv", ONE]
+
+
 @probe("accepted-long-names-at-limit", "stations", outputs=[])
 def _(work):
     ecsv(work, "l.ecsv", demo_rows(long_name="N" * 63))

@@ -237,3 +237,109 @@ def test_truncated_uvfits_refused(tmp_path, cut):
     res = _info(path)
     # FITS files are whole 2880-byte blocks (FITS standard): a file cut anywhere is refused
     assert res.exit_code == 2 and "truncated" in res.output, res.output
+
+
+# ---- station names: bounded memory per row ----------------------------------------------------
+
+
+@pytest.mark.parametrize("length,ok", [(64, True), (65, False), (2000, False)])
+def test_station_name_length_bounds_memory(tmp_path, length, ok):
+    """Each row holds its two names as fixed-width strings (4 bytes a character, numpy's 'U'
+    dtype, from numpy's documentation); names of at most 64 characters cap that at 512 bytes a
+    row, whatever the file."""
+    from uvfit.data.io import read
+
+    name = "S" * length
+    vs = _rows(n=30, station1=[name] * 30)
+    path = _ecsv(tmp_path, "n.ecsv", vs)
+    if ok:
+        got = read(path)
+        per_row = (got.station1.nbytes + got.station2.nbytes) / got.n
+        assert per_row <= 2 * 64 * 4
+    else:
+        res = _info(path)
+        assert res.exit_code == 2 and "n.ecsv" in res.output
+        assert "characters" in res.output or "bytes long" in res.output  # the name, or its row
+
+
+def test_one_long_line_refused_before_the_table_is_read(tmp_path):
+    """One row with a 3000-character station name among many short rows: refused from the line
+    lengths alone (the table would otherwise be as wide as that name on every row)."""
+    vs = _rows(n=600)
+    path = _ecsv(tmp_path, "w.ecsv", vs)
+    lines = path.read_text().splitlines()
+    k = next(i for i, line in enumerate(lines) if not line.startswith("#")) + 7  # row 6: AA-BB
+    lines[k] = lines[k].replace("AA", "Q" * 3000, 1)
+    path.write_text("\n".join(lines) + "\n")
+    res = _info(path)
+    assert res.exit_code == 2 and f"line {k + 1}" in res.output and "bytes long" in res.output
+
+
+# ---- ring modulation: brightness never negative -----------------------------------------------
+
+RINGS = [
+    ((0.4, 0.4), (0.0, 0.0)),  # harmonics that do not line up: positive everywhere
+    ((0.4, 0.4), (0.0, 90.0)),
+    ((0.3, 0.3, 0.45), (10.0, 70.0, -20.0)),
+    ((0.25, 0.25), (0.0, 0.0)),  # sum 0.5: always non-negative
+    ((0.49,), (33.0,)),
+    ((0.2, 0.2, 0.2), (0.0, 0.0, 0.0)),
+]
+
+
+@pytest.mark.parametrize("amps,angles", RINGS)
+def test_ring_modulation_refused_exactly_when_brightness_negative(amps, angles):
+    """The brightness on the ring, 1 + 2 sum_k a_k cos(k (psi - angle_k)) (Johnson et al. 2020,
+    Sci. Adv. 6, eaaz1310), minimised over psi by scipy (bounded search from a dense start)."""
+    from scipy.optimize import minimize_scalar
+
+    def level(psi):
+        return 1 + 2 * sum(a * np.cos(k * (psi - np.deg2rad(t))) for k, (a, t) in enumerate(zip(amps, angles), 1))
+
+    grid = np.linspace(0, 2 * np.pi, 97)
+    start = grid[np.argmin(level(grid))]
+    best = minimize_scalar(level, bounds=(start - 0.07, start + 0.07), method="bounded")
+    negative = best.fun < -1e-9
+    body = f'angular_unit="mas"\n[[component]]\nname="a"\nshape="ring_modulated"\nflux=1\ndiameter=0.5\norder={len(amps)}\n'
+    for k, (a, t) in enumerate(zip(amps, angles), 1):
+        body += f"amplitude_{k}={a}\nangle_{k}={t}\n"
+    if negative:
+        with pytest.raises(ModelError) as exc:
+            loads(body)
+        assert "'a'" in str(exc.value) and "amplitude_" in str(exc.value) and "negative" in str(exc.value)
+    else:
+        loads(body)
+
+
+# ---- the demo's answer never contradicts its comparison ---------------------------------------
+
+
+def _answer(fap, n_sim, n_exceed, preferred):
+    from uvfit.demo import headline
+
+    pair = {k: {"value": 1.0, "error": 0.1} for k in ("pair.separation", "pair.position_angle", "pair.flux_ratio")}
+    comparison = {
+        "preferred": preferred,
+        "models": [
+            {"name": "one"},
+            {"name": "two", "false_alarm_probability": fap, "n_simulations": n_sim, "n_exceeding": n_exceed},
+        ],
+    }
+    fit_one = {"parameters": {"source.fwhm": {"value": 0.3, "error": 0.01}}}
+    return headline({"parameters": pair}, fit_one, comparison)
+
+
+@pytest.mark.parametrize("n_sim", [1, 2, 5, 10])
+def test_demo_answer_undecided_with_too_few_simulations(n_sim):
+    """None of N simulations reached the improvement, but N < 20 cannot show a false-alarm
+    probability below 5% (the bound 1/(N+1) > 0.05; common practice): the comparison says
+    'undecided', so the answer must not say that one component suffices."""
+    text, numbers = _answer(1.0 / (n_sim + 1), n_sim, 0, "one")
+    assert text.startswith("undecided") and "suffices" not in text and numbers["undecided"] is True
+
+
+def test_demo_answer_decided_with_enough_simulations():
+    text, numbers = _answer(1.0 / 101, 100, 0, "two")
+    assert text.startswith("two components") and numbers["undecided"] is False
+    text, numbers = _answer(0.4, 100, 40, "one")
+    assert text.startswith("one component suffices") and numbers["undecided"] is False

@@ -8,6 +8,7 @@ import importlib
 import os
 import pkgutil
 import sys
+import warnings
 
 import click
 
@@ -79,16 +80,56 @@ def _exit_on_term():
     signal.signal(signal.SIGTERM, terminated)
 
 
+class _NumericalWarnings:
+    """Catch numpy's RuntimeWarnings (overflow, division by zero, invalid values) instead of
+    printing them raw with a source line: the results already show the non-finite numbers, and a
+    successful run ends with one note counting them."""
+
+    def __init__(self):
+        self.seen = {}
+
+    def __enter__(self):
+        self._context = warnings.catch_warnings()
+        self._context.__enter__()
+        self._show = warnings.showwarning
+        warnings.simplefilter("always", RuntimeWarning)
+
+        def show(message, category, filename, lineno, file=None, line=None):
+            if issubclass(category, RuntimeWarning):
+                text = str(message)
+                self.seen[text] = self.seen.get(text, 0) + 1
+                return
+            self._show(message, category, filename, lineno, file, line)
+
+        warnings.showwarning = show
+        return self
+
+    def __exit__(self, *exc):
+        self._context.__exit__(*exc)
+        return False
+
+    def note(self):
+        if not self.seen:
+            return None
+        total = sum(self.seen.values())
+        kinds = "; ".join(sorted(self.seen)[:3])
+        return (
+            f"uvfit: note: {total} numerical warning(s) during the computation ({kinds}); "
+            "a non-finite number in the results is shown as nan and never judged"
+        )
+
+
 def main(argv=None):
     """Entry point: run the group, turning known problems into one line and an exit code."""
     debug = bool(os.environ.get("UVFIT_DEBUG"))
     from ._blas import single_threaded
 
     _exit_on_term()
+    numerical = _NumericalWarnings()
 
     try:
         # many small least-squares steps: one BLAS thread is faster and gives the same numbers
-        with single_threaded():
+        with single_threaded(), numerical:
             cli.main(args=argv, prog_name="uvfit", standalone_mode=False)
     except click.exceptions.Abort:
         click.echo("aborted", err=True)
@@ -103,7 +144,16 @@ def main(argv=None):
             raise
         click.echo(f"uvfit: error: {exc}", err=True)
         sys.exit(exc.exit_code)
-    except (OSError, MemoryError) as exc:
+    except MemoryError as exc:
+        if debug:
+            raise
+        click.echo(
+            f"uvfit: error: not enough memory for this run ({exc or 'MemoryError'}). Fix: select fewer "
+            "rows or channels, or lower the sizes asked for (walkers, steps, starts)",
+            err=True,
+        )
+        sys.exit(2)
+    except OSError as exc:
         if debug:
             raise
         click.echo(f"uvfit: error: {exc}", err=True)
@@ -120,6 +170,9 @@ def main(argv=None):
             err=True,
         )
         sys.exit(3)
+    note = numerical.note()
+    if note:
+        click.echo(note, err=True)
     sys.exit(0)
 
 

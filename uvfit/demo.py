@@ -170,7 +170,16 @@ def headline(fit_two, fit_one, comparison, posterior=None):
         )
     else:
         fap_text = f"false-alarm probability of the single component {_percent(fap)} ({n_sim} simulations)"
-    if comparison.get("preferred") == "two":
+    undecided = comparison.get("preferred") != "two" and n_exceed == 0 and fap is not None and fap > 0.05
+    numbers["undecided"] = bool(undecided)
+    if undecided:
+        # no simulation of the single component came as close, but too few were run to say so
+        text = (
+            f"undecided: the double fits better than one component and none of {n_sim} simulations of the "
+            f"single component came as close, but {n_sim} simulations cannot show a false-alarm probability "
+            "below 5%; run the demo with 100 or more bootstrap simulations"
+        )
+    elif comparison.get("preferred") == "two":
         text = (
             f"two components, separation {_pm(sep, sep_e)} {unit} at PA "
             f"{_pm(pa % 360.0, pa_e, 1)} deg, flux ratio {_pm(ratio, ratio_e)} ({fap_text})"

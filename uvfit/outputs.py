@@ -28,6 +28,18 @@ def check_writable(path, force=False):
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise UvfitError(f"the folder for output file {path} does not exist", "create it first")
+    try:
+        name_max = os.pathconf(folder, "PC_NAME_MAX")
+    except (OSError, ValueError):
+        name_max = 255
+    name = os.fsencode(os.path.basename(path))
+    # the temporary file is named '.tmp-' + 8 random characters + the name
+    if len(name) + 13 > name_max:
+        raise UvfitError(
+            f"the output file name {os.path.basename(path)[:40]}... is {len(name)} bytes long "
+            f"(its folder takes names of at most {name_max} bytes, less 13 for the temporary file)",
+            "choose a shorter name",
+        )
     return path
 
 

@@ -1135,9 +1135,15 @@ def profile(
     Moolgavkar 1988). ``starts``: starts of the fit and per grid point besides the warm start.
     See :func:`uvfit.infer.profile.profile` for the keys of ``to_dict()``.
     """
+    from .infer.profile import MAX_POINTS
     from .infer.profile import profile as run_profile
 
     _check_at_least("points", points, 3)
+    if int(points) > MAX_POINTS:
+        raise UvfitError(
+            f"points must be at most {MAX_POINTS} (got {points})",
+            "a profile needs a few tens of grid values; narrow the range for detail",
+        )
     _check_at_least("starts", starts, 1)
     stat, best, notes = _fit_for(data, model, mode, systematic, starts, seed, selection, options)
     out = run_profile(

@@ -83,7 +83,8 @@ def command(
     for path in (json_out, plot_out):
         if path:
             check_writable(path, force)
-    with as_options(points="--points", starts="--starts", parameter="--parameter"):
+    # 'parameter' stays a word: the library's messages say "parameter X is not free"
+    with as_options(points="--points", starts="--starts"):
         with progressbar(points + 1, "profiling") as bar:
             report = tasks.profile(
                 data,

@@ -89,6 +89,11 @@ def read(path: "str | os.PathLike[str]", format: Optional[str] = None, **options
             f"{path}: is a folder, not a visibility file or a Measurement Set (no table.dat inside)",
             "give a .uvfits or .ecsv file, or a Measurement Set",
         )
+    if not os.path.isfile(path):
+        raise DataError(
+            f"{path}: is not a regular file (a device or a pipe), so it cannot be read as visibilities",
+            "give a .uvfits or .ecsv file, or a Measurement Set",
+        )
     if named_ms:
         raise DataError(
             f"{path}: is a file, but a Measurement Set is a folder (a casacore table)",

@@ -38,7 +38,7 @@ import numpy as np
 
 from ..errors import DataError, UvfitError
 from .uvfits import MS_ORIENTATION_NOTE, _ms_to_sky_convention, _stokes_i
-from .visset import StationTable, VisibilitySet
+from .visset import StationTable, VisibilitySet, check_station_names
 
 C_LIGHT = 299792458.0  # m/s (exact, SI)
 SECONDS_PER_DAY = 86400.0  # TIME is MJD in seconds (MS definition v2.0; common practice)
@@ -238,6 +238,7 @@ class MsLayout:
             if label in out:
                 label = f"{label}#{k}"
             out.append(label)
+        check_station_names(out, path, "the ANTENNA table")
         self.antenna_names, self.antenna_xyz = out, xyz
 
         with _open(os.path.join(path, "FIELD")) as fld:

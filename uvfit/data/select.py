@@ -15,6 +15,8 @@ The worst case uses the longest baseline in the set. These are upper limits on t
 linear phase run; a real source loses less where its emission is closer to the phase centre.
 """
 
+import os
+
 import numpy as np
 
 from ..errors import DataError
@@ -277,8 +279,12 @@ def parse_stations(value):
     return names
 
 
+#: most channel indices one channel list may name (a range is expanded into its indices)
+MAX_CHANNEL_LIST = 1 << 20
+
+
 def parse_channels(value):
-    """'0,2-5' (or a list of ints) -> sorted list of ints."""
+    """'0,2-5' (or a list of ints) -> sorted list of ints (at most MAX_CHANNEL_LIST of them)."""
     if value is None:
         return None
     if not isinstance(value, str):
@@ -297,6 +303,11 @@ def parse_channels(value):
                 lo, hi = int(lo), int(hi)
                 if hi < lo:
                     raise ValueError
+                if hi - lo + 1 + len(out) > MAX_CHANNEL_LIST:
+                    raise DataError(
+                        f"the channel list '{value}' names more than {MAX_CHANNEL_LIST} channels",
+                        "name the channels the data hold (uvfit info lists them)",
+                    )
                 out.update(range(lo, hi + 1))
             else:
                 out.add(int(part))
@@ -401,7 +412,13 @@ def read_selected(data, selection=None, good=True):
     if selection:
         vset, more = apply_selection(vset, **selection)
         notes += list(more)
-    good_rows = vset.good()
+    try:
+        good_rows = vset.good()
+    except DataError as exc:
+        if isinstance(data, (str, bytes)) or hasattr(data, "__fspath__"):
+            name = os.fsdecode(data)
+            raise DataError(f"{name}: {exc.message}", exc.hint) from None
+        raise
     return (good_rows if good else vset), notes
 
 
@@ -466,7 +483,7 @@ def apply_selection(
             raise DataError("a time range needs two times, START and END")
         t0, t1 = to_mjd(time_range[0]), to_mjd(time_range[1])
         if t1 < t0:
-            raise DataError(f"the time range ends ({time_range[1]}) before it starts ({time_range[0]})")
+            raise DataError(f"the time range ends ({time_range[1]}) before its start ({time_range[0]})")
         cut((vset.time >= t0) & (vset.time <= t1), f"times {time_range[0]} to {time_range[1]}")
     q = vset.uv_distance
     if min_uv is not None:

@@ -18,7 +18,7 @@ import numpy as np
 
 from ..errors import DataError, UvfitError
 from ..outputs import _to_builtin, atomic_write_with
-from .visset import StationTable, VisibilitySet, screen_rows
+from .visset import StationTable, VisibilitySet, check_station_names, screen_rows
 
 FORMAT_NAME = "uvfit visibility table"
 FORMAT_VERSION = 1
@@ -90,6 +90,10 @@ def _num(x):
 
 
 MAX_HEADER_BYTES = 4 * 1024 * 1024
+#: longest data line accepted (bytes): a row holds about a dozen numbers and two station names of
+#: at most MAX_STATION_NAME characters. A string column is stored as wide as its longest entry on
+#: every row, so one long line would cost its length on every row in memory.
+MAX_LINE_BYTES = 1024
 _YAML_NODE_REFERENCE = re.compile(r"(^|[\s\[{,:-])[&*][A-Za-z0-9_.-]")
 
 
@@ -98,14 +102,15 @@ def _check_header(path):
 
     The header (the leading '#' lines) is capped at MAX_HEADER_BYTES, and YAML anchors and aliases
     ('&name', '*name') are refused: a small header of nested aliases expands to gigabytes.
-    The project's writer never makes either.
+    The project's writer never makes either. Returns (bytes, lines) of the header.
     """
-    size = 0
+    size = lines = 0
     with open(path, "rb") as handle:
         for number, line in enumerate(handle, start=1):
             if not line.startswith(b"#"):
                 break
             size += len(line)
+            lines = number
             if size > MAX_HEADER_BYTES:
                 raise DataError(
                     f"{path}: the ECSV header is larger than {MAX_HEADER_BYTES} bytes",
@@ -117,6 +122,41 @@ def _check_header(path):
                     f"{path}: the ECSV header uses a YAML anchor or alias (line {number})",
                     "uvfit refuses them (they can expand without bound); write the values out",
                 )
+    return size, lines
+
+
+def _check_lines(path, start, first_line):
+    """Refuse a data line longer than MAX_LINE_BYTES, reading the file in blocks from byte
+    ``start`` (the end of the header; its line number is ``first_line``)."""
+    block = 1 << 20
+    partial = 0  # bytes of the line running over from the previous block
+    lines = 0
+    with open(path, "rb") as handle:
+        handle.seek(start)
+        while True:
+            chunk = handle.read(block)
+            if not chunk:
+                break
+            ends = np.flatnonzero(np.frombuffer(chunk, np.uint8) == 10)
+            lengths = np.diff(ends, prepend=-1) - 1
+            if lengths.size:
+                lengths[0] += partial
+                partial = len(chunk) - int(ends[-1]) - 1
+            else:
+                partial += len(chunk)
+            if lengths.size and lengths.max() > MAX_LINE_BYTES:
+                k = int(np.argmax(lengths > MAX_LINE_BYTES))
+                _long_line(path, first_line + lines + k + 1, int(lengths[k]))
+            if partial > MAX_LINE_BYTES:
+                _long_line(path, first_line + lines + lengths.size + 1, partial)
+            lines += lengths.size
+
+
+def _long_line(path, number, length):
+    raise DataError(
+        f"{path}: line {number} of the ECSV table is {length} bytes long (at most {MAX_LINE_BYTES} accepted)",
+        "a row holds a few numbers and two station names; check the file",
+    )
 
 
 def read_table(path):
@@ -124,7 +164,8 @@ def read_table(path):
     from astropy.table import Table
 
     path = os.fspath(path)
-    _check_header(path)
+    header_bytes, header_lines = _check_header(path)
+    _check_lines(path, header_bytes, header_lines)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -132,8 +173,9 @@ def read_table(path):
     except UvfitError:
         raise
     except Exception as exc:
+        first = (str(exc).strip().splitlines() or [""])[0]
         raise DataError(
-            f"{path}: not a readable ECSV visibility table ({type(exc).__name__}: {exc})",
+            f"{path}: not a readable ECSV visibility table ({type(exc).__name__}: {first})",
             "check the file; see README 'Data formats' for the columns",
         ) from None
     missing = [c for c in REQUIRED if c not in table.colnames]
@@ -186,7 +228,10 @@ def read_table(path):
             f"{path}: the table's columns or header cannot be used ({type(exc).__name__}: {exc})",
             "see README 'Data formats'",
         ) from None
-    unknown = sorted((set(vset.station1.tolist()) | set(vset.station2.tolist())) - set(vset.stations.names))
+    check_station_names(vset.stations.names, path, "the header's station list")
+    used = sorted(set(vset.station1.tolist()) | set(vset.station2.tolist()))
+    check_station_names(used, path, "the station1 or station2 column")
+    unknown = sorted(set(used) - set(vset.stations.names))
     if unknown:
         vset.stations = StationTable(
             list(vset.stations.names) + unknown, np.vstack([vset.stations.xyz, np.full((len(unknown), 3), np.nan)])

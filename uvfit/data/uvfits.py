@@ -26,7 +26,7 @@ import numpy as np
 
 from ..errors import DataError, UvfitError
 from ..labels import printable
-from .visset import StationTable, VisibilitySet, screen_rows
+from .visset import MAX_STATION_NAME, StationTable, VisibilitySet, screen_rows
 
 # Extension names of the standard tables, matched as strings.
 ANTENNA_EXTNAME = "AIPS AN"
@@ -173,8 +173,6 @@ def _axes(header, path):
         axes[ctype.split("-")[0]] = entry
     return axes, unnamed
 
-
-MAX_STATION_NAME = 64  # characters; names of real stations are short (common practice)
 
 _BLOCK = 2880
 _MAX_HEADER_BLOCKS = 4000

@@ -257,12 +257,32 @@ class VisibilitySet:
 # Largest |u|, |v| a row may have, in wavelengths: 1e15 is far beyond any baseline (Earth-space
 # baselines at the highest radio frequencies are ~1e11 wavelengths; common practice).
 MAX_UV_LAMBDA = 1.0e15
+#: times (MJD) a row may have: 1858-11-17 to 2406 (common practice: no interferometer observed
+#: before MJD 0, and calendar conversions fail far outside it)
+MJD_RANGE = (0.0, 200000.0)
+
+#: longest station name a reader accepts (characters). Each row holds its two names as
+#: fixed-width strings as long as the longest name, so one long name costs memory on every row;
+#: names of real stations are short (common practice).
+MAX_STATION_NAME = 64
+
+
+def check_station_names(names, path, where="the station table"):
+    """DataError naming the file when a station name is longer than MAX_STATION_NAME."""
+    for i, name in enumerate(names):
+        if len(name) > MAX_STATION_NAME:
+            raise DataError(
+                f"{path}: {where} holds a station name of {len(name)} characters (entry {i + 1}; at most "
+                f"{MAX_STATION_NAME} accepted)",
+                "shorten the station names",
+            )
 
 
 def screen_rows(vset, path):
     """Flag the rows a reader must not use, counting each reason in ``meta["flagged_reasons"]``.
 
-    Flagged (with a count): non-finite u, v, w or time, |u| or |v| above MAX_UV_LAMBDA,
+    Flagged (with a count): non-finite u, v, w or time, a time outside MJD_RANGE, |u| or |v|
+    above MAX_UV_LAMBDA,
     autocorrelations (station1 == station2), and every repeat of a row with the same time,
     stations, channel and frequency (the first is kept). Refused (DataError naming the file):
     a non-finite, zero or negative frequency, which would make every (u, v) of the row wrong.
@@ -281,6 +301,10 @@ def screen_rows(vset, path):
         checks = [
             ("non-finite u, v or w", ~(np.isfinite(vset.u) & np.isfinite(vset.v) & np.isfinite(vset.w))),
             ("non-finite time", ~np.isfinite(vset.time)),
+            (
+                f"time outside MJD {MJD_RANGE[0]:g} to {MJD_RANGE[1]:g} (years 1858 to 2406)",
+                np.isfinite(vset.time) & ((vset.time < MJD_RANGE[0]) | (vset.time > MJD_RANGE[1])),
+            ),
             (
                 f"|u| or |v| above {MAX_UV_LAMBDA:g} wavelengths",
                 (np.abs(vset.u) > MAX_UV_LAMBDA) | (np.abs(vset.v) > MAX_UV_LAMBDA),

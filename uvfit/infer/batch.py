@@ -48,11 +48,9 @@ COMMANDS = ("fit", "sample")
 
 
 def _read_manifest_text(path):
-    try:
-        with open(path, "rb") as handle:
-            raw = handle.read()
-    except OSError as exc:
-        raise UvfitError(f"cannot read the batch manifest {path}: {exc.strerror}", "check the path") from None
+    from ..inputs import read_input_bytes
+
+    raw = read_input_bytes(path, "batch manifest")
     try:
         return tomllib.loads(raw.decode("utf-8"))
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
@@ -191,6 +189,9 @@ def job_digest(job):
     """SHA-256 of what decides a job's result: the data and model bytes, its options, the version."""
     h = hashlib.sha256()
     for key in ("data", "model"):
+        if not os.path.isfile(job[key]) and not os.path.isdir(job[key]):
+            h.update(f"not a file:{job[key]}".encode())
+            continue
         try:
             with open(job[key], "rb") as handle:
                 for block in iter(lambda: handle.read(1 << 20), b""):

@@ -22,6 +22,10 @@ from .lsq import _run_start, fit, free_bounds, random_starts
 LEVELS = {"interval_68": 1.0, "interval_95": 3.841458820694124}
 
 
+#: most grid values of one profile (each is a refit)
+MAX_POINTS = 10_000
+
+
 def _crossing(g, d, i, level):
     """Where the profile ``d`` crosses ``level`` between grid points i and i + 1."""
     lo_x, hi_x = g[i], g[i + 1]
@@ -99,6 +103,11 @@ def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best
     points = int(points)
     if points < 3:
         raise UvfitError(f"points must be at least 3 (got {points})")
+    if points > MAX_POINTS:
+        raise UvfitError(
+            f"points must be at most {MAX_POINTS} (got {points})",
+            "a profile needs a few tens of grid values; narrow the range for detail",
+        )
     if best is None:
         best = fit(statistic, starts=max(int(starts), 1), seed=seed, max_nfev=max_nfev)
     stat = best.statistic

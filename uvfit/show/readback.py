@@ -6,6 +6,7 @@ figure shows exactly the model that was fitted, and the data are selected as the
 """
 
 import json
+import math
 import os
 from dataclasses import dataclass
 
@@ -22,15 +23,22 @@ SELECTION_KEYS = SELECTION_OPTIONS
 
 def read_json(path, what):
     """The JSON object in ``path``; ``what`` names the kind of file in the messages."""
+    from ..inputs import MAX_JSON_BYTES, read_input_bytes
+
     path = os.fspath(path)
-    if not os.path.isfile(path):
+    if not os.path.exists(path):
         raise UvfitError(f"{what} file {path} does not exist", "check the path")
+    raw = read_input_bytes(path, f"{what} file", MAX_JSON_BYTES)
     try:
-        with open(path, "r", encoding="utf-8") as handle:
-            obj = json.load(handle)
+        obj = json.loads(raw.decode("utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise UvfitError(
             f"{what} file {path} is not valid JSON ({exc})", f"give the JSON written by the command that makes a {what}"
+        ) from None
+    except RecursionError:
+        raise UvfitError(
+            f"{what} file {path} is nested too deeply to read",
+            f"give the JSON written by the command that makes a {what}",
         ) from None
     if not isinstance(obj, dict):
         raise UvfitError(
@@ -38,6 +46,46 @@ def read_json(path, what):
             f"give the JSON written by the command that makes a {what}",
         )
     return obj
+
+
+def finite_number(value):
+    """True for an int or float (not a bool) that is finite as a float."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return False
+    try:
+        return math.isfinite(float(value))
+    except OverflowError:
+        return False
+
+
+def _check_selection(fit, path):
+    """Refuse a recorded selection whose values could not come from a fit."""
+    recorded = fit.get("selection")
+    if recorded is None:
+        return
+    if not isinstance(recorded, dict):
+        raise UvfitError(f"fit file {path}: its recorded selection is not a table", "give the unchanged fit JSON")
+    for key in ("min_uv", "max_uv", "average"):
+        value = recorded.get(key)
+        if value is not None and not finite_number(value):
+            raise UvfitError(
+                f"fit file {path}: its recorded selection {key} = {value!r} is not a finite number",
+                "give the unchanged fit JSON",
+            )
+    for key in ("stations", "exclude_stations", "channels"):
+        value = recorded.get(key)
+        if value is not None and not isinstance(value, (str, list)):
+            raise UvfitError(
+                f"fit file {path}: its recorded selection {key} = {value!r} is not text", "give the unchanged fit JSON"
+            )
+    times = recorded.get("time_range")
+    if times is not None and (
+        not isinstance(times, list) or len(times) != 2 or not all(isinstance(t, (str, int, float)) for t in times)
+    ):
+        raise UvfitError(
+            f"fit file {path}: its recorded selection time_range = {times!r} is not two times",
+            "give the unchanged fit JSON",
+        )
 
 
 def load_fit(path):
@@ -52,6 +100,7 @@ def load_fit(path):
         raise UvfitError(
             f"{path} is not a fit output ({what})", "give the file written by 'uvfit fit ... --json FIT.json'"
         )
+    _check_selection(fit, path)
     return fit
 
 
@@ -68,6 +117,20 @@ def load_posterior(path):
             f"{path} is not a posterior summary (no parameters with medians)",
             "give the JSON written by 'uvfit sample ... --json'",
         )
+    for name, entry in params.items():
+        for key, value in entry.items():
+            if key in ("median", "mean", "std", "lower", "upper", "lower_95", "upper_95", "max_posterior") and not (
+                value is None or finite_number(value)
+            ):
+                raise UvfitError(
+                    f"posterior file {path}: {key} of {name} is {value!r}, not a finite number",
+                    "give the unchanged JSON written by 'uvfit sample ... --json'",
+                )
+    if post.get("converged") not in (None, True, False):
+        raise UvfitError(
+            f"posterior file {path}: 'converged' is {post['converged']!r}, not true or false",
+            "give the unchanged JSON written by 'uvfit sample ... --json'",
+        )
     return post
 
 
@@ -78,6 +141,17 @@ def load_compare(path):
         raise UvfitError(
             f"{path} is not a model comparison (no models, no verdict)",
             "give the JSON written by 'uvfit compare ... --json'",
+        )
+    models = comp.get("models", [])
+    if not isinstance(models, list) or not all(isinstance(m, dict) and isinstance(m.get("name"), str) for m in models):
+        raise UvfitError(
+            f"comparison file {path}: 'models' is not a list of named models",
+            "give the unchanged JSON written by 'uvfit compare ... --json'",
+        )
+    if not isinstance(comp.get("verdict", ""), str) or not isinstance(comp.get("preferred", ""), (str, type(None))):
+        raise UvfitError(
+            f"comparison file {path}: 'verdict' or 'preferred' is not text",
+            "give the unchanged JSON written by 'uvfit compare ... --json'",
         )
     return comp
 
@@ -116,7 +190,11 @@ def model_from_fit(fit, path=None):
     try:
         model = model_from_text(fit["model_toml"], path=path)
     except UvfitError as exc:
-        raise UvfitError(f"the model recorded in the fit cannot be rebuilt: {exc.message}", exc.hint) from None
+        where = f"{path}: " if path else ""
+        message = exc.message
+        if path and message.startswith(f"{path}: "):
+            message = message[len(path) + 2 :]
+        raise UvfitError(f"{where}the model recorded in the fit cannot be rebuilt: {message}", exc.hint) from None
     params = fit.get("parameters", {})
     names = list(model.free_names)
     if names and isinstance(params, dict) and all(n in params for n in names):
@@ -124,7 +202,7 @@ def model_from_fit(fit, path=None):
         for n in names:
             entry = params[n]
             value = entry.get("value") if isinstance(entry, dict) else None
-            if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(value):
+            if not finite_number(value):
                 where = f"{path}: " if path else ""
                 raise UvfitError(
                     f"{where}the fitted value of {n} is {value!r}, not a finite number",
@@ -148,9 +226,15 @@ def load_model_or_fit(path):
             "give a model file (.toml) or a fit result (.json written by uvfit fit --json)",
         )
     if path.lower().endswith(".json"):
+        from ..inputs import MAX_JSON_BYTES, read_input_bytes
+
+        raw = read_input_bytes(path, "fit file", MAX_JSON_BYTES)
         try:
-            with open(path, encoding="utf-8") as handle:
-                doc = json.load(handle)
+            doc = json.loads(raw.decode("utf-8"))
+        except RecursionError:
+            raise ModelError(
+                f"{path} is nested too deeply to read", "give the JSON written by uvfit fit --json"
+            ) from None
         except (OSError, ValueError) as exc:
             raise ModelError(
                 f"{path} is not a readable JSON file ({exc})",
@@ -246,8 +330,16 @@ def open_fit_view(data_path, fit_path, options=None):
     Returns (FitView, notes), notes being the selection's messages for the user.
     """
     fit = load_fit(fit_path)
+    fit_path = os.fspath(fit_path)
+    model_from_fit(fit, path=fit_path)  # refuse a damaged fit (naming the file) before reading the data
     selection = merged_selection(fit, options)
     vset, notes = read_selected(data_path, selection, good=False)
+    reasons = vset.meta.get("flagged_reasons") or {}
+    if reasons:
+        notes.append(
+            f"note: {os.path.basename(os.fspath(data_path))}: rows flagged on reading and not shown: "
+            + "; ".join(f"{k}: {n}" for k, n in reasons.items())
+        )
     fitted = fit.get("data")
     if fitted and os.path.basename(str(fitted)) != os.path.basename(os.fspath(data_path)):
         notes.append(

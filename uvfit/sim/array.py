@@ -36,6 +36,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..data.visset import MAX_STATION_NAME
 from ..errors import UvfitError
 
 DEFAULT_ETA = 0.88  # 2-bit sampling efficiency (TMS 2017 ch. 8, from memory)
@@ -161,6 +162,11 @@ def parse_array(data, source="array file"):
         if not isinstance(sname, str) or not sname.strip():
             raise UvfitError(f"{source}: {label} has no 'name'", 'add name = "XX" to the station')
         sname = sname.strip()
+        if len(sname) > MAX_STATION_NAME:
+            raise UvfitError(
+                f"{source}: {label} has a name of {len(sname)} characters (at most {MAX_STATION_NAME} accepted)",
+                "give the station a short name",
+            )
         where = f"station '{sname}'"
         unknown = set(st) - _STATION_KEYS
         if unknown:
@@ -232,16 +238,20 @@ def parse_array(data, source="array file"):
 
 def load_array(path):
     """Read an array file (TOML, see the module docstring)."""
+    from ..inputs import read_input_bytes
+
     path = os.fspath(path)
-    if not os.path.exists(path):
-        raise UvfitError(f"array file {path} does not exist", "check the path")
+    raw = read_input_bytes(path, "array file")
     try:
-        with open(path, "rb") as handle:
-            data = tomllib.load(handle)
+        data = tomllib.loads(raw.decode("utf-8"))
     except tomllib.TOMLDecodeError as exc:
         raise UvfitError(
             f"array file {path} is not valid TOML: {exc}", "see README, 'Array files', for the format"
         ) from None
     except UnicodeDecodeError:
         raise UvfitError(f"array file {path} is not a text file") from None
+    except RecursionError:
+        raise UvfitError(
+            f"array file {path} is nested too deeply to read", "an array file holds [[station]] tables of numbers"
+        ) from None
     return parse_array(data, source=f"array file {path}")

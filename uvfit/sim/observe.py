@@ -127,11 +127,23 @@ def _iso(t):
         return t.isot[:16]
 
 
+#: most visibilities (rows) one simulated observation may hold
+MAX_ROWS = 10_000_000
+
+
 def plan(array, observation):
     """The rows (times, baselines, channels) with their (u, v, w) and thermal sigma."""
     obs = observation
     obs.check()
     times = time_grid(obs.start, obs.duration_s, obs.integration_s)
+    n_names = len(array.names)
+    most = len(times) * (n_names * (n_names - 1) // 2) * int(obs.channels)
+    if most > MAX_ROWS:
+        raise UvfitError(
+            f"the observation could hold up to {most} visibilities ({len(times)} integrations x "
+            f"{n_names * (n_names - 1) // 2} baselines x {int(obs.channels)} channels), more than {MAX_ROWS}",
+            "use fewer channels, a longer integration or a shorter duration",
+        )
     tracks = compute_tracks(array, obs.ra_deg, obs.dec_deg, times)
     ti, bi = np.nonzero(tracks.valid)
     if len(ti) == 0:

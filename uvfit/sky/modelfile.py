@@ -89,14 +89,13 @@ def _is_number(x):
 
 def load_model(path):
     """Read a model file into a SkyModel (ModelError naming the line and key on any problem)."""
+    from ..inputs import read_input_bytes
+
     path = os.fspath(path)
     try:
-        with open(path, "rb") as handle:
-            raw = handle.read()
-    except FileNotFoundError:
-        raise ModelError(f"model file {path} does not exist", "check the path") from None
-    except OSError as exc:
-        raise ModelError(f"cannot read model file {path}: {exc.strerror}") from None
+        raw = read_input_bytes(path, "model file")
+    except UvfitError as exc:
+        raise ModelError(exc.message, exc.hint) from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
@@ -111,7 +110,20 @@ def loads(text, path=None):
     except tomllib.TOMLDecodeError as exc:
         where = f"{path}: " if path else ""
         raise ModelError(f"{where}TOML syntax error: {exc}", "see the README, 'Model files', for the format") from None
-    return model_from_dict(data, source=text, path=path)
+    except RecursionError:
+        where = f"{path}: " if path else ""
+        raise ModelError(
+            f"{where}the model file is nested too deeply to read",
+            "a model file holds [[component]] tables of numbers and small tables",
+        ) from None
+    try:
+        return model_from_dict(data, source=text, path=path)
+    except RecursionError:
+        where = f"{path}: " if path else ""
+        raise ModelError(
+            f"{where}the model file is nested too deeply to use",
+            "a model file holds [[component]] tables of numbers and small tables",
+        ) from None
 
 
 def build_model(components, angular_unit="mas", description=None):

@@ -197,7 +197,14 @@ def read_chain(path, discard=0, thin=1):
 
     try:
         backend = emcee.backends.HDFBackend(path, name=chain_group(path), read_only=True)
+        if int(backend.iteration) == 0:
+            raise UvfitError(
+                f"chain file {path} is empty: it holds no samples (no step of the sampler was stored)",
+                "give a chain written by a sampling run that made at least one step",
+            )
         samples = backend.get_chain(discard=int(discard), thin=int(thin), flat=True)
+    except UvfitError:
+        raise
     except (OSError, KeyError, AttributeError, ValueError) as exc:
         raise UvfitError(
             f"chain file {path} is not a readable sampler chain ({exc})",

@@ -74,6 +74,22 @@ class Chain:
         return self.chain[k].copy(), float(self.log_prob[k])
 
 
+#: most memory the chain (positions and log-probabilities of every step) may take, in bytes
+MAX_CHAIN_BYTES = 2 * 1024**3
+
+
+def check_chain_size(max_steps, n_walkers, n_dim):
+    """UvfitError when max_steps x walkers x (parameters + 1) floats exceed MAX_CHAIN_BYTES: the
+    sampler keeps the whole chain in memory, and reserves it before the first step."""
+    need = int(max_steps) * int(n_walkers) * (int(n_dim) + 1) * 8
+    if need > MAX_CHAIN_BYTES:
+        raise UvfitError(
+            f"a chain of max_steps {int(max_steps)} x walkers {int(n_walkers)} x {int(n_dim)} parameters "
+            f"would need {need / 1024**3:.3g} GiB of memory (at most {MAX_CHAIN_BYTES / 1024**3:.3g} GiB)",
+            "lower max_steps or walkers; a converged chain stops early anyway",
+        )
+
+
 def run_chain(
     log_prob,
     start,
@@ -132,6 +148,7 @@ def run_chain(
             )
         backend = new_backend(chain_path, n_walkers, n_dim, names, seed, meta)
 
+    check_chain_size(max(int(max_steps), previous), n_walkers, n_dim)
     pool = None
     fn = log_prob
     if procs and int(procs) > 1:

@@ -41,6 +41,10 @@ from uvfit.sky.shapes._quadrature import gaussian_blur_points, ring_points
 _LN2 = np.log(2.0)
 
 
+#: most azimuthal harmonics of a modulated ring (each adds two parameters)
+MAX_ORDER = 32
+
+
 def _bessel_j(top, z):
     """[J_0(z), ..., J_top(z)] stacked on a new first axis (scipy.special j0, j1, jv)."""
     out = [special.j0(z), special.j1(z)]
@@ -117,6 +121,11 @@ class ModulatedRing(Shape):
                     f"setting 'order' of shape 'ring_modulated' must be a whole number >= 0, got {order!r}",
                     "write e.g. order = 2",
                 )
+        if order > MAX_ORDER:
+            raise ModelError(
+                f"setting 'order' of shape 'ring_modulated' is {order}, more than {MAX_ORDER} harmonics",
+                f"use an order from 0 to {MAX_ORDER}; a few harmonics describe any ring the data resolve",
+            )
         self.order = int(order)
         self.config["order"] = self.order
         names = ["diameter", "blur"]
@@ -153,6 +162,32 @@ class ModulatedRing(Shape):
     def default_value(self, name):
         """A model file may leave out ``blur``: 0, fixed (an unblurred ring)."""
         return (0.0, True) if name == "blur" else None
+
+    def invalid_values(self, p):
+        """Amplitudes that make the brightness on the ring negative at some position angle (the
+        minimum of 1 + 2 sum_k a_k cos(k (psi - angle_k)) on a fine grid of psi). The sum of the
+        amplitudes at most 0.5 always passes; larger sums pass where the harmonics do not line up.
+        ``p`` in model units (angles in degrees)."""
+        if self.order < 1:
+            return []
+        names = [f"amplitude_{k}" for k in range(1, self.order + 1)]
+        rad = {n: float(p[n]) for n in names}
+        rad.update({f"angle_{k}": np.deg2rad(float(p[f"angle_{k}"])) for k in range(1, self.order + 1)})
+        psi = np.linspace(0.0, 2.0 * np.pi, 720 * self.order, endpoint=False)
+        level = self._azimuthal(psi, rad)
+        lowest = int(np.argmin(level))
+        if level[lowest] >= 0.0:
+            return []
+        worst = max(names, key=lambda n: abs(rad[n]))
+        listed = ", ".join(f"{n} = {p[n]!r}" for n in names)
+        return [
+            (
+                worst,
+                f"the modulation ({listed}) makes the ring's brightness negative near position angle "
+                f"{np.rad2deg(psi[lowest]):.0f} deg (1 + 2 sum a_k cos k(psi - angle_k) = {level[lowest]:.3g}; "
+                "amplitudes summing to at most 0.5 always keep it non-negative)",
+            )
+        ]
 
     # Fourier domain -----------------------------------------------------------------------------
     def _terms(self, u, v, p, derivatives):

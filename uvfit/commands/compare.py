@@ -7,8 +7,10 @@ from ._common import (
     as_options,
     at_least_zero,
     check_outputs,
+    closure_options,
     echo_notes,
     force_option,
+    pop_closure_options,
     pop_selection,
     progressbar,
     seed_option,
@@ -59,6 +61,7 @@ from ._common import (
 )
 @seed_option
 @force_option
+@closure_options
 @selection_options
 def command(
     data,
@@ -87,6 +90,7 @@ def command(
 
     if len(models) < 2:
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     check_outputs({"--json": json_out}, {"the data": data, **{f"model {m}": m for m in models}}, force)
     options = dict(
@@ -99,6 +103,7 @@ def command(
         rescale_errors=rescale_errors,
         global_search=global_search,
         reference=reference,
+        **closure,
     )
     with as_options(bootstrap="--bootstrap", reference="--reference"):
         if bootstrap > 0:

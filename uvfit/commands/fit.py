@@ -7,8 +7,10 @@ from ._common import (
     as_options,
     at_least_zero,
     check_outputs,
+    closure_options,
     echo_notes,
     force_option,
+    pop_closure_options,
     pop_selection,
     progressbar,
     seed_option,
@@ -91,6 +93,7 @@ from ._common import (
     help="Write the best-fit model visibilities into the Measurement Set's MODEL_DATA column "
     "(created if absent; DATA is never touched).",
 )
+@closure_options
 @seed_option
 @force_option
 @selection_options
@@ -123,6 +126,7 @@ def command(
     from .. import tasks
     from ..outputs import atomic_write, write_json
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     if write_model_column:
         from ..data.ms import check_model_column_writable
@@ -142,6 +146,7 @@ def command(
         max_evaluations=max_evaluations,
         profile=profile_name,
         jackknife=jackknife,
+        **closure,
     )
     total = starts + (1 if global_search else 0)
     with as_options(

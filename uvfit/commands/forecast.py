@@ -3,7 +3,15 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, check_outputs, force_option, progressbar, seed_option
+from ._common import (
+    as_options,
+    check_outputs,
+    closure_options,
+    force_option,
+    pop_closure_options,
+    progressbar,
+    seed_option,
+)
 from ._observation import observation_options, pop_observation
 
 
@@ -28,6 +36,7 @@ from ._observation import observation_options, pop_observation
     type=click.Path(dir_okay=False),
     help="Write the forecast (all numbers, per trial, seeds) as JSON here.",
 )
+@closure_options
 @seed_option
 @force_option
 def command(array_file, true_file, alt_files, trials, mode, starts, json_path, seed, force, **kwargs):
@@ -40,6 +49,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     from .. import tasks
     from ..outputs import write_json
 
+    closure = pop_closure_options(kwargs)
     observation, corruption = pop_observation(kwargs)
     check_outputs(
         {"--json": json_path},
@@ -48,7 +58,8 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     )
     with as_options(trials="--trials"):
         tasks.check_forecast_options(trials=trials)
-    with progressbar(trials, "forecast trials") as bar:
+        tasks.closure_options(mode, **closure)
+    with as_options(), progressbar(trials, "forecast trials") as bar:
         report = tasks.forecast(
             array_file,
             true_file,
@@ -59,6 +70,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
             seed=seed,
             starts=starts,
             progress=bar.update,
+            **closure,
             **corruption,
         )
     if report.notice:

@@ -3,7 +3,16 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, seed_option, selection_options
+from ._common import (
+    as_options,
+    closure_options,
+    echo_notes,
+    force_option,
+    pop_closure_options,
+    pop_selection,
+    seed_option,
+    selection_options,
+)
 
 
 @click.command("jackknife")
@@ -45,6 +54,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, seed_o
     default=None,
     help="Write the per-group results and errors as JSON here.",
 )
+@closure_options
 @seed_option
 @force_option
 @selection_options
@@ -55,6 +65,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
     from .. import tasks
     from ..outputs import check_writable, write_json
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     if json_out:
         check_writable(json_out, force)
@@ -69,6 +80,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
             seed=seed,
             redshift=redshift,
             selection=selection,
+            **tasks.closure_options(mode, **closure),
         )
     echo_notes(report.notes)
     click.echo(report.text())

@@ -3,7 +3,17 @@
 import click
 
 from ..stats.modes import MODES
-from ._common import as_options, echo_notes, force_option, pop_selection, progressbar, seed_option, selection_options
+from ._common import (
+    as_options,
+    closure_options,
+    echo_notes,
+    force_option,
+    pop_closure_options,
+    pop_selection,
+    progressbar,
+    seed_option,
+    selection_options,
+)
 
 
 @click.command("profile")
@@ -57,6 +67,7 @@ from ._common import as_options, echo_notes, force_option, pop_selection, progre
     metavar="OUT.png",
     help="Write the figure of the profile here.",
 )
+@closure_options
 @seed_option
 @force_option
 @selection_options
@@ -70,6 +81,7 @@ def command(
     from ..outputs import check_writable, write_json
     from ..show.profile_plot import write_profile_plot
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     for path in (json_out, plot_out):
         if path:
@@ -88,6 +100,7 @@ def command(
                 seed=seed,
                 selection=selection,
                 progress=bar.update,
+                **tasks.closure_options(mode, **closure),
             )
     echo_notes(report.notes)
     click.echo(report.text())

@@ -7,8 +7,10 @@ from ._common import (
     as_options,
     at_least_zero,
     check_outputs,
+    closure_options,
     echo_notes,
     force_option,
+    pop_closure_options,
     pop_selection,
     progressbar,
     seed_option,
@@ -95,6 +97,7 @@ from ._common import (
     "--rescale-errors", is_flag=True, help="Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first."
 )
 @force_option
+@closure_options
 @selection_options
 def command(
     data,
@@ -128,10 +131,12 @@ def command(
     from ..outputs import write_json
     from ..show.corner import write_corner_plot
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     names = dict(procs="--procs", walkers="--walkers", max_steps="--max-steps", order_by="--order-by")
     with as_options(**names):
         tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
+        tasks.closure_options(mode, **closure)
     # refuse early, before any long work, whatever would be refused at the end
     check_outputs(
         {"--chain": chain_path, "--json": json_path, "--corner": corner_path},
@@ -167,6 +172,7 @@ def command(
             redshift=redshift,
             selection=selection,
             rescale_errors=rescale_errors,
+            **closure,
         )
     echo_notes(report.notes)
     echo_notes(report.posterior.notes, prefix="note: ")

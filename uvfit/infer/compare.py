@@ -22,8 +22,8 @@ from ..stats.modes import make_statistic
 from .lsq import aic, bic, fit
 
 
-def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False):
-    stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
+def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False, options=None):
+    stat = make_statistic(mode, vset, model.copy(), systematic=systematic, **(options or {}))
     return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search)
 
 
@@ -142,8 +142,10 @@ def compare(
     rescale_errors=False,
     global_search=False,
     reference=None,
+    options=None,
 ):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
+    ``options`` go to every model's statistic (closure options such as ``snr_cut``).
 
     ``models``: SkyModel objects; ``names``: labels for them (default model1, model2...).
     ``bootstrap``: number of simulated data sets for the false-alarm probabilities (0: none).
@@ -180,6 +182,7 @@ def compare(
                     seed,
                     rescale_errors=rescale_errors,
                     global_search=global_search,
+                    options=options,
                 )
             )
         except FitError as exc:

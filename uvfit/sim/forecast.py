@@ -36,25 +36,25 @@ STRUCTURE_SUFFIXES = (".separation", ".position_angle", ".flux_ratio", ".size", 
 LR_LEVEL = 0.99
 
 
-def _fit(vset, model, mode, systematic, starts, seed, frequency):
+def _fit(vset, model, mode, systematic, starts, seed, frequency, options=None):
     from ..infer.derived import derived_quantities
     from ..infer.lsq import fit
     from ..stats.modes import make_statistic
 
-    stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
+    stat = make_statistic(mode, vset, model.copy(), systematic=systematic, **(options or {}))
     res = fit(stat, starts=starts, seed=seed)
     derived = derived_quantities(res, frequency=frequency, resolved_test=False, limits=False)
     return res, derived
 
 
-def fitted_free_count(vset, model, mode, systematic):
+def fitted_free_count(vset, model, mode, systematic, options=None):
     """Free parameters a fit of ``model`` in ``mode`` really has: the model's free parameters less
     those the mode cannot constrain, which the fitter fixes (a closure mode's absolute position
     and flux scale)."""
     from ..infer.lsq import fix_degeneracies
     from ..stats.modes import make_statistic
 
-    stat = make_statistic(mode, vset, model.copy(), systematic=systematic)
+    stat = make_statistic(mode, vset, model.copy(), systematic=systematic, **(options or {}))
     _, fixed, _ = fix_degeneracies(stat)
     return len(model.free_names) - len(fixed)
 
@@ -91,8 +91,11 @@ def forecast(
     true_name="true",
     alt_names=None,
     progress=None,
+    options=None,
 ):
     """Run the forecast (see the module docstring); returns a JSON-ready dictionary.
+
+    ``options``: statistic options of every fit (closure options such as ``snr_cut``).
 
     ``alternatives``: SkyModel objects; ``fit_systematic``: the systematic fraction the fits use
     (default: the simulated one); ``progress``: called with 1 after each trial.
@@ -121,12 +124,12 @@ def forecast(
     first = observe(
         layout, model_vis, seed=int(seed), gain_error=gain_error, phase_error_deg=phase_error_deg, systematic=systematic
     )
-    k_true = fitted_free_count(first, true_model, mode, fit_systematic)
+    k_true = fitted_free_count(first, true_model, mode, fit_systematic, options)
     per_trial, struct_values = [], {k: [] for k in true_struct}
     alt_stats = [
         {
             "name": n,
-            "free_parameters": fitted_free_count(first, m, mode, fit_systematic),
+            "free_parameters": fitted_free_count(first, m, mode, fit_systematic, options),
             "bic_preferred": 0,
             "lr_preferred": 0,
             "delta_chi2": [],
@@ -146,7 +149,7 @@ def forecast(
         )
         row = {"trial": k, "seed": s}
         try:
-            res, derived = _fit(vset, true_model, mode, fit_systematic, starts, s, frequency)
+            res, derived = _fit(vset, true_model, mode, fit_systematic, starts, s, frequency, options)
         except FitError as exc:
             n_fail_true += 1
             row["true_fit"] = f"failed: {exc}"
@@ -177,7 +180,7 @@ def forecast(
         row["alternatives"] = {}
         for a, alt in zip(alt_stats, alternatives):
             try:
-                ares, _ = _fit(vset, alt, mode, fit_systematic, starts, s, frequency)
+                ares, _ = _fit(vset, alt, mode, fit_systematic, starts, s, frequency, options)
             except FitError as exc:
                 a["fit_failures"] += 1
                 row["alternatives"][a["name"]] = f"failed: {exc}"

@@ -129,7 +129,7 @@ def test_compare_pairs_reference_and_caution_on_3c279(tmp_path):
     assert out["reference"] == "two_gaussians" and out["rescale_errors"] is True
     assert [(p["simpler"], p["richer"]) for p in out["pairs"]] == [("one", "two_gaussians")]
     best = {r["name"]: r for r in out["models"]}["two_gaussians"]
-    assert best["reduced_chi2"] == pytest.approx(11.97, abs=0.01)  # as in the README
+    assert best["reduced_chi2"] == pytest.approx(12.56, abs=0.01)  # as in the README (same-site loops left out)
     assert "not to be trusted" in out["fit_caution"]
     text = report.text()
     assert "pair: 'two_gaussians' against 'one'" in text and "caution:" in text

@@ -78,7 +78,7 @@ def closure_options(
     from .data.scans import check_interval, check_scan_gap
     from .stats.closures.build import DEFAULT_SNR_CUT
 
-    given = {"snr_cut": snr_cut, "closure_average": closure_average, "scan_gap": scan_gap}
+    given: dict[str, Any] = {"snr_cut": snr_cut, "closure_average": closure_average, "scan_gap": scan_gap}
     given = {k: v for k, v in given.items() if v is not None and v != ""}
     if given and mode not in CLOSURE_MODES:
         raise UvfitError(
@@ -97,6 +97,15 @@ def closure_options(
     if "scan_gap" in given:
         given["scan_gap"] = check_scan_gap(given["scan_gap"])
     return given
+
+
+def _with_site(closure: dict, mode: str, selection: Optional[dict]) -> dict:
+    """The closure options plus the selection's ``site_distance`` (which stations form a site, for
+    the loops the closures leave out), when given and the mode builds closures."""
+    distance = (selection or {}).get("site_distance")
+    if distance is not None and mode in CLOSURE_MODES:
+        return {**closure, "site_distance": float(distance)}
+    return closure
 
 
 def _given(selection: Optional[dict]) -> dict:
@@ -232,7 +241,7 @@ def fit(
     from .infer.run import run_fit
 
     _check_at_least("max_evaluations", max_evaluations, 1)
-    closure = closure_options(mode, snr_cut, closure_average, scan_gap)
+    closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
     sky = load_model_or_path(model)
     vset, notes = load_data(data, selection)
     if data_path is None and _is_path(data):
@@ -401,7 +410,7 @@ def sample(
     from .infer.sampling import sample as run_sample
 
     check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
-    closure = closure_options(mode, snr_cut, closure_average, scan_gap)
+    closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
     vset, notes = load_data(data, selection)
     sky = load_model_or_path(model)
     if data_path is None and _is_path(data):
@@ -535,7 +544,7 @@ def compare(
         raise UvfitError(f"compare needs at least two models (got {len(models)})", "pass two or more models")
     if names is None and all(_is_path(m) for m in models):
         names = [_stem(m) for m in models]
-    closure = closure_options(mode, snr_cut, closure_average, scan_gap)
+    closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
     skies = [load_model_or_path(m) for m in models]
     vset, notes = load_data(data, selection)
     if data_path is None and _is_path(data):
@@ -689,8 +698,15 @@ def closures(
         systematic = float(info.get("fit_systematic") or 0.0)
     closure = closure_options("closure", snr_cut, closure_average, scan_gap)
     if fit_doc is not None and not closure and fit_doc.get("closure_options"):
-        closure = closure_options("closure", **fit_doc["closure_options"])
+        recorded = dict(fit_doc["closure_options"])
+        site = recorded.pop("site_distance", None)
+        closure = closure_options(
+            "closure", **{k: v for k, v in recorded.items() if k in ("snr_cut", "closure_average", "scan_gap")}
+        )
+        if site is not None:
+            closure["site_distance"] = float(site)
         info["closure_options_from"] = "the fit"
+    closure = _with_site(closure, "closure", selection)
     res = check_closures(vset, sky, systematic=systematic, full=full, covariance=covariance, **closure)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
@@ -1139,7 +1155,8 @@ def _fit_for(data, model, mode, systematic, starts, seed, selection, options):
 
     sky = load_model_or_path(model)
     vset, notes = load_data(data, selection)
-    stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **(options or {}))
+    options = _with_site(dict(options or {}), mode, selection)
+    stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **options)
     return stat, lsq_fit(stat, starts=starts, seed=seed), notes
 
 

@@ -150,6 +150,11 @@ def closures_text(res):
         f"closure amplitudes    {res['n_closure_amplitudes']} (log) on {res['n_quadrangles']} quadrangles",
         f"errors                {res['covariance']}",
     ]
+    if res.get("average") is not None:
+        lines.insert(3, f"averaged              {res['averaging']}")
+    if res.get("sites_left_out"):
+        sites = "; ".join("-".join(g) for g in res["sites_left_out"])
+        lines.insert(3, f"same site             loops with two stations of one site left out ({sites})")
     if "closure_phase_chi2" in res:
         lines += [
             "",

@@ -228,7 +228,7 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     from .outputs import atomic_write, atomic_write_with, write_json
     from .show import readback, style
     from .show.corner import write_corner_plot
-    from .show.figures import KINDS, make_figure
+    from .show.figures import make_figure
     from .show.report import build_report
 
     def path(key):
@@ -326,8 +326,8 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     # 6. figures and the report
     step("6. figures and the report (uvfit plot, uvfit report)")
     view = readback.fit_view(vset, fits["two"], {})
-    with bar(length=len(KINDS) + 1, label="figures and report") as b:
-        for kind in KINDS:
+    with bar(length=len(FIGURE_OUTPUTS) + 1, label="figures and report") as b:
+        for kind in FIGURE_OUTPUTS:
             fig, _ = make_figure(kind, view)
             try:
                 style.save_png(fig, path(FIGURE_OUTPUTS[kind]), force=force)

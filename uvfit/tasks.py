@@ -88,6 +88,54 @@ def _gain_options(gains: Optional[str], gain_interval: Any = "scan", gain_prior:
     return {"gains": gains, "gain_interval": gain_interval, "gain_prior": gain_prior}
 
 
+#: the modes that build closures (they take the closure options)
+CLOSURE_MODES = ("closure_phase", "closure_amplitude", "closure", "hybrid")
+
+
+def closure_options(
+    mode: str,
+    snr_cut: Optional[float] = None,
+    closure_average: Union[str, float, None] = None,
+    scan_gap: Optional[float] = None,
+) -> dict:
+    """The closure options given, checked, as statistic options; an error naming the option when
+    one is given for a mode that builds no closures. ``snr_cut``: the least SNR of the
+    visibilities behind a closure on each baseline (default 3; per integration the reference
+    amplitude over sigma, with ``closure_average`` the interval's amplitude over the thermal error
+    of its mean visibility); ``closure_average``: "scan" or seconds; ``scan_gap``: seconds."""
+    from .data.scans import check_interval, check_scan_gap
+    from .stats.closures.build import DEFAULT_SNR_CUT
+
+    given: dict[str, Any] = {"snr_cut": snr_cut, "closure_average": closure_average, "scan_gap": scan_gap}
+    given = {k: v for k, v in given.items() if v is not None and v != ""}
+    if given and mode not in CLOSURE_MODES:
+        raise UvfitError(
+            f"{', '.join(given)} applies only to the modes that build closures, not to mode {mode}",
+            "use one of the modes " + ", ".join(CLOSURE_MODES) + ", or leave it out",
+        )
+    if "snr_cut" in given:
+        cut = float(given["snr_cut"])
+        if not cut >= 0 or cut == float("inf"):
+            raise UvfitError(
+                f"snr_cut must be a finite number >= 0, not {snr_cut}", f"give e.g. snr_cut {DEFAULT_SNR_CUT:g}"
+            )
+        given["snr_cut"] = cut
+    if "closure_average" in given:
+        given["closure_average"] = check_interval(given["closure_average"])
+    if "scan_gap" in given:
+        given["scan_gap"] = check_scan_gap(given["scan_gap"])
+    return given
+
+
+def _with_site(closure: dict, mode: str, selection: Optional[dict]) -> dict:
+    """The closure options plus the selection's ``site_distance`` (which stations form a site, for
+    the loops the closures leave out), when given and the mode builds closures."""
+    distance = (selection or {}).get("site_distance")
+    if distance is not None and mode in CLOSURE_MODES:
+        return {**closure, "site_distance": float(distance)}
+    return closure
+
+
 def _given(selection: Optional[dict]) -> dict:
     return {k: v for k, v in (selection or {}).items() if v not in (None, ())}
 
@@ -156,6 +204,9 @@ def fit(
     gains: Optional[str] = None,
     gain_interval: Union[str, float] = "scan",
     gain_prior: Union[str, dict, None] = None,
+    snr_cut: Optional[float] = None,
+    closure_average: Union[str, float, None] = None,
+    scan_gap: Optional[float] = None,
 ) -> FitReport:
     """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
 
@@ -202,6 +253,8 @@ def fit(
         One gain per station per scan, or per this many seconds.
     gain_prior : str or dict, optional
         Fractional rms of the amplitude gains, e.g. ``"AA=0.05,*=0.1"`` (flat where not given).
+    snr_cut, closure_average, scan_gap : optional
+        Closure options of the modes that build closures (see :func:`closure_options`).
 
     Returns
     -------
@@ -227,6 +280,7 @@ def fit(
     from .infer.run import run_fit
 
     _check_at_least("max_evaluations", max_evaluations, 1)
+    closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
     sky = load_model_or_path(model)
     labels = None
     if isinstance(data, (list, tuple)):
@@ -252,7 +306,17 @@ def fit(
         progress=progress,
         return_result=True,
         **_gain_options(gains, gain_interval, gain_prior),
+        **closure,
     )
+    if closure:
+        out["closure_options"] = closure
+    if mode == "complex":
+        from .stats.phases import phase_calibration
+
+        check = phase_calibration(vset)
+        out["phase_calibration"] = check
+        if check.get("calibrated") is False:
+            out["notices"].append(check["hint"])
     if _is_path(model):
         out["model_file"] = str(model)
     if vset.meta.get("format") == "ms":  # what was read from a Measurement Set (only then)
@@ -337,6 +401,9 @@ def sample(
     gains: Optional[str] = None,
     gain_interval: Union[str, float] = "scan",
     gain_prior: Union[str, dict, None] = None,
+    snr_cut: Optional[float] = None,
+    closure_average: Union[str, float, None] = None,
+    scan_gap: Optional[float] = None,
 ) -> SampleReport:
     """Posterior of the model's free parameters by ensemble MCMC (emcee), from the best fit.
 
@@ -372,6 +439,8 @@ def sample(
     rescale_errors : bool
         Multiply every sigma by sqrt(chi2/dof) of the least-squares fit first (recorded as
         ``error_scale``).
+    snr_cut, closure_average, scan_gap : optional
+        Closure options (see :func:`closure_options`).
 
     Returns
     -------
@@ -394,6 +463,7 @@ def sample(
     from .infer.sampling import sample as run_sample
 
     check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
+    closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
     vset, notes = load_data(data, selection)
     sky = load_model_or_path(model)
     if data_path is None and _is_path(data):
@@ -417,9 +487,12 @@ def sample(
         data_path=data_path,
         **({"rescale_errors": True} if rescale_errors else {}),
         **_gain_options(gains, gain_interval, gain_prior),
+        **closure,
     )
     out = post.to_dict()
     out["selection"] = _given(selection)
+    if closure:
+        out["closure_options"] = closure
     return SampleReport(record=out, posterior=post, notes=notes)
 
 
@@ -470,6 +543,9 @@ def compare(
     gains: Optional[str] = None,
     gain_interval: Union[str, float] = "scan",
     gain_prior: Union[str, dict, None] = None,
+    snr_cut: Optional[float] = None,
+    closure_average: Union[str, float, None] = None,
+    scan_gap: Optional[float] = None,
 ) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
@@ -496,6 +572,8 @@ def compare(
     reference : str, optional
         The name of the model every other is judged against (default: the simplest); the
         ``pairs`` of the JSON then pair each model with it (else each with the next simpler one).
+    snr_cut, closure_average, scan_gap : optional
+        Closure options (see :func:`closure_options`).
 
     Returns
     -------
@@ -523,6 +601,7 @@ def compare(
         raise UvfitError(f"compare needs at least two models (got {len(models)})", "pass two or more models")
     if names is None and all(_is_path(m) for m in models):
         names = [_stem(m) for m in models]
+    closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
     skies = [load_model_or_path(m) for m in models]
     vset, notes = load_data(data, selection)
     if data_path is None and _is_path(data):
@@ -540,8 +619,10 @@ def compare(
         rescale_errors=rescale_errors,
         global_search=global_search,
         reference=reference,
-        options=_gain_options(gains, gain_interval, gain_prior),
+        options={**_gain_options(gains, gain_interval, gain_prior), **closure},
     )
+    if closure:
+        out["closure_options"] = closure
     out["data"] = None if data_path is None else str(data_path)
     out["selection"] = selection if selection is not None else {}
     out["model_files"] = [str(m) if _is_path(m) else None for m in models]
@@ -584,12 +665,14 @@ def closures(
     data: Data,
     model: Union[Model, dict, None] = None,
     systematic: Optional[float] = None,
-    snr_cut: float = 3.0,
+    snr_cut: Optional[float] = None,
     full: bool = False,
     covariance: Optional[str] = None,
     selection: Optional[dict] = None,
     data_path: Optional[str] = None,
     model_path: Optional[str] = None,
+    closure_average: Union[str, float, None] = None,
+    scan_gap: Optional[float] = None,
 ) -> ClosureReport:
     """Closure phases and log closure amplitudes of the data; with a model, how well it fits them.
 
@@ -603,8 +686,9 @@ def closures(
     systematic : float, optional
         Fraction of ``|V|`` added in quadrature to each sigma (default 0, or the fit's value when
         ``model`` is a fit result).
-    snr_cut : float
-        Use only visibilities with ``|V|/sigma`` of at least this.
+    snr_cut : float, optional
+        The least SNR of the visibilities behind a closure on each baseline (default 3; see
+        :func:`closure_options`).
     full : bool
         Every triangle and quadrangle instead of a non-redundant set per snapshot.
     covariance : {"snapshot", "diagonal"}, optional
@@ -613,6 +697,9 @@ def closures(
         Data selection; the given entries are recorded.
     data_path, model_path : str, optional
         What is recorded as the data and the model (default: the paths given).
+    closure_average, scan_gap : optional
+        Closures averaged over scans or intervals (see :func:`closure_options`); a fit result's
+        recorded closure options are used when none is given.
 
     Returns
     -------
@@ -666,7 +753,18 @@ def closures(
         notes = [used_note] + list(notes)
     if systematic is None:
         systematic = float(info.get("fit_systematic") or 0.0)
-    res = check_closures(vset, sky, systematic=systematic, snr_cut=snr_cut, full=full, covariance=covariance)
+    closure = closure_options("closure", snr_cut, closure_average, scan_gap)
+    if fit_doc is not None and not closure and fit_doc.get("closure_options"):
+        recorded = dict(fit_doc["closure_options"])
+        site = recorded.pop("site_distance", None)
+        closure = closure_options(
+            "closure", **{k: v for k, v in recorded.items() if k in ("snr_cut", "closure_average", "scan_gap")}
+        )
+        if site is not None:
+            closure["site_distance"] = float(site)
+        info["closure_options_from"] = "the fit"
+    closure = _with_site(closure, "closure", selection)
+    res = check_closures(vset, sky, systematic=systematic, full=full, covariance=covariance, **closure)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
     summary = json_summary(res)
@@ -725,8 +823,16 @@ def summarise(vset: VisibilitySet) -> dict:
     return s
 
 
-def info(data: Data, selection: Optional[dict] = None, data_path: Optional[str] = None) -> InfoReport:
-    """What a visibility file holds: source, frequencies, stations, times, uv coverage, resolution.
+def info(
+    data: Data,
+    selection: Optional[dict] = None,
+    data_path: Optional[str] = None,
+    scan_gap: Optional[float] = None,
+    site_distance: Optional[float] = None,
+) -> InfoReport:
+    """What a visibility file holds: source, frequencies, stations, times, uv coverage, resolution,
+    the scans, the sites (stations closer than ``site_distance`` m, default 5000) and whether the
+    phases look calibrated.
 
     Parameters
     ----------
@@ -736,6 +842,10 @@ def info(data: Data, selection: Optional[dict] = None, data_path: Optional[str] 
         Data selection applied first.
     data_path : str, optional
         The path recorded (default: ``data`` when it is a path).
+    scan_gap : float, optional
+        Seconds: a longer gap in time starts a new scan (:mod:`uvfit.data.scans`).
+    site_distance : float, optional
+        Metres: closer stations form one site (:mod:`uvfit.data.sites`).
 
     Returns
     -------
@@ -754,8 +864,18 @@ def info(data: Data, selection: Optional[dict] = None, data_path: Optional[str] 
     >>> uvfit.tasks.info(demo_file("uvd0917.uvfits")).to_dict()["source"]
     'UVD 0917+224'
     """
+    from .data.scans import scan_structure
+    from .data.sites import find_sites
+    from .stats.phases import phase_calibration
+
     vset, notes = load_data(data, selection, good=False)
     s = summarise(vset)
+    s["scan_structure"] = scan_structure(vset, scan_gap)
+    sites = find_sites(vset, site_distance).to_dict()
+    if sites["all_one_site"]:
+        sites["pairs"] = []  # every pair: not worth listing
+    s["sites"] = sites
+    s["phase_calibration"] = phase_calibration(vset)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
     s["path"] = None if data_path is None else str(data_path)
@@ -970,6 +1090,9 @@ def forecast(
     gains: Optional[str] = None,
     gain_interval: Union[str, float] = "scan",
     gain_prior: Union[str, dict, None] = None,
+    snr_cut: Optional[float] = None,
+    closure_average: Union[str, float, None] = None,
+    scan_gap: Optional[float] = None,
 ) -> ForecastReport:
     """Repeated simulations and fits: can the array tell the true model from the alternatives?
 
@@ -997,6 +1120,8 @@ def forecast(
         Labels (default: the files' stems, or true, alt1, ...).
     progress : callable, optional
         Called with 1 after each trial.
+    snr_cut, closure_average, scan_gap : optional
+        Closure options of the fits (see :func:`closure_options`).
 
     Returns
     -------
@@ -1029,6 +1154,7 @@ def forecast(
     from .sim.noise import check_corruption
 
     check_forecast_options(trials=trials)
+    closure = closure_options(mode, snr_cut, closure_average, scan_gap)
     alternatives = list(alternatives)
     corruption = {"gain_error": gain_error, "phase_error_deg": phase_error, "systematic": systematic}
     check_corruption(**corruption)
@@ -1051,9 +1177,11 @@ def forecast(
         true_name=true_name,
         alt_names=alt_names,
         progress=progress,
-        options=_gain_options(gains, gain_interval, gain_prior),
+        options={**_gain_options(gains, gain_interval, gain_prior), **closure},
         **corruption,
     )
+    if closure:
+        out["closure_options"] = closure
     return ForecastReport(record=out)
 
 
@@ -1089,7 +1217,8 @@ def _fit_for(data, model, mode, systematic, starts, seed, selection, options):
 
     sky = load_model_or_path(model)
     vset, notes = load_data(data, selection)
-    stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **(options or {}))
+    options = _with_site(dict(options or {}), mode, selection)
+    stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **options)
     return stat, lsq_fit(stat, starts=starts, seed=seed), notes
 
 
@@ -1155,6 +1284,7 @@ def profile(
             "systematic": float(systematic),
             "selection": _given(selection),
             "data": os.fspath(data) if _is_path(data) else data_path,
+            **({"closure_options": dict(options)} if options else {}),
         }
     )
     return ProfileReport(record=out, notes=notes)
@@ -1221,6 +1351,7 @@ def jackknife(
             "systematic": float(systematic),
             "selection": _given(selection),
             "data": os.fspath(data) if _is_path(data) else data_path,
+            **({"closure_options": dict(options)} if options else {}),
         }
     )
     return JackknifeReport(record=out, notes=notes)

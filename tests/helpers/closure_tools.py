@@ -62,3 +62,36 @@ def make_vset(model, n_stations=6, n_times=20, sigma=0.01, seed=0, gain_amp=0.0,
         stations=StationTable(names, xyz),
         source="INVENTED-1",
     )
+
+
+def scan_vset(model, n_stations=6, n_scans=8, per_scan=30, step_s=10.0, sigma=0.5, seed=0, phase_noise=True):
+    """A VisibilitySet of ``model`` on an invented array observed in ``n_scans`` scans of
+    ``per_scan`` integrations of ``step_s`` seconds, spread over 8 hours, with thermal noise
+    ``sigma`` (Jy per part) and, with ``phase_noise``, a random station phase at every
+    integration (an invented atmosphere that no coherent average survives)."""
+    rng = np.random.default_rng(seed)
+    names, xyz = invented_stations(n_stations, seed=1)
+    starts = np.linspace(-4.0, 4.0 - per_scan * step_s / 3600.0, n_scans)  # hours
+    hours = (starts[:, None] + np.arange(per_scan)[None, :] * step_s / 3600.0).ravel()
+    n_times = hours.size
+    t, i, j = every_baseline(n_stations, n_times)
+    u, v = earth_rotation_uv(xyz, i, j, np.radians(hours[t] * 15.0), np.radians(-5.0), 1.3e-3)
+    vis = np.asarray(model.visibilities(u, v, np.full(len(u), 230e9)))
+    if phase_noise:
+        g = np.exp(1j * rng.uniform(-np.pi, np.pi, (n_times, n_stations)))
+        vis = vis * g[t, i] * np.conj(g[t, j])
+    return observe(
+        u,
+        v,
+        np.array(names)[i],
+        np.array(names)[j],
+        60000.0 + (hours[t] + 4.0) / 24.0,
+        frequency=230e9,
+        sigma=sigma,
+        vis=vis,
+        noise=sigma,
+        rng=rng,
+        stations=StationTable(names, xyz),
+        source="INVENTED-2",
+        integration=step_s,
+    )

@@ -21,6 +21,19 @@ def selection_options(func):
             "--exclude-stations", default=None, help="Drop every baseline to these stations (comma-separated names)."
         ),
         click.option(
+            "--exclude-same-site",
+            is_flag=True,
+            default=None,
+            help="Drop baselines between two stations of one site (closer than --site-distance).",
+        ),
+        click.option(
+            "--site-distance",
+            type=float,
+            default=None,
+            metavar="METRES",
+            help="Stations closer than this form one site (default 5000 m).",
+        ),
+        click.option(
             "--time-range",
             nargs=2,
             default=None,
@@ -60,9 +73,62 @@ def selection_options(func):
     return func
 
 
+#: how the library's names of selection and closure parameters read on the command line
+SELECTION_WORDS = {
+    "exclude_same_site": "--exclude-same-site",
+    "site_distance": "--site-distance",
+    "closure_average": "--closure-average",
+    "scan_gap": "--scan-gap",
+    "snr_cut": "--snr-cut",
+}
+
+
+def closure_options(func):
+    """The options of every command that builds closures: the SNR cut, the averaging of closures
+    over scans or intervals, and the gap that separates scans."""
+    options = [
+        click.option(
+            "--snr-cut",
+            type=float,
+            default=None,
+            help="Least SNR of the visibilities behind a closure on each baseline (default 3): of one "
+            "integration, or with --closure-average of the interval's combined visibilities.",
+        ),
+        click.option(
+            "--closure-average",
+            default=None,
+            metavar="scan|SECONDS",
+            help="Average closures over each scan, or over intervals of this many seconds within scans: "
+            "bispectra averaged, closure amplitudes from debiased incoherent amplitudes.",
+        ),
+        click.option(
+            "--scan-gap",
+            type=float,
+            default=None,
+            metavar="SECONDS",
+            help="A gap in time longer than this starts a new scan (default 4 median integrations).",
+        ),
+    ]
+    for opt in reversed(options):
+        func = opt(func)
+    return func
+
+
+def pop_closure_options(kwargs):
+    """Remove the closure options from a command's kwargs and return those given as a dict."""
+    out = {}
+    for k in ("snr_cut", "closure_average", "scan_gap"):
+        value = kwargs.pop(k, None)
+        if value is not None:
+            out[k] = value
+    return out
+
+
 def pop_selection(kwargs):
     """Remove the selection options from a command's kwargs and return them as a dict."""
     selection = {k: kwargs.pop(k, None) for k in SELECTION_OPTIONS}
+    if not selection.get("exclude_same_site"):
+        selection["exclude_same_site"] = None
     # reader options (Measurement Sets) are recorded only when given
     for k in READ_OPTIONS:
         value = kwargs.pop(k, None)
@@ -91,6 +157,7 @@ def as_options(**names):
     (not quoted): each parameter name given (a keyword) becomes its option (the value), e.g.
     ``as_options(max_evaluations="--max-evaluations")``. Quoted names (`` `name` ``) are reworded for
     every command by the command group (:func:`reword`)."""
+    names = {**SELECTION_WORDS, **names}
     try:
         yield
     except UvfitError as exc:

@@ -3,7 +3,18 @@ the data, and how well a model reproduces them (per triangle, quadrangle and sta
 
 import click
 
-from ._common import at_least_zero, check_outputs, echo_notes, force_option, pop_selection, selection_options, worded
+from ._common import (
+    as_options,
+    at_least_zero,
+    check_outputs,
+    closure_options,
+    echo_notes,
+    force_option,
+    pop_closure_options,
+    pop_selection,
+    selection_options,
+    worded,
+)
 
 
 @click.command("closures")
@@ -25,14 +36,6 @@ from ._common import at_least_zero, check_outputs, echo_notes, force_option, pop
     "(default 0, or the fit's value when --model is a fit result).",
 )
 @click.option(
-    "--snr-cut",
-    type=float,
-    default=3.0,
-    show_default=True,
-    metavar="X",
-    help="Use only visibilities with |V|/sigma of at least X.",
-)
-@click.option(
     "--full",
     is_flag=True,
     help="Every triangle and quadrangle (redundant) instead of a non-redundant set per snapshot.",
@@ -52,9 +55,10 @@ from ._common import at_least_zero, check_outputs, echo_notes, force_option, pop
     metavar="OUT.ecsv",
     help="Write every closure quantity (time, stations, value, sigma, model) as ECSV.",
 )
+@closure_options
 @selection_options
 @force_option
-def command(data, model_path, systematic, snr_cut, full, covariance, json_out, table_out, force, **kwargs):
+def command(data, model_path, systematic, full, covariance, json_out, table_out, force, **kwargs):
     """Closure phases and log closure amplitudes of DATA; with --model, whether they support it.
 
     Closure quantities do not change with station-based gain errors, so a model that fits the
@@ -65,6 +69,7 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
     from ..outputs import atomic_write_with, write_json
 
     check_outputs({"--json": json_out, "--table": table_out}, {"the data": data, "the model": model_path}, force)
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     if selection.get("average"):
         click.echo(
@@ -72,9 +77,10 @@ def command(data, model_path, systematic, snr_cut, full, covariance, json_out, t
             "are formed among rows with exactly the same time",
             err=True,
         )
-    report = tasks.closures(
-        data, model_path, systematic=systematic, snr_cut=snr_cut, full=full, covariance=covariance, selection=selection
-    )
+    with as_options():
+        report = tasks.closures(
+            data, model_path, systematic=systematic, full=full, covariance=covariance, selection=selection, **closure
+        )
     echo_notes(report.notes)
     click.echo(worded(report.text()))
     if json_out:

@@ -8,9 +8,11 @@ from ._common import (
     as_options,
     at_least_zero,
     check_outputs,
+    closure_options,
     echo_notes,
     force_option,
     gain_options,
+    pop_closure_options,
     pop_gains,
     pop_selection,
     progressbar,
@@ -64,6 +66,7 @@ from ._common import (
 @seed_option
 @gain_options
 @force_option
+@closure_options
 @selection_options
 def command(
     data,
@@ -92,6 +95,7 @@ def command(
 
     if len(models) < 2:
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     check_outputs({"--json": json_out}, {"the data": data, **{f"model {m}": m for m in models}}, force)
     options = dict(
@@ -105,6 +109,7 @@ def command(
         global_search=global_search,
         reference=reference,
         **pop_gains(kwargs),
+        **closure,
     )
     with as_options(bootstrap="--bootstrap", reference="--reference", **GAIN_OPTION_NAMES):
         if bootstrap > 0:

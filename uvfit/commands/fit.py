@@ -8,9 +8,11 @@ from ._common import (
     as_options,
     at_least_zero,
     check_outputs,
+    closure_options,
     echo_notes,
     force_option,
     gain_options,
+    pop_closure_options,
     pop_gains,
     pop_selection,
     progressbar,
@@ -109,6 +111,7 @@ from ._common import (
     metavar="FILE.png",
     help="Draw the gain amplitudes and phases against time into this PNG.",
 )
+@closure_options
 @seed_option
 @gain_options
 @force_option
@@ -146,6 +149,7 @@ def command(
     from .. import tasks
     from ..outputs import atomic_write, write_json
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     inputs = {f"data file {k + 1}": d for k, d in enumerate(data)}
     data = data[0] if len(data) == 1 else list(data)
@@ -185,6 +189,7 @@ def command(
         profile=profile_name,
         jackknife=jackknife,
         **gains,
+        **closure,
     )
     total = starts + (1 if global_search else 0)
     with as_options(

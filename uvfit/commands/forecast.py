@@ -7,8 +7,10 @@ from ._common import (
     GAIN_OPTION_NAMES,
     as_options,
     check_outputs,
+    closure_options,
     force_option,
     gain_options,
+    pop_closure_options,
     pop_gains,
     progressbar,
     seed_option,
@@ -38,6 +40,7 @@ from ._observation import observation_options, pop_observation
     type=click.Path(dir_okay=False),
     help="Write the forecast (all numbers, per trial, seeds) as JSON here.",
 )
+@closure_options
 @seed_option
 @gain_options
 @force_option
@@ -52,6 +55,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     from ..outputs import write_json
 
     gains = pop_gains(kwargs)
+    closure = pop_closure_options(kwargs)
     observation, corruption = pop_observation(kwargs)
     check_outputs(
         {"--json": json_path},
@@ -60,6 +64,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
     )
     with as_options(trials="--trials"):
         tasks.check_forecast_options(trials=trials)
+        tasks.closure_options(mode, **closure)
     with progressbar(trials, "forecast trials") as bar, as_options(**GAIN_OPTION_NAMES):
         report = tasks.forecast(
             array_file,
@@ -72,6 +77,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
             starts=starts,
             progress=bar.update,
             **gains,
+            **closure,
             **corruption,
         )
     if report.notice:

@@ -2,7 +2,7 @@
 
 import click
 
-from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options, worded
+from ._common import as_options, check_outputs, echo_notes, force_option, pop_selection, selection_options, worded
 
 
 @click.command("info")
@@ -14,9 +14,16 @@ from ._common import check_outputs, echo_notes, force_option, pop_selection, sel
     metavar="OUT",
     help="Also write the summary as JSON to OUT ('-' writes the JSON to stdout instead of the table).",
 )
+@click.option(
+    "--scan-gap",
+    type=float,
+    default=None,
+    metavar="SECONDS",
+    help="A gap in time longer than this starts a new scan (default 4 median integrations).",
+)
 @selection_options
 @force_option
-def command(data, json_out, force, **kwargs):
+def command(data, json_out, scan_gap, force, **kwargs):
     """Describe a visibility file: source, frequencies, stations, times, uv coverage, resolution.
 
     The resolution and largest scale are nominal (lambda over the longest and shortest projected
@@ -26,7 +33,9 @@ def command(data, json_out, force, **kwargs):
     from ..outputs import to_json, write_json
 
     check_outputs({"--json": json_out}, {"the data": data}, force, stdout_ok=("--json",))
-    report = tasks.info(data, pop_selection(kwargs))
+    selection = pop_selection(kwargs)
+    with as_options():
+        report = tasks.info(data, selection, scan_gap=scan_gap, site_distance=selection.get("site_distance"))
     echo_notes(report.notes)
     s = report.to_dict()
     if json_out == "-":

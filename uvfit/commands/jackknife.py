@@ -6,9 +6,11 @@ from ..stats.modes import MODES
 from ._common import (
     GAIN_OPTION_NAMES,
     as_options,
+    closure_options,
     echo_notes,
     force_option,
     gain_options,
+    pop_closure_options,
     pop_gains,
     pop_selection,
     seed_option,
@@ -56,6 +58,7 @@ from ._common import (
     default=None,
     help="Write the per-group results and errors as JSON here.",
 )
+@closure_options
 @seed_option
 @gain_options
 @force_option
@@ -67,6 +70,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
     from .. import tasks
     from ..outputs import check_writable, write_json
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     gains = pop_gains(kwargs)
     if json_out:
@@ -83,6 +87,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
             redshift=redshift,
             selection=selection,
             **gains,
+            **tasks.closure_options(mode, **closure),
         )
     echo_notes(report.notes)
     click.echo(worded(report.text()))

@@ -4,7 +4,7 @@ import click
 
 from ..show.figures import KINDS, MANY_BASELINES
 from ..show.plots import COLOURINGS
-from ._common import check_outputs, echo_notes, force_option, pop_selection, selection_options
+from ._common import as_options, check_outputs, echo_notes, force_option, pop_selection, selection_options
 
 
 @click.command("plot")
@@ -34,6 +34,15 @@ from ._common import check_outputs, echo_notes, force_option, pop_selection, sel
     show_default=True,
     help="Number of closure-phase triangles shown (the most informative first).",
 )
+@click.option(
+    "--triangles",
+    "loops",
+    default="worst",
+    show_default=True,
+    metavar="worst|best|A-B-C,...",
+    help="Closure panels: the worst-fitting loops, the most informative, or these loops "
+    "(triangles for --kind closure, quadrangles A-B-C-D for closure_amplitude).",
+)
 @click.option("-o", "--out", "out", required=True, type=click.Path(dir_okay=False), help="PNG file to write.")
 @click.option(
     "--numbers",
@@ -44,7 +53,7 @@ from ._common import check_outputs, echo_notes, force_option, pop_selection, sel
 )
 @force_option
 @selection_options
-def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, **kwargs):
+def command(data, fit_path, kind, colour_by, panels, loops, out, numbers_path, force, **kwargs):
     """Draw one figure of the fit in FIT.json on the visibilities in DATA.
 
     The model is rebuilt from the fit's own model text, and the data are selected as the fit
@@ -60,7 +69,9 @@ def command(data, fit_path, kind, colour_by, panels, out, numbers_path, force, *
     check_outputs({"-o": out, "--numbers": numbers_path}, {"the data": data, "the fit": fit_path}, force)
     view, notes = open_fit_view(data, fit_path, selection)
     echo_notes(notes)
-    fig, numbers = make_figure(kind, view, colour_by=colour_by, panels=panels)
+    choice = loops if loops in ("worst", "best") else [t for t in loops.split(",") if t.strip()]
+    with as_options(how="--triangles"):
+        fig, numbers = make_figure(kind, view, colour_by=colour_by, panels=panels, loops=choice)
     try:
         style.save_png(fig, out, force=force)
     finally:

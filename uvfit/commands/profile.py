@@ -5,8 +5,10 @@ import click
 from ..stats.modes import MODES
 from ._common import (
     as_options,
+    closure_options,
     echo_notes,
     force_option,
+    pop_closure_options,
     pop_selection,
     progressbar,
     seed_option,
@@ -66,6 +68,7 @@ from ._common import (
     metavar="OUT.png",
     help="Write the figure of the profile here.",
 )
+@closure_options
 @seed_option
 @force_option
 @selection_options
@@ -79,6 +82,7 @@ def command(
     from ..outputs import check_writable, write_json
     from ..show.profile_plot import write_profile_plot
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     for path in (json_out, plot_out):
         if path:
@@ -98,6 +102,7 @@ def command(
                 seed=seed,
                 selection=selection,
                 progress=bar.update,
+                **tasks.closure_options(mode, **closure),
             )
     echo_notes(report.notes)
     click.echo(worded(report.text()))

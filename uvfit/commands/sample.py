@@ -8,9 +8,11 @@ from ._common import (
     as_options,
     at_least_zero,
     check_outputs,
+    closure_options,
     echo_notes,
     force_option,
     gain_options,
+    pop_closure_options,
     pop_gains,
     pop_selection,
     progressbar,
@@ -109,6 +111,7 @@ from ._common import (
 )
 @gain_options
 @force_option
+@closure_options
 @selection_options
 def command(
     data,
@@ -143,11 +146,13 @@ def command(
     from ..outputs import write_json
     from ..show.corner import write_corner_plot
 
+    closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     gains = pop_gains(kwargs)
     names = dict(procs="--procs", walkers="--walkers", max_steps="--max-steps", order_by="--order-by")
     with as_options(**names):
         tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
+        tasks.closure_options(mode, **closure)
     # refuse early, before any long work, whatever would be refused at the end
     check_outputs(
         {"--chain": chain_path, "--json": json_path, "--corner": corner_path},
@@ -195,6 +200,7 @@ def command(
                 selection=selection,
                 rescale_errors=rescale_errors,
                 **gains,
+                **closure,
             )
     echo_notes(report.notes)
     echo_notes(report.posterior.notes, prefix="note: ")

@@ -325,7 +325,17 @@ def parse_channels(value):
 #: same selection dictionary as the row selection and recorded in the outputs when given
 READ_OPTIONS = ("column", "field", "spw")
 
-SELECTION_OPTIONS = ("min_uv", "max_uv", "stations", "exclude_stations", "time_range", "channels", "average")
+SELECTION_OPTIONS = (
+    "min_uv",
+    "max_uv",
+    "stations",
+    "exclude_stations",
+    "exclude_same_site",
+    "site_distance",
+    "time_range",
+    "channels",
+    "average",
+)
 
 
 def parse_time(text):
@@ -439,13 +449,17 @@ def apply_selection(
     channels=None,
     average=None,
     field_radius=None,
+    exclude_same_site=False,
+    site_distance=None,
 ):
     """Select rows (and optionally average in time); returns ``(vset, notes)``.
 
     ``min_uv``/``max_uv`` in wavelengths; ``stations`` keeps baselines with both ends in the list,
     ``exclude_stations`` drops baselines touching any in the list (comma-separated string or list);
     ``time_range`` two times (ISO UTC or MJD); ``channels`` like '0,2-5'; ``average`` seconds of
-    coherent time averaging (see :func:`average_time`). Raises DataError when a selection leaves
+    coherent time averaging (see :func:`average_time`); ``exclude_same_site`` drops baselines
+    between two stations of one site (stations closer than ``site_distance`` m, default 5000:
+    :mod:`uvfit.data.sites`). Raises DataError when a selection leaves
     nothing or names something the data do not have.
     """
     notes = []
@@ -485,6 +499,25 @@ def apply_selection(
         if t1 < t0:
             raise DataError(f"the time range ends ({time_range[1]}) before its start ({time_range[0]})")
         cut((vset.time >= t0) & (vset.time <= t1), f"times {time_range[0]} to {time_range[1]}")
+    if exclude_same_site:
+        from .sites import find_sites, same_site_rows
+
+        sites = find_sites(vset, site_distance)
+        if sites.one_site:
+            raise DataError(
+                f"every station is within {sites.distance:g} m of another: they all form one site, "
+                "and excluding same-site baselines would drop every baseline",
+                "leave out exclude_same_site, or give a smaller site_distance",
+            )
+        if sites.groups:
+            sites_text = "; ".join("-".join(g) for g in sites.groups)
+            cut(~same_site_rows(vset, sites), f"baselines not within one site ({sites_text})")
+        else:
+            notes.append(f"no two stations within {sites.distance:g} m: no same-site baseline to drop")
+    elif site_distance is not None:
+        from .sites import check_site_distance
+
+        check_site_distance(site_distance)
     q = vset.uv_distance
     if min_uv is not None:
         cut(q >= float(min_uv), f"uv distance >= {float(min_uv):g} wavelengths")

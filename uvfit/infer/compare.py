@@ -145,6 +145,7 @@ def compare(
     options=None,
 ):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
+    ``options`` go to every model's statistic (closure options such as ``snr_cut``).
 
     ``models``: SkyModel objects; ``names``: labels for them (default model1, model2...).
     ``bootstrap``: number of simulated data sets for the false-alarm probabilities (0: none).

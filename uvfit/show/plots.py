@@ -445,6 +445,89 @@ def rank_triangles(series, max_panels=6):
 
 
 def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
+    """Closure phases against time (see :func:`closure_plot`)."""
+    return closure_plot(series, max_panels=max_panels, title=title, triangles=triangles)
+
+
+def closure_amplitude_series(vset, model_vis, systematic=0.0, snr_cut=None):
+    """Log closure amplitudes of every quadrangle at every time, data and model: the dict of
+    :func:`closure_phase_series` with ``triangle`` holding the quadrangle labels "A-B-C-D"
+    (|V_AB| |V_CD| / (|V_AC| |V_BD|)) and ``phase`` / ``model`` the natural logs."""
+    from ..stats.closures import DEFAULT_SNR_CUT, build_closures
+
+    model_vis = _check_lengths(vset, model_vis)
+    cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+    ca = build_closures(vset, snr_cut=cut, systematic=systematic, full=True, kinds=("amplitude",))["amplitude"]
+    q = vset.uv_distance
+    return {
+        "triangle": ca.labels,
+        "time": np.asarray(ca.time, float),
+        "channel": np.asarray(ca.channel, int),
+        "phase": np.asarray(ca.value, float),
+        "sigma": np.asarray(ca.sigma, float),
+        "model": ca.evaluate(model_vis) if ca.n else np.zeros(0),
+        "shortest_uv": q[ca.rows].min(axis=1) if ca.n else np.zeros(0),
+        "longest_uv": float(q.max()) if q.size else 0.0,
+        "kind": "amplitude",
+    }
+
+
+def choose_loops(series, how="worst", max_panels=6, sites=None):
+    """The triangles (or quadrangles) to draw, one panel each: ``how`` "worst" (largest reduced
+    chi2 of data against model first), "best" (most informative first, :func:`rank_triangles`),
+    or a list of labels such as ["A-B-C", ...] (any station order). Loops that are the same
+    through a site (``sites``: lists of station names on one site; A-B-C and A'-B-C with A, A' on
+    one site) are drawn once, and loops holding two stations of one site (trivial) are left out,
+    except where asked for by name."""
+    tri = np.asarray(series["triangle"])
+    if tri.size == 0:
+        return []
+    names = np.unique(tri)
+    if not isinstance(how, str):
+        wanted = []
+        for label in how:
+            parts = [p.strip() for p in str(label).split("-") if p.strip()]
+            key = "-".join(sorted(parts))
+            match = [n for n in names if "-".join(sorted(n.split("-"))) == key]
+            if not match:
+                raise UvfitError(
+                    f"no closure on the stations {label} in the data",
+                    "give loops of stations that observe at the same time, e.g. " + ", ".join(names[:3]),
+                )
+            wanted.append(str(match[0]))
+        return wanted
+    site_of = {}
+    for k, g in enumerate(sites or []):
+        for st in g:
+            site_of[st] = f"site{k}"
+    if how == "best":
+        order = rank_triangles(series, max_panels=len(names))
+    elif how == "worst":
+        _, inv = np.unique(tri, return_inverse=True)
+        d = np.asarray(series["phase"], float) - np.asarray(series["model"], float)
+        if series.get("kind") != "amplitude":
+            d = np.angle(np.exp(1j * d))
+        chi = np.bincount(inv, weights=(d / np.asarray(series["sigma"], float)) ** 2, minlength=len(names))
+        red = chi / np.bincount(inv, minlength=len(names))
+        order = [str(names[i]) for i in np.lexsort((names, -red))]
+    else:
+        raise UvfitError(f"unknown choice of loops '{how}'", "use worst, best, or a list such as A-B-C,A-B-D")
+    out, seen = [], set()
+    for label in order:
+        mapped = [site_of.get(st, st) for st in label.split("-")]
+        if len(set(mapped)) < len(mapped):
+            continue  # two stations of one site: trivial
+        key = "-".join(sorted(mapped))
+        if key in seen:
+            continue
+        seen.add(key)
+        out.append(label)
+        if len(out) >= max_panels:
+            break
+    return out
+
+
+def closure_plot(series, max_panels=6, title=None, triangles=None):
     """Closure phases against time for the most informative triangles (up to ``max_panels``).
 
     ``series`` is a dict as returned by :func:`closure_phase_series` (phases in radians, time in
@@ -453,7 +536,10 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
 
     Returns (fig, numbers): ``triangles`` (chosen, in panel order) and per triangle ``panels``
     {label: {hours, phase_deg, sigma_deg, model_deg}}, and ``day0`` (MJD of 0 h on the axis).
+    A series of log closure amplitudes (``kind`` "amplitude", :func:`closure_amplitude_series`)
+    is drawn the same way, in natural-log units (the keys keep their names).
     """
+    amplitude = series.get("kind") == "amplitude"
     if triangles is None:
         triangles = rank_triangles(series, max_panels)
     if not triangles:
@@ -473,16 +559,25 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
             sel = np.asarray(series["triangle"]) == tri
             order = np.argsort(hours_all[sel], kind="stable")
             h = hours_all[sel][order]
-            ph = np.degrees(np.asarray(series["phase"])[sel][order])
-            sg = np.degrees(np.clip(np.asarray(series["sigma"])[sel][order], 0, np.pi))
-            md = np.degrees(np.asarray(series["model"])[sel][order])
+            if amplitude:
+                ph = np.asarray(series["phase"])[sel][order]
+                sg = np.asarray(series["sigma"])[sel][order]
+                md = np.asarray(series["model"])[sel][order]
+            else:
+                ph = np.degrees(np.asarray(series["phase"])[sel][order])
+                sg = np.degrees(np.clip(np.asarray(series["sigma"])[sel][order], 0, np.pi))
+                md = np.degrees(np.asarray(series["model"])[sel][order])
             ax.errorbar(h, ph, yerr=sg, fmt="o", ms=3, lw=0.7, color=DATA_COLOUR, alpha=0.7, label="data ±1σ")
             hx, mx = _break_gaps(h, md)
-            ax.plot(hx, mx, "-", lw=1.4, color=MODEL_COLOUR, label="model")
-            ax.set_title(f"{tri}   (N = {sel.sum()}, median σ = {np.median(sg):.1f}°)", fontsize=10)
-            ax.set_ylabel("closure phase (deg)")
-            ax.set_ylim(-190, 190)
-            ax.set_yticks([-180, -90, 0, 90, 180])
+            ax.plot(hx, mx, "-", lw=1.4, color=MODEL_COLOUR, label="model", zorder=5)  # model above the points
+            if amplitude:
+                ax.set_title(f"{tri}   (N = {sel.sum()}, median σ = {np.median(sg):.3g})", fontsize=10)
+                ax.set_ylabel("log closure amplitude")
+            else:
+                ax.set_title(f"{tri}   (N = {sel.sum()}, median σ = {np.median(sg):.1f}°)", fontsize=10)
+                ax.set_ylabel("closure phase (deg)")
+                ax.set_ylim(-190, 190)
+                ax.set_yticks([-180, -90, 0, 90, 180])
             if k == 0:
                 ax.legend(loc="upper right", fontsize=8)
             panels[tri] = {"hours": h, "phase_deg": ph, "sigma_deg": sg, "model_deg": md}
@@ -492,7 +587,9 @@ def closure_phase_plot(series, max_panels=6, title=None, triangles=None):
             last = max(r for r in range(nrow) if r * ncol + c < n) if n > c else 0
             axes[last][c].set_xlabel(f"time (h UTC from MJD {day0:.0f})")
             axes[last][c].xaxis.set_tick_params(labelbottom=True)
-        fig.suptitle(title or "closure phases of the most informative triangles")
+        fig.suptitle(
+            title or ("log closure amplitudes" if amplitude else "closure phases of the most informative triangles")
+        )
         fig.tight_layout()
     return fig, {"triangles": list(triangles), "panels": panels, "day0": day0}
 

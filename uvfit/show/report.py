@@ -454,8 +454,8 @@ _CAPTIONS = {
     "uv": ("coverage", "(u, v) coverage, each visibility with its conjugate; u increases to the left (east)."),
     "closure": (
         "closure-phases",
-        "Closure phases against time for the most informative "
-        "triangles (largest sum of 1/σ²): data with 1σ errors and the model.",
+        "Closure phases against time for the worst-fitting distinct triangles (largest reduced "
+        "χ² first; triangles through one site drawn once): data with 1σ errors and the model.",
     ),
     "sky": (
         "sky",
@@ -468,7 +468,7 @@ _CAPTIONS = {
 def figures(view, chain=None, chain_names=None, chain_units=None, chain_summaries=None):
     """[(anchor, caption, Figure)] for the report; a figure that cannot be made becomes a note."""
     out = []
-    for kind in KINDS:
+    for kind in [k for k in KINDS if k in _CAPTIONS]:
         anchor, caption = _CAPTIONS[kind]
         try:
             fig, _ = make_figure(kind, view)

@@ -163,6 +163,11 @@ def closures_text(res):
         f"closure amplitudes    {res['n_closure_amplitudes']} (log) on {res['n_quadrangles']} quadrangles",
         f"errors                {res['covariance']}",
     ]
+    if res.get("average") is not None:
+        lines.insert(3, f"averaged              {res['averaging']}")
+    if res.get("sites_left_out"):
+        sites = "; ".join("-".join(g) for g in res["sites_left_out"])
+        lines.insert(3, f"same site             loops with two stations of one site left out ({sites})")
     if "closure_phase_chi2" in res:
         lines += [
             "",
@@ -264,6 +269,37 @@ def _ms_lines(s):
     return rows
 
 
+def _scan_site_lines(s):
+    """The scans, sites and phase-calibration lines of the data summary."""
+    rows = []
+    sc = s.get("scan_structure")
+    if sc and sc.get("n_scans"):
+        rows.append(
+            (
+                "scans",
+                f"{sc['n_scans']}, median length {sc['median_scan_length_s']:.4g} s, median "
+                f"{sc['median_rows_per_baseline_per_scan']:.3g} rows per baseline and scan ({sc['scans_from']})",
+            )
+        )
+    st = s.get("sites")
+    if st is not None:
+        if st["all_one_site"]:
+            text = f"every station within {st['distance_m']:g} m of another: one site (same-site handling off)"
+        elif st["sites"]:
+            parts = []
+            for g in st["sites"]:
+                ds = [p["distance_m"] for p in st["pairs"] if set(p["stations"]) <= set(g)]
+                parts.append("-".join(g) + (f" ({max(ds):.4g} m)" if ds else ""))
+            text = "; ".join(parts) + f"  (stations closer than {st['distance_m']:g} m)"
+        else:
+            text = f"none (no two stations closer than {st['distance_m']:g} m)"
+        rows.append(("same site", text))
+    pc = s.get("phase_calibration")
+    if pc is not None:
+        rows.append(("phases", pc.get("hint") or pc["verdict"]))
+    return rows
+
+
 def info_text(s):
     """The table of a data summary (``uvfit.tasks.info(...).to_dict()``): one quantity per line."""
     freqs = s["frequency_hz"]
@@ -299,6 +335,7 @@ def info_text(s):
             else "-",
         ),
     ]
+    rows += _scan_site_lines(s)
     if s.get("file_format") == "ms":
         rows += _ms_lines(s)
     width = max(len(k) for k, _ in rows)

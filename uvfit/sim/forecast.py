@@ -95,6 +95,8 @@ def forecast(
 ):
     """Run the forecast (see the module docstring); returns a JSON-ready dictionary.
 
+    ``options``: statistic options of every fit (closure options such as ``snr_cut``).
+
     ``alternatives``: SkyModel objects; ``fit_systematic``: the systematic fraction the fits use
     (default: the simulated one); ``progress``: called with 1 after each trial; ``options`` go
     to every fit's statistic (e.g. ``gains``, ``gain_interval``, ``gain_prior``).

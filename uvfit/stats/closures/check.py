@@ -96,6 +96,9 @@ def check_closures(
     covariance=None,
     worst=5,
     amplitude_reference="neighbours",
+    closure_average=None,
+    scan_gap=None,
+    site_distance=None,
 ):
     """Counts of the closure quantities of ``vset`` and, with a model, how well the model's closure
     phases and log closure amplitudes match the data (at the model's current parameter values).
@@ -115,7 +118,14 @@ def check_closures(
     snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
     covariance = check_covariance(covariance, full)
     cs = build_closures(
-        vset, snr_cut=snr_cut, systematic=systematic, full=full, amplitude_reference=amplitude_reference
+        vset,
+        snr_cut=snr_cut,
+        systematic=systematic,
+        full=full,
+        amplitude_reference=amplitude_reference,
+        closure_average=closure_average,
+        scan_gap=scan_gap,
+        site_distance=site_distance,
     )
     cp, ca = cs["phase"], cs["amplitude"]
     if cp.n == 0:
@@ -144,12 +154,15 @@ def check_closures(
         "covariance_mode": covariance,
         "closure_phase_unit": "deg",
         "closure_amplitude_unit": "natural log",
+        "average": cp.average,
+        "averaging": cp.note if cp.average is not None else "none: closures per integration",
+        "sites_left_out": [list(g) for g in cp.sites],
         "caution": CLOSURE_CAUTION,
         "closures": cs,
     }
     if model is None:
         return out
-    mvis = _model_vis_at_rows(model, vset, np.concatenate([cp.rows.ravel(), ca.rows.ravel()]))
+    mvis = _model_vis_at_rows(model, vset, np.concatenate([cp.used_rows(), ca.used_rows()]))
     m_cp = cp.evaluate(mvis)
     d_cp = np.angle(np.exp(1j * (cp.value - m_cp)))
     m_ca = ca.evaluate(mvis) if ca.n else np.zeros(0)

@@ -47,7 +47,13 @@ def whitening(vset, cs):
     only); their Cholesky factors and inverses are computed in batches of equal size."""
     from scipy.sparse import block_diag
 
-    if cs.row_sigma is not None:
+    rows_of = cs.rows
+    if getattr(cs, "entry_rows", None) is not None:
+        # averaged sets: shared (interval, baseline) entries correlate closures; the diagonal is
+        # each closure's own error (thermal or scatter, see build.build_averaged)
+        rows_of = cs.entry_rows
+        rel2 = cs.entry_sigma**2
+    elif cs.row_sigma is not None:
         rel2 = cs.row_sigma**2
     else:
         amp = np.abs(vset.vis)
@@ -57,11 +63,15 @@ def whitening(vset, cs):
     groups = np.split(np.arange(cs.n), bounds)
     covs = []
     for idx in groups:
-        rows = cs.rows[idx]
+        rows = rows_of[idx]
         uniq, inv = np.unique(rows, return_inverse=True)
         a = np.zeros((len(idx), len(uniq)))
         np.add.at(a, (np.repeat(np.arange(len(idx)), rows.shape[1]), inv.ravel()), cs.signs[idx].ravel())
-        covs.append((a * rel2[uniq]) @ a.T)
+        cov = (a * rel2[uniq]) @ a.T
+        if rows_of is not cs.rows:
+            scale = cs.sigma[idx] / np.sqrt(np.diag(cov))
+            cov = cov * scale[:, None] * scale[None, :]
+        covs.append(cov)
     blocks = [None] * len(groups)
     logdet = 0.0
     sizes = np.array([len(g) for g in groups])

@@ -30,7 +30,7 @@ from ..base import (
     model_visibilities_and_jacobian,
 )
 from ..visibility import AmplitudeStatistic
-from .build import DEFAULT_SNR_CUT, build_closures, no_closure_error
+from .build import DEFAULT_SNR_CUT, _aggregator, _bispectra, build_closures, no_closure_error
 from .covariance import COVARIANCE_NOTE, check_covariance, whitening
 
 
@@ -68,6 +68,24 @@ def flux_degeneracies(model, why):
     ]
 
 
+def _build_options(closure_average=None, scan_gap=None, site_distance=None):
+    """The construction options of the closures that were given (kept in ``.options``)."""
+    given = {"closure_average": closure_average, "scan_gap": scan_gap, "site_distance": site_distance}
+    return {k: v for k, v in given.items() if v is not None}
+
+
+def averaging_notice(cs):
+    """One line on how an averaged closure set was made."""
+    what = "closure phases" if cs.kind == "phase" else "log closure amplitudes"
+    line = f"{what} averaged: {cs.note}; {cs.n} from {len(cs.member_closure)} integrations"
+    if cs.kind == "phase" and cs.n:
+        n_sc = int(np.count_nonzero(cs.error_source == "scatter"))
+        line += f"; error from the scatter (larger than thermal) for {n_sc} of {cs.n}"
+    else:
+        line += "; amplitudes debiased (incoherent power average)"
+    return line
+
+
 class _ClosurePart(Statistic):
     """A statistic on one kind of closure quantity (see the module docstring).
 
@@ -92,11 +110,15 @@ class _ClosurePart(Statistic):
         covariance=None,
         closures=None,
         amplitude_reference="neighbours",
+        closure_average=None,
+        scan_gap=None,
+        site_distance=None,
         **options,
     ):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
         covariance = check_covariance(covariance, full)
+        build = _build_options(closure_average, scan_gap, site_distance)
         super().__init__(
             vset,
             model,
@@ -105,6 +127,7 @@ class _ClosurePart(Statistic):
             full=bool(full),
             covariance=covariance,
             amplitude_reference=amplitude_reference,
+            **build,
             **options,
         )
         cs = (
@@ -117,6 +140,7 @@ class _ClosurePart(Statistic):
                 full=full,
                 kinds=(self.kind,),
                 amplitude_reference=amplitude_reference,
+                **build,
             )[self.kind]
         )
         if cs.n == 0:
@@ -136,9 +160,18 @@ class _ClosurePart(Statistic):
         self.row_index = cs.rows
         self.station_index = cs.stations
         self.labels = cs.labels
-        self._used = np.unique(cs.rows)
-        self._local = np.searchsorted(self._used, cs.rows)
-        self._signs = cs.signs
+        self.averaged = cs.member_rows is not None
+        if self.averaged:
+            self._used = np.unique(cs.member_rows)
+            self._local = np.searchsorted(self._used, cs.member_rows)
+            self._signs = cs.member_signs
+            self._coef = cs.signs
+            self._agg = _aggregator(cs.member_closure, cs.n)
+            self.notices = list(getattr(self, "notices", []) or []) + [averaging_notice(cs)]
+        else:
+            self._used = np.unique(cs.rows)
+            self._local = np.searchsorted(self._used, cs.rows)
+            self._signs = cs.signs
         self._u = vset.u[self._used]
         self._v = vset.v[self._used]
         self._f = vset.frequency[self._used]
@@ -194,6 +227,8 @@ class ClosurePhaseStatistic(_ClosurePart):
     wrapped = True
 
     def predict(self, theta):
+        if self.averaged:
+            return np.angle(self._agg @ _bispectra(self._vis(theta)[self._local], self._signs))
         ph = np.angle(self._vis(theta))
         return np.angle(np.exp(1j * np.sum(self._signs * ph[self._local], axis=1)))
 
@@ -201,6 +236,18 @@ class ClosurePhaseStatistic(_ClosurePart):
         vis, jac = self._vis_jac(theta)
         with np.errstate(divide="ignore", invalid="ignore"):
             dph = (jac / vis[:, None]).imag
+        if self.averaged:
+            # d arg S = Im(conj S dS) / |S|^2, S = sum_t B_t, dB_t = B_t sum_k (Re g + i s_k Im g),
+            # g = dV / V at each corner (conj V for s = -1 gives conj g)
+            g = jac / vis[:, None]
+            gl = g[self._local]  # (m, k, p)
+            b = _bispectra(vis[self._local], self._signs)
+            db = b[:, None] * np.sum(gl.real + 1j * self._signs[:, :, None] * gl.imag, axis=1)
+            big_s = self._agg @ b
+            ds = self._agg @ db
+            with np.errstate(divide="ignore", invalid="ignore"):
+                d = (np.conj(big_s)[:, None] * ds).imag / (np.abs(big_s) ** 2)[:, None]
+            return np.angle(big_s), d
         pred = np.angle(np.exp(1j * np.sum(self._signs * np.angle(vis)[self._local], axis=1)))
         return pred, np.einsum("nk,nkp->np", self._signs, dph[self._local])
 
@@ -214,13 +261,31 @@ class LogClosureAmplitudeStatistic(_ClosurePart):
     why = "log closure amplitudes"
     wrapped = None
 
+    def _power(self, vis):
+        """Summed |V|^2 of each closure's corners over its integrations (n, 4)."""
+        p = np.abs(vis[self._local]) ** 2
+        return np.stack([self._agg @ p[:, j] for j in range(p.shape[1])], 1)
+
     def predict(self, theta):
+        if self.averaged:
+            with np.errstate(divide="ignore"):
+                return np.sum(self._coef * 0.5 * np.log(self._power(self._vis(theta))), axis=1)
         with np.errstate(divide="ignore"):
             la = np.log(np.abs(self._vis(theta)))
         return np.sum(self._signs * la[self._local], axis=1)
 
     def predict_jacobian(self, theta):
         vis, jac = self._vis_jac(theta)
+        if self.averaged:
+            q = self._power(vis)
+            dp = 2.0 * (np.conj(vis)[:, None] * jac).real  # d|V|^2 per row (rows, p)
+            dpl = dp[self._local]  # (m, 4, p)
+            d = np.zeros((self.n_data, jac.shape[1]))
+            for j in range(q.shape[1]):
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    d += (self._coef[:, j] * 0.5 / q[:, j])[:, None] * (self._agg @ dpl[:, j, :])
+            with np.errstate(divide="ignore"):
+                return np.sum(self._coef * 0.5 * np.log(q), axis=1), d
         with np.errstate(divide="ignore", invalid="ignore"):
             dla = (jac / vis[:, None]).real
             la = np.log(np.abs(vis))
@@ -256,11 +321,15 @@ class ClosureStatistic(JoinedStatistic):
         full=False,
         covariance=None,
         amplitude_reference="neighbours",
+        closure_average=None,
+        scan_gap=None,
+        site_distance=None,
         **options,
     ):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
         covariance = check_covariance(covariance, full)
+        build = _build_options(closure_average, scan_gap, site_distance)
         super().__init__(
             vset,
             model,
@@ -269,10 +338,11 @@ class ClosureStatistic(JoinedStatistic):
             full=bool(full),
             covariance=covariance,
             amplitude_reference=amplitude_reference,
+            **build,
             **options,
         )
         cs = build_closures(
-            vset, snr_cut=snr_cut, systematic=systematic, full=full, amplitude_reference=amplitude_reference
+            vset, snr_cut=snr_cut, systematic=systematic, full=full, amplitude_reference=amplitude_reference, **build
         )
         if cs["phase"].n == 0:
             raise no_closure_error(vset, "phase", snr_cut)
@@ -307,6 +377,8 @@ class ClosureStatistic(JoinedStatistic):
                 "no closure amplitudes can be formed (fewer than four stations with "
                 "enough SNR at every time): closure phases only"
             )
+        if cs["phase"].member_rows is not None:
+            self.notices += [averaging_notice(c) for c in cs.values() if c.n]
         self._join(members)
         self.snr_cut = snr_cut
         self.full = bool(full)
@@ -342,10 +414,14 @@ class HybridStatistic(JoinedStatistic):
         full=False,
         covariance=None,
         amplitude_reference="neighbours",
+        closure_average=None,
+        scan_gap=None,
+        site_distance=None,
         **options,
     ):
         vset = vset.good()
         snr_cut = DEFAULT_SNR_CUT if snr_cut is None else float(snr_cut)
+        build = _build_options(closure_average, scan_gap, site_distance)
         super().__init__(
             vset,
             model,
@@ -354,16 +430,18 @@ class HybridStatistic(JoinedStatistic):
             full=bool(full),
             covariance=covariance,
             amplitude_reference=amplitude_reference,
+            **build,
             **options,
         )
         amp = AmplitudeStatistic(vset, model, systematic=systematic, **options)
         cp = ClosurePhaseStatistic(
-            vset, model, systematic, snr_cut, full, covariance, amplitude_reference=amplitude_reference
+            vset, model, systematic, snr_cut, full, covariance, amplitude_reference=amplitude_reference, **build
         )
         self._join([amp, cp])
         # the closure phases break the point-reflection symmetry of the amplitudes: keep the
         # amplitudes' notices except the 180-degree one, unless the join is amplitude-only
         self.notices = [n for n in amp.notices if self.amplitude_only or n != REFLECTION_NOTICE]
+        self.notices += list(cp.notices)
         self.snr_cut = snr_cut
         self.full = bool(full)
         self.covariance = covariance

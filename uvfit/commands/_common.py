@@ -94,6 +94,30 @@ def as_options(**names):
         raise type(exc)(message, hint) from None
 
 
+#: the help text of ``--starts auto``
+STARTS_AUTO_HELP = " auto: 8 seeded starts, then more (up to 32) until 3 of them reach the lowest chi2."
+
+
+def starts_value(ctx, param, value):
+    """Click callback of ``--starts``: "auto" or a whole number of at least 1, else a one-line UvfitError."""
+    from ..infer.lsq import check_starts
+
+    with as_options(starts="--starts"):
+        return check_starts(value)
+
+
+def starts_option(help_text):
+    """The ``--starts`` option: ``auto`` (default: the fitter's rule) or a number of starts."""
+    return click.option(
+        "--starts",
+        default="auto",
+        show_default=True,
+        metavar="auto|N",
+        callback=starts_value,
+        help=help_text,
+    )
+
+
 def force_option(func):
     return click.option("--force", is_flag=True, help="Overwrite output files that exist already.")(func)
 

@@ -4,6 +4,7 @@ import click
 
 from ..stats.modes import MODES
 from ._common import (
+    STARTS_AUTO_HELP,
     as_options,
     at_least_zero,
     check_outputs,
@@ -13,6 +14,7 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    starts_option,
 )
 
 
@@ -39,12 +41,9 @@ from ._common import (
     is_flag=True,
     help="Scale the errors by sqrt(chi2/dof), as if the sigmas gave a reduced chi2 of 1.",
 )
-@click.option(
-    "--starts",
-    type=int,
-    default=1,
-    show_default=True,
-    help="Number of starts: the model's values, then random ones inside the bounds.",
+@starts_option(
+    "Number of starts: the model's values, then random ones inside the bounds (or around the values)."
+    + STARTS_AUTO_HELP
 )
 @click.option(
     "--global-search",
@@ -143,7 +142,9 @@ def command(
         profile=profile_name,
         jackknife=jackknife,
     )
-    total = starts + (1 if global_search else 0)
+    from ..infer.lsq import AUTO_FIRST
+
+    total = (AUTO_FIRST if starts == "auto" else starts) + (1 if global_search else 0)
     with as_options(
         max_evaluations="--max-evaluations",
         jackknife="--jackknife",

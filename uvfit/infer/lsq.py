@@ -24,6 +24,38 @@ from ..errors import FitError, UvfitError
 #: unconstrained by the data
 NULL_TOL = 1e-7
 
+#: the rule of ``starts="auto"`` (see :func:`fit`): a first batch of AUTO_FIRST starts, then
+#: batches of AUTO_BATCH until AUTO_AGREE starts end at the lowest chi2, at most AUTO_CAP in all
+AUTO_FIRST = 8
+AUTO_BATCH = 8
+AUTO_AGREE = 3
+AUTO_CAP = 32
+#: two ends reach the same lowest chi2 when they differ by less than this (absolute, plus 1e-6 relative)
+AUTO_SAME_CHI2 = 0.01
+
+
+def check_starts(starts):
+    """``starts`` as given ("auto" or an int >= 1); a UvfitError naming it otherwise."""
+    if isinstance(starts, str):
+        if starts.strip().lower() == "auto":
+            return "auto"
+        try:
+            starts = int(starts)
+        except ValueError:
+            raise UvfitError(f"starts must be 'auto' or a whole number of at least 1 (got {starts!r})") from None
+    if isinstance(starts, bool) or int(starts) != starts or int(starts) < 1:
+        raise UvfitError(f"starts must be 'auto' or a whole number of at least 1 (got {starts})")
+    return int(starts)
+
+
+def agreeing_starts(chi2s):
+    """How many of the end chi2 values lie within ``AUTO_SAME_CHI2`` (+1e-6 relative) of the lowest."""
+    c = np.asarray([x for x in chi2s if np.isfinite(x)], float)
+    if c.size == 0:
+        return 0
+    best = float(c.min())
+    return int(np.sum(c - best <= AUTO_SAME_CHI2 + 1e-6 * abs(best)))
+
 
 @dataclass
 class FitResult:
@@ -45,6 +77,7 @@ class FitResult:
     statistic: object
     seed: int = 0
     starts: int = 1
+    starts_requested: object = 1
     global_search: bool = False
     rescale_errors: bool = False
     error_scale: float = 1.0
@@ -423,7 +456,7 @@ def _canonical_best(statistic, model, theta, movable):
 def fit(
     statistic,
     model=None,
-    starts=1,
+    starts="auto",
     seed=0,
     global_search=False,
     progress=None,
@@ -435,18 +468,22 @@ def fit(
 
     ``model``: the model to fit (default: the statistic's own); it is changed in place (parameters
     the statistic cannot constrain are fixed, the best-fit values are set), ``result.model`` is a
-    copy. ``starts``: the first start is the model's values, the others are random (see
-    :func:`random_starts`), seeded by ``numpy.random.default_rng(seed)``. ``global_search``: first a
-    seeded differential-evolution search of chi2 inside the (finite) bounds, its result polished
-    as one more start. ``progress``: called with 1 after each start. ``rescale_errors``: multiply
+    copy. ``starts``: the number of starts, or "auto" (the default). The first start is the
+    model's values, the others are random (see :func:`random_starts`: uniform inside finite
+    bounds, else scattered around the start values), seeded by ``numpy.random.default_rng(seed)``.
+    The "auto" rule: a first batch of ``AUTO_FIRST`` (8) starts; while fewer than ``AUTO_AGREE``
+    (3) of them end within ``AUTO_SAME_CHI2`` (0.01, plus 1e-6 relative) of the lowest chi2 found,
+    another batch of ``AUTO_BATCH`` (8), up to ``AUTO_CAP`` (32) starts in all. The number used is
+    ``result.starts`` (``result.starts_requested`` is what was asked). ``global_search``: a seeded
+    global search of chi2 inside the (finite) bounds (see :func:`global_minimum`), its end one more
+    start. ``progress``: called with 1 after each start. ``rescale_errors``: multiply
     every error by sqrt(chi2/dof), as if the sigmas were scaled to give a reduced chi2 of 1.
     ``strict``: raise FitError when no start converged (False: return the best anyway).
     """
     if model is not None and model is not statistic.model:
         statistic = statistic.rebuilt(model)
     model = statistic.model
-    if int(starts) < 1:
-        raise UvfitError(f"starts must be at least 1 (got {starts})")
+    starts = check_starts(starts)
     statistic, fixed, notices = fix_degeneracies(statistic)
     names = list(model.free_names)
     k = len(names)
@@ -495,32 +532,41 @@ def fit(
             )
 
     rng = np.random.default_rng(seed)
-    start_list = [x_start] + random_starts(model, statistic, int(starts) - 1, rng)
+    first = AUTO_FIRST if starts == "auto" else int(starts)
+    start_list = [x_start] + random_starts(model, statistic, first - 1, rng)
     if global_search:
         start_list.append(_global_start(statistic, lo, hi, seed))
     if max_nfev is None:
         max_nfev = 200 * (k + 1)
 
     best, best_any, start_chi2, ends, end_chi2 = None, None, [], [], []
-    for x0 in start_list:
+    i = 0
+    while i < len(start_list):
+        x0 = start_list[i]
+        i += 1
         try:
             res = _run_start(statistic, x0, lo, hi, max_nfev)
         except ValueError:  # non-finite residuals at a random start, typically
+            res = None
+        if res is None:
             start_chi2.append(float("nan"))
-            if progress:
-                progress(1)
-            continue
-        c = float(2.0 * res.cost)
-        start_chi2.append(c)
-        ends.append(np.asarray(res.x, float))
-        end_chi2.append(c if res.status > 0 else float("nan"))
-        if np.isfinite(c):
-            if best_any is None or c < 2.0 * best_any.cost:
-                best_any = res
-            if res.status > 0 and (best is None or c < 2.0 * best.cost):
-                best = res
+        else:
+            c = float(2.0 * res.cost)
+            start_chi2.append(c)
+            ends.append(np.asarray(res.x, float))
+            end_chi2.append(c if res.status > 0 else float("nan"))
+            if np.isfinite(c):
+                if best_any is None or c < 2.0 * best_any.cost:
+                    best_any = res
+                if res.status > 0 and (best is None or c < 2.0 * best.cost):
+                    best = res
         if progress:
             progress(1)
+        if starts == "auto" and i == len(start_list):
+            cap = AUTO_CAP + int(bool(global_search))
+            if agreeing_starts(end_chi2) < AUTO_AGREE and len(start_list) < cap:
+                more = min(AUTO_BATCH, cap - len(start_list))
+                start_list += random_starts(model, statistic, more, rng)
     if best is None:
         if best_any is None:
             raise FitError(
@@ -599,7 +645,8 @@ def fit(
         model=model.copy(),
         statistic=statistic,
         seed=int(seed),
-        starts=int(starts),
+        starts=len(start_list),
+        starts_requested=starts,
         global_search=bool(global_search),
         rescale_errors=bool(rescale_errors),
         error_scale=scale,

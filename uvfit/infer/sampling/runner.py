@@ -296,7 +296,7 @@ def sample(
     force=False,
     order_by="flux",
     progress=None,
-    starts=1,
+    starts="auto",
     frequency=None,
     redshift=0.0,
     data_path=None,
@@ -355,6 +355,8 @@ def sample(
             "errors": dict(zip(result.names, map(float, result.errors))),
             "chi2": float(result.chi2),
             "dof": int(result.dof),
+            "starts": int(result.starts),
+            "seed": int(seed),
         }
         error_scale = 1.0
         if rescale_errors and result.dof > 0 and result.chi2 > 0:

@@ -142,9 +142,9 @@ def command(
         profile=profile_name,
         jackknife=jackknife,
     )
-    from ..infer.lsq import AUTO_FIRST
+    from ..infer.lsq import AUTO_FIRST, GLOBAL_POLISH
 
-    total = (AUTO_FIRST if starts == "auto" else starts) + (1 if global_search else 0)
+    total = (AUTO_FIRST if starts == "auto" else starts) + (GLOBAL_POLISH if global_search else 0)
     with as_options(
         max_evaluations="--max-evaluations",
         jackknife="--jackknife",

@@ -407,7 +407,23 @@ def _run_start(statistic, x0, lo, hi, max_nfev):
         )
 
 
-def _global_start(statistic, lo, hi, seed, maxiter=150):
+#: members of the global search's final population polished by least squares
+GLOBAL_POLISH = 4
+#: relative spread of the population's chi2 at which the global search stops (the polish by least
+#: squares does the rest)
+GLOBAL_TOL = 0.01
+
+
+
+def global_minimum(statistic, lo, hi, seed, maxiter=150, popsize=15, polish=GLOBAL_POLISH):
+    """Start vectors from a global search of chi2 inside finite bounds: the best ``polish``
+    distinct members of the final population of a seeded differential evolution (Storn & Price
+    1997, J. Global Optim. 11, 341; scipy.optimize.differential_evolution with the DE/rand/1/bin
+    strategy, which keeps the population spread longer than DE/best/1, a Latin-hypercube initial
+    population and no polish of its own). The fitter polishes each by least squares as one
+    more start, so the search's best basin and its runners-up are all tried: a population that
+    has not converged often holds the global basin in a member other than its best.
+    """
     names = statistic.model.free_names
     open_ = [n for n, a, b in zip(names, lo, hi) if not (np.isfinite(a) and np.isfinite(b))]
     if open_:
@@ -428,19 +444,33 @@ def _global_start(statistic, lo, hi, seed, maxiter=150):
     res = differential_evolution(
         objective,
         list(zip(lo, hi)),
+        strategy="rand1bin",
         seed=seed,
         maxiter=maxiter,
-        popsize=15,
-        tol=1e-7,
+        popsize=popsize,
+        tol=GLOBAL_TOL,
         polish=False,
         init="latinhypercube",
     )
-    return np.asarray(res.x, float)
+    out = [np.asarray(res.x, float)]
+    population = getattr(res, "population", None)
+    energies = getattr(res, "population_energies", None)
+    if population is not None and energies is not None:
+        span = np.asarray(hi, float) - np.asarray(lo, float)
+        for j in np.argsort(energies, kind="stable"):
+            if len(out) >= polish:
+                break
+            x = np.asarray(population[j], float)
+            if all(np.max(np.abs(x - y) / span) > 1e-3 for y in out):
+                out.append(x)
+    return out
 
 
-def _canonical_best(statistic, model, theta, movable):
-    """The best fit relabelled to canonical order (uvfit.infer.solutions), kept only when the
-    relabelled point has the same chi2 (an exact label swap)."""
+def _canonical_best(statistic, model, theta, movable, lo=None, hi=None, max_nfev=None):
+    """The best fit relabelled to canonical order (uvfit.infer.solutions), kept when the
+    relabelled point fits as well: the same chi2 (an exact label swap), or, for a statistic only
+    nearly blind to the shift and scale that the swap uses, as well after one polishing run from
+    it (within ``AUTO_SAME_CHI2`` plus 1e-6 relative)."""
     from .solutions import canonical
 
     other = canonical(model, theta[None, :], movable)[0]
@@ -450,6 +480,18 @@ def _canonical_best(statistic, model, theta, movable):
         c0, c1 = statistic.chi2(theta), statistic.chi2(other)
     if np.isfinite(c1) and abs(c1 - c0) <= 1e-9 * max(1.0, abs(c0)):
         return other
+    if lo is None or not np.isfinite(c1) or not np.all((other >= lo) & (other <= hi)):
+        return theta
+    try:
+        res = _run_start(statistic, other, lo, hi, max_nfev)
+    except ValueError:
+        return theta
+    polished = np.asarray(res.x, float)
+    c2 = float(2.0 * res.cost)
+    if res.status > 0 and c2 <= c0 + AUTO_SAME_CHI2 + 1e-6 * abs(c0):
+        again = canonical(model, polished[None, :], movable)[0]
+        if np.allclose(again, polished, rtol=0, atol=0):
+            return polished
     return theta
 
 
@@ -475,8 +517,8 @@ def fit(
     (3) of them end within ``AUTO_SAME_CHI2`` (0.01, plus 1e-6 relative) of the lowest chi2 found,
     another batch of ``AUTO_BATCH`` (8), up to ``AUTO_CAP`` (32) starts in all. The number used is
     ``result.starts`` (``result.starts_requested`` is what was asked). ``global_search``: a seeded
-    global search of chi2 inside the (finite) bounds (see :func:`global_minimum`), its end one more
-    start. ``progress``: called with 1 after each start. ``rescale_errors``: multiply
+    global search of chi2 inside the (finite) bounds (see :func:`global_minimum`); its best
+    distinct points are more starts (counted in ``result.starts``). ``progress``: called with 1 after each start. ``rescale_errors``: multiply
     every error by sqrt(chi2/dof), as if the sigmas were scaled to give a reduced chi2 of 1.
     ``strict``: raise FitError when no start converged (False: return the best anyway).
     """
@@ -534,8 +576,11 @@ def fit(
     rng = np.random.default_rng(seed)
     first = AUTO_FIRST if starts == "auto" else int(starts)
     start_list = [x_start] + random_starts(model, statistic, first - 1, rng)
+    n_global = 0
     if global_search:
-        start_list.append(_global_start(statistic, lo, hi, seed))
+        found = global_minimum(statistic, lo, hi, seed)
+        n_global = len(found)
+        start_list += found
     if max_nfev is None:
         max_nfev = 200 * (k + 1)
 
@@ -563,7 +608,7 @@ def fit(
         if progress:
             progress(1)
         if starts == "auto" and i == len(start_list):
-            cap = AUTO_CAP + int(bool(global_search))
+            cap = AUTO_CAP + n_global
             if agreeing_starts(end_chi2) < AUTO_AGREE and len(start_list) < cap:
                 more = min(AUTO_BATCH, cap - len(start_list))
                 start_list += random_starts(model, statistic, more, rng)
@@ -582,7 +627,7 @@ def fit(
         notices.append(f"the fit did not converge after {best.nfev} evaluations")
 
     theta = np.asarray(best.x, float)
-    theta = _canonical_best(statistic, model, theta, fixed)
+    theta = _canonical_best(statistic, model, theta, fixed, lo, hi, max_nfev)
     model.set_free(theta)
     r = statistic.residuals(theta)
     chi2 = float(r @ r)

@@ -414,7 +414,6 @@ GLOBAL_POLISH = 4
 GLOBAL_TOL = 0.01
 
 
-
 def global_minimum(statistic, lo, hi, seed, maxiter=150, popsize=15, polish=GLOBAL_POLISH):
     """Start vectors from a global search of chi2 inside finite bounds: the best ``polish``
     distinct members of the final population of a seeded differential evolution (Storn & Price

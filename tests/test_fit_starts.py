@@ -147,3 +147,49 @@ def test_global_search_reaches_the_lowest_of_40_random_starts_in_9_of_10_seeds()
         res = fit(make_statistic("complex", vs, start.copy()), starts=1, global_search=True, seed=seed)
         reached += res.chi2 <= ref.chi2 + 1e-3 * max(1.0, ref.chi2)
     assert reached >= 9, reached
+
+
+def test_sampler_on_two_solutions_starts_in_both_and_reports_modes(tmp_path):
+    # visibility amplitudes of a double do not fix the sign of the fluxes nor the orientation
+    # (|V| of a real sky equals that of its point reflection and of its negative; Hermitian
+    # symmetry, TMS 2017): the fit finds two solutions at the same chi2 and the sampler must
+    # report two modes instead of one median across them
+    from helpers.fit_sim import simulate
+
+    from uvfit.infer.sampling import sample
+    from uvfit.infer.sampling.chainfile import chain_info
+    from uvfit.infer.sampling.runner import MULTIMODAL_MOVES
+    from uvfit.sky.model import SkyModel
+
+    def pair(e2, n2):
+        return SkyModel.build(
+            [
+                {"name": "a", "shape": "point", "flux": 1.0, "east": 0.0, "north": 0.0},
+                {"name": "b", "shape": "point", "flux": 0.9, "east": e2, "north": n2},
+            ],
+            angular_unit="mas",
+        )
+
+    vset = simulate(pair(0.09, 0.12), n=60, sigma=0.02, seed=3, qmax=1e9)
+    path = tmp_path / "chain.h5"
+    post = sample(
+        vset,
+        pair(0.05, 0.05),
+        mode="amplitude",
+        n_walkers=16,
+        max_steps=200,
+        seed=1,
+        starts=12,
+        derived=False,
+        chain_path=str(path),
+    )
+    out = post.to_dict()
+    assert len(out["modes"]) >= 2
+    assert abs(sum(m["weight"] for m in out["modes"]) - 1.0) < 1e-12
+    assert any("modes" in n and "mix them" in n for n in out["notes"])
+    assert chain_info(str(path))["meta"]["moves"] == MULTIMODAL_MOVES
+    # each mode holds the invented fluxes 1.0 and 0.9 Jy in size (labels follow the flux order,
+    # which a sign flip reverses); tolerance 0.05 Jy, about 5 sigma of the sampled fluxes here
+    for m in out["modes"][:2]:
+        sizes = sorted(abs(m["median"][n]) for n in ("a.flux", "b.flux"))
+        assert abs(sizes[0] - 0.9) < 0.05 and abs(sizes[1] - 1.0) < 0.05, sizes

@@ -30,6 +30,8 @@ AUTO_FIRST = 8
 AUTO_BATCH = 8
 AUTO_AGREE = 3
 AUTO_CAP = 32
+#: evaluations per free parameter (+1) of a random start of the "auto" rule before it is judged
+AUTO_NFEV = 40
 #: two ends reach the same lowest chi2 when they differ by less than this (absolute, plus 1e-6 relative)
 AUTO_SAME_CHI2 = 0.01
 
@@ -195,10 +197,12 @@ def _kind(model, name):
     return "length" if local in ("east", "north", "fwhm", "diameter", "radius", "separation") else "ratio"
 
 
-def random_starts(model, statistic, n, rng):
+def random_starts(model, statistic, n, rng, around=False):
     """``n`` start vectors: uniform inside finite bounds; otherwise a scatter around the start
     value scaled to the parameter's kind (the array's resolution for a length, 180 deg for an
-    angle, half the value for a flux), reflected into one-sided bounds."""
+    angle, half the value for a flux), reflected into one-sided bounds. ``around``: the scatter
+    around the start values for every parameter, bounded ones included (reflected into the
+    bounds, then clipped)."""
     names = model.free_names
     x0 = np.asarray(model.get_free(), float)
     lo, hi = free_bounds(model)
@@ -212,7 +216,7 @@ def random_starts(model, statistic, n, rng):
         x = np.empty_like(x0)
         for i, name in enumerate(names):
             a, b = lo[i], hi[i]
-            if np.isfinite(a) and np.isfinite(b):
+            if np.isfinite(a) and np.isfinite(b) and not around:
                 x[i] = rng.uniform(a, b)
                 continue
             kind = _kind(model, name)
@@ -226,8 +230,18 @@ def random_starts(model, statistic, n, rng):
                 val = a + (a - val)
             if np.isfinite(b) and val > b:
                 val = b - (val - b)
-            x[i] = val
+            x[i] = min(max(val, a), b)
         out.append(x)
+    return out
+
+
+def _auto_starts(model, statistic, n, rng):
+    """The random starts of the "auto" rule: alternately a scatter around the start values and a
+    draw over the bounds (see :func:`random_starts`), so that a good start is refined cheaply and
+    distant minima are still visited."""
+    out = []
+    for i in range(n):
+        out += random_starts(model, statistic, 1, rng, around=(i % 2 == 0))
     return out
 
 
@@ -512,9 +526,13 @@ def fit(
     copy. ``starts``: the number of starts, or "auto" (the default). The first start is the
     model's values, the others are random (see :func:`random_starts`: uniform inside finite
     bounds, else scattered around the start values), seeded by ``numpy.random.default_rng(seed)``.
-    The "auto" rule: a first batch of ``AUTO_FIRST`` (8) starts; while fewer than ``AUTO_AGREE``
-    (3) of them end within ``AUTO_SAME_CHI2`` (0.01, plus 1e-6 relative) of the lowest chi2 found,
-    another batch of ``AUTO_BATCH`` (8), up to ``AUTO_CAP`` (32) starts in all. The number used is
+    The "auto" rule: a first batch of ``AUTO_FIRST`` (8) starts, the random ones alternately
+    scattered around the start values and drawn over the bounds (:func:`_auto_starts`); then
+    another batch of ``AUTO_BATCH`` (8) while fewer than ``AUTO_AGREE`` (3) starts end within
+    ``AUTO_SAME_CHI2`` (0.01, plus 1e-6 relative) of the lowest chi2 found and the last batch
+    lowered it, up to ``AUTO_CAP`` (32) starts in all. A random start gets ``AUTO_NFEV`` (40) x
+    (free parameters + 1) evaluations; one that has not converged by then is finished (with
+    ``max_nfev``) only when it is already below the best chi2 found. The number used is
     ``result.starts`` (``result.starts_requested`` is what was asked). ``global_search``: a seeded
     global search of chi2 inside the (finite) bounds (see :func:`global_minimum`); its best
     distinct points are more starts (counted in ``result.starts``). ``progress``: called with 1 after each start. ``rescale_errors``: multiply
@@ -574,7 +592,11 @@ def fit(
 
     rng = np.random.default_rng(seed)
     first = AUTO_FIRST if starts == "auto" else int(starts)
-    start_list = [x_start] + random_starts(model, statistic, first - 1, rng)
+    start_list = [x_start] + (
+        _auto_starts(model, statistic, first - 1, rng)
+        if starts == "auto"
+        else random_starts(model, statistic, first - 1, rng)
+    )
     n_global = 0
     if global_search:
         found = global_minimum(statistic, lo, hi, seed)
@@ -584,12 +606,16 @@ def fit(
         max_nfev = 200 * (k + 1)
 
     best, best_any, start_chi2, ends, end_chi2 = None, None, [], [], []
+    batch_best = np.inf
     i = 0
     while i < len(start_list):
         x0 = start_list[i]
         i += 1
+        short = starts == "auto" and i > 1 and not (first <= i - 1 < first + n_global)
         try:
-            res = _run_start(statistic, x0, lo, hi, max_nfev)
+            res = _run_start(statistic, x0, lo, hi, min(max_nfev, AUTO_NFEV * (k + 1)) if short else max_nfev)
+            if short and res.status == 0 and (best is None or 2.0 * res.cost < 2.0 * best.cost):
+                res = _run_start(statistic, res.x, lo, hi, max_nfev)  # promising: finish it
         except ValueError:  # non-finite residuals at a random start, typically
             res = None
         if res is None:
@@ -608,9 +634,12 @@ def fit(
             progress(1)
         if starts == "auto" and i == len(start_list):
             cap = AUTO_CAP + n_global
-            if agreeing_starts(end_chi2) < AUTO_AGREE and len(start_list) < cap:
+            now = 2.0 * best.cost if best is not None else np.inf
+            improved = now < batch_best - AUTO_SAME_CHI2 - 1e-6 * abs(now)
+            batch_best = now
+            if agreeing_starts(end_chi2) < AUTO_AGREE and improved and len(start_list) < cap:
                 more = min(AUTO_BATCH, cap - len(start_list))
-                start_list += random_starts(model, statistic, more, rng)
+                start_list += _auto_starts(model, statistic, more, rng)
     if best is None:
         if best_any is None:
             raise FitError(

@@ -144,7 +144,8 @@ def fit(
     starts : int or "auto"
         Number of starts (the model's values, then random ones inside the bounds, or around the
         values where a parameter has no bounds; seeded). "auto" (default): 8 starts, then batches
-        of 8 until 3 starts reach the lowest chi2 (within 0.01), at most 32
+        of 8 while fewer than 3 starts reach the lowest chi2 (within 0.01) and the last batch
+        lowered it, at most 32
         (:func:`uvfit.infer.lsq.fit`). The number used is the JSON's ``starts``.
     seed : int
         Seed of every random step; recorded.

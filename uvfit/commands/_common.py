@@ -95,7 +95,10 @@ def as_options(**names):
 
 
 #: the help text of ``--starts auto``
-STARTS_AUTO_HELP = " auto: 8 seeded starts, then more (up to 32) until 3 of them reach the lowest chi2."
+STARTS_AUTO_HELP = (
+    " auto: 8 seeded starts, then batches of 8 (up to 32) while fewer than 3 reach the lowest chi2"
+    " and the last batch lowered it."
+)
 
 
 def starts_value(ctx, param, value):

@@ -248,6 +248,11 @@ def test_fit_through_the_command_line(crescent, tmp_path):
             str(tmp_path / "fit.json"),
             "--seed",
             "3",
+            # one start: this test shape does not declare its exact relabelling (the two diameters
+            # traded, the shift reversed), which several starts find at the same chi2 (the fit then
+            # says errors_reliable false); the check here is the recovery from a near start
+            "--starts",
+            "1",
         ],
     )
     assert result.exit_code == 0, result.output

@@ -247,6 +247,33 @@ def pop_gains(kwargs):
     return {key: kwargs.pop(key, None) for key in GAIN_OPTION_NAMES}
 
 
+#: the help text of ``--starts auto``
+STARTS_AUTO_HELP = (
+    " auto: 8 seeded starts, then batches of 8 (up to 32) while fewer than 3 reach the lowest chi2"
+    " and the last batch lowered it."
+)
+
+
+def starts_value(ctx, param, value):
+    """Click callback of ``--starts``: "auto" or a whole number of at least 1, else a one-line UvfitError."""
+    from ..infer.lsq import check_starts
+
+    with as_options(starts="--starts"):
+        return check_starts(value)
+
+
+def starts_option(help_text):
+    """The ``--starts`` option: ``auto`` (default: the fitter's rule) or a number of starts."""
+    return click.option(
+        "--starts",
+        default="auto",
+        show_default=True,
+        metavar="auto|N",
+        callback=starts_value,
+        help=help_text,
+    )
+
+
 def force_option(func):
     return click.option("--force", is_flag=True, help="Overwrite output files that exist already.")(func)
 

@@ -5,6 +5,7 @@ import click
 from ..stats.modes import MODES
 from ._common import (
     GAIN_OPTION_NAMES,
+    STARTS_AUTO_HELP,
     as_options,
     at_least_zero,
     check_outputs,
@@ -18,6 +19,7 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    starts_option,
     worded,
 )
 
@@ -41,7 +43,7 @@ from ._common import (
     help="Fraction of |V| added in quadrature to every sigma.",
 )
 @click.option("--rescale-errors", is_flag=True, help="Multiply each fit's errors by sqrt(chi2/dof) (as for uvfit fit).")
-@click.option("--starts", type=int, default=1, show_default=True, help="Starts of each model's fit to the data.")
+@starts_option("Starts of each model's fit to the data." + STARTS_AUTO_HELP)
 @click.option(
     "--global-search", is_flag=True, help="Search chi2 globally inside the bounds before each fit (as for uvfit fit)."
 )

@@ -5,6 +5,7 @@ import click
 from ..stats.modes import MODES
 from ._common import (
     GAIN_OPTION_NAMES,
+    STARTS_AUTO_HELP,
     as_options,
     at_least_zero,
     check_outputs,
@@ -18,6 +19,7 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    starts_option,
     worded,
 )
 
@@ -45,12 +47,9 @@ from ._common import (
     is_flag=True,
     help="Scale the errors by sqrt(chi2/dof), as if the sigmas gave a reduced chi2 of 1.",
 )
-@click.option(
-    "--starts",
-    type=int,
-    default=1,
-    show_default=True,
-    help="Number of starts: the model's values, then random ones inside the bounds.",
+@starts_option(
+    "Number of starts: the model's values, then random ones inside the bounds (or around the values)."
+    + STARTS_AUTO_HELP
 )
 @click.option(
     "--global-search",
@@ -191,7 +190,9 @@ def command(
         **gains,
         **closure,
     )
-    total = starts + (1 if global_search else 0)
+    from ..infer.lsq import AUTO_FIRST, GLOBAL_POLISH
+
+    total = (AUTO_FIRST if starts == "auto" else starts) + (GLOBAL_POLISH if global_search else 0)
     with as_options(
         max_evaluations="--max-evaluations",
         jackknife="--jackknife",

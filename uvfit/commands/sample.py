@@ -5,6 +5,7 @@ import click
 from ..stats.modes import MODES
 from ._common import (
     GAIN_OPTION_NAMES,
+    STARTS_AUTO_HELP,
     as_options,
     at_least_zero,
     check_outputs,
@@ -18,6 +19,7 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    starts_option,
     worded,
 )
 
@@ -89,14 +91,9 @@ from ._common import (
     help="Label components of the same shape in every sample by flux (brightest first) "
     "or by distance from the phase centre (nearest first).",
 )
-@click.option(
-    "--starts",
-    type=int,
-    default=1,
-    show_default=True,
-    metavar="N",
-    help="Least-squares starts for the point the walkers start from (the first at the "
-    "model file's values, the others random, seeded).",
+@starts_option(
+    "Least-squares starts for the point the walkers start from (the first at the "
+    "model file's values, the others random, seeded)." + STARTS_AUTO_HELP
 )
 @click.option(
     "--redshift",

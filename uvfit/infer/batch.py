@@ -5,7 +5,7 @@ The manifest (TOML, the project's own format; see README, "batch"):
     [defaults]                 # shared by every job; any job may override any key
     command = "fit"            # "fit" or "sample"
     mode = "complex"
-    starts = 5
+    starts = "auto"            # as uvfit fit --starts; a number also works
     seed = 1
     output_dir = "results"     # each job's JSON is written here as NAME.json
 
@@ -35,7 +35,7 @@ JOB_OPTIONS = {
     "mode": "complex",
     "systematic": 0.0,
     "rescale_errors": False,
-    "starts": 5,
+    "starts": "auto",
     "global_search": False,
     "seed": 0,
     "redshift": 0.0,

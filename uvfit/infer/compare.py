@@ -135,7 +135,7 @@ def compare(
     bootstrap=0,
     seed=0,
     progress=None,
-    starts=1,
+    starts="auto",
     names=None,
     bootstrap_starts=1,
     alpha=0.01,

@@ -24,6 +24,40 @@ from ..errors import FitError, UvfitError
 #: unconstrained by the data
 NULL_TOL = 1e-7
 
+#: the rule of ``starts="auto"`` (see :func:`fit`): a first batch of AUTO_FIRST starts, then
+#: batches of AUTO_BATCH until AUTO_AGREE starts end at the lowest chi2, at most AUTO_CAP in all
+AUTO_FIRST = 8
+AUTO_BATCH = 8
+AUTO_AGREE = 3
+AUTO_CAP = 32
+#: evaluations per free parameter (+1) of a random start of the "auto" rule before it is judged
+AUTO_NFEV = 40
+#: two ends reach the same lowest chi2 when they differ by less than this (absolute, plus 1e-6 relative)
+AUTO_SAME_CHI2 = 0.01
+
+
+def check_starts(starts):
+    """``starts`` as given ("auto" or an int >= 1); a UvfitError naming it otherwise."""
+    if isinstance(starts, str):
+        if starts.strip().lower() == "auto":
+            return "auto"
+        try:
+            starts = int(starts)
+        except ValueError:
+            raise UvfitError(f"starts must be 'auto' or a whole number of at least 1 (got {starts!r})") from None
+    if isinstance(starts, bool) or int(starts) != starts or int(starts) < 1:
+        raise UvfitError(f"starts must be 'auto' or a whole number of at least 1 (got {starts})")
+    return int(starts)
+
+
+def agreeing_starts(chi2s):
+    """How many of the end chi2 values lie within ``AUTO_SAME_CHI2`` (+1e-6 relative) of the lowest."""
+    c = np.asarray([x for x in chi2s if np.isfinite(x)], float)
+    if c.size == 0:
+        return 0
+    best = float(c.min())
+    return int(np.sum(c - best <= AUTO_SAME_CHI2 + 1e-6 * abs(best)))
+
 
 @dataclass
 class FitResult:
@@ -45,6 +79,7 @@ class FitResult:
     statistic: object
     seed: int = 0
     starts: int = 1
+    starts_requested: object = 1
     global_search: bool = False
     rescale_errors: bool = False
     error_scale: float = 1.0
@@ -138,10 +173,12 @@ def check_bounds(model):
     return lo, hi
 
 
-def random_starts(model, statistic, n, rng):
+def random_starts(model, statistic, n, rng, around=False):
     """``n`` start vectors: uniform inside finite bounds; otherwise a scatter around the start
     value scaled to the parameter's kind (the array's resolution for a length, 180 deg for an
-    angle, half the value for a flux), reflected into one-sided bounds."""
+    angle, half the value for a flux), reflected into one-sided bounds. ``around``: the scatter
+    around the start values for every parameter, bounded ones included (reflected into the
+    bounds, then clipped)."""
     names = model.free_names
     x0 = np.asarray(model.get_free(), float)
     lo, hi = free_bounds(model)
@@ -155,7 +192,7 @@ def random_starts(model, statistic, n, rng):
         x = np.empty_like(x0)
         for i, name in enumerate(names):
             a, b = lo[i], hi[i]
-            if np.isfinite(a) and np.isfinite(b):
+            if np.isfinite(a) and np.isfinite(b) and not around:
                 x[i] = rng.uniform(a, b)
                 continue
             kind = model.parameters[name].kind
@@ -169,8 +206,18 @@ def random_starts(model, statistic, n, rng):
                 val = a + (a - val)
             if np.isfinite(b) and val > b:
                 val = b - (val - b)
-            x[i] = val
+            x[i] = min(max(val, a), b)
         out.append(x)
+    return out
+
+
+def _auto_starts(model, statistic, n, rng):
+    """The random starts of the "auto" rule: alternately a scatter around the start values and a
+    draw over the bounds (see :func:`random_starts`), so that a good start is refined cheaply and
+    distant minima are still visited."""
+    out = []
+    for i in range(n):
+        out += random_starts(model, statistic, 1, rng, around=(i % 2 == 0))
     return out
 
 
@@ -349,7 +396,22 @@ def _run_start(statistic, x0, lo, hi, max_nfev):
         )
 
 
-def _global_start(statistic, lo, hi, seed, maxiter=150):
+#: members of the global search's final population polished by least squares
+GLOBAL_POLISH = 4
+#: relative spread of the population's chi2 at which the global search stops (the polish by least
+#: squares does the rest)
+GLOBAL_TOL = 0.01
+
+
+def global_minimum(statistic, lo, hi, seed, maxiter=150, popsize=15, polish=GLOBAL_POLISH):
+    """Start vectors from a global search of chi2 inside finite bounds: the best ``polish``
+    distinct members of the final population of a seeded differential evolution (Storn & Price
+    1997, J. Global Optim. 11, 341; scipy.optimize.differential_evolution with the DE/rand/1/bin
+    strategy, which keeps the population spread longer than DE/best/1, a Latin-hypercube initial
+    population and no polish of its own). The fitter polishes each by least squares as one
+    more start, so the search's best basin and its runners-up are all tried: a population that
+    has not converged often holds the global basin in a member other than its best.
+    """
     names = statistic.model.free_names
     open_ = [n for n, a, b in zip(names, lo, hi) if not (np.isfinite(a) and np.isfinite(b))]
     if open_:
@@ -370,19 +432,33 @@ def _global_start(statistic, lo, hi, seed, maxiter=150):
     res = differential_evolution(
         objective,
         list(zip(lo, hi)),
+        strategy="rand1bin",
         seed=seed,
         maxiter=maxiter,
-        popsize=15,
-        tol=1e-7,
+        popsize=popsize,
+        tol=GLOBAL_TOL,
         polish=False,
         init="latinhypercube",
     )
-    return np.asarray(res.x, float)
+    out = [np.asarray(res.x, float)]
+    population = getattr(res, "population", None)
+    energies = getattr(res, "population_energies", None)
+    if population is not None and energies is not None:
+        span = np.asarray(hi, float) - np.asarray(lo, float)
+        for j in np.argsort(energies, kind="stable"):
+            if len(out) >= polish:
+                break
+            x = np.asarray(population[j], float)
+            if all(np.max(np.abs(x - y) / span) > 1e-3 for y in out):
+                out.append(x)
+    return out
 
 
-def _canonical_best(statistic, model, theta, movable):
-    """The best fit relabelled to canonical order (uvfit.infer.solutions), kept only when the
-    relabelled point has the same chi2 (an exact label swap)."""
+def _canonical_best(statistic, model, theta, movable, lo=None, hi=None, max_nfev=None):
+    """The best fit relabelled to canonical order (uvfit.infer.solutions), kept when the
+    relabelled point fits as well: the same chi2 (an exact label swap), or, for a statistic only
+    nearly blind to the shift and scale that the swap uses, as well after one polishing run from
+    it (within ``AUTO_SAME_CHI2`` plus 1e-6 relative)."""
     from .solutions import canonical
 
     other = canonical(model, theta[None, :], movable)[0]
@@ -392,13 +468,25 @@ def _canonical_best(statistic, model, theta, movable):
         c0, c1 = statistic.chi2(theta), statistic.chi2(other)
     if np.isfinite(c1) and abs(c1 - c0) <= 1e-9 * max(1.0, abs(c0)):
         return other
+    if lo is None or not np.isfinite(c1) or not np.all((other >= lo) & (other <= hi)):
+        return theta
+    try:
+        res = _run_start(statistic, other, lo, hi, max_nfev)
+    except ValueError:
+        return theta
+    polished = np.asarray(res.x, float)
+    c2 = float(2.0 * res.cost)
+    if res.status > 0 and c2 <= c0 + AUTO_SAME_CHI2 + 1e-6 * abs(c0):
+        again = canonical(model, polished[None, :], movable)[0]
+        if np.allclose(again, polished, rtol=0, atol=0):
+            return polished
     return theta
 
 
 def fit(
     statistic,
     model=None,
-    starts=1,
+    starts="auto",
     seed=0,
     global_search=False,
     progress=None,
@@ -410,18 +498,26 @@ def fit(
 
     ``model``: the model to fit (default: the statistic's own); it is changed in place (parameters
     the statistic cannot constrain are fixed, the best-fit values are set), ``result.model`` is a
-    copy. ``starts``: the first start is the model's values, the others are random (see
-    :func:`random_starts`), seeded by ``numpy.random.default_rng(seed)``. ``global_search``: first a
-    seeded differential-evolution search of chi2 inside the (finite) bounds, its result polished
-    as one more start. ``progress``: called with 1 after each start. ``rescale_errors``: multiply
+    copy. ``starts``: the number of starts, or "auto" (the default). The first start is the
+    model's values, the others are random (see :func:`random_starts`: uniform inside finite
+    bounds, else scattered around the start values), seeded by ``numpy.random.default_rng(seed)``.
+    The "auto" rule: a first batch of ``AUTO_FIRST`` (8) starts, the random ones alternately
+    scattered around the start values and drawn over the bounds (:func:`_auto_starts`); then
+    another batch of ``AUTO_BATCH`` (8) while fewer than ``AUTO_AGREE`` (3) starts end within
+    ``AUTO_SAME_CHI2`` (0.01, plus 1e-6 relative) of the lowest chi2 found and the last batch
+    lowered it, up to ``AUTO_CAP`` (32) starts in all. A random start gets ``AUTO_NFEV`` (40) x
+    (free parameters + 1) evaluations; one that has not converged by then is finished (with
+    ``max_nfev``) only when it is already below the best chi2 found. The number used is
+    ``result.starts`` (``result.starts_requested`` is what was asked). ``global_search``: a seeded
+    global search of chi2 inside the (finite) bounds (see :func:`global_minimum`); its best
+    distinct points are more starts (counted in ``result.starts``). ``progress``: called with 1 after each start. ``rescale_errors``: multiply
     every error by sqrt(chi2/dof), as if the sigmas were scaled to give a reduced chi2 of 1.
     ``strict``: raise FitError when no start converged (False: return the best anyway).
     """
     if model is not None and model is not statistic.model:
         statistic = statistic.rebuilt(model)
     model = statistic.model
-    if int(starts) < 1:
-        raise UvfitError(f"starts must be at least 1 (got {starts})")
+    starts = check_starts(starts)
     statistic, fixed, notices = fix_degeneracies(statistic)
     names = list(model.free_names)
     k = len(names)
@@ -470,32 +566,55 @@ def fit(
             )
 
     rng = np.random.default_rng(seed)
-    start_list = [x_start] + random_starts(model, statistic, int(starts) - 1, rng)
+    first = AUTO_FIRST if starts == "auto" else int(starts)
+    start_list = [x_start] + (
+        _auto_starts(model, statistic, first - 1, rng)
+        if starts == "auto"
+        else random_starts(model, statistic, first - 1, rng)
+    )
+    n_global = 0
     if global_search:
-        start_list.append(_global_start(statistic, lo, hi, seed))
+        found = global_minimum(statistic, lo, hi, seed)
+        n_global = len(found)
+        start_list += found
     if max_nfev is None:
         max_nfev = 200 * (k + 1)
 
     best, best_any, start_chi2, ends, end_chi2 = None, None, [], [], []
-    for x0 in start_list:
+    batch_best = np.inf
+    i = 0
+    while i < len(start_list):
+        x0 = start_list[i]
+        i += 1
+        short = starts == "auto" and i > 1 and not (first <= i - 1 < first + n_global)
         try:
-            res = _run_start(statistic, x0, lo, hi, max_nfev)
+            res = _run_start(statistic, x0, lo, hi, min(max_nfev, AUTO_NFEV * (k + 1)) if short else max_nfev)
+            if short and res.status == 0 and (best is None or 2.0 * res.cost < 2.0 * best.cost):
+                res = _run_start(statistic, res.x, lo, hi, max_nfev)  # promising: finish it
         except ValueError:  # non-finite residuals at a random start, typically
+            res = None
+        if res is None:
             start_chi2.append(float("nan"))
-            if progress:
-                progress(1)
-            continue
-        c = float(2.0 * res.cost)
-        start_chi2.append(c)
-        ends.append(np.asarray(res.x, float))
-        end_chi2.append(c if res.status > 0 else float("nan"))
-        if np.isfinite(c):
-            if best_any is None or c < 2.0 * best_any.cost:
-                best_any = res
-            if res.status > 0 and (best is None or c < 2.0 * best.cost):
-                best = res
+        else:
+            c = float(2.0 * res.cost)
+            start_chi2.append(c)
+            ends.append(np.asarray(res.x, float))
+            end_chi2.append(c if res.status > 0 else float("nan"))
+            if np.isfinite(c):
+                if best_any is None or c < 2.0 * best_any.cost:
+                    best_any = res
+                if res.status > 0 and (best is None or c < 2.0 * best.cost):
+                    best = res
         if progress:
             progress(1)
+        if starts == "auto" and i == len(start_list):
+            cap = AUTO_CAP + n_global
+            now = 2.0 * best.cost if best is not None else np.inf
+            improved = now < batch_best - AUTO_SAME_CHI2 - 1e-6 * abs(now)
+            batch_best = now
+            if agreeing_starts(end_chi2) < AUTO_AGREE and improved and len(start_list) < cap:
+                more = min(AUTO_BATCH, cap - len(start_list))
+                start_list += _auto_starts(model, statistic, more, rng)
     if best is None:
         if best_any is None:
             raise FitError(
@@ -511,7 +630,7 @@ def fit(
         notices.append(f"the fit did not converge after {best.nfev} evaluations")
 
     theta = np.asarray(best.x, float)
-    theta = _canonical_best(statistic, model, theta, fixed)
+    theta = _canonical_best(statistic, model, theta, fixed, lo, hi, max_nfev)
     model.set_free(theta)
     r = statistic.residuals(theta)
     chi2 = float(r @ r)
@@ -574,7 +693,8 @@ def fit(
         model=model.copy(),
         statistic=statistic,
         seed=int(seed),
-        starts=int(starts),
+        starts=len(start_list),
+        starts_requested=starts,
         global_search=bool(global_search),
         rescale_errors=bool(rescale_errors),
         error_scale=scale,

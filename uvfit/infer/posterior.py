@@ -224,6 +224,131 @@ def _swap_double_members(model, samples, order_by, doubles):
     return texts, swapped
 
 
+def anchored_groups(model, movable=()):
+    """Components that can swap labels with the one that holds a position fixed by the fitter.
+
+    In a mode blind to the absolute position (closures, amplitudes) the fitter fixes the position
+    of one component, the anchor (and, when the mode is blind to the flux scale, its flux). A
+    component of the same shape whose parameters are all free can then take the anchor's place:
+    the sky shifted by (anchor - other) and, with a fixed flux, scaled by (anchor flux / other
+    flux) is the same sky with the two labels exchanged, and such a mode cannot tell a shift or a
+    scale apart. Returns [(anchor, {role: full name}, [(other, {role: free index})])], roles
+    "east", "north", "flux" and "shape" (a list of (anchor index, other index) of the remaining
+    parameters, which trade places). Every position must be free or ``movable`` (a position the
+    user fixed or tied anchors the sky), likewise every flux when the anchor's flux is movable.
+    """
+    movable = set(movable)
+    if not movable:
+        return []
+    names = list(model.free_names)
+    index = {n: j for j, n in enumerate(names)}
+    positions = model.position_names()
+    fluxes = model.flux_names()
+
+    def loose(name):
+        return name in index or name in movable
+
+    if not all(loose(e) and loose(n) for e, n in positions.values()):
+        return []
+    out = []
+    for comp in model.components:
+        if comp.shape.compound:
+            continue
+        east, north = positions[comp.name]
+        if not (east in movable and north in movable):
+            continue
+        flux = fluxes[comp.name]
+        if flux not in index and flux not in movable:
+            continue
+        if flux in movable and not all(loose(f) for f in fluxes.values()):
+            continue
+        own = model.component_parameter_names(comp.name)
+        rest = [n for n in own if n not in (east, north, flux)]
+        if not all(n in index for n in rest):
+            continue
+        others = []
+        for other in model.components:
+            if other is comp or other.shape.compound or other.key != comp.key:
+                continue
+            if tuple(other.parameter_names()) != tuple(comp.parameter_names()):
+                continue
+            theirs = model.component_parameter_names(other.name)
+            if not all(n in index for n in theirs):
+                continue
+            local = dict(zip(own, theirs))
+            others.append(
+                (
+                    other.name,
+                    {
+                        "east": index[local[east]],
+                        "north": index[local[north]],
+                        "flux": index[local[flux]],
+                        "shape": [(index[n], index[local[n]]) for n in rest],
+                    },
+                )
+            )
+        if others:
+            out.append((comp.name, {"east": east, "north": north, "flux": flux}, others))
+    return out
+
+
+def _swap_anchored(model, samples, anchored, movable):
+    """Give the anchor of each :func:`anchored_groups` group the largest flux (texts, swapped)."""
+    texts = []
+    swapped = np.zeros(samples.shape[0], dtype=bool)
+    names = list(model.free_names)
+    index = {n: j for j, n in enumerate(names)}
+    positions = model.position_names()
+    fluxes = model.flux_names()
+    for anchor, full, others in anchored:
+        fixed_flux = full["flux"] in movable
+        value = model.parameters
+        a_e, a_n = value[full["east"]].value, value[full["north"]].value
+        a_f = value[full["flux"]].value if fixed_flux else samples[:, index[full["flux"]]]
+        f_other = np.stack([samples[:, o["flux"]] for _, o in others], axis=1)  # (n, m)
+        a_f = np.broadcast_to(np.asarray(a_f, float), (samples.shape[0],))
+        j = np.argmax(f_other, axis=1)
+        rows_all = np.flatnonzero(np.take_along_axis(f_other, j[:, None], 1)[:, 0] > a_f)
+        for jj, (_, o) in enumerate(others):
+            rows = rows_all[j[rows_all] == jj]
+            if rows.size == 0:
+                continue
+            x = samples[rows]
+            de, dn = a_e - x[:, o["east"]], a_n - x[:, o["north"]]
+            f_o = x[:, o["flux"]].copy()
+            f_a = a_f[rows]
+            shape_a = [x[:, ia].copy() for ia, _ in o["shape"]]
+            shape_o = [x[:, io].copy() for _, io in o["shape"]]
+            # every free position moves with the shift; the other takes the anchor's old offset
+            for e, n in positions.values():
+                if e in index:
+                    x[:, index[e]] += de
+                if n in index:
+                    x[:, index[n]] += dn
+            x[:, o["east"]] = a_e + de
+            x[:, o["north"]] = a_n + dn
+            if fixed_flux:
+                g = f_a / f_o
+                for f in fluxes.values():
+                    if f in index:
+                        x[:, index[f]] *= g
+                x[:, o["flux"]] = f_a * g
+            else:
+                x[:, index[full["flux"]]] = f_o
+                x[:, o["flux"]] = f_a
+            for (ia, io), va, vo in zip(o["shape"], shape_a, shape_o):
+                x[:, ia], x[:, io] = vo, va
+            samples[rows] = x
+            swapped[rows] = True
+        members = ", ".join([anchor] + [o for o, _ in others])
+        texts.append(
+            f"components {members} (same shape) can swap labels in this mode (it cannot see the "
+            f"position of {anchor}" + (" or the flux scale" if fixed_flux else "") + f"): {anchor}, which holds the "
+            "fixed position, is made the brightest in every sample"
+        )
+    return texts, swapped
+
+
 def order_samples(model, samples, order_by="flux", groups=None, movable=()):
     """Relabel swappable components in every sample so that they follow the ordering rule.
 
@@ -231,7 +356,9 @@ def order_samples(model, samples, order_by="flux", groups=None, movable=()):
     sample's parameter blocks are permuted so that the first-named component of a group has the
     largest flux (or smallest distance) in that sample; the two members of a double are swapped
     likewise (see :func:`double_members`; ``movable`` names positions fixed only because the mode
-    cannot see them). Returns (ordered samples, description dict).
+    cannot see them); and a component of the same shape as the one holding such a fixed position
+    trades places with it when brighter (:func:`anchored_groups`), whatever ``order_by``, so that the
+    anchor is the brightest. Returns (ordered samples, description dict).
     """
     samples = np.array(samples, dtype=float, copy=True)
     if order_by not in ("flux", "distance"):
@@ -239,7 +366,8 @@ def order_samples(model, samples, order_by="flux", groups=None, movable=()):
     if groups is None:
         groups = swap_groups(model)
     doubles = double_members(model, movable)
-    if not groups and not doubles:
+    anchored = anchored_groups(model, movable)
+    if not groups and not doubles and not anchored:
         return samples, {
             "rule": order_by,
             "groups": [],
@@ -247,6 +375,10 @@ def order_samples(model, samples, order_by="flux", groups=None, movable=()):
         }
     names = list(model.free_names)
     texts, swapped = _swap_double_members(model, samples, order_by, doubles)
+    if anchored:
+        more, moved = _swap_anchored(model, samples, anchored, set(movable))
+        texts += more
+        swapped |= moved
     for group in groups:
         comps = [c for c, _ in group]
         blocks = np.array([idx for _, idx in group])  # (m, p)
@@ -269,6 +401,8 @@ def order_samples(model, samples, order_by="flux", groups=None, movable=()):
         "rule": order_by,
         "groups": [[c for c, _ in g] for g in groups],
         "doubles": [d[0] for d in doubles],
+        "anchored": [[a] + [o for o, _ in others] for a, _, others in anchored],
+        "movable": sorted(set(movable)),
         "description": "; ".join(texts) if texts else "no ordering applied",
         "fraction_relabelled": float(np.mean(swapped)) if samples.shape[0] else 0.0,
     }

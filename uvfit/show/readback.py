@@ -356,10 +356,10 @@ def order_chain(samples, model, posterior):
     file holds them unordered, so the corner plot applies the same rule to match the table.
     """
     ordering = (posterior or {}).get("ordering")
-    if not isinstance(ordering, dict) or not ordering.get("groups"):
+    if not isinstance(ordering, dict) or not (ordering.get("groups") or ordering.get("anchored")):
         return samples
     if samples.shape[1] != len(model.free_names):
         return samples
     from ..infer.posterior import order_samples
 
-    return order_samples(model, samples, ordering.get("rule", "flux"))[0]
+    return order_samples(model, samples, ordering.get("rule", "flux"), movable=ordering.get("movable", ()))[0]

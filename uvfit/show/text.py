@@ -44,6 +44,7 @@ def fit_text(out):
     echo(
         f"mode {out['mode']}, {st['n_data']} data, {st['n_free']} free parameters, "
         f"systematic floor {out['systematic']:g}, seed {out['seed']}"
+        + (f", {out['starts']} starts" if "starts" in out else "")
     )
     echo("")
     echo(f"{'parameter':<28} {'value ± error':<30} {'unit':<6} status")

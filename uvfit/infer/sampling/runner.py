@@ -29,6 +29,9 @@ from .logpost import LogPosterior, _init_worker, _WorkerLogProb
 from .start import initial_ball
 from .summary import summarize_chain
 
+#: the chain-file record of the move mixture used for several modes
+MULTIMODAL_MOVES = "differential_evolution"
+
 #: acceptance fractions outside this range get a warning (common practice for the stretch move)
 ACCEPTANCE_RANGE = (0.15, 0.6)
 
@@ -110,8 +113,15 @@ def run_chain(
     burn_factor=BURN_FACTOR,
     ball_scale=0.3,
     meta=None,
+    modes=None,
 ):
     """Run (or resume) the ensemble sampler and return a :class:`Chain`.
+
+    ``modes``: several centres (distinct least-squares solutions) for a multimodal posterior: the
+    walkers start in balls around each in turn, and the moves are the mixture emcee's
+    documentation suggests for several modes, differential evolution (80%) and its snooker
+    variant (20%) (ter Braak 2006; ter Braak & Vrugt 2008), recorded in the chain file so that a
+    resumed chain moves alike. Otherwise the stretch move (Goodman & Weare 2010).
 
     ``log_prob`` is a picklable callable theta -> log-posterior (e.g. :class:`LogPosterior`);
     ``start`` the centre of the initial ball and ``covariance`` its shape (may be None);
@@ -146,7 +156,16 @@ def run_chain(
             raise UvfitError(
                 f"{n_walkers} walkers are too few for {n_dim} free parameters", f"use `walkers={2 * n_dim + 2}` or more"
             )
+        modes = [np.asarray(m, float) for m in (modes or [])]
+        if len(modes) > 1:
+            meta = dict(meta or {}, moves=MULTIMODAL_MOVES)
         backend = new_backend(chain_path, n_walkers, n_dim, names, seed, meta)
+    moves = None
+    stored_moves = (meta or {}).get("moves")
+    if resume and chain_path is not None:
+        stored_moves = chain_info(chain_path)["meta"].get("moves")
+    if stored_moves == MULTIMODAL_MOVES:
+        moves = [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
 
     check_chain_size(max(int(max_steps), previous), n_walkers, n_dim)
     pool = None
@@ -157,21 +176,26 @@ def run_chain(
         pool = multiprocessing.get_context().Pool(int(procs), initializer=_init_worker, initargs=(log_prob,))
         fn = _WorkerLogProb()
     try:
-        sampler = emcee.EnsembleSampler(n_walkers, n_dim, fn, pool=pool, backend=backend)
+        sampler = emcee.EnsembleSampler(n_walkers, n_dim, fn, pool=pool, backend=backend, moves=moves)
         if previous:
             state = backend.get_last_sample()
         else:
             seq = np.random.SeedSequence(int(seed))
             ball_seq, walk_seq = seq.spawn(2)
-            pos, note = initial_ball(
-                start,
-                covariance,
-                bounds,
-                n_walkers,
-                np.random.default_rng(ball_seq),
-                scale=ball_scale,
-                log_prob=log_prob,
-            )
+            ball_rng = np.random.default_rng(ball_seq)
+            centres = modes if modes is not None and len(modes) > 1 else [start]
+            share = [len(range(i, n_walkers, len(centres))) for i in range(len(centres))]
+            parts = [
+                initial_ball(c, covariance, bounds, k, ball_rng, scale=ball_scale, log_prob=log_prob)
+                for c, k in zip(centres, share)
+            ]
+            pos = np.concatenate([p for p, _ in parts])
+            note = parts[0][1]
+            if len(centres) > 1:
+                notes.append(
+                    f"the walkers start around {len(centres)} distinct least-squares solutions, with "
+                    "differential-evolution moves (the posterior may have several modes)"
+                )
             if note:
                 notes.append(note)
             rstate = np.random.RandomState(np.random.MT19937(walk_seq)).get_state()
@@ -313,7 +337,7 @@ def sample(
     force=False,
     order_by="flux",
     progress=None,
-    starts=1,
+    starts="auto",
     frequency=None,
     redshift=0.0,
     data_path=None,
@@ -351,6 +375,7 @@ def sample(
             "method": "likelihood marginalised over the gains of each interval (Laplace approximation)",
         }
     start = cov = None
+    centres, best_errors = None, None
     if resume:
         if chain_path is not None and os.path.exists(chain_path):
             stored = chain_info(chain_path)["meta"]
@@ -374,11 +399,14 @@ def sample(
         stat = result.statistic
         fixed, notices = list(result.fixed_by_fitter), list(result.notices)
         start, cov = np.asarray(result.values, float), np.asarray(result.covariance, float)
+        centres, best_errors = solution_centres(result), np.asarray(result.errors, float)
         extra["least_squares"] = {
             "values": dict(zip(result.names, map(float, result.values))),
             "errors": dict(zip(result.names, map(float, result.errors))),
             "chi2": float(result.chi2),
             "dof": int(result.dof),
+            "starts": int(result.starts),
+            "seed": int(seed),
         }
         error_scale = 1.0
         if rescale_errors and result.dof > 0 and result.chi2 > 0:
@@ -426,6 +454,7 @@ def sample(
         progress=progress,
         meta=meta,
         ball_scale=ball_scale,
+        modes=centres,
     )
     post = summarize_chain(
         chain,
@@ -440,4 +469,67 @@ def sample(
         movable=fixed,
     )
     post.notes = list(notices) + post.notes
+    if centres is not None and len(centres) > 1:
+        found = posterior_modes(work, post, centres, best_errors, fixed)
+        post.extra["modes"] = found
+        heavy = [m for m in found if m["weight"] >= MODE_WEIGHT]
+        if len(heavy) > 1:
+            post.notes.insert(
+                0,
+                f"the posterior has {len(heavy)} modes (weights "
+                + ", ".join(f"{m['weight']:.2f}" for m in heavy)
+                + "): the medians and intervals above mix them; see 'modes' for each one's weight and medians "
+                "(walkers seldom cross between well-separated modes: the weights follow where they started "
+                "more than the posterior; the sampler cannot weigh such modes)",
+            )
     return post
+
+
+#: a mode is reported as one when it holds at least this fraction of the samples
+MODE_WEIGHT = 0.05
+
+
+def solution_centres(result):
+    """The best fit and every other distinct solution within the reliability rule
+    (:func:`uvfit.infer.solutions.errors_reliable`), as vectors of the free parameters; None when
+    the fit has one solution that counts."""
+    from ..solutions import delta_chi2_limit
+
+    if getattr(result, "errors_reliable", True):
+        return None
+    limit = delta_chi2_limit(len(result.names))
+    out = [np.asarray(result.values, float)]
+    for sol in result.solutions[1:]:
+        if sol["delta_chi2"] < limit:
+            out.append(np.array([sol["parameters"][n] for n in result.names], float))
+    return out if len(out) > 1 else None
+
+
+def posterior_modes(model, post, centres, errors, movable=()):
+    """Each sample assigned to the nearest centre (canonical labels; distance in the best fit's
+    errors, angles on their circle): [{"weight", "median": {name: value}, "n_samples"}]."""
+    from ..solutions import _scale, canonical
+
+    names = list(post.names)
+    samples = np.asarray(post.samples, float)
+    c = canonical(model, np.asarray(centres, float), movable)
+    scale = _scale(c[0], errors)
+    periods = model.periods()
+    period = np.array([periods.get(n, 0.0) for n in names], float)
+    d = samples[:, None, :] - c[None, :, :]
+    circ = period > 0
+    d[..., circ] = (d[..., circ] + period[circ] / 2) % period[circ] - period[circ] / 2
+    nearest = np.argmin(np.sum((d / scale) ** 2, axis=2), axis=1)
+    out = []
+    for j in range(len(c)):
+        pick = samples[nearest == j]
+        if pick.shape[0] == 0:
+            continue
+        out.append(
+            {
+                "weight": float(pick.shape[0] / samples.shape[0]),
+                "n_samples": int(pick.shape[0]),
+                "median": {n: float(v) for n, v in zip(names, np.median(pick, axis=0))},
+            }
+        )
+    return sorted(out, key=lambda m: -m["weight"])

@@ -61,7 +61,7 @@ def test_compare_without_bootstrap_uses_information_criteria():
     vs = simulate(one, n=100, sigma=0.05, seed=2)
     out = compare(vs, [one, two], names=["one", "two"])
     assert out["models"][1]["false_alarm_probability"] is None
-    assert "BIC prefers" in out["verdict"] and "--bootstrap" in out["verdict"]
+    assert "BIC prefers" in out["verdict"] and "bootstrap simulations" in out["verdict"]
     # same seed, same answer
     a = compare(vs, [one, two], bootstrap=5, seed=3)
     b = compare(vs, [one, two], bootstrap=5, seed=3)

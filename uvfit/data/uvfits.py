@@ -74,7 +74,7 @@ def _to_sky_convention(u, v, w, vis):
     a2. So the mapping negates u, v and w and keeps the visibility as stored; station1, station2
     are the file's (a1, a2).
 
-    Evidence (measured on the 3C 279 files in ../shared/data/3c279, see tests/test_data_3c279.py):
+    Evidence (measured on the 3C 279 files in tests/data/3c279, see tests/test_data_3c279.py):
     - geometry: the stored UU VV of every group checked equal minus TMS eq. 4.1 applied to
       x(a2) - x(a1) from the antenna table (agreement to ~1e-5 relative);
     - sky: a closure-phase fit of two circular Gaussians with the project's kernel places the

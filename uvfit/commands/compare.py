@@ -98,6 +98,8 @@ def command(
     if len(models) < 2:
         raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
     closure = pop_closure_options(kwargs)
+    with as_options():  # refused before any work, naming the option
+        tasks.closure_options(mode, **closure)
     selection = pop_selection(kwargs)
     check_outputs({"--json": json_out}, {"the data": data, **{f"model {m}": m for m in models}}, force)
     options = dict(

@@ -149,6 +149,8 @@ def command(
     from ..outputs import atomic_write, write_json
 
     closure = pop_closure_options(kwargs)
+    with as_options():  # refused before any work, naming the option
+        tasks.closure_options(mode, **closure)
     selection = pop_selection(kwargs)
     inputs = {f"data file {k + 1}": d for k, d in enumerate(data)}
     data = data[0] if len(data) == 1 else list(data)

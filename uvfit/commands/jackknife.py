@@ -71,6 +71,8 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
     from ..outputs import check_writable, write_json
 
     closure = pop_closure_options(kwargs)
+    with as_options():  # refused before any work, naming the option
+        tasks.closure_options(mode, **closure)
     selection = pop_selection(kwargs)
     gains = pop_gains(kwargs)
     if json_out:

@@ -83,6 +83,8 @@ def command(
     from ..show.profile_plot import write_profile_plot
 
     closure = pop_closure_options(kwargs)
+    with as_options():  # refused before any work, naming the option
+        tasks.closure_options(mode, **closure)
     selection = pop_selection(kwargs)
     for path in (json_out, plot_out):
         if path:

@@ -245,7 +245,7 @@ def low_snr_pulls(draws=DRAWS, **options):
     for seed in range(draws):
         vs = scan_vset(double(), n_stations=8, n_scans=12, per_scan=30, sigma=LOW_SIGMA, seed=seed)
         try:
-            res = fit(make_statistic("closure", vs, double(), **options))
+            res = fit(make_statistic("closure", vs, double(), **options), starts=1)  # start at the truth
         except uvfit.UvfitError:
             continue
         made += 1

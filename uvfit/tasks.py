@@ -550,6 +550,7 @@ def compare(
     snr_cut: Optional[float] = None,
     closure_average: Union[str, float, None] = None,
     scan_gap: Optional[float] = None,
+    procs: int = 1,
 ) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
@@ -569,6 +570,8 @@ def compare(
         Data selection; recorded as given.
     progress : callable, optional
         Called with 1 after each bootstrap simulation.
+    procs : int
+        Processes for the starts and the bootstrap simulations (the numbers do not depend on it).
     data_path : str, optional
         The data file recorded (default: ``data`` when it is a path).
     rescale_errors, global_search : bool
@@ -624,6 +627,7 @@ def compare(
         global_search=global_search,
         reference=reference,
         options={**_gain_options(gains, gain_interval, gain_prior), **closure},
+        procs=procs,
     )
     if closure:
         out["closure_options"] = closure

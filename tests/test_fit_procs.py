@@ -9,7 +9,7 @@ import json
 
 import numpy as np
 
-from tests.helpers.fit_sim import simulate
+from tests.helpers.fit_sim import double, simulate
 from uvfit.infer.compare import compare
 from uvfit.infer.parallel import run_pieces
 from uvfit.sky.model import SkyModel
@@ -47,3 +47,19 @@ def test_bootstrap_numbers_do_not_depend_on_procs():
     b = compare(vs, [one, two], bootstrap=6, seed=2, starts=2, procs=2)
     _same(a, b)
     assert np.isfinite(a["models"][1]["false_alarm_probability"])
+
+
+def _double_fit_record(procs, **extra):
+    from uvfit import tasks
+
+    model = double()
+    vs = simulate(model, n=200, sigma=0.02, seed=5)
+    return tasks.fit(vs, model, starts="auto", seed=3, procs=procs, **extra).to_dict()
+
+
+def test_starts_jackknife_and_profile_do_not_depend_on_procs():
+    extra = dict(jackknife="station", profile="knot.flux")
+    a = _double_fit_record(1, **extra)
+    b = _double_fit_record(2, **extra)
+    _same(a, b)
+    assert a["starts"] >= 8 and len(a["jackknife"]["groups"]) == 5 and len(a["profile"]["knot.flux"]["grid"]) >= 21

@@ -23,9 +23,11 @@ from .lsq import aic, bic, fit
 from .parallel import check_procs, run_pieces
 
 
-def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False, options=None):
+def _fit_model(
+    vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False, options=None, procs=1
+):
     stat = make_statistic(mode, vset, model.copy(), systematic=systematic, **(options or {}))
-    return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search)
+    return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search, procs=procs)
 
 
 def _refit_on(result, vset_sim, seed, starts):
@@ -195,6 +197,7 @@ def compare(
                     rescale_errors=rescale_errors,
                     global_search=global_search,
                     options=options,
+                    procs=procs,
                 )
             )
         except FitError as exc:

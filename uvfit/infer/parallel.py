@@ -49,21 +49,23 @@ def run_pieces(
     shared: Any = None,
     procs: int = 1,
     progress: Optional[Callable[[int], None]] = None,
+    sizes: Optional[Sequence[int]] = None,
 ) -> List[Any]:
     """``[func(shared, item) for item in items]``, in ``procs`` processes when more than one.
 
     ``func`` must be a module-level function (it is sent to the processes by name). ``progress``:
-    called with 1 as each piece finishes (in the order they finish). With ``procs`` 1, or a
-    single item, everything runs in this process.
+    called with 1 (or ``sizes[j]`` for piece j) as each piece finishes, in the order they finish.
+    With ``procs`` 1, or a single item, everything runs in this process.
     """
     items = list(items)
+    steps = [1] * len(items) if sizes is None else [int(n) for n in sizes]
     procs = min(check_procs(procs), max(len(items), 1))
     if procs <= 1:
         out = []
-        for item in items:
+        for item, step in zip(items, steps):
             out.append(func(shared, item))
             if progress:
-                progress(1)
+                progress(step)
         return out
     import multiprocessing
 
@@ -75,7 +77,8 @@ def run_pieces(
         from concurrent.futures import as_completed
 
         for fut in as_completed(futures):
-            results[futures[fut]] = fut.result()
+            j = futures[fut]
+            results[j] = fut.result()
             if progress:
-                progress(1)
+                progress(steps[j])
     return results

@@ -63,3 +63,34 @@ def test_starts_jackknife_and_profile_do_not_depend_on_procs():
     b = _double_fit_record(2, **extra)
     _same(a, b)
     assert a["starts"] >= 8 and len(a["jackknife"]["groups"]) == 5 and len(a["profile"]["knot.flux"]["grid"]) >= 21
+
+
+def test_forecast_trials_do_not_depend_on_procs(tmp_path):
+    import os
+
+    import uvfit
+    from tests.helpers.invented import component, model_toml
+    from uvfit.data.select import parse_time
+    from uvfit.sim.array import load_array
+    from uvfit.sim.forecast import forecast
+    from uvfit.sim.observe import Observation
+
+    (tmp_path / "s.toml").write_text(model_toml(component("core", 1.0, fwhm=40.0)))
+    (tmp_path / "d.toml").write_text(
+        model_toml(component("core", 1.0, fwhm=40.0), component("knot", 0.4, east=-60.0, north=-80.0, fwhm=50.0))
+    )
+    single, pair = uvfit.load_model(tmp_path / "s.toml"), uvfit.load_model(tmp_path / "d.toml")
+    arr = load_array(os.path.join(os.path.dirname(__file__), "..", "examples", "planning", "array.toml"))
+    obs = Observation(
+        ra_deg=210.547,
+        dec_deg=38.753,
+        start=parse_time("2027-04-10T03:00"),
+        duration_s=3600.0,
+        integration_s=600.0,
+        frequency_hz=86e9,
+    )
+    ticks = []
+    a = forecast(arr, pair, [single], obs, trials=4, seed=3, alt_names=["single"], procs=1)
+    b = forecast(arr, pair, [single], obs, trials=4, seed=3, alt_names=["single"], procs=2, progress=ticks.append)
+    _same(a, b)
+    assert len(ticks) == 4 and len(a["per_trial"]) == 4

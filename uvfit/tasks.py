@@ -1107,6 +1107,7 @@ def forecast(
     snr_cut: Optional[float] = None,
     closure_average: Union[str, float, None] = None,
     scan_gap: Optional[float] = None,
+    procs: int = 1,
 ) -> ForecastReport:
     """Repeated simulations and fits: can the array tell the true model from the alternatives?
 
@@ -1134,6 +1135,8 @@ def forecast(
         Labels (default: the files' stems, or true, alt1, ...).
     progress : callable, optional
         Called with 1 after each trial.
+    procs : int
+        Processes for the trials (each seeded by its own seed: the numbers do not depend on it).
     snr_cut, closure_average, scan_gap : optional
         Closure options of the fits (see :func:`closure_options`).
 
@@ -1192,6 +1195,7 @@ def forecast(
         alt_names=alt_names,
         progress=progress,
         options={**_gain_options(gains, gain_interval, gain_prior), **closure},
+        procs=check_procs(procs),
         **corruption,
     )
     if closure:

@@ -29,8 +29,8 @@ import numpy as np
 
 from .. import __version__
 from ..errors import FitError, UvfitError
-from ..labels import FORECAST_CAUTIONS
 from ..infer.parallel import run_pieces
+from ..labels import FORECAST_CAUTIONS
 from .observe import observe, plan
 
 STRUCTURE_SUFFIXES = (".separation", ".position_angle", ".flux_ratio", ".size", ".axis_ratio")

@@ -94,3 +94,29 @@ def test_forecast_trials_do_not_depend_on_procs(tmp_path):
     b = forecast(arr, pair, [single], obs, trials=4, seed=3, alt_names=["single"], procs=2, progress=ticks.append)
     _same(a, b)
     assert len(ticks) == 4 and len(a["per_trial"]) == 4
+
+
+def test_commands_give_the_same_json_with_procs(tmp_path):
+    # through the command line (click's runner): the JSON files of --procs 1 and 2 are equal bytes
+    from click.testing import CliRunner
+
+    import uvfit
+    from uvfit.cli import cli
+
+    truth = double()
+    uvfit.write(simulate(truth, n=150, sigma=0.03, seed=8), tmp_path / "data.uvfits")
+    truth.save(tmp_path / "two.toml")
+    SkyModel.build(
+        [{"name": "core", "shape": "gaussian", "flux": 1.2, "east": 0.0, "north": 0.0, "fwhm": 0.4}], angular_unit="mas"
+    ).save(tmp_path / "one.toml")
+    inputs = [str(tmp_path / n) for n in ("data.uvfits", "one.toml", "two.toml")]
+    outs = []
+    for procs in (1, 2):
+        js = tmp_path / f"cmp{procs}.json"
+        args = ["compare", *inputs, "--bootstrap", "3", "--starts", "2", "--procs", str(procs), "--json", str(js)]
+        res = CliRunner().invoke(cli, args)
+        assert res.exit_code == 0, res.output
+        outs.append(js.read_bytes())
+    assert outs[0] == outs[1]
+    bad = CliRunner().invoke(cli, ["compare", *inputs, "--procs", "0"])
+    assert bad.exit_code == 2 and "--procs" in bad.output

@@ -217,8 +217,9 @@ def run_demo(
     ``echo(text)`` prints a step's human output; ``progressbar(length, label)`` returns a context
     manager with ``update(n)`` (a click progress bar in the command; nothing by default).
     ``seed`` seeds every random step (fits, bootstrap, sampler) and is recorded in each output.
-    ``procs``: processes for the starts, the bootstrap simulations and the walkers (default: every
-    core, ``os.cpu_count()``); the numbers do not depend on it.
+    ``procs``: processes for the starts and the bootstrap simulations (default: every core,
+    ``os.cpu_count()``); the numbers do not depend on it. The chain stays in one process: a step
+    of the demo's walkers costs less than sending them to other processes.
     """
     from .infer.parallel import check_procs
 

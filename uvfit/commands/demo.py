@@ -39,7 +39,7 @@ from ._common import as_options, seed_option
     type=click.IntRange(min=1),
     default=None,
     metavar="N",
-    help="Processes for the starts, the bootstrap simulations and the walkers (default: every core). "
+    help="Processes for the starts and the bootstrap simulations (default: every core). "
     "The numbers do not depend on N.",
 )
 @click.option(

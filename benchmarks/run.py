@@ -29,6 +29,13 @@ Invented data: random (u, v) within 1e9 wavelengths, models of a few milliarcsec
    emcee) on the complex-mode log-posterior of the two-component model, divided by (walkers x one
    model evaluation on the same rows), at 1e4 and 1e5 visibilities (--quick: 1e4); medians of
    step-by-step times (the machine may be shared), the ratio of minima beside it.
+5. parallel_speedup: wall time with one process divided by the time with two (``procs``), for
+   the pieces of work spread over processes: the bootstrap simulations of a comparison, the
+   starts of a fit, the leave-one-station-out refits, a profile grid and forecast trials (two
+   Gaussians against one on invented data; each workload one to a few seconds in one process).
+   The numbers of both runs are compared (they must be identical); the ratio of the summed
+   times is reported, each workload's beside it. Meaningful only on an otherwise idle machine
+   with at least two cores (the machine's load average is recorded).
 """
 
 import argparse
@@ -58,6 +65,7 @@ GOALS = {
     "scaling_flatness": ("<=", 1.3),
     "scaling_memory": ("<=", 4.0),
     "sampler_overhead": ("<=", 1.2),
+    "parallel_speedup": (">=", 1.7),
 }
 
 
@@ -385,6 +393,101 @@ def sampler_overhead(quick):
     }
 
 
+# ------------------------------------------------------------------------------------------ 5
+def _stations_set(model, n, sigma, seed):
+    """Invented rows on the baselines of six stations (so that leaving one out is possible)."""
+    u, v = uv_rows(n, seed)
+    rng = np.random.default_rng(seed + 1)
+    vis = model.visibilities(u, v) + sigma * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
+    names = ["AA", "BB", "CC", "DD", "EE", "FF"]
+    pairs = [(a, b) for i, a in enumerate(names) for b in names[i + 1 :]]
+    k = np.arange(n) % len(pairs)
+    return VisibilitySet(
+        u=u,
+        v=v,
+        w=None,
+        time=60000.0 + np.arange(n) * 1e-5,
+        frequency=230e9,
+        station1=[pairs[j][0] for j in k],
+        station2=[pairs[j][1] for j in k],
+        vis=vis,
+        sigma=np.full(n, sigma),
+    )
+
+
+def parallel_speedup(quick):
+    import json
+
+    from uvfit.data.select import parse_time
+    from uvfit.infer.compare import compare
+    from uvfit.infer.jackknife import jackknife
+    from uvfit.infer.lsq import fit
+    from uvfit.infer.profile import profile
+    from uvfit.sim.array import load_array
+    from uvfit.sim.forecast import forecast
+    from uvfit.sim.observe import Observation
+    from uvfit.stats.modes import make_statistic
+
+    two = two_gaussians()
+    one = SkyModel.build(
+        [{"name": "core", "shape": "gaussian", "flux": 1.4, "east": 0.0, "north": 0.0, "fwhm": 0.4}], angular_unit="mas"
+    )
+    n = 10000 if quick else 20000
+    vs = _stations_set(two, n, 0.05, 7)
+    stat = make_statistic("complex", vs, two.copy())
+    best = fit(stat, starts=1, seed=0)
+    array = load_array(
+        os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "examples", "planning", "array.toml")
+    )
+    obs = Observation(
+        ra_deg=210.547,
+        dec_deg=38.753,
+        start=parse_time("2027-04-10T03:00"),
+        duration_s=3600.0,
+        integration_s=120.0,
+        frequency_hz=86e9,
+    )
+    work = {
+        "bootstrap": lambda p: compare(vs, [one, two], bootstrap=12 if quick else 32, seed=1, starts=1, procs=p),
+        "starts": lambda p: fit(make_statistic("complex", vs, two.copy()), starts=16 if quick else 32, seed=2, procs=p),
+        "jackknife": lambda p: jackknife(stat, best, by="station", seed=3, starts=2 if quick else 4, procs=p),
+        "profile": lambda p: profile(
+            stat, "jet.flux", points=12 if quick else 30, starts=2, seed=4, best=best, procs=p
+        ),
+        "forecast": lambda p: forecast(array, two, [one], obs, trials=8 if quick else 24, seed=5, procs=p),
+    }
+
+    def numbers(out):
+        if not isinstance(out, dict):  # a fit result
+            out = {"values": list(map(float, out.values)), "chi2": out.chi2, "starts": out.starts}
+        return json.dumps(out, sort_keys=True, default=str)
+
+    rows = {}
+    for key, job in work.items():
+        t = {}
+        got = {}
+        job(1)  # warm-up: first-use costs (caches, compiled kernels) out of the timing
+        for p in (1, 2, 2, 1) if not quick else (1, 2):  # interleaved: both see the same load
+            t0 = time.perf_counter()
+            got[p] = numbers(job(p))
+            t[p] = min(t.get(p, math.inf), time.perf_counter() - t0)
+        rows[key] = {
+            "one_process_s": t[1],
+            "two_processes_s": t[2],
+            "ratio": t[1] / t[2],
+            "same_numbers": got[1] == got[2],
+        }
+    total1 = sum(r["one_process_s"] for r in rows.values())
+    total2 = sum(r["two_processes_s"] for r in rows.values())
+    return {
+        "by_work": rows,
+        "ratio": total1 / total2,
+        "rows": n,
+        "same_numbers": all(r["same_numbers"] for r in rows.values()),
+        "definition": "sum over the workloads of the best wall time with procs 1 / the same with procs 2",
+    }
+
+
 def machine():
     cpu = platform.processor()
     try:
@@ -430,7 +533,7 @@ def main(argv=None):
         default=None,
         help="visibility engine (default: UVFIT_ENGINE, else numba when available)",
     )
-    ap.add_argument("--only", default=None, help="comma-separated subset: trig,fit,scaling,sampler")
+    ap.add_argument("--only", default=None, help="comma-separated subset: trig,fit,scaling,sampler,parallel")
     ap.add_argument(
         "--threaded-blas",
         action="store_true",
@@ -446,7 +549,7 @@ def main(argv=None):
         except UvfitError as exc:
             print(f"error: {exc}", file=sys.stderr)
             return 2
-    only = set((args.only or "trig,fit,scaling,sampler").split(","))
+    only = set((args.only or "trig,fit,scaling,sampler,parallel").split(","))
     from uvfit._blas import single_threaded
 
     with contextlib.nullcontext() if args.threaded_blas else single_threaded():
@@ -527,6 +630,14 @@ def measure(args, only):
                 f"     {n:>9} rows: {x['walkers']} walkers, step {x['step_s_median'] * 1e3:.2f} ms "
                 f"(median), model {x['model_evaluation_s_median'] * 1e6:.1f} us (median), ratio "
                 f"{x['ratio']:.3f}; of the minima {x['ratio_of_minima']:.3f}"
+            )
+    if "parallel" in only:
+        res["parallel_speedup"] = r = parallel_speedup(args.quick)
+        print("5. parallel: 1 / 2 procs    " + verdict("parallel_speedup", r["ratio"]))
+        for key, x in r["by_work"].items():
+            print(
+                f"     {key:>9}: {x['one_process_s']:.2f} s in one process, {x['two_processes_s']:.2f} s in two, "
+                f"ratio {x['ratio']:.2f}; same numbers: {x['same_numbers']}"
             )
     res["elapsed_s"] = time.perf_counter() - t0
     res["machine"]["load_average_end"] = list(os.getloadavg()) if hasattr(os, "getloadavg") else None

@@ -203,14 +203,27 @@ def headline(fit_two, fit_one, comparison, posterior=None):
 
 
 def run_demo(
-    out_dir, seed=0, bootstrap=DEFAULT_BOOTSTRAP, force=False, max_steps=DEFAULT_MAX_STEPS, echo=print, progressbar=None
+    out_dir,
+    seed=0,
+    bootstrap=DEFAULT_BOOTSTRAP,
+    force=False,
+    max_steps=DEFAULT_MAX_STEPS,
+    echo=print,
+    progressbar=None,
+    procs=None,
 ):
     """Run the whole demo into the folder ``out_dir``; returns {"headline", "numbers", "outputs"}.
 
     ``echo(text)`` prints a step's human output; ``progressbar(length, label)`` returns a context
     manager with ``update(n)`` (a click progress bar in the command; nothing by default).
     ``seed`` seeds every random step (fits, bootstrap, sampler) and is recorded in each output.
+    ``procs``: processes for the starts and the bootstrap simulations (default: every core,
+    ``os.cpu_count()``); the numbers do not depend on it. The chain stays in one process: a step
+    of the demo's walkers costs less than sending them to other processes.
     """
+    from .infer.parallel import check_procs
+
+    procs = check_procs((os.cpu_count() or 1) if procs is None else procs)
     from ._blas import single_threaded
 
     if int(bootstrap) < 0:
@@ -220,10 +233,10 @@ def run_demo(
     out_dir = check_out_dir(out_dir, force)
     bar = progressbar or _NoBar
     with single_threaded():
-        return _run(out_dir, int(seed), int(bootstrap), bool(force), int(max_steps), echo, bar)
+        return _run(out_dir, int(seed), int(bootstrap), bool(force), int(max_steps), echo, bar, procs)
 
 
-def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
+def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar, procs=1):
     from . import tasks
     from .outputs import atomic_write, atomic_write_with, write_json
     from .show import readback, style
@@ -264,7 +277,9 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
     fits = {}
     for key, label in (("one", "one component: a circular Gaussian"), ("two", "two components: a double of points")):
         step(f"2{'ab'[key == 'two']}. least-squares fit, {label} ({MODEL_FILES[key]}; uvfit fit)")
-        out = tasks.fit(vset, model_paths[key], mode=MODE, seed=seed, data_path=data_path, selection={}).to_dict()
+        out = tasks.fit(
+            vset, model_paths[key], mode=MODE, seed=seed, data_path=data_path, selection={}, procs=procs
+        ).to_dict()
         write_json(path(f"fit_{key}"), out, force=force)
         fits[key] = _roundtrip(out)
         echo(show_text.fit_text(fits[key]))
@@ -281,6 +296,7 @@ def _run(out_dir, seed, bootstrap, force, max_steps, echo, bar):
             progress=b.update,
             data_path=data_path,
             selection={},
+            procs=procs,
         ).to_dict()
     write_json(path("compare"), cmp, force=force)
     cmp = _roundtrip(cmp)

@@ -21,6 +21,7 @@ from typing import Any, Callable, Iterable, Optional, Sequence, TypeGuard, Union
 from .data.select import parse_time, read_selected
 from .data.visset import VisibilitySet
 from .errors import UvfitError
+from .infer.parallel import check_procs
 from .sky.model import SkyModel
 
 #: a visibility set, or the path of a visibility file
@@ -207,6 +208,7 @@ def fit(
     snr_cut: Optional[float] = None,
     closure_average: Union[str, float, None] = None,
     scan_gap: Optional[float] = None,
+    procs: int = 1,
 ) -> FitReport:
     """Least-squares fit of ``model`` to ``data``, with errors and derived quantities.
 
@@ -259,6 +261,9 @@ def fit(
         Fractional rms of the amplitude gains, e.g. ``"AA=0.05,*=0.1"`` (flat where not given).
     snr_cut, closure_average, scan_gap : optional
         Closure options of the modes that build closures (see :func:`closure_options`).
+    procs : int
+        Processes for the starts, the jackknife refits and the profile grid (the numbers do not
+        depend on it).
 
     Returns
     -------
@@ -309,6 +314,7 @@ def fit(
         max_evaluations=max_evaluations,
         progress=progress,
         return_result=True,
+        procs=check_procs(procs),
         **_gain_options(gains, gain_interval, gain_prior),
         **closure,
     )
@@ -332,7 +338,7 @@ def fit(
     from .infer.fluxscale import annotate as annotate_flux_scale
 
     annotate_flux_scale(out, result)
-    _fit_extras(out, result, profile, jackknife, seed, redshift)
+    _fit_extras(out, result, profile, jackknife, seed, redshift, procs=procs)
     if labels is not None:
         from .infer.joint import per_file_chi2
 
@@ -550,6 +556,7 @@ def compare(
     snr_cut: Optional[float] = None,
     closure_average: Union[str, float, None] = None,
     scan_gap: Optional[float] = None,
+    procs: int = 1,
 ) -> CompareReport:
     """Fit two or more models to the same data and say whether the richer ones are required.
 
@@ -569,6 +576,8 @@ def compare(
         Data selection; recorded as given.
     progress : callable, optional
         Called with 1 after each bootstrap simulation.
+    procs : int
+        Processes for the starts and the bootstrap simulations (the numbers do not depend on it).
     data_path : str, optional
         The data file recorded (default: ``data`` when it is a path).
     rescale_errors, global_search : bool
@@ -624,6 +633,7 @@ def compare(
         global_search=global_search,
         reference=reference,
         options={**_gain_options(gains, gain_interval, gain_prior), **closure},
+        procs=procs,
     )
     if closure:
         out["closure_options"] = closure
@@ -1097,6 +1107,7 @@ def forecast(
     snr_cut: Optional[float] = None,
     closure_average: Union[str, float, None] = None,
     scan_gap: Optional[float] = None,
+    procs: int = 1,
 ) -> ForecastReport:
     """Repeated simulations and fits: can the array tell the true model from the alternatives?
 
@@ -1124,6 +1135,8 @@ def forecast(
         Labels (default: the files' stems, or true, alt1, ...).
     progress : callable, optional
         Called with 1 after each trial.
+    procs : int
+        Processes for the trials (each seeded by its own seed: the numbers do not depend on it).
     snr_cut, closure_average, scan_gap : optional
         Closure options of the fits (see :func:`closure_options`).
 
@@ -1182,6 +1195,7 @@ def forecast(
         alt_names=alt_names,
         progress=progress,
         options={**_gain_options(gains, gain_interval, gain_prior), **closure},
+        procs=check_procs(procs),
         **corruption,
     )
     if closure:
@@ -1193,7 +1207,13 @@ def forecast(
 
 
 def _fit_extras(
-    out: dict, result: Any, profile: Optional[str], jackknife: Optional[str], seed: int, redshift: float
+    out: dict,
+    result: Any,
+    profile: Optional[str],
+    jackknife: Optional[str],
+    seed: int,
+    redshift: float,
+    procs: int = 1,
 ) -> None:
     """Add ``profile`` ({name: profile dict}) and ``jackknife`` to a fit's record, with one
     notice each."""
@@ -1201,7 +1221,7 @@ def _fit_extras(
         from .infer.profile import profile as run_profile
         from .infer.profile import profile_note
 
-        prof = run_profile(result.statistic, profile, seed=seed, best=result, starts=3)
+        prof = run_profile(result.statistic, profile, seed=seed, best=result, starts=3, procs=procs)
         out["profile"] = {profile: prof}
         out["notices"].append(profile_note(prof))
     if jackknife:
@@ -1210,12 +1230,12 @@ def _fit_extras(
 
         if jackknife not in GROUPINGS:
             raise UvfitError(f"jackknife must be one of {', '.join(GROUPINGS)} (got {jackknife!r})")
-        jk = run_jackknife(result.statistic, result, by=jackknife, seed=seed, redshift=redshift)
+        jk = run_jackknife(result.statistic, result, by=jackknife, seed=seed, redshift=redshift, procs=procs)
         out["jackknife"] = jk
         out["notices"].extend(f"jackknife by {jackknife}: {line}" for line in jk["summary"])
 
 
-def _fit_for(data, model, mode, systematic, seed, selection, options):
+def _fit_for(data, model, mode, systematic, seed, selection, options, procs=1):
     from .infer.lsq import fit as lsq_fit
     from .stats.modes import make_statistic
 
@@ -1223,7 +1243,7 @@ def _fit_for(data, model, mode, systematic, seed, selection, options):
     vset, notes = load_data(data, selection)
     options = _with_site(dict(options or {}), mode, selection)
     stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **options)
-    return stat, lsq_fit(stat, starts="auto", seed=seed), notes
+    return stat, lsq_fit(stat, starts="auto", seed=seed, procs=procs), notes
 
 
 @dataclass
@@ -1260,13 +1280,15 @@ def profile(
     selection: Optional[dict] = None,
     progress: Progress = None,
     data_path: Optional[str] = None,
+    procs: int = 1,
     **options,
 ) -> ProfileReport:
     """Profile likelihood of ``parameter`` (``component.parameter``): chi2 minimised over every
     other free parameter at ``points`` values in ``value_range`` (default: best fit +/- 5 formal
     errors inside the bounds); intervals at delta chi2 = 1 and 3.84 (Wilks 1938; Venzon &
     Moolgavkar 1988). The fit first uses the "auto" starts of :func:`fit`; ``starts``: starts per grid
-    point besides the warm start.
+    point besides the warm start. ``procs``: processes for the starts and the grid (the numbers do
+    not depend on it).
     See :func:`uvfit.infer.profile.profile` for the keys of ``to_dict()``.
     """
     from .infer.profile import MAX_POINTS
@@ -1279,9 +1301,18 @@ def profile(
             "a profile needs a few tens of grid values; narrow the range for detail",
         )
     _check_at_least("starts", starts, 1)
-    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options)
+    procs = check_procs(procs)
+    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options, procs=procs)
     out = run_profile(
-        stat, parameter, value_range=value_range, points=points, starts=starts, seed=seed, best=best, progress=progress
+        stat,
+        parameter,
+        value_range=value_range,
+        points=points,
+        starts=starts,
+        seed=seed,
+        best=best,
+        progress=progress,
+        procs=procs,
     )
     out.update(
         {
@@ -1339,20 +1370,23 @@ def jackknife(
     selection: Optional[dict] = None,
     progress: Progress = None,
     data_path: Optional[str] = None,
+    procs: int = 1,
     **options,
 ) -> JackknifeReport:
     """Refit with each station, scan or channel (``by``) left out; the jackknife error of every
     parameter and derived quantity beside the formal one (Efron & Tibshirani 1993, ch. 11). See
     :func:`uvfit.infer.jackknife.jackknife` for the keys of ``to_dict()``. The fit of all the data
     uses the "auto" starts of :func:`fit` (``fit_starts`` in the JSON); each refit starts from its
-    best values, plus ``starts - 1`` random starts."""
+    best values, plus ``starts - 1`` random starts. ``procs``: processes for the starts and the
+    refits (the numbers do not depend on it)."""
     from .infer.jackknife import GROUPINGS
     from .infer.jackknife import jackknife as run_jackknife
 
     if by not in GROUPINGS:
         raise UvfitError(f"by must be one of {', '.join(GROUPINGS)} (got {by!r})")
-    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options)
-    out = run_jackknife(stat, best, by=by, redshift=redshift, seed=seed, starts=starts, progress=progress)
+    procs = check_procs(procs)
+    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options, procs=procs)
+    out = run_jackknife(stat, best, by=by, redshift=redshift, seed=seed, starts=starts, progress=progress, procs=procs)
     out.update(
         {
             "mode": mode,

@@ -307,6 +307,18 @@ def _seed(ctx, param, value):
     return value
 
 
+def procs_option(help_text):
+    """The ``--procs`` option: processes for independent pieces of work (numbers unchanged)."""
+    return click.option(
+        "--procs",
+        type=click.IntRange(min=1),
+        default=1,
+        show_default=True,
+        metavar="N",
+        help=help_text + " The numbers do not depend on N.",
+    )
+
+
 def seed_option(func):
     return click.option(
         "--seed",

@@ -16,6 +16,7 @@ from ._common import (
     pop_closure_options,
     pop_gains,
     pop_selection,
+    procs_option,
     progressbar,
     seed_option,
     selection_options,
@@ -66,6 +67,7 @@ from ._common import (
     "--json", "json_out", type=click.Path(dir_okay=False), default=None, help="Write the comparison as JSON here."
 )
 @seed_option
+@procs_option("Run the starts and the bootstrap simulations in N processes.")
 @gain_options
 @force_option
 @closure_options
@@ -82,6 +84,7 @@ def command(
     bootstrap,
     json_out,
     seed,
+    procs,
     force,
     **kwargs,
 ):
@@ -112,6 +115,7 @@ def command(
         rescale_errors=rescale_errors,
         global_search=global_search,
         reference=reference,
+        procs=procs,
         **pop_gains(kwargs),
         **closure,
     )

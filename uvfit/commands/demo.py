@@ -35,9 +35,17 @@ from ._common import as_options, seed_option
     help="Longest MCMC chain (steps per walker); it stops earlier once converged.",
 )
 @click.option(
+    "--procs",
+    type=click.IntRange(min=1),
+    default=None,
+    metavar="N",
+    help="Processes for the starts and the bootstrap simulations (default: every core). "
+    "The numbers do not depend on N.",
+)
+@click.option(
     "--force", is_flag=True, help="Write into an existing non-empty folder, overwriting the demo's files there."
 )
-def command(out_dir, seed, bootstrap, max_steps, force):
+def command(out_dir, seed, bootstrap, max_steps, procs, force):
     """Run the whole job on the demo data: describe, fit one and two components, decide between
     them, sample the posterior, check the closures, write the report.
 
@@ -61,4 +69,5 @@ def command(out_dir, seed, bootstrap, max_steps, force):
         max_steps=max_steps,
         echo=click.echo,
         progressbar=progressbar,
+        procs=procs,
     )

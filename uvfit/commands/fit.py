@@ -16,6 +16,7 @@ from ._common import (
     pop_closure_options,
     pop_gains,
     pop_selection,
+    procs_option,
     progressbar,
     seed_option,
     selection_options,
@@ -112,6 +113,7 @@ from ._common import (
 )
 @closure_options
 @seed_option
+@procs_option("Run the starts (and the --jackknife refits and --profile grid) in N processes.")
 @gain_options
 @force_option
 @selection_options
@@ -131,6 +133,7 @@ def command(
     profile_name,
     jackknife,
     seed,
+    procs,
     force,
     gains_out=None,
     gains_plot=None,
@@ -189,6 +192,7 @@ def command(
         max_evaluations=max_evaluations,
         profile=profile_name,
         jackknife=jackknife,
+        procs=procs,
         **gains,
         **closure,
     )

@@ -12,6 +12,7 @@ from ._common import (
     gain_options,
     pop_closure_options,
     pop_gains,
+    procs_option,
     progressbar,
     seed_option,
     worded,
@@ -42,9 +43,10 @@ from ._observation import observation_options, pop_observation
 )
 @closure_options
 @seed_option
+@procs_option("Run the trials in N processes.")
 @gain_options
 @force_option
-def command(array_file, true_file, alt_files, trials, mode, starts, json_path, seed, force, **kwargs):
+def command(array_file, true_file, alt_files, trials, mode, starts, json_path, seed, procs, force, **kwargs):
     """Simulate MODEL_TRUE --trials times with ARRAY, fit MODEL_TRUE and every MODEL_ALT to each,
     and report how often the true structure is recovered and preferred.
 
@@ -76,6 +78,7 @@ def command(array_file, true_file, alt_files, trials, mode, starts, json_path, s
             seed=seed,
             starts=starts,
             progress=bar.update,
+            procs=procs,
             **gains,
             **closure,
             **corruption,

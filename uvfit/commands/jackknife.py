@@ -13,6 +13,7 @@ from ._common import (
     pop_closure_options,
     pop_gains,
     pop_selection,
+    procs_option,
     seed_option,
     selection_options,
     worded,
@@ -60,10 +61,11 @@ from ._common import (
 )
 @closure_options
 @seed_option
+@procs_option("Run the refits, and the starts, in N processes.")
 @gain_options
 @force_option
 @selection_options
-def command(data, model, by, mode, systematic, starts, redshift, json_out, seed, force, **kwargs):
+def command(data, model, by, mode, systematic, starts, redshift, json_out, seed, procs, force, **kwargs):
     """Refit MODEL to DATA with each station, scan or channel left out, and compare the jackknife
     error of every parameter and derived quantity with the formal error of the full fit. Scans
     come from the data's scan numbers when present, else from gaps in time."""
@@ -88,6 +90,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
             seed=seed,
             redshift=redshift,
             selection=selection,
+            procs=procs,
             **gains,
             **tasks.closure_options(mode, **closure),
         )

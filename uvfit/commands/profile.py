@@ -10,6 +10,7 @@ from ._common import (
     force_option,
     pop_closure_options,
     pop_selection,
+    procs_option,
     progressbar,
     seed_option,
     selection_options,
@@ -70,10 +71,24 @@ from ._common import (
 )
 @closure_options
 @seed_option
+@procs_option("Refit the grid values on either side of the best fit, and the starts, in N processes.")
 @force_option
 @selection_options
 def command(
-    data, model, parameter, value_range, points, mode, systematic, starts, json_out, plot_out, seed, force, **kwargs
+    data,
+    model,
+    parameter,
+    value_range,
+    points,
+    mode,
+    systematic,
+    starts,
+    json_out,
+    plot_out,
+    seed,
+    procs,
+    force,
+    **kwargs,
 ):
     """Profile the chi2 of one parameter of MODEL on DATA: at each value every other free
     parameter is refitted. Prints delta chi2 on the grid and the 68% and 95% intervals
@@ -104,6 +119,7 @@ def command(
                 seed=seed,
                 selection=selection,
                 progress=bar.update,
+                procs=procs,
                 **tasks.closure_options(mode, **closure),
             )
     echo_notes(report.notes)

@@ -20,11 +20,14 @@ from ..labels import COMPARE_CAUTION
 from ..stats.base import effective_sigma
 from ..stats.modes import make_statistic
 from .lsq import aic, bic, fit
+from .parallel import check_procs, run_pieces
 
 
-def _fit_model(vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False, options=None):
+def _fit_model(
+    vset, model, mode, systematic, starts, seed, rescale_errors=False, global_search=False, options=None, procs=1
+):
     stat = make_statistic(mode, vset, model.copy(), systematic=systematic, **(options or {}))
-    return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search)
+    return fit(stat, starts=starts, seed=seed, rescale_errors=rescale_errors, global_search=global_search, procs=procs)
 
 
 def _refit_on(result, vset_sim, seed, starts):
@@ -38,23 +41,33 @@ def _refit_on(result, vset_sim, seed, starts):
     return res.chi2
 
 
-def _bootstrap(s_res, rich, obs, systematic, bootstrap, seed, bootstrap_starts, progress):
+def _bootstrap_trial(shared, trial):
+    """One bootstrap simulation: (chi2 of the simpler refit, {i: chi2 of richer refit i})."""
+    s_res, rich, truth, sigma, seed, bootstrap_starts = shared
+    vs = s_res.statistic.vset
+    rng = np.random.default_rng([int(seed), trial])
+    noise = rng.normal(0.0, sigma) + 1j * rng.normal(0.0, sigma)
+    sim = vs.with_vis(truth + noise, sigma=sigma)
+    c_simple = _refit_on(s_res, sim, seed, bootstrap_starts)
+    return c_simple, {i: _refit_on(res, sim, seed, bootstrap_starts) for i, res in rich.items()}
+
+
+def _bootstrap(s_res, rich, obs, systematic, bootstrap, seed, bootstrap_starts, progress, procs=1):
     """Parametric bootstrap from the fit ``s_res``: for each richer fit ``rich[i]``, how many of
-    ``bootstrap`` simulations reach the observed improvement ``obs[i]``; (exceed, valid, failed)."""
+    ``bootstrap`` simulations reach the observed improvement ``obs[i]``; (exceed, valid, failed).
+    Trial k draws its noise from ``default_rng([seed, k])``, so ``procs`` processes give the same
+    numbers as one."""
     vs = s_res.statistic.vset
     sigma = effective_sigma(vs.sigma, np.abs(vs.vis), systematic)
     truth = np.asarray(s_res.model.visibilities(vs.u, vs.v, frequency=vs.frequency), complex)
     exceed = {i: 0 for i in rich}
     valid = {i: 0 for i in rich}
     n_failed = 0
-    for trial in range(bootstrap):
-        rng = np.random.default_rng([int(seed), trial])
-        noise = rng.normal(0.0, sigma) + 1j * rng.normal(0.0, sigma)
-        sim = vs.with_vis(truth + noise, sigma=sigma)
-        c_simple = _refit_on(s_res, sim, seed, bootstrap_starts)
-        for i, res in rich.items():
-            c_rich = _refit_on(res, sim, seed, bootstrap_starts)
-            d = c_simple - c_rich
+    shared = (s_res, rich, truth, sigma, seed, bootstrap_starts)
+    done = run_pieces(_bootstrap_trial, range(bootstrap), shared, procs=procs, progress=progress)
+    for c_simple, c_rich_all in done:
+        for i in rich:
+            d = c_simple - c_rich_all[i]
             if not np.isfinite(d):
                 n_failed += 1
                 continue
@@ -62,8 +75,6 @@ def _bootstrap(s_res, rich, obs, systematic, bootstrap, seed, bootstrap_starts, 
             # a tiny tolerance so that equal fits (richer model collapsed onto the simpler) tie
             if d >= obs[i] - 1e-9 * max(1.0, abs(obs[i])):
                 exceed[i] += 1
-        if progress:
-            progress(1)
     return exceed, valid, n_failed
 
 
@@ -143,6 +154,7 @@ def compare(
     global_search=False,
     reference=None,
     options=None,
+    procs=1,
 ):
     """Fit every model and compare them; returns a JSON-ready dict (see README, "compare").
     ``options`` go to every model's statistic (closure options such as ``snr_cut``).
@@ -154,7 +166,9 @@ def compare(
     ``reference``: the name of the model every other is judged against (default: the simplest);
     ``pairs`` of the output gives a verdict for each pair (against ``reference``, or each model
     against the next simpler one). ``options`` go to every model's statistic (e.g. ``gains``).
+    ``procs``: processes for the bootstrap simulations and the starts (the numbers do not change).
     """
+    procs = check_procs(procs)
     models = list(models)
     if len(models) < 2:
         raise UvfitError(f"compare needs at least two models (got {len(models)})", "pass two or more models")
@@ -183,6 +197,7 @@ def compare(
                     rescale_errors=rescale_errors,
                     global_search=global_search,
                     options=options,
+                    procs=procs,
                 )
             )
         except FitError as exc:
@@ -231,6 +246,7 @@ def compare(
                 seed,
                 bootstrap_starts,
                 progress if a == simple or not richer else None,
+                procs=procs,
             )
             n_failed += failed if a == simple else 0
             for i in rich:

@@ -16,6 +16,7 @@ import numpy as np
 from ..errors import FitError, UvfitError
 from .derived import derived_periods, quantities_at
 from .lsq import fit
+from .parallel import run_pieces
 
 #: the jackknife error counts as larger than the formal one above this ratio
 FLAG_RATIO = 1.5
@@ -59,12 +60,39 @@ def _wrapped(x, ref, period):
     return x
 
 
-def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=0, starts=1, progress=None):
+def _leave_out(shared, group):
+    """One refit without one group: (entry, values or None, derived quantities or None)."""
+    best, names, frequency, redshift, seed, starts = shared
+    label, keep = group
+    entry = {"left_out": label, "n_rows": int(np.count_nonzero(keep))}
+    try:
+        sub = best.statistic.vset.subset(keep)
+        stat = best.statistic.rebuilt(best.model.copy(), vset=sub)
+        res = fit(stat, starts=starts, seed=seed, strict=False)
+        if list(res.names) != names:
+            raise FitError("the free parameters changed without this group")
+    except (UvfitError, ValueError) as exc:
+        entry["error"] = str(exc)
+        return entry, None, None
+    entry.update(
+        {
+            "chi2": float(res.chi2),
+            "converged": bool(res.converged),
+            "values": dict(zip(names, map(float, res.values))),
+        }
+    )
+    d = quantities_at(res.model, np.asarray(res.values), frequency, redshift)[0]
+    entry["derived"] = {k: float(v) for k, v in d.items() if np.isfinite(v)}
+    return entry, np.asarray(res.values, float), d
+
+
+def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=0, starts=1, progress=None, procs=1):
     """Leave-one-group-out refits of the fit ``best`` (a FitResult of ``statistic``); a dict.
 
     Keys: by, groups_from, groups (per group: left_out, n_rows, chi2, converged, values or error),
     parameters and derived ({name: {value, formal_error, jackknife_error, ratio, larger}}),
     flagged (names whose jackknife error exceeds the formal one by more than FLAG_RATIO), summary.
+    ``procs``: processes for the refits (each refit is seeded by ``seed``: the numbers do not change).
     """
     vset = best.statistic.vset
     found, how = groups(vset, by)
@@ -79,35 +107,14 @@ def jackknife(statistic, best, by="station", frequency=None, redshift=0.0, seed=
     periods = dict(getattr(best.model, "periods", lambda: {})())
     periods.update(derived_periods(best.model) or {})
     rows, values, dvalues, fractions = [], [], [], []
-    for label, keep in found:
-        entry = {"left_out": label, "n_rows": int(np.count_nonzero(keep))}
-        try:
-            sub = vset.subset(keep)
-            stat = best.statistic.rebuilt(best.model.copy(), vset=sub)
-            res = fit(stat, starts=starts, seed=seed, strict=False)
-            if list(res.names) != names:
-                raise FitError("the free parameters changed without this group")
-        except (UvfitError, ValueError) as exc:
-            entry["error"] = str(exc)
-            rows.append(entry)
-            if progress:
-                progress(1)
-            continue
-        entry.update(
-            {
-                "chi2": float(res.chi2),
-                "converged": bool(res.converged),
-                "values": dict(zip(names, map(float, res.values))),
-            }
-        )
-        d = quantities_at(res.model, np.asarray(res.values), frequency, redshift)[0]
-        entry["derived"] = {k: float(v) for k, v in d.items() if np.isfinite(v)}
+    shared = (best, names, frequency, redshift, seed, starts)
+    for entry, theta, d in run_pieces(_leave_out, found, shared, procs=procs, progress=progress):
         rows.append(entry)
-        values.append(np.asarray(res.values, float))
+        if theta is None:
+            continue
+        values.append(theta)
         fractions.append(1.0 - entry["n_rows"] / vset.n)
         dvalues.append(d)
-        if progress:
-            progress(1)
     n = len(values)
     if n < 2:
         raise FitError(

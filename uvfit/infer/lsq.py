@@ -16,9 +16,10 @@ Priors other than the bounds are ignored here (use the sampler for them).
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.optimize import differential_evolution, least_squares
+from scipy.optimize import OptimizeResult, differential_evolution, least_squares
 
 from ..errors import FitError, UvfitError
+from .parallel import check_procs, run_pieces
 
 #: relative singular value (of the column-normalised Jacobian) below which a direction counts as
 #: unconstrained by the data
@@ -396,6 +397,24 @@ def _run_start(statistic, x0, lo, hi, max_nfev):
         )
 
 
+def _start_piece(shared, piece):
+    """One start's least-squares run, in a worker: the few fields the fitter reads (None when the
+    residuals were not finite)."""
+    statistic, lo, hi = shared
+    x0, nfev = piece
+    try:
+        res = _run_start(statistic, x0, lo, hi, nfev)
+    except ValueError:
+        return None
+    return OptimizeResult(
+        x=np.asarray(res.x, float),
+        cost=float(res.cost),
+        status=int(res.status),
+        nfev=int(res.nfev),
+        message=res.message,
+    )
+
+
 #: members of the global search's final population polished by least squares
 GLOBAL_POLISH = 4
 #: relative spread of the population's chi2 at which the global search stops (the polish by least
@@ -493,6 +512,7 @@ def fit(
     rescale_errors=False,
     max_nfev=None,
     strict=True,
+    procs=1,
 ):
     """Least-squares fit of the statistic's model; returns a :class:`FitResult`.
 
@@ -513,6 +533,8 @@ def fit(
     distinct points are more starts (counted in ``result.starts``). ``progress``: called with 1 after each start. ``rescale_errors``: multiply
     every error by sqrt(chi2/dof), as if the sigmas were scaled to give a reduced chi2 of 1.
     ``strict``: raise FitError when no start converged (False: return the best anyway).
+    ``procs``: processes for the starts (each start's first run is independent of the others, and
+    finishing the promising ones keeps the order of one process: the numbers do not change).
     """
     if model is not None and model is not statistic.model:
         statistic = statistic.rebuilt(model)
@@ -582,13 +604,33 @@ def fit(
 
     best, best_any, start_chi2, ends, end_chi2 = None, None, [], [], []
     batch_best = np.inf
+    procs = check_procs(procs)
+
+    def is_short(j):  # start j (from 0) gets the short budget of the "auto" rule
+        return starts == "auto" and j > 0 and not (first <= j < first + n_global)
+
+    def budget(j):
+        return min(max_nfev, AUTO_NFEV * (k + 1)) if is_short(j) else max_nfev
+
+    # with several processes the first run of every start of a batch is made ahead, in parallel
+    # (it depends on nothing but the start); finishing a promising one stays in order, here
+    ahead: dict = {}
     i = 0
     while i < len(start_list):
+        if procs > 1 and i not in ahead and len(start_list) - i > 1:
+            todo = list(range(i, len(start_list)))
+            runs = run_pieces(_start_piece, [(start_list[j], budget(j)) for j in todo], (statistic, lo, hi), procs)
+            ahead.update(zip(todo, runs))
         x0 = start_list[i]
         i += 1
-        short = starts == "auto" and i > 1 and not (first <= i - 1 < first + n_global)
+        short = is_short(i - 1)
         try:
-            res = _run_start(statistic, x0, lo, hi, min(max_nfev, AUTO_NFEV * (k + 1)) if short else max_nfev)
+            if i - 1 in ahead:
+                res = ahead.pop(i - 1)
+                if res is None:
+                    raise ValueError("non-finite residuals")
+            else:
+                res = _run_start(statistic, x0, lo, hi, budget(i - 1))
             if short and res.status == 0 and (best is None or 2.0 * res.cost < 2.0 * best.cost):
                 res = _run_start(statistic, res.x, lo, hi, max_nfev)  # promising: finish it
         except ValueError:  # non-finite residuals at a random start, typically

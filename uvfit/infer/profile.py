@@ -17,6 +17,7 @@ import numpy as np
 
 from ..errors import FitError, UvfitError
 from .lsq import _run_start, fit, free_bounds, random_starts
+from .parallel import run_pieces
 
 #: delta chi2 of the 68.3% and 95% profile intervals (chi2 with 1 degree of freedom)
 LEVELS = {"interval_68": 1.0, "interval_95": 3.841458820694124}
@@ -89,14 +90,57 @@ def default_range(value, error, lo, hi, width=5.0):
     return float(max(a, lo)), float(min(b, hi))
 
 
-def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best=None, max_nfev=None, progress=None):
+def _grid_chain(shared, piece, progress=None):
+    """Refits along a chain of grid indices, each warm-started from the one before (the first
+    from ``warm``, when given), and from the best fit and the extra starts: [(index, chi2, x)]."""
+    fixed_stat, name, grid, x_best, extra, lo, hi, max_nfev = shared
+    indices, warm = piece
+    model = fixed_stat.model
+    others = list(model.free_names)
+    out = []
+    for i in indices:
+        model.parameters[name].value = float(grid[i])
+        best_c, best_x = np.inf, None
+        if not others:
+            with np.errstate(all="ignore"):
+                best_c = float(fixed_stat.chi2(np.zeros(0)))
+        else:
+            candidates = ([warm] if warm is not None else []) + [x_best] + list(extra)
+            for x0 in candidates:
+                try:
+                    res = _run_start(fixed_stat, x0, lo, hi, max_nfev)
+                except ValueError:
+                    continue
+                c = float(2.0 * res.cost)
+                if np.isfinite(c) and c < best_c:
+                    best_c, best_x = c, np.asarray(res.x, float)
+            warm = best_x
+        out.append((i, best_c, best_x))
+        if progress:
+            progress(1)
+    return out
+
+
+def profile(
+    statistic,
+    name,
+    value_range=None,
+    points=21,
+    starts=3,
+    seed=0,
+    best=None,
+    max_nfev=None,
+    progress=None,
+    procs=1,
+):
     """The profile of parameter ``name`` of the statistic's model; a JSON-ready dict.
 
     ``best``: a FitResult of the same statistic (default: a fit with ``starts`` starts).
     ``value_range``: (lo, hi) in the parameter's unit (default: best +/- 5 formal errors inside the
     bounds). ``points``: grid values (the best-fit value is added). ``starts``: starts per grid
     point besides the warm start (the first is the best fit's values, the others random, seeded
-    by ``seed``). ``progress``: called with 1 after each grid point.
+    by ``seed``). ``progress``: called with 1 after each grid point. ``procs``: processes for the
+    two chains of grid points on either side of the best fit (the numbers do not change).
     Keys: parameter, unit, grid, chi2, best, chi2_min, interval_68, interval_95 (lists of
     [lo, hi]), unconstrained, reaches_range_end, seed, starts, method.
     """
@@ -147,32 +191,21 @@ def profile(statistic, name, value_range=None, points=21, starts=3, seed=0, best
     chi2 = np.full(len(grid), np.nan)
     solutions = [None] * len(grid)
     centre = int(np.argmin(np.abs(grid - value)))
-    order = list(range(centre, len(grid))) + list(range(centre - 1, -1, -1))
-    warm = {}
-    for i in order:
-        model.parameters[name].value = float(grid[i])
-        if not others:
-            with np.errstate(all="ignore"):
-                chi2[i] = fixed_stat.chi2(np.zeros(0))
-        else:
-            prev = i - 1 if i > centre else i + 1
-            candidates = [warm[prev]] if prev in warm else []
-            candidates += [x_best] + list(extra)
-            best_c, best_x = np.inf, None
-            for x0 in candidates:
-                try:
-                    res = _run_start(fixed_stat, x0, lo, hi, max_nfev or 200 * (len(others) + 1))
-                except ValueError:
-                    continue
-                c = float(2.0 * res.cost)
-                if np.isfinite(c) and c < best_c:
-                    best_c, best_x = c, np.asarray(res.x, float)
-            chi2[i] = best_c
-            if best_x is not None:
-                warm[i] = best_x
-                solutions[i] = best_x
-        if progress:
-            progress(1)
+    shared = (fixed_stat, name, grid, x_best, extra, lo, hi, max_nfev or 200 * (len(others) + 1))
+    # the centre first, then the two warm-started chains outward from it, which are independent
+    done = _grid_chain(shared, ([centre], None))
+    if progress:
+        progress(1)
+    warm = done[0][2]
+    chains = [c for c in (list(range(centre + 1, len(grid))), list(range(centre - 1, -1, -1))) if c]
+    pieces = [(c, warm) for c in chains]
+    if int(procs) > 1:
+        parts = run_pieces(_grid_chain, pieces, shared, procs=procs, progress=progress, sizes=[len(c) for c in chains])
+    else:
+        parts = [_grid_chain(shared, piece, progress) for piece in pieces]
+    for i, c, x in done + [row for part in parts for row in part]:
+        chi2[i] = c
+        solutions[i] = x
     if not np.any(np.isfinite(chi2)):
         raise FitError(
             f"the profile of {name} failed at every grid value", "check the range and the model's start values"

@@ -132,6 +132,7 @@ def run_fit(
     frequency=None,
     return_result=False,
     max_evaluations=None,
+    procs=1,
     **options,
 ):
     """Fit ``model`` (not changed; a copy is fitted) to ``vset`` in ``mode``; returns the result
@@ -139,6 +140,7 @@ def run_fit(
 
     ``frequency`` (Hz) for the brightness temperatures: default the data's mean frequency.
     ``max_evaluations``: limit of model evaluations per start (default 200 (k + 1)).
+    ``procs``: processes for the starts (the numbers do not depend on it).
     """
     work = model.copy()
     stat = make_statistic(mode, vset, work, systematic=systematic, **options)
@@ -150,6 +152,7 @@ def run_fit(
         progress=progress,
         rescale_errors=rescale_errors,
         max_nfev=max_evaluations,
+        procs=procs,
     )
     if frequency is None:
         vs = result.statistic.vset

@@ -29,6 +29,7 @@ import numpy as np
 
 from .. import __version__
 from ..errors import FitError, UvfitError
+from ..infer.parallel import run_pieces
 from ..labels import FORECAST_CAUTIONS
 from .observe import observe, plan
 
@@ -75,6 +76,44 @@ def _spread(values):
     return {"n": int(len(x)), "median": float(p50), "p16": float(p16), "p84": float(p84)}
 
 
+def _trial(shared, piece):
+    """One forecast trial: (the true model's fit, or its failure message; per alternative
+    (chi2, BIC) or its failure message). Its noise is seeded by the trial's own seed."""
+    layout, model_vis, true_model, alternatives, truth, struct_keys, mode, fit_systematic = shared[:8]
+    starts, frequency, options, gain_error, phase_error_deg, systematic = shared[8:]
+    _, s = piece
+    vset = observe(
+        layout, model_vis, seed=s, gain_error=gain_error, phase_error_deg=phase_error_deg, systematic=systematic
+    )
+    try:
+        res, derived = _fit(vset, true_model, mode, fit_systematic, starts, s, frequency, options)
+    except FitError as exc:
+        return str(exc), []
+    pulls = {}
+    for name, value in truth.items():
+        if name in res.names:
+            err = res.error(name)
+            pulls[name] = (res.value(name) - value) / err if err > 0 and np.isfinite(err) else float("inf")
+    true_fit = {
+        "pulls": pulls,
+        "recovered": bool(pulls) and all(abs(p) <= 3.0 for p in pulls.values()),
+        "structure": {key: float(derived[key]["value"]) for key in struct_keys if key in derived},
+        "chi2_true": res.chi2,
+        "bic_true": res.bic,
+        "n_data": res.n_data,
+        "converged": bool(res.converged),
+    }
+    alt_fits: list = []
+    for alt in alternatives:
+        try:
+            ares, _ = _fit(vset, alt, mode, fit_systematic, starts, s, frequency, options)
+        except FitError as exc:
+            alt_fits.append(str(exc))
+            continue
+        alt_fits.append((ares.chi2, ares.bic))
+    return true_fit, alt_fits
+
+
 def forecast(
     array,
     true_model,
@@ -92,6 +131,7 @@ def forecast(
     alt_names=None,
     progress=None,
     options=None,
+    procs=1,
 ):
     """Run the forecast (see the module docstring); returns a JSON-ready dictionary.
 
@@ -99,7 +139,8 @@ def forecast(
 
     ``alternatives``: SkyModel objects; ``fit_systematic``: the systematic fraction the fits use
     (default: the simulated one); ``progress``: called with 1 after each trial; ``options`` go
-    to every fit's statistic (e.g. ``gains``, ``gain_interval``, ``gain_prior``).
+    to every fit's statistic (e.g. ``gains``, ``gain_interval``, ``gain_prior``). ``procs``:
+    processes for the trials (each trial is seeded by its own seed: the numbers do not change).
     """
     from scipy.stats import chi2 as chi2_dist
 
@@ -144,50 +185,30 @@ def forecast(
         a["lr_threshold"] = float(chi2_dist.ppf(LR_LEVEL, dk)) if dk else 0.0
     n_recovered = n_fail_true = 0
     trial_seeds = [int(seed) + k for k in range(trials)]
-    for k, s in enumerate(trial_seeds):
-        vset = observe(
-            layout, model_vis, seed=s, gain_error=gain_error, phase_error_deg=phase_error_deg, systematic=systematic
-        )
+    shared = (layout, model_vis, true_model, alternatives, truth, list(struct_values), mode, fit_systematic)
+    shared += (starts, frequency, options, gain_error, phase_error_deg, systematic)
+    done = run_pieces(_trial, list(enumerate(trial_seeds)), shared, procs=procs, progress=progress)
+    for (k, s), (true_fit, alt_fits) in zip(enumerate(trial_seeds), done):
         row = {"trial": k, "seed": s}
-        try:
-            res, derived = _fit(vset, true_model, mode, fit_systematic, starts, s, frequency, options)
-        except FitError as exc:
+        if isinstance(true_fit, str):
             n_fail_true += 1
-            row["true_fit"] = f"failed: {exc}"
+            row["true_fit"] = f"failed: {true_fit}"
             per_trial.append(row)
-            if progress:
-                progress(1)
             continue
-        pulls = {}
-        for name, value in truth.items():
-            if name in res.names:
-                err = res.error(name)
-                pulls[name] = (res.value(name) - value) / err if err > 0 and np.isfinite(err) else float("inf")
-        recovered = bool(pulls) and all(abs(p) <= 3.0 for p in pulls.values())
+        pulls, recovered, struct = true_fit.pop("pulls"), true_fit.pop("recovered"), true_fit.pop("structure")
         n_recovered += recovered
-        for key in struct_values:
-            if key in derived:
-                struct_values[key].append(float(derived[key]["value"]))
-        row.update(
-            {
-                "recovered": recovered,
-                "pulls": pulls,
-                "chi2_true": res.chi2,
-                "bic_true": res.bic,
-                "n_data": res.n_data,
-                "converged": bool(res.converged),
-            }
-        )
+        for key, value in struct.items():
+            struct_values[key].append(value)
+        row.update({"recovered": recovered, "pulls": pulls, **true_fit})
         row["alternatives"] = {}
-        for a, alt in zip(alt_stats, alternatives):
-            try:
-                ares, _ = _fit(vset, alt, mode, fit_systematic, starts, s, frequency, options)
-            except FitError as exc:
+        for a, fitted in zip(alt_stats, alt_fits):
+            if isinstance(fitted, str):
                 a["fit_failures"] += 1
-                row["alternatives"][a["name"]] = f"failed: {exc}"
+                row["alternatives"][a["name"]] = f"failed: {fitted}"
                 continue
-            dchi2 = ares.chi2 - res.chi2
-            bic_pref = res.bic < ares.bic
+            a_chi2, a_bic = fitted
+            dchi2 = a_chi2 - true_fit["chi2_true"]
+            bic_pref = true_fit["bic_true"] < a_bic
             if k_true > a["free_parameters"]:
                 lr_pref = dchi2 > a["lr_threshold"]
             elif k_true < a["free_parameters"]:
@@ -198,15 +219,13 @@ def forecast(
             a["lr_preferred"] += bool(lr_pref)
             a["delta_chi2"].append(float(dchi2))
             row["alternatives"][a["name"]] = {
-                "chi2": ares.chi2,
-                "bic": ares.bic,
+                "chi2": a_chi2,
+                "bic": a_bic,
                 "delta_chi2": float(dchi2),
                 "bic_prefers_true": bool(bic_pref),
                 "lr_prefers_true": bool(lr_pref),
             }
         per_trial.append(row)
-        if progress:
-            progress(1)
     alts_out = []
     for a in alt_stats:
         alts_out.append(

@@ -44,7 +44,9 @@ def load_data(data: Data, selection: Optional[dict] = None, good: bool = True) -
     return read_selected(data, selection, good=good)
 
 
-def _stacked(data: Sequence[Data], selection: Optional[dict]) -> tuple[VisibilitySet, list[str], list[str]]:
+def _stacked(
+    data: Sequence[Data], selection: Optional[dict], good: bool = True
+) -> tuple[VisibilitySet, list[str], list[str]]:
     """Several files (or sets) read with one selection and stacked (``uvfit.data.stack``):
     (set, notes, labels)."""
     from .data.stack import stack_sets
@@ -53,7 +55,7 @@ def _stacked(data: Sequence[Data], selection: Optional[dict]) -> tuple[Visibilit
         raise UvfitError("data is an empty list", "give one data file or several")
     sets, notes, labels = [], [], []
     for k, item in enumerate(data):
-        vs, more = load_data(item, selection)
+        vs, more = load_data(item, selection, good=good)
         sets.append(vs)
         notes += more
         labels.append(os.fspath(item) if _is_path(item) else f"set {k + 1}")
@@ -184,6 +186,62 @@ class FitReport:
         return fit_text(self.record)
 
 
+#: the modes in which parameters separate per file are fitted (the statistics of the others see
+#: degeneracies, such as one flux scale per file, that are not yet checked per file)
+PER_FILE_MODES = ("complex", "amplitude")
+
+
+def _per_file_model(sky, labels, data_path, mode, gains):
+    """The model with one copy per file of its per-file parameters (``SkyModel.for_files``);
+    the model itself when it declares none."""
+    if not any(p.per == "file" for p in sky.parameters.values()):
+        return sky
+    if mode not in PER_FILE_MODES:
+        raise UvfitError(
+            f"parameters separate per file are fitted in mode {' or '.join(PER_FILE_MODES)} only, not {mode!r}",
+            f'use `mode={PER_FILE_MODES[0]}`, or share the parameter (remove per = "file" in the model file)',
+        )
+    if gains is not None:
+        raise UvfitError(
+            "parameters separate per file are not fitted together with station gains",
+            'leave out `gains`, or share the parameter (remove per = "file" in the model file)',
+        )
+    if labels is None:
+        labels = [data_path if data_path is not None else "set 1"]
+    return sky.for_files(labels)
+
+
+def _add_per_file_values(out, model):
+    """Per-file parameter values and errors into each entry of ``out["files"]``."""
+    table = out["parameters"]
+    for name, copies in model.per_file_names().items():
+        for entry, copy in zip(out["files"], copies):
+            rec = table[copy]
+            entry.setdefault("parameters", {})[name] = {
+                "name": copy,
+                "value": rec["value"],
+                "error": rec["error"],
+                "unit": rec["unit"],
+            }
+
+
+def _joint_data(
+    data: Union[Data, Sequence[Data]], selection: Optional[dict], good: bool = True
+) -> tuple[VisibilitySet, list[str], Optional[list[str]]]:
+    """(set, notes, labels): one file or set read (labels None), or a list of them stacked."""
+    if isinstance(data, (list, tuple)):
+        return _stacked(data, selection, good=good)
+    vset, notes = load_data(cast(Data, data), selection, good=good)
+    return vset, notes, None
+
+
+def _data_record(data_path: Optional[str], labels: Optional[list[str]]) -> Union[str, list[str], None]:
+    """What an output records as its data: the list of files of a joint input, else the path."""
+    if labels is not None:
+        return list(labels)
+    return None if data_path is None else str(data_path)
+
+
 def fit(
     data: Union[Data, Sequence[Data]],
     model: Model,
@@ -293,6 +351,7 @@ def fit(
         vset, notes = load_data(cast(Data, data), selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
+    sky = _per_file_model(sky, labels, data_path, mode, gains)
     out, result = run_fit(
         vset,
         sky,
@@ -338,6 +397,7 @@ def fit(
 
         out["data"] = labels
         out["files"] = per_file_chi2(result.statistic, result.statistic.model.get_free(), labels)
+        _add_per_file_values(out, result.model)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -384,7 +444,7 @@ def check_sample_options(
 
 
 def sample(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     mode: str = "complex",
     systematic: float = 0.0,
@@ -468,10 +528,11 @@ def sample(
 
     check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
     closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
     sky = load_model_or_path(model)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
+    sky = _per_file_model(sky, labels, data_path, mode, gains)
     post = run_sample(
         vset,
         sky,
@@ -495,6 +556,8 @@ def sample(
     )
     out = post.to_dict()
     out["selection"] = _given(selection)
+    if labels is not None:
+        out["data"] = list(labels)
     if closure:
         out["closure_options"] = closure
     return SampleReport(record=out, posterior=post, notes=notes)
@@ -530,7 +593,7 @@ class CompareReport:
 
 
 def compare(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     models: Sequence[Model],
     mode: str = "complex",
     systematic: float = 0.0,
@@ -606,10 +669,10 @@ def compare(
     if names is None and all(_is_path(m) for m in models):
         names = [_stem(m) for m in models]
     closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
-    skies = [load_model_or_path(m) for m in models]
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
+    skies = [_per_file_model(load_model_or_path(m), labels, data_path, mode, gains) for m in models]
     out = run_compare(
         vset,
         skies,
@@ -627,7 +690,7 @@ def compare(
     )
     if closure:
         out["closure_options"] = closure
-    out["data"] = None if data_path is None else str(data_path)
+    out["data"] = _data_record(data_path, labels)
     out["selection"] = selection if selection is not None else {}
     out["model_files"] = [str(m) if _is_path(m) else None for m in models]
     return CompareReport(record=out, notes=notes)
@@ -666,7 +729,7 @@ class ClosureReport:
 
 
 def closures(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Union[Model, dict, None] = None,
     systematic: Optional[float] = None,
     snr_cut: Optional[float] = None,
@@ -752,7 +815,9 @@ def closures(
         shown = ", ".join(f"{k}={selection[k]}" for k in sorted(selection)) or "none"
         origin = ("from the fit: " + ", ".join(from_fit)) if from_fit else "none from the fit"
         used_note = f"note: selection used: {shown} ({origin}); systematic floor {systematic:g} ({floor_from})"
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
+    if sky is not None:
+        sky = _per_file_model(sky, labels, data_path, "complex", None)
     if used_note:
         notes = [used_note] + list(notes)
     if systematic is None:
@@ -774,7 +839,7 @@ def closures(
     summary = json_summary(res)
     summary.update(
         {
-            "data": None if data_path is None else str(data_path),
+            "data": _data_record(data_path, labels),
             "model": model_path,
             **info,
             "selection": {k: v for k, v in (selection or {}).items() if v not in (None, (), "")},
@@ -1220,10 +1285,11 @@ def _fit_for(data, model, mode, systematic, seed, selection, options):
     from .stats.modes import make_statistic
 
     sky = load_model_or_path(model)
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
     options = _with_site(dict(options or {}), mode, selection)
+    sky = _per_file_model(sky, labels, os.fspath(data) if _is_path(data) else None, mode, options.get("gains"))
     stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **options)
-    return stat, lsq_fit(stat, starts="auto", seed=seed), notes
+    return stat, lsq_fit(stat, starts="auto", seed=seed), notes, labels
 
 
 @dataclass
@@ -1248,7 +1314,7 @@ class ProfileReport:
 
 
 def profile(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     parameter: str,
     value_range: Optional[Sequence[float]] = None,
@@ -1279,7 +1345,7 @@ def profile(
             "a profile needs a few tens of grid values; narrow the range for detail",
         )
     _check_at_least("starts", starts, 1)
-    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options)
+    stat, best, notes, labels = _fit_for(data, model, mode, systematic, seed, selection, options)
     out = run_profile(
         stat, parameter, value_range=value_range, points=points, starts=starts, seed=seed, best=best, progress=progress
     )
@@ -1289,7 +1355,7 @@ def profile(
             "systematic": float(systematic),
             "fit_starts": int(best.starts),
             "selection": _given(selection),
-            "data": os.fspath(data) if _is_path(data) else data_path,
+            "data": _data_record(os.fspath(data) if _is_path(data) else data_path, labels),
             **({"closure_options": dict(options)} if options else {}),
         }
     )
@@ -1328,7 +1394,7 @@ class JackknifeReport:
 
 
 def jackknife(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     by: str = "station",
     mode: str = "complex",
@@ -1351,7 +1417,7 @@ def jackknife(
 
     if by not in GROUPINGS:
         raise UvfitError(f"by must be one of {', '.join(GROUPINGS)} (got {by!r})")
-    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options)
+    stat, best, notes, labels = _fit_for(data, model, mode, systematic, seed, selection, options)
     out = run_jackknife(stat, best, by=by, redshift=redshift, seed=seed, starts=starts, progress=progress)
     out.update(
         {
@@ -1359,7 +1425,7 @@ def jackknife(
             "systematic": float(systematic),
             "fit_starts": int(best.starts),
             "selection": _given(selection),
-            "data": os.fspath(data) if _is_path(data) else data_path,
+            "data": _data_record(os.fspath(data) if _is_path(data) else data_path, labels),
             **({"closure_options": dict(options)} if options else {}),
         }
     )

@@ -195,6 +195,9 @@ def model_from_fit(fit, path=None):
         if path and message.startswith(f"{path}: "):
             message = message[len(path) + 2 :]
         raise UvfitError(f"{where}the model recorded in the fit cannot be rebuilt: {message}", exc.hint) from None
+    files = fit.get("data")
+    if isinstance(files, list) and files and any(p.per == "file" for p in model.parameters.values()):
+        model = model.for_files([str(f) for f in files])  # the copies per file the fit had
     params = fit.get("parameters", {})
     names = list(model.free_names)
     if names and isinstance(params, dict) and all(n in params for n in names):

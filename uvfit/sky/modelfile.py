@@ -8,8 +8,8 @@
     east = { value = 0.0, fixed = true }
     fwhm = { value = 0.05, min = 0.0, max = 1.0 }
 
-A parameter is a number or a table with keys ``value``, ``min``, ``max``, ``fixed``, ``tie`` and
-``prior``. See the README, "Model files", for every shape, the defaults and the priors. Every
+A parameter is a number or a table with keys ``value``, ``min``, ``max``, ``fixed``, ``tie``,
+``prior`` and ``per`` (``per = "file"``: one value per data file in a joint fit). See the README, "Model files", for every shape, the defaults and the priors. Every
 problem in a file is reported as one ModelError naming the line, the component and the key.
 """
 
@@ -29,7 +29,9 @@ from .parameters import PRIORS, LogUniform, Parameter, ParameterSet, Uniform, _t
 from .shapes import SHAPES, shape_class
 
 _TOP_KEYS = ("angular_unit", "description", "component")
-_PARAM_KEYS = ("value", "min", "max", "fixed", "tie", "prior")
+_PARAM_KEYS = ("value", "min", "max", "fixed", "tie", "prior", "per")
+#: values of a parameter's ``per`` key: one value of the parameter per data file of a joint fit
+_PER_VALUES = ("file",)
 _NAME_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_\-]*")
 
 
@@ -340,6 +342,16 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
             p.tie = tie if "." in tie else f"{cname}.{tie}"
             if p.fixed:
                 raise err(f"'{local}' is both fixed and tied", "keep one of 'fixed' and 'tie'", key=local)
+        if "per" in spec:
+            if spec["per"] not in _PER_VALUES:
+                raise err(
+                    f"'per' of '{local}' must be one of {', '.join(_PER_VALUES)}, got {spec['per']!r}",
+                    'write per = "file" for one value per data file',
+                    key=local,
+                )
+            if p.tie is not None:
+                raise err(f"'{local}' is both tied and per file", "keep one of 'tie' and 'per'", key=local)
+            p.per = spec["per"]
         if "value" in spec:
             if not _is_number(spec["value"]):
                 raise err(f"'value' of '{local}' must be a number, got {spec['value']!r}", key=local)
@@ -458,7 +470,7 @@ def _toml_value(x):
 def _parameter_text(p, bounds):
     local = p.local
     dmin, dmax = bounds
-    if p.free and p.prior is None and p.min == dmin and p.max == dmax:
+    if p.free and p.prior is None and p.per is None and p.min == dmin and p.max == dmax:
         text = f"{local} = {_toml_float(p.value)}"
     else:
         items = [f"value = {_toml_float(p.value)}"]
@@ -468,10 +480,12 @@ def _parameter_text(p, bounds):
             items.append(f"max = {_toml_float(p.max)}")
         if p.fixed:
             items.append("fixed = true")
-        if p.tie is not None:
+        if p.tie is not None and p.per is None:
             items.append(f"tie = {json.dumps(p.tie)}")
         if p.prior is not None:
             items.append(f"prior = {p.prior.to_toml()}")
+        if p.per is not None:
+            items.append(f"per = {json.dumps(p.per)}")
         text = f"{local} = {{ " + ", ".join(items) + " }"
     if p.note:
         text += "  # " + " ".join(str(p.note).split())

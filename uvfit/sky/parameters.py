@@ -144,6 +144,8 @@ class Parameter:
 
     ``tie`` is the full name of another parameter this one always equals, or None. ``note`` is a
     free-text reason (e.g. why the fitter fixed it); it is written as a comment in a saved model.
+    ``per`` is "file" for a parameter that takes one value per data file in a joint fit
+    (``SkyModel.for_files``), else None.
     """
 
     name: str
@@ -156,6 +158,7 @@ class Parameter:
     unit: object = None
     kind: str = "ratio"
     note: str | None = None
+    per: str | None = None
 
     @property
     def component(self):
@@ -196,6 +199,7 @@ class Parameter:
             and self.tie == other.tie
             and self.prior == other.prior
             and self.kind == other.kind
+            and self.per == other.per
         )
 
 

@@ -173,6 +173,9 @@ def test_per_file_fluxes_recover_invented_band_fluxes_and_survive_a_saved_model(
     assert sum(f["chi2"] for f in report.to_dict()["files"]) == pytest.approx(
         report.to_dict()["statistics"]["chi2"], rel=1e-9
     )
+    # the table prints each file's values beside its chi2
+    lines = [ln for ln in report.text().splitlines() if ln.startswith("file set ")]
+    assert len(lines) == 2 and all("; core.flux " in ln and ln.endswith(" Jy") for ln in lines)
     # the model's JSON lists the values per file; a saved model reads back, per file again
     described = report.model.to_dict()["per_file"]
     assert described["files"] == ["set 1", "set 2"]

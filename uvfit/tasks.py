@@ -273,7 +273,9 @@ def fit(
     data : VisibilitySet or path, or a list of them
         The visibilities (a file is read; only unflagged rows are used). Several files of one
         source and phase centre are fitted jointly (``uvfit.data.stack.stack_sets``): every
-        parameter shared, the statistic the sum over the files, their chi2 in ``files``.
+        parameter shared unless the model declares it per file (``per = "file"``, see
+        ``SkyModel.for_files``), the statistic the sum over the files, their chi2 (and per-file
+        values) in ``files``.
     model : SkyModel or path
         The model (not changed: a copy is fitted), or its TOML file.
     mode : str
@@ -473,8 +475,8 @@ def sample(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities.
+    data : VisibilitySet or path, or a list of them
+        The visibilities; several files are stacked and fitted jointly, as in :func:`fit`.
     model : SkyModel or path
         The model (not changed), or its TOML file; priors are the model's.
     mode, systematic, starts, redshift, seed, gains, gain_interval, gain_prior
@@ -618,8 +620,8 @@ def compare(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities.
+    data : VisibilitySet or path, or a list of them
+        The visibilities; several files are stacked and fitted jointly, as in :func:`fit`.
     models : sequence of SkyModel or path
         Two or more models.
     mode, systematic, starts, seed, gains, gain_interval, gain_prior
@@ -745,8 +747,8 @@ def closures(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities.
+    data : VisibilitySet or path, or a list of them
+        The visibilities; several files are stacked and fitted jointly, as in :func:`fit`.
     model : SkyModel, path, fit dict or None
         A model, a model file (.toml), a fit result (.json written by ``fit``, or its dict: the
         fitted model is used), or None for the counts only.
@@ -1332,7 +1334,7 @@ def profile(
     other free parameter at ``points`` values in ``value_range`` (default: best fit +/- 5 formal
     errors inside the bounds); intervals at delta chi2 = 1 and 3.84 (Wilks 1938; Venzon &
     Moolgavkar 1988). The fit first uses the "auto" starts of :func:`fit`; ``starts``: starts per grid
-    point besides the warm start.
+    point besides the warm start. ``data`` may be a list of files, fitted jointly as in :func:`fit`.
     See :func:`uvfit.infer.profile.profile` for the keys of ``to_dict()``.
     """
     from .infer.profile import MAX_POINTS
@@ -1411,7 +1413,8 @@ def jackknife(
     parameter and derived quantity beside the formal one (Efron & Tibshirani 1993, ch. 11). See
     :func:`uvfit.infer.jackknife.jackknife` for the keys of ``to_dict()``. The fit of all the data
     uses the "auto" starts of :func:`fit` (``fit_starts`` in the JSON); each refit starts from its
-    best values, plus ``starts - 1`` random starts."""
+    best values, plus ``starts - 1`` random starts. ``data`` may be a list of files, fitted
+    jointly as in :func:`fit` (by channel, each file's channels are their own)."""
     from .infer.jackknife import GROUPINGS
     from .infer.jackknife import jackknife as run_jackknife
 

@@ -102,7 +102,7 @@ def test_uvfits_round_trip(tmp_path):
     uvfit.write(vs, path)
     back = uvfit.read(path)
     # u, v, w pass through seconds (u / f * f): the same to rounding (common practice: ~1e-16);
-    # a UVFITS random group has no scan number (Greisen 2012, AIPS Memo 117: from memory)
+    # a UVFITS random group has no scan number (Greisen 2012, the UVFITS definition memo no. 117: from memory)
     assert_same(vs, back, rtol=1e-14, fields=tuple(f for f in FIELDS if f != "scan"))
     assert np.all(back.scan == -1)
     assert np.array_equal(vs.time, back.time)  # the split DATE keeps the MJD exactly

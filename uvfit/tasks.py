@@ -191,29 +191,42 @@ class FitReport:
 PER_FILE_MODES = ("complex", "amplitude")
 
 
-def _per_file_model(sky, labels, data_path, mode, gains):
-    """The model with one copy per file of its per-file parameters (``SkyModel.for_files``);
-    the model itself when it declares none."""
-    if not any(p.per == "file" for p in sky.parameters.values()):
+def _per_file_model(sky, labels, data_path, mode, gains, vset=None):
+    """The model with one copy per file of its per-file parameters and each file's time for its
+    moving positions (``SkyModel.for_files``); the model itself when it declares neither."""
+    moving = bool(sky.rate_names())
+    if not moving and not any(p.per == "file" for p in sky.parameters.values()):
         return sky
     if mode not in PER_FILE_MODES:
         raise UvfitError(
-            f"parameters separate per file are fitted in mode {' or '.join(PER_FILE_MODES)} only, not {mode!r}",
-            f'use `mode={PER_FILE_MODES[0]}`, or share the parameter (remove per = "file" in the model file)',
+            f"parameters separate per file and moving positions are fitted in mode {' or '.join(PER_FILE_MODES)} "
+            f"only, not {mode!r}",
+            f'use `mode={PER_FILE_MODES[0]}`, or share the parameter (remove per = "file", or rate and epoch, in the model file)',
         )
     if gains is not None:
         raise UvfitError(
-            "parameters separate per file are not fitted together with station gains",
-            'leave out `gains`, or share the parameter (remove per = "file" in the model file)',
+            "parameters separate per file and moving positions are not fitted together with station gains",
+            'leave out `gains`, or share the parameter (remove per = "file", or rate and epoch, in the model file)',
         )
     if labels is None:
         labels = [data_path if data_path is not None else "set 1"]
-    return sky.for_files(labels)
+    times = None
+    if moving and vset is not None:
+        import numpy as np
+
+        from .data.stack import file_of_rows
+
+        owner = file_of_rows(vset)
+        times = [float(np.nanmean(vset.time[owner == k])) if np.any(owner == k) else np.nan for k in range(len(labels))]
+    return sky.for_files(labels, times=times)
 
 
 def _add_per_file_values(out, model):
-    """Per-file parameter values and errors into each entry of ``out["files"]``."""
+    """Per-file parameter values and errors into each entry of ``out["files"]`` (and each
+    file's mean time, MJD, where the model has moving positions)."""
     table = out["parameters"]
+    for entry, time in zip(out["files"], model.file_times or []):
+        entry["time_mean_mjd"] = time
     for name, copies in model.per_file_names().items():
         for entry, copy in zip(out["files"], copies):
             rec = table[copy]
@@ -353,7 +366,7 @@ def fit(
         vset, notes = load_data(cast(Data, data), selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    sky = _per_file_model(sky, labels, data_path, mode, gains)
+    sky = _per_file_model(sky, labels, data_path, mode, gains, vset)
     out, result = run_fit(
         vset,
         sky,
@@ -534,7 +547,7 @@ def sample(
     sky = load_model_or_path(model)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    sky = _per_file_model(sky, labels, data_path, mode, gains)
+    sky = _per_file_model(sky, labels, data_path, mode, gains, vset)
     post = run_sample(
         vset,
         sky,
@@ -674,7 +687,7 @@ def compare(
     vset, notes, labels = _joint_data(data, selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
-    skies = [_per_file_model(load_model_or_path(m), labels, data_path, mode, gains) for m in models]
+    skies = [_per_file_model(load_model_or_path(m), labels, data_path, mode, gains, vset) for m in models]
     out = run_compare(
         vset,
         skies,
@@ -819,7 +832,7 @@ def closures(
         used_note = f"note: selection used: {shown} ({origin}); systematic floor {systematic:g} ({floor_from})"
     vset, notes, labels = _joint_data(data, selection)
     if sky is not None:
-        sky = _per_file_model(sky, labels, data_path, "complex", None)
+        sky = _per_file_model(sky, labels, data_path, "complex", None, vset)
     if used_note:
         notes = [used_note] + list(notes)
     if systematic is None:
@@ -1289,7 +1302,7 @@ def _fit_for(data, model, mode, systematic, seed, selection, options):
     sky = load_model_or_path(model)
     vset, notes, labels = _joint_data(data, selection)
     options = _with_site(dict(options or {}), mode, selection)
-    sky = _per_file_model(sky, labels, os.fspath(data) if _is_path(data) else None, mode, options.get("gains"))
+    sky = _per_file_model(sky, labels, os.fspath(data) if _is_path(data) else None, mode, options.get("gains"), vset)
     stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **options)
     return stat, lsq_fit(stat, starts="auto", seed=seed), notes, labels
 

@@ -57,6 +57,7 @@ class SkyModel:
         self._plan = None
         self._variants = None
         self.file_labels: list[str] | None = None
+        self.file_times: list[float] | None = None
         self.check()
 
     # Construction from specifications (``SkyModel.build``) and the model-file text (``to_toml``,
@@ -239,15 +240,37 @@ class SkyModel:
             name: [per_file_name(name, k) for k in range(n)] for name, p in self.parameters.items() if p.per == "file"
         }
 
-    def for_files(self, labels: list[str]) -> SkyModel:
+    def rate_names(self) -> dict[str, str]:
+        """{position parameter: its rate parameter} of the positions that move (``rate`` and
+        ``epoch`` in the model file; the position's value is at its ``epoch``)."""
+        return {p.rate_of: name for name, p in self.parameters.items() if p.rate_of is not None}
+
+    def needs_files(self) -> bool:
+        """True when an evaluation needs each row's data file (per-file parameters or rates)."""
+        return bool(self.file_labels) and bool(self.per_file_names() or self.rate_names())
+
+    def for_files(self, labels: list[str], times: list[float] | None = None) -> SkyModel:
         """A copy of the model for a joint fit of the files ``labels`` (in stacking order): each
         parameter declared per file gets one copy per file (``core.flux@1``, ``core.flux@2``,
         ...; bounds, prior, fixed as declared), and the parameter itself follows its copy for the
         rows of each file (on rows of no known file, the first file's copy). Everything else is
-        shared. A model without per-file parameters is returned as a plain copy."""
+        shared. ``times`` (MJD, one per file): where a position moves, each file's rows see it at
+        value + rate (time - epoch) (Julian years). A model without per-file parameters or rates
+        is returned as a plain copy."""
         out = self.copy()
         labels = [str(x) for x in labels]
         declared = [name for name, p in out.parameters.items() if p.per == "file"]
+        if out.rate_names():
+            if times is None or len(times) != len(labels) or not np.all(np.isfinite(times)):
+                raise ModelError(
+                    "the model has positions that move (rate, epoch), but not every data file has an observation time",
+                    "give files that record their times, or remove the rates",
+                )
+            out.file_times = [float(t) for t in times]
+            out._variants = None
+            if not declared:
+                out.file_labels = labels
+                return out
         if not declared:
             return out
         if out.file_labels is not None:
@@ -290,15 +313,18 @@ class SkyModel:
     def _file_variants(self):
         """[model for file k]: models sharing this model's Parameter objects, except that each
         per-file parameter is tied to its copy for file k (kept while the structure stays)."""
-        names = self.per_file_names()
-        if not names:
+        if not self.needs_files():
             return None
-        key = self.structure_key()
+        names = self.per_file_names()
+        key = (self.structure_key(), tuple(self.file_times or ()))
         kept = self._variants
         if kept is not None and kept[0] == key:
             return kept[1]
         variants = []
         for k in range(len(self.file_labels or [])):
+            if not names:
+                variants.append(self)
+                continue
             params = ParameterSet()
             for name, p in self.parameters.items():
                 if name in names and p.tie is not None:
@@ -316,6 +342,7 @@ class SkyModel:
             variant._plan = None
             variant._variants = None
             variant.file_labels = None
+            variant.file_times = None
             variants.append(variant)
         self._variants = (key, variants)
         return variants
@@ -339,14 +366,39 @@ class SkyModel:
         per_row = freq is not None and freq.ndim > 0 and freq.size == u.size
         vis = np.zeros(u.size, dtype=complex)
         jac = np.zeros((u.size, self.n_free), dtype=complex) if gradient else None
+        moves = self._moves()
+        full = self.get_free() if theta is None else np.asarray(theta, dtype=float).ravel()
         for k in np.unique(files):
             rows = files == k
             f = freq.ravel()[rows] if per_row else freq
-            vk, jk = _engine.evaluate(variants[k], u[rows], v[rows], f, theta, gradient)
+            th = full
+            if moves:
+                th = full.copy()
+                for jp, jr, rate_name, epoch in moves:
+                    years = (self.file_times[k] - epoch) / 365.25
+                    th[jp] += (full[jr] if jr is not None else self.parameters[rate_name].value) * years
+            vk, jk = _engine.evaluate(variants[k], u[rows], v[rows], f, th, gradient)
             vis[rows] = np.asarray(vk).ravel()
             if gradient:
-                jac[rows] = np.asarray(jk).reshape(int(rows.sum()), -1)
+                jk = np.asarray(jk).reshape(int(rows.sum()), -1)
+                for jp, jr, _, epoch in moves:
+                    if jr is not None:
+                        jk[:, jr] += jk[:, jp] * (self.file_times[k] - epoch) / 365.25
+                jac[rows] = jk
         return vis, jac
+
+    def _moves(self):
+        """[(free index of a moving position, free index of its rate or None, rate name, epoch)]."""
+        rates = self.rate_names()
+        if not rates or not self.file_times:
+            return []
+        index = {n: j for j, n in enumerate(self.free_names)}
+        out = []
+        for pos, rate in rates.items():
+            if pos not in index:
+                raise ModelError(f"{pos} has a rate, so it must be free", f"free {pos}, or remove its rate")
+            out.append((index[pos], index.get(rate), rate, float(self.parameters[pos].epoch)))
+        return out
 
     def visibilities(
         self,
@@ -387,7 +439,7 @@ class SkyModel:
         """sum_i weight_i |data_i - V_i|^2 (float) over the rows, e.g. chi^2 of complex
         visibilities with weight = 1 / sigma^2 (sigma per real and imaginary part). The compiled
         engine forms no array of model visibilities for it (used by likelihoods in samplers)."""
-        if files is not None and self.per_file_names():
+        if files is not None and self.needs_files():
             model = self.visibilities(u, v, frequency=frequency, theta=theta, files=files)
             resid = np.asarray(data, dtype=complex).ravel() - model
             return float(np.sum(np.asarray(weight, dtype=float).ravel() * (resid.real**2 + resid.imag**2)))

@@ -36,7 +36,7 @@ def model_visibilities_and_jacobian(model, u, v, frequency, theta, files=None):
 def row_files(model, vset):
     """Each row's data file (``uvfit.data.stack.file_of_rows``) when ``model`` has per-file
     parameters, else None (the model then needs no file of its rows)."""
-    if not model.per_file_names():
+    if not model.needs_files():
         return None
     from ..data.stack import file_of_rows
 

@@ -69,7 +69,7 @@ class _Rows:
 
     def files(self, model):
         """Each row's data file for a model with per-file parameters, else None (kept)."""
-        if not model.per_file_names():
+        if not model.needs_files():
             return None
         if getattr(self, "_files", None) is None:
             self._files = row_files(model, self.set)

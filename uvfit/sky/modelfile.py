@@ -392,6 +392,10 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
     return p
 
 
+#: start values of the rates read, by the id of their position's Parameter (while one file is read)
+_RATE_STARTS: dict[int, float] = {}
+
+
 def _motion(spec, p, local, err):
     """A position's ``rate`` (angular unit per Julian year) and ``epoch`` (ISO date or MJD)."""
     if local not in _MOVING:
@@ -414,7 +418,7 @@ def _motion(spec, p, local, err):
     if not math.isfinite(mjd):
         raise err(f"'epoch' of '{local}' must be finite", key=local)
     p.epoch = mjd
-    p.rate_of = float(spec["rate"])  # the start value of the rate, replaced by its name below
+    _RATE_STARTS[id(p)] = float(spec["rate"])  # the rate parameter is made by _rate_parameters
 
 
 def _rate_parameters(params, unit):
@@ -425,8 +429,7 @@ def _rate_parameters(params, unit):
         if p.epoch is None:
             continue
         rate_name = name + RATE_SUFFIX
-        start = float(p.rate_of)
-        p.rate_of = None
+        start = _RATE_STARTS.pop(id(p))
         out[rate_name] = Parameter(
             name=rate_name, value=start, unit=p.unit / un.yr, kind="rate", rate_of=name, note=f"{name} per year"
         )

@@ -209,6 +209,8 @@ class Parameter:
             and self.prior == other.prior
             and self.kind == other.kind
             and self.per == other.per
+            and _feq(self.epoch, other.epoch)
+            and self.rate_of == other.rate_of
         )
 
 

@@ -45,7 +45,9 @@ def load_data(data: Data, selection: Optional[dict] = None, good: bool = True) -
     return read_selected(data, selection, good=good)
 
 
-def _stacked(data: Sequence[Data], selection: Optional[dict]) -> tuple[VisibilitySet, list[str], list[str]]:
+def _stacked(
+    data: Sequence[Data], selection: Optional[dict], good: bool = True
+) -> tuple[VisibilitySet, list[str], list[str]]:
     """Several files (or sets) read with one selection and stacked (``uvfit.data.stack``):
     (set, notes, labels)."""
     from .data.stack import stack_sets
@@ -54,7 +56,7 @@ def _stacked(data: Sequence[Data], selection: Optional[dict]) -> tuple[Visibilit
         raise UvfitError("data is an empty list", "give one data file or several")
     sets, notes, labels = [], [], []
     for k, item in enumerate(data):
-        vs, more = load_data(item, selection)
+        vs, more = load_data(item, selection, good=good)
         sets.append(vs)
         notes += more
         labels.append(os.fspath(item) if _is_path(item) else f"set {k + 1}")
@@ -185,6 +187,75 @@ class FitReport:
         return fit_text(self.record)
 
 
+#: the modes in which parameters separate per file are fitted (the statistics of the others see
+#: degeneracies, such as one flux scale per file, that are not yet checked per file)
+PER_FILE_MODES = ("complex", "amplitude")
+
+
+def _per_file_model(sky, labels, data_path, mode, gains, vset=None):
+    """The model with one copy per file of its per-file parameters and each file's time for its
+    moving positions (``SkyModel.for_files``); the model itself when it declares neither."""
+    moving = bool(sky.rate_names())
+    if not moving and not any(p.per == "file" for p in sky.parameters.values()):
+        return sky
+    if mode not in PER_FILE_MODES:
+        raise UvfitError(
+            f"parameters separate per file and moving positions are fitted in mode {' or '.join(PER_FILE_MODES)} "
+            f"only, not {mode!r}",
+            f'use `mode={PER_FILE_MODES[0]}`, or share the parameter (remove per = "file", or rate and epoch, in the model file)',
+        )
+    if gains is not None:
+        raise UvfitError(
+            "parameters separate per file and moving positions are not fitted together with station gains",
+            'leave out `gains`, or share the parameter (remove per = "file", or rate and epoch, in the model file)',
+        )
+    if labels is None:
+        labels = [data_path if data_path is not None else "set 1"]
+    times = None
+    if moving and vset is not None:
+        import numpy as np
+
+        from .data.stack import file_of_rows
+
+        owner = file_of_rows(vset)
+        times = [float(np.nanmean(vset.time[owner == k])) if np.any(owner == k) else np.nan for k in range(len(labels))]
+    return sky.for_files(labels, times=times)
+
+
+def _add_per_file_values(out, model):
+    """Per-file parameter values and errors into each entry of ``out["files"]`` (and each
+    file's mean time, MJD, where the model has moving positions)."""
+    table = out["parameters"]
+    for entry, time in zip(out["files"], model.file_times or []):
+        entry["time_mean_mjd"] = time
+    for name, copies in model.per_file_names().items():
+        for entry, copy in zip(out["files"], copies):
+            rec = table[copy]
+            entry.setdefault("parameters", {})[name] = {
+                "name": copy,
+                "value": rec["value"],
+                "error": rec["error"],
+                "unit": rec["unit"],
+            }
+
+
+def _joint_data(
+    data: Union[Data, Sequence[Data]], selection: Optional[dict], good: bool = True
+) -> tuple[VisibilitySet, list[str], Optional[list[str]]]:
+    """(set, notes, labels): one file or set read (labels None), or a list of them stacked."""
+    if isinstance(data, (list, tuple)):
+        return _stacked(data, selection, good=good)
+    vset, notes = load_data(cast(Data, data), selection, good=good)
+    return vset, notes, None
+
+
+def _data_record(data_path: Optional[str], labels: Optional[list[str]]) -> Union[str, list[str], None]:
+    """What an output records as its data: the list of files of a joint input, else the path."""
+    if labels is not None:
+        return list(labels)
+    return None if data_path is None else str(data_path)
+
+
 def fit(
     data: Union[Data, Sequence[Data]],
     model: Model,
@@ -217,7 +288,9 @@ def fit(
     data : VisibilitySet or path, or a list of them
         The visibilities (a file is read; only unflagged rows are used). Several files of one
         source and phase centre are fitted jointly (``uvfit.data.stack.stack_sets``): every
-        parameter shared, the statistic the sum over the files, their chi2 in ``files``.
+        parameter shared unless the model declares it per file (``per = "file"``, see
+        ``SkyModel.for_files``), the statistic the sum over the files, their chi2 (and per-file
+        values) in ``files``.
     model : SkyModel or path
         The model (not changed: a copy is fitted), or its TOML file.
     mode : str
@@ -298,6 +371,7 @@ def fit(
         vset, notes = load_data(cast(Data, data), selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
+    sky = _per_file_model(sky, labels, data_path, mode, gains, vset)
     out, result = run_fit(
         vset,
         sky,
@@ -344,6 +418,7 @@ def fit(
 
         out["data"] = labels
         out["files"] = per_file_chi2(result.statistic, result.statistic.model.get_free(), labels)
+        _add_per_file_values(out, result.model)
     return FitReport(record=out, model=result.model, result=result, notes=notes)
 
 
@@ -390,7 +465,7 @@ def check_sample_options(
 
 
 def sample(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     mode: str = "complex",
     systematic: float = 0.0,
@@ -419,8 +494,8 @@ def sample(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities.
+    data : VisibilitySet or path, or a list of them
+        The visibilities; several files are stacked and fitted jointly, as in :func:`fit`.
     model : SkyModel or path
         The model (not changed), or its TOML file; priors are the model's.
     mode, systematic, starts, redshift, seed, gains, gain_interval, gain_prior
@@ -474,10 +549,11 @@ def sample(
 
     check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
     closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
     sky = load_model_or_path(model)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
+    sky = _per_file_model(sky, labels, data_path, mode, gains, vset)
     post = run_sample(
         vset,
         sky,
@@ -501,6 +577,8 @@ def sample(
     )
     out = post.to_dict()
     out["selection"] = _given(selection)
+    if labels is not None:
+        out["data"] = list(labels)
     if closure:
         out["closure_options"] = closure
     return SampleReport(record=out, posterior=post, notes=notes)
@@ -536,7 +614,7 @@ class CompareReport:
 
 
 def compare(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     models: Sequence[Model],
     mode: str = "complex",
     systematic: float = 0.0,
@@ -562,8 +640,8 @@ def compare(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities.
+    data : VisibilitySet or path, or a list of them
+        The visibilities; several files are stacked and fitted jointly, as in :func:`fit`.
     models : sequence of SkyModel or path
         Two or more models.
     mode, systematic, starts, seed, gains, gain_interval, gain_prior
@@ -615,10 +693,10 @@ def compare(
     if names is None and all(_is_path(m) for m in models):
         names = [_stem(m) for m in models]
     closure = _with_site(closure_options(mode, snr_cut, closure_average, scan_gap), mode, selection)
-    skies = [load_model_or_path(m) for m in models]
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
     if data_path is None and _is_path(data):
         data_path = os.fspath(data)
+    skies = [_per_file_model(load_model_or_path(m), labels, data_path, mode, gains, vset) for m in models]
     out = run_compare(
         vset,
         skies,
@@ -637,7 +715,7 @@ def compare(
     )
     if closure:
         out["closure_options"] = closure
-    out["data"] = None if data_path is None else str(data_path)
+    out["data"] = _data_record(data_path, labels)
     out["selection"] = selection if selection is not None else {}
     out["model_files"] = [str(m) if _is_path(m) else None for m in models]
     return CompareReport(record=out, notes=notes)
@@ -676,7 +754,7 @@ class ClosureReport:
 
 
 def closures(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Union[Model, dict, None] = None,
     systematic: Optional[float] = None,
     snr_cut: Optional[float] = None,
@@ -692,8 +770,8 @@ def closures(
 
     Parameters
     ----------
-    data : VisibilitySet or path
-        The visibilities.
+    data : VisibilitySet or path, or a list of them
+        The visibilities; several files are stacked and fitted jointly, as in :func:`fit`.
     model : SkyModel, path, fit dict or None
         A model, a model file (.toml), a fit result (.json written by ``fit``, or its dict: the
         fitted model is used), or None for the counts only.
@@ -762,7 +840,9 @@ def closures(
         shown = ", ".join(f"{k}={selection[k]}" for k in sorted(selection)) or "none"
         origin = ("from the fit: " + ", ".join(from_fit)) if from_fit else "none from the fit"
         used_note = f"note: selection used: {shown} ({origin}); systematic floor {systematic:g} ({floor_from})"
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
+    if sky is not None:
+        sky = _per_file_model(sky, labels, data_path, "complex", None, vset)
     if used_note:
         notes = [used_note] + list(notes)
     if systematic is None:
@@ -784,7 +864,7 @@ def closures(
     summary = json_summary(res)
     summary.update(
         {
-            "data": None if data_path is None else str(data_path),
+            "data": _data_record(data_path, labels),
             "model": model_path,
             **info,
             "selection": {k: v for k, v in (selection or {}).items() if v not in (None, (), "")},
@@ -1240,10 +1320,11 @@ def _fit_for(data, model, mode, systematic, seed, selection, options, procs=1):
     from .stats.modes import make_statistic
 
     sky = load_model_or_path(model)
-    vset, notes = load_data(data, selection)
+    vset, notes, labels = _joint_data(data, selection)
     options = _with_site(dict(options or {}), mode, selection)
+    sky = _per_file_model(sky, labels, os.fspath(data) if _is_path(data) else None, mode, options.get("gains"), vset)
     stat = make_statistic(mode, vset, sky.copy(), systematic=systematic, **options)
-    return stat, lsq_fit(stat, starts="auto", seed=seed, procs=procs), notes
+    return stat, lsq_fit(stat, starts="auto", seed=seed, procs=procs), notes, labels
 
 
 @dataclass
@@ -1268,7 +1349,7 @@ class ProfileReport:
 
 
 def profile(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     parameter: str,
     value_range: Optional[Sequence[float]] = None,
@@ -1288,7 +1369,7 @@ def profile(
     errors inside the bounds); intervals at delta chi2 = 1 and 3.84 (Wilks 1938; Venzon &
     Moolgavkar 1988). The fit first uses the "auto" starts of :func:`fit`; ``starts``: starts per grid
     point besides the warm start. ``procs``: processes for the starts and the grid (the numbers do
-    not depend on it).
+    not depend on it). ``data`` may be a list of files, fitted jointly as in :func:`fit`.
     See :func:`uvfit.infer.profile.profile` for the keys of ``to_dict()``.
     """
     from .infer.profile import MAX_POINTS
@@ -1302,7 +1383,7 @@ def profile(
         )
     _check_at_least("starts", starts, 1)
     procs = check_procs(procs)
-    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options, procs=procs)
+    stat, best, notes, labels = _fit_for(data, model, mode, systematic, seed, selection, options, procs=procs)
     out = run_profile(
         stat,
         parameter,
@@ -1320,7 +1401,7 @@ def profile(
             "systematic": float(systematic),
             "fit_starts": int(best.starts),
             "selection": _given(selection),
-            "data": os.fspath(data) if _is_path(data) else data_path,
+            "data": _data_record(os.fspath(data) if _is_path(data) else data_path, labels),
             **({"closure_options": dict(options)} if options else {}),
         }
     )
@@ -1359,7 +1440,7 @@ class JackknifeReport:
 
 
 def jackknife(
-    data: Data,
+    data: Union[Data, Sequence[Data]],
     model: Model,
     by: str = "station",
     mode: str = "complex",
@@ -1378,14 +1459,15 @@ def jackknife(
     :func:`uvfit.infer.jackknife.jackknife` for the keys of ``to_dict()``. The fit of all the data
     uses the "auto" starts of :func:`fit` (``fit_starts`` in the JSON); each refit starts from its
     best values, plus ``starts - 1`` random starts. ``procs``: processes for the starts and the
-    refits (the numbers do not depend on it)."""
+    refits (the numbers do not depend on it). ``data`` may be a list of files, fitted
+    jointly as in :func:`fit` (by channel, each file's channels are their own)."""
     from .infer.jackknife import GROUPINGS
     from .infer.jackknife import jackknife as run_jackknife
 
     if by not in GROUPINGS:
         raise UvfitError(f"by must be one of {', '.join(GROUPINGS)} (got {by!r})")
     procs = check_procs(procs)
-    stat, best, notes = _fit_for(data, model, mode, systematic, seed, selection, options, procs=procs)
+    stat, best, notes, labels = _fit_for(data, model, mode, systematic, seed, selection, options, procs=procs)
     out = run_jackknife(stat, best, by=by, redshift=redshift, seed=seed, starts=starts, progress=progress, procs=procs)
     out.update(
         {
@@ -1393,7 +1475,7 @@ def jackknife(
             "systematic": float(systematic),
             "fit_starts": int(best.starts),
             "selection": _given(selection),
-            "data": os.fspath(data) if _is_path(data) else data_path,
+            "data": _data_record(os.fspath(data) if _is_path(data) else data_path, labels),
             **({"closure_options": dict(options)} if options else {}),
         }
     )

@@ -400,6 +400,24 @@ def progressbar(length, label, **options):
 STDOUT = "-"
 
 
+def joint_data(data):
+    """(what the task takes, the inputs for ``check_outputs``) of the DATA arguments: one path, or
+    the list of several files fitted jointly."""
+    paths = tuple(data)
+    inputs = {"the data": paths[0]} if len(paths) == 1 else {f"data file {k + 1}": d for k, d in enumerate(paths)}
+    return (paths[0] if len(paths) == 1 else list(paths)), inputs
+
+
+def split_data_and_models(arguments):
+    """(data paths, model paths) of arguments DATA... MODEL MODEL...: the data are the arguments
+    before the first name ending in .toml; when none does, the first argument is the data."""
+    arguments = tuple(arguments)
+    first = next((k for k, a in enumerate(arguments) if str(a).lower().endswith(".toml")), None)
+    if first is None or first == 0:
+        first = 1
+    return arguments[:first], arguments[first:]
+
+
 def check_outputs(outputs, inputs=None, force=False, stdout_ok=()):
     """Check every output of a command before any work, against each other and the inputs.
 

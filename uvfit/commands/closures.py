@@ -10,6 +10,7 @@ from ._common import (
     closure_options,
     echo_notes,
     force_option,
+    joint_data,
     pop_closure_options,
     pop_selection,
     selection_options,
@@ -18,7 +19,7 @@ from ._common import (
 
 
 @click.command("closures")
-@click.argument("data", type=click.Path())
+@click.argument("data", nargs=-1, required=True, type=click.Path())
 @click.option(
     "--model",
     "model_path",
@@ -68,7 +69,8 @@ def command(data, model_path, systematic, full, covariance, json_out, table_out,
     from .. import tasks
     from ..outputs import atomic_write_with, write_json
 
-    check_outputs({"--json": json_out, "--table": table_out}, {"the data": data, "the model": model_path}, force)
+    data, data_inputs = joint_data(data)
+    check_outputs({"--json": json_out, "--table": table_out}, {**data_inputs, "the model": model_path}, force)
     closure = pop_closure_options(kwargs)
     selection = pop_selection(kwargs)
     if selection.get("average"):

@@ -1,4 +1,4 @@
-"""uvfit compare DATA MODEL_A MODEL_B [...]: which model do the data require?"""
+"""uvfit compare DATA... MODEL_A MODEL_B [...]: which model do the data require?"""
 
 import click
 
@@ -13,6 +13,7 @@ from ._common import (
     echo_notes,
     force_option,
     gain_options,
+    joint_data,
     pop_closure_options,
     pop_gains,
     pop_selection,
@@ -20,14 +21,14 @@ from ._common import (
     progressbar,
     seed_option,
     selection_options,
+    split_data_and_models,
     starts_option,
     worded,
 )
 
 
 @click.command("compare")
-@click.argument("data", type=click.Path())
-@click.argument("models", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.argument("arguments", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.option(
     "--mode",
     type=click.Choice(list(MODES)),
@@ -73,8 +74,7 @@ from ._common import (
 @closure_options
 @selection_options
 def command(
-    data,
-    models,
+    arguments,
     mode,
     systematic,
     rescale_errors,
@@ -90,6 +90,9 @@ def command(
 ):
     """Fit two or more MODELS to DATA and say whether the richer ones are required.
 
+    Several data files are fitted jointly: the arguments before the first model file (a name
+    ending in .toml) are data; when no name ends in .toml, the first argument is the data.
+
     Reports chi2, AIC and BIC of each model and, against the model with the fewest free
     parameters, the likelihood ratio; with --bootstrap N, its false-alarm probability calibrated
     on N simulations of the simpler best fit on the same (u, v) coverage and errors.
@@ -98,13 +101,15 @@ def command(
     from ..errors import UvfitError
     from ..outputs import write_json
 
+    paths, models = split_data_and_models(arguments)
     if len(models) < 2:
-        raise UvfitError("compare needs at least two model files", "give MODEL_A MODEL_B [...]")
+        raise UvfitError("compare needs at least two model files", "give DATA... MODEL_A MODEL_B [...]")
+    data, data_inputs = joint_data(paths)
     closure = pop_closure_options(kwargs)
     with as_options():  # refused before any work, naming the option
         tasks.closure_options(mode, **closure)
     selection = pop_selection(kwargs)
-    check_outputs({"--json": json_out}, {"the data": data, **{f"model {m}": m for m in models}}, force)
+    check_outputs({"--json": json_out}, {**data_inputs, **{f"model {m}": m for m in models}}, force)
     options = dict(
         mode=mode,
         systematic=systematic,

@@ -10,6 +10,7 @@ from ._common import (
     echo_notes,
     force_option,
     gain_options,
+    joint_data,
     pop_closure_options,
     pop_gains,
     pop_selection,
@@ -21,7 +22,7 @@ from ._common import (
 
 
 @click.command("jackknife")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.option(
     "--by",
@@ -72,6 +73,7 @@ def command(data, model, by, mode, systematic, starts, redshift, json_out, seed,
     from .. import tasks
     from ..outputs import check_writable, write_json
 
+    data, _ = joint_data(data)
     closure = pop_closure_options(kwargs)
     with as_options():  # refused before any work, naming the option
         tasks.closure_options(mode, **closure)

@@ -8,6 +8,7 @@ from ._common import (
     closure_options,
     echo_notes,
     force_option,
+    joint_data,
     pop_closure_options,
     pop_selection,
     procs_option,
@@ -19,7 +20,7 @@ from ._common import (
 
 
 @click.command("profile")
-@click.argument("data", type=click.Path(dir_okay=False))
+@click.argument("data", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.argument("model", type=click.Path(dir_okay=False))
 @click.option(
     "--parameter",
@@ -97,6 +98,7 @@ def command(
     from ..outputs import check_writable, write_json
     from ..show.profile_plot import write_profile_plot
 
+    data, _ = joint_data(data)
     closure = pop_closure_options(kwargs)
     with as_options():  # refused before any work, naming the option
         tasks.closure_options(mode, **closure)

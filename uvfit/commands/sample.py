@@ -13,6 +13,7 @@ from ._common import (
     echo_notes,
     force_option,
     gain_options,
+    joint_data,
     pop_closure_options,
     pop_gains,
     pop_selection,
@@ -25,7 +26,7 @@ from ._common import (
 
 
 @click.command("sample")
-@click.argument("data")
+@click.argument("data", nargs=-1, required=True, type=click.Path(dir_okay=False))
 @click.argument("model")
 @click.option(
     "--mode",
@@ -147,13 +148,14 @@ def command(
     selection = pop_selection(kwargs)
     gains = pop_gains(kwargs)
     names = dict(procs="--procs", walkers="--walkers", max_steps="--max-steps", order_by="--order-by")
+    data, data_inputs = joint_data(data)
     with as_options(**names):
         tasks.check_sample_options(procs=procs, walkers=walkers, max_steps=max_steps, order_by=order_by)
         tasks.closure_options(mode, **closure)
     # refuse early, before any long work, whatever would be refused at the end
     check_outputs(
         {"--chain": chain_path, "--json": json_path, "--corner": corner_path},
-        {"the data": data, "the model": model},
+        {**data_inputs, "the model": model},
         force=True,
     )
     check_outputs({"--json": json_path, "--corner": corner_path}, {}, force)

@@ -195,6 +195,12 @@ def model_from_fit(fit, path=None):
         if path and message.startswith(f"{path}: "):
             message = message[len(path) + 2 :]
         raise UvfitError(f"{where}the model recorded in the fit cannot be rebuilt: {message}", exc.hint) from None
+    files = fit.get("data")
+    if isinstance(files, list) and files and any(p.per == "file" for p in model.parameters.values()):
+        times = [f.get("time_mean_mjd") for f in fit.get("files") or [] if isinstance(f, dict)]
+        known = model.rate_names() and len(times) == len(files) and all(finite_number(t) for t in times)
+        # the copies per file the fit had (and each file's time, for moving positions)
+        model = model.for_files([str(f) for f in files], times=[float(t) for t in times] if known else None)
     params = fit.get("parameters", {})
     names = list(model.free_names)
     if names and isinstance(params, dict) and all(n in params for n in names):

@@ -102,7 +102,13 @@ def fit_text(out):
             + ", ".join(f"{k} {v['chi2'] / max(v['n'], 1):.3g} ({v['n']})" for k, v in worst)
         )
     for f in out.get("files") or []:
-        echo(f"file {f['data']}: chi2 {f['chi2']:.6g} on {f['n']} data ({f['rows']} rows)")
+        line = f"file {f['data']}: chi2 {f['chi2']:.6g} on {f['n']} data ({f['rows']} rows)"
+        values = f.get("parameters") or {}
+        if values:  # the file's values of the per-file parameters
+            line += "; " + ", ".join(
+                f"{name} {_fmt(v['value'], v['error'])} {v['unit']}".rstrip() for name, v in values.items()
+            )
+        echo(line)
     for note in out["notices"]:
         echo(f"notice: {note}")
     for caution in out["cautions"]:

@@ -17,7 +17,15 @@ from numpy.typing import ArrayLike
 
 from ..errors import ModelError
 from . import engine as _engine
-from .parameters import ParameterSet, Uniform
+from .parameters import Parameter, ParameterSet, Uniform
+
+#: the mark between a parameter and its file number in the name of a per-file copy ("core.flux@2")
+FILE_MARK = "@"
+
+
+def per_file_name(name: str, k: int) -> str:
+    """Name of the copy of parameter ``name`` for file ``k`` (counted from 0; named from 1)."""
+    return f"{name}{FILE_MARK}{k + 1}"
 
 
 def angular_unit_of(text):
@@ -47,6 +55,9 @@ class SkyModel:
         self.rad_per_unit = float((1.0 * self.angular_unit).to_value(un.rad))
         self.description = description
         self._plan = None
+        self._variants = None
+        self.file_labels: list[str] | None = None
+        self.file_times: list[float] | None = None
         self.check()
 
     # Construction from specifications (``SkyModel.build``) and the model-file text (``to_toml``,
@@ -218,35 +229,220 @@ class SkyModel:
     def copy(self) -> SkyModel:
         return _copy.deepcopy(self)
 
+    # -- parameters separate per data file --------------------------------------------------------
+    def per_file_names(self) -> dict[str, list[str]]:
+        """{parameter: [its copy per file, in file order]} of the parameters declared per file
+        (``per = "file"``) once :meth:`for_files` has made the copies; {} before, or when none."""
+        if not self.file_labels:
+            return {}
+        n = len(self.file_labels)
+        return {
+            name: [per_file_name(name, k) for k in range(n)] for name, p in self.parameters.items() if p.per == "file"
+        }
+
+    def rate_names(self) -> dict[str, str]:
+        """{position parameter: its rate parameter} of the positions that move (``rate`` and
+        ``epoch`` in the model file; the position's value is at its ``epoch``)."""
+        return {p.rate_of: name for name, p in self.parameters.items() if p.rate_of is not None}
+
+    def needs_files(self) -> bool:
+        """True when an evaluation needs each row's data file (per-file parameters or rates)."""
+        return bool(self.file_labels) and bool(self.per_file_names() or self.rate_names())
+
+    def for_files(self, labels: list[str], times: list[float] | None = None) -> SkyModel:
+        """A copy of the model for a joint fit of the files ``labels`` (in stacking order): each
+        parameter declared per file gets one copy per file (``core.flux@1``, ``core.flux@2``,
+        ...; bounds, prior, fixed as declared), and the parameter itself follows its copy for the
+        rows of each file (on rows of no known file, the first file's copy). Everything else is
+        shared. ``times`` (MJD, one per file): where a position moves, each file's rows see it at
+        value + rate (time - epoch) (Julian years). A model without per-file parameters or rates
+        is returned as a plain copy."""
+        out = self.copy()
+        labels = [str(x) for x in labels]
+        declared = [name for name, p in out.parameters.items() if p.per == "file"]
+        if out.rate_names():
+            if times is None or len(times) != len(labels) or not np.all(np.isfinite(times)):
+                raise ModelError(
+                    "the model has positions that move (rate, epoch), but not every data file has an observation time",
+                    "give files that record their times, or remove the rates",
+                )
+            out.file_times = [float(t) for t in times]
+            out._variants = None
+            if not declared:
+                out.file_labels = labels
+                return out
+        if not declared:
+            return out
+        if out.file_labels is not None:
+            if len(out.file_labels) != len(labels):
+                raise ModelError(
+                    f"the model has per-file parameters for {len(out.file_labels)} files, the data has {len(labels)}",
+                    "fit the model as read from its file, or with as many data files as it was made for",
+                )
+            out.file_labels = labels
+            return out
+        params = ParameterSet()
+        for name, p in out.parameters.items():
+            params[name] = p
+            if p.per != "file":
+                continue
+            for k in range(len(labels)):
+                copy_name = per_file_name(name, k)
+                if copy_name in out.parameters:
+                    raise ModelError(f"parameter {copy_name} exists already", "rename the component")
+                params[copy_name] = Parameter(
+                    name=copy_name,
+                    value=p.value,
+                    min=p.min,
+                    max=p.max,
+                    fixed=p.fixed,
+                    prior=p.prior,
+                    unit=p.unit,
+                    kind=p.kind,
+                    note=f"{name} for {labels[k]}",
+                )
+            p.tie, p.fixed, p.prior = per_file_name(name, 0), False, None
+            p.note = f"one value per file: {', '.join(per_file_name(name, k) for k in range(len(labels)))}"
+        out.parameters = params
+        out.file_labels = labels
+        out._plan = None
+        out._variants = None
+        out.check()
+        return out
+
+    def _file_variants(self):
+        """[model for file k]: models sharing this model's Parameter objects, except that each
+        per-file parameter is tied to its copy for file k (kept while the structure stays)."""
+        if not self.needs_files():
+            return None
+        names = self.per_file_names()
+        key = (self.structure_key(), tuple(self.file_times or ()))
+        kept = self._variants
+        if kept is not None and kept[0] == key:
+            return kept[1]
+        variants = []
+        for k in range(len(self.file_labels or [])):
+            if not names:
+                variants.append(self)
+                continue
+            params = ParameterSet()
+            for name, p in self.parameters.items():
+                if name in names and p.tie is not None:
+                    q = _copy.copy(p)
+                    q.tie = names[name][k]
+                    params[name] = q
+                else:
+                    params[name] = p
+            variant = SkyModel.__new__(SkyModel)
+            variant.components = self.components
+            variant.parameters = params
+            variant.angular_unit, variant.angular_unit_text = self.angular_unit, self.angular_unit_text
+            variant.rad_per_unit = self.rad_per_unit
+            variant.description = self.description
+            variant._plan = None
+            variant._variants = None
+            variant.file_labels = None
+            variant.file_times = None
+            variants.append(variant)
+        self._variants = (key, variants)
+        return variants
+
     # -- prediction ---------------------------------------------------------------------------
-    def _evaluate(self, u, v, frequency, theta, gradient):
+    def _evaluate(self, u, v, frequency, theta, gradient, files=None):
         """(vis, jac or None) by the current visibility engine (``uvfit.sky.engine``: a compiled
-        kernel, or the numpy reference path; both give the same numbers)."""
-        return _engine.evaluate(self, u, v, frequency, theta, gradient)
+        kernel, or the numpy reference path; both give the same numbers). ``files``: the data
+        file (index in ``file_labels``) of each row, for a model with per-file parameters."""
+        variants = self._file_variants() if files is not None else None
+        if not variants:
+            return _engine.evaluate(self, u, v, frequency, theta, gradient)
+        u = np.asarray(u, dtype=float).ravel()
+        v = np.asarray(v, dtype=float).ravel()
+        files = np.asarray(files, dtype=int).ravel()
+        if files.size != u.size:
+            raise ModelError(f"got {files.size} file indices for {u.size} rows")
+        if files.size and (files.min() < 0 or files.max() >= len(variants)):
+            raise ModelError(f"file index outside 0..{len(variants) - 1}", "give each row the index of its data file")
+        freq = None if frequency is None else np.asarray(frequency, dtype=float)
+        per_row = freq is not None and freq.ndim > 0 and freq.size == u.size
+        vis = np.zeros(u.size, dtype=complex)
+        jac = np.zeros((u.size, self.n_free), dtype=complex) if gradient else None
+        moves = self._moves()
+        full = self.get_free() if theta is None else np.asarray(theta, dtype=float).ravel()
+        for k in np.unique(files):
+            rows = files == k
+            f = freq.ravel()[rows] if per_row else freq
+            th = full
+            if moves:
+                th = full.copy()
+                for jp, jr, rate_name, epoch in moves:
+                    years = (self.file_times[k] - epoch) / 365.25
+                    th[jp] += (full[jr] if jr is not None else self.parameters[rate_name].value) * years
+            vk, jk = _engine.evaluate(variants[k], u[rows], v[rows], f, th, gradient)
+            vis[rows] = np.asarray(vk).ravel()
+            if gradient:
+                jk = np.asarray(jk).reshape(int(rows.sum()), -1)
+                for jp, jr, _, epoch in moves:
+                    if jr is not None:
+                        jk[:, jr] += jk[:, jp] * (self.file_times[k] - epoch) / 365.25
+                jac[rows] = jk
+        return vis, jac
+
+    def _moves(self):
+        """[(free index of a moving position, free index of its rate or None, rate name, epoch)]."""
+        rates = self.rate_names()
+        if not rates or not self.file_times:
+            return []
+        index = {n: j for j, n in enumerate(self.free_names)}
+        out = []
+        for pos, rate in rates.items():
+            if pos not in index:
+                raise ModelError(f"{pos} has a rate, so it must be free", f"free {pos}, or remove its rate")
+            out.append((index[pos], index.get(rate), rate, float(self.parameters[pos].epoch)))
+        return out
 
     def visibilities(
-        self, u: ArrayLike, v: ArrayLike, frequency: ArrayLike | None = None, theta: ArrayLike | None = None
+        self,
+        u: ArrayLike,
+        v: ArrayLike,
+        frequency: ArrayLike | None = None,
+        theta: ArrayLike | None = None,
+        files: ArrayLike | None = None,
     ) -> np.ndarray:
         """Model visibilities (complex Jy) at (u, v) in wavelengths; ``frequency`` (Hz, scalar or
-        per row) matters only for components with a spectral index (None: reference frequency)."""
-        return self._evaluate(u, v, frequency, theta, gradient=False)[0]
+        per row) matters only for components with a spectral index (None: reference frequency);
+        ``files`` (each row's data file, see :meth:`for_files`) only for per-file parameters."""
+        return self._evaluate(u, v, frequency, theta, gradient=False, files=files)[0]
 
     def jacobian(
-        self, u: ArrayLike, v: ArrayLike, frequency: ArrayLike | None = None, theta: ArrayLike | None = None
+        self,
+        u: ArrayLike,
+        v: ArrayLike,
+        frequency: ArrayLike | None = None,
+        theta: ArrayLike | None = None,
+        files: ArrayLike | None = None,
     ) -> np.ndarray:
         """d V / d theta, complex, shape (n, n_free), per model unit of each free parameter."""
-        return self._evaluate(u, v, frequency, theta, gradient=True)[1]
+        return self._evaluate(u, v, frequency, theta, gradient=True, files=files)[1]
 
     def visibilities_and_jacobian(
-        self, u: ArrayLike, v: ArrayLike, frequency: ArrayLike | None = None, theta: ArrayLike | None = None
+        self,
+        u: ArrayLike,
+        v: ArrayLike,
+        frequency: ArrayLike | None = None,
+        theta: ArrayLike | None = None,
+        files: ArrayLike | None = None,
     ) -> tuple[np.ndarray, np.ndarray]:
         """(visibilities, jacobian) computed together."""
-        return self._evaluate(u, v, frequency, theta, gradient=True)
+        return self._evaluate(u, v, frequency, theta, gradient=True, files=files)
 
-    def misfit(self, u, v, data, weight, frequency=None, theta=None):
+    def misfit(self, u, v, data, weight, frequency=None, theta=None, files=None):
         """sum_i weight_i |data_i - V_i|^2 (float) over the rows, e.g. chi^2 of complex
         visibilities with weight = 1 / sigma^2 (sigma per real and imaginary part). The compiled
         engine forms no array of model visibilities for it (used by likelihoods in samplers)."""
+        if files is not None and self.needs_files():
+            model = self.visibilities(u, v, frequency=frequency, theta=theta, files=files)
+            resid = np.asarray(data, dtype=complex).ravel() - model
+            return float(np.sum(np.asarray(weight, dtype=float).ravel() * (resid.real**2 + resid.imag**2)))
         return _engine.misfit(self, u, v, data, weight, frequency=frequency, theta=theta)
 
     def total_flux(self, frequency: ArrayLike | None = None, theta: ArrayLike | None = None) -> float:
@@ -431,12 +627,21 @@ class SkyModel:
                     "parameters": params,
                 }
             )
-        return {
+        out = {
             "angular_unit": self.angular_unit_text,
             "description": self.description,
             "free_names": self.free_names,
             "components": comps,
         }
+        per_file = self.per_file_names()
+        if per_file:
+            out["per_file"] = {
+                "files": list(self.file_labels or []),
+                "parameters": {
+                    name: {c: self.parameters[c].value for c in copies} for name, copies in per_file.items()
+                },
+            }
+        return out
 
     def __eq__(self, other):
         if not isinstance(other, SkyModel):

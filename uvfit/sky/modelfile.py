@@ -8,8 +8,8 @@
     east = { value = 0.0, fixed = true }
     fwhm = { value = 0.05, min = 0.0, max = 1.0 }
 
-A parameter is a number or a table with keys ``value``, ``min``, ``max``, ``fixed``, ``tie`` and
-``prior``. See the README, "Model files", for every shape, the defaults and the priors. Every
+A parameter is a number or a table with keys ``value``, ``min``, ``max``, ``fixed``, ``tie``,
+``prior`` and ``per`` (``per = "file"``: one value per data file in a joint fit). See the README, "Model files", for every shape, the defaults and the priors. Every
 problem in a file is reported as one ModelError naming the line, the component and the key.
 """
 
@@ -29,7 +29,13 @@ from .parameters import PRIORS, LogUniform, Parameter, ParameterSet, Uniform, _t
 from .shapes import SHAPES, shape_class
 
 _TOP_KEYS = ("angular_unit", "description", "component")
-_PARAM_KEYS = ("value", "min", "max", "fixed", "tie", "prior")
+_PARAM_KEYS = ("value", "min", "max", "fixed", "tie", "prior", "per", "rate", "epoch")
+#: the parameters that may carry a rate (per Julian year) and its epoch
+_MOVING = ("east", "north")
+#: suffix of the name of a position's rate parameter ("knot.east" -> "knot.east_rate")
+RATE_SUFFIX = "_rate"
+#: values of a parameter's ``per`` key: one value of the parameter per data file of a joint fit
+_PER_VALUES = ("file",)
 _NAME_RE = re.compile(r"[A-Za-z_][A-Za-z0-9_\-]*")
 
 
@@ -256,7 +262,7 @@ def _component(table, i, loc, unit, names):
     values = {local: params[f"{name}.{local}"].value for local in comp.parameter_names()}
     for local, reason in comp.shape.invalid_values(values):
         raise err(f"{reason}: not a physical brightness", "correct the start values", key=local)
-    return comp, params
+    return comp, _rate_parameters(params, unit)
 
 
 def _setting(value, s, cls, err):
@@ -340,6 +346,18 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
             p.tie = tie if "." in tie else f"{cname}.{tie}"
             if p.fixed:
                 raise err(f"'{local}' is both fixed and tied", "keep one of 'fixed' and 'tie'", key=local)
+        if "per" in spec:
+            if spec["per"] not in _PER_VALUES:
+                raise err(
+                    f"'per' of '{local}' must be one of {', '.join(_PER_VALUES)}, got {spec['per']!r}",
+                    'write per = "file" for one value per data file',
+                    key=local,
+                )
+            if p.tie is not None:
+                raise err(f"'{local}' is both tied and per file", "keep one of 'tie' and 'per'", key=local)
+            p.per = spec["per"]
+        if "rate" in spec or "epoch" in spec:
+            _motion(spec, p, local, err)
         if "value" in spec:
             if not _is_number(spec["value"]):
                 raise err(f"'value' of '{local}' must be a number, got {spec['value']!r}", key=local)
@@ -372,6 +390,50 @@ def _parameter(spec, cname, local, kind, unit, err, bounds, default):
                 key=local,
             )
     return p
+
+
+#: start values of the rates read, by the id of their position's Parameter (while one file is read)
+_RATE_STARTS: dict[int, float] = {}
+
+
+def _motion(spec, p, local, err):
+    """A position's ``rate`` (angular unit per Julian year) and ``epoch`` (ISO date or MJD)."""
+    if local not in _MOVING:
+        raise err(f"'{local}' cannot have a rate", "only east and north move (rate, epoch)", key=local)
+    if "rate" not in spec or "epoch" not in spec:
+        raise err(f"'{local}' needs both a rate and an epoch", 'write rate = 0.1, epoch = "2020-01-01"', key=local)
+    if not _is_number(spec["rate"]) or not math.isfinite(float(spec["rate"])):
+        raise err(f"'rate' of '{local}' must be a finite number (per year), got {spec['rate']!r}", key=local)
+    if p.tie is not None or spec.get("fixed") is True or spec.get("per") is not None:
+        raise err(f"'{local}' has a rate, so it must be free and shared", "remove fixed, tie or per", key=local)
+    epoch = spec["epoch"]
+    try:
+        from astropy.time import Time
+
+        mjd = float(epoch) if _is_number(epoch) else float(Time(str(epoch), scale="utc").mjd)
+    except ValueError:
+        raise err(
+            f"'epoch' of '{local}' is not a date: {epoch!r}", 'write e.g. epoch = "2020-01-01"', key=local
+        ) from None
+    if not math.isfinite(mjd):
+        raise err(f"'epoch' of '{local}' must be finite", key=local)
+    p.epoch = mjd
+    _RATE_STARTS[id(p)] = float(spec["rate"])  # the rate parameter is made by _rate_parameters
+
+
+def _rate_parameters(params, unit):
+    """The rate parameter of every moving position, placed after it: {name: Parameter}."""
+    out = {}
+    for name, p in params.items():
+        out[name] = p
+        if p.epoch is None:
+            continue
+        rate_name = name + RATE_SUFFIX
+        start = _RATE_STARTS.pop(id(p))
+        out[rate_name] = Parameter(
+            name=rate_name, value=start, unit=p.unit / un.yr, kind="rate", rate_of=name, note=f"{name} per year"
+        )
+    return out
 
 
 def _prior(spec, p, local, err):
@@ -455,10 +517,10 @@ def _toml_value(x):
     return json.dumps(str(x))
 
 
-def _parameter_text(p, bounds):
+def _parameter_text(p, bounds, rate=None):
     local = p.local
     dmin, dmax = bounds
-    if p.free and p.prior is None and p.min == dmin and p.max == dmax:
+    if p.free and p.prior is None and p.per is None and p.epoch is None and p.min == dmin and p.max == dmax:
         text = f"{local} = {_toml_float(p.value)}"
     else:
         items = [f"value = {_toml_float(p.value)}"]
@@ -468,10 +530,15 @@ def _parameter_text(p, bounds):
             items.append(f"max = {_toml_float(p.max)}")
         if p.fixed:
             items.append("fixed = true")
-        if p.tie is not None:
+        if p.tie is not None and p.per is None:
             items.append(f"tie = {json.dumps(p.tie)}")
         if p.prior is not None:
             items.append(f"prior = {p.prior.to_toml()}")
+        if p.per is not None:
+            items.append(f"per = {json.dumps(p.per)}")
+        if p.epoch is not None and rate is not None:
+            items.append(f"rate = {_toml_float(rate)}")
+            items.append(f"epoch = {_toml_float(p.epoch)}")
         text = f"{local} = {{ " + ", ".join(items) + " }"
     if p.note:
         text += "  # " + " ".join(str(p.note).split())
@@ -494,7 +561,13 @@ def model_to_toml(model):
         if comp.reference_frequency is not None:
             out.append(f"reference_frequency = {_toml_float(comp.reference_frequency)}  # Hz")
         for local in comp.parameter_names():
-            out.append(_parameter_text(model.parameters[f"{comp.name}.{local}"], comp.default_bounds(local)))
+            full = f"{comp.name}.{local}"
+            rate = model.parameters.get(full + RATE_SUFFIX)
+            out.append(
+                _parameter_text(
+                    model.parameters[full], comp.default_bounds(local), None if rate is None else rate.value
+                )
+            )
     return "\n".join(out) + "\n"
 
 

@@ -29,7 +29,13 @@ def default_bounds(kind):
 
 def kind_unit(kind, angular_unit):
     """The astropy unit of a parameter of this kind in a model with this angular unit."""
-    return {"flux": un.Jy, "length": angular_unit, "angle": un.deg, "ratio": un.dimensionless_unscaled}[kind]
+    return {
+        "flux": un.Jy,
+        "length": angular_unit,
+        "angle": un.deg,
+        "ratio": un.dimensionless_unscaled,
+        "rate": angular_unit / un.yr,
+    }[kind]
 
 
 # -- priors ---------------------------------------------------------------------------------------
@@ -144,6 +150,9 @@ class Parameter:
 
     ``tie`` is the full name of another parameter this one always equals, or None. ``note`` is a
     free-text reason (e.g. why the fitter fixed it); it is written as a comment in a saved model.
+    ``per`` is "file" for a parameter that takes one value per data file in a joint fit
+    (``SkyModel.for_files``), else None. A position that moves has ``epoch`` (MJD: the time of
+    its value); its rate (model angular unit per Julian year) is the parameter ``rate_of`` it.
     """
 
     name: str
@@ -156,6 +165,9 @@ class Parameter:
     unit: object = None
     kind: str = "ratio"
     note: str | None = None
+    per: str | None = None
+    epoch: float | None = None
+    rate_of: str | None = None
 
     @property
     def component(self):
@@ -196,6 +208,9 @@ class Parameter:
             and self.tie == other.tie
             and self.prior == other.prior
             and self.kind == other.kind
+            and self.per == other.per
+            and _feq(self.epoch, other.epoch)
+            and self.rate_of == other.rate_of
         )
 
 

@@ -23,13 +23,24 @@ def effective_sigma(sigma, amplitude, systematic=0.0):
     return np.sqrt(sigma**2 + (f * amplitude) ** 2)
 
 
-def model_visibilities_and_jacobian(model, u, v, frequency, theta):
+def model_visibilities_and_jacobian(model, u, v, frequency, theta, files=None):
     """(V, dV/dtheta) of ``model`` at (u, v, frequency) as a 1-D complex array and an (n, n_free)
-    complex array, in one pass of the model."""
-    vis, jac = model.visibilities_and_jacobian(u, v, frequency=frequency, theta=theta)
+    complex array, in one pass of the model; ``files``: each row's data file (per-file
+    parameters, ``SkyModel.for_files``)."""
+    vis, jac = model.visibilities_and_jacobian(u, v, frequency=frequency, theta=theta, files=files)
     vis = np.asarray(vis, dtype=complex).reshape(-1)
     jac = np.asarray(jac, dtype=complex).reshape(vis.size, -1)
     return vis, jac
+
+
+def row_files(model, vset):
+    """Each row's data file (``uvfit.data.stack.file_of_rows``) when ``model`` has per-file
+    parameters, else None (the model then needs no file of its rows)."""
+    if not model.needs_files():
+        return None
+    from ..data.stack import file_of_rows
+
+    return file_of_rows(vset)
 
 
 def common_shift(model, quantity):

@@ -459,7 +459,8 @@ class GainStatistic(Statistic):
         if self._cache is not None and self._cache[0] == key:
             return self._cache[1]
         r = self.rows
-        vis = np.asarray(self.model.visibilities(r.u, r.v, frequency=r.frequency, theta=th), complex).reshape(-1)
+        vis = self.model.visibilities(r.u, r.v, frequency=r.frequency, theta=th, files=r.files(self.model))
+        vis = np.asarray(vis, complex).reshape(-1)
         sol = self.solver.solve(vis)
         self._cache = (key, sol)
         return sol
@@ -481,7 +482,7 @@ class GainStatistic(Statistic):
         th = self._theta(theta)
         sol = self.solution(th)
         r = self.rows
-        _, dm = model_visibilities_and_jacobian(self.model, r.u, r.v, r.frequency, th)
+        _, dm = model_visibilities_and_jacobian(self.model, r.u, r.v, r.frequency, th, files=r.files(self.model))
         g = self.solver._row_gains(sol.a, sol.phi)
         s = self.solver.sigma
         d = -(g / s)[:, None] * dm

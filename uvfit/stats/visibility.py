@@ -38,6 +38,7 @@ from .base import (
     common_shift,
     effective_sigma,
     model_visibilities_and_jacobian,
+    row_files,
 )
 
 _SQRT_HALF_PI = np.sqrt(np.pi / 2.0)
@@ -66,13 +67,21 @@ class _Rows:
         self.n = good.n
         self.set = good
 
+    def files(self, model):
+        """Each row's data file for a model with per-file parameters, else None (kept)."""
+        if not model.needs_files():
+            return None
+        if getattr(self, "_files", None) is None:
+            self._files = row_files(model, self.set)
+        return self._files
+
 
 def _model_vis_and_jac(model, rows, theta):
-    return model_visibilities_and_jacobian(model, rows.u, rows.v, rows.frequency, theta)
+    return model_visibilities_and_jacobian(model, rows.u, rows.v, rows.frequency, theta, files=rows.files(model))
 
 
 def _model_vis(model, rows, theta):
-    vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta)
+    vis = model.visibilities(rows.u, rows.v, frequency=rows.frequency, theta=theta, files=rows.files(model))
     return np.asarray(vis, dtype=complex).reshape(-1)
 
 
@@ -145,7 +154,9 @@ class ComplexStatistic(Statistic):
         if parts is None:
             return None
         r = self.rows
-        return fast(r.u, r.v, parts[0], parts[1], frequency=r.frequency, theta=theta), parts[2]
+        return fast(r.u, r.v, parts[0], parts[1], frequency=r.frequency, theta=theta, files=r.files(self.model)), parts[
+            2
+        ]
 
     def chi2(self, theta):
         fast = self._fast_misfit(theta)

@@ -9,6 +9,7 @@ each closure's own (diagonal) error.
 import numpy as np
 
 from ...labels import CLOSURE_CAUTION
+from ..base import row_files
 from .build import DEFAULT_SNR_CUT, build_closures, no_closure_error
 from .covariance import COVARIANCE_NOTE, check_covariance, whitening
 
@@ -17,7 +18,14 @@ def _model_vis_at_rows(model, vset, rows):
     """Model visibilities at every row of vset (NaN where not needed), computed only at ``rows``."""
     used = np.unique(rows)
     out = np.full(vset.n, np.nan + 0j)
-    out[used] = model.visibilities(vset.u[used], vset.v[used], vset.frequency[used], theta=model.get_free())
+    files = row_files(model, vset)
+    out[used] = model.visibilities(
+        vset.u[used],
+        vset.v[used],
+        vset.frequency[used],
+        theta=model.get_free(),
+        files=None if files is None else files[used],
+    )
     return out
 
 

@@ -28,6 +28,7 @@ from ..base import (
     Statistic,
     common_shift,
     model_visibilities_and_jacobian,
+    row_files,
 )
 from ..visibility import AmplitudeStatistic
 from .build import DEFAULT_SNR_CUT, _aggregator, _bispectra, build_closures, no_closure_error
@@ -175,16 +176,18 @@ class _ClosurePart(Statistic):
         self._u = vset.u[self._used]
         self._v = vset.v[self._used]
         self._f = vset.frequency[self._used]
+        files = row_files(model, vset)
+        self._files = None if files is None else files[self._used]
         self._white = None
         self._logdet = 0.0
         if covariance == "snapshot":
             self._white, self._logdet = whitening(vset, cs)
 
     def _vis(self, theta):
-        return np.asarray(self.model.visibilities(self._u, self._v, self._f, theta=theta))
+        return np.asarray(self.model.visibilities(self._u, self._v, self._f, theta=theta, files=self._files))
 
     def _vis_jac(self, theta):
-        return model_visibilities_and_jacobian(self.model, self._u, self._v, self._f, theta)
+        return model_visibilities_and_jacobian(self.model, self._u, self._v, self._f, theta, files=self._files)
 
     def residuals(self, theta):
         if self._white is None:

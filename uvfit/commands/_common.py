@@ -340,8 +340,9 @@ class _Progress:
 
     On a terminal: click's bar, its time estimate hidden until ``ETA_AFTER_UPDATES`` updates and
     ``ETA_AFTER_SECONDS`` have passed (the first steps carry start-up costs and made the estimate
-    wildly long). Elsewhere (a log file, a pipe): one short line when the stage starts and one
-    when it ends, with its count and duration.
+    wildly long). Elsewhere (a log file, a pipe): one short line when the stage's first step is
+    done and one when it ends, with its count and duration; a stage refused before its first step
+    (bad input found while reading) prints nothing, so the error stays the only line.
     """
 
     def __init__(self, length, label, stream=None, **options):
@@ -355,6 +356,7 @@ class _Progress:
         self.done = self.updates = 0
         self._options = options
         self._bar = None
+        self._announced = False
 
     def __enter__(self):
         self._start = self._clock()
@@ -362,11 +364,15 @@ class _Progress:
             self._bar = click.progressbar(length=self.length, label=self.label, file=self.stream, **self._options)
             self._bar.__enter__()
             self._bar.show_eta = False
-        else:
-            click.echo(f"{self.label}: started ({self.length} steps)", file=self.stream)
         return self
 
+    def _announce(self):
+        if not self.terminal and not self._announced:
+            self._announced = True
+            click.echo(f"{self.label}: started ({self.length} steps)", file=self.stream)
+
     def update(self, n=1):
+        self._announce()
         self.done += int(n)
         self.updates += 1
         if self._bar is not None:
@@ -382,7 +388,11 @@ class _Progress:
         if self._bar is not None:
             return self._bar.__exit__(*exc)
         seconds = self._clock() - self._start
-        state = "stopped" if exc and exc[0] is not None else "done"
+        failed = bool(exc and exc[0] is not None)
+        if failed and not self._announced:
+            return False
+        self._announce()
+        state = "stopped" if failed else "done"
         click.echo(
             f"{self.label}: {state}, {min(self.done, self.length)} of {self.length} steps in {seconds:.1f} s",
             file=self.stream,

@@ -4,10 +4,9 @@ import numpy as np
 import pytest
 
 import uvfit
-from tests.helpers.real_data import REAL_DATA
+from tests.helpers.real_data import REAL_DATA, two_gaussians
 from uvfit.data.select import apply_selection
 from uvfit.infer.lsq import fit
-from uvfit.sky.model import SkyModel
 from uvfit.stats.closures.build import build_closures
 from uvfit.stats.modes import make_statistic
 
@@ -58,27 +57,7 @@ def test_closure_fit_puts_the_jet_south_west(name):
     vs = vs.good()
     best = None
     for east, north in ((20.0, 20.0), (-20.0, -20.0)):  # one start in each half-plane
-        model = SkyModel.build(
-            [
-                {
-                    "name": "a",
-                    "shape": "gaussian",
-                    "flux": 8.0,
-                    "east": 0.0,
-                    "north": 0.0,
-                    "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-                },
-                {
-                    "name": "b",
-                    "shape": "gaussian",
-                    "flux": {"value": 3.0, "min": 0.0},
-                    "east": east,
-                    "north": north,
-                    "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-                },
-            ],
-            angular_unit="uas",
-        )
+        model = two_gaussians(east=east, north=north)
         res = fit(make_statistic("closure", vs, model, systematic=0.02), starts=1, seed=0, strict=False)
         if best is None or res.chi2 < best.chi2:
             best = res
@@ -93,27 +72,7 @@ def test_closure_fit_from_a_north_start_ends_south_west_with_default_options():
     # minimum north of the core (PA about 355 deg, measured here); the default starts must find
     # the south-west solution. Task defaults except the fit's options of the check (closure mode,
     # min uv 1e7 wavelengths, 2% systematic floor) and no resolved test (extra refits only).
-    model = SkyModel.build(
-        [
-            {
-                "name": "a",
-                "shape": "gaussian",
-                "flux": 8.0,
-                "east": 0.0,
-                "north": 0.0,
-                "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-            },
-            {
-                "name": "b",
-                "shape": "gaussian",
-                "flux": {"value": 3.0, "min": 0.0},
-                "east": 0.0,
-                "north": 20.0,
-                "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-            },
-        ],
-        angular_unit="uas",
-    )
+    model = two_gaussians(east=0.0, north=20.0)
     path = DATA / "SR1_3C279_2017_095_lo_hops_netcal_StokesI.uvfits"
     report = uvfit.fit(path, model, mode="closure", systematic=0.02, selection={"min_uv": 1e7}, resolved_test=False)
     out = report.to_dict()

@@ -9,12 +9,11 @@ import numpy as np
 import pytest
 
 import uvfit
-from tests.helpers.real_data import REAL_DATA
+from tests.helpers.real_data import REAL_DATA, two_gaussians
 from uvfit.data.select import apply_selection
 from uvfit.data.stack import file_of_rows, stack_sets
 from uvfit.data.visset import VisibilitySet
 from uvfit.errors import DataError
-from uvfit.sky.model import SkyModel
 
 LO = REAL_DATA / "SR1_3C279_2017_095_lo_hops_netcal_StokesI.uvfits"
 HI = REAL_DATA / "SR1_3C279_2017_095_hi_hops_netcal_StokesI.uvfits"
@@ -48,27 +47,7 @@ def test_stacked_bands_keep_every_row(bands):
 
 
 def test_joint_fit_equals_a_fit_of_the_table_stacked_by_hand(bands):
-    model = SkyModel.build(
-        [
-            {
-                "name": "a",
-                "shape": "gaussian",
-                "flux": 8.0,
-                "east": 0.0,
-                "north": 0.0,
-                "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-            },
-            {
-                "name": "b",
-                "shape": "gaussian",
-                "flux": {"value": 3.0, "min": 0.0},
-                "east": -20.0,
-                "north": -20.0,
-                "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-            },
-        ],
-        angular_unit="uas",
-    )
+    model = two_gaussians(east=-20.0, north=-20.0)
     joint = uvfit.fit(stack_sets(bands), model, mode="complex", systematic=0.02, resolved_test=False).to_dict()
     hand = uvfit.fit(by_hand(bands), model, mode="complex", systematic=0.02, resolved_test=False).to_dict()
     for key in ("a-b.separation", "a-b.position_angle"):

@@ -4,22 +4,10 @@ import numpy as np
 import pytest
 
 import uvfit
-from tests.helpers.real_data import real_file
+from tests.helpers.real_data import real_file, two_gaussians
 from uvfit.data.select import apply_selection
 from uvfit.infer.lsq import fit
-from uvfit.sky.model import SkyModel
 from uvfit.stats.modes import make_statistic
-
-
-def _two_gaussians():
-    gaussian = {"shape": "gaussian", "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0}}
-    return SkyModel.build(
-        [
-            {"name": "a", "flux": 8.0, "east": 0.0, "north": 0.0, **gaussian},
-            {"name": "b", "flux": {"value": 3.0, "min": 0.0}, "east": -20.0, "north": -20.0, **gaussian},
-        ],
-        angular_unit="uas",
-    )
 
 
 def _faint_from_bright(res):
@@ -37,7 +25,7 @@ def test_gains_fit_agrees_with_the_closure_fit_and_puts_the_jet_south_west(band)
     # closure amplitudes, 2% floor), which station gains cannot touch. Same-site baselines
     # (< 10 Mlambda) left out as in tests/test_closure_3c279.py (common practice).
     vs, _ = apply_selection(uvfit.read(real_file(band)).good(), min_uv=1e7)
-    closure = fit(make_statistic("closure", vs, _two_gaussians(), systematic=0.02), strict=False)
+    closure = fit(make_statistic("closure", vs, two_gaussians(), systematic=0.02), strict=False)
     res = fit(
         make_statistic("complex", vs, closure.model.copy(), systematic=0.02, gains="complex", gain_prior="*=0.1"),
         strict=False,

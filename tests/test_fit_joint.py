@@ -5,22 +5,11 @@ an invented array), S(nu) = S0 (nu / nu0)^alpha as in the model files."""
 
 import pytest
 
+from tests.helpers.arrays import five_station_array
 from uvfit import tasks
-from uvfit.sim.array import parse_array
 from uvfit.sky.modelfile import loads
 
-ARRAY = parse_array(
-    {
-        "name": "invented five-station array",
-        "station": [
-            {"name": "B1", "lat": 48.0, "lon": 10.0, "height": 300.0, "sefd": 2000.0},
-            {"name": "B2", "lat": 40.0, "lon": -4.0, "height": 600.0, "sefd": 2000.0},
-            {"name": "B3", "lat": 60.0, "lon": 25.0, "height": 100.0, "sefd": 2000.0},
-            {"name": "B4", "lat": 35.0, "lon": 33.0, "height": 200.0, "sefd": 2000.0},
-            {"name": "B5", "lat": 45.0, "lon": -70.0, "height": 100.0, "sefd": 2000.0},
-        ],
-    }
-)
+ARRAY = five_station_array()
 MODEL = """angular_unit = "mas"
 [[component]]
 name = "core"

@@ -15,10 +15,10 @@ import numpy as np
 import pytest
 from scipy.optimize import least_squares
 
+from tests.helpers.arrays import five_station_array
 from tests.helpers.real_data import real_file
 from uvfit import tasks
 from uvfit.errors import UvfitError
-from uvfit.sim.array import parse_array
 from uvfit.sky.modelfile import loads
 
 MODEL = """angular_unit = "uas"
@@ -124,18 +124,7 @@ def test_joint_fit_of_the_3c279_bands_with_per_band_fluxes(real_data):
         assert abs(a1 - pa) < 3 * d["core-knot.position_angle"]["error"], (path, a1, pa)
 
 
-ARRAY = parse_array(
-    {
-        "name": "invented five-station array",
-        "station": [
-            {"name": "B1", "lat": 48.0, "lon": 10.0, "height": 300.0, "sefd": 2000.0},
-            {"name": "B2", "lat": 40.0, "lon": -4.0, "height": 600.0, "sefd": 2000.0},
-            {"name": "B3", "lat": 60.0, "lon": 25.0, "height": 100.0, "sefd": 2000.0},
-            {"name": "B4", "lat": 35.0, "lon": 33.0, "height": 200.0, "sefd": 2000.0},
-            {"name": "B5", "lat": 45.0, "lon": -70.0, "height": 100.0, "sefd": 2000.0},
-        ],
-    }
-)
+ARRAY = five_station_array()
 INVENTED = """angular_unit = "mas"
 [[component]]
 name = "core"

@@ -1,10 +1,9 @@
 """The sampler on real data: 3C 279 at 230 GHz, 2017 April 5 (see tests/data/3c279/ABOUT.md)."""
 
 import uvfit
-from tests.helpers.real_data import REAL_DATA
+from tests.helpers.real_data import REAL_DATA, two_gaussians
 from uvfit.data.select import apply_selection
 from uvfit.infer.sampling import sample
-from uvfit.sky.model import SkyModel
 
 DATA = REAL_DATA
 
@@ -16,27 +15,7 @@ def test_closure_posterior_puts_the_jet_south_west():
     # 25-30 microarcseconds away. Baselines shorter than 10 Mlambda (co-located stations) are left
     # out, as a compact two-component model cannot hold arcsecond-scale emission (common practice).
     vs, _ = apply_selection(uvfit.read(DATA / "SR1_3C279_2017_095_lo_hops_netcal_StokesI.uvfits").good(), min_uv=1e7)
-    model = SkyModel.build(
-        [
-            {
-                "name": "a",
-                "shape": "gaussian",
-                "flux": 8.0,
-                "east": 0.0,
-                "north": 0.0,
-                "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-            },
-            {
-                "name": "b",
-                "shape": "gaussian",
-                "flux": {"value": 3.0, "min": 0.0},
-                "east": -20.0,
-                "north": -20.0,
-                "fwhm": {"value": 20.0, "min": 0.0, "max": 200.0},
-            },
-        ],
-        angular_unit="uas",
-    )
+    model = two_gaussians(east=-20.0, north=-20.0)
     post = sample(vs.good(), model, mode="closure", systematic=0.02, n_walkers=12, max_steps=200, seed=1)
     pa = post.derived["a-b.position_angle"]
     sep = post.derived["a-b.separation"]

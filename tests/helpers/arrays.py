@@ -76,3 +76,20 @@ def earth_rotation_uv(xyz, i, j, hour_angle, dec, wavelength):
     u = np.sin(h) * lx + np.cos(h) * ly
     v = -np.sin(dec) * np.cos(h) * lx + np.sin(dec) * np.sin(h) * ly + np.cos(dec) * lz
     return u, v
+
+
+def five_station_array():
+    """An invented five-station array (positions across Europe, Asia Minor and the Americas made
+    up; 2000 Jy SEFD each) for Earth-rotation simulations of joint and multi-epoch fits."""
+    from uvfit.sim.array import parse_array
+
+    stations = [(1, 48.0, 10.0, 300.0), (2, 40.0, -4.0, 600.0), (3, 60.0, 25.0, 100.0), (4, 35.0, 33.0, 200.0)]
+    stations.append((5, 45.0, -70.0, 100.0))
+    return parse_array(
+        {
+            "name": "invented five-station array",
+            "station": [
+                {"name": f"B{k}", "lat": lat, "lon": lon, "height": h, "sefd": 2000.0} for k, lat, lon, h in stations
+            ],
+        }
+    )

@@ -10,7 +10,7 @@ import pytest
 from click.testing import CliRunner
 
 import uvfit
-from tests.helpers.closure_tools import scan_vset
+from tests.helpers.closure_tools import point_double, scan_vset
 from tests.helpers.real_data import real_file
 from uvfit.cli import cli
 from uvfit.data.scans import scan_index, scan_structure
@@ -18,29 +18,13 @@ from uvfit.data.select import apply_selection
 from uvfit.data.sites import find_sites, same_site_rows
 from uvfit.data.visset import StationTable, VisibilitySet
 from uvfit.infer.lsq import fit
-from uvfit.sky.model import SkyModel
 from uvfit.stats.closures.build import build_closures
 from uvfit.stats.modes import make_statistic
 from uvfit.stats.phases import phase_calibration
 
 
 def double(ratio=0.3, sep=25.0):
-    return SkyModel.build(
-        [
-            {
-                "name": "pair",
-                "shape": "double",
-                "member": "point",
-                "flux": 1.0,
-                "east": 0.0,
-                "north": 0.0,
-                "flux_ratio": {"value": ratio, "min": 0.0, "max": 1.0},
-                "separation": {"value": sep, "min": 0.0, "max": 200.0},
-                "position_angle": 115.0,
-            }
-        ],
-        angular_unit="uas",
-    )
+    return point_double(ratio, sep)
 
 
 def hand_made_scan(n_times=7, seed=4):

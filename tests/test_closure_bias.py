@@ -8,9 +8,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from tests.helpers.closure_tools import make_vset
+from tests.helpers.closure_tools import make_vset, point_double
 from uvfit.infer.lsq import fit
-from uvfit.sky.model import SkyModel
 from uvfit.stats.closures.build import build_closures, reference_amplitudes, rice_errors
 from uvfit.stats.modes import make_statistic
 
@@ -20,22 +19,7 @@ TRIALS = 50
 
 
 def double(ratio=RATIO, sep=SEP):
-    return SkyModel.build(
-        [
-            {
-                "name": "pair",
-                "shape": "double",
-                "member": "point",
-                "flux": 1.0,
-                "east": 0.0,
-                "north": 0.0,
-                "flux_ratio": {"value": ratio, "min": 0.0, "max": 1.0},
-                "separation": {"value": sep, "min": 0.0, "max": 200.0},
-                "position_angle": 115.0,
-            }
-        ],
-        angular_unit="uas",
-    )
+    return point_double(ratio, sep)
 
 
 def pulls(amplitude_reference, trials=TRIALS):

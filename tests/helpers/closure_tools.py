@@ -95,3 +95,26 @@ def scan_vset(model, n_stations=6, n_scans=8, per_scan=30, step_s=10.0, sigma=0.
         source="INVENTED-2",
         integration=step_s,
     )
+
+
+def point_double(ratio, sep):
+    """An invented 1 Jy double of points at the phase centre, PA 115 deg: flux ratio ``ratio`` and
+    separation ``sep`` microarcseconds free within bounds (a start or a truth, not a reference)."""
+    from uvfit.sky.model import SkyModel
+
+    return SkyModel.build(
+        [
+            {
+                "name": "pair",
+                "shape": "double",
+                "member": "point",
+                "flux": 1.0,
+                "east": 0.0,
+                "north": 0.0,
+                "flux_ratio": {"value": ratio, "min": 0.0, "max": 1.0},
+                "separation": {"value": sep, "min": 0.0, "max": 200.0},
+                "position_angle": 115.0,
+            }
+        ],
+        angular_unit="uas",
+    )
